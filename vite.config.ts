@@ -1,0 +1,16 @@
+import { sveltekit } from '@sveltejs/kit/vite';
+import { defineConfig } from 'vitest/config';
+
+export default defineConfig({
+	plugins: [sveltekit()],
+	server: { port: 5173, strictPort: false },
+	test: {
+		include: ['tests/**/*.test.ts'],
+		environment: 'node',
+		testTimeout: 30_000,
+		hookTimeout: 60_000,
+		// Integration and e2e tests share one database and one set of servers.
+		fileParallelism: false,
+		reporters: ['default']
+	}
+});
