@@ -1,0 +1,28 @@
+/** Public API of the scoring engine (pure TypeScript, browser-safe). */
+export * from './scales';
+export * from './labels';
+export * from './age';
+export * from './reliability';
+export * from './kinds';
+export * from './digits';
+export { charDiff, type DiffSegment } from './diff';
+export {
+	reconcile,
+	checkField,
+	classifyDerived,
+	classifyPair,
+	ReconcileInputError,
+	type Discrepancy,
+	type FieldProblem,
+	type FieldProblemCode,
+	type FieldValues,
+	type NormDef,
+	type PassInput,
+	type PassName,
+	type ProtocolInput,
+	type RawSpec,
+	type ReconcileInput,
+	type ReconcileResult,
+	type TestDef
+} from './reconcile';
+export { parseReconcileInput, reconcileInputSchema, formatPath, type ParseResult } from './schema';

@@ -1,0 +1,57 @@
+/** The kinds of discrepancy, in the order the reconciler tries them, with a plain-words line each. */
+
+export const KINDS = [
+	'missing',
+	'sign_flip',
+	'wrong_norm_group',
+	'wrong_scale',
+	'raw_as_derived',
+	'decimal_shift',
+	'transposition',
+	'rounding',
+	'digit_drop',
+	'digit_extra',
+	'wrong_digit',
+	'out_of_range',
+	'mismatch'
+] as const;
+
+export type Kind = (typeof KINDS)[number];
+
+/** Kinds that can be named for a pair of raw scores (and for derived values with no reference). */
+export const RAW_PAIR_KINDS: readonly Kind[] = [
+	'missing',
+	'decimal_shift',
+	'transposition',
+	'digit_drop',
+	'wrong_digit',
+	'out_of_range',
+	'mismatch'
+];
+
+/** Position of a kind in the order (lower wins). */
+export const KIND_RANK: Readonly<Record<Kind, number>> = Object.fromEntries(KINDS.map((k, i) => [k, i])) as Record<
+	Kind,
+	number
+>;
+
+/** One line per kind for reviewers: what probably happened. Our own wording. */
+export const KIND_EXPLANATIONS: Readonly<Record<Kind, string>> = {
+	missing: 'Left empty: the field should hold a score but nothing was entered.',
+	sign_flip: 'Looks like the direction was not reversed: this is the score the raw score would get if higher were better (or the other way round).',
+	wrong_norm_group: 'Matches the score from another norm group of this test: probably looked up in the wrong age or demographic band.',
+	wrong_scale: 'Matches this score on another scale, e.g. a T-score written in the standard-score field.',
+	raw_as_derived: 'The raw score was copied into a derived-score field.',
+	decimal_shift: 'The right digits with the decimal point moved (ten or a hundred times too big or too small).',
+	transposition: 'Two neighbouring digits swapped, as in 47 for 74.',
+	rounding: 'Rounded the other way: cut off instead of rounded up, or the reverse (for z, rounded to one decimal).',
+	digit_drop: 'One digit left out, as in 13 for 113.',
+	digit_extra: 'One digit too many, as in 744 for 74.',
+	wrong_digit: 'Same length, one digit different, as in 34 for 74.',
+	out_of_range: 'A value that cannot occur on this scale or outside the test’s raw-score range.',
+	mismatch: 'Differs, with no recognisable pattern.'
+};
+
+export function explainKind(kind: Kind): string {
+	return KIND_EXPLANATIONS[kind];
+}
