@@ -47,7 +47,7 @@ export async function run(input: Readable, output: Writable, errors: Writable): 
 	try {
 		raw = JSON.parse(text);
 	} catch (err) {
-		const detail = (err instanceof Error ? err.message : String(err)).replace(/\s+/g, " ").trim();
+		const detail = (err instanceof Error ? err.message : String(err)).replace(/\s+/g, ' ').trim();
 		return fail(errors, [`input: not valid JSON (${detail})`]);
 	}
 

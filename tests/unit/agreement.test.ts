@@ -632,7 +632,9 @@ describe('properties', () => {
 					expect(s).toBeLessThanOrEqual(1 + 1e-12);
 					// Spearman–Brown: ICC(·,k) = k·ICC(·,1) / (1 + (k − 1)·ICC(·,1)).
 					const denominator = 1 + (k - 1) * s;
-					if (Math.abs(denominator) > 1e-9) expect(avg).toBeCloseTo((k * s) / denominator, 9);
+					if (Math.abs(denominator) < 1e-6) continue; // near the pole the identity is ill-conditioned
+					const spearmanBrown = (k * s) / denominator;
+					expect(Math.abs(avg - spearmanBrown)).toBeLessThanOrEqual(1e-9 * (1 + Math.abs(spearmanBrown)));
 				}
 			})
 		);
