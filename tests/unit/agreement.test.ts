@@ -194,6 +194,26 @@ describe("Cohen's kappa: formulas and choices", () => {
 		expect(given.categories).toEqual(['c', 'b', 'a', 'unused']);
 	});
 
+	it('unused categories at the ends of the scale leave weighted kappa unchanged', () => {
+		const pairs: [string, string][] = [
+			['b', 'b'],
+			['b', 'c'],
+			['b', 'd'],
+			['d', 'd'],
+			['c', 'c'],
+			['d', 'c'],
+			['c', 'c']
+		];
+		for (const weights of ['linear', 'quadratic'] as const) {
+			const tight = cohenKappa(pairs, { weights, categories: ['b', 'c', 'd'] });
+			const wide = cohenKappa(pairs, { weights, categories: ['a', 'b', 'c', 'd', 'e'] });
+			expect(wide.kappa!).toBeCloseTo(tight.kappa!, 12);
+			expect(wide.observed).not.toBeCloseTo(tight.observed, 6);
+			const gap = cohenKappa(pairs, { weights, categories: ['b', 'x', 'c', 'd'] });
+			expect(gap.kappa!).not.toBeCloseTo(tight.kappa!, 6);
+		}
+	});
+
 	it('pe = 1 (one and the same category throughout) gives kappa null with a reason', () => {
 		const unweighted = cohenKappa([
 			['a', 'a'],
