@@ -29,6 +29,11 @@ import { formatPath } from '../../src/lib/scoring/schema';
 const MAX_ERRORS = 20;
 /** Characters of results kept in memory before the spool moves to a temporary file. */
 export const SPOOL_MEMORY_LIMIT = 16 * 1024 * 1024;
+/** Tests lower the limit to exercise the temporary-file path: CROSSTALLY_SPOOL_LIMIT=<characters>. */
+function spoolLimit(): number {
+	const v = Number(process.env.CROSSTALLY_SPOOL_LIMIT);
+	return Number.isInteger(v) && v >= 0 ? v : SPOOL_MEMORY_LIMIT;
+}
 
 class BadInput extends Error {
 	constructor(readonly lines: string[]) {
@@ -169,7 +174,7 @@ function processDocument(doc: unknown, prefix: string) {
 }
 
 export async function run(input: Readable, output: Writable, errors: Writable): Promise<number> {
-	const spool = new Spool(SPOOL_MEMORY_LIMIT);
+	const spool = new Spool(spoolLimit());
 	const decoder = new TextDecoder('utf-8');
 	try {
 		let mode: 'unknown' | 'single' | 'array' = 'unknown';
