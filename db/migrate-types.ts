@@ -1,0 +1,2 @@
+import type { QueryInterface } from 'sequelize';
+export type Migration = (params: { name: string; context: QueryInterface }) => Promise<void>;

@@ -1,0 +1,13 @@
+/** The migrations, in order. umzug gets an explicit list so it works bundled and under tsx. */
+import * as m00001 from './00001-initial';
+import * as m00002 from './00002-catalog';
+import * as m00003 from './00003-protocols';
+
+export const migrations = [
+	{ name: '00001-initial', ...m00001 },
+	{ name: '00002-catalog', ...m00002 },
+	{ name: '00003-protocols', ...m00003 }
+];
+
+/** Tables the app may read and add to but never change: the audit trail. */
+export const appendOnlyTables = ['audit_events'];

@@ -1,0 +1,192 @@
+# Installation and service management. Sourced after lib/env.sh.
+# shellcheck shell=bash
+
+ensure_packages() {
+	local missing=()
+	command -v mariadbd >/dev/null 2>&1 || [ -x /usr/sbin/mariadbd ] || missing+=(mariadb-server mariadb-client)
+	command -v redis-server >/dev/null 2>&1 || missing+=(redis-server)
+	if [ "${CROSSTALLY_NEED_BROWSER:-0}" = 1 ] && ! command -v chromium >/dev/null 2>&1; then missing+=(chromium); fi
+	if [ ${#missing[@]} -gt 0 ]; then
+		[ "$(id -u)" = 0 ] || die "missing ${missing[*]}: run as root, or install them with apt-get"
+		log "installing ${missing[*]} from Debian (once)"
+		DEBIAN_FRONTEND=noninteractive apt-get update -qq >/dev/null
+		DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends "${missing[@]}" >/dev/null \
+			|| die "apt-get install ${missing[*]} failed"
+	fi
+}
+
+ensure_node_modules() {
+	cd "$ROOT_DIR" || exit 1
+	if [ ! -d node_modules ] || [ package-lock.json -nt node_modules/.package-lock.json ]; then
+		log "installing npm packages (npm ci)"
+		npm ci --no-audit --no-fund --loglevel=error || die "npm ci failed"
+	fi
+}
+
+# Build unless build/ is newer than every source file.
+ensure_build() {
+	cd "$ROOT_DIR" || exit 1
+	local stamp=build/.built
+	if [ -f "$stamp" ] && [ -z "$(find src static package-lock.json svelte.config.js vite.config.ts tailwind.config.ts postcss.config.js -newer "$stamp" -print -quit 2>/dev/null)" ]; then
+		return 0
+	fi
+	log "building the app"
+	npx vite build --logLevel warn >"$CROSSTALLY_DATA_DIR/build.log" 2>&1 || { tail -40 "$CROSSTALLY_DATA_DIR/build.log" >&2; die "build failed (log: $CROSSTALLY_DATA_DIR/build.log)"; }
+	touch "$stamp"
+}
+
+mariadb_bin() { command -v "$1" 2>/dev/null || echo "/usr/sbin/$1"; }
+
+pid_alive() { [ -f "$1" ] && kill -0 "$(cat "$1")" 2>/dev/null; }
+
+start_mariadb() {
+	local dir="$CROSSTALLY_DATA_DIR/mariadb" sock="$RUN_DIR/mariadb.sock" pidf="$RUN_DIR/mariadb.pid"
+	mkdir -p "$RUN_DIR"
+	if pid_alive "$pidf"; then log "MariaDB already running (pid $(cat "$pidf"))"; return 0; fi
+	if [ ! -d "$dir/mysql" ]; then
+		log "initialising MariaDB data directory $dir"
+		mkdir -p "$dir"
+		"$(mariadb_bin mariadb-install-db)" --no-defaults --datadir="$dir" --user=root \
+			--auth-root-authentication-method=normal --skip-test-db --skip-name-resolve >"$RUN_DIR/mariadb-install.log" 2>&1 \
+			|| { cat "$RUN_DIR/mariadb-install.log" >&2; die "mariadb-install-db failed"; }
+	fi
+	"$(mariadb_bin mariadbd)" --no-defaults --datadir="$dir" --socket="$sock" --pid-file="$pidf" \
+		--log-error="$RUN_DIR/mariadb.err" --port="$DB_PORT" --bind-address=127.0.0.1 --skip-name-resolve \
+		--user=root --character-set-server=utf8mb4 --collation-server=utf8mb4_unicode_ci \
+		--innodb-buffer-pool-size=256M --max-connections=300 >/dev/null 2>&1 &
+	local i
+	for i in $(seq 1 100); do
+		if mariadb-admin --no-defaults --protocol=socket --socket="$sock" -uroot ping >/dev/null 2>&1; then
+			log "MariaDB listening on 127.0.0.1:$DB_PORT (pid $(cat "$pidf"))"; return 0
+		fi
+		sleep 0.2
+	done
+	tail -20 "$RUN_DIR/mariadb.err" >&2
+	die "MariaDB did not start (port $DB_PORT busy? set DB_PORT)"
+}
+
+mariadb_root() { mariadb --no-defaults --protocol=socket --socket="$RUN_DIR/mariadb.sock" -uroot "$@"; }
+
+# Create the database and the app user; password generated once and kept in the env file.
+ensure_database() {
+	local fresh="${1:-keep}"
+	if [ "$fresh" = fresh ]; then mariadb_root -e "DROP DATABASE IF EXISTS \`$DB_NAME\`"; fi
+	mariadb_root -e "CREATE DATABASE IF NOT EXISTS \`$DB_NAME\` CHARACTER SET utf8mb4 COLLATE utf8mb4_unicode_ci;
+		CREATE USER IF NOT EXISTS '$DB_USER'@'127.0.0.1' IDENTIFIED BY '$DB_PASSWORD';
+		CREATE USER IF NOT EXISTS '$DB_USER'@'localhost' IDENTIFIED BY '$DB_PASSWORD';
+		ALTER USER '$DB_USER'@'127.0.0.1' IDENTIFIED BY '$DB_PASSWORD';
+		ALTER USER '$DB_USER'@'localhost' IDENTIFIED BY '$DB_PASSWORD';" || die "could not create database $DB_NAME"
+}
+
+start_redis() {
+	local pidf="$RUN_DIR/redis.pid"
+	mkdir -p "$RUN_DIR/redis"
+	if pid_alive "$pidf"; then log "Redis already running (pid $(cat "$pidf"))"; return 0; fi
+	redis-server --port "$REDIS_PORT" --bind 127.0.0.1 --save '' --appendonly no --dir "$RUN_DIR/redis" \
+		--pidfile "$pidf" --daemonize yes --maxmemory-policy noeviction --logfile "$RUN_DIR/redis.log" >/dev/null \
+		|| die "redis-server did not start"
+	local i
+	for i in $(seq 1 50); do
+		if redis-cli -p "$REDIS_PORT" ping >/dev/null 2>&1; then log "Redis listening on 127.0.0.1:$REDIS_PORT (pid $(cat "$pidf"))"; return 0; fi
+		sleep 0.1
+	done
+	die "Redis did not answer on port $REDIS_PORT"
+}
+
+# Start a node process in the background and record its PID.
+start_node_process() {
+	local name="$1"; shift
+	local pidf="$RUN_DIR/$name.pid"
+	if pid_alive "$pidf"; then log "$name already running (pid $(cat "$pidf"))"; return 0; fi
+	( cd "$ROOT_DIR" && exec "$@" ) >>"$RUN_DIR/$name.log" 2>&1 &
+	echo $! >"$pidf"
+}
+
+wait_http() {
+	local url="$1" i
+	for i in $(seq 1 150); do
+		if node -e "fetch(process.argv[1]).then(r=>process.exit(r.ok?0:1),()=>process.exit(1))" "$url" 2>/dev/null; then return 0; fi
+		sleep 0.2
+	done
+	return 1
+}
+
+start_mailfake() {
+	start_node_process mailfake node_modules/.bin/tsx scripts/mailfake.ts
+	wait_http "http://127.0.0.1:$MAILFAKE_PORT/health" || { tail -20 "$RUN_DIR/mailfake.log" >&2; die "mail fake did not start"; }
+	log "mail fake: SMTP 127.0.0.1:$SMTP_PORT, messages at http://127.0.0.1:$MAILFAKE_PORT/messages"
+}
+
+start_app() {
+	start_node_process app node --env-file="$ENV_FILE" build/index.js
+	wait_http "http://127.0.0.1:$PORT/health" || { tail -30 "$RUN_DIR/app.log" >&2; die "app did not start"; }
+}
+
+start_worker() {
+	start_node_process worker node --env-file="$ENV_FILE" node_modules/.bin/tsx scripts/worker.ts
+}
+
+stop_pidfile() {
+	local pidf="$1" pid i
+	[ -f "$pidf" ] || return 0
+	pid="$(cat "$pidf")"
+	if kill -0 "$pid" 2>/dev/null; then
+		kill -TERM "$pid" 2>/dev/null
+		for i in $(seq 1 50); do kill -0 "$pid" 2>/dev/null || break; sleep 0.1; done
+		kill -0 "$pid" 2>/dev/null && kill -KILL "$pid" 2>/dev/null
+	fi
+	rm -f "$pidf"
+}
+
+stop_all() {
+	stop_pidfile "$RUN_DIR/app.pid"
+	stop_pidfile "$RUN_DIR/worker.pid"
+	stop_pidfile "$RUN_DIR/mailfake.pid"
+	if pid_alive "$RUN_DIR/redis.pid"; then redis-cli -p "$REDIS_PORT" shutdown nosave >/dev/null 2>&1 || true; fi
+	stop_pidfile "$RUN_DIR/redis.pid"
+	if pid_alive "$RUN_DIR/mariadb.pid"; then
+		mariadb-admin --no-defaults --protocol=socket --socket="$RUN_DIR/mariadb.sock" -uroot shutdown >/dev/null 2>&1 || true
+	fi
+	stop_pidfile "$RUN_DIR/mariadb.pid"
+}
+
+# Write the env file the app, worker and scripts read (generated secrets kept across runs).
+write_env_file() {
+	mkdir -p "$CROSSTALLY_DATA_DIR"
+	if [ -f "$ENV_FILE" ]; then
+		# keep generated secrets
+		DB_PASSWORD="${DB_PASSWORD:-$(sed -n 's/^DB_PASSWORD=//p' "$ENV_FILE")}"
+		AUTH_SECRET="${AUTH_SECRET:-$(sed -n 's/^AUTH_SECRET=//p' "$ENV_FILE")}"
+	fi
+	: "${DB_PASSWORD:=$(node -e "console.log(require('crypto').randomBytes(18).toString('base64url'))")}"
+	: "${AUTH_SECRET:=$(node -e "console.log(require('crypto').randomBytes(32).toString('base64url'))")}"
+	export DB_PASSWORD AUTH_SECRET
+	umask 077
+	cat >"$ENV_FILE" <<ENV
+# Generated by Crosstally's scripts; never commit. Secrets are kept across runs.
+CROSSTALLY_MODE=$CROSSTALLY_MODE
+CROSSTALLY_DATA_DIR=$CROSSTALLY_DATA_DIR
+DB_HOST=127.0.0.1
+DB_PORT=$DB_PORT
+DB_NAME=$DB_NAME
+DB_USER=$DB_USER
+DB_PASSWORD=$DB_PASSWORD
+REDIS_URL=redis://127.0.0.1:$REDIS_PORT
+SMTP_URL=${SMTP_URL:-smtp://127.0.0.1:$SMTP_PORT}
+MAILFAKE_URL=${MAILFAKE_URL:-http://127.0.0.1:$MAILFAKE_PORT}
+SMTP_PORT=$SMTP_PORT
+MAILFAKE_PORT=$MAILFAKE_PORT
+AUTH_SECRET=$AUTH_SECRET
+ORIGIN=$ORIGIN
+HOST=$HOST
+PORT=$PORT
+SESSION_IDLE_MINUTES=${SESSION_IDLE_MINUTES:-30}
+REMINDER_INTERVAL_MINUTES=${REMINDER_INTERVAL_MINUTES:-$([ "$CROSSTALLY_MODE" = production ] && echo 1440 || echo 3)}
+ESCALATE_AFTER_REMINDERS=${ESCALATE_AFTER_REMINDERS:-3}
+BODY_SIZE_LIMIT=${BODY_SIZE_LIMIT:-25M}
+ENV
+	umask 022
+}
+
+load_env_file() { set -a; # shellcheck disable=SC1090
+	. "$ENV_FILE"; set +a; }

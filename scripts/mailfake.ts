@@ -1,0 +1,146 @@
+/**
+ * The local mail fake for demo and test mode: an SMTP server on loopback (smtp-server) that keeps
+ * every message it receives, and a small HTTP API on loopback to read them:
+ *   GET /health, GET /messages, GET /messages/:id, DELETE /messages,
+ *   POST /faults {"refuse": n}  — refuse the next n messages with a temporary 451 (for retry tests).
+ * Messages are kept as JSON files under $CROSSTALLY_DATA_DIR/mail so a restart loses none.
+ */
+import { SMTPServer } from 'smtp-server';
+import { simpleParser } from 'mailparser';
+import { createServer } from 'node:http';
+import { mkdirSync, readdirSync, readFileSync, writeFileSync, rmSync } from 'node:fs';
+import { join } from 'node:path';
+import { randomUUID } from 'node:crypto';
+
+const smtpPort = Number(process.env.SMTP_PORT ?? 2525);
+const httpPort = Number(process.env.MAILFAKE_PORT ?? 2526);
+const dir = join(process.env.CROSSTALLY_DATA_DIR ?? '.data/demo', 'mail');
+mkdirSync(dir, { recursive: true });
+
+interface Caught {
+	id: string;
+	receivedAt: string;
+	envelope: { from: string | null; to: string[] };
+	from: string;
+	to: string;
+	cc: string;
+	subject: string;
+	messageId: string | null;
+	headers: Record<string, string>;
+	text: string;
+	html: string | null;
+}
+
+let refuseNext = 0;
+
+function list(): Caught[] {
+	return readdirSync(dir)
+		.filter((f) => f.endsWith('.json'))
+		.map((f) => JSON.parse(readFileSync(join(dir, f), 'utf8')) as Caught)
+		.sort((a, b) => a.receivedAt.localeCompare(b.receivedAt) || a.id.localeCompare(b.id));
+}
+
+const addr = (a: unknown): string => {
+	if (!a) return '';
+	const arr = Array.isArray(a) ? a : [a];
+	return arr.map((x: { text?: string }) => x.text ?? '').join(', ');
+};
+
+const smtp = new SMTPServer({
+	disabledCommands: ['STARTTLS', 'AUTH'],
+	authOptional: true,
+	logger: false,
+	size: 10 * 1024 * 1024,
+	onData(stream, session, callback) {
+		const chunks: Buffer[] = [];
+		stream.on('data', (c: Buffer) => chunks.push(c));
+		stream.on('end', async () => {
+			if (refuseNext > 0) {
+				refuseNext--;
+				const err = new Error('Temporary failure (mail fake refusing on request)') as Error & { responseCode: number };
+				err.responseCode = 451;
+				return callback(err);
+			}
+			try {
+				const raw = Buffer.concat(chunks);
+				const parsed = await simpleParser(raw);
+				const headers: Record<string, string> = {};
+				for (const [k, v] of parsed.headers) headers[k] = typeof v === 'string' ? v : JSON.stringify(v);
+				const msg: Caught = {
+					id: `${Date.now().toString(36)}-${randomUUID().slice(0, 8)}`,
+					receivedAt: new Date().toISOString(),
+					envelope: {
+						from: session.envelope.mailFrom ? session.envelope.mailFrom.address : null,
+						to: session.envelope.rcptTo.map((r) => r.address)
+					},
+					from: addr(parsed.from),
+					to: addr(parsed.to),
+					cc: addr(parsed.cc),
+					subject: parsed.subject ?? '',
+					messageId: parsed.messageId ?? null,
+					headers,
+					text: parsed.text ?? '',
+					html: typeof parsed.html === 'string' ? parsed.html : null
+				};
+				writeFileSync(join(dir, `${msg.id}.json`), JSON.stringify(msg));
+				callback();
+			} catch (e) {
+				callback(e as Error);
+			}
+		});
+	}
+});
+smtp.on('error', (e) => console.error('smtp error', e.message));
+smtp.listen(smtpPort, '127.0.0.1');
+
+const http = createServer((req, res) => {
+	const url = new URL(req.url ?? '/', 'http://x');
+	const send = (status: number, body: unknown) => {
+		res.writeHead(status, { 'content-type': 'application/json' });
+		res.end(JSON.stringify(body));
+	};
+	if (url.pathname === '/health') return send(200, { ok: true });
+	if (url.pathname === '/messages' && req.method === 'GET') {
+		const to = url.searchParams.get('to');
+		let all = list();
+		if (to) all = all.filter((m) => m.envelope.to.some((t) => t.toLowerCase() === to.toLowerCase()));
+		return send(200, all);
+	}
+	if (url.pathname === '/messages' && req.method === 'DELETE') {
+		rmSync(dir, { recursive: true, force: true });
+		mkdirSync(dir, { recursive: true });
+		return send(200, { ok: true });
+	}
+	const m = url.pathname.match(/^\/messages\/([\w-]+)$/);
+	if (m) {
+		try {
+			return send(200, JSON.parse(readFileSync(join(dir, `${m[1]}.json`), 'utf8')));
+		} catch {
+			return send(404, { error: 'no such message' });
+		}
+	}
+	if (url.pathname === '/faults' && req.method === 'POST') {
+		let body = '';
+		req.on('data', (c) => (body += c));
+		req.on('end', () => {
+			try {
+				refuseNext = Number(JSON.parse(body).refuse ?? 0);
+				send(200, { refuse: refuseNext });
+			} catch {
+				send(400, { error: 'expected {"refuse": n}' });
+			}
+		});
+		return;
+	}
+	send(404, { error: 'not found' });
+});
+http.listen(httpPort, '127.0.0.1');
+
+const stop = () => {
+	smtp.close(() => undefined);
+	http.close();
+	process.exit(0);
+};
+process.on('SIGTERM', stop);
+process.on('SIGINT', stop);
+console.log(`mail fake: SMTP ${smtpPort}, HTTP ${httpPort}, store ${dir}`);

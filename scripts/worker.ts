@@ -1,0 +1,57 @@
+/**
+ * The background worker (a separate process; npm start runs one). It dispatches the outbox into
+ * the BullMQ queue every DISPATCH_INTERVAL_MS and sends queued mail with nodemailer. Run more of
+ * them against the same Redis and database to scale out: job ids and mail_log keys keep every
+ * message to at most one send.
+ */
+import { Worker } from 'bullmq';
+import { bullConnection } from '../src/lib/server/redis';
+import { MAIL_QUEUE, dispatchOutbox, closeMailQueue } from '../src/lib/server/mail/queue';
+import { deliver, type MailJob } from '../src/lib/server/mail/deliver';
+import { closeDb } from '../src/lib/server/db';
+import '../src/lib/server/mail/review';
+
+const interval = Number(process.env.DISPATCH_INTERVAL_MS ?? 500);
+const stalledMs = Number(process.env.WORKER_STALLED_MS ?? (process.env.CROSSTALLY_MODE === 'production' ? 30_000 : 3_000));
+
+const worker = new Worker<MailJob>(
+	MAIL_QUEUE,
+	async (job) => {
+		const result = await deliver(job.data);
+		return result;
+	},
+	{ connection: bullConnection(), concurrency: Number(process.env.WORKER_CONCURRENCY ?? 8), stalledInterval: stalledMs, maxStalledCount: 2 }
+);
+worker.on('failed', (job, err) => console.error(`[worker] ${job?.data.key} attempt ${job?.attemptsMade}: ${err.message}`));
+worker.on('error', (err) => console.error(`[worker] ${err.message}`));
+
+let stopping = false;
+let lastError = '';
+async function loop() {
+	while (!stopping) {
+		try {
+			const n = await dispatchOutbox();
+			if (lastError) console.error('[worker] dispatch recovered');
+			lastError = '';
+			if (n > 0) continue;
+		} catch (e) {
+			const msg = e instanceof Error ? e.message : String(e);
+			if (msg !== lastError) console.error(`[worker] dispatch waiting: ${msg}`);
+			lastError = msg;
+		}
+		await new Promise((r) => setTimeout(r, interval));
+	}
+}
+
+async function stop() {
+	if (stopping) return;
+	stopping = true;
+	await worker.close().catch(() => undefined);
+	await closeMailQueue();
+	await closeDb().catch(() => undefined);
+	process.exit(0);
+}
+process.on('SIGTERM', stop);
+process.on('SIGINT', stop);
+console.log(`[worker] started (pid ${process.pid})`);
+loop();

@@ -1,0 +1,78 @@
+import { sequence } from '@sveltejs/kit/hooks';
+import { json, redirect, error, type Handle, type HandleServerError, type RequestEvent } from '@sveltejs/kit';
+import { handle as authHandle } from './auth';
+import { decide } from '$lib/server/access';
+import { sessionUser } from '$lib/server/session';
+import { isDbUnavailable, closeDb } from '$lib/server/db';
+import { closeRedis } from '$lib/server/redis';
+
+const isApi = (e: RequestEvent) => e.url.pathname.startsWith('/api/');
+const UNAVAILABLE = 'The database cannot be reached right now. Nothing was saved; try again in a minute.';
+
+/** Every request: who is signing in, and may they open this route with this method? */
+const authorize: Handle = async ({ event, resolve }) => {
+	event.locals.user = null;
+	const routeId = event.route.id;
+	if (routeId === null) return resolve(event); // no such route: SvelteKit answers 404
+
+	try {
+		const session = await event.locals.auth();
+		event.locals.user = await sessionUser(session);
+	} catch (e) {
+		if (isDbUnavailable(e)) {
+			event.locals.unavailable = true;
+			if (isApi(event)) return json({ message: UNAVAILABLE, code: 'unavailable' }, { status: 503 });
+			error(503, { message: UNAVAILABLE, code: 'unavailable' });
+		}
+		throw e;
+	}
+
+	const decision = decide(routeId, event.request.method, event.locals.user?.roles ?? null);
+	if (decision === 'allow') return resolve(event);
+	if (decision === 'unknown-route') console.error(`[access] no rule for ${event.request.method} ${routeId}: refused`);
+	if (decision === 'anonymous') {
+		if (isApi(event)) return json({ message: 'Sign in first.', code: 'unauthenticated' }, { status: 401 });
+		const back = event.url.pathname + event.url.search;
+		redirect(303, `/signin?redirectTo=${encodeURIComponent(back)}`);
+	}
+	const message =
+		decision === 'unknown-route' ? 'This address is not open to anyone yet.' : 'Your role does not include this screen or action.';
+	if (isApi(event)) return json({ message, code: 'forbidden' }, { status: 403 });
+	error(403, { message, code: 'forbidden' });
+};
+
+/** Headers every response carries. The Content-Security-Policy comes from svelte.config.js. */
+const headers: Handle = async ({ event, resolve }) => {
+	const response = await resolve(event);
+	const h = response.headers;
+	h.set('X-Frame-Options', 'DENY');
+	h.set('X-Content-Type-Options', 'nosniff');
+	h.set('Referrer-Policy', 'same-origin');
+	h.set('Permissions-Policy', 'camera=(), microphone=(), geolocation=(), payment=()');
+	h.set('Cross-Origin-Opener-Policy', 'same-origin');
+	if (event.url.protocol === 'https:') h.set('Strict-Transport-Security', 'max-age=31536000');
+	if (!h.has('Cache-Control')) h.set('Cache-Control', 'no-store');
+	if (event.locals.unavailable && response.status === 500) {
+		return new Response(response.body, { status: 503, headers: h });
+	}
+	return response;
+};
+
+export const handle = sequence(headers, authHandle, authorize);
+
+/** Unexpected errors: log the detail on the server, never send a stack trace or SQL. */
+export const handleError: HandleServerError = ({ error: e, event, status }) => {
+	if (isDbUnavailable(e)) {
+		event.locals.unavailable = true;
+		return { message: UNAVAILABLE, code: 'unavailable' };
+	}
+	if (status !== 404) console.error(`[error] ${event.request.method} ${event.url.pathname}:`, e instanceof Error ? e.stack : e);
+	return { message: status === 404 ? 'There is nothing at this address.' : 'Something went wrong on our side. It has been logged.', code: 'internal' };
+};
+
+let closing = false;
+process.on('sveltekit:shutdown', async () => {
+	if (closing) return;
+	closing = true;
+	await Promise.allSettled([closeDb(), closeRedis()]);
+});

@@ -1,0 +1,52 @@
+/** The append-only audit trail (the app's database user may only SELECT and INSERT here). */
+import { exec, select, type Tx } from './db';
+
+export interface AuditInput {
+	actorId: number | null;
+	entity: string;
+	entityId: number | string;
+	action: string;
+	protocolId?: number | null;
+	oldValue?: unknown;
+	newValue?: unknown;
+	reason?: string | null;
+}
+
+export async function audit(e: AuditInput, t?: Tx): Promise<void> {
+	await exec(
+		`INSERT INTO audit_events (actor_id, entity, entity_id, action, protocol_id, old_value, new_value, reason)
+		 VALUES (:actor, :entity, :entityId, :action, :protocolId, :oldValue, :newValue, :reason)`,
+		{
+			actor: e.actorId,
+			entity: e.entity,
+			entityId: String(e.entityId),
+			action: e.action,
+			protocolId: e.protocolId ?? null,
+			oldValue: e.oldValue === undefined ? null : JSON.stringify(e.oldValue),
+			newValue: e.newValue === undefined ? null : JSON.stringify(e.newValue),
+			reason: e.reason ?? null
+		},
+		t
+	);
+}
+
+export interface AuditRow {
+	id: number;
+	at: Date;
+	actor_id: number | null;
+	actor_name: string | null;
+	entity: string;
+	entity_id: string;
+	action: string;
+	old_value: string | null;
+	new_value: string | null;
+	reason: string | null;
+}
+
+export async function protocolHistory(protocolId: number): Promise<AuditRow[]> {
+	return select<AuditRow>(
+		`SELECT a.*, u.name AS actor_name FROM audit_events a LEFT JOIN users u ON u.id = a.actor_id
+		  WHERE a.protocol_id = :protocolId ORDER BY a.id`,
+		{ protocolId }
+	);
+}

@@ -1,0 +1,74 @@
+/**
+ * The database connection (Sequelize over the `mariadb` connector) and small query helpers.
+ * Data-access modules under src/lib/server/ use `select`, `selectOne` and `exec` with named
+ * replacements; multi-statement changes run inside `transaction`.
+ */
+import { Sequelize, QueryTypes, Transaction } from 'sequelize';
+import * as mariadb from 'mariadb';
+import { config } from './config';
+
+let instance: Sequelize | null = null;
+
+export function db(): Sequelize {
+	if (!instance) {
+		instance = new Sequelize(config.db.name, config.db.user, config.db.password, {
+			host: config.db.host,
+			port: config.db.port,
+			dialect: 'mariadb',
+			dialectModule: mariadb,
+			logging: false,
+			timezone: '+00:00',
+			pool: { max: config.db.pool, min: 0, idle: 10_000, acquire: 5_000 },
+			dialectOptions: { connectTimeout: 3_000, decimalAsNumber: true, bigIntAsNumber: true, dateStrings: ['DATE'] }
+		});
+	}
+	return instance;
+}
+
+export async function closeDb(): Promise<void> {
+	if (instance) {
+		const i = instance;
+		instance = null;
+		await i.close();
+	}
+}
+
+export type Params = Record<string, unknown>;
+export type Tx = Transaction | null | undefined;
+
+export async function select<T = Record<string, unknown>>(sql: string, replacements: Params = {}, transaction?: Tx): Promise<T[]> {
+	return db().query(sql, { type: QueryTypes.SELECT, replacements, transaction: transaction ?? undefined }) as Promise<T[]>;
+}
+
+export async function selectOne<T = Record<string, unknown>>(sql: string, replacements: Params = {}, transaction?: Tx): Promise<T | null> {
+	const rows = await select<T>(sql, replacements, transaction);
+	return rows[0] ?? null;
+}
+
+/** INSERT/UPDATE/DELETE: returns the insert id and the number of affected rows. */
+export async function exec(sql: string, replacements: Params = {}, transaction?: Tx): Promise<{ insertId: number; affected: number }> {
+	const out = (await db().query(sql, { replacements, transaction: transaction ?? undefined, raw: true })) as unknown[];
+	// Sequelize answers INSERT with [insertId, affectedRows] and other statements with [OkPacket, …].
+	if (typeof out[0] === 'number') return { insertId: Number(out[0]), affected: Number(out[1] ?? 0) };
+	const packet = out[0] as { insertId?: number | bigint; affectedRows?: number } | undefined;
+	return { insertId: Number(packet?.insertId ?? 0), affected: Number(packet?.affectedRows ?? 0) };
+}
+
+export function transaction<T>(fn: (t: Transaction) => Promise<T>): Promise<T> {
+	return db().transaction({ isolationLevel: Transaction.ISOLATION_LEVELS.READ_COMMITTED }, fn);
+}
+
+/** True when an error means the database cannot be reached (answered with 503, never a 500). */
+export function isDbUnavailable(e: unknown): boolean {
+	const name = (e as { name?: string })?.name ?? '';
+	const code = (e as { original?: { code?: string }; parent?: { code?: string }; code?: string });
+	const c = code?.original?.code ?? code?.parent?.code ?? code?.code ?? '';
+	return (
+		name === 'SequelizeConnectionError' ||
+		name === 'SequelizeConnectionRefusedError' ||
+		name === 'SequelizeConnectionAcquireTimeoutError' ||
+		name === 'SequelizeHostNotReachableError' ||
+		name === 'SequelizeConnectionTimedOutError' ||
+		/ECONNREFUSED|ER_GET_CONNECTION_TIMEOUT|ER_SOCKET_UNEXPECTED_CLOSE|ER_CONNECTION_TIMEOUT|ECONNRESET|PROTOCOL_CONNECTION_LOST/.test(c)
+	);
+}

@@ -1,0 +1,41 @@
+/** The SMTP transport (nodemailer). Production: SMTP_URL. Demo and test: the local mail fake. */
+import nodemailer, { type Transporter } from 'nodemailer';
+import { config } from '../config';
+
+let transporter: Transporter | null = null;
+
+export function mailTransport(): Transporter {
+	if (!transporter) {
+		const local = config.smtpUrl.includes('127.0.0.1') || config.smtpUrl.includes('localhost');
+		transporter = nodemailer.createTransport(config.smtpUrl, {
+			// The local fake speaks plain SMTP on loopback; real servers negotiate TLS.
+			...(local ? { ignoreTLS: true, secure: false } : {}),
+			connectionTimeout: 5_000,
+			greetingTimeout: 5_000,
+			socketTimeout: 10_000
+		});
+	}
+	return transporter;
+}
+
+export interface OutgoingMail {
+	to: string[];
+	cc?: string[];
+	subject: string;
+	text: string;
+	html: string;
+	headers?: Record<string, string>;
+}
+
+export async function sendMail(mail: OutgoingMail): Promise<string | null> {
+	const info = await mailTransport().sendMail({
+		from: config.mailFrom,
+		to: mail.to,
+		cc: mail.cc && mail.cc.length ? mail.cc : undefined,
+		subject: mail.subject,
+		text: mail.text,
+		html: mail.html,
+		headers: mail.headers
+	});
+	return info.messageId ?? null;
+}

@@ -1,0 +1,12 @@
+/** The signed-in user of a request, checked against the database on every request. */
+import type { Session } from '@auth/sveltekit';
+import { getUser } from './users';
+
+export async function sessionUser(session: Session | null): Promise<App.Locals['user']> {
+	const uid = session?.user?.uid;
+	if (!uid) return null;
+	const user = await getUser(uid);
+	// A deactivated account, or one whose sessions were ended (password set, deactivated), is anonymous.
+	if (!user || !user.active || user.session_version !== session.user.sv) return null;
+	return { id: user.id, name: user.name, email: user.email, roles: user.roles };
+}
