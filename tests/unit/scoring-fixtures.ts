@@ -24,7 +24,7 @@ export const NORMS: NormDef[] = [
 
 /** The spec's batch input example, verbatim. */
 export function specExample(): ReconcileInput {
-	return {
+	return structuredClone({
 		tests: [SPEEDED_MATCH],
 		norms: [NORMS[0]],
 		protocol: { group: 'a30' },
@@ -32,7 +32,7 @@ export function specExample(): ReconcileInput {
 			{ scorer: 'first-scorer-id', scores: { 'speeded-match': { raw: 36, z: '-1.00', scaled: 7 } } },
 			{ scorer: 'second-scorer-id', scores: { 'speeded-match': { raw: '36', standard: 151 } } }
 		]
-	};
+	});
 }
 
 /** word-recall, raw 29, group a30: z 1.07, standard 116, scaled 13, T 61, percentile 86. */
@@ -45,7 +45,7 @@ export function wordRecall(
 	opts: { norms?: NormDef[]; test?: Partial<TestDef> } = {}
 ): ReconcileInput {
 	const test = { ...WORD_RECALL, ...opts.test };
-	return {
+	return structuredClone({
 		tests: [test],
 		norms: opts.norms ?? NORMS.filter((n) => n.test === 'word-recall'),
 		protocol: { group: 'a30' },
@@ -53,5 +53,5 @@ export function wordRecall(
 			{ scorer: 'one', scores: { 'word-recall': { ...WR_REF, ...first } } },
 			{ scorer: 'two', scores: { 'word-recall': { ...WR_REF, ...second } } }
 		]
-	};
+	});
 }
