@@ -5,7 +5,9 @@ import { vitePreprocess } from '@sveltejs/vite-plugin-svelte';
 const config = {
 	preprocess: vitePreprocess(),
 	kit: {
-		adapter: adapter({ out: 'build', precompress: true }),
+		// Build and kit output folders can be moved so that several checkouts' test runs do not collide.
+		adapter: adapter({ out: process.env.CROSSTALLY_BUILD_DIR ?? 'build', precompress: true }),
+		outDir: process.env.CROSSTALLY_KIT_DIR ?? '.svelte-kit',
 		csrf: { trustedOrigins: [] },
 		csp: {
 			mode: 'auto',

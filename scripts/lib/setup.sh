@@ -26,7 +26,7 @@ ensure_node_modules() {
 # Build unless build/ is newer than every source file.
 ensure_build() {
 	cd "$ROOT_DIR" || exit 1
-	local stamp=build/.built
+	local stamp="$CROSSTALLY_BUILD_DIR/.built"
 	if [ -f "$stamp" ] && [ -z "$(find src static package-lock.json svelte.config.js vite.config.ts tailwind.config.ts postcss.config.js -newer "$stamp" -print -quit 2>/dev/null)" ]; then
 		return 0
 	fi
@@ -118,7 +118,7 @@ start_mailfake() {
 }
 
 start_app() {
-	start_node_process app node --env-file="$ENV_FILE" build/index.js
+	start_node_process app node --env-file="$ENV_FILE" "$CROSSTALLY_BUILD_DIR/index.js"
 	wait_http "http://127.0.0.1:$PORT/health" || { tail -30 "$RUN_DIR/app.log" >&2; die "app did not start"; }
 }
 
