@@ -55,7 +55,7 @@ export type FieldValues = Partial<Record<Field, Entered>>;
 
 export interface PassInput {
 	scorer: string;
-	scores: Readonly<Record<string, FieldValues | undefined>>;
+	scores: Record<string, FieldValues | undefined>;
 }
 
 export interface ProtocolInput {
