@@ -12,6 +12,8 @@ ensure_node_modules
 mkdir -p "$RUN_DIR"
 # short intervals so reminder tests run in seconds
 export REMINDER_INTERVAL_MINUTES="${REMINDER_INTERVAL_MINUTES:-0.05}" SESSION_IDLE_MINUTES="${SESSION_IDLE_MINUTES:-30}"
+# every test signs in from 127.0.0.1: the per-address limit is unit-tested instead
+export SIGNIN_MAX_PER_ADDRESS="${SIGNIN_MAX_PER_ADDRESS:-100000}"
 write_env_file
 load_env_file
 

@@ -72,3 +72,9 @@ export function isDbUnavailable(e: unknown): boolean {
 		/ECONNREFUSED|ER_GET_CONNECTION_TIMEOUT|ER_SOCKET_UNEXPECTED_CLOSE|ER_CONNECTION_TIMEOUT|ECONNRESET|PROTOCOL_CONNECTION_LOST/.test(c)
 	);
 }
+
+/** A JSON column's value: the connector parses columns MariaDB reports as JSON, others are text. */
+export function jsonValue<T = unknown>(v: unknown): T {
+	if (v === null || v === undefined) return v as T;
+	return (typeof v === 'string' ? JSON.parse(v) : v) as T;
+}

@@ -12,7 +12,7 @@ export interface OutboxRow {
 	id: number;
 	kind: MailKind;
 	idempotency_key: string;
-	payload: string;
+	payload: unknown;
 	created_at: Date;
 }
 

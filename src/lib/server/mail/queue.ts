@@ -1,6 +1,7 @@
 /** The BullMQ mail queue and the outbox dispatcher that feeds it. */
 import { Queue } from 'bullmq';
 import { bullConnection } from '../redis';
+import { jsonValue } from '../db';
 import { pendingOutbox, markDispatched, markDispatchFailed } from './outbox';
 import type { MailJob } from './deliver';
 
@@ -39,7 +40,7 @@ export async function dispatchOutbox(limit = 200): Promise<number> {
 		await mailQueue().addBulk(
 			rows.map((r) => ({
 				name: r.kind,
-				data: { kind: r.kind, key: r.idempotency_key, payload: JSON.parse(r.payload) },
+				data: { kind: r.kind, key: r.idempotency_key, payload: jsonValue<Record<string, unknown>>(r.payload) },
 				opts: { ...jobOptions, jobId: r.idempotency_key.replace(/:/g, '_'), ...delayOf(r.payload) }
 			}))
 		);
@@ -52,8 +53,8 @@ export async function dispatchOutbox(limit = 200): Promise<number> {
 }
 
 /** A payload may ask to be sent no earlier than `notBefore` (ms since epoch): reminders do. */
-function delayOf(payload: string): { delay?: number } {
-	const nb = (JSON.parse(payload) as { notBefore?: number }).notBefore;
+function delayOf(payload: unknown): { delay?: number } {
+	const nb = jsonValue<{ notBefore?: number }>(payload).notBefore;
 	if (typeof nb !== 'number') return {};
 	return { delay: Math.max(0, nb - Date.now()) };
 }
