@@ -9,7 +9,7 @@ import { bullConnection } from '../src/lib/server/redis';
 import { MAIL_QUEUE, dispatchOutbox, closeMailQueue } from '../src/lib/server/mail/queue';
 import { deliver, type MailJob } from '../src/lib/server/mail/deliver';
 import { closeDb } from '../src/lib/server/db';
-import '../src/lib/server/mail/review';
+import { recoverLostReviewMail } from '../src/lib/server/mail/review'; // also registers the review renderers
 
 const interval = Number(process.env.DISPATCH_INTERVAL_MS ?? 500);
 const stalledMs = Number(process.env.WORKER_STALLED_MS ?? (process.env.CROSSTALLY_MODE === 'production' ? 30_000 : 3_000));
@@ -27,9 +27,16 @@ worker.on('error', (err) => console.error(`[worker] ${err.message}`));
 
 let stopping = false;
 let lastError = '';
+let lastSweep = Date.now();
 async function loop() {
 	while (!stopping) {
 		try {
+			// Redis keeps nothing across a restart: hand lost review jobs back to the dispatcher.
+			if (Date.now() - lastSweep > 30_000) {
+				lastSweep = Date.now();
+				const n = await recoverLostReviewMail();
+				if (n > 0) console.error(`[worker] re-dispatching ${n} review message(s) lost from the queue`);
+			}
 			const n = await dispatchOutbox();
 			if (lastError) console.error('[worker] dispatch recovered');
 			lastError = '';

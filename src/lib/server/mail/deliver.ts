@@ -55,7 +55,21 @@ export type DeliveryResult = 'sent' | 'already-sent' | 'uncertain' | 'skipped';
 /** Test hook: pause after the SMTP server accepted, so a test can kill the worker right there. */
 const pauseAfterSend = Number(process.env.MAIL_TEST_PAUSE_AFTER_SEND_MS ?? 0);
 
+/**
+ * Hooks run after a delivery attempt that ended with the message sent, already sent or possibly
+ * sent ('uncertain'), never after 'skipped' (review reminders schedule the next one here). A hook
+ * that throws fails the job; its retry finds the message sent and runs the hook again.
+ */
+export const afterDelivery: Partial<Record<MailKind, (job: MailJob, result: DeliveryResult) => Promise<void>>> = {};
+
 export async function deliver(job: MailJob): Promise<DeliveryResult> {
+	const result = await deliverOnce(job);
+	const hook = afterDelivery[job.kind];
+	if (hook && result !== 'skipped') await hook(job, result);
+	return result;
+}
+
+async function deliverOnce(job: MailJob): Promise<DeliveryResult> {
 	const existing = await selectOne<{ status: string }>('SELECT status FROM mail_log WHERE idempotency_key = :key', { key: job.key });
 	if (existing?.status === 'sent') return 'already-sent';
 	if (existing?.status === 'sending') {
