@@ -1,0 +1,460 @@
+/**
+ * CSV layouts of the catalog (a norm set's groups; a test list), row validation and export.
+ * Pure: the browser runs it in a worker while papaparse streams the file, and the server runs the
+ * same code again on confirm (the client is never trusted).
+ *
+ * "Line" in messages is the spreadsheet row: the header is line 1, the first data row line 2 (a
+ * quoted cell holding a newline still counts as one row, as a spreadsheet shows it).
+ */
+import {
+	CODE_RE,
+	DERIVED,
+	DIRECTIONS,
+	MAX_AGE_MONTHS,
+	canonicalReported,
+	testInputSchema,
+	type Bounds,
+	type Derived,
+	type NormGroupInput,
+	type TestInput
+} from './schema';
+import { rangeProblems, type RangeRow } from './ranges';
+
+export type CsvKind = 'norms' | 'tests';
+
+export const NORM_COLUMNS = ['test_code', 'group_code', 'age_min_months', 'age_max_months', 'sex', 'edu_min', 'edu_max', 'mean', 'sd', 'n'] as const;
+export const NORM_REQUIRED = ['test_code', 'group_code', 'age_min_months', 'age_max_months', 'mean', 'sd'] as const;
+export const TEST_COLUMNS = ['code', 'name', 'domain', 'unit', 'direction', 'raw_min', 'raw_max', 'raw_decimals', 'reported', 'bounds', 'reliability', 'notes'] as const;
+export const TEST_REQUIRED = ['code', 'name', 'domain', 'direction', 'raw_min', 'raw_max', 'reported'] as const;
+
+export const COLUMNS: Record<CsvKind, readonly string[]> = { norms: NORM_COLUMNS, tests: TEST_COLUMNS };
+export const REQUIRED: Record<CsvKind, readonly string[]> = { norms: NORM_REQUIRED, tests: TEST_REQUIRED };
+
+/** Other spellings accepted in a header, mapped to our column names. */
+const ALIASES: Record<string, string> = {
+	test: 'test_code',
+	group: 'group_code',
+	age_min: 'age_min_months',
+	age_max: 'age_max_months',
+	min_age_months: 'age_min_months',
+	max_age_months: 'age_max_months',
+	education_min: 'edu_min',
+	education_max: 'edu_max',
+	std: 'sd',
+	standard_deviation: 'sd',
+	test_code: 'test_code',
+	decimals: 'raw_decimals',
+	min: 'raw_min',
+	max: 'raw_max'
+};
+
+export const LIMITS = {
+	/** Largest file accepted, in bytes. */
+	maxBytes: 16 * 1024 * 1024,
+	/** Most data rows accepted. */
+	maxRows: 200_000,
+	/** Row messages kept (the count goes on). */
+	maxErrorsListed: 500,
+	sampleRows: 8
+};
+
+export function formatBytes(n: number): string {
+	return n >= 1024 * 1024 ? `${(n / 1024 / 1024).toFixed(1)} MB` : n >= 1024 ? `${Math.round(n / 1024)} KB` : `${n} bytes`;
+}
+
+export interface RowError {
+	line: number;
+	column: string | null;
+	message: string;
+}
+
+export interface ColumnMapping {
+	/** As written in the file. */
+	header: string;
+	/** Our column it fills, or null when ignored. */
+	field: string | null;
+}
+
+export interface ValidationContext {
+	/** Codes of current tests (a norm row naming another code is an unknown test). */
+	testCodes: ReadonlySet<string>;
+	/** Domain codes (a test row naming another domain is refused). */
+	domains: ReadonlySet<string>;
+}
+
+export interface PreviewResult {
+	kind: CsvKind;
+	columns: ColumnMapping[];
+	/** Required columns the header lacks. */
+	missingColumns: string[];
+	/** File-level problems: empty, wrong delimiter, not CSV, too big, too many rows. Any of these stops the import. */
+	fileErrors: string[];
+	/** Data rows seen (blank lines not counted). */
+	rowCount: number;
+	/** The first rows as parsed, by our column names. */
+	sample: { line: number; values: Record<string, string> }[];
+	errors: RowError[];
+	errorCount: number;
+	/** Lines with at least one problem. */
+	badLines: number;
+}
+
+export type ParsedRow<K extends CsvKind> = K extends 'norms' ? NormGroupInput & { line: number } : TestInput & { line: number };
+
+const FORMULA_START = /^[=+\-@\t\r]/;
+const NUMBER_RE = /^[+-]?(\d+(\.\d*)?|\.\d+)$/;
+
+function normHeader(h: string): string {
+	return h.replace(/^\uFEFF/, '').trim().toLowerCase().replace(/[\s-]+/g, '_');
+}
+
+/** A leading apostrophe protects a formula-like cell on export; strip it back on import. */
+function unescapeCell(v: string): string {
+	return v.length > 1 && v[0] === "'" && FORMULA_START.test(v.slice(1)) ? v.slice(1) : v;
+}
+
+/** Is the cell a spreadsheet formula (or formula-like)? A signed plain number is not. */
+export function isFormulaLike(v: string): boolean {
+	if (!FORMULA_START.test(v)) return false;
+	if ((v[0] === '-' || v[0] === '+') && NUMBER_RE.test(v.trim())) return false;
+	return true;
+}
+
+const DELIMS: [string, string][] = [
+	[';', 'semicolons (;)'],
+	['\t', 'tabs'],
+	['|', 'vertical bars (|)']
+];
+
+/**
+ * Validates one CSV, row by row as the parser hands them over, so a big file never sits in memory
+ * as objects (only the range keys needed for the overlap check, and on the server the parsed rows).
+ */
+export class CsvValidator<K extends CsvKind> {
+	readonly result: PreviewResult;
+	/** Parsed rows (kept only when `keepRows`). */
+	readonly rows: ParsedRow<K>[] = [];
+	private map: (string | null)[] | null = null;
+	private ranges: RangeRow[] = [];
+	private seenCodes = new Map<string, number>();
+	private lineErrors = new Set<number>();
+	private line = 0;
+	/** Columns of the current row already flagged (formula-like cells). */
+	private flagged = new Set<string>();
+	/** True once a file-level problem means the rest need not be read. */
+	stopped = false;
+
+	constructor(
+		readonly kind: K,
+		private ctx: ValidationContext,
+		private keepRows = false
+	) {
+		this.result = { kind, columns: [], missingColumns: [], fileErrors: [], rowCount: 0, sample: [], errors: [], errorCount: 0, badLines: 0 };
+	}
+
+	fileError(message: string): void {
+		this.result.fileErrors.push(message);
+		this.stopped = true;
+	}
+
+	/** A problem with the record just pushed (e.g. an unclosed quote reported by the parser). */
+	rowProblem(message: string): void {
+		if (this.map !== null && this.line > 1) this.err(this.line, null, message);
+	}
+
+	private err(line: number, column: string | null, message: string): void {
+		if (column && this.flagged.has(column) && !message.includes('formula')) return; // already named as a formula
+		this.result.errorCount++;
+		if (!this.lineErrors.has(line)) {
+			this.lineErrors.add(line);
+			this.result.badLines++;
+		}
+		if (this.result.errors.length < LIMITS.maxErrorsListed) this.result.errors.push({ line, column, message });
+	}
+
+	/** Feed the next parsed record (an array of cells). */
+	push(cells: string[]): void {
+		if (this.stopped) return;
+		this.line++;
+		if (this.map === null) return this.header(cells);
+		if (cells.every((c) => c.trim() === '')) return; // blank line
+		this.result.rowCount++;
+		if (this.result.rowCount > LIMITS.maxRows) {
+			this.fileError(`The file has more than ${LIMITS.maxRows.toLocaleString('en')} rows, the most one import takes. Split it into smaller files.`);
+			return;
+		}
+		const line = this.line;
+		const values: Record<string, string> = {};
+		this.flagged.clear();
+		if (cells.length > this.map.length) {
+			const extra = cells.slice(this.map.length);
+			if (extra.some((c) => c.trim() !== '')) this.err(line, null, `Has ${cells.length} cells but the header has ${this.map.length} columns (an unquoted comma?)`);
+		}
+		for (let i = 0; i < this.map.length; i++) {
+			const f = this.map[i];
+			if (!f) continue;
+			const raw = cells[i] ?? '';
+			if (isFormulaLike(raw)) {
+				this.err(line, f, `${f}: "${clip(raw)}" looks like a spreadsheet formula (starts with "${raw[0] === '\t' ? 'tab' : raw[0]}"); type the value itself`);
+				values[f] = '';
+				this.flagged.add(f);
+				continue;
+			}
+			values[f] = unescapeCell(raw).trim();
+		}
+		if (this.result.sample.length < LIMITS.sampleRows) {
+			const shown: Record<string, string> = {};
+			for (let i = 0; i < this.map.length; i++) if (this.map[i]) shown[this.map[i]!] = cells[i] ?? '';
+			this.result.sample.push({ line, values: shown });
+		}
+		if (this.kind === 'norms') this.normRow(line, values);
+		else this.testRow(line, values);
+	}
+
+	private header(cells: string[]): void {
+		const cols = COLUMNS[this.kind];
+		const names = cells.map(normHeader);
+		if (names.length === 1 && names[0] === '') {
+			this.map = null;
+			this.line = 0;
+			return; // leading blank line: the header is the next record
+		}
+		const mapped = names.map((n) => {
+			const f = cols.includes(n) ? n : ALIASES[n] && cols.includes(ALIASES[n]) ? ALIASES[n] : null;
+			return f;
+		});
+		const present = new Set(mapped.filter(Boolean));
+		const missing = REQUIRED[this.kind].filter((c) => !present.has(c));
+		this.result.columns = cells.map((h, i) => ({ header: h.replace(/^\uFEFF/, ''), field: mapped[i] }));
+		this.result.missingColumns = missing;
+		if (missing.length === 0) {
+			const dup = mapped.find((f, i) => f && mapped.indexOf(f) !== i);
+			if (dup) return this.fileError(`The column ${dup} appears twice in the header.`);
+			this.map = mapped;
+			return;
+		}
+		// Why does the header not fit? Another delimiter, the other kind of file, or not a CSV at all.
+		const joined = cells.join(',');
+		for (const [d, name] of DELIMS) {
+			const parts = joined.split(d).map(normHeader);
+			if (parts.length > 1 && REQUIRED[this.kind].filter((c) => parts.includes(c) || parts.some((p) => ALIASES[p] === c)).length >= 2) {
+				return this.fileError(
+					`This file separates columns with ${name}, not commas. Save it as “CSV (comma delimited)” and upload it again.`
+				);
+			}
+		}
+		const other: CsvKind = this.kind === 'norms' ? 'tests' : 'norms';
+		if (REQUIRED[other].every((c) => names.includes(c))) {
+			return this.fileError(`This looks like a ${other === 'tests' ? 'test list' : 'norm table'}, not a ${this.kind === 'tests' ? 'test list' : 'norm table'}. Choose the other kind of upload.`);
+		}
+		if (/[\u0000-\u0008\u000e-\u001f\ufffd]/.test(joined)) {
+			return this.fileError('This does not look like a text CSV file (it holds binary data). Upload the CSV exported from your spreadsheet.');
+		}
+		if (present.size === 0) {
+			return this.fileError(
+				`The first line is not a header Crosstally knows. Expected the columns ${cols.join(', ')} (required: ${REQUIRED[this.kind].join(', ')}); found ${clip(cells.slice(0, 6).join(', '), 120)}.`
+			);
+		}
+		this.fileError(`Missing column${missing.length > 1 ? 's' : ''}: ${missing.join(', ')}. The header needs ${REQUIRED[this.kind].join(', ')}.`);
+	}
+
+	private num(line: number, v: Record<string, string>, col: string, opts: { required?: boolean; int?: boolean } = {}): number | null | undefined {
+		const s = v[col];
+		if (s === undefined || s === '') {
+			if (opts.required) this.err(line, col, `${col}: missing value`);
+			return opts.required ? undefined : null;
+		}
+		if (!NUMBER_RE.test(s)) {
+			this.err(line, col, `${col}: "${clip(s)}" is not a number${/^\d+,\d+$/.test(s) ? ' (use a dot for decimals)' : ''}`);
+			return undefined;
+		}
+		const n = Number(s);
+		if (opts.int && !Number.isInteger(n)) {
+			this.err(line, col, `${col}: "${s}" is not a whole number`);
+			return undefined;
+		}
+		return n;
+	}
+
+	private normRow(line: number, v: Record<string, string>): void {
+		const before = this.result.errorCount;
+		const test = v.test_code ?? '';
+		const group = v.group_code ?? '';
+		if (!test) this.err(line, 'test_code', 'test_code: missing value');
+		else if (!this.ctx.testCodes.has(test)) this.err(line, 'test_code', `test_code: unknown test code "${clip(test)}"`);
+		if (!group) this.err(line, 'group_code', 'group_code: missing value');
+		else if (!/^[A-Za-z0-9][A-Za-z0-9._-]{0,39}$/.test(group)) this.err(line, 'group_code', `group_code: "${clip(group)}" — use 1–40 letters, digits, dot, hyphen, underscore`);
+		const min = this.num(line, v, 'age_min_months', { required: true, int: true });
+		const max = this.num(line, v, 'age_max_months', { required: true, int: true });
+		for (const [c, x] of [['age_min_months', min], ['age_max_months', max]] as const) {
+			if (typeof x === 'number' && (x < 0 || x > MAX_AGE_MONTHS)) this.err(line, c, `${c}: ${x} is outside 0–${MAX_AGE_MONTHS} months`);
+		}
+		if (typeof min === 'number' && typeof max === 'number' && min > max)
+			this.err(line, 'age_max_months', `Age range reversed: ${min}–${max} months (the upper age is below the lower)`);
+		let sex: 'F' | 'M' | null = null;
+		const sx = (v.sex ?? '').toUpperCase();
+		if (sx === 'F' || sx === 'M') sex = sx;
+		else if (sx !== '') this.err(line, 'sex', `sex: "${clip(v.sex)}" — use F, M or leave empty`);
+		const eMin = this.num(line, v, 'edu_min', { int: true });
+		const eMax = this.num(line, v, 'edu_max', { int: true });
+		if ((eMin === null) !== (eMax === null) && eMin !== undefined && eMax !== undefined) this.err(line, eMin === null ? 'edu_min' : 'edu_max', 'Give both edu_min and edu_max, or neither');
+		else if (typeof eMin === 'number' && typeof eMax === 'number') {
+			if (eMin > eMax) this.err(line, 'edu_max', `Education range reversed: ${eMin}–${eMax} years`);
+			if (eMin < 0 || eMax > 40) this.err(line, 'edu_min', 'Education years must lie within 0–40');
+		}
+		const rangeOk = this.result.errorCount === before;
+		const mean = this.num(line, v, 'mean', { required: true });
+		const sd = this.num(line, v, 'sd', { required: true });
+		if (typeof sd === 'number' && sd <= 0) this.err(line, 'sd', `sd: ${v.sd} — SD must be above 0`);
+		const n = this.num(line, v, 'n', { int: true });
+		if (typeof n === 'number' && n < 1) this.err(line, 'n', `n: ${n} — must be at least 1`);
+		const keys = { test_code: test, group_code: group, age_min_months: min as number, age_max_months: max as number, sex, edu_min: (eMin as number | null) ?? null, edu_max: (eMax as number | null) ?? null };
+		// A row whose ages and keys read well takes part in the overlap check even if its mean or SD is bad.
+		if (rangeOk) this.ranges.push({ label: `line ${line}`, ...keys });
+		if (this.result.errorCount > before) return;
+		const row = {
+			line,
+			test_code: test,
+			group_code: group,
+			age_min_months: min as number,
+			age_max_months: max as number,
+			sex,
+			edu_min: (eMin as number | null) ?? null,
+			edu_max: (eMax as number | null) ?? null,
+			mean: mean as number,
+			sd: sd as number,
+			n: (n as number | null) ?? null
+		};
+		if (this.keepRows) (this.rows as (NormGroupInput & { line: number })[]).push(row);
+	}
+
+	private testRow(line: number, v: Record<string, string>): void {
+		const before = this.result.errorCount;
+		const code = v.code ?? '';
+		if (!code) this.err(line, 'code', 'code: missing value');
+		else if (!CODE_RE.test(code)) this.err(line, 'code', `code: "${clip(code)}" — use lower-case letters, digits and hyphens`);
+		else {
+			const first = this.seenCodes.get(code);
+			if (first !== undefined) this.err(line, 'code', `Duplicate row: test ${code} already given on line ${first}`);
+			else this.seenCodes.set(code, line);
+		}
+		const domain = v.domain ?? '';
+		if (!domain) this.err(line, 'domain', 'domain: missing value');
+		else if (!this.ctx.domains.has(domain)) this.err(line, 'domain', `domain: unknown domain "${clip(domain)}" (known: ${[...this.ctx.domains].join(', ')})`);
+		const direction = v.direction ?? '';
+		if (!DIRECTIONS.includes(direction as never)) this.err(line, 'direction', direction ? `direction: "${clip(direction)}" — use higher_better or lower_better` : 'direction: missing value');
+		const min = this.num(line, v, 'raw_min', { required: true });
+		const max = this.num(line, v, 'raw_max', { required: true });
+		const dec = this.num(line, v, 'raw_decimals', { int: true });
+		const rel = this.num(line, v, 'reliability');
+		const reported = parseReported(v.reported ?? '');
+		if (typeof reported === 'string') this.err(line, 'reported', `reported: ${reported}`);
+		const bounds = parseBounds(v.bounds ?? '');
+		if (typeof bounds === 'string') this.err(line, 'bounds', `bounds: ${bounds}`);
+		if (this.result.errorCount > before) return;
+		const parsed = testInputSchema.safeParse({
+			code,
+			name: v.name ?? '',
+			domain,
+			unit: v.unit || 'points',
+			direction,
+			raw: { min, max, decimals: dec ?? 0 },
+			reported,
+			bounds,
+			reliability: rel ?? null,
+			notes: v.notes || null
+		});
+		if (!parsed.success) {
+			for (const i of parsed.error.issues) {
+				const col = colOfPath(i.path.map(String));
+				this.err(line, col, `${col ?? 'row'}: ${i.message}`);
+			}
+			return;
+		}
+		if (this.keepRows) (this.rows as (TestInput & { line: number })[]).push({ ...parsed.data, line });
+	}
+
+	/** After the last record: the checks that need all rows (age overlaps and gaps, duplicates). */
+	finish(): PreviewResult {
+		if (!this.stopped) {
+			if (this.map === null) this.fileError('The file is empty: no header and no rows.');
+			else if (this.result.rowCount === 0) this.fileError('The file has a header but no rows.');
+		}
+		if (this.kind === 'norms' && !this.stopped) {
+			for (const p of rangeProblems(this.ranges)) {
+				const line = Number(p.rows[1].replace('line ', ''));
+				this.err(line, p.kind === 'duplicate' ? 'group_code' : 'age_min_months', p.message);
+			}
+			this.result.errors.sort((a, b) => a.line - b.line);
+		}
+		if (this.result.fileErrors.length) this.rows.length = 0;
+		return this.result;
+	}
+}
+
+function colOfPath(path: string[]): string | null {
+	if (path[0] === 'raw') return `raw_${path[1] === 'decimals' ? 'decimals' : path[1]}`;
+	return path[0] ?? null;
+}
+
+function clip(s: string, n = 40): string {
+	const t = s.replace(/[\r\n\t]+/g, ' ');
+	return t.length > n ? t.slice(0, n - 1) + '…' : t;
+}
+
+/** "z standard t" (space, semicolon, comma or bar between). */
+export function parseReported(s: string): Derived[] | string {
+	const parts = s.split(/[\s;,|]+/).filter(Boolean).map((p) => p.toLowerCase());
+	if (!parts.length) return 'missing value (list the derived scores, e.g. "standard percentile")';
+	const bad = parts.filter((p) => !DERIVED.includes(p as Derived));
+	if (bad.length) return `unknown score "${clip(bad[0])}" (use ${DERIVED.join(', ')})`;
+	if (new Set(parts).size !== parts.length) return 'a score is listed twice';
+	return canonicalReported(parts);
+}
+
+/** "t=20..80 standard=55..145" (empty: the default bounds). */
+export function parseBounds(s: string): Bounds | null | string {
+	const parts = s.split(/[\s;,|]+/).filter(Boolean);
+	if (!parts.length) return null;
+	const out: Bounds = {};
+	for (const p of parts) {
+		const m = /^([a-z]+)=([+-]?\d+(?:\.\d+)?)\.\.([+-]?\d+(?:\.\d+)?)$/.exec(p.toLowerCase());
+		if (!m || !DERIVED.includes(m[1] as Derived)) return `"${clip(p)}" — write bounds as scale=min..max, e.g. t=20..80`;
+		if (out[m[1] as Derived]) return `${m[1]} given twice`;
+		out[m[1] as Derived] = [Number(m[2]), Number(m[3])];
+	}
+	return out;
+}
+
+// ---------------------------------------------------------------------------------------------
+// Export
+
+function cell(v: string | number | null | undefined): string {
+	if (v === null || v === undefined) return '';
+	let s = String(v);
+	if (typeof v === 'string' && isFormulaLike(s)) s = `'${s}`; // never hand a spreadsheet a formula
+	return /[",\r\n]/.test(s) || s !== s.trim() ? `"${s.replace(/"/g, '""')}"` : s;
+}
+
+export function toCsv(columns: readonly string[], rows: (string | number | null | undefined)[][]): string {
+	return [columns.join(','), ...rows.map((r) => r.map(cell).join(','))].join('\r\n') + '\r\n';
+}
+
+export function formatBounds(b: Bounds | null | undefined): string {
+	if (!b) return '';
+	return DERIVED.filter((d) => b[d]).map((d) => `${d}=${b[d]![0]}..${b[d]![1]}`).join(' ');
+}
+
+export function testsToCsv(tests: readonly TestInput[]): string {
+	return toCsv(
+		TEST_COLUMNS,
+		tests.map((t) => [t.code, t.name, t.domain, t.unit, t.direction, t.raw.min, t.raw.max, t.raw.decimals, t.reported.join(' '), formatBounds(t.bounds), t.reliability, t.notes])
+	);
+}
+
+export function normGroupsToCsv(groups: readonly NormGroupInput[]): string {
+	return toCsv(
+		NORM_COLUMNS,
+		groups.map((g) => [g.test_code, g.group_code, g.age_min_months, g.age_max_months, g.sex, g.edu_min, g.edu_max, g.mean, g.sd, g.n])
+	);
+}

@@ -1,0 +1,6 @@
+/** The catalog services: tests (versioned), batteries, norm sets and groups, CSV import/export. */
+export * from './errors';
+export * from './tests';
+export * from './batteries';
+export * from './norms';
+export * from './io';

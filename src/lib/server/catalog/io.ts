@@ -1,0 +1,102 @@
+/**
+ * CSV import and export of the catalog. The server re-parses and re-validates the file on
+ * confirm (the browser's preview is a convenience, never trusted); then every row goes in one
+ * transaction, or none does.
+ */
+import { select, transaction } from '../db';
+import { audit } from '../audit';
+import { normGroupsToCsv, testsToCsv, type CsvKind, type PreviewResult, type ValidationContext } from '../../catalog/csv';
+import { validateCsvText } from '../../catalog/parse';
+import type { ImportConfirm, NormGroupInput, TestInput } from '../../catalog/schema';
+import { CatalogError, notFoundError } from './errors';
+import { createTest, listTests, updateTest } from './tests';
+import { createNormSet, getNormSet, listNormGroups, replaceNormGroups } from './norms';
+
+export async function validationContext(): Promise<ValidationContext> {
+	const [tests, domains] = await Promise.all([
+		select<{ code: string }>('SELECT code FROM tests WHERE is_current = 1'),
+		select<{ code: string }>('SELECT code FROM domains ORDER BY position')
+	]);
+	return { testCodes: new Set(tests.map((t) => t.code)), domains: new Set(domains.map((d) => d.code)) };
+}
+
+/** Parse and validate without writing anything. */
+export async function previewImport(kind: CsvKind, csv: string): Promise<PreviewResult> {
+	return validateCsvText(kind, csv, await validationContext()).result;
+}
+
+export interface ImportOutcome {
+	kind: CsvKind;
+	rows: number;
+	normSetId?: number;
+	created?: number;
+	updated?: number;
+	versioned?: number;
+	unchanged?: number;
+	removed?: number;
+}
+
+function refuse(result: PreviewResult): never {
+	const first = result.fileErrors[0] ?? result.errors[0]?.message ?? 'The file has problems.';
+	throw new CatalogError(
+		422,
+		result.fileErrors.length ? first : `${result.errorCount} problem${result.errorCount === 1 ? '' : 's'} in ${result.badLines} row${result.badLines === 1 ? '' : 's'}; nothing was imported. First: line ${result.errors[0]?.line}: ${first}`,
+		{ csv: first },
+		'csv_invalid',
+		{ preview: result }
+	);
+}
+
+/** Import a validated file: everything in one transaction, or nothing. */
+export async function confirmImport(req: ImportConfirm, actorId: number | null): Promise<ImportOutcome> {
+	const { result, rows } = validateCsvText(req.kind, req.csv, await validationContext(), true);
+	if (result.fileErrors.length || result.errorCount) refuse(result);
+	if (req.kind === 'tests') {
+		const tests = rows as (TestInput & { line: number })[];
+		return transaction(async (tr) => {
+			const out: ImportOutcome = { kind: 'tests', rows: tests.length, created: 0, updated: 0, versioned: 0, unchanged: 0 };
+			const existing = new Set((await select<{ code: string }>('SELECT DISTINCT code FROM tests', {}, tr)).map((r) => r.code));
+			for (const { line, ...t } of tests) {
+				try {
+					if (existing.has(t.code)) {
+						const r = await updateTest(t.code, t, actorId, tr);
+						if (r.outcome === 'version') out.versioned!++;
+						else if (r.outcome === 'updated') out.updated!++;
+						else out.unchanged!++;
+					} else {
+						await createTest(t, actorId, tr);
+						out.created!++;
+					}
+				} catch (e) {
+					if (e instanceof CatalogError) throw new CatalogError(e.status === 404 ? 422 : e.status, `Line ${line}: ${e.message} Nothing was imported.`, e.fields, e.code);
+					throw e;
+				}
+			}
+			await audit({ actorId, entity: 'catalog_import', entityId: 'tests', action: 'import', newValue: out }, tr);
+			return out;
+		});
+	}
+	const groups = rows as (NormGroupInput & { line: number })[];
+	return transaction(async (tr) => {
+		let setId: number;
+		if (req.target.mode === 'new') setId = (await createNormSet(req.target.set, actorId, tr)).id;
+		else {
+			if (!(await getNormSet(req.target.id, tr))) throw notFoundError('This norm set');
+			setId = req.target.id;
+		}
+		const r = await replaceNormGroups(setId, groups.map(({ line: _line, ...g }) => g), tr);
+		const out: ImportOutcome = { kind: 'norms', rows: groups.length, normSetId: setId, created: r.added, removed: r.removed };
+		await audit({ actorId, entity: 'catalog_import', entityId: setId, action: 'import', newValue: out }, tr);
+		return out;
+	});
+}
+
+export async function exportTestsCsv(): Promise<string> {
+	return testsToCsv(await listTests());
+}
+
+export async function exportNormGroupsCsv(normSetId: number): Promise<{ filename: string; csv: string }> {
+	const set = await getNormSet(normSetId);
+	if (!set) throw notFoundError('This norm set');
+	return { filename: `${set.code}-${set.version}-norms.csv`, csv: normGroupsToCsv(await listNormGroups(normSetId)) };
+}
