@@ -55,12 +55,15 @@ export const up: Migration = async ({ context: q }) => {
 		)`,
 		`CREATE INDEX error_events_time ON error_events (entered_at, scorer_id, battery_id, test_code, kind, field, domain)`,
 		`CREATE INDEX error_events_scorer_cover ON error_events (scorer_id, entered_at, battery_id, test_code, kind, field, domain)`,
-		`CREATE INDEX error_events_protocol ON error_events (protocol_id)`
+		`CREATE INDEX error_events_protocol ON error_events (protocol_id)`,
+		// open discrepancies not yet attributed, counted beside the error rates
+		`CREATE INDEX discrepancies_unresolved ON discrepancies (resolved_at, kind, test_code)`
 	];
 	for (const s of statements) await q.sequelize.query(s);
 };
 
 export const down: Migration = async ({ context: q }) => {
+	await q.sequelize.query('DROP INDEX discrepancies_unresolved ON discrepancies');
 	await q.sequelize.query('DROP INDEX error_events_protocol ON error_events');
 	await q.sequelize.query('DROP INDEX error_events_scorer_cover ON error_events');
 	await q.sequelize.query('DROP INDEX error_events_time ON error_events');

@@ -1,0 +1,273 @@
+/**
+ * Error rates per scorer: errors attributed on resolution (error_events) per 100 fields entered,
+ * with Wilson 95% intervals, overall and broken down by kind, test, domain, field class and ISO week.
+ *
+ * Denominators:
+ *   - overall, per kind, per week, with no test filter: the sum of passes.fields_entered of the
+ *     scorer's submitted passes (the workflow's own count);
+ *   - per test, per domain, per field class, and whenever a test is filtered: the fields that scorer
+ *     entered on that test (audit_fields, counted from the pass's scores at submission).
+ * A kind filter restricts the errors, never the fields entered (rate of that kind per 100 fields).
+ */
+import { select } from '../db';
+import { errorRatePer100 } from '../../scoring/rates';
+import { KINDS } from '../../scoring/kinds';
+import type { AuditFilters } from './filters';
+import { errorWhere, fieldsWhere, passesWhere } from './sql';
+
+export interface RateCells {
+	errors: number;
+	fields: number;
+	/** Errors per 100 fields entered; null when no fields were entered. */
+	rate: number | null;
+	/** Wilson 95% interval, per 100 fields. */
+	ci_lower: number | null;
+	ci_upper: number | null;
+}
+
+export function rateCells(errors: number, fields: number): RateCells {
+	const e = Number(errors) || 0;
+	const n = Number(fields) || 0;
+	if (n <= 0 || e > n) return { errors: e, fields: n, rate: n > 0 ? (100 * e) / n : null, ci_lower: null, ci_upper: null };
+	const w = errorRatePer100(e, n)!;
+	return { errors: e, fields: n, rate: w.per100.rate, ci_lower: w.per100.lower, ci_upper: w.per100.upper };
+}
+
+export interface Names {
+	scorers: Map<number, string>;
+	tests: Map<string, string>;
+	domains: Map<string, string>;
+}
+
+export async function loadNames(): Promise<Names> {
+	const [users, tests, domains] = await Promise.all([
+		select<{ id: number; name: string }>('SELECT id, name FROM users'),
+		select<{ code: string; name: string }>('SELECT code, name FROM tests ORDER BY is_current ASC, version ASC'),
+		select<{ code: string; name: string }>('SELECT code, name FROM domains')
+	]);
+	return {
+		scorers: new Map(users.map((u) => [Number(u.id), u.name])),
+		tests: new Map(tests.map((t) => [t.code, t.name])),
+		domains: new Map(domains.map((d) => [d.code, d.name]))
+	};
+}
+
+type Key = string;
+const num = (v: unknown) => Number(v ?? 0);
+
+/** Fields entered, grouped by scorer (and optionally week): passes.fields_entered, or audit_fields under a test filter. */
+async function fieldsByScorer(f: AuditFilters, byWeek: boolean): Promise<Map<Key, { fields: number; passes: number; protocols: number }>> {
+	const out = new Map<Key, { fields: number; passes: number; protocols: number }>();
+	let rows: Array<{ scorer_id: number; week: string | null; fields: number; passes: number; protocols: number }>;
+	if (f.test === null) {
+		const w = passesWhere(f);
+		const week = byWeek ? 'DATE_SUB(DATE(p.submitted_at), INTERVAL WEEKDAY(p.submitted_at) DAY)' : 'NULL';
+		rows = await select(
+			`SELECT p.scorer_id, ${week} AS week, SUM(p.fields_entered) AS fields, COUNT(*) AS passes,
+			        COUNT(DISTINCT p.protocol_id) AS protocols
+			   FROM passes p JOIN protocols pr ON pr.id = p.protocol_id
+			   ${w.sql} GROUP BY p.scorer_id, week`,
+			w.params
+		);
+	} else {
+		const w = fieldsWhere(f);
+		const week = byWeek ? 'DATE_SUB(DATE(a.entered_at), INTERVAL WEEKDAY(a.entered_at) DAY)' : 'NULL';
+		rows = await select(
+			`SELECT a.scorer_id, ${week} AS week, SUM(a.raw_fields + a.derived_fields) AS fields,
+			        COUNT(*) AS passes, COUNT(DISTINCT a.protocol_id) AS protocols
+			   FROM audit_fields a ${w.sql} GROUP BY a.scorer_id, week`,
+			w.params
+		);
+	}
+	for (const r of rows) out.set(`${r.scorer_id}|${r.week ?? ''}`, { fields: num(r.fields), passes: num(r.passes), protocols: num(r.protocols) });
+	return out;
+}
+
+// ---------------------------------------------------------------------------------------------
+
+export interface ScorerRow extends RateCells {
+	scorer_id: number | null;
+	scorer: string;
+	protocols: number;
+	passes: number;
+	/** Errors per protocol pass (errors ÷ passes entered). */
+	errors_per_protocol: number | null;
+}
+
+/** Error rate per scorer, plus an "All scorers" row last. */
+export async function scorerRates(f: AuditFilters, names: Names): Promise<ScorerRow[]> {
+	const w = errorWhere(f);
+	const [errs, fields] = await Promise.all([
+		select<{ scorer_id: number; errors: number }>(`SELECT e.scorer_id, COUNT(*) AS errors FROM error_events e ${w.sql} GROUP BY e.scorer_id`, w.params),
+		fieldsByScorer(f, false)
+	]);
+	const errors = new Map(errs.map((r) => [Number(r.scorer_id), num(r.errors)]));
+	const ids = new Set<number>([...errors.keys(), ...[...fields.keys()].map((k) => Number(k.split('|')[0]))]);
+	const rows: ScorerRow[] = [...ids].map((id) => {
+		const d = fields.get(`${id}|`) ?? { fields: 0, passes: 0, protocols: 0 };
+		const e = errors.get(id) ?? 0;
+		return {
+			scorer_id: id,
+			scorer: names.scorers.get(id) ?? `#${id}`,
+			protocols: d.protocols,
+			passes: d.passes,
+			errors_per_protocol: d.passes > 0 ? e / d.passes : null,
+			...rateCells(e, d.fields)
+		};
+	});
+	rows.sort((a, b) => (b.rate ?? -1) - (a.rate ?? -1) || a.scorer.localeCompare(b.scorer));
+	const tot = rows.reduce((s, r) => ({ e: s.e + r.errors, n: s.n + r.fields, p: s.p + r.passes, pr: s.pr + r.protocols }), { e: 0, n: 0, p: 0, pr: 0 });
+	rows.push({
+		scorer_id: null,
+		scorer: 'All scorers',
+		protocols: tot.pr, // protocol passes per scorer summed: a protocol counts once per scorer on it
+		passes: tot.p,
+		errors_per_protocol: tot.p > 0 ? tot.e / tot.p : null,
+		...rateCells(tot.e, tot.n)
+	});
+	return rows;
+}
+
+export interface KindRow extends RateCells {
+	scorer_id: number | null;
+	scorer: string;
+	kind: string;
+}
+
+/** Errors of each kind per scorer per 100 fields that scorer entered; "All scorers" rows too. */
+export async function kindRates(f: AuditFilters, names: Names): Promise<KindRow[]> {
+	const w = errorWhere(f);
+	const [errs, fields] = await Promise.all([
+		select<{ scorer_id: number; kind: string; errors: number }>(
+			`SELECT e.scorer_id, e.kind, COUNT(*) AS errors FROM error_events e ${w.sql} GROUP BY e.scorer_id, e.kind`,
+			w.params
+		),
+		fieldsByScorer(f, false)
+	]);
+	const scorerIds = [...new Set([...[...fields.keys()].map((k) => Number(k.split('|')[0])), ...errs.map((r) => Number(r.scorer_id))])];
+	const count = new Map(errs.map((r) => [`${r.scorer_id}|${r.kind}`, num(r.errors)]));
+	const kinds = f.kind ? [f.kind] : ([...KINDS] as string[]).filter((k) => errs.some((r) => r.kind === k)).concat(errs.map((r) => r.kind).filter((k) => !(KINDS as readonly string[]).includes(k)));
+	const uniqueKinds = [...new Set(kinds)];
+	const totalFields = scorerIds.reduce((s, id) => s + (fields.get(`${id}|`)?.fields ?? 0), 0);
+	const rows: KindRow[] = [];
+	for (const kind of uniqueKinds) {
+		let all = 0;
+		for (const id of scorerIds) {
+			const e = count.get(`${id}|${kind}`) ?? 0;
+			all += e;
+			rows.push({ scorer_id: id, scorer: names.scorers.get(id) ?? `#${id}`, kind, ...rateCells(e, fields.get(`${id}|`)?.fields ?? 0) });
+		}
+		rows.push({ scorer_id: null, scorer: 'All scorers', kind, ...rateCells(all, totalFields) });
+	}
+	return rows;
+}
+
+export interface GroupRow extends RateCells {
+	scorer_id: number | null;
+	scorer: string;
+	group: string;
+	group_name: string;
+}
+
+/** Per scorer × test, × domain or × field class (raw / derived), denominators from audit_fields. */
+export async function groupRates(f: AuditFilters, names: Names, by: 'test' | 'domain' | 'class'): Promise<GroupRow[]> {
+	const we = errorWhere(f);
+	const wf = fieldsWhere(f);
+	const errExpr = by === 'test' ? 'e.test_code' : by === 'domain' ? 'e.domain' : `IF(e.field = 'raw', 'raw', 'derived')`;
+	const errs = await select<{ scorer_id: number; g: string; errors: number }>(
+		`SELECT e.scorer_id, ${errExpr} AS g, COUNT(*) AS errors FROM error_events e ${we.sql} GROUP BY e.scorer_id, g`,
+		we.params
+	);
+	let denoms: Array<{ scorer_id: number; g: string; fields: number }>;
+	if (by === 'class') {
+		const rows = await select<{ scorer_id: number; raw: number; derived: number }>(
+			`SELECT a.scorer_id, SUM(a.raw_fields) AS raw, SUM(a.derived_fields) AS derived FROM audit_fields a ${wf.sql} GROUP BY a.scorer_id`,
+			wf.params
+		);
+		denoms = rows.flatMap((r) => [
+			{ scorer_id: r.scorer_id, g: 'raw', fields: num(r.raw) },
+			{ scorer_id: r.scorer_id, g: 'derived', fields: num(r.derived) }
+		]);
+	} else {
+		const col = by === 'test' ? 'a.test_code' : 'a.domain';
+		denoms = await select(
+			`SELECT a.scorer_id, ${col} AS g, SUM(a.raw_fields + a.derived_fields) AS fields FROM audit_fields a ${wf.sql} GROUP BY a.scorer_id, g`,
+			wf.params
+		);
+	}
+	const fields = new Map(denoms.map((r) => [`${r.scorer_id}|${r.g}`, num(r.fields)]));
+	const count = new Map(errs.map((r) => [`${r.scorer_id}|${r.g}`, num(r.errors)]));
+	const scorerIds = [...new Set([...denoms.map((r) => Number(r.scorer_id)), ...errs.map((r) => Number(r.scorer_id))])];
+	const groups = [...new Set([...denoms.map((r) => r.g), ...errs.map((r) => r.g)])];
+	const label = (g: string) =>
+		by === 'test' ? (names.tests.get(g) ?? g) : by === 'domain' ? (names.domains.get(g) ?? g) : g === 'raw' ? 'Raw scores' : 'Derived scores';
+	const rows: GroupRow[] = [];
+	for (const g of groups) {
+		let e = 0;
+		let n = 0;
+		for (const id of scorerIds) {
+			const ge = count.get(`${id}|${g}`) ?? 0;
+			const gn = fields.get(`${id}|${g}`) ?? 0;
+			if (ge === 0 && gn === 0) continue;
+			e += ge;
+			n += gn;
+			rows.push({ scorer_id: id, scorer: names.scorers.get(id) ?? `#${id}`, group: g, group_name: label(g), ...rateCells(ge, gn) });
+		}
+		rows.push({ scorer_id: null, scorer: 'All scorers', group: g, group_name: label(g), ...rateCells(e, n) });
+	}
+	rows.sort((a, b) => a.group_name.localeCompare(b.group_name) || (a.scorer_id === null ? 1 : b.scorer_id === null ? -1 : a.scorer.localeCompare(b.scorer)));
+	return rows;
+}
+
+export interface WeekRow extends RateCells {
+	scorer_id: number | null;
+	scorer: string;
+	/** Monday of the ISO week, YYYY-MM-DD. */
+	week_start: string;
+	/** ISO 8601 week, e.g. 2025-W07. */
+	week: string;
+}
+
+/** ISO 8601 week label of a date (YYYY-MM-DD). */
+export function isoWeek(day: string): string {
+	const d = new Date(`${day}T00:00:00Z`);
+	const dow = (d.getUTCDay() + 6) % 7; // Monday 0
+	d.setUTCDate(d.getUTCDate() - dow + 3); // Thursday of this week decides the year
+	const year = d.getUTCFullYear();
+	const jan4 = new Date(Date.UTC(year, 0, 4));
+	const week = 1 + Math.round(((d.getTime() - jan4.getTime()) / 86_400_000 - 3 + ((jan4.getUTCDay() + 6) % 7)) / 7);
+	return `${year}-W${String(week).padStart(2, '0')}`;
+}
+
+const dayString = (v: unknown): string => (v instanceof Date ? v.toISOString().slice(0, 10) : String(v).slice(0, 10));
+
+/** Weekly error rate per scorer (week of entering) and for all scorers. */
+export async function weekRates(f: AuditFilters, names: Names): Promise<WeekRow[]> {
+	const w = errorWhere(f);
+	const [errs, fields] = await Promise.all([
+		select<{ scorer_id: number; week: string; errors: number }>(
+			`SELECT e.scorer_id, DATE_SUB(DATE(e.entered_at), INTERVAL WEEKDAY(e.entered_at) DAY) AS week, COUNT(*) AS errors
+			   FROM error_events e ${w.sql} GROUP BY e.scorer_id, week`,
+			w.params
+		),
+		fieldsByScorer(f, true)
+	]);
+	const count = new Map(errs.map((r) => [`${r.scorer_id}|${dayString(r.week)}`, num(r.errors)]));
+	const keys = new Set<string>([...count.keys(), ...[...fields.keys()].map((k) => { const [id, wk] = k.split('|'); return `${id}|${dayString(wk)}`; })]);
+	const fieldMap = new Map([...fields].map(([k, v]) => { const [id, wk] = k.split('|'); return [`${id}|${dayString(wk)}`, v.fields]; }));
+	const rows: WeekRow[] = [];
+	const totals = new Map<string, { e: number; n: number }>();
+	for (const k of keys) {
+		const [id, wk] = k.split('|');
+		const e = count.get(k) ?? 0;
+		const n = fieldMap.get(k) ?? 0;
+		const t = totals.get(wk) ?? { e: 0, n: 0 };
+		t.e += e;
+		t.n += n;
+		totals.set(wk, t);
+		rows.push({ scorer_id: Number(id), scorer: names.scorers.get(Number(id)) ?? `#${id}`, week_start: wk, week: isoWeek(wk), ...rateCells(e, n) });
+	}
+	for (const [wk, t] of totals) rows.push({ scorer_id: null, scorer: 'All scorers', week_start: wk, week: isoWeek(wk), ...rateCells(t.e, t.n) });
+	rows.sort((a, b) => a.week_start.localeCompare(b.week_start) || (a.scorer_id === null ? 1 : b.scorer_id === null ? -1 : a.scorer.localeCompare(b.scorer)));
+	return rows;
+}
