@@ -45,7 +45,8 @@ const authorize: Handle = async ({ event, resolve }) => {
 const headers: Handle = async ({ event, resolve }) => {
 	const response = await resolve(event);
 	const h = response.headers;
-	h.set('X-Frame-Options', 'DENY');
+	// Scanned forms may be framed by our own review screen; nothing else may be framed at all.
+	h.set('X-Frame-Options', /^\/protocols\/\d+\/attachments\//.test(event.url.pathname) ? 'SAMEORIGIN' : 'DENY');
 	h.set('X-Content-Type-Options', 'nosniff');
 	h.set('Referrer-Policy', 'same-origin');
 	h.set('Permissions-Policy', 'camera=(), microphone=(), geolocation=(), payment=()');

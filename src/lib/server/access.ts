@@ -56,15 +56,15 @@ export const ACCESS: Record<string, RouteRules> = {
 	// Protocols and the double-entry workflow (object checks in the services)
 	'/protocols': { GET: staff },
 	'/protocols/new': { GET: lead, POST: lead },
-	'/protocols/[id]': { GET: staff, POST: lead },
+	// POST: form actions (upload: any duty; reassign, reopen, norm-group change: leads — checked in the action)
+	'/protocols/[id]': { GET: staff, POST: staff },
 	'/protocols/[id]/entry': { GET: ['scorer'] },
-	'/protocols/[id]/review': { GET: ['reviewer'] },
+	'/protocols/[id]/review': { GET: ['reviewer', 'lead'] },
 	'/protocols/[id]/summary': { GET: ['reviewer', 'lead'] },
 	'/protocols/[id]/summary.csv': { GET: ['reviewer', 'lead'] },
 	'/protocols/[id]/attachments/[attachmentId]': { GET: ['reviewer', 'lead', 'scorer'] },
 	'/api/v1/worklist': { GET: 'signed-in' },
 	'/api/v1/protocols/[id]/pass': { GET: ['scorer'], PUT: ['scorer'], POST: ['scorer'] },
-	'/api/v1/protocols/[id]/attachments': { POST: ['lead', 'scorer', 'reviewer'] },
 	'/api/v1/protocols/[id]/signoff': { POST: ['reviewer'] },
 	'/api/v1/discrepancies/[id]': { PATCH: ['reviewer'] },
 

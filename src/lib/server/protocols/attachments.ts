@@ -1,0 +1,73 @@
+/**
+ * Scanned record forms: PDF, PNG or JPEG, recognised by their first bytes (never by the name),
+ * size-limited, stored under the data folder by a random name, with their SHA-256.
+ */
+import { createHash, randomUUID } from 'node:crypto';
+import { mkdir, writeFile, readFile, unlink } from 'node:fs/promises';
+import { join } from 'node:path';
+import { config } from '../config';
+import { exec, selectOne, transaction } from '../db';
+import { audit } from '../audit';
+import { protocolFor, type Actor } from './service';
+import { WorkflowError, notFound } from './errors';
+
+const TYPES: { mime: string; ext: string; test: (b: Uint8Array) => boolean }[] = [
+	{ mime: 'application/pdf', ext: 'pdf', test: (b) => b.length > 5 && String.fromCharCode(...b.slice(0, 5)) === '%PDF-' },
+	{ mime: 'image/png', ext: 'png', test: (b) => b.length > 8 && [0x89, 0x50, 0x4e, 0x47, 0x0d, 0x0a, 0x1a, 0x0a].every((x, i) => b[i] === x) },
+	{ mime: 'image/jpeg', ext: 'jpg', test: (b) => b.length > 3 && b[0] === 0xff && b[1] === 0xd8 && b[2] === 0xff }
+];
+
+export function sniffType(bytes: Uint8Array): { mime: string; ext: string } | null {
+	const t = TYPES.find((x) => x.test(bytes));
+	return t ? { mime: t.mime, ext: t.ext } : null;
+}
+
+/** A display name without any path, control or quoting characters. */
+export function safeFilename(name: string, ext: string): string {
+	const base = name.split(/[\\/]/).pop() ?? '';
+	const clean = base.replace(/[\u0000-\u001f\u007f"<>|:*?]/g, '').replace(/^\.+/, '').trim().slice(0, 120);
+	return clean || `record-form.${ext}`;
+}
+
+const dir = () => join(config.dataDir, 'uploads');
+
+export async function addAttachment(protocolId: number, user: Actor, file: File | null) {
+	if (!file || typeof file === 'string') throw new WorkflowError(400, 'Choose a file to upload.', 'file');
+	if (file.size === 0) throw new WorkflowError(400, 'The file is empty (0 bytes).', 'file');
+	if (file.size > config.uploadMaxBytes) throw new WorkflowError(413, `The file is larger than ${Math.round(config.uploadMaxBytes / 1024 / 1024)} MB.`, 'file');
+	const bytes = new Uint8Array(await file.arrayBuffer());
+	const type = sniffType(bytes);
+	if (!type) throw new WorkflowError(415, 'Only PDF, PNG and JPEG scans can be attached (checked by content, not by the name).', 'file');
+	const sha256 = createHash('sha256').update(bytes).digest('hex');
+	const storage = `${randomUUID()}.${type.ext}`;
+	await mkdir(dir(), { recursive: true });
+	await writeFile(join(dir(), storage), bytes, { flag: 'wx' });
+	try {
+		return await transaction(async (t) => {
+			const { p } = await protocolFor(protocolId, user, t);
+			if (p.status === 'verified') throw new WorkflowError(409, 'A verified protocol is locked.', 'file', 'conflict');
+			const filename = safeFilename(file.name, type.ext);
+			const { insertId } = await exec(
+				`INSERT INTO attachments (protocol_id, filename, mime, size, sha256, storage_name, uploaded_by) VALUES (:p, :filename, :mime, :size, :sha, :storage, :uid)`,
+				{ p: p.id, filename, mime: type.mime, size: bytes.length, sha: sha256, storage, uid: user.id },
+				t
+			);
+			await audit({ actorId: user.id, entity: 'attachment', entityId: insertId, protocolId: p.id, action: 'upload', newValue: { filename, mime: type.mime, size: bytes.length, sha256 } }, t);
+			return { id: insertId, filename, mime: type.mime, size: bytes.length, sha256 };
+		});
+	} catch (e) {
+		await unlink(join(dir(), storage)).catch(() => undefined);
+		throw e;
+	}
+}
+
+export async function readAttachment(protocolId: number, attachmentId: number, user: Actor) {
+	await protocolFor(protocolId, user);
+	const row = await selectOne<{ filename: string; mime: string; storage_name: string; sha256: string }>(
+		'SELECT filename, mime, storage_name, sha256 FROM attachments WHERE id = :id AND protocol_id = :p',
+		{ id: attachmentId, p: protocolId }
+	);
+	if (!row) throw notFound('This attachment');
+	const bytes = await readFile(join(dir(), row.storage_name));
+	return { ...row, bytes };
+}

@@ -1,0 +1,221 @@
+/**
+ * One scorer's pass: read it, save drafts (optimistic, never losing a keystroke to a stale tab),
+ * submit it. The second submission reconciles both passes in the same transaction that stores the
+ * discrepancies, moves the protocol to in_review and writes the reviewer's outbox e-mail.
+ */
+import { z } from 'zod';
+import { selectOne, exec, transaction, jsonValue, type Tx } from '../db';
+import { audit } from '../audit';
+import { protocolFor, type Actor, type ProtocolRow } from './service';
+import { protocolTests, normGroups, normDef, engineTest, type CatalogTest } from './catalog-read';
+import { reconcile, type FieldValues, type ReconcileResult } from '../../scoring/reconcile';
+import type { Field } from '../../scoring/scales';
+import { conflict, invalid, notFound, WorkflowError } from './errors';
+import { notifyReviewStarted } from '../mail/review';
+import { recordSubmission } from '../audit-stats/record';
+
+export type Which = 'first' | 'second';
+export type Scores = Record<string, Partial<Record<Field, string | null>>>;
+
+interface PassRow {
+	id: number;
+	protocol_id: number;
+	round: number;
+	which: Which;
+	scorer_id: number;
+	status: 'draft' | 'submitted';
+	scores: unknown;
+	fields_entered: number;
+	draft_version: number;
+	submitted_at: Date | null;
+	updated_at: Date;
+}
+
+const value = z.union([z.string().max(12, 'at most 12 characters'), z.number(), z.null()]).transform((v) => (v === null ? null : String(v).trim() || null));
+const scoresSchema = z.record(z.string().max(40), z.record(z.string(), value));
+export const draftSchema = z.object({ scores: scoresSchema, draftVersion: z.number().int().min(0) });
+
+/** Keep only the test's raw score and the derived fields it reports; count what was entered. */
+export function cleanScores(raw: unknown, tests: CatalogTest[]): { scores: Scores; entered: number } {
+	const parsed = scoresSchema.safeParse(raw);
+	if (!parsed.success) {
+		const issue = parsed.error.issues[0];
+		throw invalid(`scores.${issue.path.join('.')}: ${issue.message}`, 'scores');
+	}
+	const out: Scores = {};
+	let entered = 0;
+	for (const [code, fields] of Object.entries(parsed.data)) {
+		const test = tests.find((t) => t.code === code);
+		if (!test) throw invalid(`scores.${code}: this protocol has no such test`, 'scores');
+		const allowed: Field[] = ['raw', ...test.reported];
+		for (const k of Object.keys(fields)) if (!allowed.includes(k as Field)) throw invalid(`scores.${code}.${k}: ${test.name} does not report this field`, 'scores');
+		out[code] = {};
+		for (const f of allowed) {
+			const v = fields[f] ?? null;
+			out[code][f] = v;
+			if (v !== null) entered++;
+		}
+	}
+	return { scores: out, entered };
+}
+
+function myDuty(duties: string[]): Which {
+	if (duties.includes('first')) return 'first';
+	if (duties.includes('second')) return 'second';
+	throw notFound();
+}
+
+async function passRow(p: ProtocolRow, which: Which, t?: Tx, forUpdate = false): Promise<PassRow> {
+	const row = await selectOne<PassRow>(
+		`SELECT * FROM passes WHERE protocol_id = :p AND round = :r AND which = :w${forUpdate ? ' FOR UPDATE' : ''}`,
+		{ p: p.id, r: p.round, w: which },
+		t
+	);
+	if (!row) throw notFound('This pass');
+	return row;
+}
+
+/** The caller's own pass (never the other one) with what the entry form needs. */
+export async function myPass(protocolId: number, user: Actor) {
+	const { p, duties } = await protocolFor(protocolId, user);
+	const which = myDuty(duties);
+	const pass = await passRow(p, which);
+	if (pass.scorer_id !== user.id) throw notFound('This pass');
+	const tests = await protocolTests(p.id);
+	return {
+		protocol: p,
+		which,
+		status: pass.status,
+		scores: (jsonValue<Scores>(pass.scores) ?? {}) as Scores,
+		draftVersion: pass.draft_version,
+		submittedAt: pass.submitted_at,
+		updatedAt: pass.updated_at,
+		tests
+	};
+}
+
+export async function saveDraft(protocolId: number, user: Actor, body: unknown) {
+	const parsed = draftSchema.safeParse(body);
+	if (!parsed.success) {
+		const issue = parsed.error.issues[0];
+		throw invalid(`${issue.path.join('.') || 'body'}: ${issue.message}`, String(issue.path[0] ?? 'body'));
+	}
+	return transaction(async (t) => {
+		const { p, duties } = await protocolFor(protocolId, user, t);
+		const which = myDuty(duties);
+		const pass = await passRow(p, which, t, true);
+		if (pass.scorer_id !== user.id) throw notFound('This pass');
+		if (pass.status === 'submitted') throw conflict('This pass is submitted and locked; the draft was not changed.');
+		if (pass.draft_version !== parsed.data.draftVersion) {
+			throw new WorkflowError(409, 'This pass was saved from another tab or device since you opened it. Reload to see the latest draft.', 'draftVersion', 'stale_draft');
+		}
+		const tests = await protocolTests(p.id, t);
+		const { scores, entered } = cleanScores(parsed.data.scores, tests);
+		await exec(
+			'UPDATE passes SET scores = :scores, fields_entered = :entered, draft_version = draft_version + 1 WHERE id = :id',
+			{ scores: JSON.stringify(scores), entered, id: pass.id },
+			t
+		);
+		return { draftVersion: pass.draft_version + 1, fieldsEntered: entered };
+	});
+}
+
+/** Build the engine's input from the stored protocol and passes. */
+export async function engineInput(p: ProtocolRow, passes: { first: Scores; second: Scores }, t?: Tx) {
+	const tests = await protocolTests(p.id, t);
+	const groups = await normGroups(p.norm_set_id, tests.map((x) => x.code), t);
+	const protocolGroups: Record<string, string> = {};
+	for (const x of tests) if (x.groupCode) protocolGroups[x.code] = x.groupCode;
+	const toEngine = (s: Scores) => {
+		const out: Record<string, FieldValues> = {};
+		for (const x of tests) out[x.code] = (s[x.code] ?? {}) as FieldValues;
+		return out;
+	};
+	return {
+		tests,
+		input: {
+			tests: tests.map(engineTest),
+			norms: groups.map(normDef),
+			protocol: { group: tests[0]?.groupCode ?? '', groups: protocolGroups },
+			passes: [
+				{ scorer: 'first', scores: toEngine(passes.first) },
+				{ scorer: 'second', scores: toEngine(passes.second) }
+			]
+		}
+	};
+}
+
+/** Store a reconciliation result as the round's discrepancy list. */
+export async function storeDiscrepancies(p: ProtocolRow, result: ReconcileResult, t: Tx) {
+	for (const [i, d] of result.discrepancies.entries()) {
+		await exec(
+			`INSERT INTO discrepancies (protocol_id, round, position, test_code, field, pass, kind, value, other, expected, out_of_range)
+			 VALUES (:p, :round, :pos, :test, :field, :pass, :kind, :value, :other, :expected, :oor)`,
+			{
+				p: p.id,
+				round: p.round,
+				pos: i + 1,
+				test: d.test,
+				field: d.field,
+				pass: d.pass,
+				kind: d.kind,
+				value: d.value === null ? null : String(d.value),
+				other: d.other === null ? null : String(d.other),
+				expected: d.expected === null ? null : String(d.expected),
+				oor: d.out_of_range ? 1 : 0
+			},
+			t
+		);
+	}
+}
+
+export type SubmitResult = { which: Which; status: ProtocolRow['status']; discrepancies: number | null };
+
+export async function submitPass(protocolId: number, user: Actor, body: unknown): Promise<SubmitResult> {
+	const version = z.object({ draftVersion: z.number().int().min(0) }).safeParse(body);
+	if (!version.success) throw invalid('draftVersion: expected the draft version you are submitting', 'draftVersion');
+	return transaction(async (t) => {
+		// Locking the protocol row serializes submissions of both passes (two tabs, a retry, both scorers at once).
+		const { p, duties } = await protocolFor(protocolId, user, t, true);
+		const which = myDuty(duties);
+		const pass = await passRow(p, which, t, true);
+		if (pass.scorer_id !== user.id) throw notFound('This pass');
+		if (pass.status === 'submitted') throw new WorkflowError(409, 'This pass was already submitted (from another tab or an earlier try). Nothing was changed.', undefined, 'already_submitted');
+		if (pass.draft_version !== version.data.draftVersion) {
+			throw new WorkflowError(409, 'This pass changed in another tab since you opened it. Reload, check the values and submit again.', 'draftVersion', 'stale_draft');
+		}
+		if (which === 'second' && p.status === 'draft') {
+			throw conflict('The first pass has not been submitted yet. Your draft is saved; submit once the first scorer has submitted.');
+		}
+		await exec(`UPDATE passes SET status = 'submitted', submitted_at = CURRENT_TIMESTAMP(3) WHERE id = :id`, { id: pass.id }, t);
+		await audit({ actorId: user.id, entity: 'pass', entityId: pass.id, protocolId: p.id, action: `submit_${which}`, newValue: { round: p.round, fields: pass.fields_entered, scores: jsonValue(pass.scores) } }, t);
+
+		if (which === 'first') {
+			await exec(`UPDATE protocols SET status = 'awaiting_second', status_changed_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1 WHERE id = :id`, { id: p.id }, t);
+			await audit({ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'status', oldValue: p.status, newValue: 'awaiting_second' }, t);
+			return { which, status: 'awaiting_second' as const, discrepancies: null };
+		}
+
+		const first = await passRow(p, 'first', t, true);
+		if (first.status !== 'submitted') throw conflict('The first pass has not been submitted yet.');
+		const { input } = await engineInput(p, { first: jsonValue<Scores>(first.scores) ?? {}, second: jsonValue<Scores>(pass.scores) ?? {} }, t);
+		const result = reconcile(input);
+		await storeDiscrepancies(p, result, t);
+		await exec(`UPDATE protocols SET status = 'in_review', status_changed_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1 WHERE id = :id`, { id: p.id }, t);
+		await audit(
+			{ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'reconcile', oldValue: p.status, newValue: { status: 'in_review', round: p.round, ...result.summary } },
+			t
+		);
+		await recordSubmission(p.id, p.round, t);
+		await notifyReviewStarted(p.id, p.round, p.reviewer_id, t);
+		return { which, status: 'in_review' as const, discrepancies: result.discrepancies.length };
+	});
+}
+
+/** For a retry that cannot know whether it got through: the pass's current status. */
+export async function passStatus(protocolId: number, user: Actor) {
+	const { p, duties } = await protocolFor(protocolId, user);
+	const pass = await passRow(p, myDuty(duties));
+	return { status: pass.status, protocolStatus: p.status };
+}
+

@@ -1,0 +1,259 @@
+/**
+ * Review: the discrepancy list of the current round, resolutions with optimistic locking,
+ * sign-off (verified, locked) and reopening by a lead (a new round; history kept).
+ */
+import { z } from 'zod';
+import { select, selectOne, exec, transaction, jsonValue } from '../db';
+import { audit } from '../audit';
+import { protocolFor, type Actor } from './service';
+import { protocolTests } from './catalog-read';
+import { conflict, invalid, notFound, WorkflowError } from './errors';
+import { charDiff } from '../../scoring/diff';
+import { explainKind, type Kind } from '../../scoring/kinds';
+import { checkField } from '../../scoring/reconcile';
+import type { Field } from '../../scoring/scales';
+import { recordResolution } from '../audit-stats/record';
+import type { Scores } from './passes';
+
+export interface DiscrepancyRow {
+	id: number;
+	protocol_id: number;
+	round: number;
+	position: number;
+	test_code: string;
+	field: Field;
+	pass: 'first' | 'second' | 'both';
+	kind: Kind;
+	value: string | null;
+	other: string | null;
+	expected: string | null;
+	out_of_range: number;
+	resolution: 'first' | 'second' | 'recomputed' | 'other' | null;
+	resolved_value: string | null;
+	note: string | null;
+	resolved_by: number | null;
+	resolved_at: Date | null;
+	lock_version: number;
+}
+
+/** First and second pass's values of a discrepancy (value/other are stored relative to the flagged pass). */
+export function passValues(d: Pick<DiscrepancyRow, 'pass' | 'value' | 'other'>): { first: string | null; second: string | null } {
+	return d.pass === 'second' ? { first: d.other, second: d.value } : { first: d.value, second: d.other };
+}
+
+function requireReviewer(duties: string[]) {
+	if (!duties.includes('reviewer')) throw notFound();
+}
+
+export async function reviewView(protocolId: number, user: Actor) {
+	const { p, duties } = await protocolFor(protocolId, user);
+	if (!duties.includes('reviewer') && !duties.includes('lead')) throw notFound();
+	if (p.status !== 'in_review' && p.status !== 'verified') throw new WorkflowError(409, 'This protocol is not in review yet: both passes must be submitted first.', undefined, 'not_in_review');
+	const tests = await protocolTests(p.id);
+	const rows = await select<DiscrepancyRow & { resolver: string | null }>(
+		`SELECT d.*, u.name AS resolver FROM discrepancies d LEFT JOIN users u ON u.id = d.resolved_by
+		  WHERE d.protocol_id = :p AND d.round = :r ORDER BY d.position`,
+		{ p: p.id, r: p.round }
+	);
+	return {
+		protocol: p,
+		canResolve: duties.includes('reviewer') && p.status === 'in_review',
+		tests: tests.map((x) => ({ code: x.code, name: x.name, domain: x.domainName, group: x.groupCode, raw: x.raw, bounds: x.bounds, reported: x.reported })),
+		discrepancies: rows.map((d) => {
+			const v = passValues(d);
+			const test = tests.find((x) => x.code === d.test_code);
+			return {
+				id: d.id,
+				test: d.test_code,
+				testName: test?.name ?? d.test_code,
+				domain: test?.domainName ?? '',
+				field: d.field,
+				pass: d.pass,
+				kind: d.kind,
+				explanation: explainKind(d.kind),
+				first: v.first,
+				second: v.second,
+				expected: d.expected,
+				outOfRange: !!d.out_of_range,
+				diff: charDiff(v.first, v.second),
+				resolution: d.resolution,
+				resolvedValue: d.resolved_value,
+				note: d.note,
+				resolver: d.resolver,
+				resolvedAt: d.resolved_at,
+				lockVersion: d.lock_version
+			};
+		})
+	};
+}
+
+export const resolutionSchema = z.object({
+	choice: z.enum(['first', 'second', 'recomputed', 'other']),
+	value: z.string().trim().max(12).optional().nullable(),
+	note: z.string().trim().max(2000).optional().nullable(),
+	lockVersion: z.number().int().min(1)
+});
+
+/** Numerically equal values (a note is needed only when the kept value differs from the recomputation). */
+const same = (a: string | null, b: string | null) => a !== null && b !== null && Number(a) === Number(b);
+
+export async function resolveDiscrepancy(discrepancyId: number, user: Actor, body: unknown) {
+	const parsed = resolutionSchema.safeParse(body);
+	if (!parsed.success) {
+		const issue = parsed.error.issues[0];
+		throw invalid(`${issue.path.join('.') || 'body'}: ${issue.message}`, String(issue.path[0] ?? 'body'));
+	}
+	const { choice, note } = parsed.data;
+	return transaction(async (t) => {
+		const d = await selectOne<DiscrepancyRow>('SELECT * FROM discrepancies WHERE id = :id', { id: discrepancyId }, t);
+		if (!d) throw notFound('This discrepancy');
+		const { p, duties } = await protocolFor(d.protocol_id, user, t);
+		requireReviewer(duties);
+		if (p.status !== 'in_review' || d.round !== p.round) throw conflict('This protocol is not open for review (signed off, or a newer round exists).');
+		const v = passValues(d);
+		let kept: string | null;
+		if (choice === 'first') kept = v.first;
+		else if (choice === 'second') kept = v.second;
+		else if (choice === 'recomputed') kept = d.expected;
+		else kept = parsed.data.value ?? null;
+		if (choice === 'recomputed' && d.expected === null) throw invalid('There is no recomputed value for this field (a raw score has no reference).', 'choice');
+		if (kept === null || kept === '') throw invalid(choice === 'other' ? 'Enter the value to keep.' : 'That pass left this field empty; choose another value or enter one.', choice === 'other' ? 'value' : 'choice');
+		const tests = await protocolTests(p.id, t);
+		const test = tests.find((x) => x.code === d.test_code);
+		if (test) {
+			const problems = checkField(test, d.field, kept);
+			if (problems.length) throw invalid(`The value to keep is not valid: ${problems[0].message}`, 'value');
+		}
+		const needsNote = choice === 'other' || (d.expected !== null && !same(kept, d.expected));
+		if (needsNote && (!note || note.length < 3)) {
+			throw invalid(choice === 'other' ? 'Say why you keep another value (a short note).' : 'The kept value differs from the recomputed value: add a note saying why.', 'note');
+		}
+		const { affected } = await exec(
+			`UPDATE discrepancies SET resolution = :choice, resolved_value = :kept, note = :note, resolved_by = :uid, resolved_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1
+			  WHERE id = :id AND lock_version = :lock`,
+			{ choice, kept, note: note || null, uid: user.id, id: d.id, lock: parsed.data.lockVersion },
+			t
+		);
+		if (affected !== 1) {
+			const now = await selectOne<{ resolution: string | null; resolved_value: string | null; name: string | null }>(
+				'SELECT d.resolution, d.resolved_value, u.name FROM discrepancies d LEFT JOIN users u ON u.id = d.resolved_by WHERE d.id = :id',
+				{ id: d.id },
+				t
+			);
+			throw new WorkflowError(409, `Someone else changed this discrepancy first${now?.name ? ` (${now.name} kept ${now.resolved_value ?? 'no value'})` : ''}. Reload to see it; your choice was not saved.`, undefined, 'stale');
+		}
+		await audit(
+			{
+				actorId: user.id,
+				entity: 'discrepancy',
+				entityId: d.id,
+				protocolId: p.id,
+				action: d.resolved_at ? 'change_resolution' : 'resolve',
+				oldValue: d.resolved_at ? { choice: d.resolution, value: d.resolved_value } : { test: d.test_code, field: d.field, first: v.first, second: v.second, expected: d.expected, kind: d.kind },
+				newValue: { choice, value: kept },
+				reason: note || null
+			},
+			t
+		);
+		await recordResolution(d.id, t);
+		const open = await selectOne<{ n: number }>('SELECT COUNT(*) AS n FROM discrepancies WHERE protocol_id = :p AND round = :r AND resolved_at IS NULL', { p: p.id, r: p.round }, t);
+		return { id: d.id, resolution: choice, resolvedValue: kept, note: note || null, lockVersion: d.lock_version + 1, open: Number(open?.n ?? 0) };
+	});
+}
+
+export async function signOff(protocolId: number, user: Actor, body: unknown) {
+	const parsed = z.object({ lockVersion: z.number().int().min(1) }).safeParse(body);
+	if (!parsed.success) throw invalid('lockVersion: expected the protocol version you reviewed', 'lockVersion');
+	return transaction(async (t) => {
+		const { p, duties } = await protocolFor(protocolId, user, t, true);
+		requireReviewer(duties);
+		if (p.status === 'verified') throw new WorkflowError(409, 'This protocol is already signed off.', undefined, 'already_verified');
+		if (p.status !== 'in_review') throw conflict('Only a protocol in review can be signed off.');
+		if (p.lock_version !== parsed.data.lockVersion) throw new WorkflowError(409, 'The protocol changed since you opened it (reassigned or reopened). Reload and check before signing off.', undefined, 'stale');
+		const open = await selectOne<{ n: number }>('SELECT COUNT(*) AS n FROM discrepancies WHERE protocol_id = :p AND round = :r AND resolved_at IS NULL', { p: p.id, r: p.round }, t);
+		if (Number(open?.n) > 0) throw conflict(`${open?.n} discrepanc${Number(open?.n) === 1 ? 'y is' : 'ies are'} still open. Resolve every one before signing off.`);
+		await exec(
+			`UPDATE protocols SET status = 'verified', verified_at = CURRENT_TIMESTAMP(3), verified_by = :uid, status_changed_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1 WHERE id = :id`,
+			{ uid: user.id, id: p.id },
+			t
+		);
+		await audit({ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'sign_off', oldValue: 'in_review', newValue: { status: 'verified', round: p.round } }, t);
+		return { status: 'verified' as const };
+	});
+}
+
+/**
+ * A lead reopens a verified protocol with a reason: a new review round. The round's discrepancies are
+ * carried over unresolved (the earlier decisions stay in history and are shown as the previous
+ * decision), so the reviewer decides again and signs off again.
+ */
+export async function reopen(protocolId: number, user: Actor, reason: string) {
+	if (!reason || reason.trim().length < 5) throw invalid('Give a reason for reopening (at least a few words).', 'reason');
+	return transaction(async (t) => {
+		const { p, duties } = await protocolFor(protocolId, user, t, true);
+		if (!duties.includes('lead')) throw notFound();
+		if (p.status !== 'verified') throw conflict('Only a verified protocol can be reopened.');
+		const next = p.round + 1;
+		for (const which of ['first', 'second'] as const) {
+			await exec(
+				`INSERT INTO passes (protocol_id, round, which, scorer_id, status, scores, fields_entered, draft_version, submitted_at)
+				 SELECT protocol_id, :next, which, scorer_id, status, scores, fields_entered, draft_version, submitted_at FROM passes WHERE protocol_id = :p AND round = :r AND which = :w`,
+				{ next, p: p.id, r: p.round, w: which },
+				t
+			);
+		}
+		await exec(
+			`INSERT INTO discrepancies (protocol_id, round, position, test_code, field, pass, kind, value, other, expected, out_of_range)
+			 SELECT protocol_id, :next, position, test_code, field, pass, kind, value, other, expected, out_of_range FROM discrepancies WHERE protocol_id = :p AND round = :r`,
+			{ next, p: p.id, r: p.round },
+			t
+		);
+		await exec(
+			`UPDATE protocols SET status = 'in_review', round = :next, verified_at = NULL, verified_by = NULL, status_changed_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1 WHERE id = :id`,
+			{ next, id: p.id },
+			t
+		);
+		await audit({ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'reopen', oldValue: { status: 'verified', round: p.round }, newValue: { status: 'in_review', round: next }, reason: reason.trim() }, t);
+		const { notifyReviewStarted } = await import('../mail/review');
+		await notifyReviewStarted(p.id, next, p.reviewer_id, t);
+		return { round: next };
+	});
+}
+
+/** Earlier rounds' decisions for the same fields (shown as "previous decision" after a reopen). */
+export async function previousDecisions(protocolId: number, round: number) {
+	if (round <= 1) return [];
+	return select<{ test_code: string; field: string; resolution: string; resolved_value: string; note: string | null; round: number }>(
+		`SELECT test_code, field, resolution, resolved_value, note, round FROM discrepancies WHERE protocol_id = :p AND round = :r AND resolved_at IS NOT NULL`,
+		{ p: protocolId, r: round - 1 }
+	);
+}
+
+/** The verified value of every field: the pass value where both agreed, else the resolution. */
+export async function finalScores(protocolId: number, round: number): Promise<Scores> {
+	const first = await selectOne<{ scores: unknown }>('SELECT scores FROM passes WHERE protocol_id = :p AND round = :r AND which = \'first\'', { p: protocolId, r: round });
+	const second = await selectOne<{ scores: unknown }>('SELECT scores FROM passes WHERE protocol_id = :p AND round = :r AND which = \'second\'', { p: protocolId, r: round });
+	const a = jsonValue<Scores>(first?.scores) ?? {};
+	const b = jsonValue<Scores>(second?.scores) ?? {};
+	const rows = await select<{ test_code: string; field: Field; resolved_value: string | null }>(
+		'SELECT test_code, field, resolved_value FROM discrepancies WHERE protocol_id = :p AND round = :r AND resolved_at IS NOT NULL',
+		{ p: protocolId, r: round }
+	);
+	const out: Scores = {};
+	for (const code of new Set([...Object.keys(a), ...Object.keys(b)])) {
+		// Derived scores are checked against each pass's own raw score, so when the raw scores differed
+		// the derived values follow the pass whose raw score was kept.
+		const rawKept = rows.find((r) => r.test_code === code && r.field === 'raw')?.resolved_value;
+		const base = rawKept != null && Number(b[code]?.raw) === Number(rawKept) && Number(a[code]?.raw) !== Number(rawKept) ? b : a;
+		const other = base === a ? b : a;
+		out[code] = {};
+		for (const f of new Set([...Object.keys(a[code] ?? {}), ...Object.keys(b[code] ?? {})]) as Set<Field>) {
+			out[code][f] = base[code]?.[f] ?? other[code]?.[f] ?? null;
+		}
+	}
+	for (const r of rows) {
+		out[r.test_code] ??= {};
+		out[r.test_code][r.field] = r.resolved_value;
+	}
+	return out;
+}

@@ -1,0 +1,396 @@
+/**
+ * Protocols: creation (with separation of duties and automatic norm groups), who may see what
+ * (object-level access and the blind rule), and the protocol view.
+ */
+import type { Transaction } from 'sequelize';
+import { select, selectOne, exec, transaction, type Tx } from '../db';
+import { audit } from '../audit';
+import { getUser } from '../users';
+import { batteryTests, normGroups, normSet, groupDef, protocolTests } from './catalog-read';
+import { selectNormGroup, type AgeWarning } from '../../scoring/age';
+import { WorkflowError, notFound, invalid, conflict } from './errors';
+import type { Role } from '../../roles';
+
+export type Status = 'draft' | 'awaiting_second' | 'in_review' | 'verified';
+export type Duty = 'first' | 'second' | 'reviewer' | 'lead';
+
+export interface ProtocolRow {
+	id: number;
+	examinee_id: number;
+	battery_id: number;
+	norm_set_id: number;
+	test_date: string;
+	age_text: string;
+	age_months: number;
+	status: Status;
+	round: number;
+	first_scorer_id: number;
+	second_scorer_id: number;
+	reviewer_id: number;
+	lock_version: number;
+	status_changed_at: Date;
+	verified_at: Date | null;
+	verified_by: number | null;
+	created_at: Date;
+}
+
+export interface Actor {
+	id: number;
+	name: string;
+	roles: Role[];
+}
+
+export function dutiesOf(p: Pick<ProtocolRow, 'first_scorer_id' | 'second_scorer_id' | 'reviewer_id'>, user: Actor): Duty[] {
+	const d: Duty[] = [];
+	if (p.first_scorer_id === user.id && user.roles.includes('scorer')) d.push('first');
+	if (p.second_scorer_id === user.id && user.roles.includes('scorer')) d.push('second');
+	if (p.reviewer_id === user.id && user.roles.includes('reviewer')) d.push('reviewer');
+	if (user.roles.includes('lead')) d.push('lead');
+	return d;
+}
+
+export async function getProtocolRow(id: number, t?: Tx, forUpdate = false): Promise<ProtocolRow | null> {
+	return selectOne<ProtocolRow>(`SELECT * FROM protocols WHERE id = :id${forUpdate ? ' FOR UPDATE' : ''}`, { id }, t);
+}
+
+/** The protocol if this user has a duty on it (leads see all); otherwise 404, so ids cannot be probed. */
+export async function protocolFor(id: number, user: Actor, t?: Tx, forUpdate = false): Promise<{ p: ProtocolRow; duties: Duty[] }> {
+	const p = await getProtocolRow(id, t, forUpdate);
+	if (!p) throw notFound();
+	const duties = dutiesOf(p, user);
+	if (duties.length === 0) throw notFound();
+	return { p, duties };
+}
+
+/** Blind rule: both passes are visible to anyone only once the second pass is submitted. */
+export const passesRevealed = (status: Status) => status === 'in_review' || status === 'verified';
+
+// ---------------------------------------------------------------- creation
+
+export interface NewProtocol {
+	examinee: { code: string; birthDate?: string; sex?: 'F' | 'M' | 'X' | null; educationYears?: number | null; name?: string | null };
+	batteryId: number;
+	normSetId?: number | null;
+	testDate: string;
+	firstScorerId: number;
+	secondScorerId: number;
+	reviewerId: number;
+	/** test code → { groupCode, reason } */
+	overrides?: Record<string, { groupCode: string; reason: string }>;
+}
+
+export interface GroupPlan {
+	testCode: string;
+	testName: string;
+	groupCode: string | null;
+	groupId: number | null;
+	warnings: AgeWarning[];
+}
+
+async function checkDuties(first: number, second: number, reviewer: number, t: Tx) {
+	if (first === second) throw invalid('The two scorers must be different people.', 'secondScorerId');
+	if (reviewer === first || reviewer === second) throw invalid('The reviewer cannot be one of the scorers.', 'reviewerId');
+	for (const [id, role, field] of [
+		[first, 'scorer', 'firstScorerId'],
+		[second, 'scorer', 'secondScorerId'],
+		[reviewer, 'reviewer', 'reviewerId']
+	] as const) {
+		const u = await getUser(id, t);
+		if (!u || !u.active) throw invalid('Choose an active account.', field);
+		if (!u.roles.includes(role)) throw invalid(`${u.name} does not hold the ${role} role.`, field);
+	}
+}
+
+/** Age, norm group per test and warnings for an examinee and test date (also used for the preview). */
+export async function planGroups(
+	batteryId: number,
+	normSetId: number,
+	ex: { birthDate: string; sex?: string | null; educationYears?: number | null },
+	testDate: string,
+	t?: Tx
+) {
+	const set = await normSet(normSetId, t);
+	if (!set) throw invalid('Choose a norm set.', 'normSetId');
+	const tests = await batteryTests(batteryId, t);
+	if (tests.length === 0) throw invalid('This battery has no tests.', 'batteryId');
+	const groups = await normGroups(normSetId, tests.map((x) => x.code), t);
+	let age: ReturnType<typeof selectNormGroup>['age'] | null = null;
+	const plan: GroupPlan[] = tests.map((test) => {
+		const mine = groups.filter((g) => g.test_code === test.code);
+		const sel = selectNormGroup(ex.birthDate, testDate, mine.map(groupDef), { sex: ex.sex === 'X' ? null : ex.sex, educationYears: ex.educationYears });
+		age = sel.age;
+		const row = sel.group ? mine.find((g) => g.group_code === sel.group!.id) : undefined;
+		return { testCode: test.code, testName: test.name, groupCode: row?.group_code ?? null, groupId: row?.id ?? null, warnings: sel.warnings };
+	});
+	return { set, tests, groups, plan, age: age! };
+}
+
+export async function createProtocol(input: NewProtocol, actor: Actor): Promise<number> {
+	return transaction(async (t) => {
+		await checkDuties(input.firstScorerId, input.secondScorerId, input.reviewerId, t);
+		const battery = await selectOne<{ id: number; norm_set_id: number | null }>('SELECT id, norm_set_id FROM batteries WHERE id = :id', { id: input.batteryId }, t);
+		if (!battery) throw invalid('Choose a battery.', 'batteryId');
+		const normSetId = input.normSetId ?? battery.norm_set_id;
+		if (!normSetId) throw invalid('Choose a norm set.', 'normSetId');
+
+		let ex = await selectOne<{ id: number; birth_date: string; sex: 'F' | 'M' | 'X' | null; education_years: number | null }>(
+			'SELECT id, birth_date, sex, education_years FROM examinees WHERE code = :code FOR UPDATE',
+			{ code: input.examinee.code },
+			t
+		);
+		if (!ex) {
+			if (!input.examinee.birthDate) throw invalid('A new examinee needs a birth date.', 'birthDate');
+			const { insertId } = await exec(
+				`INSERT INTO examinees (code, name, birth_date, sex, education_years, created_by) VALUES (:code, :name, :birth, :sex, :edu, :by)`,
+				{ code: input.examinee.code, name: input.examinee.name || null, birth: input.examinee.birthDate, sex: input.examinee.sex ?? null, edu: input.examinee.educationYears ?? null, by: actor.id },
+				t
+			);
+			await audit({ actorId: actor.id, entity: 'examinee', entityId: insertId, action: 'create', newValue: { code: input.examinee.code } }, t);
+			ex = { id: insertId, birth_date: input.examinee.birthDate, sex: input.examinee.sex ?? null, education_years: input.examinee.educationYears ?? null };
+		}
+		if (input.testDate < ex.birth_date) throw invalid('The test date is before the birth date.', 'testDate');
+
+		const { plan, groups, age } = await planGroups(input.batteryId, normSetId, { birthDate: ex.birth_date, sex: ex.sex, educationYears: ex.education_years }, input.testDate, t);
+		const tests = await batteryTests(input.batteryId, t);
+		const { insertId: protocolId } = await exec(
+			`INSERT INTO protocols (examinee_id, battery_id, norm_set_id, test_date, age_text, age_months, status, first_scorer_id, second_scorer_id, reviewer_id, created_by)
+			 VALUES (:ex, :battery, :normSet, :testDate, :ageText, :ageMonths, 'draft', :first, :second, :reviewer, :by)`,
+			{
+				ex: ex.id,
+				battery: input.batteryId,
+				normSet: normSetId,
+				testDate: input.testDate,
+				ageText: age.text,
+				ageMonths: age.totalMonths,
+				first: input.firstScorerId,
+				second: input.secondScorerId,
+				reviewer: input.reviewerId,
+				by: actor.id
+			},
+			t
+		);
+		for (const [i, test] of tests.entries()) {
+			const o = input.overrides?.[test.code];
+			let groupId = plan[i].groupId;
+			let reason: string | null = null;
+			if (o && o.groupCode !== plan[i].groupCode) {
+				const g = groups.find((x) => x.test_code === test.code && x.group_code === o.groupCode);
+				if (!g) throw invalid(`Norm group ${o.groupCode} does not exist for ${test.name}.`, `overrides.${test.code}`);
+				if (!o.reason || o.reason.trim().length < 5) throw invalid(`Give a reason for overriding the norm group of ${test.name}.`, `overrides.${test.code}`);
+				groupId = g.id;
+				reason = o.reason.trim();
+			}
+			if (!groupId) throw invalid(`No norm group of this norm set covers this examinee for ${test.name}; choose one with a reason.`, `overrides.${test.code}`);
+			await exec(
+				`INSERT INTO protocol_tests (protocol_id, position, test_id, norm_group_id, override_reason) VALUES (:p, :pos, :test, :g, :reason)`,
+				{ p: protocolId, pos: i + 1, test: test.id, g: groupId, reason },
+				t
+			);
+			if (reason) {
+				await audit({ actorId: actor.id, entity: 'protocol', entityId: protocolId, protocolId, action: 'norm_group_override', oldValue: { test: test.code, group: plan[i].groupCode }, newValue: { test: test.code, group: o!.groupCode }, reason }, t);
+			}
+		}
+		for (const [which, scorer] of [
+			['first', input.firstScorerId],
+			['second', input.secondScorerId]
+		] as const) {
+			await exec(`INSERT INTO passes (protocol_id, round, which, scorer_id, scores) VALUES (:p, 1, :which, :scorer, '{}')`, { p: protocolId, which, scorer }, t);
+		}
+		await audit(
+			{
+				actorId: actor.id,
+				entity: 'protocol',
+				entityId: protocolId,
+				protocolId,
+				action: 'create',
+				newValue: { examinee: input.examinee.code, battery: input.batteryId, normSet: normSetId, testDate: input.testDate, age: age.text, first: input.firstScorerId, second: input.secondScorerId, reviewer: input.reviewerId }
+			},
+			t
+		);
+		return protocolId;
+	});
+}
+
+// ---------------------------------------------------------------- assignments
+
+/** A lead changes an assignment; never two duties on one protocol; a submitted pass keeps its scorer. */
+export async function reassign(protocolId: number, duty: 'first' | 'second' | 'reviewer', userId: number, reason: string, actor: Actor, onReviewerChange?: (p: ProtocolRow, t: Transaction) => Promise<void>) {
+	if (!reason || reason.trim().length < 5) throw invalid('Give a reason for the change.', 'reason');
+	return transaction(async (t) => {
+		const { p } = await protocolFor(protocolId, actor, t, true);
+		if (p.status === 'verified') throw conflict('A verified protocol is locked. Reopen it first.');
+		const next = { first: p.first_scorer_id, second: p.second_scorer_id, reviewer: p.reviewer_id, [duty]: userId };
+		await checkDuties(next.first, next.second, next.reviewer, t);
+		if (duty !== 'reviewer') {
+			const pass = await selectOne<{ status: string }>('SELECT status FROM passes WHERE protocol_id = :p AND round = :r AND which = :w', { p: p.id, r: p.round, w: duty }, t);
+			if (pass?.status === 'submitted') throw conflict('That pass is already submitted; its scorer can no longer change.');
+			await exec('UPDATE passes SET scorer_id = :u, scores = \'{}\', fields_entered = 0, draft_version = draft_version + 1 WHERE protocol_id = :p AND round = :r AND which = :w', { u: userId, p: p.id, r: p.round, w: duty }, t);
+		}
+		const column = duty === 'first' ? 'first_scorer_id' : duty === 'second' ? 'second_scorer_id' : 'reviewer_id';
+		await exec(`UPDATE protocols SET ${column} = :u, lock_version = lock_version + 1 WHERE id = :id`, { u: userId, id: p.id }, t);
+		await audit({ actorId: actor.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: `assign_${duty}`, oldValue: p[column], newValue: userId, reason: reason.trim() }, t);
+		if (duty === 'reviewer' && p.status === 'in_review' && onReviewerChange) await onReviewerChange({ ...p, reviewer_id: userId }, t);
+	});
+}
+
+// ---------------------------------------------------------------- lists
+
+export interface ProtocolListItem {
+	id: number;
+	code: string;
+	battery: string;
+	test_date: string;
+	status: Status;
+	round: number;
+	first_name: string;
+	second_name: string;
+	reviewer_name: string;
+	status_changed_at: Date;
+	open_discrepancies: number;
+}
+
+/** Protocols this user has a duty on (leads: all), newest first, paginated. */
+export async function listProtocols(user: Actor, opts: { status?: Status | null; q?: string | null; page?: number; perPage?: number } = {}) {
+	const perPage = Math.min(100, Math.max(10, opts.perPage ?? 25));
+	const page = Math.max(1, opts.page ?? 1);
+	const where: string[] = [];
+	const params: Record<string, unknown> = { uid: user.id, limit: perPage, offset: (page - 1) * perPage };
+	if (!user.roles.includes('lead')) {
+		const parts: string[] = [];
+		if (user.roles.includes('scorer')) parts.push('p.first_scorer_id = :uid', 'p.second_scorer_id = :uid');
+		if (user.roles.includes('reviewer')) parts.push('p.reviewer_id = :uid');
+		where.push(parts.length ? `(${parts.join(' OR ')})` : '0');
+	}
+	if (opts.status) {
+		where.push('p.status = :status');
+		params.status = opts.status;
+	}
+	if (opts.q) {
+		where.push('e.code LIKE :q');
+		params.q = `%${opts.q.replace(/[%_\\]/g, '\\$&')}%`;
+	}
+	const w = where.length ? `WHERE ${where.join(' AND ')}` : '';
+	const rows = await select<ProtocolListItem>(
+		`SELECT p.id, e.code, b.name AS battery, p.test_date, p.status, p.round, f.name AS first_name, s.name AS second_name, r.name AS reviewer_name,
+		        p.status_changed_at,
+		        (SELECT COUNT(*) FROM discrepancies d WHERE d.protocol_id = p.id AND d.round = p.round AND d.resolved_at IS NULL) AS open_discrepancies
+		   FROM protocols p
+		   JOIN examinees e ON e.id = p.examinee_id
+		   JOIN batteries b ON b.id = p.battery_id
+		   JOIN users f ON f.id = p.first_scorer_id
+		   JOIN users s ON s.id = p.second_scorer_id
+		   JOIN users r ON r.id = p.reviewer_id
+		   ${w} ORDER BY p.id DESC LIMIT :limit OFFSET :offset`,
+		params
+	);
+	const total = await selectOne<{ n: number }>(`SELECT COUNT(*) AS n FROM protocols p JOIN examinees e ON e.id = p.examinee_id ${w}`, params);
+	return { rows, total: Number(total?.n ?? 0), page, perPage };
+}
+
+export interface WorkItem {
+	kind: 'enter_first' | 'enter_second' | 'review' | 'sign_off';
+	protocolId: number;
+	code: string;
+	battery: string;
+	since: Date;
+	status: Status;
+	open: number;
+	draftStarted: boolean;
+}
+
+/** What is waiting for this user, oldest first. */
+export async function worklist(user: Actor): Promise<WorkItem[]> {
+	const items: WorkItem[] = [];
+	if (user.roles.includes('scorer')) {
+		const rows = await select<{ id: number; code: string; battery: string; which: 'first' | 'second'; since: Date; status: Status; draft_version: number }>(
+			`SELECT p.id, e.code, b.name AS battery, pa.which, p.created_at AS since, p.status, pa.draft_version
+			   FROM passes pa
+			   JOIN protocols p ON p.id = pa.protocol_id AND pa.round = p.round
+			   JOIN examinees e ON e.id = p.examinee_id
+			   JOIN batteries b ON b.id = p.battery_id
+			  WHERE pa.scorer_id = :uid AND pa.status = 'draft' AND p.status IN ('draft', 'awaiting_second')
+			  ORDER BY p.created_at, p.id LIMIT 200`,
+			{ uid: user.id }
+		);
+		for (const r of rows) items.push({ kind: r.which === 'first' ? 'enter_first' : 'enter_second', protocolId: r.id, code: r.code, battery: r.battery, since: r.since, status: r.status, open: 0, draftStarted: r.draft_version > 0 });
+	}
+	if (user.roles.includes('reviewer')) {
+		const rows = await select<{ id: number; code: string; battery: string; since: Date; status: Status; open: number }>(
+			`SELECT p.id, e.code, b.name AS battery, p.status_changed_at AS since, p.status,
+			        (SELECT COUNT(*) FROM discrepancies d WHERE d.protocol_id = p.id AND d.round = p.round AND d.resolved_at IS NULL) AS open
+			   FROM protocols p
+			   JOIN examinees e ON e.id = p.examinee_id
+			   JOIN batteries b ON b.id = p.battery_id
+			  WHERE p.reviewer_id = :uid AND p.status = 'in_review'
+			  ORDER BY p.status_changed_at, p.id LIMIT 200`,
+			{ uid: user.id }
+		);
+		for (const r of rows) items.push({ kind: Number(r.open) > 0 ? 'review' : 'sign_off', protocolId: r.id, code: r.code, battery: r.battery, since: r.since, status: r.status, open: Number(r.open), draftStarted: false });
+	}
+	return items.sort((a, b) => new Date(a.since).getTime() - new Date(b.since).getTime());
+}
+
+// ---------------------------------------------------------------- view
+
+export async function protocolView(id: number, user: Actor) {
+	const { p, duties } = await protocolFor(id, user);
+	const staffView = duties.includes('lead') || duties.includes('reviewer');
+	const ex = await selectOne<{ code: string; name: string | null; birth_date: string; sex: string | null; education_years: number | null }>(
+		'SELECT code, name, birth_date, sex, education_years FROM examinees WHERE id = :id',
+		{ id: p.examinee_id }
+	);
+	const battery = await selectOne<{ code: string; name: string }>('SELECT code, name FROM batteries WHERE id = :id', { id: p.battery_id });
+	const set = await normSet(p.norm_set_id);
+	const tests = await protocolTests(p.id);
+	const people = await select<{ id: number; name: string }>('SELECT id, name FROM users WHERE id IN (:ids)', { ids: [p.first_scorer_id, p.second_scorer_id, p.reviewer_id] });
+	const nameOf = (uid: number) => people.find((x) => x.id === uid)?.name ?? '—';
+	const passes = await select<{ which: 'first' | 'second'; status: string; submitted_at: Date | null; fields_entered: number; updated_at: Date; draft_version: number }>(
+		'SELECT which, status, submitted_at, fields_entered, updated_at, draft_version FROM passes WHERE protocol_id = :p AND round = :r ORDER BY which',
+		{ p: p.id, r: p.round }
+	);
+	const open = await selectOne<{ open: number; total: number }>(
+		'SELECT SUM(resolved_at IS NULL) AS open, COUNT(*) AS total FROM discrepancies WHERE protocol_id = :p AND round = :r',
+		{ p: p.id, r: p.round }
+	);
+	const attachments = await select<{ id: number; filename: string; mime: string; size: number; sha256: string; created_at: Date }>(
+		'SELECT id, filename, mime, size, sha256, created_at FROM attachments WHERE protocol_id = :p ORDER BY id',
+		{ p: p.id }
+	);
+	return {
+		protocol: p,
+		duties,
+		examinee: {
+			code: ex!.code,
+			// Names and birth dates are for leads and reviewers; scorers see the code and the age.
+			name: staffView ? ex!.name : null,
+			birthDate: staffView ? ex!.birth_date : null,
+			sex: ex!.sex,
+			educationYears: ex!.education_years
+		},
+		battery: battery!,
+		normSet: set ? { name: set.name, version: set.version, source: set.source } : null,
+		tests: tests.map((x) => ({ code: x.code, name: x.name, domain: x.domainName, group: x.groupCode, overrideReason: x.overrideReason, version: x.version })),
+		assignments: { first: nameOf(p.first_scorer_id), second: nameOf(p.second_scorer_id), reviewer: nameOf(p.reviewer_id) },
+		passes: passes.map((x) => ({ which: x.which, status: x.status, submittedAt: x.submitted_at, fieldsEntered: x.fields_entered, started: x.draft_version > 0 })),
+		discrepancies: { open: Number(open?.open ?? 0), total: Number(open?.total ?? 0) },
+		attachments
+	};
+}
+
+/** Status history for the protocol page. Before both passes are in, values of passes are hidden. */
+export async function protocolHistoryFor(id: number, user: Actor) {
+	const { p } = await protocolFor(id, user);
+	const rows = await select<{ id: number; at: Date; actor_name: string | null; action: string; old_value: string | null; new_value: string | null; reason: string | null; entity: string }>(
+		`SELECT a.id, a.at, u.name AS actor_name, a.action, a.old_value, a.new_value, a.reason, a.entity
+		   FROM audit_events a LEFT JOIN users u ON u.id = a.actor_id WHERE a.protocol_id = :p ORDER BY a.id`,
+		{ p: p.id }
+	);
+	const reveal = passesRevealed(p.status) || user.roles.includes('lead') && !dutiesOf(p, user).some((d) => d === 'first' || d === 'second');
+	return rows.map((r) => ({
+		...r,
+		old_value: r.entity === 'pass' && !reveal ? null : r.old_value,
+		new_value: r.entity === 'pass' && !reveal ? null : r.new_value
+	}));
+}
+
+export { WorkflowError };

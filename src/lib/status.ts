@@ -1,0 +1,44 @@
+/** Protocol statuses in words, with the icon used everywhere (never colour alone). Client-safe. */
+export const STATUS: Record<string, { label: string; icon: string; tone: 'neutral' | 'attention' | 'verified' }> = {
+	draft: { label: 'First pass', icon: 'draft', tone: 'neutral' },
+	awaiting_second: { label: 'Second pass', icon: 'pen', tone: 'neutral' },
+	in_review: { label: 'In review', icon: 'review', tone: 'attention' },
+	verified: { label: 'Verified', icon: 'check', tone: 'verified' }
+};
+
+export const FIELD_LABELS: Record<string, string> = {
+	raw: 'Raw score',
+	z: 'z-score',
+	standard: 'Standard score',
+	scaled: 'Scaled score',
+	t: 'T-score',
+	percentile: 'Percentile'
+};
+
+export const FIELD_SHORT: Record<string, string> = { raw: 'Raw', z: 'z', standard: 'SS', scaled: 'ScS', t: 'T', percentile: '%ile' };
+
+export const KIND_LABELS: Record<string, string> = {
+	missing: 'Missing',
+	sign_flip: 'Sign not reversed',
+	wrong_norm_group: 'Wrong norm group',
+	wrong_scale: 'Wrong scale',
+	raw_as_derived: 'Raw score copied',
+	decimal_shift: 'Decimal shift',
+	transposition: 'Digits swapped',
+	rounding: 'Rounding',
+	digit_drop: 'Digit left out',
+	digit_extra: 'Extra digit',
+	wrong_digit: 'Wrong digit',
+	out_of_range: 'Impossible value',
+	mismatch: 'Differs'
+};
+
+/** Age of an item in words: "3 h", "2 d". */
+export function ageOf(since: string | Date, now = new Date()): string {
+	const ms = now.getTime() - new Date(since).getTime();
+	const m = Math.max(0, Math.round(ms / 60_000));
+	if (m < 60) return `${m} min`;
+	const h = Math.round(m / 60);
+	if (h < 48) return `${h} h`;
+	return `${Math.round(h / 24)} d`;
+}

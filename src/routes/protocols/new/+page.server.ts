@@ -1,0 +1,62 @@
+import type { Actions, PageServerLoad } from './$types';
+import { fail, redirect } from '@sveltejs/kit';
+import { requireRole } from '$lib/server/guard';
+import { select } from '$lib/server/db';
+import { usersWithRole } from '$lib/server/users';
+import { createProtocol } from '$lib/server/protocols/service';
+import { WorkflowError } from '$lib/server/protocols/errors';
+import { newProtocolSchema } from '$lib/validation/protocol';
+import { fieldErrors } from '$lib/validation/people';
+
+export const load: PageServerLoad = async (event) => {
+	requireRole(event, 'lead');
+	const [batteries, normSets, scorers, reviewers] = await Promise.all([
+		select<{ id: number; name: string; norm_set_id: number | null; tests: number }>(
+			'SELECT b.id, b.name, b.norm_set_id, COUNT(bt.test_code) AS tests FROM batteries b LEFT JOIN battery_tests bt ON bt.battery_id = b.id GROUP BY b.id ORDER BY b.name'
+		),
+		select<{ id: number; name: string; version: string }>('SELECT id, name, version FROM norm_sets ORDER BY name, version'),
+		usersWithRole('scorer'),
+		usersWithRole('reviewer')
+	]);
+	return {
+		batteries,
+		normSets,
+		scorers: scorers.map((u) => ({ id: u.id, name: u.name })),
+		reviewers: reviewers.map((u) => ({ id: u.id, name: u.name })),
+		today: new Date().toISOString().slice(0, 10)
+	};
+};
+
+export const actions: Actions = {
+	default: async (event) => {
+		const actor = requireRole(event, 'lead');
+		const values = Object.fromEntries(await event.request.formData()) as Record<string, string>;
+		const parsed = newProtocolSchema.safeParse(values);
+		if (!parsed.success) return fail(400, { values, errors: fieldErrors(parsed.error) });
+		const v = parsed.data;
+		try {
+			const id = await createProtocol(
+				{
+					examinee: {
+						code: v.code,
+						birthDate: v.birthDate || undefined,
+						sex: (v.sex || null) as 'F' | 'M' | 'X' | null,
+						educationYears: v.educationYears === '' || v.educationYears === undefined ? null : Number(v.educationYears),
+						name: v.name || null
+					},
+					batteryId: v.batteryId,
+					normSetId: v.normSetId ? Number(v.normSetId) : null,
+					testDate: v.testDate,
+					firstScorerId: v.firstScorerId,
+					secondScorerId: v.secondScorerId,
+					reviewerId: v.reviewerId
+				},
+				actor
+			);
+			redirect(303, `/protocols/${id}?created=1`);
+		} catch (e) {
+			if (e instanceof WorkflowError) return fail(e.status, { values, errors: { [e.field ?? 'form']: e.message } });
+			throw e;
+		}
+	}
+};
