@@ -46,10 +46,10 @@ export async function reviewMailSettings(t?: Tx): Promise<ReviewMailSettings> {
 		reminderIntervalMinutes: config.reminderIntervalMinutes,
 		escalateAfterReminders: config.escalateAfterReminders
 	};
-	const row = await selectOne<{ value: string }>('SELECT value FROM settings WHERE name = :name', { name: REVIEW_MAIL_SETTING }, t);
+	const row = await selectOne<{ value: unknown }>('SELECT value FROM settings WHERE name = :name', { name: REVIEW_MAIL_SETTING }, t);
 	if (!row) return defaults;
 	try {
-		const v = JSON.parse(row.value) as Partial<ReviewMailSettings>;
+		const v = json<Partial<ReviewMailSettings>>(row.value);
 		return {
 			reminderIntervalMinutes: validInterval(v.reminderIntervalMinutes) ? v.reminderIntervalMinutes : defaults.reminderIntervalMinutes,
 			escalateAfterReminders: validCount(v.escalateAfterReminders) ? v.escalateAfterReminders : defaults.escalateAfterReminders
@@ -57,6 +57,11 @@ export async function reviewMailSettings(t?: Tx): Promise<ReviewMailSettings> {
 	} catch {
 		return defaults;
 	}
+}
+
+/** JSON columns (LONGTEXT with a JSON_VALID check) come back parsed from some queries, as text from others. */
+function json<T>(v: unknown): T {
+	return (typeof v === 'string' ? JSON.parse(v) : v) as T;
 }
 
 const validInterval = (n: unknown): n is number => typeof n === 'number' && Number.isFinite(n) && n > 0 && n <= 60 * 24 * 90;
@@ -410,7 +415,7 @@ afterDelivery.review_reminder = scheduleNext;
  * safe to run from any number of workers. Returns the number of rows handed back.
  */
 export async function recoverLostReviewMail(graceMs = 60_000): Promise<number> {
-	const rows = await select<{ id: number; payload: string; dispatched_at: Date }>(
+	const rows = await select<{ id: number; payload: unknown; dispatched_at: Date }>(
 		`SELECT o.id, o.payload, o.dispatched_at FROM outbox o
 		 LEFT JOIN mail_log m ON m.idempotency_key = o.idempotency_key
 		 WHERE o.kind IN ('review_first','review_reminder') AND o.dispatched_at IS NOT NULL
@@ -419,14 +424,14 @@ export async function recoverLostReviewMail(graceMs = 60_000): Promise<number> {
 		{ before: new Date(Date.now() - graceMs) }
 	);
 	const due = rows.filter((r) => {
-		const nb = (JSON.parse(r.payload) as { notBefore?: number }).notBefore;
+		const nb = json<{ notBefore?: number }>(r.payload).notBefore;
 		return typeof nb !== 'number' || nb < Date.now() - graceMs;
 	});
 	if (due.length === 0) return 0;
 	// Rows whose chain has ended would only be skipped again: leave them.
 	const live: number[] = [];
 	for (const r of due) {
-		const p = JSON.parse(r.payload) as ReviewMailPayload;
+		const p = json<ReviewMailPayload>(r.payload);
 		if (await loadState(p, p.reminderNo > 0)) live.push(r.id);
 	}
 	if (live.length) await exec(`UPDATE outbox SET dispatched_at = NULL WHERE id IN (:ids)`, { ids: live });
@@ -504,13 +509,14 @@ export async function nextReviewReminder(protocolId: number): Promise<{ reminder
 	if (!p || p.status !== 'in_review') return null;
 	const chain = await currentChain(protocolId, p.round);
 	if (!chain) return null;
-	const row = await selectOne<{ idempotency_key: string; payload: string }>(
+	const row = await selectOne<{ idempotency_key: string; payload: unknown }>(
 		`SELECT o.idempotency_key, o.payload FROM outbox o LEFT JOIN mail_log m ON m.idempotency_key = o.idempotency_key
 		 WHERE o.idempotency_key LIKE :prefix AND o.kind = 'review_reminder' AND m.id IS NULL ORDER BY o.id DESC LIMIT 1`,
 		{ prefix: `${chain}:%` }
 	);
 	if (!row) return null;
-	const payload = JSON.parse(row.payload) as ReviewMailPayload;
+	const payload = json<ReviewMailPayload>(row.payload);
 	if (payload.chain !== chain) return null;
+	if (!(await loadState(payload, true))) return null; // resolved or reassigned: it will send nothing
 	return { reminderNo: payload.reminderNo, due: new Date(payload.notBefore ?? Date.now()), reviewerId: payload.reviewerId };
 }

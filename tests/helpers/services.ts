@@ -1,0 +1,196 @@
+/**
+ * Stopping and starting the services npm test started (Redis, the worker), by PID, for the
+ * fault-injection tests. Reads RUN_DIR, REDIS_PORT and ENV_FILE (or CROSSTALLY_DATA_DIR) from the
+ * environment scripts/test.sh exports. Processes started here write the same pid files as
+ * scripts/lib/setup.sh, so the script's stop_all still stops them at the end of the run.
+ */
+import { spawn, spawnSync } from 'node:child_process';
+import { existsSync, mkdirSync, openSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
+import { join, resolve } from 'node:path';
+
+const ROOT = resolve(import.meta.dirname, '../..');
+
+function env(name: string): string {
+	const v = process.env[name];
+	if (!v) throw new Error(`${name} is not set (run through npm test)`);
+	return v;
+}
+
+export const runDir = () => env('RUN_DIR');
+const envFile = () => process.env.ENV_FILE ?? join(env('CROSSTALLY_DATA_DIR'), 'crosstally.env');
+const redisPort = () => env('REDIS_PORT');
+
+const sleep = (ms: number) => new Promise((r) => setTimeout(r, ms));
+
+function readPid(file: string): number | null {
+	try {
+		const pid = Number(readFileSync(file, 'utf8').trim());
+		return Number.isInteger(pid) && pid > 0 ? pid : null;
+	} catch {
+		return null;
+	}
+}
+
+export function alive(pid: number | null): boolean {
+	if (!pid) return false;
+	try {
+		process.kill(pid, 0);
+		return true;
+	} catch {
+		return false;
+	}
+}
+
+/** Child processes of a PID (tsx runs the script in a child node process). */
+function childrenOf(pid: number): number[] {
+	const out: number[] = [];
+	try {
+		for (const tid of spawnSync('ls', [`/proc/${pid}/task`]).stdout.toString().split(/\s+/).filter(Boolean)) {
+			const f = `/proc/${pid}/task/${tid}/children`;
+			if (existsSync(f)) out.push(...readFileSync(f, 'utf8').split(/\s+/).filter(Boolean).map(Number));
+		}
+	} catch {
+		/* gone */
+	}
+	return out;
+}
+
+function descendants(pid: number): number[] {
+	const kids = childrenOf(pid);
+	return kids.flatMap((k) => [k, ...descendants(k)]);
+}
+
+async function waitGone(pids: number[], timeoutMs: number): Promise<boolean> {
+	const end = Date.now() + timeoutMs;
+	while (pids.some(alive)) {
+		if (Date.now() > end) return false;
+		await sleep(50);
+	}
+	return true;
+}
+
+// ---------------------------------------------------------------------------------------------
+// Redis
+
+const redisPidFile = () => join(runDir(), 'redis.pid');
+
+export function redisRunning(): boolean {
+	return alive(readPid(redisPidFile()));
+}
+
+/** Stop Redis by its PID (SIGTERM; it keeps no data: --save '' --appendonly no). */
+export async function stopRedis(): Promise<void> {
+	const pid = readPid(redisPidFile());
+	if (!alive(pid)) return;
+	process.kill(pid!, 'SIGTERM');
+	if (!(await waitGone([pid!], 10_000))) process.kill(pid!, 'SIGKILL');
+	await waitGone([pid!], 5_000);
+	rmSync(redisPidFile(), { force: true });
+}
+
+/** Start Redis with the command line of scripts/lib/setup.sh start_redis, and wait for PONG. */
+export async function startRedis(): Promise<void> {
+	if (redisRunning()) return;
+	const dir = join(runDir(), 'redis');
+	mkdirSync(dir, { recursive: true });
+	const r = spawnSync('redis-server', [
+		'--port', redisPort(), '--bind', '127.0.0.1', '--save', '', '--appendonly', 'no', '--dir', dir,
+		'--pidfile', redisPidFile(), '--daemonize', 'yes', '--maxmemory-policy', 'noeviction', '--logfile', join(runDir(), 'redis.log')
+	]);
+	if (r.status !== 0) throw new Error(`redis-server did not start: ${r.stderr}`);
+	const end = Date.now() + 10_000;
+	for (;;) {
+		const ping = spawnSync('redis-cli', ['-p', redisPort(), 'ping']);
+		if (ping.stdout?.toString().trim() === 'PONG') return;
+		if (Date.now() > end) throw new Error('Redis did not answer');
+		await sleep(100);
+	}
+}
+
+// ---------------------------------------------------------------------------------------------
+// The worker
+
+const workerPidFile = () => join(runDir(), 'worker.pid');
+
+export function workerPid(): number | null {
+	const pid = readPid(workerPidFile());
+	return alive(pid) ? pid : null;
+}
+
+export function workerRunning(): boolean {
+	return workerPid() !== null;
+}
+
+/** Stop the worker gracefully (SIGTERM to the PID in worker.pid; tsx relays it to the script). */
+export async function stopWorker(): Promise<void> {
+	const pid = workerPid();
+	if (!pid) return;
+	const all = [pid, ...descendants(pid)];
+	process.kill(pid, 'SIGTERM');
+	if (!(await waitGone(all, 15_000))) for (const p of all) if (alive(p)) process.kill(p, 'SIGKILL');
+	await waitGone(all, 5_000);
+	rmSync(workerPidFile(), { force: true });
+}
+
+/**
+ * Kill the worker the hard way: SIGKILL to the process in worker.pid and to the node process tsx
+ * started for the script (killing only the tsx wrapper would leave the script running).
+ */
+export async function killWorker(): Promise<void> {
+	const pid = workerPid();
+	if (!pid) return;
+	const all = [...descendants(pid), pid];
+	for (const p of all) {
+		try {
+			process.kill(p, 'SIGKILL');
+		} catch {
+			/* already gone */
+		}
+	}
+	await waitGone(all, 5_000);
+	rmSync(workerPidFile(), { force: true });
+}
+
+/** The test process's environment without what vitest adds. */
+function workerEnv(): NodeJS.ProcessEnv {
+	const e: NodeJS.ProcessEnv = {};
+	for (const [k, v] of Object.entries(process.env)) if (!/^(VITEST|NODE_ENV$|TEST$)/.test(k)) e[k] = v;
+	return e;
+}
+
+/**
+ * Start a worker as scripts/lib/setup.sh does (`node --env-file=$ENV_FILE node_modules/.bin/tsx
+ * scripts/worker.ts`, output appended to $RUN_DIR/worker.log), with extra environment variables
+ * (e.g. MAIL_TEST_PAUSE_AFTER_SEND_MS). Resolves once the worker logged that it started.
+ */
+export async function startWorker(extraEnv: Record<string, string> = {}): Promise<number> {
+	const existing = workerPid();
+	if (existing) return existing;
+	const log = join(runDir(), 'worker.log');
+	const marker = `--- worker started by tests at ${new Date().toISOString()} ---\n`;
+	writeFileSync(log, marker, { flag: 'a' });
+	const fd = openSync(log, 'a');
+	const child = spawn(process.execPath, [`--env-file=${envFile()}`, 'node_modules/.bin/tsx', 'scripts/worker.ts'], {
+		cwd: ROOT,
+		env: { ...workerEnv(), ...extraEnv },
+		stdio: ['ignore', fd, fd],
+		detached: true
+	});
+	child.unref();
+	writeFileSync(workerPidFile(), `${child.pid}\n`);
+	const end = Date.now() + 20_000;
+	for (;;) {
+		const text = readFileSync(log, 'utf8');
+		const since = text.slice(text.lastIndexOf(marker));
+		if (/\[worker\] started/.test(since)) return child.pid!;
+		if (!alive(child.pid!)) throw new Error(`worker exited at start:\n${since.slice(-2000)}`);
+		if (Date.now() > end) throw new Error('worker did not start in 20 s');
+		await sleep(100);
+	}
+}
+
+/** Put Redis and one plain worker back as npm test started them (for afterEach). */
+export async function restoreServices(): Promise<void> {
+	await startRedis();
+	if (!workerRunning()) await startWorker();
+}

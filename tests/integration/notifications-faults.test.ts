@@ -1,0 +1,110 @@
+/**
+ * Reviewer notifications under faults, against the real services npm test starts: Redis stopped
+ * during a submission, the worker killed by its PID between the SMTP accept and the mail_log
+ * update, the SMTP server refusing. Each test puts Redis and a plain worker back at the end.
+ */
+import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
+import { Queue } from 'bullmq';
+import { selectOne } from '../../src/lib/server/db';
+import { bullConnection } from '../../src/lib/server/redis';
+import { MAIL_QUEUE } from '../../src/lib/server/mail/queue';
+import { listProtocolMail } from '../../src/lib/server/mail/review';
+import { ACCOUNTS, waitFor } from '../helpers/http';
+import {
+	caughtFor,
+	cleanupFixtures,
+	endAllChains,
+	keyOf,
+	mailLogRows,
+	outboxRows,
+	protocolReachesReview,
+	refuseNext,
+	type FakeMessage
+} from '../helpers/review-fixtures';
+import { killWorker, restoreServices, startRedis, startWorker, stopRedis, stopWorker, workerPid } from '../helpers/services';
+
+const sleep = (ms: number) => new Promise((r) => setTimeout(r, ms));
+const firstKey = (protocolId: number, reviewerId: number) => `review:${protocolId}:r1:u${reviewerId}:0`;
+const byKey = (msgs: FakeMessage[], key: string) => msgs.filter((m) => keyOf(m) === key);
+
+beforeAll(async () => {
+	await restoreServices();
+});
+
+afterEach(async () => {
+	await refuseNext(0);
+	await restoreServices();
+	await endAllChains();
+}, 60_000);
+
+afterAll(async () => {
+	await cleanupFixtures();
+});
+
+describe('review notifications under faults', () => {
+	it('Redis stopped during a submission: the submission succeeds, the outbox row waits, the e-mail goes out once Redis is back', async () => {
+		await stopRedis();
+		const f = await protocolReachesReview(); // the reconciliation transaction commits without Redis
+		const key = firstKey(f.protocolId, f.reviewerId);
+		await sleep(2_500);
+		const [row] = await outboxRows(f.protocolId);
+		expect(row.idempotency_key).toBe(key);
+		expect(row.dispatched_at, 'not dispatched while Redis is down').toBeNull();
+		expect(await caughtFor(f)).toEqual([]);
+
+		await startRedis();
+		const m = await waitFor(async () => byKey(await caughtFor(f), key)[0], 30_000);
+		expect(m.envelope.to).toEqual([ACCOUNTS.reviewer]);
+		await sleep(2_000);
+		expect(byKey(await caughtFor(f), key)).toHaveLength(1);
+		const log = await mailLogRows(f.protocolId);
+		expect(log.filter((r) => r.idempotency_key === key).map((r) => r.status)).toEqual(['sent']);
+	}, 60_000);
+
+	it('the worker killed by its PID after the SMTP accept and restarted: the e-mail is delivered exactly once', async () => {
+		await stopWorker();
+		await startWorker({ MAIL_TEST_PAUSE_AFTER_SEND_MS: '20000' });
+		const f = await protocolReachesReview();
+		const key = firstKey(f.protocolId, f.reviewerId);
+		// the fake has the message: the worker is now pausing before it records 'sent'
+		await waitFor(async () => byKey(await caughtFor(f), key)[0], 20_000, 50);
+		expect(workerPid()).not.toBeNull();
+		await killWorker();
+		expect(workerPid()).toBeNull();
+		const claim = await selectOne<{ status: string }>('SELECT status FROM mail_log WHERE idempotency_key = :key', { key });
+		expect(claim?.status, 'killed between the SMTP accept and the log update').toBe('sending');
+
+		await startWorker();
+		// the job's lock expires and the restarted worker runs it again: it must not send again
+		const queue = new Queue(MAIL_QUEUE, { connection: bullConnection() });
+		try {
+			const jobId = key.replace(/:/g, '_');
+			await waitFor(async () => (await (await queue.getJob(jobId))?.isCompleted()) ?? false, 75_000, 500);
+			const job = await queue.getJob(jobId);
+			expect(job?.returnvalue).toBe('uncertain');
+		} finally {
+			await queue.close();
+		}
+		await sleep(1_000);
+		expect(byKey(await caughtFor(f), key)).toHaveLength(1);
+		// the chain goes on: the next reminder is scheduled and sent
+		await waitFor(async () => byKey(await caughtFor(f), key.replace(/:0$/, ':1'))[0], 20_000);
+		const entry = (await listProtocolMail(f.protocolId))[0];
+		expect(entry.label).toBe('First e-mail');
+		expect(['sending', 'uncertain']).toContain(entry.status);
+	}, 120_000);
+
+	it('the SMTP server refusing twice, then accepting: delivered once, after retries with backoff', async () => {
+		await refuseNext(2);
+		const started = Date.now();
+		const f = await protocolReachesReview();
+		const key = firstKey(f.protocolId, f.reviewerId);
+		const m = await waitFor(async () => byKey(await caughtFor(f), key)[0], 45_000);
+		// two refusals: backoff of MAIL_BACKOFF_MS (2 s) then twice that before the third attempt
+		expect(Date.parse(m.receivedAt) - started).toBeGreaterThanOrEqual(5_000);
+		await sleep(2_000);
+		expect(byKey(await caughtFor(f), key)).toHaveLength(1);
+		const log = await mailLogRows(f.protocolId);
+		expect(log.filter((r) => r.idempotency_key === key).map((r) => r.status)).toEqual(['sent']);
+	}, 60_000);
+});

@@ -1,0 +1,192 @@
+/**
+ * Reviewer notifications against the real MariaDB, Redis, worker and mail fake that npm test
+ * starts (REMINDER_INTERVAL_MINUTES=0.05: a reminder every 3 s). Fixtures are inserted straight
+ * into the tables; the tests call notifyReviewStarted / notifyReviewerChanged as the workflow does.
+ */
+import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
+import { exec, transaction } from '../../src/lib/server/db';
+import { config } from '../../src/lib/server/config';
+import {
+	listProtocolMail,
+	nextReviewReminder,
+	notifyReviewStarted,
+	notifyReviewerChanged,
+	saveReviewMailSettings,
+	REVIEW_MAIL_SETTING
+} from '../../src/lib/server/mail/review';
+import { ACCOUNTS, waitFor } from '../helpers/http';
+import {
+	BIRTH_DATE_FORMS,
+	EXAMINEE_NAME,
+	caughtFor,
+	cleanupFixtures,
+	endAllChains,
+	keyOf,
+	mailLogRows,
+	outboxRows,
+	protocolReachesReview,
+	refuseNext,
+	resolveAll,
+	userId,
+	type FakeMessage,
+	type Fixture
+} from '../helpers/review-fixtures';
+
+const INTERVAL_MS = config.reminderIntervalMinutes * 60_000;
+const sleep = (ms: number) => new Promise((r) => setTimeout(r, ms));
+
+const byKey = (msgs: FakeMessage[], key: string) => msgs.filter((m) => keyOf(m) === key);
+const keyFor = (protocolId: number, reviewerId: number, n: number, round = 1) => `review:${protocolId}:r${round}:u${reviewerId}:${n}`;
+
+async function waitForKey(f: Fixture, key: string, timeoutMs = 20_000): Promise<FakeMessage> {
+	return waitFor(async () => byKey(await caughtFor(f), key)[0], timeoutMs, 150);
+}
+
+beforeAll(() => {
+	expect(INTERVAL_MS, 'npm test runs with a short reminder interval').toBeLessThanOrEqual(10_000);
+});
+
+afterEach(async () => {
+	await endAllChains();
+	await exec(`DELETE FROM settings WHERE name = :n`, { n: REVIEW_MAIL_SETTING });
+});
+
+afterAll(async () => {
+	await cleanupFixtures();
+});
+
+describe('review notifications', () => {
+	it('sends the reviewer a first e-mail when a protocol reaches in_review, with the code and never the name or birth date', async () => {
+		const f = await protocolReachesReview();
+		const m = await waitForKey(f, keyFor(f.protocolId, f.reviewerId, 0));
+
+		expect(m.envelope.to).toEqual([ACCOUNTS.reviewer]);
+		expect(m.cc).toBe('');
+		expect(m.subject).toBe(`Review needed: protocol ${f.code} (4 discrepancies)`);
+		expect(m.html, 'an HTML part').toBeTruthy();
+		expect(m.text, 'a plain-text part').toContain(f.code);
+		for (const part of [m.subject, m.text, m.html!]) {
+			expect(part).not.toContain(EXAMINEE_NAME);
+			expect(part).not.toContain('Zenobia');
+			for (const d of BIRTH_DATE_FORMS) expect(part).not.toContain(d);
+		}
+		const link = `${config.origin}/protocols/${f.protocolId}/review`;
+		expect(m.text).toContain(link);
+		expect(m.html).toContain(`href="${link}"`);
+		// per discrepancy: test, field, both values with the differing characters marked, recomputed, kind in words
+		expect(m.text).toContain('Notify Word Recall (nt-recall), standard score (second pass)');
+		expect(m.text).toMatch(/First pass: {2}1\[1\]6\s/);
+		expect(m.text).toMatch(/Second pass: 16\[1\]\s/);
+		expect(m.text).toContain('Recomputed:  116');
+		expect(m.text).toContain('Kind: transposition (out of range): Two neighbouring digits swapped');
+		expect(m.text).toContain('Kind: sign flip: Looks like the direction was not reversed');
+		expect(m.text).toContain('Kind: wrong norm group');
+		expect(m.text).toMatch(/First pass: {2}\[-\]1\.07/);
+		expect(m.html).toMatch(/<mark[^>]*>-<\/mark>1\.07/);
+		expect(m.html).toContain('Two neighbouring digits swapped');
+
+		await waitFor(async () => (await listProtocolMail(f.protocolId)).find((e) => e.status === 'sent'));
+		const log = await listProtocolMail(f.protocolId);
+		expect(log[0]).toMatchObject({ kind: 'review_first', label: 'First e-mail', reminderNo: 0, round: 1, reviewerId: f.reviewerId, to: [ACCOUNTS.reviewer], cc: [], status: 'sent' });
+		expect(log[0].sentAt).toBeInstanceOf(Date);
+	});
+
+	it('calling notifyReviewStarted twice (a retried request) still sends one first e-mail', async () => {
+		const f = await protocolReachesReview();
+		await transaction((t) => notifyReviewStarted(f.protocolId, f.round, f.reviewerId, t));
+		await waitForKey(f, keyFor(f.protocolId, f.reviewerId, 0));
+		await sleep(1_500);
+		expect(byKey(await caughtFor(f), keyFor(f.protocolId, f.reviewerId, 0))).toHaveLength(1);
+	});
+
+	it('sends a reminder after the interval, listing only what is still open', async () => {
+		const f = await protocolReachesReview();
+		const first = await waitForKey(f, keyFor(f.protocolId, f.reviewerId, 0));
+		// one discrepancy resolved before the reminder goes out
+		await exec(`UPDATE discrepancies SET resolved_at = CURRENT_TIMESTAMP(3) WHERE protocol_id = :id AND position = 0`, { id: f.protocolId });
+		const due = await waitFor(() => nextReviewReminder(f.protocolId));
+		expect(due.reminderNo).toBe(1);
+		const r1 = await waitForKey(f, keyFor(f.protocolId, f.reviewerId, 1), INTERVAL_MS + 15_000);
+		const gap = Date.parse(r1.receivedAt) - Date.parse(first.receivedAt);
+		expect(gap).toBeGreaterThanOrEqual(INTERVAL_MS * 0.9);
+		expect(r1.envelope.to).toEqual([ACCOUNTS.reviewer]);
+		expect(r1.subject).toBe(`Reminder 1: protocol ${f.code} has 3 open discrepancies`);
+		expect(r1.text).toContain('Still open');
+		expect(r1.text).not.toContain('raw score (both passes)');
+		expect(r1.text).not.toContain(EXAMINEE_NAME);
+		const r2 = await waitForKey(f, keyFor(f.protocolId, f.reviewerId, 2), INTERVAL_MS + 15_000);
+		expect(Date.parse(r2.receivedAt) - Date.parse(r1.receivedAt)).toBeGreaterThanOrEqual(INTERVAL_MS * 0.9);
+		const log = await listProtocolMail(f.protocolId);
+		expect(log.slice(0, 3).map((e) => e.label)).toEqual(['First e-mail', 'Reminder 1', 'Reminder 2']);
+	}, 60_000);
+
+	it('copies the active leads in after the configured number of reminders (escalation)', async () => {
+		await saveReviewMailSettings({ reminderIntervalMinutes: config.reminderIntervalMinutes, escalateAfterReminders: 1 });
+		const f = await protocolReachesReview();
+		const r1 = await waitForKey(f, keyFor(f.protocolId, f.reviewerId, 1), 2 * INTERVAL_MS + 15_000);
+		expect(r1.cc, 'reminder 1 is within the allowance').toBe('');
+		const r2 = await waitForKey(f, keyFor(f.protocolId, f.reviewerId, 2), 2 * INTERVAL_MS + 15_000);
+		expect(r2.envelope.to.sort()).toEqual([ACCOUNTS.reviewer, ACCOUNTS.lead].sort());
+		expect(r2.cc).toContain(ACCOUNTS.lead);
+		expect(r2.subject).toBe(`Escalated reminder 2: protocol ${f.code} has 4 open discrepancies`);
+		expect(r2.text).toContain('The leads are copied in');
+		await waitFor(async () => (await listProtocolMail(f.protocolId)).find((e) => e.reminderNo === 2 && e.status === 'sent'));
+		const entry = (await listProtocolMail(f.protocolId)).find((e) => e.reminderNo === 2)!;
+		expect(entry).toMatchObject({ label: 'Reminder 2 (leads copied in)', to: [ACCOUNTS.reviewer], cc: [ACCOUNTS.lead] });
+	}, 60_000);
+
+	it('a lead who is the reviewer is not copied in on their own reminder', async () => {
+		await saveReviewMailSettings({ reminderIntervalMinutes: config.reminderIntervalMinutes, escalateAfterReminders: 0 });
+		const f = await protocolReachesReview({ reviewer: ACCOUNTS.lead });
+		const r1 = await waitForKey(f, keyFor(f.protocolId, f.reviewerId, 1), 2 * INTERVAL_MS + 15_000);
+		expect(r1.envelope.to).toEqual([ACCOUNTS.lead]);
+		expect(r1.cc).toBe('');
+	}, 60_000);
+
+	it('sends no reminder once every discrepancy is resolved', async () => {
+		const f = await protocolReachesReview();
+		await waitForKey(f, keyFor(f.protocolId, f.reviewerId, 0));
+		await resolveAll(f.protocolId);
+		await sleep(3 * INTERVAL_MS + 2_000);
+		const msgs = await caughtFor(f);
+		expect(msgs.map(keyOf)).toEqual([keyFor(f.protocolId, f.reviewerId, 0)]);
+		// at most the one reminder that was already scheduled exists, and nothing after it
+		const keys = (await outboxRows(f.protocolId)).map((r) => r.idempotency_key);
+		expect(keys.filter((k) => k.endsWith(':2'))).toEqual([]);
+		expect(await nextReviewReminder(f.protocolId)).toBeNull();
+	}, 60_000);
+
+	it('on reassignment the new reviewer gets their own first e-mail and reminders; the old reviewer gets no more', async () => {
+		const f = await protocolReachesReview();
+		await waitForKey(f, keyFor(f.protocolId, f.reviewerId, 0));
+		const lead = await userId(ACCOUNTS.lead);
+		await transaction(async (t) => {
+			await exec(`UPDATE protocols SET reviewer_id = :lead WHERE id = :id`, { lead, id: f.protocolId }, t);
+			await notifyReviewerChanged(f.protocolId, f.round, lead, t);
+		});
+		const changedAt = Date.now();
+		const n0 = await waitForKey(f, keyFor(f.protocolId, lead, 0));
+		expect(n0.envelope.to).toEqual([ACCOUNTS.lead]);
+		expect(n0.subject).toBe(`Review needed: protocol ${f.code} (4 discrepancies)`);
+		await waitForKey(f, keyFor(f.protocolId, lead, 1), INTERVAL_MS + 15_000);
+		await sleep(Math.max(0, changedAt + 2 * INTERVAL_MS + 1_000 - Date.now()));
+		const toOld = (await caughtFor(f)).filter((m) => m.envelope.to.includes(ACCOUNTS.reviewer));
+		// the first e-mail, and at most a reminder that was already on its way when the change committed
+		expect(toOld.filter((m) => Date.parse(m.receivedAt) > changedAt + 1_000)).toEqual([]);
+
+		// back to the first reviewer in the same round: a fresh chain of their own
+		await transaction(async (t) => {
+			await exec(`UPDATE protocols SET reviewer_id = :r WHERE id = :id`, { r: f.reviewerId, id: f.protocolId }, t);
+			await notifyReviewerChanged(f.protocolId, f.round, f.reviewerId, t);
+		});
+		const again = await waitForKey(f, `review:${f.protocolId}:r1:u${f.reviewerId}.2:0`);
+		expect(again.envelope.to).toEqual([ACCOUNTS.reviewer]);
+		const backAt = Date.now();
+		await sleep(2 * INTERVAL_MS + 1_000);
+		const toLeadAfter = (await caughtFor(f)).filter((m) => m.envelope.to.includes(ACCOUNTS.lead) && Date.parse(m.receivedAt) > backAt + 1_000);
+		expect(toLeadAfter).toEqual([]);
+		// a repeated call for the reviewer already assigned is a no-op
+		await transaction((t) => notifyReviewerChanged(f.protocolId, f.round, f.reviewerId, t));
+		expect((await outboxRows(f.protocolId)).filter((r) => r.idempotency_key.endsWith(':0'))).toHaveLength(3);
+	}, 90_000);
+});
