@@ -21,7 +21,7 @@ export const load: PageServerLoad = async (event) => {
 	};
 };
 
-function form(data: FormData) {
+function form(data: FormData): Record<string, unknown> & { roles: string[] } {
 	return { ...Object.fromEntries(data), roles: data.getAll('roles').map(String) };
 }
 
