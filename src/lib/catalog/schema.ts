@@ -71,8 +71,7 @@ export function canonicalReported(fields: readonly string[]): Derived[] {
 // ---------------------------------------------------------------------------------------------
 // The test form: flat fields (plain HTML form posting), converted to TestInput.
 
-const optNumber = (msg = 'Enter a number') =>
-	z.union([z.number({ message: msg }).finite(), z.null()]).default(null);
+const optNumber = (msg = 'Enter a number') => z.number({ message: msg }).nullable().default(null);
 
 export const testFormSchema = z
 	.object({
@@ -95,7 +94,7 @@ export const testFormSchema = z
 		t_max: optNumber(),
 		percentile_min: optNumber(),
 		percentile_max: optNumber(),
-		reliability: z.union([z.number({ message: 'Enter a number between 0 and 1' }).gt(0, 'Above 0').lt(1, 'Below 1'), z.null()]).default(null),
+		reliability: z.number({ message: 'Enter a number between 0 and 1' }).gt(0, 'Above 0').lt(1, 'Below 1').nullable().default(null),
 		notes: z.string().max(2000, 'At most 2000 characters').default('')
 	})
 	.superRefine((f, ctx) => {

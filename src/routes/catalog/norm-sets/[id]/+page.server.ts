@@ -1,0 +1,71 @@
+import type { Actions, PageServerLoad } from './$types';
+import { fail } from '@sveltejs/kit';
+import { superValidate, message, setError } from 'sveltekit-superforms';
+import { zod4 } from 'sveltekit-superforms/adapters';
+import { requireRole, idParam, notFound } from '$lib/server/guard';
+import { getNormSet, listNormGroups, listTests, updateNormSet, addNormGroup, deleteNormGroup, CatalogError } from '$lib/server/catalog';
+import { normGroupSchema, normSetSchema } from '$lib/catalog/schema';
+
+export const load: PageServerLoad = async (event) => {
+	requireRole(event, 'lead', 'admin');
+	const id = idParam(event.params.id, 'This norm set');
+	const set = await getNormSet(id);
+	if (!set) notFound('This norm set');
+	const [groups, tests] = await Promise.all([listNormGroups(id), listTests()]);
+	return {
+		set,
+		groups,
+		tests: tests.map((t) => ({ code: t.code, name: t.name })),
+		test: event.url.searchParams.get('test') ?? '',
+		metaForm: await superValidate(
+			{ code: set.code, name: set.name, source: set.source, version: set.version, borrow_days: set.age_rule.borrowDays === 'actual' ? 'actual' : '30', rounding: set.age_rule.rounding },
+			zod4(normSetSchema),
+			{ id: 'meta' }
+		),
+		groupForm: await superValidate(zod4(normGroupSchema), { id: 'group' }),
+		canEdit: event.locals.user!.roles.includes('lead')
+	};
+};
+
+function refusal<T extends Record<string, unknown>>(form: import('sveltekit-superforms').SuperValidated<T>, e: unknown) {
+	if (!(e instanceof CatalogError)) throw e;
+	for (const [k, m] of Object.entries(e.fields)) if (k in form.data) setError(form, k as never, m);
+	return message(form, `Not saved: ${e.message}`, { status: e.status === 409 ? 409 : 400 });
+}
+
+export const actions: Actions = {
+	meta: async (event) => {
+		const user = requireRole(event, 'lead');
+		const form = await superValidate(event.request, zod4(normSetSchema), { id: 'meta' });
+		if (!form.valid) return fail(400, { metaForm: form });
+		try {
+			await updateNormSet(idParam(event.params.id), form.data, user.id);
+			return message(form, 'Saved.');
+		} catch (e) {
+			return refusal(form, e);
+		}
+	},
+	group: async (event) => {
+		const user = requireRole(event, 'lead');
+		const form = await superValidate(event.request, zod4(normGroupSchema), { id: 'group' });
+		if (!form.valid) return fail(400, { groupForm: form });
+		try {
+			const g = await addNormGroup(idParam(event.params.id), form.data, user.id);
+			return message(form, `Added group ${g.group_code} for ${g.test_code}.`);
+		} catch (e) {
+			return refusal(form, e);
+		}
+	},
+	delete: async (event) => {
+		const user = requireRole(event, 'lead');
+		const groupId = Number((await event.request.formData()).get('group_id'));
+		if (!Number.isInteger(groupId) || groupId <= 0) return fail(400, { deleteError: 'Unknown group.' });
+		try {
+			await deleteNormGroup(groupId, user.id);
+			return { deleted: groupId };
+		} catch (e) {
+			if (e instanceof CatalogError) return fail(e.status === 409 ? 409 : 400, { deleteError: e.message });
+			throw e;
+		}
+	}
+};
