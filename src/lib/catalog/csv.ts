@@ -306,8 +306,10 @@ export class CsvValidator<K extends CsvKind> {
 		const mean = this.num(line, v, 'mean', { required: true });
 		const sd = this.num(line, v, 'sd', { required: true });
 		if (typeof sd === 'number' && sd <= 0) this.err(line, 'sd', `sd: ${v.sd} — SD must be above 0`);
+		for (const [c, x] of [['mean', mean], ['sd', sd]] as const)
+			if (typeof x === 'number' && Math.abs(x) > 99_999_999) this.err(line, c, `${c}: ${v[c]} is too large`);
 		const n = this.num(line, v, 'n', { int: true });
-		if (typeof n === 'number' && n < 1) this.err(line, 'n', `n: ${n} — must be at least 1`);
+		if (typeof n === 'number' && (n < 1 || n > 10_000_000)) this.err(line, 'n', `n: ${n} — must be 1 to 10,000,000`);
 		const keys = { test_code: test, group_code: group, age_min_months: min as number, age_max_months: max as number, sex, edu_min: (eMin as number | null) ?? null, edu_max: (eMax as number | null) ?? null };
 		// A row whose ages and keys read well takes part in the overlap check even if its mean or SD is bad.
 		if (rangeOk) this.ranges.push({ label: `line ${line}`, ...keys });

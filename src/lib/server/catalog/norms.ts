@@ -39,7 +39,7 @@ interface SetRow {
 	name: string;
 	source: string;
 	version: string;
-	age_rule: string;
+	age_rule: string | AgeRuleJson;
 	created_at: Date;
 	groups?: number;
 	tests?: number;
@@ -52,7 +52,7 @@ function rowToSet(r: SetRow): NormSetRecord {
 		name: r.name,
 		source: r.source,
 		version: r.version,
-		age_rule: JSON.parse(r.age_rule) as AgeRuleJson,
+		age_rule: (typeof r.age_rule === 'string' ? JSON.parse(r.age_rule) : r.age_rule) as AgeRuleJson,
 		created_at: new Date(r.created_at).toISOString(),
 		groups: Number(r.groups ?? 0),
 		tests: Number(r.tests ?? 0)

@@ -28,7 +28,7 @@ interface TestRow {
 	raw_max: number;
 	raw_decimals: number;
 	reported: string;
-	bounds: string | null;
+	bounds: string | Bounds | null;
 	reliability: number | null;
 	notes: string | null;
 	created_at: Date;
@@ -46,7 +46,7 @@ export function rowToTest(r: TestRow): TestRecord {
 		direction: r.direction,
 		raw: { min: Number(r.raw_min), max: Number(r.raw_max), decimals: Number(r.raw_decimals) },
 		reported: canonicalReported(r.reported.split(',')),
-		bounds: r.bounds ? (JSON.parse(r.bounds) as Bounds) : null,
+		bounds: r.bounds ? ((typeof r.bounds === 'string' ? JSON.parse(r.bounds) : r.bounds) as Bounds) : null,
 		reliability: r.reliability === null ? null : Number(r.reliability),
 		notes: r.notes,
 		created_at: new Date(r.created_at).toISOString()
