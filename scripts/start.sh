@@ -28,7 +28,7 @@ start_redis
 start_mailfake
 log "migrating"
 MIGRATE_SOCKET="$RUN_DIR/mariadb.sock" node_modules/.bin/tsx scripts/migrate.ts || die "migration failed"
-node_modules/.bin/tsx db/seeds/run.ts demo || die "seeding failed"
+DB_POOL_MAX=1 node_modules/.bin/tsx db/seeds/run.ts demo || die "seeding failed"
 ensure_build
 start_worker
 start_app

@@ -22,6 +22,7 @@ async function main() {
 main()
 	.catch((e) => {
 		console.error(`[crosstally] seeding failed: ${e instanceof Error ? e.stack : e}`);
+		console.error('[crosstally] the database is partly seeded: stop, delete the data folder ($CROSSTALLY_DATA_DIR) and start again');
 		process.exitCode = 1;
 	})
 	.finally(() => closeDb());

@@ -120,7 +120,8 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 		if (kept === null || kept === '') throw invalid(choice === 'other' ? 'Enter the value to keep.' : 'That pass left this field empty; choose another value or enter one.', choice === 'other' ? 'value' : 'choice');
 		const tests = await protocolTests(p.id, t);
 		const test = tests.find((x) => x.code === d.test_code);
-		if (test) {
+		// The recomputed value is the engine's own (z is never clamped); anything a person chose is checked.
+		if (test && choice !== 'recomputed') {
 			const problems = checkField(test, d.field, kept);
 			if (problems.length) throw invalid(`The value to keep is not valid: ${problems[0].message}`, 'value');
 		}
