@@ -1,36 +1,28 @@
 /**
- * Agreement between the first and second pass on the same protocols, from agreement_pairs.
- * SQL groups identical (first, second) entries with a count, so a field with 30,000 pairs comes
- * back as a few hundred rows; the statistics are the pure functions of src/lib/scoring/agreement.ts
- * run on the expanded pairs (raters = first pass vs second pass).
+ * Agreement between the first and second pass on the same protocols (raters = first pass vs
+ * second pass). The per-field and per-scorer-pair tables add up the daily summary cells
+ * (agreement_daily, agreement_pair_daily) in SQL; the Bland–Altman plot reads agreement_pairs for one
+ * field, grouping identical (first, second) entries, and runs `blandAltman` on them.
  */
 import { select } from '../db';
-import {
-	blandAltman,
-	cohenKappa,
-	intraclassCorrelation,
-	interpretIcc,
-	interpretKappa,
-	percentAgreement,
-	ICC_FORMS,
-	type IccForm
-} from '../../scoring/agreement';
+import { blandAltman, cohenKappa, interpretIcc, interpretKappa, ICC_FORMS, type IccForm } from '../../scoring/agreement';
 import { AACN_2020 } from '../../scoring/labels';
 import { FIELDS, type Field } from '../../scoring/scales';
 import type { AuditFilters } from './filters';
-import { pairsWhere } from './sql';
+import { agreementDailyWhere, pairDailyWhere, pairsWhere } from './sql';
+import { addSums, blandAltmanFromSums, iccFromSums, ZERO_SUMS, type PairSums } from './sums';
 import type { Names } from './errors';
 
 /** Band ids in the scheme's order (highest first): the kappa categories. */
 export const BAND_ORDER: string[] = AACN_2020.bands.standard.map((b) => b.id);
 export const BAND_LABELS: Record<string, string> = Object.fromEntries(AACN_2020.bands.standard.map((b) => [b.id, b.label]));
 
-interface Grouped {
-	x: number | null;
-	y: number | null;
-	lx: string | null;
-	ly: string | null;
-	n: number;
+/** One summary cell: a (first label, second label) combination with its counts and sums. */
+interface Cell extends Partial<PairSums> {
+	lx: string;
+	ly: string;
+	one_sided: number;
+	exact: number;
 }
 
 export interface AgreementStats {
@@ -55,22 +47,26 @@ export interface AgreementStats {
 	loa_upper: number | null;
 }
 
-/** Statistics of one set of grouped pairs. */
-export function statsOf(groups: Grouped[], field: Field): AgreementStats {
-	const numbers: Array<[number, number]> = [];
-	const labels: Array<[string, string]> = [];
+/**
+ * Statistics of a set of summary cells: exact agreement from the counts; Cohen's kappa (unweighted
+ * and quadratic, AACN band order) by `cohenKappa` on the label pairs the cells stand for; ICC and
+ * Bland–Altman from the sums (sums.ts).
+ */
+export function statsOf(cells: Cell[], field: Field): AgreementStats {
+	let sums = { ...ZERO_SUMS };
 	let oneSided = 0;
-	for (const g of groups) {
-		const c = Number(g.n);
-		if (g.x !== null && g.y !== null) {
-			const x = Number(g.x);
-			const y = Number(g.y);
-			for (let i = 0; i < c; i++) numbers.push([x, y]);
-			if (g.lx && g.ly) for (let i = 0; i < c; i++) labels.push([g.lx, g.ly]);
-		} else if (g.x !== null || g.y !== null) oneSided += c;
+	let exact = 0;
+	const labels: Array<[string, string]> = [];
+	for (const c of cells) {
+		sums = addSums(sums, c);
+		oneSided += Number(c.one_sided ?? 0);
+		exact += Number(c.exact ?? 0);
+		const n = Number(c.pairs ?? 0);
+		if (c.lx && c.ly) for (let i = 0; i < n; i++) labels.push([c.lx, c.ly]);
 	}
+	const n = sums.pairs;
 	const out: AgreementStats = {
-		n: numbers.length,
+		n,
 		one_sided: oneSided,
 		exact_agreements: null,
 		exact_percent: null,
@@ -88,10 +84,9 @@ export function statsOf(groups: Grouped[], field: Field): AgreementStats {
 		loa_lower: null,
 		loa_upper: null
 	};
-	if (numbers.length === 0) return out;
-	const pa = percentAgreement(numbers);
-	out.exact_agreements = pa.agreements;
-	out.exact_percent = pa.percent;
+	if (n === 0) return out;
+	out.exact_agreements = exact;
+	out.exact_percent = (100 * exact) / n;
 	if (field !== 'raw' && labels.length > 0) {
 		const k = cohenKappa(labels, { categories: BAND_ORDER });
 		const kq = cohenKappa(labels, { categories: BAND_ORDER, weights: 'quadratic' });
@@ -102,12 +97,14 @@ export function statsOf(groups: Grouped[], field: Field): AgreementStats {
 		out.kappa_quadratic_label = interpretKappa(kq.kappa)?.label ?? null;
 		out.kappa_note = k.undefinedReason ? 'undefined: every pair in one category' : null;
 	}
-	if (numbers.length >= 2) {
-		const icc = intraclassCorrelation(numbers);
+	const icc = iccFromSums(sums);
+	if (icc) {
 		out.icc = icc.icc;
 		out.icc_label = interpretIcc(icc.icc['ICC(2,1)'])?.label ?? null;
 		out.icc_note = icc.undefinedReason;
-		const ba = blandAltman(numbers);
+	}
+	const ba = blandAltmanFromSums(sums);
+	if (ba) {
 		out.bias = ba.bias;
 		out.sd = ba.sd;
 		out.loa_lower = ba.lower;
@@ -116,17 +113,20 @@ export function statsOf(groups: Grouped[], field: Field): AgreementStats {
 	return out;
 }
 
+const SUM_COLUMNS = `SUM(s.pairs) AS pairs, SUM(s.one_sided) AS one_sided, SUM(s.exact) AS exact, SUM(s.sx) AS sx, SUM(s.sy) AS sy,
+	SUM(s.sxx) AS sxx, SUM(s.syy) AS syy, SUM(s.sxy) AS sxy, SUM(s.sd) AS sd, SUM(s.sdd) AS sdd`;
+
 export interface AgreementRow extends AgreementStats {
 	field: Field;
 }
 
 /** One row per field (raw, z, standard, scaled, t, percentile). */
 export async function agreementByField(f: AuditFilters): Promise<AgreementRow[]> {
-	const w = pairsWhere(f, null);
-	const rows = await select<Grouped & { field: Field }>(
-		`SELECT g.field, g.first_value AS x, g.second_value AS y, g.first_label AS lx, g.second_label AS ly, COUNT(*) AS n
-		   FROM agreement_pairs g ${w.sql}
-		  GROUP BY g.field, g.first_value, g.second_value, g.first_label, g.second_label`,
+	const w = agreementDailyWhere(f);
+	const rows = await select<Cell & { field: Field }>(
+		`SELECT s.field, s.first_label AS lx, s.second_label AS ly, ${SUM_COLUMNS}
+		   FROM agreement_daily s ${w.sql}
+		  GROUP BY s.field, s.first_label, s.second_label`,
 		w.params
 	);
 	return FIELDS.map((field) => ({ field, ...statsOf(rows.filter((r) => r.field === field), field) })).filter((r) => r.n + r.one_sided > 0);
@@ -142,29 +142,32 @@ export interface PairRow extends AgreementStats {
 
 /** One row per (first scorer, second scorer) on the chosen field. */
 export async function agreementByScorerPair(f: AuditFilters, names: Names): Promise<PairRow[]> {
-	const w = pairsWhere(f, f.field);
-	const rows = await select<Grouped & { a: number; b: number }>(
-		`SELECT g.first_scorer_id AS a, g.second_scorer_id AS b, g.first_value AS x, g.second_value AS y,
-		        g.first_label AS lx, g.second_label AS ly, COUNT(*) AS n
-		   FROM agreement_pairs g ${w.sql}
-		  GROUP BY g.first_scorer_id, g.second_scorer_id, g.first_value, g.second_value, g.first_label, g.second_label`,
+	const w = pairDailyWhere(f);
+	const rows = await select<Cell & { a: number; b: number }>(
+		`SELECT s.first_scorer_id AS a, s.second_scorer_id AS b, s.first_label AS lx, s.second_label AS ly, ${SUM_COLUMNS}
+		   FROM agreement_pair_daily s ${w.sql}
+		  GROUP BY s.first_scorer_id, s.second_scorer_id, s.first_label, s.second_label`,
 		w.params
 	);
-	const byPair = new Map<string, Array<Grouped & { a: number; b: number }>>();
+	const byPair = new Map<string, Cell[]>();
 	for (const r of rows) {
 		const k = `${r.a}|${r.b}`;
-		byPair.set(k, [...(byPair.get(k) ?? []), r]);
+		const list = byPair.get(k) ?? [];
+		list.push(r);
+		byPair.set(k, list);
 	}
 	const out: PairRow[] = [];
-	for (const [k, groups] of byPair) {
+	for (const [k, cells] of byPair) {
 		const [a, b] = k.split('|').map(Number);
+		const stats = statsOf(cells, f.field);
+		if (stats.n + stats.one_sided === 0) continue;
 		out.push({
 			first_scorer_id: a,
 			first_scorer: names.scorers.get(a) ?? `#${a}`,
 			second_scorer_id: b,
 			second_scorer: names.scorers.get(b) ?? `#${b}`,
 			field: f.field,
-			...statsOf(groups, f.field)
+			...stats
 		});
 	}
 	out.sort((p, q) => q.n - p.n || p.first_scorer.localeCompare(q.first_scorer));
@@ -186,7 +189,7 @@ export async function blandAltmanReport(f: AuditFilters): Promise<BlandAltmanRep
 	const w = pairsWhere(f, f.field);
 	const rows = await select<{ x: number; y: number; n: number }>(
 		`SELECT g.first_value AS x, g.second_value AS y, COUNT(*) AS n FROM agreement_pairs g
-		  ${w.sql ? `${w.sql} AND` : 'WHERE'} g.first_value IS NOT NULL AND g.second_value IS NOT NULL
+		  ${w.sql} AND g.first_value IS NOT NULL AND g.second_value IS NOT NULL
 		  GROUP BY g.first_value, g.second_value`,
 		w.params
 	);

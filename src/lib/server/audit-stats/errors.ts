@@ -2,18 +2,18 @@
  * Error rates per scorer: errors attributed on resolution (error_events) per 100 fields entered,
  * with Wilson 95% intervals, overall and broken down by kind, test, domain, field class and ISO week.
  *
- * Denominators:
+ * Denominators (from the daily sums in audit_daily):
  *   - overall, per kind, per week, with no test filter: the sum of passes.fields_entered of the
  *     scorer's submitted passes (the workflow's own count);
  *   - per test, per domain, per field class, and whenever a test is filtered: the fields that scorer
- *     entered on that test (audit_fields, counted from the pass's scores at submission).
+ *     entered on that test (counted from the pass's scores at submission).
  * A kind filter restricts the errors, never the fields entered (rate of that kind per 100 fields).
  */
 import { select } from '../db';
 import { errorRatePer100 } from '../../scoring/rates';
 import { KINDS } from '../../scoring/kinds';
 import type { AuditFilters } from './filters';
-import { errorWhere, fieldsWhere, passesWhere } from './sql';
+import { dailyWhere, errorWhere } from './sql';
 
 export interface RateCells {
 	errors: number;
@@ -55,31 +55,17 @@ export async function loadNames(): Promise<Names> {
 type Key = string;
 const num = (v: unknown) => Number(v ?? 0);
 
-/** Fields entered, grouped by scorer (and optionally week): passes.fields_entered, or audit_fields under a test filter. */
-async function fieldsByScorer(f: AuditFilters, byWeek: boolean): Promise<Map<Key, { fields: number; passes: number; protocols: number }>> {
-	const out = new Map<Key, { fields: number; passes: number; protocols: number }>();
-	let rows: Array<{ scorer_id: number; week: string | null; fields: number; passes: number; protocols: number }>;
-	if (f.test === null) {
-		const w = passesWhere(f);
-		const week = byWeek ? 'DATE_SUB(DATE(p.submitted_at), INTERVAL WEEKDAY(p.submitted_at) DAY)' : 'NULL';
-		rows = await select(
-			`SELECT p.scorer_id, ${week} AS week, SUM(p.fields_entered) AS fields, COUNT(*) AS passes,
-			        COUNT(DISTINCT p.protocol_id) AS protocols
-			   FROM passes p JOIN protocols pr ON pr.id = p.protocol_id
-			   ${w.sql} GROUP BY p.scorer_id, week`,
-			w.params
-		);
-	} else {
-		const w = fieldsWhere(f);
-		const week = byWeek ? 'DATE_SUB(DATE(a.entered_at), INTERVAL WEEKDAY(a.entered_at) DAY)' : 'NULL';
-		rows = await select(
-			`SELECT a.scorer_id, ${week} AS week, SUM(a.raw_fields + a.derived_fields) AS fields,
-			        COUNT(*) AS passes, COUNT(DISTINCT a.protocol_id) AS protocols
-			   FROM audit_fields a ${w.sql} GROUP BY a.scorer_id, week`,
-			w.params
-		);
-	}
-	for (const r of rows) out.set(`${r.scorer_id}|${r.week ?? ''}`, { fields: num(r.fields), passes: num(r.passes), protocols: num(r.protocols) });
+/** Fields entered, grouped by scorer (and optionally week), from audit_daily's whole-pass rows (or the test's rows under a test filter). */
+async function fieldsByScorer(f: AuditFilters, byWeek: boolean): Promise<Map<Key, { fields: number; passes: number }>> {
+	const out = new Map<Key, { fields: number; passes: number }>();
+	const w = dailyWhere(f, 'pass');
+	const week = byWeek ? 'DATE_SUB(d.day, INTERVAL WEEKDAY(d.day) DAY)' : 'NULL';
+	const rows = await select<{ scorer_id: number; week: string | null; fields: number; passes: number }>(
+		`SELECT d.scorer_id, ${week} AS week, SUM(d.fields_entered) AS fields, SUM(d.passes) AS passes
+		   FROM audit_daily d ${w.sql} GROUP BY d.scorer_id, week`,
+		w.params
+	);
+	for (const r of rows) out.set(`${r.scorer_id}|${r.week ?? ''}`, { fields: num(r.fields), passes: num(r.passes) });
 	return out;
 }
 
@@ -88,7 +74,7 @@ async function fieldsByScorer(f: AuditFilters, byWeek: boolean): Promise<Map<Key
 export interface ScorerRow extends RateCells {
 	scorer_id: number | null;
 	scorer: string;
-	protocols: number;
+	/** Protocol passes entered (one per protocol and round the scorer scored). */
 	passes: number;
 	/** Errors per protocol pass (errors ÷ passes entered). */
 	errors_per_protocol: number | null;
@@ -104,23 +90,21 @@ export async function scorerRates(f: AuditFilters, names: Names): Promise<Scorer
 	const errors = new Map(errs.map((r) => [Number(r.scorer_id), num(r.errors)]));
 	const ids = new Set<number>([...errors.keys(), ...[...fields.keys()].map((k) => Number(k.split('|')[0]))]);
 	const rows: ScorerRow[] = [...ids].map((id) => {
-		const d = fields.get(`${id}|`) ?? { fields: 0, passes: 0, protocols: 0 };
+		const d = fields.get(`${id}|`) ?? { fields: 0, passes: 0 };
 		const e = errors.get(id) ?? 0;
 		return {
 			scorer_id: id,
 			scorer: names.scorers.get(id) ?? `#${id}`,
-			protocols: d.protocols,
 			passes: d.passes,
 			errors_per_protocol: d.passes > 0 ? e / d.passes : null,
 			...rateCells(e, d.fields)
 		};
 	});
 	rows.sort((a, b) => (b.rate ?? -1) - (a.rate ?? -1) || a.scorer.localeCompare(b.scorer));
-	const tot = rows.reduce((s, r) => ({ e: s.e + r.errors, n: s.n + r.fields, p: s.p + r.passes, pr: s.pr + r.protocols }), { e: 0, n: 0, p: 0, pr: 0 });
+	const tot = rows.reduce((s, r) => ({ e: s.e + r.errors, n: s.n + r.fields, p: s.p + r.passes }), { e: 0, n: 0, p: 0 });
 	rows.push({
 		scorer_id: null,
 		scorer: 'All scorers',
-		protocols: tot.pr, // protocol passes per scorer summed: a protocol counts once per scorer on it
 		passes: tot.p,
 		errors_per_protocol: tot.p > 0 ? tot.e / tot.p : null,
 		...rateCells(tot.e, tot.n)
@@ -169,10 +153,10 @@ export interface GroupRow extends RateCells {
 	group_name: string;
 }
 
-/** Per scorer × test, × domain or × field class (raw / derived), denominators from audit_fields. */
+/** Per scorer × test, × domain or × field class (raw / derived), denominators from audit_daily's per-test rows. */
 export async function groupRates(f: AuditFilters, names: Names, by: 'test' | 'domain' | 'class'): Promise<GroupRow[]> {
 	const we = errorWhere(f);
-	const wf = fieldsWhere(f);
+	const wf = dailyWhere(f, 'tests');
 	const errExpr = by === 'test' ? 'e.test_code' : by === 'domain' ? 'e.domain' : `IF(e.field = 'raw', 'raw', 'derived')`;
 	const errs = await select<{ scorer_id: number; g: string; errors: number }>(
 		`SELECT e.scorer_id, ${errExpr} AS g, COUNT(*) AS errors FROM error_events e ${we.sql} GROUP BY e.scorer_id, g`,
@@ -181,7 +165,7 @@ export async function groupRates(f: AuditFilters, names: Names, by: 'test' | 'do
 	let denoms: Array<{ scorer_id: number; g: string; fields: number }>;
 	if (by === 'class') {
 		const rows = await select<{ scorer_id: number; raw: number; derived: number }>(
-			`SELECT a.scorer_id, SUM(a.raw_fields) AS raw, SUM(a.derived_fields) AS derived FROM audit_fields a ${wf.sql} GROUP BY a.scorer_id`,
+			`SELECT d.scorer_id, SUM(d.raw_fields) AS raw, SUM(d.derived_fields) AS derived FROM audit_daily d ${wf.sql} GROUP BY d.scorer_id`,
 			wf.params
 		);
 		denoms = rows.flatMap((r) => [
@@ -189,9 +173,9 @@ export async function groupRates(f: AuditFilters, names: Names, by: 'test' | 'do
 			{ scorer_id: r.scorer_id, g: 'derived', fields: num(r.derived) }
 		]);
 	} else {
-		const col = by === 'test' ? 'a.test_code' : 'a.domain';
+		const col = by === 'test' ? 'd.test_code' : 'd.domain';
 		denoms = await select(
-			`SELECT a.scorer_id, ${col} AS g, SUM(a.raw_fields + a.derived_fields) AS fields FROM audit_fields a ${wf.sql} GROUP BY a.scorer_id, g`,
+			`SELECT d.scorer_id, ${col} AS g, SUM(d.fields_entered) AS fields FROM audit_daily d ${wf.sql} GROUP BY d.scorer_id, g`,
 			wf.params
 		);
 	}

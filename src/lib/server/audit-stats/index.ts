@@ -85,8 +85,7 @@ const REPORTS = {
 			title: 'Error rate by scorer',
 			columns: [
 				{ key: 'scorer', label: 'Scorer' },
-				{ key: 'protocols', label: 'Protocols', numeric: true, decimals: 0 },
-				{ key: 'passes', label: 'Passes', numeric: true, decimals: 0 },
+				{ key: 'passes', label: 'Protocols scored', numeric: true, decimals: 0 },
 				...RATE_COLUMNS,
 				{ key: 'errors_per_protocol', label: 'Errors per protocol', numeric: true, decimals: 2 }
 			],

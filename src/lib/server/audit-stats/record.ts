@@ -3,12 +3,14 @@
  * transactions, so the summaries commit (or roll back) with the change that caused them:
  *
  *   recordSubmission(protocolId, round, t)  once both passes of the round are submitted
- *                                           → audit_fields, agreement_pairs
+ *                                           → audit_fields, agreement_pairs (row level) and the
+ *                                             daily sums audit_daily, agreement_daily,
+ *                                             agreement_pair_daily
  *   recordResolution(discrepancyId, t)      after a discrepancy row was resolved (or re-resolved)
  *                                           → error_events
  *
- * Both are idempotent: they delete what they wrote before for the same round / discrepancy and
- * write it again from the current rows.
+ * Both are idempotent: they delete what they wrote before for the same round / discrepancy (and
+ * subtract it from the daily sums) and write it again from the current rows.
  */
 import type { Transaction } from 'sequelize';
 import { exec, select, selectOne, jsonValue } from '../db';
@@ -19,6 +21,7 @@ type PassScores = Record<string, Partial<Record<Field, string | number | null>>>
 
 interface PassRow {
 	id: number;
+	fields_entered: number;
 	which: 'first' | 'second';
 	scorer_id: number;
 	status: string;
@@ -73,7 +76,7 @@ export async function recordSubmission(protocolId: number, round: number, t: Tra
 	);
 	if (!protocol) throw new Error(`recordSubmission: protocol ${protocolId} does not exist`);
 	const passes = await select<PassRow>(
-		`SELECT id, which, scorer_id, status, scores, submitted_at FROM passes
+		`SELECT id, which, scorer_id, status, scores, fields_entered, submitted_at FROM passes
 		  WHERE protocol_id = :protocolId AND round = :round`,
 		{ protocolId, round },
 		t
@@ -90,18 +93,22 @@ export async function recordSubmission(protocolId: number, round: number, t: Tra
 	const enteredAt = (p: PassRow) => (p.submitted_at ? new Date(p.submitted_at) : new Date());
 	const roundAt = new Date(Math.max(enteredAt(first).getTime(), enteredAt(second).getTime()));
 
-	await exec('DELETE FROM audit_fields WHERE protocol_id = :protocolId AND round = :round', { protocolId, round }, t);
-	await exec('DELETE FROM agreement_pairs WHERE protocol_id = :protocolId AND round = :round', { protocolId, round }, t);
+	const where = 'protocol_id = :protocolId AND round = :round';
+	await applyToDaily({ protocolId, round }, -1, t);
+	await exec(`DELETE FROM audit_fields WHERE ${where}`, { protocolId, round }, t);
+	await exec(`DELETE FROM agreement_pairs WHERE ${where}`, { protocolId, round }, t);
 
 	const fieldRows: unknown[][] = [];
 	for (const pass of [first, second]) {
 		const scores = pass === first ? s1 : s2;
+		// the whole pass: the workflow's own count is the denominator of the overall rates
+		fieldRows.push([pass.id, '', protocolId, round, pass.which, pass.scorer_id, protocol.battery_id, '', Number(pass.fields_entered) || 0, 0, 0, enteredAt(pass)]);
 		for (const code of Object.keys(scores)) {
 			const values = scores[code] ?? {};
 			const raw = isEntered(values.raw) ? 1 : 0;
 			const derived = FIELDS.filter((f) => f !== 'raw' && isEntered(values[f])).length;
 			if (raw + derived === 0) continue;
-			fieldRows.push([pass.id, code, protocolId, round, pass.which, pass.scorer_id, protocol.battery_id, domains.get(code) ?? 'unknown', raw, derived, enteredAt(pass)]);
+			fieldRows.push([pass.id, code, protocolId, round, pass.which, pass.scorer_id, protocol.battery_id, domains.get(code) ?? 'unknown', raw + derived, raw, derived, enteredAt(pass)]);
 		}
 	}
 	const pairRows: unknown[][] = [];
@@ -131,16 +138,84 @@ export async function recordSubmission(protocolId: number, round: number, t: Tra
 	}
 	await insertMany(
 		'audit_fields',
-		['pass_id', 'test_code', 'protocol_id', 'round', 'which', 'scorer_id', 'battery_id', 'domain', 'raw_fields', 'derived_fields', 'entered_at'],
+		AUDIT_FIELDS_COLUMNS,
 		fieldRows,
 		t
 	);
 	await insertMany(
 		'agreement_pairs',
-		['protocol_id', 'round', 'battery_id', 'test_code', 'domain', 'field', 'first_scorer_id', 'second_scorer_id', 'first_value', 'second_value', 'first_label', 'second_label', 'entered_at'],
+		AGREEMENT_PAIRS_COLUMNS,
 		pairRows,
 		t
 	);
+	await applyToDaily({ protocolId, round }, 1, t);
+}
+
+export const AUDIT_FIELDS_COLUMNS = ['pass_id', 'test_code', 'protocol_id', 'round', 'which', 'scorer_id', 'battery_id', 'domain', 'fields_entered', 'raw_fields', 'derived_fields', 'entered_at'];
+export const AGREEMENT_PAIRS_COLUMNS = ['protocol_id', 'round', 'battery_id', 'test_code', 'domain', 'field', 'first_scorer_id', 'second_scorer_id', 'first_value', 'second_value', 'first_label', 'second_label', 'entered_at'];
+
+const BOTH = '(g.first_value IS NOT NULL AND g.second_value IS NOT NULL)';
+const MEASURES: Array<[string, string]> = [
+	['pairs', `SUM(${BOTH})`],
+	['one_sided', 'SUM((g.first_value IS NULL) <> (g.second_value IS NULL))'],
+	['exact', `SUM(${BOTH} AND g.first_value = g.second_value)`],
+	['sx', `SUM(IF(${BOTH}, g.first_value, 0))`],
+	['sy', `SUM(IF(${BOTH}, g.second_value, 0))`],
+	['sxx', `SUM(IF(${BOTH}, g.first_value * g.first_value, 0))`],
+	['syy', `SUM(IF(${BOTH}, g.second_value * g.second_value, 0))`],
+	['sxy', `SUM(IF(${BOTH}, g.first_value * g.second_value, 0))`],
+	['sd', `SUM(IF(${BOTH}, g.first_value - g.second_value, 0))`],
+	['sdd', `SUM(IF(${BOTH}, (g.first_value - g.second_value) * (g.first_value - g.second_value), 0))`]
+];
+
+/**
+ * Add (sign 1) or subtract (sign −1) the row-level rows of one protocol round (or of everything)
+ * in audit_fields / agreement_pairs to the daily sums.
+ */
+export async function applyToDaily(scope: { protocolId: number; round: number } | 'all', sign: 1 | -1, t?: Transaction | null): Promise<void> {
+	const p = scope === 'all' ? { sign } : { ...scope, sign };
+	const whereOf = (alias: string) => (scope === 'all' ? '1 = 1' : `${alias}.protocol_id = :protocolId AND ${alias}.round = :round`);
+	await exec(
+		`INSERT INTO audit_daily (day, scorer_id, battery_id, test_code, domain, passes, fields_entered, raw_fields, derived_fields)
+		 SELECT DATE(a.entered_at), a.scorer_id, a.battery_id, a.test_code, MAX(a.domain), :sign * COUNT(*), :sign * SUM(a.fields_entered),
+		        :sign * SUM(a.raw_fields), :sign * SUM(a.derived_fields)
+		   FROM audit_fields a WHERE ${whereOf('a')}
+		  GROUP BY DATE(a.entered_at), a.scorer_id, a.battery_id, a.test_code
+		 ON DUPLICATE KEY UPDATE passes = passes + VALUES(passes), fields_entered = fields_entered + VALUES(fields_entered),
+		        raw_fields = raw_fields + VALUES(raw_fields), derived_fields = derived_fields + VALUES(derived_fields)`,
+		p,
+		t
+	);
+	const gWhere = whereOf('g');
+	const cols = MEASURES.map(([c]) => c).join(', ');
+	const sums = MEASURES.map(([, e]) => `:sign * ${e}`).join(', ');
+	const update = MEASURES.map(([c]) => `${c} = ${c} + VALUES(${c})`).join(', ');
+	for (const scorer of ['0', 'g.first_scorer_id', 'g.second_scorer_id']) {
+		await exec(
+			`INSERT INTO agreement_daily (scorer_id, day, battery_id, test_code, field, first_label, second_label, ${cols})
+			 SELECT ${scorer}, DATE(g.entered_at), g.battery_id, g.test_code, g.field, COALESCE(g.first_label, ''), COALESCE(g.second_label, ''), ${sums}
+			   FROM agreement_pairs g WHERE ${gWhere}
+			  GROUP BY 1, 2, 3, 4, 5, 6, 7
+			 ON DUPLICATE KEY UPDATE ${update}`,
+			p,
+			t
+		);
+	}
+	await exec(
+		`INSERT INTO agreement_pair_daily (field, day, first_scorer_id, second_scorer_id, battery_id, test_code, first_label, second_label, ${cols})
+		 SELECT g.field, DATE(g.entered_at), g.first_scorer_id, g.second_scorer_id, g.battery_id, g.test_code, COALESCE(g.first_label, ''), COALESCE(g.second_label, ''), ${sums}
+		   FROM agreement_pairs g WHERE ${gWhere}
+		  GROUP BY 1, 2, 3, 4, 5, 6, 7, 8
+		 ON DUPLICATE KEY UPDATE ${update}`,
+		p,
+		t
+	);
+}
+
+/** Rebuild the daily sums from the row-level tables (after a bulk load, or to repair). */
+export async function rebuildDailySums(t?: Transaction | null): Promise<void> {
+	for (const table of ['audit_daily', 'agreement_daily', 'agreement_pair_daily']) await exec(`DELETE FROM ${table}`, {}, t);
+	await applyToDaily('all', 1, t);
 }
 
 /** Multi-row INSERT with positional replacements, in chunks. */

@@ -34,41 +34,64 @@ export function errorWhere(f: AuditFilters, alias = 'e'): Where {
 	);
 }
 
-/** audit_fields a (per pass × test denominators): kind does not restrict what was entered. */
-export function fieldsWhere(f: AuditFilters, alias = 'a'): Where {
+/**
+ * audit_daily d (denominators). `passLevel`: the whole-pass rows (test_code '', passes.fields_entered)
+ * unless a test is filtered, then that test's rows; otherwise the per-test rows. Kind never
+ * restricts what was entered.
+ */
+export function dailyWhere(f: AuditFilters, level: 'pass' | 'tests', alias = 'd'): Where {
 	const a = alias;
 	return build(
 		[
-			[!!f.from, `${a}.entered_at >= :from`],
-			[!!f.to, `${a}.entered_at < :toNext`],
+			[level === 'pass' && f.test === null, `${a}.test_code = ''`],
+			[level === 'tests' && f.test === null, `${a}.test_code <> ''`],
+			[f.test !== null, `${a}.test_code = :test`],
+			[!!f.from, `${a}.day >= :from`],
+			[!!f.to, `${a}.day <= :to`],
 			[f.scorer !== null, `${a}.scorer_id = :scorer`],
-			[f.battery !== null, `${a}.battery_id = :battery`],
-			[f.test !== null, `${a}.test_code = :test`]
+			[f.battery !== null, `${a}.battery_id = :battery`]
 		],
-		common(f)
+		{ ...common(f), to: f.to }
 	);
 }
 
-/** passes p JOIN protocols pr (per pass denominators, passes.fields_entered). No test filter here. */
-export function passesWhere(f: AuditFilters): Where {
-	return build(
-		[
-			[true, `p.status = 'submitted'`],
-			[!!f.from, `p.submitted_at >= :from`],
-			[!!f.to, `p.submitted_at < :toNext`],
-			[f.scorer !== null, `p.scorer_id = :scorer`],
-			[f.battery !== null, `pr.battery_id = :battery`]
-		],
-		common(f)
-	);
-}
-
-/** agreement_pairs g: the scorer filter matches either pass; kind does not apply. */
-export function pairsWhere(f: AuditFilters, field: string | null, alias = 'g'): Where {
+/** agreement_daily s: scorer_id 0 holds every pair once, scorer_id s the pairs s entered a pass of. */
+export function agreementDailyWhere(f: AuditFilters, alias = 's'): Where {
 	const a = alias;
 	return build(
 		[
-			[field !== null, `${a}.field = :field`],
+			[true, `${a}.scorer_id = :scorerKey`],
+			[f.test !== null, `${a}.test_code = :test`],
+			[!!f.from, `${a}.day >= :from`],
+			[!!f.to, `${a}.day <= :to`],
+			[f.battery !== null, `${a}.battery_id = :battery`]
+		],
+		{ ...common(f), to: f.to, scorerKey: f.scorer ?? 0 }
+	);
+}
+
+/** agreement_pair_daily s for one field; the scorer filter matches either pass. */
+export function pairDailyWhere(f: AuditFilters, alias = 's'): Where {
+	const a = alias;
+	return build(
+		[
+			[true, `${a}.field = :field`],
+			[f.test !== null, `${a}.test_code = :test`],
+			[!!f.from, `${a}.day >= :from`],
+			[!!f.to, `${a}.day <= :to`],
+			[f.battery !== null, `${a}.battery_id = :battery`],
+			[f.scorer !== null, `(${a}.first_scorer_id = :scorer OR ${a}.second_scorer_id = :scorer)`]
+		],
+		{ ...common(f), to: f.to, field: f.field }
+	);
+}
+
+/** agreement_pairs g (row level, Bland–Altman points) for one field; scorer matches either pass. */
+export function pairsWhere(f: AuditFilters, field: string, alias = 'g'): Where {
+	const a = alias;
+	return build(
+		[
+			[true, `${a}.field = :field`],
 			[!!f.from, `${a}.entered_at >= :from`],
 			[!!f.to, `${a}.entered_at < :toNext`],
 			[f.battery !== null, `${a}.battery_id = :battery`],
