@@ -8,7 +8,8 @@ import { Queue } from 'bullmq';
 import { selectOne } from '../../src/lib/server/db';
 import { bullConnection } from '../../src/lib/server/redis';
 import { MAIL_QUEUE } from '../../src/lib/server/mail/queue';
-import { listProtocolMail } from '../../src/lib/server/mail/review';
+import { listProtocolMail, recoverLostReviewMail } from '../../src/lib/server/mail/review';
+import { config } from '../../src/lib/server/config';
 import { ACCOUNTS, waitFor } from '../helpers/http';
 import {
 	caughtFor,
@@ -23,6 +24,7 @@ import {
 } from '../helpers/review-fixtures';
 import { killWorker, restoreServices, startRedis, startWorker, stopRedis, stopWorker, workerPid } from '../helpers/services';
 
+const INTERVAL_MS = config.reminderIntervalMinutes * 60_000;
 const sleep = (ms: number) => new Promise((r) => setTimeout(r, ms));
 const firstKey = (protocolId: number, reviewerId: number) => `review:${protocolId}:r1:u${reviewerId}:0`;
 const byKey = (msgs: FakeMessage[], key: string) => msgs.filter((m) => keyOf(m) === key);
@@ -106,5 +108,23 @@ describe('review notifications under faults', () => {
 		expect(byKey(await caughtFor(f), key)).toHaveLength(1);
 		const log = await mailLogRows(f.protocolId);
 		expect(log.filter((r) => r.idempotency_key === key).map((r) => r.status)).toEqual(['sent']);
+	}, 60_000);
+
+	it('a reminder whose delayed job was lost with a Redis restart is handed back to the queue and sent once', async () => {
+		const f = await protocolReachesReview();
+		const key = firstKey(f.protocolId, f.reviewerId);
+		const k1 = key.replace(/:0$/, ':1');
+		await waitFor(async () => byKey(await caughtFor(f), key)[0], 20_000);
+		// reminder 1 is a delayed job in Redis now
+		await waitFor(async () => (await outboxRows(f.protocolId)).find((r) => r.idempotency_key === k1 && r.dispatched_at !== null), 10_000, 100);
+		await stopRedis(); // Redis keeps nothing across a restart (--save '', no AOF): the delayed job is gone
+		await startRedis();
+		await sleep(INTERVAL_MS + 2_000);
+		expect(byKey(await caughtFor(f), k1), 'lost with the restart').toEqual([]);
+		// the worker runs this every 30 s for rows a minute overdue; here without the grace period
+		expect(await recoverLostReviewMail(0)).toBeGreaterThanOrEqual(1);
+		await waitFor(async () => byKey(await caughtFor(f), k1)[0], 20_000);
+		await sleep(1_500);
+		expect(byKey(await caughtFor(f), k1)).toHaveLength(1);
 	}, 60_000);
 });
