@@ -1,9 +1,11 @@
 /** Turning service errors into responses: JSON for API routes, error pages or form failures for pages. */
 import { error, fail, json } from '@sveltejs/kit';
 import { WorkflowError } from './protocols/errors';
+import { isDbUnavailable } from './db';
 
 export function apiError(e: unknown): Response {
 	if (e instanceof WorkflowError) return json({ message: e.message, code: e.code, field: e.field ?? null }, { status: e.status });
+	if (isDbUnavailable(e)) return json({ message: 'The database cannot be reached right now. Nothing was saved; try again in a minute.', code: 'unavailable' }, { status: 503 });
 	throw e;
 }
 

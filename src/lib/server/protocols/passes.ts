@@ -8,7 +8,7 @@ import { selectOne, exec, transaction, jsonValue, type Tx } from '../db';
 import { audit } from '../audit';
 import { protocolFor, type Actor, type ProtocolRow } from './service';
 import { protocolTests, normGroups, normDef, engineTest, type CatalogTest } from './catalog-read';
-import { reconcile, type FieldValues, type ReconcileResult } from '../../scoring/reconcile';
+import { reconcile, ReconcileInputError, type FieldValues, type ReconcileResult } from '../../scoring/reconcile';
 import type { Field } from '../../scoring/scales';
 import { conflict, invalid, notFound, WorkflowError } from './errors';
 import { notifyReviewStarted } from '../mail/review';
@@ -199,7 +199,13 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 		const first = await passRow(p, 'first', t, true);
 		if (first.status !== 'submitted') throw conflict('The first pass has not been submitted yet.');
 		const { input } = await engineInput(p, { first: jsonValue<Scores>(first.scores) ?? {}, second: jsonValue<Scores>(pass.scores) ?? {} }, t);
-		const result = reconcile(input);
+		let result: ReconcileResult;
+		try {
+			result = reconcile(input);
+		} catch (e) {
+			if (e instanceof ReconcileInputError) throw new WorkflowError(422, `The protocol cannot be reconciled: ${e.message}. Nothing was changed; ask a lead to check the catalog.`, undefined, 'catalog');
+			throw e;
+		}
 		await storeDiscrepancies(p, result, t);
 		await exec(`UPDATE protocols SET status = 'in_review', status_changed_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1 WHERE id = :id`, { id: p.id }, t);
 		await audit(

@@ -1,5 +1,7 @@
 import type { RequestHandler } from './$types';
-import { json } from '@sveltejs/kit';
+import { json, isHttpError } from '@sveltejs/kit';
+import { WorkflowError } from '$lib/server/protocols/errors';
+import { isDbUnavailable } from '$lib/server/db';
 import { requireRole, idParam } from '$lib/server/guard';
 import { myPass, saveDraft, submitPass } from '$lib/server/protocols/passes';
 import { apiError, readJson } from '$lib/server/http';
@@ -31,6 +33,12 @@ export const POST: RequestHandler = async (event) => {
 	try {
 		return json(await submitPass(idParam(event.params.id, 'This protocol'), user, await readJson(event.request)));
 	} catch (e) {
-		return apiError(e);
+		if (e instanceof WorkflowError || isHttpError(e) || isDbUnavailable(e)) return apiError(e);
+		// The transaction rolled back: say so plainly (the detail is logged, never sent).
+		console.error(`[submit] protocol ${event.params.id}:`, e instanceof Error ? e.stack : e);
+		return json(
+			{ message: 'Submitting failed and nothing was changed: your pass is still a saved draft. The error is logged; try again, or tell your lead if it keeps happening.', code: 'submit_failed' },
+			{ status: 500 }
+		);
 	}
 };
