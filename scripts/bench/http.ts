@@ -1,0 +1,171 @@
+/**
+ * `npm run bench:http` — the hot API routes on loopback with autocannon, next to the trivial
+ * /health route of the same process (the floor), all with the same signed-in cookie and the same
+ * number of connections:
+ *   - GET  /api/v1/worklist as a scorer (200 drafts waiting) and as the reviewer (protocols in review);
+ *   - PATCH /api/v1/discrepancies/:id: every request resolves a different open discrepancy;
+ *   - POST /api/v1/protocols/:id/pass: every request is a different protocol's second submit
+ *     (reconciliation, discrepancies, audit summaries and the outbox e-mail in one transaction).
+ * p50/p95/p99 come from every response time (not autocannon's buckets). Goals: worklist and
+ * resolution p95 ≤ 3 × health p95; submit p95 ≤ 10 × health p95.
+ *
+ * Needs the app running on the bench services (npm run bench does all of it). Fixtures are made
+ * through the services in this process before timing. Options: --connections N (10),
+ * --duration S (8, for GET routes), --submits N (300), --resolutions N (1200), --out PATH.
+ */
+import { performance } from 'node:perf_hooks';
+import { arg, baseUrl, emit, loadBenchEnv, machine, pct, r2 } from './lib';
+
+loadBenchEnv('http');
+const { default: autocannon } = await import('autocannon');
+const { Client } = await import('../../tests/helpers/http');
+const { closeDb } = await import('../../src/lib/server/db');
+const F = await import('./fixtures');
+
+const BASE = baseUrl();
+const CONNECTIONS = Number(arg('connections', '10'));
+const DURATION = Number(arg('duration', '8'));
+const SUBMITS = Number(arg('submits', '300'));
+const RESOLUTIONS = Number(arg('resolutions', '1200'));
+const SLIPS = 4;
+const log = (s: string) => console.error(`[bench:http] ${s}`);
+
+interface Figures {
+	route: string;
+	requests: number;
+	rps: number;
+	p50: number;
+	p95: number;
+	p99: number;
+	non2xx: number;
+	errors: number;
+	bytes_per_response: number;
+}
+
+async function signedIn(email: string) {
+	const c = new Client(BASE);
+	if (!(await c.signIn(email, F.PASSWORD))) throw new Error(`could not sign in as ${email} at ${BASE}`);
+	return [...c.cookies].map(([k, v]) => `${k}=${v}`).join('; ');
+}
+
+function cannon(route: string, opts: { path: string; cookie: string; method?: string; bodies?: Array<{ path: string; body: string }>; amount?: number; duration?: number }): Promise<Figures> {
+	return new Promise((resolve, reject) => {
+		const times: number[] = [];
+		let next = 0;
+		let bytes = 0;
+		const headers = { cookie: opts.cookie, origin: new URL(BASE).origin, 'content-type': 'application/json', 'accept-encoding': 'gzip' };
+		const t0 = performance.now();
+		const inst = autocannon(
+			{
+				url: BASE + opts.path,
+				connections: CONNECTIONS,
+				pipelining: 1,
+				headers,
+				...(opts.amount ? { amount: opts.amount } : { duration: opts.duration ?? DURATION }),
+				requests: [
+					{
+						method: (opts.method ?? 'GET') as 'GET',
+						setupRequest: (req: Record<string, unknown>) => {
+							if (!opts.bodies) return req;
+							const b = opts.bodies[next++ % opts.bodies.length];
+							return { ...req, path: b.path, body: b.body };
+						}
+					}
+				]
+			},
+			(err: Error | null, res: { non2xx: number; errors: number; timeouts: number; requests: { total: number } }) => {
+				if (err) return reject(err);
+				const seconds = (performance.now() - t0) / 1000;
+				resolve({
+					route,
+					requests: times.length,
+					rps: Math.round(times.length / seconds),
+					p50: r2(pct(times, 50)),
+					p95: r2(pct(times, 95)),
+					p99: r2(pct(times, 99)),
+					non2xx: res.non2xx,
+					errors: res.errors + res.timeouts,
+					bytes_per_response: Math.round(bytes / Math.max(1, times.length))
+				});
+			}
+		);
+		inst.on('response', (_c: unknown, _status: number, resBytes: number, ms: number) => {
+			times.push(ms);
+			bytes += resBytes;
+		});
+	});
+}
+
+async function main() {
+	const env = machine();
+	log(`fixtures: ${SUBMITS} protocols awaiting their second submit, ${Math.ceil(RESOLUTIONS / SLIPS)} in review with ${SLIPS} open discrepancies each`);
+	const t = performance.now();
+	const ready = await F.makeProtocols({ n: SUBMITS, second: F.EMAILS.second, reconcile: false, prefix: 'BH-S' });
+	const reviewed = await F.makeProtocols({ n: Math.ceil(RESOLUTIONS / SLIPS), second: F.EMAILS.second2, reconcile: true, slips: SLIPS, prefix: 'BH-R' });
+	const open = await F.openDiscrepancies(reviewed.map((p) => p.id));
+	log(`fixtures made in ${((performance.now() - t) / 1000).toFixed(1)} s (${open.length} open discrepancies)`);
+	if (open.length < RESOLUTIONS) log(`only ${open.length} open discrepancies: the resolution run is shorter`);
+
+	const scorer = await signedIn(F.EMAILS.second);
+	const reviewer = await signedIn(F.EMAILS.reviewer);
+
+	// warm-up: JIT, connection pool, caches
+	await cannon('warm-up', { path: '/health', cookie: scorer, duration: 2 });
+	await cannon('warm-up', { path: '/api/v1/worklist', cookie: scorer, duration: 2 });
+
+	const results: Figures[] = [];
+	const run = async (f: Promise<Figures>) => {
+		const r = await f;
+		results.push(r);
+		log(`${r.route.padEnd(28)} ${String(r.requests).padStart(6)} req  ${String(r.rps).padStart(5)} req/s  p50 ${r.p50} ms  p95 ${r.p95} ms  p99 ${r.p99} ms${r.non2xx ? `  NON-2XX ${r.non2xx}` : ''}`);
+		return r;
+	};
+	const health = await run(cannon('GET /health (floor)', { path: '/health', cookie: scorer }));
+	await run(cannon('GET /health (anonymous)', { path: '/health', cookie: '' }));
+	const wlScorer = await run(cannon('GET /api/v1/worklist scorer', { path: '/api/v1/worklist', cookie: scorer }));
+	const wlReviewer = await run(cannon('GET /api/v1/worklist reviewer', { path: '/api/v1/worklist', cookie: reviewer }));
+	const resolve = await run(
+		cannon('PATCH discrepancy', {
+			path: '/api/v1/discrepancies/0',
+			cookie: reviewer,
+			method: 'PATCH',
+			amount: Math.min(RESOLUTIONS, open.length),
+			bodies: open.map((d) => ({ path: `/api/v1/discrepancies/${d.id}`, body: JSON.stringify(d.body) }))
+		})
+	);
+	const submit = await run(
+		cannon('POST second submit', {
+			path: '/api/v1/protocols/0/pass',
+			cookie: scorer,
+			method: 'POST',
+			amount: ready.length,
+			bodies: ready.map((p) => ({ path: `/api/v1/protocols/${p.id}/pass`, body: JSON.stringify({ draftVersion: p.secondDraftVersion }) }))
+		})
+	);
+	// the floor again, after the writes: the ratio uses the mean of both health runs' p95
+	const health2 = await run(cannon('GET /health (floor, after)', { path: '/health', cookie: scorer }));
+	const floorP95 = (health.p95 + health2.p95) / 2;
+
+	const goals = [
+		{ route: wlScorer.route, p95: wlScorer.p95, goal: 3 },
+		{ route: wlReviewer.route, p95: wlReviewer.p95, goal: 3 },
+		{ route: resolve.route, p95: resolve.p95, goal: 3 },
+		{ route: submit.route, p95: submit.p95, goal: 10 }
+	].map((g) => ({ ...g, ratio: r2(g.p95 / floorP95), met: g.p95 / floorP95 <= g.goal }));
+	console.log(`\nHTTP on loopback, ${CONNECTIONS} connections, ${env.cores} cores, ${env.date.slice(0, 10)}`);
+	console.log(`${'route'.padEnd(30)}${'req'.padStart(7)}${'req/s'.padStart(8)}${'p50'.padStart(9)}${'p95'.padStart(9)}${'p99'.padStart(9)}  ratio p95/health`);
+	for (const r of results) {
+		const g = goals.find((x) => x.route === r.route);
+		console.log(`${r.route.padEnd(30)}${String(r.requests).padStart(7)}${String(r.rps).padStart(8)}${r.p50.toFixed(1).padStart(9)}${r.p95.toFixed(1).padStart(9)}${r.p99.toFixed(1).padStart(9)}  ${g ? `${g.ratio} (goal ≤ ${g.goal}: ${g.met ? 'met' : 'NOT met'})` : ''}`);
+	}
+	const bad = results.filter((r) => r.non2xx || r.errors);
+	if (bad.length) console.log(`\nWARNING: non-2xx or errors in ${bad.map((b) => b.route).join(', ')}`);
+	emit('http', { ...env, connections: CONNECTIONS, floor_p95_ms: r2(floorP95), results, goals, ok: goals.every((g) => g.met) && bad.length === 0 });
+}
+
+main()
+	.catch((e) => {
+		console.error(`[bench:http] ${e instanceof Error ? e.stack : e}`);
+		process.exitCode = 1;
+	})
+	.finally(() => closeDb());
