@@ -110,6 +110,7 @@ function slip(kind: Slip, field: Field, correct: string, ctx: { z: number; zOthe
 		case 'raw_as_derived':
 			return derived ? ctx.raw : null;
 		case 'decimal_shift': {
+			if (field !== 'raw' && field !== 'z') return null; // a moved point is a raw-score or z slip
 			const n = Number(correct);
 			return n ? String(roundTo(n * 10, 4)) : null;
 		}
