@@ -16,7 +16,8 @@ export const ACCOUNTS = {
 
 export class Client {
 	cookies = new Map<string, string>();
-	constructor(public base = BASE_URL) {}
+	/** origin: the Origin header to send (defaults to the base URL's origin; differs behind a proxy). */
+	constructor(public base = BASE_URL, public origin = new URL(base).origin) {}
 
 	private cookieHeader() {
 		return [...this.cookies].map(([k, v]) => `${k}=${v}`).join('; ');
@@ -24,7 +25,7 @@ export class Client {
 
 	async request(path: string, init: RequestInit & { json?: unknown; form?: Record<string, string | string[]> } = {}): Promise<Response> {
 		const headers = new Headers(init.headers);
-		headers.set('origin', new URL(this.base).origin);
+		headers.set('origin', this.origin);
 		if (this.cookies.size) headers.set('cookie', this.cookieHeader());
 		let body = init.body;
 		if (init.json !== undefined) {
@@ -37,7 +38,8 @@ export class Client {
 			body = p;
 		}
 		const res = await fetch(new URL(path, this.base), { ...init, headers, body, redirect: 'manual' });
-		for (const c of res.headers.getSetCookie()) {
+		this.lastSetCookies = res.headers.getSetCookie();
+		for (const c of this.lastSetCookies) {
 			const [pair] = c.split(';');
 			const i = pair.indexOf('=');
 			const name = pair.slice(0, i).trim();
@@ -57,6 +59,9 @@ export class Client {
 		const res = await this.request(path, { method: 'POST', form, headers: { 'x-sveltekit-action': 'true', accept: 'application/json' } });
 		return { status: res.status, body: (await res.json()) as { type: string; status?: number; data?: string; location?: string } };
 	}
+
+	/** Set-Cookie headers of the last response, as sent (for cookie attribute checks). */
+	lastSetCookies: string[] = [];
 
 	async signIn(email: string, password = DEMO_PASSWORD): Promise<boolean> {
 		const r = await this.action('/signin', { providerId: 'credentials', email, password, redirectTo: '/' });

@@ -194,3 +194,108 @@ export async function restoreServices(): Promise<void> {
 	await startRedis();
 	if (!workerRunning()) await startWorker();
 }
+
+// ---------------------------------------------------------------------------------------------
+// MariaDB
+
+const mariadbPidFile = () => join(runDir(), 'mariadb.pid');
+const mariadbSocket = () => join(runDir(), 'mariadb.sock');
+const dbPort = () => env('DB_PORT');
+
+export function mariadbPid(): number | null {
+	const pid = readPid(mariadbPidFile());
+	return alive(pid) ? pid : null;
+}
+
+function mariadbPing(): boolean {
+	const r = spawnSync('mariadb-admin', ['--no-defaults', '--protocol=socket', `--socket=${mariadbSocket()}`, '-uroot', 'ping'], { stdio: 'ignore' });
+	return r.status === 0;
+}
+
+/** Stop MariaDB by its PID (SIGTERM: a clean InnoDB shutdown) and wait until it is gone. */
+export async function stopMariadb(): Promise<void> {
+	const pid = mariadbPid();
+	if (!pid) return;
+	process.kill(pid, 'SIGTERM');
+	if (!(await waitGone([pid], 60_000))) process.kill(pid, 'SIGKILL');
+	await waitGone([pid], 5_000);
+}
+
+/**
+ * Start MariaDB with the command line of scripts/lib/setup.sh start_mariadb (same data directory,
+ * socket, pid file and port) and wait until it answers a ping.
+ */
+export async function startMariadb(): Promise<number> {
+	const existing = mariadbPid();
+	if (existing) return existing;
+	const bin = existsSync('/usr/sbin/mariadbd') ? '/usr/sbin/mariadbd' : 'mariadbd';
+	const child = spawn(
+		bin,
+		[
+			'--no-defaults', `--datadir=${join(env('CROSSTALLY_DATA_DIR'), 'mariadb')}`, `--socket=${mariadbSocket()}`, `--pid-file=${mariadbPidFile()}`,
+			`--log-error=${join(runDir(), 'mariadb.err')}`, `--port=${dbPort()}`, '--bind-address=127.0.0.1', '--skip-name-resolve',
+			'--user=root', '--character-set-server=utf8mb4', '--collation-server=utf8mb4_unicode_ci',
+			'--innodb-buffer-pool-size=256M', '--max-connections=300'
+		],
+		{ stdio: 'ignore', detached: true }
+	);
+	child.unref();
+	const end = Date.now() + 60_000;
+	for (;;) {
+		if (mariadbPing()) return mariadbPid() ?? child.pid!;
+		if (Date.now() > end) throw new Error('MariaDB did not start in 60 s');
+		await sleep(200);
+	}
+}
+
+/** Run SQL as MariaDB's root over the socket (for grants, counts and fault set-up). */
+export async function rootQuery<T = Record<string, unknown>>(sql: string, values: unknown[] = [], database?: string): Promise<T[]> {
+	const mariadb = await import('mariadb');
+	const conn = await mariadb.createConnection({ socketPath: mariadbSocket(), user: 'root', database, bigIntAsNumber: true, decimalAsNumber: true });
+	try {
+		return (await conn.query(sql, values)) as T[];
+	} finally {
+		await conn.end();
+	}
+}
+
+// ---------------------------------------------------------------------------------------------
+// A second app instance (other settings, other port) for tests of time-outs and HTTPS cookies
+
+/**
+ * Start another app process from the same build as scripts/lib/setup.sh start_app does
+ * (`node --env-file=$ENV_FILE $CROSSTALLY_BUILD_DIR/index.js`); variables in extraEnv win over the
+ * env file. Output goes to $RUN_DIR/app-<port>.log. Resolves once /health answers.
+ */
+export async function startExtraApp(port: number, extraEnv: Record<string, string> = {}): Promise<{ pid: number; log: string; stop: () => Promise<void> }> {
+	const log = join(runDir(), `app-${port}.log`);
+	const fd = openSync(log, 'a');
+	const build = process.env.CROSSTALLY_BUILD_DIR ?? 'build';
+	const child = spawn(process.execPath, [`--env-file=${envFile()}`, join(build, 'index.js')], {
+		cwd: ROOT,
+		env: { ...workerEnv(), PORT: String(port), ...extraEnv },
+		stdio: ['ignore', fd, fd],
+		detached: true
+	});
+	child.unref();
+	const pid = child.pid!;
+	const stop = async () => {
+		if (!alive(pid)) return;
+		process.kill(pid, 'SIGTERM');
+		if (!(await waitGone([pid], 10_000))) process.kill(pid, 'SIGKILL');
+	};
+	const end = Date.now() + 20_000;
+	for (;;) {
+		try {
+			if ((await fetch(`http://127.0.0.1:${port}/health`)).ok) return { pid, log, stop };
+		} catch {
+			/* not yet */
+		}
+		if (!alive(pid)) throw new Error(`app on port ${port} exited at start:\n${readFileSync(log, 'utf8').slice(-2000)}`);
+		if (Date.now() > end) {
+			await stop();
+			throw new Error(`app on port ${port} did not start in 20 s`);
+		}
+		await sleep(150);
+	}
+}
