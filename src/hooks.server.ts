@@ -9,6 +9,28 @@ import { closeRedis } from '$lib/server/redis';
 const isApi = (e: RequestEvent) => e.url.pathname.startsWith('/api/');
 const UNAVAILABLE = 'The database cannot be reached right now. Nothing was saved; try again in a minute.';
 
+/**
+ * A body that claims to be a form but cannot be parsed (a broken multipart boundary, bad
+ * percent-encoding) makes `request.formData()` throw a TypeError, which would surface as a 500 from
+ * any action. Answer 400 instead; clones (the sign-in action reads one) are guarded too.
+ */
+function guardFormData(request: Request): Request {
+	const formData = request.formData.bind(request);
+	const clone = request.clone.bind(request);
+	Object.defineProperty(request, 'formData', {
+		value: async () => {
+			try {
+				return await formData();
+			} catch (e) {
+				if (e instanceof TypeError) error(400, { message: 'The form could not be read (malformed body). Reload the page and try again.', code: 'bad_form' });
+				throw e;
+			}
+		}
+	});
+	Object.defineProperty(request, 'clone', { value: () => guardFormData(clone()) });
+	return request;
+}
+
 /** Every request: who is signing in, and may they open this route with this method? */
 const authorize: Handle = async ({ event, resolve }) => {
 	event.locals.user = null;
@@ -28,7 +50,10 @@ const authorize: Handle = async ({ event, resolve }) => {
 	}
 
 	const decision = decide(routeId, event.request.method, event.locals.user?.roles ?? null);
-	if (decision === 'allow') return resolve(event);
+	if (decision === 'allow') {
+		guardFormData(event.request);
+		return resolve(event);
+	}
 	if (decision === 'unknown-route') console.error(`[access] no rule for ${event.request.method} ${routeId}: refused`);
 	if (decision === 'anonymous') {
 		if (isApi(event)) return json({ message: 'Sign in first.', code: 'unauthenticated' }, { status: 401 });
@@ -53,6 +78,8 @@ const headers: Handle = async ({ event, resolve }) => {
 	h.set('Cross-Origin-Opener-Policy', 'same-origin');
 	if (event.url.protocol === 'https:') h.set('Strict-Transport-Security', 'max-age=31536000');
 	if (!h.has('Cache-Control')) h.set('Cache-Control', 'no-store');
+	// Pages carry SvelteKit's CSP (svelte.config.js); endpoints (JSON, CSV) get one that allows nothing.
+	if (!h.has('Content-Security-Policy')) h.set('Content-Security-Policy', "default-src 'none'; frame-ancestors 'none'; base-uri 'none'; form-action 'none'");
 	if (event.locals.unavailable && response.status === 500) {
 		return new Response(response.body, { status: 503, headers: h });
 	}
