@@ -19,6 +19,8 @@ import type { Migration } from '../migrate-types';
  *                         × battery × test × field × (first label, second label): counts and sums
  *                         (Σx, Σy, Σx², Σy², Σxy, Σ(x−y), Σ(x−y)²) from which ICC, bias and limits
  *                         follow exactly, and the label cells kappa needs
+ *   agreement_weekly      agreement_daily by ISO week: whole weeks of a range are read from here
+ *                         (a quarter of the rows), the edge days from agreement_daily
  *   agreement_pair_daily  the same per (first scorer, second scorer), for the scorer-pair table
  *
  * Plus covering indexes on error_events (the errors are counted straight from it).
@@ -93,6 +95,19 @@ export const up: Migration = async ({ context: q }) => {
 			PRIMARY KEY (scorer_id, day, battery_id, test_code, field, first_label, second_label),
 			KEY agreement_daily_test (scorer_id, test_code, day)
 		)`,
+		// the same by ISO week (Monday): whole weeks of a date range read from here, edge days from agreement_daily
+		`CREATE TABLE agreement_weekly (
+			scorer_id INT UNSIGNED NOT NULL,
+			week DATE NOT NULL,
+			battery_id INT UNSIGNED NOT NULL,
+			test_code VARCHAR(40) NOT NULL,
+			field ENUM('raw','z','standard','scaled','t','percentile') NOT NULL,
+			first_label VARCHAR(30) NOT NULL,
+			second_label VARCHAR(30) NOT NULL,
+			${MEASURES},
+			PRIMARY KEY (scorer_id, week, battery_id, test_code, field, first_label, second_label),
+			KEY agreement_weekly_test (scorer_id, test_code, week)
+		)`,
 		`CREATE TABLE agreement_pair_daily (
 			field ENUM('raw','z','standard','scaled','t','percentile') NOT NULL,
 			day DATE NOT NULL,
@@ -123,6 +138,6 @@ export const down: Migration = async ({ context: q }) => {
 		['error_events_time', 'error_events']
 	])
 		await q.sequelize.query(`DROP INDEX ${index} ON ${table}`);
-	for (const t of ['agreement_pair_daily', 'agreement_daily', 'audit_daily', 'agreement_pairs', 'audit_fields'])
+	for (const t of ['agreement_pair_daily', 'agreement_weekly', 'agreement_daily', 'audit_daily', 'agreement_pairs', 'audit_fields'])
 		await q.sequelize.query(`DROP TABLE IF EXISTS ${t}`);
 };

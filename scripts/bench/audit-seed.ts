@@ -347,7 +347,7 @@ export async function seedAuditData(opts: { protocols: number; weeks?: number; s
 	}
 	// the daily sums, from the row-level tables, as recordSubmission would have added them up
 	await rebuildDailySums();
-	for (const t of ['protocols', 'passes', 'discrepancies', 'error_events', 'audit_fields', 'agreement_pairs', 'audit_daily', 'agreement_daily', 'agreement_pair_daily']) await db().query(`ANALYZE TABLE ${t}`, { type: QueryTypes.SELECT });
+	for (const t of ['protocols', 'passes', 'discrepancies', 'error_events', 'audit_fields', 'agreement_pairs', 'audit_daily', 'agreement_daily', 'agreement_weekly', 'agreement_pair_daily']) await db().query(`ANALYZE TABLE ${t}`, { type: QueryTypes.SELECT });
 	return {
 		protocols: opts.protocols,
 		passes: passes.length,

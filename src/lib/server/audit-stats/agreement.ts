@@ -9,7 +9,7 @@ import { blandAltman, cohenKappa, interpretIcc, interpretKappa, ICC_FORMS, type 
 import { AACN_2020 } from '../../scoring/labels';
 import { FIELDS, type Field } from '../../scoring/scales';
 import type { AuditFilters } from './filters';
-import { agreementDailyWhere, pairDailyWhere, pairsWhere } from './sql';
+import { agreementDailyWhere, pairDailyWhere, pairsWhere, splitRange } from './sql';
 import { addSums, blandAltmanFromSums, iccFromSums, ZERO_SUMS, type PairSums } from './sums';
 import type { Names } from './errors';
 
@@ -120,15 +120,23 @@ export interface AgreementRow extends AgreementStats {
 	field: Field;
 }
 
-/** One row per field (raw, z, standard, scaled, t, percentile). */
+/** One row per field (raw, z, standard, scaled, t, percentile): whole weeks from agreement_weekly, edge days from agreement_daily. */
 export async function agreementByField(f: AuditFilters): Promise<AgreementRow[]> {
-	const w = agreementDailyWhere(f);
-	const rows = await select<Cell & { field: Field }>(
-		`SELECT s.field, s.first_label AS lx, s.second_label AS ly, ${SUM_COLUMNS}
-		   FROM agreement_daily s ${w.sql}
-		  GROUP BY s.field, s.first_label, s.second_label`,
-		w.params
-	);
+	const split = splitRange(f.from, f.to);
+	const query = (table: string, col: string, range: { from: string | null; to: string | null }) => {
+		const w = agreementDailyWhere(f, range, col);
+		return select<Cell & { field: Field }>(
+			`SELECT s.field, s.first_label AS lx, s.second_label AS ly, ${SUM_COLUMNS}
+			   FROM ${table} s ${w.sql}
+			  GROUP BY s.field, s.first_label, s.second_label`,
+			w.params
+		);
+	};
+	const parts = await Promise.all([
+		...(split.weeks ? [query('agreement_weekly', 'week', split.weeks)] : []),
+		...split.days.map((d) => query('agreement_daily', 'day', d))
+	]);
+	const rows = parts.flat();
 	return FIELDS.map((field) => ({ field, ...statsOf(rows.filter((r) => r.field === field), field) })).filter((r) => r.n + r.one_sided > 0);
 }
 

@@ -190,16 +190,22 @@ export async function applyToDaily(scope: { protocolId: number; round: number } 
 	const cols = MEASURES.map(([c]) => c).join(', ');
 	const sums = MEASURES.map(([, e]) => `:sign * ${e}`).join(', ');
 	const update = MEASURES.map(([c]) => `${c} = ${c} + VALUES(${c})`).join(', ');
-	for (const scorer of ['0', 'g.first_scorer_id', 'g.second_scorer_id']) {
-		await exec(
-			`INSERT INTO agreement_daily (scorer_id, day, battery_id, test_code, field, first_label, second_label, ${cols})
-			 SELECT ${scorer}, DATE(g.entered_at), g.battery_id, g.test_code, g.field, COALESCE(g.first_label, ''), COALESCE(g.second_label, ''), ${sums}
-			   FROM agreement_pairs g WHERE ${gWhere}
-			  GROUP BY 1, 2, 3, 4, 5, 6, 7
-			 ON DUPLICATE KEY UPDATE ${update}`,
-			p,
-			t
-		);
+	const buckets: Array<[string, string, string]> = [
+		['agreement_daily', 'day', 'DATE(g.entered_at)'],
+		['agreement_weekly', 'week', 'DATE_SUB(DATE(g.entered_at), INTERVAL WEEKDAY(g.entered_at) DAY)']
+	];
+	for (const [table, col, bucket] of buckets) {
+		for (const scorer of ['0', 'g.first_scorer_id', 'g.second_scorer_id']) {
+			await exec(
+				`INSERT INTO ${table} (scorer_id, ${col}, battery_id, test_code, field, first_label, second_label, ${cols})
+				 SELECT ${scorer}, ${bucket}, g.battery_id, g.test_code, g.field, COALESCE(g.first_label, ''), COALESCE(g.second_label, ''), ${sums}
+				   FROM agreement_pairs g WHERE ${gWhere}
+				  GROUP BY 1, 2, 3, 4, 5, 6, 7
+				 ON DUPLICATE KEY UPDATE ${update}`,
+				p,
+				t
+			);
+		}
 	}
 	await exec(
 		`INSERT INTO agreement_pair_daily (field, day, first_scorer_id, second_scorer_id, battery_id, test_code, first_label, second_label, ${cols})
@@ -214,7 +220,7 @@ export async function applyToDaily(scope: { protocolId: number; round: number } 
 
 /** Rebuild the daily sums from the row-level tables (after a bulk load, or to repair). */
 export async function rebuildDailySums(t?: Transaction | null): Promise<void> {
-	for (const table of ['audit_daily', 'agreement_daily', 'agreement_pair_daily']) await exec(`DELETE FROM ${table}`, {}, t);
+	for (const table of ['audit_daily', 'agreement_daily', 'agreement_weekly', 'agreement_pair_daily']) await exec(`DELETE FROM ${table}`, {}, t);
 	await applyToDaily('all', 1, t);
 }
 

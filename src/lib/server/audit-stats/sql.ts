@@ -55,19 +55,44 @@ export function dailyWhere(f: AuditFilters, level: 'pass' | 'tests', alias = 'd'
 	);
 }
 
-/** agreement_daily s: scorer_id 0 holds every pair once, scorer_id s the pairs s entered a pass of. */
-export function agreementDailyWhere(f: AuditFilters, alias = 's'): Where {
+/**
+ * agreement_daily / agreement_weekly s: scorer_id 0 holds every pair once, scorer_id s the pairs s
+ * entered a pass of. `range` overrides the filter's dates (inclusive; on `col`).
+ */
+export function agreementDailyWhere(f: AuditFilters, range: { from: string | null; to: string | null } = f, col = 'day', alias = 's'): Where {
 	const a = alias;
 	return build(
 		[
 			[true, `${a}.scorer_id = :scorerKey`],
 			[f.test !== null, `${a}.test_code = :test`],
-			[!!f.from, `${a}.day >= :from`],
-			[!!f.to, `${a}.day <= :to`],
+			[!!range.from, `${a}.${col} >= :from`],
+			[!!range.to, `${a}.${col} <= :to`],
 			[f.battery !== null, `${a}.battery_id = :battery`]
 		],
-		{ ...common(f), to: f.to, scorerKey: f.scorer ?? 0 }
+		{ ...common(f), from: range.from, to: range.to, scorerKey: f.scorer ?? 0 }
 	);
+}
+
+const addDays = (iso: string, n: number) => {
+	const d = new Date(`${iso}T00:00:00Z`);
+	d.setUTCDate(d.getUTCDate() + n);
+	return d.toISOString().slice(0, 10);
+};
+const mondayOf = (iso: string) => addDays(iso, -((new Date(`${iso}T00:00:00Z`).getUTCDay() + 6) % 7));
+
+/**
+ * Split a date range into the whole ISO weeks inside it (week starts, inclusive; null = open) and
+ * the edge days outside them, so whole weeks come from the weekly sums.
+ */
+export function splitRange(from: string | null, to: string | null): { weeks: { from: string | null; to: string | null } | null; days: Array<{ from: string | null; to: string | null }> } {
+	const firstWeek = from ? (mondayOf(from) === from ? from : addDays(mondayOf(from), 7)) : null;
+	// the last week that ends on or before `to`
+	const lastWeek = to ? (mondayOf(addDays(to, 1)) === addDays(to, 1) ? mondayOf(to) : addDays(mondayOf(to), -7)) : null;
+	if (firstWeek && lastWeek && firstWeek > lastWeek) return { weeks: null, days: [{ from, to }] };
+	const days: Array<{ from: string | null; to: string | null }> = [];
+	if (from && firstWeek && from < firstWeek) days.push({ from, to: addDays(firstWeek, -1) });
+	if (to && lastWeek && addDays(lastWeek, 7) <= to) days.push({ from: addDays(lastWeek, 7), to });
+	return { weeks: { from: firstWeek, to: lastWeek }, days };
 }
 
 /** agreement_pair_daily s for one field; the scorer filter matches either pass. */
