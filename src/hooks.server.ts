@@ -62,8 +62,10 @@ const authorize: Handle = async ({ event, resolve }) => {
 	}
 	const message =
 		decision === 'unknown-route' ? 'This address is not open to anyone yet.' : 'Your role does not include this screen or action.';
-	if (isApi(event)) return json({ message, code: 'forbidden' }, { status: 403 });
-	error(403, { message, code: 'forbidden' });
+	if (isApi(event) || event.request.method !== 'GET') return json({ message, code: 'forbidden' }, { status: 403 });
+	// A page: the root layout turns this into the app's own 403 page (no page data is ever rendered).
+	event.locals.denied = { status: 403, message };
+	return resolve(event);
 };
 
 /** Headers every response carries. The Content-Security-Policy comes from svelte.config.js. */

@@ -24,5 +24,10 @@ export async function signIn(page: Page, email: string, password: string, base =
 	await page.goto(`${base}/signin`);
 	await page.fill('#email', email);
 	await page.fill('#password', password);
-	await Promise.all([page.waitForURL((u) => !u.pathname.startsWith('/signin') || u.searchParams.has('error')), page.click('button[type=submit]')]);
+	await page.click('button[type=submit]');
+	// Either we leave the sign-in page, or it shows why not.
+	await Promise.race([
+		page.waitForURL((u) => !u.pathname.startsWith('/signin')),
+		page.getByTestId('signin-error').waitFor()
+	]);
 }

@@ -9,7 +9,7 @@ import { audit } from '../audit';
 import { protocolFor, type Actor, type ProtocolRow } from './service';
 import { protocolTests, normGroups, normDef, engineTest, type CatalogTest } from './catalog-read';
 import { reconcile, ReconcileInputError, type FieldValues, type ReconcileResult } from '../../scoring/reconcile';
-import type { Field } from '../../scoring/scales';
+import { formatReference, type Field } from '../../scoring/scales';
 import { conflict, invalid, notFound, WorkflowError } from './errors';
 import { notifyReviewStarted } from '../mail/review';
 import { recordSubmission } from '../audit-stats/record';
@@ -161,7 +161,8 @@ export async function storeDiscrepancies(p: ProtocolRow, result: ReconcileResult
 				kind: d.kind,
 				value: d.value === null ? null : String(d.value),
 				other: d.other === null ? null : String(d.other),
-				expected: d.expected === null ? null : String(d.expected),
+				// written at the field's precision (z as 1.00), as a reviewer keeps it
+				expected: d.expected === null ? null : d.field === 'raw' ? String(d.expected) : formatReference(d.field, d.expected),
 				oor: d.out_of_range ? 1 : 0
 			},
 			t
