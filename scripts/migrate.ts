@@ -41,8 +41,14 @@ async function grants() {
 			type: 'SELECT'
 		});
 		if (exists.length === 0) continue;
-		// Start from nothing on this database, then grant table by table.
-		await sequelize.query(`REVOKE ALL PRIVILEGES, GRANT OPTION FROM ${who}`).catch(() => undefined);
+		// Start from nothing on this database (only this one: another database on the same server,
+		// e.g. a restored copy, keeps its grants), then grant table by table.
+		await sequelize.query(`REVOKE ALL PRIVILEGES, GRANT OPTION ON \`${dbName}\`.* FROM ${who}`).catch(() => undefined);
+		const tablePrivs = (await sequelize.query(`SELECT Table_name AS t FROM mysql.tables_priv WHERE User = :u AND Host = :h AND Db = :db`, {
+			replacements: { u: appUser, h: host, db: dbName },
+			type: 'SELECT'
+		})) as { t: string }[];
+		for (const { t } of tablePrivs) await sequelize.query(`REVOKE ALL PRIVILEGES, GRANT OPTION ON \`${dbName}\`.\`${t}\` FROM ${who}`).catch(() => undefined);
 		for (const { t } of rows) {
 			const privs = t === 'schema_migrations' ? 'SELECT' : appendOnlyTables.includes(t) ? 'SELECT, INSERT' : 'SELECT, INSERT, UPDATE, DELETE';
 			await sequelize.query(`GRANT ${privs} ON \`${dbName}\`.\`${t}\` TO ${who}`);
