@@ -1,6 +1,7 @@
 #!/usr/bin/env bash
 # The benchmark's own stack, used by `npm run bench` (scripts/bench/all.ts):
-#   stack.sh services   MariaDB, Redis, mail fake, migrations, accounts + catalog seed
+#   stack.sh services   MariaDB, Redis, mail fake, a fresh database (BENCH_KEEP_DATA=1 keeps it),
+#                       migrations, accounts + catalog seed
 #   stack.sh app        build if stale, then the app and the worker
 #   stack.sh down       stop everything started under $CROSSTALLY_DATA_DIR/run, by PID file
 # all.ts sets its own data dir and ports (.data/bench, 3371/6471/2671/2672/3071) unless overridden.
@@ -15,7 +16,9 @@ case "${1:-}" in
 		# the benchmarks sign in many times from 127.0.0.1
 		export SIGNIN_MAX_PER_ADDRESS="${SIGNIN_MAX_PER_ADDRESS:-100000}" SIGNIN_MAX_PER_ACCOUNT="${SIGNIN_MAX_PER_ACCOUNT:-100000}"
 		write_env_file; load_env_file
-		start_mariadb; ensure_database; start_redis; start_mailfake
+		# a fresh database each run unless BENCH_KEEP_DATA=1: the figures then never depend on leftovers
+		start_mariadb; if [ "${BENCH_KEEP_DATA:-0}" = 1 ]; then ensure_database; else ensure_database fresh; fi
+		start_redis; redis-cli -p "$REDIS_PORT" flushall >/dev/null; start_mailfake
 		MIGRATE_SOCKET="$RUN_DIR/mariadb.sock" node_modules/.bin/tsx scripts/migrate.ts || die "migration failed"
 		DB_POOL_MAX=2 node_modules/.bin/tsx db/seeds/run.ts test || die "seeding failed" ;;
 	app)

@@ -1,0 +1,124 @@
+/**
+ * `npm run bench:db` — every list and audit query at the benchmark's data size uses an index.
+ * Runs the service functions the list screens and APIs call (protocol list with its filters and
+ * pages, both worklists, review list, protocol history, mail log, outbox, people, catalog lists,
+ * every audit report unfiltered and by scorer), captures each SELECT they send, and EXPLAINs it:
+ * table, access type, key, rows examined. A full scan (type ALL, no key) of a table with more than
+ * --small rows (default 1000) is flagged; scans of small look-up tables are listed as such.
+ * Run after bench:http / bench:audit have filled the database (npm run bench does). Options: --out.
+ */
+import { arg, emit, loadBenchEnv, machine } from './lib';
+
+loadBenchEnv('db');
+const { db, select, selectOne, closeDb } = await import('../../src/lib/server/db');
+const S = await import('../../src/lib/server/protocols/service');
+const R = await import('../../src/lib/server/protocols/review');
+const { listUsers } = await import('../../src/lib/server/users');
+const { listTests, listBatteries, listNormGroups } = await import('../../src/lib/server/catalog');
+const { listProtocolMail } = await import('../../src/lib/server/mail/review');
+const { pendingOutbox } = await import('../../src/lib/server/mail/outbox');
+const { NO_FILTERS, REPORT_NAMES, runReport } = await import('../../src/lib/server/audit-stats');
+const F = await import('./fixtures');
+
+const SMALL = Number(arg('small', '1000'));
+
+interface Captured {
+	label: string;
+	sql: string;
+	replacements: unknown;
+}
+
+async function main() {
+	const seq = db();
+	const original = seq.query.bind(seq);
+	const captured: Captured[] = [];
+	let label = '';
+	(seq as unknown as { query: unknown }).query = (sql: string, options: { replacements?: unknown }) => {
+		if (typeof sql === 'string' && /^\s*SELECT/i.test(sql)) captured.push({ label, sql, replacements: options?.replacements });
+		return original(sql, options as never);
+	};
+	const lead = await F.actor(F.EMAILS.lead);
+	const scorer = await F.actor(F.EMAILS.second);
+	const first = await F.actor(F.EMAILS.first);
+	const reviewer = await F.actor(F.EMAILS.reviewer);
+	const inReview = await selectOne<{ id: number }>(`SELECT id FROM protocols WHERE status = 'in_review' AND reviewer_id = :r ORDER BY id DESC LIMIT 1`, { r: reviewer.id });
+	const normSet = await selectOne<{ id: number }>('SELECT id FROM norm_sets ORDER BY id LIMIT 1');
+	const scorerId = (await selectOne<{ id: number }>('SELECT scorer_id AS id FROM error_events GROUP BY scorer_id ORDER BY COUNT(*) DESC LIMIT 1'))?.id ?? first.id;
+	captured.length = 0;
+
+	const calls: Array<[string, () => Promise<unknown>]> = [
+		['protocol list (lead)', () => S.listProtocols(lead, {})],
+		['protocol list (lead, page 20)', () => S.listProtocols(lead, { page: 20 })],
+		['protocol list (lead, in review)', () => S.listProtocols(lead, { status: 'in_review' })],
+		['protocol list (lead, code search)', () => S.listProtocols(lead, { q: 'BH-R' })],
+		['protocol list (scorer)', () => S.listProtocols(scorer, {})],
+		['protocol list (reviewer)', () => S.listProtocols(reviewer, {})],
+		['worklist (scorer)', () => S.worklist(scorer)],
+		['worklist (first scorer)', () => S.worklist(first)],
+		['worklist (reviewer)', () => S.worklist(reviewer)],
+		...(inReview
+			? ([
+					['review list', () => R.reviewView(inReview.id, reviewer)],
+					['protocol history', () => S.protocolHistoryFor(inReview.id, reviewer)],
+					['protocol mail log', () => listProtocolMail(inReview.id)]
+				] as Array<[string, () => Promise<unknown>]>)
+			: []),
+		['outbox (dispatcher)', () => pendingOutbox()],
+		['people', () => listUsers()],
+		['catalog tests', () => listTests({})],
+		['catalog batteries', () => listBatteries()],
+		...(normSet ? ([['norm groups', () => listNormGroups(normSet.id)]] as Array<[string, () => Promise<unknown>]>) : []),
+		...REPORT_NAMES.flatMap((r) => [
+			[`audit ${r}`, () => runReport(r, NO_FILTERS)],
+			[`audit ${r} (scorer)`, () => runReport(r, { ...NO_FILTERS, scorer: scorerId })]
+		] as Array<[string, () => Promise<unknown>]>)
+	];
+	for (const [l, fn] of calls) {
+		label = l;
+		await fn();
+	}
+	(seq as unknown as { query: unknown }).query = original;
+
+	const counts = await selectOne<Record<string, number>>(
+		`SELECT (SELECT COUNT(*) FROM protocols) AS protocols, (SELECT COUNT(*) FROM passes) AS passes, (SELECT COUNT(*) FROM discrepancies) AS discrepancies,
+		        (SELECT COUNT(*) FROM audit_events) AS audit_events, (SELECT COUNT(*) FROM error_events) AS error_events, (SELECT COUNT(*) FROM agreement_pairs) AS agreement_pairs`
+	);
+	const seen = new Set<string>();
+	const queries: Array<{ label: string; sql: string; plan: Array<{ table: string; type: string; key: string | null; rows: number; extra: string }>; full_scans: string[]; small_scans: string[] }> = [];
+	for (const c of captured) {
+		const norm = c.sql.replace(/\s+/g, ' ').trim();
+		if (seen.has(norm)) continue;
+		seen.add(norm);
+		const plan = (await select<Record<string, unknown>>(`EXPLAIN ${c.sql}`, c.replacements as never)).map((p) => ({
+			table: String(p.table),
+			type: String(p.type),
+			key: (p.key as string | null) ?? null,
+			rows: Number(p.rows ?? 0),
+			extra: String(p.Extra ?? '')
+		}));
+		const scans = plan.filter((p) => p.type === 'ALL' && p.key === null && !/^<(derived|subquery|union)/.test(p.table));
+		queries.push({
+			label: c.label,
+			sql: norm.slice(0, 160),
+			plan,
+			full_scans: scans.filter((p) => p.rows > SMALL).map((p) => `${p.table} (${p.rows} rows)`),
+			small_scans: scans.filter((p) => p.rows <= SMALL).map((p) => `${p.table} (${p.rows} rows)`)
+		});
+	}
+
+	console.log(`\nEXPLAIN of ${queries.length} distinct list and audit queries over ${JSON.stringify(counts)}\n`);
+	for (const q of queries) {
+		console.log(`${q.full_scans.length ? 'FULL SCAN ' : 'ok        '}${q.label}: ${q.sql.slice(0, 110)}…`);
+		for (const p of q.plan) console.log(`            ${p.table.padEnd(14)} ${p.type.padEnd(7)} ${String(p.key ?? '— no index —').padEnd(34)} rows≈${String(p.rows).padEnd(8)} ${p.extra}`);
+	}
+	const bad = queries.filter((q) => q.full_scans.length);
+	console.log(bad.length ? `\n${bad.length} of ${queries.length} queries scan a large table without an index.` : `\nEvery one of ${queries.length} queries reads large tables through an index.`);
+	emit('db', { ...machine(), data: counts, small_table_rows: SMALL, queries: queries.length, full_scans: bad.length, ok: bad.length === 0, flagged: bad.map((q) => ({ label: q.label, sql: q.sql, scans: q.full_scans })), plans: queries });
+}
+
+main()
+	.catch((e) => {
+		console.error(`[bench:db] ${e instanceof Error ? e.stack : e}`);
+		process.exitCode = 1;
+	})
+	.finally(() => closeDb());
