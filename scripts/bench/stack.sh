@@ -12,6 +12,8 @@ export CROSSTALLY_MODE="${CROSSTALLY_MODE:-test}"
 cd "$ROOT_DIR" || exit 1
 case "${1:-}" in
 	services)
+		# an app left from an earlier run would keep serving the old build and database
+		stop_pidfile "$RUN_DIR/app.pid"; stop_pidfile "$RUN_DIR/worker.pid"
 		ensure_packages; ensure_node_modules; mkdir -p "$RUN_DIR"
 		# the benchmarks sign in many times from 127.0.0.1
 		export SIGNIN_MAX_PER_ADDRESS="${SIGNIN_MAX_PER_ADDRESS:-100000}" SIGNIN_MAX_PER_ACCOUNT="${SIGNIN_MAX_PER_ACCOUNT:-100000}"

@@ -1,0 +1,154 @@
+/**
+ * `npm run bench` — every benchmark in one run, on a stack of its own:
+ *   1. scripts/bench/stack.sh services: MariaDB, Redis and the mail fake in .data/bench with their
+ *      own ports (a fresh database, migrations, the test accounts and the demo catalog);
+ *   2. bench:reconcile (in process), bench:mail (its own worker), bench:audit (seeds ~1M fields);
+ *   3. stack.sh app: build when stale (into .data/bench/build), start the app and the worker;
+ *   4. bench:http, bench:pages, bench:db against that app and database;
+ *   5. stack.sh down: stop every process it started, by PID file — also on failure or Ctrl-C.
+ * Prints one table (with the core count and date) and writes it, with every benchmark's own JSON,
+ * to .bench/all.json. Each benchmark's BENCH_JSON line is read from its output.
+ *
+ * Defaults (each overridable from the environment): CROSSTALLY_DATA_DIR=.data/bench DB_PORT=3371
+ * REDIS_PORT=6471 SMTP_PORT=2671 MAILFAKE_PORT=2672 PORT=3071 CROSSTALLY_BUILD_DIR=.data/bench/build
+ * CROSSTALLY_KIT_DIR=.data/bench/kit DB_NAME=crosstally_bench.
+ * Options: --only reconcile,mail,audit,http,pages,db   --quick (smaller data sizes)
+ *          --keep-data (reuse the bench database, e.g. the audit seed)   --keep-running (no down)
+ */
+import { spawn } from 'node:child_process';
+import { mkdirSync, writeFileSync } from 'node:fs';
+import { join } from 'node:path';
+import os from 'node:os';
+import { performance } from 'node:perf_hooks';
+import { ROOT, arg } from './lib';
+
+const defaults: Record<string, string> = {
+	CROSSTALLY_MODE: 'test',
+	CROSSTALLY_DATA_DIR: join(ROOT, '.data/bench'),
+	DB_PORT: '3371',
+	REDIS_PORT: '6471',
+	SMTP_PORT: '2671',
+	MAILFAKE_PORT: '2672',
+	PORT: '3071',
+	CROSSTALLY_BUILD_DIR: '.data/bench/build',
+	CROSSTALLY_KIT_DIR: '.data/bench/kit',
+	DB_NAME: 'crosstally_bench'
+};
+for (const [k, v] of Object.entries(defaults)) process.env[k] ??= v;
+if (process.argv.includes('--keep-data')) process.env.BENCH_KEEP_DATA = '1';
+const ALL = ['reconcile', 'mail', 'audit', 'http', 'pages', 'db'] as const;
+type Name = (typeof ALL)[number];
+const only = new Set(arg('only', ALL.join(',')).split(',').map((s) => s.trim()) as Name[]);
+const QUICK = process.argv.includes('--quick');
+const sizes: Record<Name, string[]> = QUICK
+	? { reconcile: ['--protocols', '2000'], mail: ['--protocols', '200'], audit: ['--protocols', '2000', '--runs', '3'], http: ['--submits', '100', '--resolutions', '400', '--duration', '4'], pages: ['--runs', '3'], db: [] }
+	: { reconcile: [], mail: [], audit: [], http: [], pages: [], db: [] };
+const log = (s: string) => console.error(`\x1b[1m[bench]\x1b[0m ${s}`);
+
+/** Run a command with the bench environment; stdout is echoed to stderr and returned. */
+function run(cmd: string, args: string[]): Promise<{ code: number; out: string }> {
+	return new Promise((resolve) => {
+		const child = spawn(cmd, args, { cwd: ROOT, env: process.env, stdio: ['ignore', 'pipe', 'inherit'] });
+		let out = '';
+		child.stdout.on('data', (b: Buffer) => {
+			out += b;
+			process.stderr.write(b);
+		});
+		child.on('close', (code) => resolve({ code: code ?? 1, out }));
+	});
+}
+const stack = (what: string) => run('bash', ['scripts/bench/stack.sh', what]);
+
+const results: Partial<Record<Name, Record<string, any>>> = {};
+const failures: string[] = [];
+async function bench(name: Name) {
+	if (!only.has(name)) return;
+	log(`bench:${name} ${sizes[name].join(' ')}`);
+	const t0 = performance.now();
+	const r = await run(join(ROOT, 'node_modules/.bin/tsx'), [`scripts/bench/${name}.ts`, ...sizes[name]]);
+	const line = r.out.split('\n').reverse().find((l) => l.startsWith('BENCH_JSON '));
+	if (r.code !== 0 || !line) failures.push(`${name} (exit ${r.code}${line ? '' : ', no BENCH_JSON'})`);
+	if (line) results[name] = { ...JSON.parse(line.slice('BENCH_JSON '.length)), seconds: Math.round((performance.now() - t0) / 1000) };
+}
+
+let stopping = false;
+async function down() {
+	if (stopping || process.argv.includes('--keep-running')) return;
+	stopping = true;
+	log('stopping the bench stack');
+	await stack('down');
+}
+for (const sig of ['SIGINT', 'SIGTERM'] as const) process.on(sig, () => void down().then(() => process.exit(130)));
+
+type Row = { area: string; figure: string; value: string; floor: string; ratio: string; goal: string; met: string };
+function table(): Row[] {
+	const rows: Row[] = [];
+	const f = (x: number | undefined, d = 1) => (x === undefined || x === null || Number.isNaN(x) ? '—' : Number(x).toFixed(d));
+	const yes = (b: boolean | undefined) => (b === undefined ? '' : b ? 'yes' : 'NO');
+	const r = results;
+	if (r.reconcile)
+		rows.push({ area: 'reconcile', figure: `engine, ${r.reconcile.protocols} protocols (${r.reconcile.engine_protocols_per_s}/s)`, value: `${f(r.reconcile.engine_ms)} ms`, floor: `${f(r.reconcile.floor_ms)} ms JSON parse+stringify`, ratio: f(r.reconcile.ratio, 2), goal: '≤ 3', met: yes(r.reconcile.ratio <= 3) });
+	if (r.mail)
+		rows.push({ area: 'mail', figure: `${r.mail.protocols} first e-mails caught`, value: `${f(r.mail.all_caught_ms, 0)} ms (${r.mail.emails_per_second}/s, p95 ${r.mail.latency_ms?.p95} ms)`, floor: 'none measured', ratio: '—', goal: 'no duplicates', met: yes(r.mail.duplicates === 0) });
+	if (r.audit)
+		rows.push({ area: 'audit', figure: `slowest report over ${r.audit.data?.fields_entered ?? '?'} fields`, value: `${f(r.audit.worst_ms)} ms`, floor: '—', ratio: '—', goal: '< 300 ms', met: yes(r.audit.ok) });
+	if (r.http) {
+		for (const g of r.http.goals ?? []) {
+			const x = (r.http.results ?? []).find((y: any) => y.route === g.route) ?? {};
+			rows.push({ area: 'http', figure: `${g.route} p50/p95/p99, req/s`, value: `${f(x.p50)}/${f(x.p95)}/${f(x.p99)} ms, ${x.rps}/s`, floor: `/health p95 ${f(g.floor_p95)} ms`, ratio: f(g.ratio, 2), goal: `≤ ${g.goal}×`, met: yes(g.met) });
+		}
+	}
+	if (r.pages) {
+		for (const p of r.pages.pages ?? [])
+			rows.push({ area: 'pages', figure: `${p.page}: JS gzip, CLS`, value: `${f(p.js_gzip_bytes / 1024)} KB, CLS ${f(p.cls, 3)}`, floor: '', ratio: '', goal: p.page.startsWith('Entry') ? '< 100 KB' : '', met: p.page.startsWith('Entry') ? yes(p.js_gzip_bytes < 102400) : '' });
+		const e = r.pages.entry ?? {};
+		rows.push({ area: 'pages', figure: 'Entry (60 fields) time to interactive', value: `${f(e.tti_ms, 0)} ms`, floor: `sign-in ${f(e.floor_tti_ms, 0)} ms`, ratio: f(e.tti_ratio, 2), goal: '', met: '' });
+		const k = r.pages.keystroke ?? {};
+		rows.push({ area: 'pages', figure: 'Enter → next field (focus; next frame) median/p95', value: `${f(k.focus_median_ms, 2)}/${f(k.focus_p95_ms, 2)} ms; ${f(k.frame_median_ms)}/${f(k.frame_p95_ms)} ms`, floor: 'one frame ≈ 16.7 ms', ratio: f(k.frame_median_ms / 16.7, 2), goal: '', met: '' });
+	}
+	if (r.db) rows.push({ area: 'db', figure: `list + audit queries with EXPLAIN`, value: `${r.db.queries} queries, ${r.db.full_scans} full scans`, floor: `over ${r.db.data?.protocols} protocols`, ratio: '—', goal: '0 full scans', met: yes(r.db.ok) });
+	return rows;
+}
+
+async function main() {
+	const started = new Date();
+	const cores = os.cpus().length;
+	log(`${cores} cores, data in ${process.env.CROSSTALLY_DATA_DIR}, app port ${process.env.PORT}, database port ${process.env.DB_PORT}`);
+	const needServices = [...only].some((n) => n !== 'reconcile');
+	try {
+		if (needServices) {
+			const s = await stack('services');
+			if (s.code !== 0) throw new Error('the bench services did not start');
+			process.loadEnvFile(join(process.env.CROSSTALLY_DATA_DIR!, 'crosstally.env'));
+		}
+		await bench('reconcile');
+		await bench('mail'); // before the app's worker starts: it runs its own
+		await bench('audit');
+		if (['http', 'pages', 'db'].some((n) => only.has(n as Name))) {
+			const a = await stack('app');
+			if (a.code !== 0) throw new Error('the app did not start');
+		}
+		await bench('http');
+		await bench('pages');
+		await bench('db');
+	} catch (e) {
+		failures.push(e instanceof Error ? e.message : String(e));
+	} finally {
+		if (needServices) await down();
+	}
+
+	const rows = table();
+	const widths = (['area', 'figure', 'value', 'floor', 'ratio', 'goal', 'met'] as const).map((k) => Math.max(k.length, ...rows.map((r) => r[k].length)));
+	const line = (r: Record<string, string>) => (['area', 'figure', 'value', 'floor', 'ratio', 'goal', 'met'] as const).map((k, i) => r[k].padEnd(widths[i])).join('  ');
+	console.log(`\nCrosstally benchmarks — ${started.toISOString().slice(0, 16).replace('T', ' ')} UTC, ${cores} cores (${os.cpus()[0]?.model ?? '?'}), ${Math.round(os.totalmem() / 2 ** 30)} GB, Node ${process.version}${QUICK ? ', --quick sizes' : ''}\n`);
+	console.log(line({ area: 'area', figure: 'figure', value: 'value', floor: 'floor (same run)', ratio: 'ratio', goal: 'goal', met: 'met' }));
+	for (const r of rows) console.log(line(r));
+	if (failures.length) console.log(`\nFAILED: ${failures.join('; ')}`);
+	mkdirSync(join(ROOT, '.bench'), { recursive: true });
+	const out = { date: started.toISOString(), cores, cpu: os.cpus()[0]?.model, mem_gb: Math.round(os.totalmem() / 2 ** 30), node: process.version, quick: QUICK, table: rows, failures, results };
+	writeFileSync(join(ROOT, '.bench/all.json'), JSON.stringify(out, null, 2) + '\n');
+	console.log(`\nwritten to .bench/all.json`);
+	process.exitCode = failures.length ? 1 : 0;
+}
+
+main();
