@@ -5,8 +5,11 @@ import { decide } from '$lib/server/access';
 import { sessionUser } from '$lib/server/session';
 import { isDbUnavailable, closeDb } from '$lib/server/db';
 import { closeRedis } from '$lib/server/redis';
+import { compress } from '$lib/server/compress';
 
 const isApi = (e: RequestEvent) => e.url.pathname.startsWith('/api/');
+/** Route ids of the +server endpoints (found at build time; the modules are not loaded here). */
+const ENDPOINTS = new Set(Object.keys(import.meta.glob('./routes/**/+server.ts')).map((k) => k.slice('./routes'.length, -'/+server.ts'.length) || '/'));
 const UNAVAILABLE = 'The database cannot be reached right now. Nothing was saved; try again in a minute.';
 
 /**
@@ -62,7 +65,8 @@ const authorize: Handle = async ({ event, resolve }) => {
 	}
 	const message =
 		decision === 'unknown-route' ? 'This address is not open to anyone yet.' : 'Your role does not include this screen or action.';
-	if (isApi(event) || event.request.method !== 'GET') return json({ message, code: 'forbidden' }, { status: 403 });
+	// Endpoints (CSV downloads, scans) have no layout to refuse them: they must be refused here.
+	if (isApi(event) || event.request.method !== 'GET' || ENDPOINTS.has(routeId)) return json({ message, code: 'forbidden' }, { status: 403 });
 	// A page: the root layout turns this into the app's own 403 page (no page data is ever rendered).
 	event.locals.denied = { status: 403, message };
 	return resolve(event);
@@ -88,7 +92,7 @@ const headers: Handle = async ({ event, resolve }) => {
 	return response;
 };
 
-export const handle = sequence(headers, authHandle, authorize);
+export const handle = sequence(compress, headers, authHandle, authorize);
 
 /** Unexpected errors: log the detail on the server, never send a stack trace or SQL. */
 export const handleError: HandleServerError = ({ error: e, event, status }) => {
