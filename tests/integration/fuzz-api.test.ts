@@ -142,7 +142,7 @@ describe('JSON API routes under generated malformed bodies', () => {
 describe('uploads: type by content, size limits, empty files, names with path characters', () => {
 	async function upload(c: Client, id: number, bytes: Uint8Array, name: string) {
 		const fd = new FormData();
-		fd.append('file', new File([bytes], name));
+		fd.append('file', new File([new Uint8Array(bytes)], name));
 		const res = await c.request(`/protocols/${id}?/upload`, { method: 'POST', body: fd, headers: { 'x-sveltekit-action': 'true', accept: 'application/json' } });
 		const text = await res.text();
 		expect(text).not.toMatch(LEAK);
