@@ -7,8 +7,6 @@ declare global {
 			user: { id: number; name: string; email: string; roles: Role[] } | null;
 			/** Set by handleError when the database could not be reached (answered 503). */
 			unavailable?: boolean;
-			/** Set by the access check for a refused page: the root layout renders the 403 page. */
-			denied?: { status: 403; message: string };
 		}
 		interface Error {
 			message: string;
@@ -21,3 +19,8 @@ declare global {
 }
 
 export {};
+
+declare module '*.html?raw' {
+	const content: string;
+	export default content;
+}

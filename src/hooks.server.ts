@@ -6,6 +6,12 @@ import { sessionUser } from '$lib/server/session';
 import { isDbUnavailable, closeDb } from '$lib/server/db';
 import { closeRedis } from '$lib/server/redis';
 import { compress } from '$lib/server/compress';
+import errorTemplate from './error.html?raw';
+
+const escapeHtml = (t: string) => t.replace(/[&<>"']/g, (c) => ({ '&': '&amp;', '<': '&lt;', '>': '&gt;', '"': '&quot;', "'": '&#39;' })[c]!);
+/** The same page SvelteKit shows for errors outside the layout (src/error.html). */
+const errorPage = (status: number, message: string) =>
+	errorTemplate.replaceAll('%sveltekit.status%', String(status)).replaceAll('%sveltekit.error.message%', escapeHtml(message));
 
 const isApi = (e: RequestEvent) => e.url.pathname.startsWith('/api/');
 /** Route ids of the +server endpoints (found at build time; the modules are not loaded here). */
@@ -65,11 +71,10 @@ const authorize: Handle = async ({ event, resolve }) => {
 	}
 	const message =
 		decision === 'unknown-route' ? 'This address is not open to anyone yet.' : 'Your role does not include this screen or action.';
-	// Endpoints (CSV downloads, scans) have no layout to refuse them: they must be refused here.
+	// Endpoints (CSV downloads, scans), API routes and actions: a JSON refusal.
 	if (isApi(event) || event.request.method !== 'GET' || ENDPOINTS.has(routeId)) return json({ message, code: 'forbidden' }, { status: 403 });
-	// A page: the root layout turns this into the app's own 403 page (no page data is ever rendered).
-	event.locals.denied = { status: 403, message };
-	return resolve(event);
+	// A page: the app's error page, answered here, so no load function or layout of it ever runs.
+	return new Response(errorPage(403, message), { status: 403, headers: { 'content-type': 'text/html; charset=utf-8' } });
 };
 
 /** Headers every response carries. The Content-Security-Policy comes from svelte.config.js. */
