@@ -160,7 +160,8 @@ export async function storeDiscrepancies(p: ProtocolRow, result: ReconcileResult
 				[`kind${i}`]: d.kind,
 				[`value${i}`]: d.value === null ? null : String(d.value),
 				[`other${i}`]: d.other === null ? null : String(d.other),
-				[`expected${i}`]: d.expected === null ? null : String(d.expected),
+				// written at the field's precision (z as 1.00), as a reviewer keeps it
+				[`expected${i}`]: d.expected === null ? null : d.field === 'raw' ? String(d.expected) : formatReference(d.field, d.expected),
 				[`oor${i}`]: d.out_of_range ? 1 : 0
 			});
 			return `(:p, :round, :pos${i}, :test${i}, :field${i}, :pass${i}, :kind${i}, :value${i}, :other${i}, :expected${i}, :oor${i})`;
