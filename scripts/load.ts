@@ -47,7 +47,7 @@ type AnyClient = InstanceType<typeof Client>;
 
 const log = (s: string) => console.error(`[test:load] ${s}`);
 const RUN = `LD${Date.now().toString(36).toUpperCase()}`;
-const RAWS = { 'speeded-match': 36, 'word-recall': 29, 'word-recall-delayed': 9, 'word-harvest': 21, 'rule-shift': 12 };
+const RAWS = { 'speeded-match': 36, 'word-recall': 29, 'word-recall-delayed': 9, 'word-harvest': 21, 'switch-rule': 12 };
 
 // ------------------------------------------------------------------ measuring
 const samples: number[] = [];

@@ -20,7 +20,7 @@ const worker = new Worker<MailJob>(
 		const result = await deliver(job.data);
 		return result;
 	},
-	{ connection: bullConnection(), concurrency: Number(process.env.WORKER_CONCURRENCY ?? 8), stalledInterval: stalledMs, maxStalledCount: 2 }
+	{ connection: bullConnection(), concurrency: Number(process.env.WORKER_CONCURRENCY ?? 8), stalledInterval: stalledMs, lockDuration: Math.max(stalledMs, 5_000), maxStalledCount: 2 }
 );
 worker.on('failed', (job, err) => console.error(`[worker] ${job?.data.key} attempt ${job?.attemptsMade}: ${err.message}`));
 worker.on('error', (err) => console.error(`[worker] ${err.message}`));

@@ -48,15 +48,15 @@ export const DEMO_BANDS: { code: string; min: number; max: number; n: number }[]
 
 export const DEMO_TESTS: DemoTest[] = [
 	{
-		code: 'digit-echo',
-		name: 'Digit Echo Span',
+		code: 'number-relay',
+		name: 'Number Relay Span',
 		domain: 'attention',
 		unit: 'points',
 		direction: 'higher_better',
 		raw: [0, 16, 0],
 		reported: ['scaled', 'percentile'],
 		reliability: 0.86,
-		notes: 'Forward and backward trials summed.',
+		notes: 'Number strings relayed back in order and in reverse; the two trial sets summed.',
 		norms: [[10.8, 2.3], [10.5, 2.3], [10.1, 2.4], [9.6, 2.4], [9.1, 2.5], [8.4, 2.6]]
 	},
 	{
@@ -73,7 +73,7 @@ export const DEMO_TESTS: DemoTest[] = [
 	},
 	{
 		code: 'speeded-match',
-		name: 'Speeded Symbol Match',
+		name: 'Speeded Figure Match',
 		domain: 'processing-speed',
 		unit: 'seconds',
 		direction: 'lower_better',
@@ -173,7 +173,7 @@ export const DEMO_TESTS: DemoTest[] = [
 	},
 	{
 		code: 'tile-pattern',
-		name: 'Tile Pattern Build',
+		name: 'Mosaic Assembly',
 		domain: 'visuospatial',
 		unit: 'points',
 		direction: 'higher_better',
@@ -195,8 +195,8 @@ export const DEMO_TESTS: DemoTest[] = [
 		norms: [[24.6, 3.3], [24.5, 3.3], [24.1, 3.4], [23.5, 3.6], [22.6, 3.8], [21.2, 4.1]]
 	},
 	{
-		code: 'rule-shift',
-		name: 'Rule Shift Errors',
+		code: 'switch-rule',
+		name: 'Switching Rule Errors',
 		domain: 'executive',
 		unit: 'errors',
 		direction: 'lower_better',
@@ -239,7 +239,7 @@ export const DEMO_BATTERIES = [
 		code: 'brief-screen',
 		name: 'Harbourview Brief Screen',
 		description: 'Invented demo battery: a 20-minute screen of speed, memory, language and executive function.',
-		tests: ['speeded-match', 'word-recall', 'word-recall-delayed', 'word-harvest', 'rule-shift']
+		tests: ['speeded-match', 'word-recall', 'word-recall-delayed', 'word-harvest', 'switch-rule']
 	}
 ];
 

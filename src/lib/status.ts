@@ -19,7 +19,7 @@ export const FIELD_SHORT: Record<string, string> = { raw: 'Raw', z: 'z', standar
 
 export const KIND_LABELS: Record<string, string> = {
 	missing: 'Missing',
-	sign_flip: 'Sign not reversed',
+	sign_flip: 'Direction wrong way round',
 	wrong_norm_group: 'Wrong norm group',
 	wrong_scale: 'Wrong scale',
 	raw_as_derived: 'Raw score copied',
@@ -41,4 +41,15 @@ export function ageOf(since: string | Date, now = new Date()): string {
 	const h = Math.round(m / 60);
 	if (h < 48) return `${h} h`;
 	return `${Math.round(h / 24)} d`;
+}
+
+/** Dates as ISO (YYYY-MM-DD) and times as 24-hour HH:MM, local time: unambiguous on any printout. */
+export function isoDateTime(d: string | Date | null | undefined): string {
+	if (!d) return '—';
+	const x = new Date(d);
+	const p = (n: number) => String(n).padStart(2, '0');
+	return `${x.getFullYear()}-${p(x.getMonth() + 1)}-${p(x.getDate())} ${p(x.getHours())}:${p(x.getMinutes())}`;
+}
+export function isoDate(d: string | Date | null | undefined): string {
+	return d ? isoDateTime(d).slice(0, 10) : '—';
 }

@@ -25,7 +25,7 @@ beforeAll(async () => {
 	browser = await launch();
 	const lead = await signedIn('lead');
 	id = await createViaForm(lead, { first: ACCOUNTS.scorer, second: ACCOUNTS.scorer2, reviewer: ACCOUNTS.reviewer, code: `E2E-${Date.now().toString(36).toUpperCase()}` });
-	correct = await correctScores(id, { 'speeded-match': 36, 'word-recall': 29, 'word-recall-delayed': 9, 'word-harvest': 21, 'rule-shift': 12 });
+	correct = await correctScores(id, { 'speeded-match': 36, 'word-recall': 29, 'word-recall-delayed': 9, 'word-harvest': 21, 'switch-rule': 12 });
 	order = (await protocolTests(id)).flatMap((t) => ['raw', ...t.reported].map((field) => ({ code: t.code, field })));
 	const fd = new FormData();
 	fd.append('file', new File([PNG], 'record-form.png'));
@@ -111,7 +111,7 @@ describe('double entry, end to end', () => {
 		expect(await page.getByTestId('scan').getAttribute('src')).toMatch(new RegExp(`/protocols/${id}/attachments/\\d+`));
 		const flip = page.locator('[data-testid="discrepancy"][data-kind="sign_flip"]');
 		const swap = page.locator('[data-testid="discrepancy"][data-kind="transposition"]');
-		expect(await flip.innerText()).toContain('Sign not reversed');
+		expect(await flip.innerText()).toContain('Direction wrong way round');
 		expect(await swap.innerText()).toContain('Digits swapped');
 		// the digits that moved are marked
 		expect(await swap.locator('[data-side="second"] mark').count()).toBeGreaterThan(0);

@@ -14,7 +14,7 @@ import { alive, mariadbPid, runDir, startMariadb, stopMariadb } from '../helpers
 import { selectOne, closeDb } from '../../src/lib/server/db';
 import { closeRedis } from '../../src/lib/server/redis';
 
-const RAWS = { 'speeded-match': 36, 'word-recall': 29, 'word-recall-delayed': 9, 'word-harvest': 21, 'rule-shift': 12 };
+const RAWS = { 'speeded-match': 36, 'word-recall': 29, 'word-recall-delayed': 9, 'word-harvest': 21, 'switch-rule': 12 };
 const appPid = () => Number(readFileSync(join(runDir(), 'app.pid'), 'utf8').trim());
 
 let lead: Client, s1: Client, s2: Client, reviewer: Client;

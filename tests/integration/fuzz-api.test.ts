@@ -72,7 +72,7 @@ beforeAll(async () => {
 	const locked = await createViaForm(lead, duties);
 	await saveAndSubmit(s1, locked, await correctScores(locked, {}));
 	const verified = await createViaForm(lead, duties);
-	const a = await correctScores(verified, { 'speeded-match': 36, 'word-recall': 29, 'word-recall-delayed': 9, 'word-harvest': 21, 'rule-shift': 12 });
+	const a = await correctScores(verified, { 'speeded-match': 36, 'word-recall': 29, 'word-recall-delayed': 9, 'word-harvest': 21, 'switch-rule': 12 });
 	const b = JSON.parse(JSON.stringify(a));
 	b['speeded-match'].z = String(-Number(a['speeded-match'].z));
 	await saveAndSubmit(s1, verified, a);

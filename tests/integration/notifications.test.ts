@@ -75,11 +75,11 @@ describe('review notifications', () => {
 		expect(m.html).toContain(`href="${link}"`);
 		// per discrepancy: test, field, both values with the differing characters marked, recomputed, kind in words
 		expect(m.text).toContain('Notify Word Recall (nt-recall), standard score (second pass)');
-		expect(m.text).toMatch(/First pass: {2}1\[1\]6\s/);
-		expect(m.text).toMatch(/Second pass: 16\[1\]\s/);
+		expect(m.text).toMatch(/First pass: {2}1\[16\]\s/); // both swapped digits marked
+		expect(m.text).toMatch(/Second pass: 1\[61\]\s/);
 		expect(m.text).toContain('Recomputed:  116');
 		expect(m.text).toContain('Kind: transposition (out of range): Two neighbouring digits swapped');
-		expect(m.text).toContain('Kind: sign flip: Looks like the direction was not reversed');
+		expect(m.text).toContain('Kind: sign flip: The direction is the wrong way round');
 		expect(m.text).toContain('Kind: wrong norm group');
 		expect(m.text).toMatch(/First pass: {2}\[-\]1\.07/);
 		expect(m.html).toMatch(/<mark[^>]*>-<\/mark>1\.07/);

@@ -22,7 +22,7 @@ afterAll(async () => {
 });
 
 const duties = { first: ACCOUNTS.scorer, second: ACCOUNTS.scorer2, reviewer: ACCOUNTS.reviewer };
-const RAWS = { 'speeded-match': 36, 'word-recall': 29, 'word-recall-delayed': 9, 'word-harvest': 21, 'rule-shift': 12 };
+const RAWS = { 'speeded-match': 36, 'word-recall': 29, 'word-recall-delayed': 9, 'word-harvest': 21, 'switch-rule': 12 };
 
 /** Two independent, different entries: the second scorer swaps two digits and forgets to reverse a timed test. */
 async function twoEntries(id: number): Promise<{ first: Scores; second: Scores }> {
@@ -79,7 +79,7 @@ describe('the blind rule, route by route', () => {
 	it('neither scorer can see the other pass before the second pass is submitted', async () => {
 		const id = await createViaForm(lead, duties);
 		const first = await correctScores(id, { ...RAWS, 'word-recall': 31 });
-		first['rule-shift'].raw = '47'; // a marker value only the first pass holds
+		first['switch-rule'].raw = '47'; // a marker value only the first pass holds
 		const r1 = await saveAndSubmit(s1, id, first);
 		expect(r1.body.status).toBe('awaiting_second');
 		// the second scorer drafts a marker of their own

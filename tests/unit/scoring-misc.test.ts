@@ -113,6 +113,18 @@ describe('character diff of two values (diff package)', () => {
 		expect(segs.filter((s) => s.kind !== 'added').map((s) => s.text).join('')).toBe('116');
 		expect(segs.filter((s) => s.kind !== 'removed').map((s) => s.text).join('')).toBe('161');
 	});
+	it('a transposition marks both swapped digits, position by position (118 / 181, 73.0 / 37.0)', () => {
+		expect(charDiff('118', '181')).toEqual([
+			{ text: '1', kind: 'same' },
+			{ text: '18', kind: 'removed' },
+			{ text: '81', kind: 'added' }
+		]);
+		expect(charDiff('73.0', '37.0')).toEqual([
+			{ text: '73', kind: 'removed' },
+			{ text: '37', kind: 'added' },
+			{ text: '.0', kind: 'same' }
+		]);
+	});
 	it('a sign added', () => {
 		expect(charDiff('1.00', '-1.00')).toEqual([{ text: '-', kind: 'added' }, { text: '1.00', kind: 'same' }]);
 	});

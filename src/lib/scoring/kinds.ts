@@ -38,7 +38,7 @@ export const KIND_RANK: Readonly<Record<Kind, number>> = Object.fromEntries(KIND
 /** One line per kind for reviewers: what probably happened. Our own wording. */
 export const KIND_EXPLANATIONS: Readonly<Record<Kind, string>> = {
 	missing: 'Left empty: the field should hold a score but nothing was entered.',
-	sign_flip: 'Looks like the direction was not reversed: this is the score the raw score would get if higher were better (or the other way round).',
+	sign_flip: 'The direction is the wrong way round: this is the score the raw score would get if the test\u2019s direction were reversed (the sign of z not reversed on a lower-is-better test, or reversed on a higher-is-better one).',
 	wrong_norm_group: 'Matches the score from another norm group of this test: probably looked up in the wrong age or demographic band.',
 	wrong_scale: 'Matches this score on another scale, e.g. a T-score written in the standard-score field.',
 	raw_as_derived: 'The raw score was copied into a derived-score field.',

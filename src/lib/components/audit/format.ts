@@ -1,3 +1,4 @@
+import { KIND_LABELS } from '$lib/status';
 /** Number formatting for the Audit screen (tabular figures are set in CSS). */
 export const fmt = (v: unknown, decimals = 2): string => {
 	if (v === null || v === undefined || v === '') return '—';
@@ -16,7 +17,8 @@ export const signed = (v: unknown, decimals = 2): string => {
 	const s = fmt(v, decimals);
 	return s !== '—' && Number(v) > 0 ? `+${s}` : s.replace('-', '−');
 };
-export const kindLabel = (k: string) => k.replace(/_/g, ' ');
+/** The same words for a kind as on the Review screen. */
+export const kindLabel = (k: string) => KIND_LABELS[k] ?? k.replace(/_/g, ' ');
 
 /** Marker shapes and dash patterns per series, so lines differ by more than colour. */
 export const SERIES_STYLES = [

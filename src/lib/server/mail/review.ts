@@ -236,7 +236,7 @@ export function markedValues(first: string | null, second: string | null): { tex
 			? '<em style="color:#4a5563">empty</em>'
 			: list
 					.map((s) =>
-						s.kind === 'same' ? esc(s.text) : `<mark style="background:#f6d776;color:#1d2733;font-weight:700;padding:0 1px">${esc(s.text)}</mark>`
+						s.kind === 'same' ? esc(s.text) : `<mark style="background:#f6d776;color:#1d2733;font-weight:700;padding:0 1px;border:1px solid #9a4a06;text-decoration:underline">${esc(s.text)}</mark>`
 					)
 					.join('');
 	const e1 = first === null || first === '';

@@ -50,6 +50,10 @@ export async function reviewView(protocolId: number, user: Actor) {
 	if (!duties.includes('reviewer') && !duties.includes('lead')) throw notFound();
 	if (p.status !== 'in_review' && p.status !== 'verified') throw new WorkflowError(409, 'This protocol is not in review yet: both passes must be submitted first.', undefined, 'not_in_review');
 	const tests = await protocolTests(p.id);
+	// Both passes' raw scores: after the second submit they are no longer blind, and a reviewer
+	// needs them to see what each recomputed value was computed from.
+	const passRows = await select<{ which: 'first' | 'second'; scores: unknown }>('SELECT which, scores FROM passes WHERE protocol_id = :p AND round = :r', { p: p.id, r: p.round });
+	const rawOf = (which: 'first' | 'second', code: string) => (jsonValue<Scores>(passRows.find((x) => x.which === which)?.scores) ?? {})[code]?.raw ?? null;
 	const rows = await select<DiscrepancyRow & { resolver: string | null }>(
 		`SELECT d.*, u.name AS resolver FROM discrepancies d LEFT JOIN users u ON u.id = d.resolved_by
 		  WHERE d.protocol_id = :p AND d.round = :r ORDER BY d.position`,
@@ -66,6 +70,8 @@ export async function reviewView(protocolId: number, user: Actor) {
 				id: d.id,
 				test: d.test_code,
 				testName: test?.name ?? d.test_code,
+				group: test?.groupCode ?? null,
+				raws: { first: rawOf('first', d.test_code), second: rawOf('second', d.test_code) },
 				domain: test?.domainName ?? '',
 				field: d.field,
 				pass: d.pass,
