@@ -66,7 +66,7 @@ describe('invitation by e-mail, in the browser', () => {
 		await admin.fill('#invite-name', 'Ines Varga');
 		await admin.fill('#invite-email', email);
 		await admin.getByLabel('Scorer', { exact: true }).last().check();
-		await admin.getByRole('button', { name: 'Send invitation' }).click();
+		await admin.getByRole('button', { name: 'Send invitation', exact: true }).click();
 		await admin.getByText('Invitation sent.').waitFor();
 		expect(await admin.getByTestId('people-table').innerText()).toContain(email);
 		const [mail] = await waitFor(async () => {

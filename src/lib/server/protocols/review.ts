@@ -1,3 +1,4 @@
+import type { Transaction } from 'sequelize';
 /**
  * Review: the discrepancy list of the current round, resolutions with optimistic locking,
  * sign-off (verified, locked) and reopening by a lead (a new round; history kept).
@@ -116,6 +117,7 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 		const { p, duties } = await protocolFor(d.protocol_id, user, t);
 		requireReviewer(duties);
 		if (p.status !== 'in_review' || d.round !== p.round) throw conflict('This protocol is not open for review (signed off, or a newer round exists).');
+		if (parsed.data.lockVersion !== d.lock_version) throw await staleResolution(d.id, t);
 		const v = passValues(d);
 		let kept: string | null;
 		if (choice === 'first') kept = v.first;
@@ -141,14 +143,7 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 			{ choice, kept, note: note || null, uid: user.id, id: d.id, lock: parsed.data.lockVersion },
 			t
 		);
-		if (affected !== 1) {
-			const now = await selectOne<{ resolution: string | null; resolved_value: string | null; name: string | null }>(
-				'SELECT d.resolution, d.resolved_value, u.name FROM discrepancies d LEFT JOIN users u ON u.id = d.resolved_by WHERE d.id = :id',
-				{ id: d.id },
-				t
-			);
-			throw new WorkflowError(409, `Someone else changed this discrepancy first${now?.name ? ` (${now.name} kept ${now.resolved_value ?? 'no value'})` : ''}. Reload to see it; your choice was not saved.`, undefined, 'stale');
-		}
+		if (affected !== 1) throw await staleResolution(d.id, t);
 		await audit(
 			{
 				actorId: user.id,
@@ -166,6 +161,16 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 		const open = await selectOne<{ n: number }>('SELECT COUNT(*) AS n FROM discrepancies WHERE protocol_id = :p AND round = :r AND resolved_at IS NULL', { p: p.id, r: p.round }, t);
 		return { id: d.id, resolution: choice, resolvedValue: kept, note: note || null, lockVersion: d.lock_version + 1, open: Number(open?.n ?? 0) };
 	});
+}
+
+/** The conflict answer for a resolution made on a stale view: who changed it, and to what. */
+async function staleResolution(id: number, t: Transaction): Promise<WorkflowError> {
+	const now = await selectOne<{ resolved_value: string | null; name: string | null }>(
+		'SELECT d.resolved_value, u.name FROM discrepancies d LEFT JOIN users u ON u.id = d.resolved_by WHERE d.id = :id',
+		{ id },
+		t
+	);
+	return new WorkflowError(409, `Someone else changed this discrepancy first${now?.name ? ` (${now.name} kept ${now.resolved_value ?? 'no value'})` : ''}. Reload to see it; your choice was not saved.`, undefined, 'stale');
 }
 
 export async function signOff(protocolId: number, user: Actor, body: unknown) {
