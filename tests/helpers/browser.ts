@@ -25,9 +25,16 @@ export async function signIn(page: Page, email: string, password: string, base =
 	await page.fill('#email', email);
 	await page.fill('#password', password);
 	await page.click('button[type=submit]');
-	// Either we leave the sign-in page, or it shows why not.
-	await Promise.race([
-		page.waitForURL((u) => !u.pathname.startsWith('/signin')),
-		page.getByTestId('signin-error').waitFor()
-	]);
+	// Either we leave the sign-in page, or it shows why not. 'commit' = the next document has
+	// started to arrive; then wait for its DOM (not for every subresource to finish loading).
+	try {
+		await Promise.race([
+			page.waitForURL((u) => !u.pathname.startsWith('/signin'), { waitUntil: 'commit', timeout: 45_000 }),
+			page.getByTestId('signin-error').waitFor({ timeout: 45_000 })
+		]);
+		await page.waitForLoadState('domcontentloaded');
+	} catch (e) {
+		const title = await page.title().catch(() => '?');
+		throw new Error(`sign-in as ${email} did not finish: at ${page.url()} ("${title}"): ${e instanceof Error ? e.message : e}`);
+	}
 }
