@@ -257,7 +257,9 @@ export async function listProtocols(user: Actor, opts: { status?: Status | null;
 	const params: Record<string, unknown> = { uid: user.id, limit: perPage, offset: (page - 1) * perPage };
 	if (!user.roles.includes('lead')) {
 		const parts: string[] = [];
-		if (user.roles.includes('scorer')) parts.push('p.first_scorer_id = :uid', 'p.second_scorer_id = :uid');
+		// through the passes (an index on scorer_id), not an OR over two protocol columns
+		if (user.roles.includes('scorer'))
+			parts.push('(p.id IN (SELECT pa.protocol_id FROM passes pa WHERE pa.scorer_id = :uid) AND (p.first_scorer_id = :uid OR p.second_scorer_id = :uid))');
 		if (user.roles.includes('reviewer')) parts.push('p.reviewer_id = :uid');
 		where.push(parts.length ? `(${parts.join(' OR ')})` : '0');
 	}
@@ -298,8 +300,9 @@ export interface WorkItem {
 	draftStarted: boolean;
 }
 
-/** What is waiting for this user, oldest first. */
-export async function worklist(user: Actor): Promise<WorkItem[]> {
+/** What is waiting for this user, oldest first: at most `limit` items of each kind (the oldest). */
+export const WORKLIST_LIMIT = 50;
+export async function worklist(user: Actor, limit = WORKLIST_LIMIT): Promise<WorkItem[]> {
 	const items: WorkItem[] = [];
 	if (user.roles.includes('scorer')) {
 		const rows = await select<{ id: number; code: string; battery: string; which: 'first' | 'second'; since: Date; status: Status; draft_version: number }>(
@@ -309,8 +312,8 @@ export async function worklist(user: Actor): Promise<WorkItem[]> {
 			   JOIN examinees e ON e.id = p.examinee_id
 			   JOIN batteries b ON b.id = p.battery_id
 			  WHERE pa.scorer_id = :uid AND pa.status = 'draft' AND p.status IN ('draft', 'awaiting_second')
-			  ORDER BY p.created_at, p.id LIMIT 200`,
-			{ uid: user.id }
+			  ORDER BY p.created_at, p.id LIMIT :limit`,
+			{ uid: user.id, limit }
 		);
 		for (const r of rows) items.push({ kind: r.which === 'first' ? 'enter_first' : 'enter_second', protocolId: r.id, code: r.code, battery: r.battery, since: r.since, status: r.status, open: 0, draftStarted: r.draft_version > 0 });
 	}
@@ -322,8 +325,8 @@ export async function worklist(user: Actor): Promise<WorkItem[]> {
 			   JOIN examinees e ON e.id = p.examinee_id
 			   JOIN batteries b ON b.id = p.battery_id
 			  WHERE p.reviewer_id = :uid AND p.status = 'in_review'
-			  ORDER BY p.status_changed_at, p.id LIMIT 200`,
-			{ uid: user.id }
+			  ORDER BY p.status_changed_at, p.id LIMIT :limit`,
+			{ uid: user.id, limit }
 		);
 		for (const r of rows) items.push({ kind: Number(r.open) > 0 ? 'review' : 'sign_off', protocolId: r.id, code: r.code, battery: r.battery, since: r.since, status: r.status, open: Number(r.open), draftStarted: false });
 	}
