@@ -14,17 +14,8 @@ import { reconcile, type NormDef, type TestDef, type PassInput } from '../../src
 import { formatReference, referenceScore, roundTo, zFromRaw, DERIVED_FIELDS, FIELDS, type DerivedField, type Field } from '../../src/lib/scoring/scales';
 import { DEMO_BANDS, DEMO_TESTS } from '../../db/seeds/catalog';
 import { attributedPasses, bandOf, numeric, rebuildDailySums, AUDIT_FIELDS_COLUMNS, AGREEMENT_PAIRS_COLUMNS } from '../../src/lib/server/audit-stats/record';
+import { rng } from './prng';
 
-export function rng(seed: number): () => number {
-	let a = seed >>> 0;
-	return () => {
-		a = (a + 0x6d2b79f5) >>> 0;
-		let t = a;
-		t = Math.imul(t ^ (t >>> 15), t | 1);
-		t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-		return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-	};
-}
 
 interface Profile {
 	email: string;

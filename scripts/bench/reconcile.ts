@@ -14,6 +14,7 @@
 import { mkdirSync, writeFileSync } from 'node:fs';
 import { dirname } from 'node:path';
 import { performance } from 'node:perf_hooks';
+import { rng } from './prng';
 import {
 	DERIVED_FIELDS,
 	reconcile,
@@ -36,17 +37,6 @@ const OUT = arg('out', '.bench/reconcile.json');
 const TESTS_PER_PROTOCOL = 10;
 const ERROR_RATE = 0.05;
 
-// mulberry32: small deterministic PRNG so every run benchmarks the same batch
-function rng(seed: number): () => number {
-	let a = seed >>> 0;
-	return () => {
-		a = (a + 0x6d2b79f5) >>> 0;
-		let t = a;
-		t = Math.imul(t ^ (t >>> 15), t | 1);
-		t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-		return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-	};
-}
 const rand = rng(20240607);
 const pick = <T>(xs: readonly T[]): T => xs[Math.floor(rand() * xs.length)];
 
