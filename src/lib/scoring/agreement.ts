@@ -338,18 +338,21 @@ export function iccMeanSquares(ratings: ReadonlyArray<ReadonlyArray<number>>): I
  * Values are not clamped: a negative ICC is reported as computed. A coefficient whose
  * denominator is 0 is null (e.g. every rating equal: no variance to apportion).
  */
-export function intraclassCorrelation(ratings: ReadonlyArray<ReadonlyArray<number>>): IccResult {
-	const ms = iccMeanSquares(ratings); // validates
-	const n = ratings.length;
-	const k = ratings[0].length;
+/**
+ * The six Shrout & Fleiss coefficients from the ANOVA mean squares of n targets × k raters, with
+ * the reason when some are undefined. Shared by the matrix form above and by the audit's running
+ * sums (src/lib/server/audit-stats/sums.ts), so the formulas exist once.
+ */
+export function iccFromMeanSquares(
+	ms: { bms: number; wms: number; jms: number; ems: number },
+	n: number,
+	k: number,
+	constant: boolean
+): { icc: Record<IccForm, number | null>; undefinedReason: string | null } {
 	const { bms, wms, jms, ems } = ms;
-
-	const first = ratings[0][0];
-	const constant = ratings.every((row) => row.every((v) => v === first));
 	const scale = bms + wms + jms + ems;
 	const ratio = (num: number, den: number): number | null =>
 		constant || !(Math.abs(den) > 1e-14 * scale) ? null : num / den;
-
 	const icc: Record<IccForm, number | null> = {
 		'ICC(1,1)': ratio(bms - wms, bms + (k - 1) * wms),
 		'ICC(2,1)': ratio(bms - ems, bms + (k - 1) * ems + (k * (jms - ems)) / n),
@@ -364,6 +367,16 @@ export function intraclassCorrelation(ratings: ReadonlyArray<ReadonlyArray<numbe
 		: anyNull
 			? 'a denominator is 0 (no variance between targets), so that ICC is undefined'
 			: null;
+	return { icc, undefinedReason };
+}
+
+export function intraclassCorrelation(ratings: ReadonlyArray<ReadonlyArray<number>>): IccResult {
+	const ms = iccMeanSquares(ratings); // validates
+	const n = ratings.length;
+	const k = ratings[0].length;
+	const first = ratings[0][0];
+	const constant = ratings.every((row) => row.every((v) => v === first));
+	const { icc, undefinedReason } = iccFromMeanSquares(ms, n, k, constant);
 	return { n, k, meanSquares: ms, icc, undefinedReason };
 }
 

@@ -14,7 +14,7 @@
  * src/lib/scoring/agreement.ts computes them from the matrix (tests/integration/audit-stats.test.ts
  * checks the two agree on random data). Bland–Altman: bias = Σd/n, sd = √((Σd² − n·bias²)/(n − 1)).
  */
-import { LIMITS_Z, type IccForm } from '../../scoring/agreement';
+import { LIMITS_Z, iccFromMeanSquares, type IccForm } from '../../scoring/agreement';
 
 export interface PairSums {
 	pairs: number;
@@ -64,26 +64,8 @@ export function iccFromSums(s: PairSums): { icc: Record<IccForm, number | null>;
 	const wms = ssw / n;
 	const jms = ssj;
 	const ems = sse / (n - 1);
-	const scale = bms + wms + jms + ems;
 	const constant = sst <= 1e-12 * Math.max(1, s.sxx + s.syy);
-	const ratio = (num: number, den: number): number | null => (constant || !(Math.abs(den) > 1e-14 * scale) ? null : num / den);
-	const icc: Record<IccForm, number | null> = {
-		'ICC(1,1)': ratio(bms - wms, bms + (k - 1) * wms),
-		'ICC(2,1)': ratio(bms - ems, bms + (k - 1) * ems + (k * (jms - ems)) / n),
-		'ICC(3,1)': ratio(bms - ems, bms + (k - 1) * ems),
-		'ICC(1,k)': ratio(bms - wms, bms),
-		'ICC(2,k)': ratio(bms - ems, bms + (jms - ems) / n),
-		'ICC(3,k)': ratio(bms - ems, bms)
-	};
-	const anyNull = Object.values(icc).some((v) => v === null);
-	return {
-		icc,
-		undefinedReason: constant
-			? 'every rating is the same value: there is no variance, so every ICC is 0/0'
-			: anyNull
-				? 'a denominator is 0 (no variance between targets), so that ICC is undefined'
-				: null
-	};
+	return iccFromMeanSquares({ bms, wms, jms, ems }, n, k, constant);
 }
 
 export function blandAltmanFromSums(s: PairSums): { bias: number; sd: number; lower: number; upper: number; n: number } | null {
