@@ -191,6 +191,20 @@ export const normSetSchema = z.object({
 });
 export type NormSetInput = z.output<typeof normSetSchema>;
 
+/**
+ * A partial change of a norm set (the API's PUT): only the fields sent. No defaults here — with
+ * `normSetSchema.partial()` the age rule's defaults filled themselves in, so a PUT of groups alone
+ * reset the norm set's age rule to 30-day borrowing and truncation.
+ */
+export const normSetPatchSchema = z.object({
+	code: normSetSchema.shape.code.optional(),
+	name: normSetSchema.shape.name.optional(),
+	source: normSetSchema.shape.source.optional(),
+	version: normSetSchema.shape.version.optional(),
+	borrow_days: z.enum(AGE_BORROW, { message: 'Choose 30 or actual' }).optional(),
+	rounding: z.enum(AGE_ROUNDING, { message: 'Choose truncate or round_days' }).optional()
+});
+
 /** The age rule as stored (the shape of `AgeRule` in src/lib/scoring/age.ts). */
 export function ageRuleOf(n: Pick<NormSetInput, 'borrow_days' | 'rounding'>): { borrowDays: 30 | 'actual'; rounding: 'truncate' | 'round_days' } {
 	return { borrowDays: n.borrow_days === 'actual' ? 'actual' : 30, rounding: n.rounding };

@@ -128,9 +128,9 @@ export async function createNormSet(input: unknown, actorId: number | null, tx?:
 	return tx ? run(tx) : transaction(run);
 }
 
-export async function updateNormSet(id: number, input: unknown, actorId: number | null): Promise<NormSetRecord> {
+export async function updateNormSet(id: number, input: unknown, actorId: number | null, tx?: Tx): Promise<NormSetRecord> {
 	const s = parseSet(input);
-	return transaction(async (tr) => {
+	const run = async (tr: Tx) => {
 		const old = await getNormSet(id, tr);
 		if (!old) throw notFoundError('This norm set');
 		const clash = await selectOne('SELECT id FROM norm_sets WHERE code = :code AND version = :version AND id <> :id', { ...s, id }, tr);
@@ -138,6 +138,42 @@ export async function updateNormSet(id: number, input: unknown, actorId: number 
 		await exec('UPDATE norm_sets SET code = :code, name = :name, source = :source, version = :version, age_rule = :rule WHERE id = :id', { ...s, rule: JSON.stringify(ageRuleOf(s)), id }, tr);
 		await audit({ actorId, entity: 'norm_set', entityId: id, action: 'update', oldValue: old, newValue: s }, tr);
 		return (await getNormSet(id, tr))!;
+	};
+	return tx ? run(tx) : transaction(run);
+}
+
+/**
+ * The norm set's PUT: change its details and, with `groups`, replace the groups of every test named
+ * in them, in ONE transaction: a refused group change (unknown test, overlapping ages, groups used
+ * by a protocol) leaves the details as they were too.
+ */
+export async function updateNormSetWithGroups(
+	id: number,
+	meta: Partial<Record<keyof NormSetInput, unknown>>,
+	groups: readonly NormGroupInput[] | undefined,
+	actorId: number | null
+): Promise<{ normSet: NormSetRecord; groups: NormGroupRecord[] }> {
+	return transaction(async (tr) => {
+		const current = await selectOne<{ id: number }>('SELECT id FROM norm_sets WHERE id = :id FOR UPDATE', { id }, tr);
+		if (!current) throw notFoundError('This norm set');
+		if (Object.keys(meta).length) {
+			const now = (await getNormSet(id, tr))!;
+			await updateNormSet(
+				id,
+				{ code: now.code, name: now.name, source: now.source, version: now.version, borrow_days: String(now.age_rule.borrowDays), rounding: now.age_rule.rounding, ...meta },
+				actorId,
+				tr
+			);
+		}
+		if (groups) {
+			const known = new Set((await select<{ code: string }>('SELECT code FROM tests WHERE is_current = 1', {}, tr)).map((t) => t.code));
+			const unknown = [...new Set(groups.map((g) => g.test_code))].filter((c) => !known.has(c));
+			if (unknown.length) throw new CatalogError(400, `Unknown test code: ${unknown.join(', ')}`, { groups: `Unknown test code: ${unknown.join(', ')}` });
+			assertRanges(groups.map((g, i) => ({ ...g, label: `groups[${i}] (${g.group_code})` })));
+			const r = await replaceNormGroups(id, groups, tr);
+			await audit({ actorId, entity: 'norm_set', entityId: id, action: 'replace_groups', newValue: r }, tr);
+		}
+		return { normSet: (await getNormSet(id, tr))!, groups: await listNormGroups(id, {}, tr) };
 	});
 }
 

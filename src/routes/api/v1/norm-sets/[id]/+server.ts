@@ -2,12 +2,9 @@ import type { RequestHandler } from './$types';
 import { json } from '@sveltejs/kit';
 import { z } from 'zod';
 import { requireRole, requireUser } from '$lib/server/guard';
-import { transaction } from '$lib/server/db';
-import { audit } from '$lib/server/audit';
-import { assertRanges, getNormSet, listNormGroups, replaceNormGroups, updateNormSet, notFoundError, CatalogError } from '$lib/server/catalog';
+import { getNormSet, listNormGroups, updateNormSetWithGroups, notFoundError } from '$lib/server/catalog';
 import { api, idOf, parseWith, readJson } from '$lib/server/catalog/api';
-import { normGroupSchema, normSetSchema } from '$lib/catalog/schema';
-import { validationContext } from '$lib/server/catalog/io';
+import { normGroupSchema, normSetPatchSchema } from '$lib/catalog/schema';
 
 /** The norm set and its groups (optionally of one test: ?test=code). */
 export const GET: RequestHandler = (event) =>
@@ -19,7 +16,7 @@ export const GET: RequestHandler = (event) =>
 		return json({ normSet, groups: await listNormGroups(id, { test: event.url.searchParams.get('test') ?? undefined }) });
 	});
 
-const putSchema = normSetSchema.partial().extend({ groups: z.array(normGroupSchema).max(200_000).optional() });
+const putSchema = normSetPatchSchema.extend({ groups: z.array(normGroupSchema).max(200_000).optional() });
 
 /**
  * Change the norm set's details, and with `groups` replace the groups of every test named in
@@ -29,26 +26,6 @@ export const PUT: RequestHandler = (event) =>
 	api(async () => {
 		const user = requireRole(event, 'lead');
 		const id = idOf(event.params.id);
-		const body = parseWith(putSchema, await readJson(event.request));
-		const current = await getNormSet(id);
-		if (!current) throw notFoundError('This norm set');
-		const { groups, ...meta } = body;
-		if (Object.keys(meta).length) {
-			await updateNormSet(
-				id,
-				{ code: current.code, name: current.name, source: current.source, version: current.version, borrow_days: String(current.age_rule.borrowDays), rounding: current.age_rule.rounding, ...meta },
-				user.id
-			);
-		}
-		if (groups) {
-			const ctx = await validationContext();
-			const unknown = [...new Set(groups.map((g) => g.test_code))].filter((c) => !ctx.testCodes.has(c));
-			if (unknown.length) throw new CatalogError(400, `Unknown test code: ${unknown.join(', ')}`, { groups: `Unknown test code: ${unknown.join(', ')}` });
-			assertRanges(groups.map((g, i) => ({ ...g, label: `groups[${i}] (${g.group_code})` })));
-			await transaction(async (tr) => {
-				const r = await replaceNormGroups(id, groups, tr);
-				await audit({ actorId: user.id, entity: 'norm_set', entityId: id, action: 'replace_groups', newValue: r }, tr);
-			});
-		}
-		return json({ normSet: await getNormSet(id), groups: await listNormGroups(id) });
+		const { groups, ...meta } = parseWith(putSchema, await readJson(event.request));
+		return json(await updateNormSetWithGroups(id, meta, groups, user.id));
 	});
