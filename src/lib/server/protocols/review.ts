@@ -112,9 +112,13 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 	}
 	const { choice, note } = parsed.data;
 	return transaction(async (t) => {
-		const d = await selectOne<DiscrepancyRow>('SELECT * FROM discrepancies WHERE id = :id', { id: discrepancyId }, t);
+		const found = await selectOne<{ protocol_id: number }>('SELECT protocol_id FROM discrepancies WHERE id = :id', { id: discrepancyId }, t);
+		if (!found) throw notFound('This discrepancy');
+		// Serialize with sign-off and reopen on the protocol row (both lock it too): the status is read
+		// under the lock, so a resolution can never land on a protocol signed off a moment earlier.
+		const { p, duties } = await protocolFor(found.protocol_id, user, t, true);
+		const d = await selectOne<DiscrepancyRow>('SELECT * FROM discrepancies WHERE id = :id FOR UPDATE', { id: discrepancyId }, t);
 		if (!d) throw notFound('This discrepancy');
-		const { p, duties } = await protocolFor(d.protocol_id, user, t);
 		requireReviewer(duties);
 		if (p.status !== 'in_review' || d.round !== p.round) throw conflict('This protocol is not open for review (signed off, or a newer round exists).');
 		if (parsed.data.lockVersion !== d.lock_version) throw await staleResolution(d.id, t);
@@ -144,6 +148,8 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 			t
 		);
 		if (affected !== 1) throw await staleResolution(d.id, t);
+		// A sign-off made on a view older than this decision is refused as stale (it did not see it).
+		await exec('UPDATE protocols SET lock_version = lock_version + 1 WHERE id = :id', { id: p.id }, t);
 		await audit(
 			{
 				actorId: user.id,
@@ -181,7 +187,7 @@ export async function signOff(protocolId: number, user: Actor, body: unknown) {
 		requireReviewer(duties);
 		if (p.status === 'verified') throw new WorkflowError(409, 'This protocol is already signed off.', undefined, 'already_verified');
 		if (p.status !== 'in_review') throw conflict('Only a protocol in review can be signed off.');
-		if (p.lock_version !== parsed.data.lockVersion) throw new WorkflowError(409, 'The protocol changed since you opened it (reassigned or reopened). Reload and check before signing off.', undefined, 'stale');
+		if (p.lock_version !== parsed.data.lockVersion) throw new WorkflowError(409, 'The protocol changed since you opened it (a decision was changed, or it was reassigned or reopened). Reload and check before signing off.', undefined, 'stale');
 		const open = await selectOne<{ n: number }>('SELECT COUNT(*) AS n FROM discrepancies WHERE protocol_id = :p AND round = :r AND resolved_at IS NULL', { p: p.id, r: p.round }, t);
 		if (Number(open?.n) > 0) throw conflict(`${open?.n} discrepanc${Number(open?.n) === 1 ? 'y is' : 'ies are'} still open. Resolve every one before signing off.`);
 		await exec(
@@ -241,6 +247,14 @@ export async function previousDecisions(protocolId: number, round: number) {
 	);
 }
 
+/** Two entered values are the same number; an empty or non-numeric value equals nothing. */
+function sameNumber(x: string | null | undefined, y: string | null | undefined): boolean {
+	if (x == null || y == null || String(x).trim() === '' || String(y).trim() === '') return false;
+	const a = Number(x);
+	const b = Number(y);
+	return Number.isFinite(a) && Number.isFinite(b) && a === b;
+}
+
 /** The verified value of every field: the pass value where both agreed, else the resolution. */
 export async function finalScores(protocolId: number, round: number): Promise<Scores> {
 	const first = await selectOne<{ scores: unknown }>('SELECT scores FROM passes WHERE protocol_id = :p AND round = :r AND which = \'first\'', { p: protocolId, r: round });
@@ -255,8 +269,10 @@ export async function finalScores(protocolId: number, round: number): Promise<Sc
 	for (const code of new Set([...Object.keys(a), ...Object.keys(b)])) {
 		// Derived scores are checked against each pass's own raw score, so when the raw scores differed
 		// the derived values follow the pass whose raw score was kept.
+		// An empty raw score is no number at all (Number(null) and Number('') are 0, which once made an
+		// empty first pass look like a kept raw score of 0).
 		const rawKept = rows.find((r) => r.test_code === code && r.field === 'raw')?.resolved_value;
-		const base = rawKept != null && Number(b[code]?.raw) === Number(rawKept) && Number(a[code]?.raw) !== Number(rawKept) ? b : a;
+		const base = rawKept != null && sameNumber(b[code]?.raw, rawKept) && !sameNumber(a[code]?.raw, rawKept) ? b : a;
 		const other = base === a ? b : a;
 		out[code] = {};
 		for (const f of new Set([...Object.keys(a[code] ?? {}), ...Object.keys(b[code] ?? {})]) as Set<Field>) {
