@@ -1,3 +1,5 @@
+import { dateTimeIn, dateIn } from './dates';
+
 /** Protocol statuses in words, with the icon used everywhere (never colour alone). Client-safe. */
 export const STATUS: Record<string, { label: string; icon: string; tone: 'neutral' | 'attention' | 'verified' }> = {
 	draft: { label: 'First pass', icon: 'draft', tone: 'neutral' },
@@ -43,13 +45,14 @@ export function ageOf(since: string | Date, now = new Date()): string {
 	return `${Math.round(h / 24)} d`;
 }
 
-/** Dates as ISO (YYYY-MM-DD) and times as 24-hour HH:MM, local time: unambiguous on any printout. */
-export function isoDateTime(d: string | Date | null | undefined): string {
-	if (!d) return '—';
-	const x = new Date(d);
-	const p = (n: number) => String(n).padStart(2, '0');
-	return `${x.getFullYear()}-${p(x.getMonth() + 1)}-${p(x.getDate())} ${p(x.getHours())}:${p(x.getMinutes())}`;
+/**
+ * Dates as ISO (YYYY-MM-DD) and times as 24-hour HH:MM in the clinic's time zone (every page has it
+ * as `page.data.timeZone`), with the zone's offset written out: unambiguous on any printout, and the
+ * same on the server and in the browser.
+ */
+export function isoDateTime(d: string | Date | null | undefined, timeZone: string): string {
+	return dateTimeIn(d, timeZone);
 }
-export function isoDate(d: string | Date | null | undefined): string {
-	return d ? isoDateTime(d).slice(0, 10) : '—';
+export function isoDate(d: string | Date | null | undefined, timeZone: string): string {
+	return dateIn(d, timeZone);
 }

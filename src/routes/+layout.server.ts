@@ -7,6 +7,8 @@ export const load: LayoutServerLoad = async ({ locals }) => {
 	return {
 		user,
 		nav: user ? navFor(user.roles, config.mailFakeUrl !== null) : [],
-		mode: config.mode
+		mode: config.mode,
+		/** The clinic's time zone: every time on every page is shown in it. */
+		timeZone: config.timeZone
 	};
 };

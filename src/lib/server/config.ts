@@ -13,6 +13,19 @@ function num(name: string, fallback: number): number {
 	return n;
 }
 
+/** The clinic's time zone (IANA name): "today", the default and latest test date, and every time shown. */
+function timeZone(): string {
+	const v = env.CLINIC_TIME_ZONE;
+	const fallback = Intl.DateTimeFormat().resolvedOptions().timeZone || 'UTC';
+	if (v === undefined || v === '') return fallback;
+	try {
+		new Intl.DateTimeFormat('en-US', { timeZone: v });
+	} catch {
+		throw new Error(`CLINIC_TIME_ZONE must be a time zone name such as Europe/Vienna, got "${v}"`);
+	}
+	return v;
+}
+
 export type Mode = 'demo' | 'test' | 'production';
 
 export const config = {
@@ -41,5 +54,7 @@ export const config = {
 		windowSeconds: num('SIGNIN_WINDOW_SECONDS', 900)
 	},
 	uploadMaxBytes: num('UPLOAD_MAX_BYTES', 10 * 1024 * 1024),
-	bcryptCost: num('BCRYPT_COST', 12)
+	bcryptCost: num('BCRYPT_COST', 12),
+	/** CLINIC_TIME_ZONE, default the server's own zone. */
+	timeZone: timeZone()
 };

@@ -5,6 +5,7 @@
 import { z } from 'zod';
 import { KINDS } from '../../scoring/kinds';
 import { FIELDS, type Field } from '../../scoring/scales';
+import { isoDateField as isoDate } from '../../dates';
 
 export interface AuditFilters {
 	/** Inclusive first day, YYYY-MM-DD (UTC). */
@@ -20,14 +21,6 @@ export interface AuditFilters {
 }
 
 export const FILTER_KEYS = ['from', 'to', 'scorer', 'battery', 'test', 'kind', 'field', 'format'] as const;
-
-const isoDate = z
-	.string()
-	.regex(/^\d{4}-\d{2}-\d{2}$/, 'Use a date written YYYY-MM-DD.')
-	.refine((s) => {
-		const d = new Date(`${s}T00:00:00Z`);
-		return !Number.isNaN(d.getTime()) && d.toISOString().slice(0, 10) === s;
-	}, 'This date does not exist.');
 
 const id = (what: string) =>
 	z

@@ -6,6 +6,7 @@
 import { json } from '@sveltejs/kit';
 import type { RequestHandler } from './$types';
 import { isReport, parseFilters, REPORT_NAMES, runReport, toCsv } from '$lib/server/audit-stats';
+import { clinicToday } from '$lib/server/clock';
 
 export const GET: RequestHandler = async ({ params, url }) => {
 	if (!isReport(params.report)) {
@@ -20,7 +21,7 @@ export const GET: RequestHandler = async ({ params, url }) => {
 	}
 	const result = await runReport(params.report, parsed.filters);
 	if (parsed.format === 'csv') {
-		const day = new Date().toISOString().slice(0, 10);
+		const day = clinicToday();
 		return new Response(toCsv(result), {
 			headers: {
 				'content-type': 'text/csv; charset=utf-8',

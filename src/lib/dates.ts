@@ -1,0 +1,84 @@
+/**
+ * Calendar dates and clock times for the screens, client-safe. One strict date parser for the whole
+ * app: `parseIsoDate` of the scoring module (YYYY-MM-DD, impossible dates such as 2023-02-30
+ * refused); every form and query that takes a date checks it through `isoDateField` below.
+ *
+ * Times are shown in the clinic's time zone (CLINIC_TIME_ZONE, passed to every page by the root
+ * layout), never in the browser's or the server's by accident, and always with the zone named.
+ */
+import { z } from 'zod';
+import { parseIsoDate } from './scoring/age';
+
+/** True for a real calendar date written YYYY-MM-DD. */
+export function isIsoDate(s: string): boolean {
+	try {
+		parseIsoDate(s);
+		return true;
+	} catch {
+		return false;
+	}
+}
+
+/** What is wrong with a date as typed, or null when it is a real calendar date. */
+export function dateProblem(s: string): string | null {
+	if (!/^\d{4}-\d{2}-\d{2}$/.test(s)) return 'Use a date written YYYY-MM-DD.';
+	return isIsoDate(s) ? null : `${s} does not exist (check the day and the month).`;
+}
+
+const checkDate = (s: string, ctx: z.RefinementCtx) => {
+	const problem = dateProblem(s);
+	if (problem) ctx.addIssue({ code: 'custom', message: problem });
+};
+
+/** A form or query field holding a calendar date. */
+export const isoDateField = z.string().superRefine(checkDate);
+/** The same, where an empty field means "not given". */
+export const optionalIsoDateField = z.string().superRefine((s, ctx) => (s === '' ? undefined : checkDate(s, ctx)));
+
+/** True when `timeZone` is an IANA zone name this runtime knows (e.g. Europe/Vienna). */
+export function isTimeZone(timeZone: string): boolean {
+	try {
+		new Intl.DateTimeFormat('en-US', { timeZone });
+		return true;
+	} catch {
+		return false;
+	}
+}
+
+function parts(d: Date, timeZone: string) {
+	const f = new Intl.DateTimeFormat('en-US', {
+		timeZone,
+		year: 'numeric',
+		month: '2-digit',
+		day: '2-digit',
+		hour: '2-digit',
+		minute: '2-digit',
+		hourCycle: 'h23',
+		timeZoneName: 'shortOffset'
+	});
+	const out: Record<string, string> = {};
+	for (const p of f.formatToParts(d)) out[p.type] = p.value;
+	return out;
+}
+
+/** The calendar date at instant `now` in `timeZone`, as YYYY-MM-DD. */
+export function todayIn(timeZone: string, now: Date = new Date()): string {
+	const p = parts(now, timeZone);
+	return `${p.year}-${p.month}-${p.day}`;
+}
+
+/** `2026-12-02 14:05 GMT+1`: 24-hour time in the clinic's zone, the zone's offset written out. */
+export function dateTimeIn(d: string | Date | null | undefined, timeZone: string): string {
+	if (!d) return '—';
+	const x = new Date(d);
+	if (Number.isNaN(x.getTime())) return '—';
+	const p = parts(x, timeZone);
+	return `${p.year}-${p.month}-${p.day} ${p.hour}:${p.minute} ${p.timeZoneName}`;
+}
+
+/** The date part only (YYYY-MM-DD) in the clinic's zone. */
+export function dateIn(d: string | Date | null | undefined, timeZone: string): string {
+	if (!d) return '—';
+	const x = new Date(d);
+	return Number.isNaN(x.getTime()) ? '—' : todayIn(timeZone, x);
+}
