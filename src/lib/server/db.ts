@@ -73,6 +73,24 @@ export function isDbUnavailable(e: unknown): boolean {
 	);
 }
 
+function dbErrorCode(e: unknown): { errno: number | null; code: string } {
+	const x = e as { original?: { errno?: number; code?: string }; parent?: { errno?: number; code?: string }; errno?: number; code?: string };
+	const o = x?.original ?? x?.parent ?? x;
+	return { errno: typeof o?.errno === 'number' ? o.errno : null, code: String(o?.code ?? '') };
+}
+
+/** A unique key refused the row (two requests inserting the same code or e-mail at once). */
+export function isUniqueViolation(e: unknown): boolean {
+	const { errno, code } = dbErrorCode(e);
+	return (e as { name?: string })?.name === 'SequelizeUniqueConstraintError' || errno === 1062 || code === 'ER_DUP_ENTRY';
+}
+
+/** InnoDB chose this transaction as a deadlock victim (or gave up waiting for a lock). */
+export function isLockConflict(e: unknown): boolean {
+	const { errno, code } = dbErrorCode(e);
+	return errno === 1213 || errno === 1205 || code === 'ER_LOCK_DEADLOCK' || code === 'ER_LOCK_WAIT_TIMEOUT';
+}
+
 /** A JSON column's value: the connector parses columns MariaDB reports as JSON, others are text. */
 export function jsonValue<T = unknown>(v: unknown): T {
 	if (v === null || v === undefined) return v as T;

@@ -1,11 +1,11 @@
 import { z } from 'zod';
+import { isoDateField as isoDate, optionalIsoDateField } from '../dates';
 
-const isoDate = z.string().regex(/^\d{4}-\d{2}-\d{2}$/, 'Use the form YYYY-MM-DD').refine((s) => !Number.isNaN(Date.parse(s)), 'Not a calendar date');
 const id = (what: string) => z.coerce.number({ message: `Choose ${what}` }).int().positive(`Choose ${what}`);
 
 export const newProtocolSchema = z.object({
 	code: z.string().trim().min(2, 'Enter the pseudonymous examinee code').max(40).regex(/^[A-Za-z0-9][A-Za-z0-9._-]*$/, 'Letters, digits, dot, dash and underscore only — no names'),
-	birthDate: z.union([isoDate, z.literal('')]).optional(),
+	birthDate: optionalIsoDateField.optional(),
 	sex: z.enum(['F', 'M', 'X', '']).optional(),
 	educationYears: z.union([z.coerce.number().int().min(0, 'At least 0').max(30, 'At most 30'), z.literal('')]).optional(),
 	name: z.string().trim().max(160).optional(),
@@ -16,3 +16,18 @@ export const newProtocolSchema = z.object({
 	secondScorerId: id('the second scorer'),
 	reviewerId: id('the reviewer')
 });
+
+/**
+ * Per-test norm-group overrides from the New protocol form: `override.<test>` (the group code) and
+ * `reason.<test>`. Empty choices are left out; the service checks the group and the reason.
+ */
+export function overridesFrom(values: Record<string, unknown>): Record<string, { groupCode: string; reason: string }> {
+	const out: Record<string, { groupCode: string; reason: string }> = {};
+	for (const [key, v] of Object.entries(values)) {
+		const m = /^override\.([a-z0-9][a-z0-9._-]{0,39})$/.exec(key);
+		if (!m || typeof v !== 'string' || v.trim() === '') continue;
+		const reason = values[`reason.${m[1]}`];
+		out[m[1]] = { groupCode: v.trim().slice(0, 40), reason: typeof reason === 'string' ? reason.slice(0, 500) : '' };
+	}
+	return out;
+}

@@ -4,7 +4,9 @@ export class WorkflowError extends Error {
 		public status: 400 | 403 | 404 | 409 | 413 | 415 | 422,
 		message: string,
 		public field?: string,
-		public code = 'workflow'
+		public code = 'workflow',
+		/** Extra data for the form or API answer (e.g. the norm groups to choose from). */
+		public detail?: Record<string, unknown>
 	) {
 		super(message);
 	}

@@ -3,12 +3,14 @@
  * (object-level access and the blind rule), and the protocol view.
  */
 import type { Transaction } from 'sequelize';
-import { select, selectOne, exec, transaction, type Tx } from '../db';
+import { select, selectOne, exec, transaction, isUniqueViolation, isLockConflict, type Tx } from '../db';
 import { audit } from '../audit';
 import { getUser } from '../users';
 import { batteryTests, normGroups, normSet, groupDef, protocolTests } from './catalog-read';
 import { selectNormGroup, type AgeWarning } from '../../scoring/age';
 import { WorkflowError, notFound, invalid, conflict } from './errors';
+import { clinicToday } from '../clock';
+import { dateProblem } from '../../dates';
 import type { Role } from '../../roles';
 
 export type Status = 'draft' | 'awaiting_second' | 'in_review' | 'verified';
@@ -117,7 +119,8 @@ export async function planGroups(
 	let age: ReturnType<typeof selectNormGroup>['age'] | null = null;
 	const plan: GroupPlan[] = tests.map((test) => {
 		const mine = groups.filter((g) => g.test_code === test.code);
-		const sel = selectNormGroup(ex.birthDate, testDate, mine.map(groupDef), { sex: ex.sex === 'X' ? null : ex.sex, educationYears: ex.educationYears });
+		// The norm set's own age rule (borrowing, rounding): instruments differ in how age is computed.
+		const sel = selectNormGroup(ex.birthDate, testDate, mine.map(groupDef), { sex: ex.sex === 'X' ? null : ex.sex, educationYears: ex.educationYears }, { rule: set.rule, today: clinicToday() });
 		age = sel.age;
 		const row = sel.group ? mine.find((g) => g.group_code === sel.group!.id) : undefined;
 		return { testCode: test.code, testName: test.name, groupCode: row?.group_code ?? null, groupId: row?.id ?? null, warnings: sel.warnings };
@@ -125,7 +128,37 @@ export async function planGroups(
 	return { set, tests, groups, plan, age: age! };
 }
 
+/** A test of the battery that no norm group covers for this examinee: the groups a lead may choose from. */
+export interface UncoveredTest {
+	testCode: string;
+	testName: string;
+	message: string;
+	groups: { code: string; label: string }[];
+}
+
+const monthsText = (m: number) => `${Math.floor(m / 12)};${m % 12}`;
+
 export async function createProtocol(input: NewProtocol, actor: Actor): Promise<number> {
+	if (input.examinee.birthDate) {
+		const problem = dateProblem(input.examinee.birthDate);
+		if (problem) throw invalid(`Birth date: ${problem}`, 'birthDate');
+	}
+	const testDateProblem = dateProblem(input.testDate);
+	if (testDateProblem) throw invalid(`Test date: ${testDateProblem}`, 'testDate');
+	const today = clinicToday();
+	if (input.testDate > today) throw invalid(`The test date ${input.testDate} is after today (${today}): enter the day the tests were given.`, 'testDate');
+	try {
+		return await insertProtocol(input, actor);
+	} catch (e) {
+		// Two leads creating the first protocol of one new examinee code at the same moment: the unique
+		// key (or InnoDB's deadlock check on the gap lock) refuses the second; nothing of it was written.
+		if (isUniqueViolation(e) || isLockConflict(e))
+			throw new WorkflowError(409, `Examinee code ${input.examinee.code} was being created by someone else at the same moment; nothing was saved. Submit again to use it.`, 'code', 'conflict');
+		throw e;
+	}
+}
+
+async function insertProtocol(input: NewProtocol, actor: Actor): Promise<number> {
 	return transaction(async (t) => {
 		await checkDuties(input.firstScorerId, input.secondScorerId, input.reviewerId, t);
 		const battery = await selectOne<{ id: number; norm_set_id: number | null }>('SELECT id, norm_set_id FROM batteries WHERE id = :id', { id: input.batteryId }, t);
@@ -148,6 +181,13 @@ export async function createProtocol(input: NewProtocol, actor: Actor): Promise<
 			await audit({ actorId: actor.id, entity: 'examinee', entityId: insertId, action: 'create', newValue: { code: input.examinee.code } }, t);
 			ex = { id: insertId, birth_date: input.examinee.birthDate, sex: input.examinee.sex ?? null, education_years: input.examinee.educationYears ?? null };
 		}
+		else if (input.examinee.birthDate && input.examinee.birthDate !== ex.birth_date) {
+			// Never guess which is right: a mistyped code would attach this protocol to someone else.
+			throw invalid(
+				`Examinee ${input.examinee.code} is on record with birth date ${ex.birth_date}, not ${input.examinee.birthDate}. Check the code; if it is the same person, leave the birth date empty (the recorded one is used) or correct the record first.`,
+				'birthDate'
+			);
+		}
 		if (input.testDate < ex.birth_date) throw invalid('The test date is before the birth date.', 'testDate');
 
 		const { plan, groups, age } = await planGroups(input.batteryId, normSetId, { birthDate: ex.birth_date, sex: ex.sex, educationYears: ex.education_years }, input.testDate, t);
@@ -169,6 +209,36 @@ export async function createProtocol(input: NewProtocol, actor: Actor): Promise<
 			},
 			t
 		);
+		// Tests no group covers: each needs a group chosen by the lead, with a reason. When one is missing
+		// or unusable, the answer lists every such test with the groups to choose from (the form shows them).
+		const uncovered: UncoveredTest[] = [];
+		for (const [i, test] of tests.entries()) {
+			if (plan[i].groupId) continue;
+			const o = input.overrides?.[test.code];
+			const mine = groups.filter((g) => g.test_code === test.code);
+			let message: string | null = null;
+			if (!o?.groupCode) message = `No norm group of this norm set covers age ${age.text} for ${test.name}; choose one with a reason.`;
+			else if (!mine.some((g) => g.group_code === o.groupCode)) message = `Norm group ${o.groupCode} does not exist for ${test.name}.`;
+			else if (!o.reason || o.reason.trim().length < 5) message = `Give a reason for using group ${o.groupCode} for ${test.name} (at least a few words).`;
+			uncovered.push({
+				testCode: test.code,
+				testName: test.name,
+				message: message ?? '',
+				groups: mine.map((g) => ({
+					code: g.group_code,
+					label: `${g.group_code}: ${monthsText(g.age_min_months)}–${monthsText(g.age_max_months)}${g.sex ? `, ${g.sex}` : ''}${g.edu_min !== null || g.edu_max !== null ? `, education ${g.edu_min ?? 0}–${g.edu_max ?? 99} years` : ''}`
+				}))
+			});
+		}
+		const problems = uncovered.filter((u) => u.message);
+		if (problems.length)
+			throw new WorkflowError(
+				422,
+				problems.length === 1 ? problems[0].message : `No norm group covers age ${age.text} for ${problems.length} tests; choose one for each, with a reason.`,
+				`overrides.${problems[0].testCode}`,
+				'no_group',
+				{ uncovered }
+			);
 		for (const [i, test] of tests.entries()) {
 			const o = input.overrides?.[test.code];
 			let groupId = plan[i].groupId;
@@ -252,7 +322,7 @@ export interface ProtocolListItem {
 /** Protocols this user has a duty on (leads: all), newest first, paginated. */
 export async function listProtocols(user: Actor, opts: { status?: Status | null; q?: string | null; page?: number; perPage?: number } = {}) {
 	const perPage = Math.min(100, Math.max(10, opts.perPage ?? 25));
-	const page = Math.max(1, opts.page ?? 1);
+	const page = Number.isSafeInteger(opts.page) ? Math.max(1, opts.page!) : 1;
 	const where: string[] = [];
 	const params: Record<string, unknown> = { uid: user.id, limit: perPage, offset: (page - 1) * perPage };
 	if (!user.roles.includes('lead')) {

@@ -3,9 +3,10 @@ import { fail, redirect } from '@sveltejs/kit';
 import { requireRole } from '$lib/server/guard';
 import { select } from '$lib/server/db';
 import { usersWithRole } from '$lib/server/users';
-import { createProtocol } from '$lib/server/protocols/service';
+import { createProtocol, type UncoveredTest } from '$lib/server/protocols/service';
 import { WorkflowError } from '$lib/server/protocols/errors';
-import { newProtocolSchema } from '$lib/validation/protocol';
+import { newProtocolSchema, overridesFrom } from '$lib/validation/protocol';
+import { clinicToday, clinicTimeZone } from '$lib/server/clock';
 import { fieldErrors } from '$lib/validation/people';
 
 export const load: PageServerLoad = async (event) => {
@@ -23,7 +24,9 @@ export const load: PageServerLoad = async (event) => {
 		normSets,
 		scorers: scorers.map((u) => ({ id: u.id, name: u.name })),
 		reviewers: reviewers.map((u) => ({ id: u.id, name: u.name })),
-		today: new Date().toISOString().slice(0, 10)
+		// The clinic's calendar day, not the UTC one: the default and the latest test date.
+		today: clinicToday(),
+		timeZone: clinicTimeZone()
 	};
 };
 
@@ -49,13 +52,14 @@ export const actions: Actions = {
 					testDate: v.testDate,
 					firstScorerId: v.firstScorerId,
 					secondScorerId: v.secondScorerId,
-					reviewerId: v.reviewerId
+					reviewerId: v.reviewerId,
+					overrides: overridesFrom(values)
 				},
 				actor
 			);
 			redirect(303, `/protocols/${id}?created=1`);
 		} catch (e) {
-			if (e instanceof WorkflowError) return fail(e.status, { values, errors: { [e.field ?? 'form']: e.message } });
+			if (e instanceof WorkflowError) return fail(e.status, { values, errors: { [e.field ?? 'form']: e.message }, uncovered: (e.detail?.uncovered as UncoveredTest[] | undefined) ?? null });
 			throw e;
 		}
 	}
