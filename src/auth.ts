@@ -71,6 +71,17 @@ export const { handle, signIn, signOut } = SvelteKitAuth(async (event) => ({
 		})
 	],
 	callbacks: {
+		// Where to go after sign-in: Auth.js's default rule, plus a target holding control characters
+		// (CR, LF, tab…) falls back to the start page instead of failing as a header (a 500).
+		async redirect({ url, baseUrl }) {
+			if (/[\u0000-\u001f\u007f]/.test(url)) return baseUrl;
+			if (url.startsWith('/')) return `${baseUrl}${url}`;
+			try {
+				return new URL(url).origin === baseUrl ? url : baseUrl;
+			} catch {
+				return baseUrl;
+			}
+		},
 		async jwt({ token, user }) {
 			const now = Date.now();
 			if (user) {

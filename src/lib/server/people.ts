@@ -1,5 +1,5 @@
 /** The People service: invitations, role changes and deactivation, with their e-mails. */
-import { transaction } from './db';
+import { transaction, isUniqueViolation } from './db';
 import { createUser, getUserByEmail, setActive, setRoles, getUser } from './users';
 import { enqueueMail } from './mail/outbox';
 import type { Role } from '../roles';
@@ -15,27 +15,43 @@ export class PeopleError extends Error {
 }
 
 export async function invite(input: { email: string; name: string; roles: Role[] }, actor: { id: number; name: string }): Promise<number> {
-	if (await getUserByEmail(input.email)) throw new PeopleError('email', 'An account with this e-mail already exists.');
-	return transaction(async (t) => {
-		const id = await createUser(input, actor.id, t);
-		await enqueueMail('invite', `invite:${id}:${randomUUID()}`, { userId: id, invitedBy: actor.name }, t);
-		return id;
-	});
+	const taken = () => new PeopleError('email', 'An account with this e-mail already exists.');
+	if (await getUserByEmail(input.email)) throw taken();
+	try {
+		return await transaction(async (t) => {
+			const id = await createUser(input, actor.id, t);
+			await enqueueMail('invite', `invite:${id}:${randomUUID()}`, { userId: id, invitedBy: actor.name }, t);
+			return id;
+		});
+	} catch (e) {
+		// Two invitations of one address at the same moment: the unique key refuses the second.
+		if (isUniqueViolation(e)) throw taken();
+		throw e;
+	}
+}
+
+/** The account an action names, or a refusal naming the id (a stale page, or a tampered form). */
+async function existing(id: number) {
+	const user = await getUser(id);
+	if (!user) throw new PeopleError('form', `No account has id ${id}. Reload the page; it may be out of date.`);
+	return user;
 }
 
 export async function resendInvite(id: number, actor: { id: number; name: string }): Promise<void> {
-	const user = await getUser(id);
-	if (!user || !user.invited) throw new PeopleError('form', 'That person has already set a password.');
+	const user = await existing(id);
+	if (!user.invited) throw new PeopleError('form', 'That person has already set a password.');
 	await enqueueMail('invite', `invite:${id}:${randomUUID()}`, { userId: id, invitedBy: actor.name });
 }
 
 export async function changeRoles(id: number, roles: Role[], actor: { id: number }): Promise<void> {
 	if (id === actor.id && !roles.includes('admin')) throw new PeopleError('roles', 'You cannot remove your own administrator role.');
+	await existing(id);
 	await setRoles(id, roles, actor.id);
 }
 
 export async function changeActive(id: number, active: boolean, actor: { id: number }): Promise<void> {
-	if (id === actor.id && !active) throw new PeopleError('form', 'You cannot deactivate your own account.');
+	if (id === actor.id && !active) throw new PeopleError('form', 'You cannot deactivate your own account. Another administrator can.');
+	await existing(id);
 	await setActive(id, active, actor.id);
 }
 

@@ -11,6 +11,8 @@ const MESSAGES: Record<string, string> = {
 
 /** Only same-site paths may be returned to after sign-in. */
 function safeTarget(value: string | null): string {
+	// Control characters (CR, LF, tab…) cannot go into a Location header: fall back to the start page.
+	if (value && /[\u0000-\u001f\u007f]/.test(value)) return '/';
 	return value && value.startsWith('/') && !value.startsWith('//') && !value.startsWith('/signin') ? value : '/';
 }
 
