@@ -10,6 +10,17 @@ cd "$ROOT_DIR" || exit 1
 ensure_packages
 ensure_node_modules
 mkdir -p "$RUN_DIR"
+# Types first (svelte-check over the app, the scripts and the tests): an error fails the run before
+# any service starts. CROSSTALLY_SKIP_CHECK=1 skips it for a quick subset while iterating.
+if [ "${CROSSTALLY_SKIP_CHECK:-0}" != 1 ]; then
+	log "type check (npm run check)"
+	npm run --silent check -- --threshold error --output machine >"$RUN_DIR/check.log" 2>&1
+	check_status=$?
+	if [ $check_status -ne 0 ]; then
+		grep -E 'ERROR|COMPLETED' "$RUN_DIR/check.log" >&2 || tail -n 40 "$RUN_DIR/check.log" >&2
+		die "type check failed (npm run check); no tests were run"
+	fi
+fi
 # short intervals so reminder tests run in seconds
 export REMINDER_INTERVAL_MINUTES="${REMINDER_INTERVAL_MINUTES:-0.05}" SESSION_IDLE_MINUTES="${SESSION_IDLE_MINUTES:-30}"
 # every test signs in from 127.0.0.1: the per-address limit is unit-tested instead

@@ -18,8 +18,8 @@ import {
 	blandAltman,
 	cohenKappa,
 	intraclassCorrelation
-} from '../../src/lib/scoring/agreement.ts';
-import { parseAgreementInput } from '../../src/lib/scoring/agreement-schema.ts';
+} from '../../src/lib/scoring/agreement';
+import { parseAgreementInput } from '../../src/lib/scoring/agreement-schema';
 
 /** At most this many problems are listed; the rest are counted. */
 const MAX_ERRORS = 20;

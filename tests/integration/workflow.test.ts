@@ -280,7 +280,7 @@ describe('attachments', () => {
 	const png = new Uint8Array([0x89, 0x50, 0x4e, 0x47, 0x0d, 0x0a, 0x1a, 0x0a, 0, 0, 0, 13, 73, 72, 68, 82]);
 	async function upload(c: Client, id: number, bytes: Uint8Array, name: string) {
 		const fd = new FormData();
-		fd.append('file', new File([bytes], name));
+		fd.append('file', new File([new Uint8Array(bytes)], name));
 		const res = await c.request(`/protocols/${id}?/upload`, { method: 'POST', body: fd, headers: { 'x-sveltekit-action': 'true', accept: 'application/json' } });
 		return (await res.json()) as { type: string; status?: number; data?: string };
 	}
