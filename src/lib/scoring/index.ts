@@ -8,11 +8,15 @@ export * from './digits';
 export { charDiff, type DiffSegment } from './diff';
 export {
 	reconcile,
+	testReferences,
 	checkField,
 	classifyDerived,
 	classifyPair,
 	ReconcileInputError,
 	type Discrepancy,
+	type TestDiscrepancy,
+	type CompositeDiscrepancy,
+	type Reference,
 	type FieldProblem,
 	type FieldProblemCode,
 	type FieldValues,
@@ -25,4 +29,5 @@ export {
 	type ReconcileResult,
 	type TestDef
 } from './reconcile';
+export * from './norms';
 export { parseReconcileInput, reconcileInputSchema, formatPath, type ParseResult } from './schema';

@@ -26,6 +26,7 @@ import {
 } from './scales';
 import { isDigitDrop, isDigitExtra, isTransposition, isWrongDigit } from './digits';
 import { KIND_RANK, type Kind } from './kinds';
+import { isCompositeNorm, type AnyNormEntry, type CompositeDef, type CompositeField, type Covariates, type MeanSdNorm, type NormEntry } from './norms';
 
 export type { Kind } from './kinds';
 
@@ -44,12 +45,8 @@ export interface TestDef {
 	bounds?: BoundsOverride | null;
 }
 
-export interface NormDef {
-	test: string;
-	group: string;
-	mean: number;
-	sd: number;
-}
+/** A mean/SD norm (the original form; `form` absent or `"mean_sd"`). See ./norms for all forms. */
+export type NormDef = MeanSdNorm;
 
 export type FieldValues = Partial<Record<Field, Entered>>;
 
@@ -61,22 +58,31 @@ export interface PassInput {
 export interface ProtocolInput {
 	/** The norm group used for every test … */
 	group: string;
-	/** … unless a test has its own here (test id → group). */
+	/** … unless a test or composite has its own here (test or composite id → group). */
 	groups?: Readonly<Record<string, string>> | null;
+	/** Covariate values for regression norms (e.g. `{ age: 46, education: 14 }`). */
+	covariates?: Covariates | null;
 }
 
 export interface ReconcileInput {
 	tests: readonly TestDef[];
-	norms: readonly NormDef[];
+	/** Test norms (any form) and composite norms, side by side. */
+	norms: readonly AnyNormEntry[];
+	/** Composites over the tests, in output order. */
+	composites?: readonly CompositeDef[] | null;
 	protocol: ProtocolInput;
 	passes: readonly [PassInput, PassInput] | readonly PassInput[];
 }
 
 export type PassName = 'first' | 'second' | 'both';
 
-export interface Discrepancy {
-	test: string;
-	field: Field;
+/**
+ * A reference value: a number, or (percentile-only tables) a percentile band as the table writes it
+ * (`"10-25"`, `"<=5"`, `">=75"`).
+ */
+export type Reference = number | string;
+
+interface DiscrepancyBase {
 	pass: PassName;
 	kind: Kind;
 	/** The flagged pass's value as entered (the first pass's for `both`); null when empty. */
@@ -84,9 +90,30 @@ export interface Discrepancy {
 	/** The other pass's value for the same field, or null. */
 	other: number | string | null;
 	/** The recomputed reference, or null (raw fields; passes without a usable raw score). */
-	expected: number | null;
+	expected: Reference | null;
+	/**
+	 * Rule 5: when the two raw scores differ and both are usable, the reference computed from the
+	 * other pass's raw score (for `both`, the first pass's); otherwise null. Always null on composites.
+	 */
+	alternative: Reference | null;
 	out_of_range: boolean;
 }
+
+/** A discrepancy on a test's field. */
+export interface TestDiscrepancy extends DiscrepancyBase {
+	test: string;
+	composite?: undefined;
+	field: Field;
+}
+
+/** A discrepancy on a composite's field (these come after all the tests' discrepancies). */
+export interface CompositeDiscrepancy extends DiscrepancyBase {
+	composite: string;
+	test?: undefined;
+	field: CompositeField;
+}
+
+export type Discrepancy = TestDiscrepancy | CompositeDiscrepancy;
 
 export interface ReconcileResult {
 	discrepancies: Discrepancy[];
@@ -134,9 +161,11 @@ function derivedOutOfRange(field: DerivedField, p: number | null, bounds: Bounds
  * Kind of a derived value `v` (parsed `p`) that differs from its reference `r`, by the spec's order.
  * Precondition: ctx.z is not null, p is not within 1e-6 of r.
  */
-export function classifyDerived(field: DerivedField, v: Entered, p: number | null, r: number, ctx: PassCtx): Kind {
+export function classifyDerived(field: DerivedField, v: Entered, p: number | null, r: number, ctx: PassCtx, alt: number | null = null): Kind {
 	if (p === null) return 'missing';
 	if (Number.isNaN(p)) return 'mismatch';
+	// follows_other_raw: right for the other pass's raw score (rule 5)
+	if (alt !== null && eq(p, alt)) return 'follows_other_raw';
 	const { test } = ctx;
 	const z = ctx.z as number;
 	const bounds = test.bounds;
@@ -196,9 +225,13 @@ export function classifyPair(
 	return 'mismatch';
 }
 
-function indexNorms(norms: readonly NormDef[]): Map<string, NormDef[]> {
+function indexNorms(norms: readonly AnyNormEntry[]): Map<string, NormDef[]> {
 	const byTest = new Map<string, NormDef[]>();
 	for (const n of norms) {
+		if (isCompositeNorm(n)) continue;
+		if (n.form !== undefined && n.form !== 'mean_sd') {
+			throw new ReconcileInputError(`norm form ${JSON.stringify(n.form)} is not handled by this version of the engine`, ['norms']);
+		}
 		const list = byTest.get(n.test);
 		if (list) list.push(n);
 		else byTest.set(n.test, [n]);
@@ -207,6 +240,32 @@ function indexNorms(norms: readonly NormDef[]): Map<string, NormDef[]> {
 }
 
 const EMPTY: FieldValues = {};
+
+/**
+ * The references of one test for a given raw score, through the given norm (any form; regression
+ * norms need the protocol's covariates): every derived field the norm yields, which is all five for
+ * mean/SD, regression and score tables, and `percentile` alone for percentile-only tables (a number
+ * or a band string). The review screen re-judges a test's derived discrepancies against the kept raw
+ * score with this. Returns null when the raw score is empty, not a number, or outside the test's
+ * range (no reference, as in rule 3). Pure; the same computation `reconcile` uses.
+ */
+export function testReferences(
+	test: TestDef,
+	norm: NormEntry,
+	raw: Entered,
+	covariates?: Covariates | null
+): Partial<Record<DerivedField, Reference>> | null {
+	const n = parseEntered(raw, 'raw');
+	if (n === null || Number.isNaN(n) || !rawInRange(n, test.raw)) return null;
+	if (norm.form !== undefined && norm.form !== 'mean_sd') {
+		void covariates;
+		throw new ReconcileInputError(`norm form ${JSON.stringify(norm.form)} is not handled by this version of the engine`, ['norms']);
+	}
+	const z = zFromRaw(n, norm.mean, norm.sd, test.direction);
+	const out: Partial<Record<DerivedField, Reference>> = {};
+	for (const f of DERIVED_FIELDS) out[f] = referenceScore(f, z, test.bounds);
+	return out;
+}
 
 /**
  * Reconcile one protocol. Throws ReconcileInputError when a test has no norms for its group or there
@@ -246,10 +305,10 @@ export function reconcile(input: ReconcileInput): ReconcileResult {
 		const rawSame =
 			n1 !== null && n2 !== null && (Number.isNaN(n1) || Number.isNaN(n2) ? writtenForm(v1) === writtenForm(v2) : eq(n1, n2));
 		if (n1 === null && n2 === null) {
-			out.push({ test: test.id, field: 'raw', pass: 'both', kind: 'missing', value: null, other: null, expected: null, out_of_range: false });
+			out.push({ test: test.id, field: 'raw', pass: 'both', kind: 'missing', value: null, other: null, expected: null, alternative: null, out_of_range: false });
 		} else if (rawSame) {
 			if (!ok1) {
-				out.push({ test: test.id, field: 'raw', pass: 'both', kind: 'out_of_range', value: v1 as number | string, other: v2 as number | string, expected: null, out_of_range: true });
+				out.push({ test: test.id, field: 'raw', pass: 'both', kind: 'out_of_range', value: v1 as number | string, other: v2 as number | string, expected: null, alternative: null, out_of_range: true });
 			}
 		} else {
 			const oor1 = n1 !== null && !ok1;
@@ -265,6 +324,7 @@ export function reconcile(input: ReconcileInput): ReconcileResult {
 				value: shown(fv, fn),
 				other: shown(ov, on),
 				expected: null,
+				alternative: null,
 				out_of_range: flaggedOor
 			});
 		}
@@ -307,12 +367,13 @@ export function reconcile(input: ReconcileInput): ReconcileResult {
 						value: a1 as number | string,
 						other: a2 as number | string,
 						expected: r,
+						alternative: null,
 						out_of_range: derivedOutOfRange(field, p1, bounds)
 					});
 					continue;
 				}
-				if (!e1) out.push(derived(test.id, field, 'first', a1, p1, a2, p2, r, c1(), bounds));
-				if (!e2) out.push(derived(test.id, field, 'second', a2, p2, a1, p1, r, c2(), bounds));
+				if (!e1) out.push(derived(test.id, field, 'first', a1, p1, a2, p2, r, null, c1(), bounds));
+				if (!e2) out.push(derived(test.id, field, 'second', a2, p2, a1, p1, r, null, c2(), bounds));
 				continue;
 			}
 
@@ -325,9 +386,10 @@ export function reconcile(input: ReconcileInput): ReconcileResult {
 				r1 !== null && r2 !== null && eq(r1, r2) && !e1 && !e2 && p1 !== null && p2 !== null &&
 				!Number.isNaN(p1) && !Number.isNaN(p2) && eq(p1, p2)
 			) {
-				const k1 = classifyDerived(field, a1, p1, r1, c1());
-				const k2 = classifyDerived(field, a2, p2, r2, c2());
-				out.push({ test: test.id, field, pass: 'both', kind: KIND_RANK[k2] < KIND_RANK[k1] ? k2 : k1, value: a1 as number | string, other: a2 as number | string, expected: r1, out_of_range: derivedOutOfRange(field, p1, bounds) });
+				// both references exist here, so the raw scores differ and both are usable: rule 5's alternatives
+				const k1 = classifyDerived(field, a1, p1, r1, c1(), r2);
+				const k2 = classifyDerived(field, a2, p2, r2, c2(), r1);
+				out.push({ test: test.id, field, pass: 'both', kind: KIND_RANK[k2] < KIND_RANK[k1] ? k2 : k1, value: a1 as number | string, other: a2 as number | string, expected: r1, alternative: r2, out_of_range: derivedOutOfRange(field, p1, bounds) });
 				continue;
 			}
 			const peersDiffer =
@@ -347,18 +409,19 @@ export function reconcile(input: ReconcileInput): ReconcileResult {
 					value: shown(a1, p1),
 					other: shown(a2, p2),
 					expected: null,
+					alternative: null,
 					out_of_range: oor
 				};
 			};
 			// first pass's slot
 			if (r1 !== null) {
-				if (!e1) out.push(derived(test.id, field, 'first', a1, p1, a2, p2, r1, c1(), bounds));
+				if (!e1) out.push(derived(test.id, field, 'first', a1, p1, a2, p2, r1, r2, c1(), bounds));
 			} else if (peersDiffer) {
 				out.push(peer());
 			}
 			// second pass's slot (when neither has a reference, the one peer comparison is already made)
 			if (r2 !== null) {
-				if (!e2) out.push(derived(test.id, field, 'second', a2, p2, a1, p1, r2, c2(), bounds));
+				if (!e2) out.push(derived(test.id, field, 'second', a2, p2, a1, p1, r2, r1, c2(), bounds));
 			} else if (peersDiffer && r1 !== null) {
 				out.push(peer());
 			}
@@ -376,6 +439,7 @@ function derived(
 	o: Entered,
 	po: number | null,
 	r: number,
+	alt: number | null,
 	ctx: PassCtx,
 	bounds: BoundsOverride | null | undefined
 ): Discrepancy {
@@ -383,10 +447,11 @@ function derived(
 		test,
 		field,
 		pass,
-		kind: classifyDerived(field, v, p, r, ctx),
+		kind: classifyDerived(field, v, p, r, ctx, alt),
 		value: shown(v, p),
 		other: shown(o, po),
 		expected: r,
+		alternative: alt,
 		out_of_range: derivedOutOfRange(field, p, bounds)
 	};
 }
