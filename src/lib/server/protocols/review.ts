@@ -149,7 +149,13 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 		);
 		if (affected !== 1) throw await staleResolution(d.id, t);
 		// A sign-off made on a view older than this decision is refused as stale (it did not see it).
-		await exec('UPDATE protocols SET lock_version = lock_version + 1 WHERE id = :id', { id: p.id }, t);
+		// Compare-and-set, as the sign-off does: the protocol must still be in review as read above.
+		const moved = await exec(
+			"UPDATE protocols SET lock_version = lock_version + 1 WHERE id = :id AND status = 'in_review' AND round = :round AND lock_version = :lock",
+			{ id: p.id, round: p.round, lock: p.lock_version },
+			t
+		);
+		if (moved.affected !== 1) throw conflict('This protocol was signed off or changed at the same moment; your choice was not saved. Reload to see its state.');
 		await audit(
 			{
 				actorId: user.id,
