@@ -17,6 +17,7 @@ import { normGroups } from '../../src/lib/server/protocols/catalog-read';
 import { getUserByEmail } from '../../src/lib/server/users';
 import { referenceScore, zFromRaw, roundTo, type DerivedField, type Field } from '../../src/lib/scoring/scales';
 import { recordFormPdf } from './record-form';
+import { clinicToday } from '../../src/lib/server/clock';
 
 function prng(seed: number) {
 	return () => {
@@ -149,7 +150,8 @@ export async function seedProtocols(): Promise<void> {
 		const battery = batteries.find((b) => b.code === plan.battery);
 		if (!battery) throw new Error(`demo battery ${plan.battery} missing`);
 		const week = Math.floor((70 - plan.daysAgo) / 7);
-		const testDate = new Date(Date.now() - plan.daysAgo * 86400_000).toISOString().slice(0, 10);
+		// the clinic's calendar day (CLINIC_TIME_ZONE): never after its today, which creation refuses
+		const testDate = clinicToday(new Date(Date.now() - plan.daysAgo * 86400_000));
 		await at(plan.daysAgo + 0.5, 9);
 		const id = await createProtocol(
 			{
