@@ -3,9 +3,8 @@ import { fail } from '@sveltejs/kit';
 import { superValidate, message, setError } from 'sveltekit-superforms';
 import { zod4 } from 'sveltekit-superforms/adapters';
 import { requireRole, idParam, notFound } from '$lib/server/guard';
-import { getNormSet, listNormGroups, listTests, updateNormSet, addNormGroup, deleteNormGroup, CatalogError } from '$lib/server/catalog';
+import { getNormSet, listNormGroups, listTests, updateNormSet, addNormGroup, deleteNormGroup, listAllComposites, CatalogError } from '$lib/server/catalog';
 import { validationContext } from '$lib/server/catalog/io';
-import { models } from '$lib/server/models';
 import { normGroupSchema, normSetSchema } from '$lib/catalog/schema';
 
 export const load: PageServerLoad = async (event) => {
@@ -15,7 +14,7 @@ export const load: PageServerLoad = async (event) => {
 	if (!set) notFound('This norm set');
 	const [groups, tests, ctx] = await Promise.all([listNormGroups(id), listTests(), validationContext()]);
 	const spans = ctx.spans ?? {};
-	const composites = await models().Composite.findAll({ attributes: ['code', 'name'], order: [['code', 'ASC']] });
+	const composites = await listAllComposites();
 	return {
 		set,
 		groups,
