@@ -159,7 +159,7 @@ export function memoryIndex(
 		'memory-index': { sum: 27, standard: 120, percentile: 91 }
 	};
 	const pass = (o: Record<string, Record<string, unknown>>) =>
-		Object.fromEntries(Object.entries(right).map(([k, v]) => [k, { ...v, ...(o[k] ?? {}) }]));
+		Object.fromEntries([...new Set([...Object.keys(right), ...Object.keys(o)])].map((k) => [k, { ...(right[k] ?? {}), ...(o[k] ?? {}) }]));
 	return structuredClone({
 		tests: [{ ...WORD_RECALL, reported: ['scaled'] }, { ...TILE_BUILD, reported: ['scaled'] }],
 		norms: [...NORMS.filter((n) => n.test === 'word-recall'), ...TILE_NORMS, MEMORY_INDEX_NORM],
