@@ -61,4 +61,23 @@ describe('the catalog table grid', () => {
 		expect({ ...saved, n: Number(saved!.n) }).toEqual({ form: 'table', scale: 'scaled', n: 7 });
 		await page.screenshot({ path: `${SHOTS}/norm-set.png`, fullPage: true });
 	});
+
+	it('shows the battery\'s composites and lets a lead edit them', async () => {
+		const b = await selectOne<{ id: number }>("SELECT id FROM batteries WHERE code = 'tidewater-profile'");
+		await page.goto(`${BASE_URL}/catalog/batteries/${b!.id}`);
+		const rows = page.getByTestId('battery-composites').locator('tbody tr');
+		expect(await rows.count()).toBe(2);
+		expect(await rows.first().innerText()).toMatch(/^Memory Index memory-index\s+Harbour Word Recall \+ Tile Build \(scaled scores\)\s+Sum, Standard score, Percentile\s+0\.9$/);
+		const editor = page.getByTestId('composites-editor');
+		await editor.getByLabel('Reliability').first().fill('0.91');
+		await editor.getByRole('button', { name: 'Save composites' }).click();
+		await editor.getByText('Composites saved.').waitFor();
+		const r = await selectOne<{ reliability: number }>("SELECT reliability FROM composites WHERE code = 'memory-index'");
+		expect(Number(r!.reliability)).toBe(0.91);
+		await page.screenshot({ path: `${SHOTS}/battery.png`, fullPage: true });
+		// back to the demo's 0.90 (the summary's interval below is worked with it)
+		await editor.getByLabel('Reliability').first().fill('0.9');
+		await editor.getByRole('button', { name: 'Save composites' }).click();
+		await page.waitForFunction(() => document.querySelector('[data-testid=composites-editor] [role=status]')?.textContent === 'Composites saved.');
+	});
 });
