@@ -144,7 +144,11 @@ export const reconcileInputSchema = z
 		}, { error: 'expected object' }),
 		passes: z.array(passSchema, { error: 'expected array' }).length(2, { error: 'expected exactly two passes' })
 	}, { error: 'expected object' })
-	.superRefine((doc, ctx) => crossCheck(doc as unknown as Doc, ctx));
+	.superRefine((doc, ctx) => {
+		// zod runs this even after a norm entry's own (custom) issues: check across the document only when every part is well formed
+		if ((ctx as unknown as { issues?: unknown[] }).issues?.length) return;
+		crossCheck(doc as unknown as Doc, ctx);
+	});
 
 type Issue = { path: (string | number)[]; message: string };
 type Doc = {
