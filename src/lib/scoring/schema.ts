@@ -145,8 +145,10 @@ export const reconcileInputSchema = z
 		passes: z.array(passSchema, { error: 'expected array' }).length(2, { error: 'expected exactly two passes' })
 	}, { error: 'expected object' })
 	.superRefine((doc, ctx) => {
-		// zod runs this even after a norm entry's own (custom) issues: check across the document only when every part is well formed
-		if ((ctx as unknown as { issues?: unknown[] }).issues?.length) return;
+		// zod runs this refinement after non-fatal issues too (unknown keys, refinements) — and after a norm
+		// entry's own issues, which are custom ones: the norms' shapes are only known good when none was raised
+		const issues = (ctx as unknown as { issues?: { path?: PropertyKey[] }[] }).issues ?? [];
+		if (issues.some((i) => i.path?.[0] === 'norms')) return;
 		crossCheck(doc as unknown as Doc, ctx);
 	});
 
