@@ -39,6 +39,8 @@ export const up: Migration = async ({ context: q }) => {
 			probability DECIMAL(5,4) NULL,
 			draw_value INT UNSIGNED NULL,
 			raw_fields INT UNSIGNED NULL,
+			fields_entered INT UNSIGNED NULL,
+			checked_at DATETIME(3) NULL,
 			policy LONGTEXT NULL CHECK (policy IS NULL OR JSON_VALID(policy)),
 			KEY verification_protocols_scorer (scorer_id, battery_id, outcome, decided_at)
 		)`

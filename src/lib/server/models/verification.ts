@@ -46,6 +46,10 @@ export class VerificationProtocol extends Model<InferAttributes<VerificationProt
 	declare draw_value: CreationOptional<number | null>;
 	/** Raw fields the first scorer entered in this protocol. */
 	declare raw_fields: CreationOptional<number | null>;
+	/** All fields the first scorer entered in this protocol. */
+	declare fields_entered: CreationOptional<number | null>;
+	/** When the second pass of a drawn protocol was reconciled (it then counts in the sample). */
+	declare checked_at: CreationOptional<Date | null>;
 	declare policy: CreationOptional<Record<string, unknown> | null>;
 }
 
@@ -98,6 +102,8 @@ export function verificationModels() {
 				},
 				draw_value: { type: DataTypes.INTEGER.UNSIGNED, allowNull: true },
 				raw_fields: { type: DataTypes.INTEGER.UNSIGNED, allowNull: true },
+				fields_entered: { type: DataTypes.INTEGER.UNSIGNED, allowNull: true },
+				checked_at: { type: DataTypes.DATE(3), allowNull: true },
 				policy: {
 					type: DataTypes.TEXT('long'),
 					allowNull: true,

@@ -220,7 +220,7 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 		if (which === 'first') {
 			// Risk-based verification: the draw is made here, at the submission, never before.
 			const scores = jsonValue<Scores>(pass.scores) ?? {};
-			const outcome = await decideAtFirstSubmit(p, scores, user, t);
+			const outcome = await decideAtFirstSubmit(p, scores, pass.fields_entered, user, t);
 			if (outcome === 'not_drawn') {
 				const single = await reconcileSinglePass(p, { id: pass.id, scorer_id: pass.scorer_id, fields_entered: pass.fields_entered, scores }, user, t);
 				await moveProtocol(p, 'in_review', t);

@@ -204,7 +204,7 @@ export const rawFieldsOf = (scores: Scores) => Object.values(scores).filter((x) 
  * At the first pass's submission (inside its transaction, after the pass is marked submitted):
  * decide whether this protocol gets a second pass. Returns the outcome; 'not_drawn' = single pass.
  */
-export async function decideAtFirstSubmit(p: ProtocolRow, scores: Scores, actor: Actor, t: Transaction): Promise<DrawOutcome> {
+export async function decideAtFirstSubmit(p: ProtocolRow, scores: Scores, fieldsEntered: number, actor: Actor, t: Transaction): Promise<DrawOutcome> {
 	const { VerificationProtocol } = verificationModels();
 	const row = await VerificationProtocol.findByPk(p.id, { transaction: t, lock: t.LOCK.UPDATE });
 	const policy = await getPolicy(p.battery_id, t);
@@ -236,6 +236,8 @@ export async function decideAtFirstSubmit(p: ProtocolRow, scores: Scores, actor:
 			probability: outcome === 'drawn' || outcome === 'not_drawn' ? policy.probability : null,
 			draw_value: drawValue,
 			raw_fields: rawFieldsOf(scores),
+			fields_entered: fieldsEntered,
+			checked_at: null,
 			policy: plainPolicy
 		},
 		{ transaction: t }
@@ -304,6 +306,7 @@ export async function afterReconcile(p: ProtocolRow, t: Transaction) {
 	const row = await VerificationProtocol.findByPk(p.id, { transaction: t });
 	const policy = await getPolicy(p.battery_id, t);
 	if (row?.outcome === 'drawn') {
+		await VerificationProtocol.update({ checked_at: new Date() }, { where: { protocol_id: p.id }, transaction: t });
 		const errors = await selectOne<{ n: number }>(
 			`SELECT COUNT(*) AS n FROM discrepancies WHERE protocol_id = :p AND round = :r AND field = 'raw' AND pass IN ('first', 'both')`,
 			{ p: p.id, r: p.round },
@@ -446,17 +449,15 @@ export async function verificationAudit(): Promise<{ rows: ScorerRisk[]; policie
 		if (!policy) continue;
 		const st = await standing(s, b);
 		const q = await qualification(s, b, policy, st);
-		const fields = await selectOne<{ with_second: number | null; without_second: number | null }>(
-			`SELECT SUM(IF(v.outcome = 'not_drawn', 0, pa.fields_entered)) AS with_second, SUM(IF(v.outcome = 'not_drawn', pa.fields_entered, 0)) AS without_second
-			   FROM passes pa JOIN protocols p ON p.id = pa.protocol_id AND p.round = pa.round
-			   LEFT JOIN verification_protocols v ON v.protocol_id = p.id
-			  WHERE pa.scorer_id = :s AND p.battery_id = :b AND pa.status = 'submitted'
-			    AND (v.outcome = 'not_drawn' OR p.status IN ('in_review', 'verified'))`,
+		// fields of double-entered rounds from the audit's own per-pass rows; single passes from their draw rows
+		const withSecond = await selectOne<{ n: number | null }>(
+			`SELECT SUM(a.fields_entered) AS n FROM audit_fields a WHERE a.scorer_id = :s AND a.battery_id = :b AND a.test_code = ''
+			    AND NOT EXISTS (SELECT 1 FROM verification_protocols v WHERE v.protocol_id = a.protocol_id AND v.outcome = 'not_drawn')`,
 			{ s, b }
 		);
 		const sample = await selectOne<{ protocols: number; fields: number | null }>(
-			`SELECT COUNT(*) AS protocols, SUM(v.raw_fields) AS fields FROM verification_protocols v JOIN protocols p ON p.id = v.protocol_id
-			  WHERE v.scorer_id = :s AND v.battery_id = :b AND v.outcome = 'drawn' AND p.status IN ('in_review', 'verified')`,
+			`SELECT COUNT(*) AS protocols, SUM(v.raw_fields) AS fields FROM verification_protocols v
+			  WHERE v.scorer_id = :s AND v.battery_id = :b AND v.outcome = 'drawn' AND v.checked_at IS NOT NULL`,
 			{ s, b }
 		);
 		const sampleErrors = await selectOne<{ n: number }>(
@@ -467,8 +468,8 @@ export async function verificationAudit(): Promise<{ rows: ScorerRisk[]; policie
 			     OR EXISTS (SELECT 1 FROM error_events e WHERE e.discrepancy_id = d.id AND e.scorer_id = :s))`,
 			{ s, b }
 		);
-		const unsampled = await selectOne<{ protocols: number; fields: number | null }>(
-			`SELECT COUNT(*) AS protocols, SUM(raw_fields) AS fields FROM verification_protocols WHERE scorer_id = :s AND battery_id = :b AND outcome = 'not_drawn'`,
+		const unsampled = await selectOne<{ protocols: number; fields: number | null; all_fields: number | null }>(
+			`SELECT COUNT(*) AS protocols, SUM(raw_fields) AS fields, SUM(fields_entered) AS all_fields FROM verification_protocols WHERE scorer_id = :s AND battery_id = :b AND outcome = 'not_drawn'`,
 			{ s, b }
 		);
 		const n = Number(sample?.fields ?? 0);
@@ -481,8 +482,8 @@ export async function verificationAudit(): Promise<{ rows: ScorerRisk[]; policie
 			policy,
 			standing: st,
 			qualification: q,
-			fieldsWithSecond: Number(fields?.with_second ?? 0),
-			fieldsWithoutSecond: Number(fields?.without_second ?? 0),
+			fieldsWithSecond: Number(withSecond?.n ?? 0),
+			fieldsWithoutSecond: Number(unsampled?.all_fields ?? 0),
 			sampledProtocols: Number(sample?.protocols ?? 0),
 			unsampledProtocols: Number(unsampled?.protocols ?? 0),
 			undetected: undetectedErrors(x, n, Number(unsampled?.fields ?? 0))
