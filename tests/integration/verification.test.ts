@@ -232,7 +232,7 @@ describe('back to full double entry', () => {
 		const next = await newProtocol(b.id, a.id, second.id);
 		expect((await saveAndSubmit(c, next, await correctScores(next, {}))).body.status).toBe('awaiting_second');
 		expect((await drawOf(next))?.outcome).toBe('scorer_full');
-	}, 120_000);
+	}, 240_000);
 
 	it('a lead can require a second pass for one protocol; the scorer sees nothing of it before submitting', async () => {
 		const b = await makeBattery();
