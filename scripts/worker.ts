@@ -10,6 +10,7 @@ import { MAIL_QUEUE, dispatchOutbox, closeMailQueue } from '../src/lib/server/ma
 import { deliver, type MailJob } from '../src/lib/server/mail/deliver';
 import { closeDb } from '../src/lib/server/db';
 import { recoverLostReviewMail } from '../src/lib/server/mail/review'; // also registers the review renderers
+import '../src/lib/server/mail/verification'; // registers the back-to-full-double-entry e-mail
 
 const interval = Number(process.env.DISPATCH_INTERVAL_MS ?? 500);
 const stalledMs = Number(process.env.WORKER_STALLED_MS ?? (process.env.CROSSTALLY_MODE === 'production' ? 30_000 : 3_000));

@@ -7,6 +7,7 @@ import { selectOne } from '../db';
 import { protocolFor, type Actor } from './service';
 import { protocolTests, normGroups, normSet } from './catalog-read';
 import { finalScores } from './review';
+import { isSinglePass, SINGLE_PASS_NOTE } from '../verification';
 import { notFound, WorkflowError } from './errors';
 import { labelFor, AACN_2020 } from '../../scoring/labels';
 import { confidenceInterval } from '../../scoring/reliability';
@@ -85,7 +86,7 @@ export async function protocolSummary(protocolId: number, user: Actor) {
 	});
 	const placed = rows.filter((r) => r.z !== null);
 	return {
-		protocol: { id: p.id, code: ex!.code, testDate: p.test_date, age: p.age_text, battery: battery!.name, round: p.round, verifiedAt: p.verified_at, verifiedBy: signer?.name ?? null },
+		protocol: { id: p.id, code: ex!.code, testDate: p.test_date, age: p.age_text, battery: battery!.name, round: p.round, verifiedAt: p.verified_at, verifiedBy: signer?.name ?? null, singlePass: await isSinglePass(p.id) },
 		normSet: set ? { name: set.name, version: set.version, source: set.source } : null,
 		rows,
 		lowScores: { below: placed.filter((r) => (r.z as number) < -1).length, given: placed.length },
@@ -100,16 +101,18 @@ export function summaryCsv(s: Awaited<ReturnType<typeof protocolSummary>>): stri
 		if (/^[=+\-@\t\r]/.test(x) && !/^-?\d/.test(x)) x = `'${x}`;
 		return /[",\n]/.test(x) ? `"${x.replace(/"/g, '""')}"` : x;
 	};
-	const head = ['examinee_code', 'test_date', 'age', 'domain', 'test', 'norm_group', 'raw', 'z', 'standard', 'scaled', 't', 'percentile', 'percentile_recomputed', 'label', 'ci95_lower', 'ci95_upper', 'ci_scale'];
+	const head = ['examinee_code', 'test_date', 'age', 'domain', 'test', 'norm_group', 'raw', 'z', 'standard', 'scaled', 't', 'percentile', 'percentile_recomputed', 'label', 'ci95_lower', 'ci95_upper', 'ci_scale', 'entry'];
+	const entry = s.protocol.singlePass ? 'single pass' : 'double entry';
 	const lines = [head.join(',')];
 	for (const r of s.rows) {
 		lines.push(
-			[s.protocol.code, s.protocol.testDate, s.protocol.age, r.domain, r.name, r.group, r.raw, r.values.z, r.values.standard, r.values.scaled, r.values.t, r.percentile?.value, r.percentile?.recomputed ? 'yes' : 'no', r.label?.text, r.ci?.lower, r.ci?.upper, r.ci?.field]
+			[s.protocol.code, s.protocol.testDate, s.protocol.age, r.domain, r.name, r.group, r.raw, r.values.z, r.values.standard, r.values.scaled, r.values.t, r.percentile?.value, r.percentile?.recomputed ? 'yes' : 'no', r.label?.text, r.ci?.lower, r.ci?.upper, r.ci?.field, entry]
 				.map(cell)
 				.join(',')
 		);
 	}
 	lines.push('');
+	if (s.protocol.singlePass) lines.push(`# ${SINGLE_PASS_NOTE}`);
 	lines.push(`# Norms: ${s.normSet ? `${s.normSet.name} (${s.normSet.version}). ${s.normSet.source}` : 'unknown'}`.replace(/\n/g, ' '));
 	lines.push('# Scores support, and never replace, the judgement of a licensed clinician.');
 	return lines.join('\r\n') + '\r\n';
