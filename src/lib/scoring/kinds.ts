@@ -53,5 +53,40 @@ export const KIND_EXPLANATIONS: Readonly<Record<Kind, string>> = {
 };
 
 export function explainKind(kind: Kind): string {
-	return KIND_EXPLANATIONS[kind];
+	return KIND_EXPLANATIONS[kind] ?? 'Differs, with no recognisable pattern.';
+}
+
+/**
+ * The one name of each kind that people read: Review chips, e-mails, Audit filters and tables, CSV
+ * and the batch command's documentation all use these words (never the internal code).
+ * Kinds the engine may add later fall back to their code in words (`kindName`).
+ */
+export const KIND_NAMES: Readonly<Record<string, string>> = {
+	missing: 'Missing',
+	follows_other_raw: 'Fits the other raw score',
+	carried: 'Carried from its parts',
+	sum_error: 'Sum wrong',
+	sign_flip: 'Direction wrong way round',
+	wrong_norm_group: 'Wrong norm group',
+	adjacent_row: 'Neighbouring table row',
+	wrong_scale: 'Wrong scale',
+	raw_as_derived: 'Raw score copied',
+	decimal_shift: 'Decimal shift',
+	transposition: 'Digits swapped',
+	rounding: 'Rounding',
+	digit_drop: 'Digit left out',
+	digit_extra: 'Extra digit',
+	wrong_digit: 'Wrong digit',
+	out_of_range: 'Impossible value',
+	mismatch: 'Differs'
+};
+
+/** A kind's name in words ("Digits swapped" for `transposition`). */
+export function kindName(kind: string): string {
+	return KIND_NAMES[kind] ?? kind.replace(/_/g, ' ');
+}
+
+/** Every kind with its name and one-line explanation, in the engine's order (for filters, docs and CSV). */
+export function kindList(): { id: Kind; name: string; explanation: string }[] {
+	return KINDS.map((k) => ({ id: k, name: kindName(k), explanation: explainKind(k) }));
 }

@@ -6,7 +6,8 @@
 import { selectOne } from '../db';
 import { protocolFor, type Actor } from './service';
 import { protocolTests, normGroups, normSet } from './catalog-read';
-import { finalScores } from './review';
+import { finalScores, keptAgainstRecomputation } from './review';
+import { protocolAmendments } from './amendments';
 import { notFound, WorkflowError } from './errors';
 import { labelFor, AACN_2020 } from '../../scoring/labels';
 import { confidenceInterval } from '../../scoring/reliability';
@@ -32,6 +33,8 @@ export interface SummaryRow {
 	z: number | null;
 	/** True when a verified derived score differs from what the verified raw score gives. */
 	inconsistent: boolean;
+	/** Cells whose kept value contradicts the recomputation: the reviewer's judgement, with the note. */
+	kept: Partial<Record<'raw' | DerivedField, { recomputed: string | null; note: string | null }>>;
 }
 
 function toZ(field: DerivedField, v: number): number {
@@ -52,6 +55,8 @@ export async function protocolSummary(protocolId: number, user: Actor) {
 	const tests = await protocolTests(p.id);
 	const groups = await normGroups(p.norm_set_id, tests.map((t) => t.code));
 	const scores = await finalScores(p.id, p.round);
+	const against = await keptAgainstRecomputation(p.id, p.round);
+	const amendments = (await protocolAmendments(p.id)).filter((a) => a.status === 'applied');
 	const rows: SummaryRow[] = tests.map((t) => {
 		const s = scores[t.code] ?? {};
 		const values: Partial<Record<DerivedField, string | null>> = {};
@@ -81,13 +86,16 @@ export async function protocolSummary(protocolId: number, user: Actor) {
 					})()
 				: null;
 		const z = basis && basisValue !== null && !Number.isNaN(basisValue) ? toZ(basis, basisValue) : zRef;
-		return { code: t.code, name: t.name, domain: t.domainName, unit: t.unit, direction: t.direction, group: t.groupCode, raw: s.raw ?? null, values, reported: t.reported, percentile, label, ci, z, inconsistent };
+		const kept: SummaryRow['kept'] = {};
+		for (const k of against) if (k.test === t.code && (s[k.field] ?? null) !== null && Number(s[k.field]) === Number(k.kept)) kept[k.field] = { recomputed: k.recomputed, note: k.note };
+		return { code: t.code, name: t.name, domain: t.domainName, unit: t.unit, direction: t.direction, group: t.groupText, raw: s.raw ?? null, values, reported: t.reported, percentile, label, ci, z, inconsistent, kept };
 	});
 	const placed = rows.filter((r) => r.z !== null);
 	return {
 		protocol: { id: p.id, code: ex!.code, testDate: p.test_date, age: p.age_text, battery: battery!.name, round: p.round, verifiedAt: p.verified_at, verifiedBy: signer?.name ?? null },
 		normSet: set ? { name: set.name, version: set.version, source: set.source } : null,
 		rows,
+		amendments: amendments.map((a) => ({ id: a.id, test: a.test_name ?? a.test_code, field: a.field, before: a.old_value, after: a.new_value, reason: a.reason, by: a.requested_by_name, approvedBy: a.decided_by_name, at: a.decided_at, round: a.round })),
 		lowScores: { below: placed.filter((r) => (r.z as number) < -1).length, given: placed.length },
 		labelScheme: { name: AACN_2020.name, source: AACN_2020.source }
 	};
@@ -100,11 +108,11 @@ export function summaryCsv(s: Awaited<ReturnType<typeof protocolSummary>>): stri
 		if (/^[=+\-@\t\r]/.test(x) && !/^-?\d/.test(x)) x = `'${x}`;
 		return /[",\n]/.test(x) ? `"${x.replace(/"/g, '""')}"` : x;
 	};
-	const head = ['examinee_code', 'test_date', 'age', 'domain', 'test', 'norm_group', 'raw', 'z', 'standard', 'scaled', 't', 'percentile', 'percentile_recomputed', 'label', 'ci95_lower', 'ci95_upper', 'ci_scale'];
+	const head = ['examinee_code', 'test_date', 'age', 'domain', 'test', 'norm_group', 'raw', 'z', 'standard', 'scaled', 't', 'percentile', 'percentile_recomputed', 'label', 'ci95_lower', 'ci95_upper', 'ci_scale', 'kept_against_recomputation'];
 	const lines = [head.join(',')];
 	for (const r of s.rows) {
 		lines.push(
-			[s.protocol.code, s.protocol.testDate, s.protocol.age, r.domain, r.name, r.group, r.raw, r.values.z, r.values.standard, r.values.scaled, r.values.t, r.percentile?.value, r.percentile?.recomputed ? 'yes' : 'no', r.label?.text, r.ci?.lower, r.ci?.upper, r.ci?.field]
+			[s.protocol.code, s.protocol.testDate, s.protocol.age, r.domain, r.name, r.group, r.raw, r.values.z, r.values.standard, r.values.scaled, r.values.t, r.percentile?.value, r.percentile?.recomputed ? 'yes' : 'no', r.label?.text, r.ci?.lower, r.ci?.upper, r.ci?.field, Object.entries(r.kept).map(([f, k]) => `${f} (recomputed ${k?.recomputed})`).join('; ')]
 				.map(cell)
 				.join(',')
 		);
