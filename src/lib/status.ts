@@ -30,7 +30,7 @@ export function statusWords(status: unknown): string {
 export const FIELD_SHORT: Record<string, string> = { raw: 'Raw', z: 'z', standard: 'SS', scaled: 'ScS', t: 'T', percentile: '%ile' };
 
 /** Kind names come from the one list in src/lib/scoring/kinds.ts. */
-export const KIND_LABELS = KIND_NAMES;
+export const KIND_LABELS: Readonly<Record<string, string>> = KIND_NAMES;
 
 /** Age of an item in words: "3 h", "2 d". */
 export function ageOf(since: string | Date, now = new Date()): string {

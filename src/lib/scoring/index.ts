@@ -8,6 +8,7 @@ export * from './digits';
 export { charDiff, type DiffSegment } from './diff';
 export {
 	reconcile,
+	testReferences,
 	checkField,
 	classifyDerived,
 	classifyPair,

@@ -85,6 +85,11 @@ export interface Discrepancy {
 	other: number | string | null;
 	/** The recomputed reference, or null (raw fields; passes without a usable raw score). */
 	expected: number | null;
+	/**
+	 * Rule 5: when the two raw scores differ and both are usable, the reference computed from the
+	 * other pass's raw score (for `both`, the first pass's); otherwise null.
+	 */
+	alternative: number | null;
 	out_of_range: boolean;
 }
 
@@ -134,9 +139,11 @@ function derivedOutOfRange(field: DerivedField, p: number | null, bounds: Bounds
  * Kind of a derived value `v` (parsed `p`) that differs from its reference `r`, by the spec's order.
  * Precondition: ctx.z is not null, p is not within 1e-6 of r.
  */
-export function classifyDerived(field: DerivedField, v: Entered, p: number | null, r: number, ctx: PassCtx): Kind {
+export function classifyDerived(field: DerivedField, v: Entered, p: number | null, r: number, ctx: PassCtx, alt: number | null = null): Kind {
 	if (p === null) return 'missing';
 	if (Number.isNaN(p)) return 'mismatch';
+	// follows_other_raw: right for the other pass's raw score (rule 5)
+	if (alt !== null && eq(p, alt)) return 'follows_other_raw';
 	const { test } = ctx;
 	const z = ctx.z as number;
 	const bounds = test.bounds;
@@ -209,6 +216,21 @@ function indexNorms(norms: readonly NormDef[]): Map<string, NormDef[]> {
 const EMPTY: FieldValues = {};
 
 /**
+ * The references of one test for a given raw score, through the given norm: every derived field the
+ * norm yields (the review screen re-judges a test's derived discrepancies against the kept raw score
+ * with this). Returns null when the raw score is empty, not a number, or outside the test's range
+ * (no reference, as in rule 3). Pure; the same computation `reconcile` uses.
+ */
+export function testReferences(test: TestDef, norm: NormDef, raw: Entered): Record<DerivedField, number> | null {
+	const n = parseEntered(raw, 'raw');
+	if (n === null || Number.isNaN(n) || !rawInRange(n, test.raw)) return null;
+	const z = zFromRaw(n, norm.mean, norm.sd, test.direction);
+	const out = {} as Record<DerivedField, number>;
+	for (const f of DERIVED_FIELDS) out[f] = referenceScore(f, z, test.bounds);
+	return out;
+}
+
+/**
  * Reconcile one protocol. Throws ReconcileInputError when a test has no norms for its group or there
  * are not exactly two passes; validate batch input with `parseReconcileInput` (./schema) first.
  */
@@ -246,10 +268,10 @@ export function reconcile(input: ReconcileInput): ReconcileResult {
 		const rawSame =
 			n1 !== null && n2 !== null && (Number.isNaN(n1) || Number.isNaN(n2) ? writtenForm(v1) === writtenForm(v2) : eq(n1, n2));
 		if (n1 === null && n2 === null) {
-			out.push({ test: test.id, field: 'raw', pass: 'both', kind: 'missing', value: null, other: null, expected: null, out_of_range: false });
+			out.push({ test: test.id, field: 'raw', pass: 'both', kind: 'missing', value: null, other: null, expected: null, alternative: null, out_of_range: false });
 		} else if (rawSame) {
 			if (!ok1) {
-				out.push({ test: test.id, field: 'raw', pass: 'both', kind: 'out_of_range', value: v1 as number | string, other: v2 as number | string, expected: null, out_of_range: true });
+				out.push({ test: test.id, field: 'raw', pass: 'both', kind: 'out_of_range', value: v1 as number | string, other: v2 as number | string, expected: null, alternative: null, out_of_range: true });
 			}
 		} else {
 			const oor1 = n1 !== null && !ok1;
@@ -265,6 +287,7 @@ export function reconcile(input: ReconcileInput): ReconcileResult {
 				value: shown(fv, fn),
 				other: shown(ov, on),
 				expected: null,
+				alternative: null,
 				out_of_range: flaggedOor
 			});
 		}
@@ -307,12 +330,13 @@ export function reconcile(input: ReconcileInput): ReconcileResult {
 						value: a1 as number | string,
 						other: a2 as number | string,
 						expected: r,
+						alternative: null,
 						out_of_range: derivedOutOfRange(field, p1, bounds)
 					});
 					continue;
 				}
-				if (!e1) out.push(derived(test.id, field, 'first', a1, p1, a2, p2, r, c1(), bounds));
-				if (!e2) out.push(derived(test.id, field, 'second', a2, p2, a1, p1, r, c2(), bounds));
+				if (!e1) out.push(derived(test.id, field, 'first', a1, p1, a2, p2, r, null, c1(), bounds));
+				if (!e2) out.push(derived(test.id, field, 'second', a2, p2, a1, p1, r, null, c2(), bounds));
 				continue;
 			}
 
@@ -325,9 +349,10 @@ export function reconcile(input: ReconcileInput): ReconcileResult {
 				r1 !== null && r2 !== null && eq(r1, r2) && !e1 && !e2 && p1 !== null && p2 !== null &&
 				!Number.isNaN(p1) && !Number.isNaN(p2) && eq(p1, p2)
 			) {
-				const k1 = classifyDerived(field, a1, p1, r1, c1());
-				const k2 = classifyDerived(field, a2, p2, r2, c2());
-				out.push({ test: test.id, field, pass: 'both', kind: KIND_RANK[k2] < KIND_RANK[k1] ? k2 : k1, value: a1 as number | string, other: a2 as number | string, expected: r1, out_of_range: derivedOutOfRange(field, p1, bounds) });
+				// both references exist here, so the raw scores differ and both are usable: rule 5's alternatives
+				const k1 = classifyDerived(field, a1, p1, r1, c1(), r2);
+				const k2 = classifyDerived(field, a2, p2, r2, c2(), r1);
+				out.push({ test: test.id, field, pass: 'both', kind: KIND_RANK[k2] < KIND_RANK[k1] ? k2 : k1, value: a1 as number | string, other: a2 as number | string, expected: r1, alternative: r2, out_of_range: derivedOutOfRange(field, p1, bounds) });
 				continue;
 			}
 			const peersDiffer =
@@ -347,18 +372,19 @@ export function reconcile(input: ReconcileInput): ReconcileResult {
 					value: shown(a1, p1),
 					other: shown(a2, p2),
 					expected: null,
+					alternative: null,
 					out_of_range: oor
 				};
 			};
 			// first pass's slot
 			if (r1 !== null) {
-				if (!e1) out.push(derived(test.id, field, 'first', a1, p1, a2, p2, r1, c1(), bounds));
+				if (!e1) out.push(derived(test.id, field, 'first', a1, p1, a2, p2, r1, r2, c1(), bounds));
 			} else if (peersDiffer) {
 				out.push(peer());
 			}
 			// second pass's slot (when neither has a reference, the one peer comparison is already made)
 			if (r2 !== null) {
-				if (!e2) out.push(derived(test.id, field, 'second', a2, p2, a1, p1, r2, c2(), bounds));
+				if (!e2) out.push(derived(test.id, field, 'second', a2, p2, a1, p1, r2, r1, c2(), bounds));
 			} else if (peersDiffer && r1 !== null) {
 				out.push(peer());
 			}
@@ -376,6 +402,7 @@ function derived(
 	o: Entered,
 	po: number | null,
 	r: number,
+	alt: number | null,
 	ctx: PassCtx,
 	bounds: BoundsOverride | null | undefined
 ): Discrepancy {
@@ -383,10 +410,11 @@ function derived(
 		test,
 		field,
 		pass,
-		kind: classifyDerived(field, v, p, r, ctx),
+		kind: classifyDerived(field, v, p, r, ctx, alt),
 		value: shown(v, p),
 		other: shown(o, po),
 		expected: r,
+		alternative: alt,
 		out_of_range: derivedOutOfRange(field, p, bounds)
 	};
 }

@@ -19,8 +19,8 @@ import type { Transaction } from 'sequelize';
 import { select, selectOne, exec, jsonValue, type Tx } from '../db';
 import { audit } from '../audit';
 import { protocolTests, normGroups, normDef, engineTest } from './catalog-read';
-import { classifyDerived } from '../../scoring/reconcile';
-import { parseEntered, rawInRange, zFromRaw, referenceScore, formatReference, DERIVED_FIELDS, type DerivedField, type Field } from '../../scoring/scales';
+import { classifyDerived, testReferences } from '../../scoring/reconcile';
+import { parseEntered, zFromRaw, formatReference, DERIVED_FIELDS, type DerivedField, type Field } from '../../scoring/scales';
 import { recordResolution } from '../audit-stats/record';
 import type { Scores } from './passes';
 
@@ -69,9 +69,11 @@ export async function referencesForRaw(protocolId: number, normSetId: number, te
 	const groups = await normGroups(normSetId, [testCode], t);
 	const norm = groups.find((g) => g.group_code === test.groupCode);
 	const n = num(raw, 'raw');
-	if (!norm || n === null || !rawInRange(n, test.raw)) return { test, norm: norm ?? null, groups, z: null, refs: null };
+	// the engine's own computation (reconcile.md): the same references the second submit used
+	const all = norm ? testReferences(engineTest(test), normDef(norm), raw) : null;
+	if (!norm || n === null || !all) return { test, norm: norm ?? null, groups, z: null, refs: null };
 	const z = zFromRaw(n, Number(norm.mean), Number(norm.sd), test.direction);
-	const refs = Object.fromEntries(test.reported.map((f) => [f, referenceScore(f, z, test.bounds)])) as Partial<Record<DerivedField, number>>;
+	const refs = Object.fromEntries(test.reported.map((f) => [f, all[f]])) as Partial<Record<DerivedField, number>>;
 	return { test, norm, groups, z, raw: n, refs };
 }
 

@@ -147,7 +147,7 @@ export async function engineInput(p: ProtocolRow, passes: { first: Scores; secon
 
 /** A discrepancy's `alternative` at its field's precision, or null. */
 function altOf(d: ReconcileResult['discrepancies'][number]): string | null {
-	const a = (d as { alternative?: number | null }).alternative;
+	const a = d.alternative;
 	if (a === null || a === undefined || d.field === 'raw') return null;
 	return formatReference(d.field, a);
 }
@@ -183,6 +183,16 @@ export async function storeDiscrepancies(p: ProtocolRow, result: ReconcileResult
 	}
 }
 
+/** Compare-and-set of the protocol's status: moves only from the state and version this transaction read. */
+async function moveProtocol(p: ProtocolRow, to: ProtocolRow['status'], t: Tx) {
+	const moved = await exec(
+		`UPDATE protocols SET status = :to, status_changed_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1 WHERE id = :id AND status = :from AND round = :round AND lock_version = :lock`,
+		{ to, id: p.id, from: p.status, round: p.round, lock: p.lock_version },
+		t
+	);
+	if (moved.affected !== 1) throw new WorkflowError(409, 'This protocol changed while the pass was being submitted (another submission got there first). Nothing was changed; reload to see its state.', undefined, 'already_submitted');
+}
+
 export type SubmitResult = { which: Which; status: ProtocolRow['status']; discrepancies: number | null };
 
 export async function submitPass(protocolId: number, user: Actor, body: unknown): Promise<SubmitResult> {
@@ -201,11 +211,20 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 		if (which === 'second' && p.status === 'draft') {
 			throw conflict('The first pass has not been submitted yet. Your draft is saved; submit once the first scorer has submitted.');
 		}
-		await exec(`UPDATE passes SET status = 'submitted', submitted_at = CURRENT_TIMESTAMP(3) WHERE id = :id`, { id: pass.id }, t);
+		// Once only, checked again at the write: on a Galera cluster the FOR UPDATE above locks only on
+		// this node, so a submission of the same pass through another node is stopped here (the row is
+		// no longer a draft of this version) or by the certification conflict at commit (1213, retried
+		// by transaction(): the rerun reads 'submitted' and answers 409).
+		const marked = await exec(
+			`UPDATE passes SET status = 'submitted', submitted_at = CURRENT_TIMESTAMP(3) WHERE id = :id AND status = 'draft' AND draft_version = :v`,
+			{ id: pass.id, v: pass.draft_version },
+			t
+		);
+		if (marked.affected !== 1) throw new WorkflowError(409, 'This pass was already submitted (from another tab or an earlier try). Nothing was changed.', undefined, 'already_submitted');
 		await audit({ actorId: user.id, entity: 'pass', entityId: pass.id, protocolId: p.id, action: `submit_${which}`, newValue: { round: p.round, fields: pass.fields_entered, scores: jsonValue(pass.scores) } }, t);
 
 		if (which === 'first') {
-			await exec(`UPDATE protocols SET status = 'awaiting_second', status_changed_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1 WHERE id = :id`, { id: p.id }, t);
+			await moveProtocol(p, 'awaiting_second', t);
 			await audit({ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'status', oldValue: p.status, newValue: 'awaiting_second' }, t);
 			return { which, status: 'awaiting_second' as const, discrepancies: null };
 		}
@@ -221,7 +240,7 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 			throw e;
 		}
 		await storeDiscrepancies(p, result, t);
-		await exec(`UPDATE protocols SET status = 'in_review', status_changed_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1 WHERE id = :id`, { id: p.id }, t);
+		await moveProtocol(p, 'in_review', t);
 		await audit(
 			{ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'reconcile', oldValue: p.status, newValue: { status: 'in_review', round: p.round, ...result.summary } },
 			t

@@ -266,11 +266,14 @@ export async function signOff(protocolId: number, user: Actor, body: unknown) {
 			const list = against.map((x) => `${x.test} ${FIELD_LABELS[x.field] ?? x.field}: kept ${x.kept}, recomputed ${x.recomputed}`).join('; ');
 			throw new WorkflowError(409, `Confirm the ${against.length} kept value${against.length === 1 ? '' : 's'} that differ${against.length === 1 ? 's' : ''} from the recomputation before signing off (${list}).`, 'confirmKept', 'confirm_kept');
 		}
-		await exec(
-			`UPDATE protocols SET status = 'verified', verified_at = CURRENT_TIMESTAMP(3), verified_by = :uid, status_changed_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1 WHERE id = :id`,
-			{ uid: user.id, id: p.id },
+		// compare-and-set: on a Galera cluster the FOR UPDATE above locks only on this node
+		const moved = await exec(
+			`UPDATE protocols SET status = 'verified', verified_at = CURRENT_TIMESTAMP(3), verified_by = :uid, status_changed_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1
+			  WHERE id = :id AND status = 'in_review' AND lock_version = :lock`,
+			{ uid: user.id, id: p.id, lock: p.lock_version },
 			t
 		);
+		if (moved.affected !== 1) throw new WorkflowError(409, 'This protocol was signed off or changed at the same moment elsewhere. Reload to see its state.', undefined, 'stale');
 		await audit({ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'sign_off', oldValue: 'in_review', newValue: { status: 'verified', round: p.round, ...(against.length ? { keptAgainstRecomputation: against } : {}) } }, t);
 		return { status: 'verified' as const };
 	});
@@ -303,11 +306,13 @@ export async function reopen(protocolId: number, user: Actor, reason: string) {
 			{ next, p: p.id, r: p.round },
 			t
 		);
-		await exec(
-			`UPDATE protocols SET status = 'in_review', round = :next, verified_at = NULL, verified_by = NULL, status_changed_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1 WHERE id = :id`,
-			{ next, id: p.id },
+		const moved = await exec(
+			`UPDATE protocols SET status = 'in_review', round = :next, verified_at = NULL, verified_by = NULL, status_changed_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1
+			  WHERE id = :id AND status = 'verified' AND round = :r`,
+			{ next, id: p.id, r: p.round },
 			t
 		);
+		if (moved.affected !== 1) throw conflict('This protocol was reopened at the same moment elsewhere.');
 		await audit({ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'reopen', oldValue: { status: 'verified', round: p.round }, newValue: { status: 'in_review', round: next }, reason: reason.trim() }, t);
 		const { notifyReviewStarted } = await import('../mail/review');
 		await notifyReviewStarted(p.id, next, p.reviewer_id, t, { action: 'reopen', reason: reason.trim() });
