@@ -96,6 +96,11 @@ export async function rejudgeDerived(
 	const first = scoresOf('first');
 	const second = scoresOf('second');
 	const keptN = num(keptRaw, 'raw');
+	// rule 5 after the decision: a value right for the other pass's raw score is still named so
+	const ownRefs = (w: 'first' | 'second') => (info.norm ? testReferences(engineTest(test), normDef(info.norm), (w === 'first' ? first : second).raw ?? null) : null);
+	const refsFirst = ownRefs('first');
+	const refsSecond = ownRefs('second');
+	const altFor = (pass: 'first' | 'second' | 'both', field: DerivedField) => (pass === 'first' ? (refsSecond?.[field] ?? null) : pass === 'second' ? (refsFirst?.[field] ?? null) : null);
 	const base: 'first' | 'second' = keptN !== null && num(first.raw, 'raw') === keptN ? 'first' : keptN !== null && num(second.raw, 'raw') === keptN ? 'second' : 'first';
 
 	const rows = await select<Row>(
@@ -139,7 +144,7 @@ export async function rejudgeDerived(
 		}
 		// stays open (or opens again) with the new recomputed value and its kind named against it
 		const v = d.pass === 'both' ? candidate : d.value;
-		const kind = classifyDerived(field, v, parseEntered(v ?? null, field), r, ctx);
+		const kind = classifyDerived(field, v, parseEntered(v ?? null, field), r, ctx, altFor(d.pass, field));
 		if (open && d.expected === rs && d.kind === kind) continue;
 		await exec(
 			`UPDATE discrepancies SET expected = :rs, kind = :kind, resolution = NULL, resolved_value = NULL, resolved_by = NULL, resolved_at = NULL,
@@ -164,7 +169,8 @@ export async function rejudgeDerived(
 	}
 
 	// Fields with no discrepancy at all: the verified value must fit the kept raw score too.
-	const flagged = new Set(rows.map((d) => d.field));
+	// a field counts as judged when a row holds the base pass's value (its own row, or a shared one)
+	const flagged = new Set(rows.filter((d) => d.pass === base || d.pass === 'both').map((d) => d.field));
 	const baseScores = base === 'first' ? first : second;
 	const otherScores = base === 'first' ? second : first;
 	let position = Number((await selectOne<{ n: number }>('SELECT COALESCE(MAX(position), 0) AS n FROM discrepancies WHERE protocol_id = :p AND round = :r', { p: p.id, r: p.round }, t))?.n ?? 0);
@@ -173,7 +179,7 @@ export async function rejudgeDerived(
 		if (r === undefined || flagged.has(field)) continue;
 		const v = baseScores[field] ?? null;
 		if (eq(v, r, field)) continue;
-		const kind = classifyDerived(field, v, parseEntered(v, field), r, ctx);
+		const kind = classifyDerived(field, v, parseEntered(v, field), r, ctx, altFor(base, field));
 		const rs = formatReference(field, r);
 		const { insertId } = await exec(
 			`INSERT INTO discrepancies (protocol_id, round, position, test_code, field, pass, kind, value, other, expected, out_of_range)
