@@ -70,11 +70,24 @@ export async function referencesForRaw(protocolId: number, normSetId: number, te
 	const norm = groups.find((g) => g.group_code === test.groupCode);
 	const n = num(raw, 'raw');
 	// the engine's own computation (reconcile.md): the same references the second submit used
-	const all = norm ? testReferences(engineTest(test), normDef(norm), raw) : null;
-	if (!norm || n === null || !all) return { test, norm: norm ?? null, groups, z: null, refs: null };
+	const all = norm ? safeReferences(test, norm, raw) : null;
+	if (!norm || n === null || !all || norm.mean === null || norm.sd === null) return { test, norm: norm ?? null, groups, z: null, refs: null };
 	const z = zFromRaw(n, Number(norm.mean), Number(norm.sd), test.direction);
-	const refs = Object.fromEntries(test.reported.map((f) => [f, all[f]])) as Partial<Record<DerivedField, number>>;
+	const refs: Partial<Record<DerivedField, number>> = {};
+	for (const f of test.reported) {
+		const r = all[f];
+		if (typeof r === 'number') refs[f] = r;
+	}
 	return { test, norm, groups, z, raw: n, refs };
+}
+
+/** testReferences, or null for a norm form this engine version does not handle (nothing is re-judged then). */
+function safeReferences(test: Parameters<typeof engineTest>[0], norm: Parameters<typeof normDef>[0], raw: string | null | undefined) {
+	try {
+		return testReferences(engineTest(test), normDef(norm), raw ?? null);
+	} catch {
+		return null;
+	}
 }
 
 export async function rejudgeDerived(
@@ -97,10 +110,11 @@ export async function rejudgeDerived(
 	const second = scoresOf('second');
 	const keptN = num(keptRaw, 'raw');
 	// rule 5 after the decision: a value right for the other pass's raw score is still named so
-	const ownRefs = (w: 'first' | 'second') => (info.norm ? testReferences(engineTest(test), normDef(info.norm), (w === 'first' ? first : second).raw ?? null) : null);
+	const ownRefs = (w: 'first' | 'second') => (info.norm ? safeReferences(test, info.norm, (w === 'first' ? first : second).raw ?? null) : null);
 	const refsFirst = ownRefs('first');
 	const refsSecond = ownRefs('second');
-	const altFor = (pass: 'first' | 'second' | 'both', field: DerivedField) => (pass === 'first' ? (refsSecond?.[field] ?? null) : pass === 'second' ? (refsFirst?.[field] ?? null) : null);
+	const numeric = (x: unknown) => (typeof x === 'number' ? x : null);
+	const altFor = (pass: 'first' | 'second' | 'both', field: DerivedField) => (pass === 'first' ? numeric(refsSecond?.[field]) : pass === 'second' ? numeric(refsFirst?.[field]) : null);
 	const base: 'first' | 'second' = keptN !== null && num(first.raw, 'raw') === keptN ? 'first' : keptN !== null && num(second.raw, 'raw') === keptN ? 'second' : 'first';
 
 	const rows = await select<Row>(
