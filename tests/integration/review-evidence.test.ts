@@ -12,7 +12,7 @@
  *   raw 25: z = 5.5/4.6 = 1.19565 → 1.20; T = 61.96 → 62; percentile ≈ 88.4 → 88 (Φ(1.19) = .8830, Φ(1.20) = .8849)
  */
 import { describe, it, expect, beforeAll, afterAll } from 'vitest';
-import { Client, signedIn, ACCOUNTS } from '../helpers/http';
+import { Client, signedIn, ACCOUNTS, caughtMail, waitFor } from '../helpers/http';
 import { createViaForm, correctScores, saveAndSubmit, type Scores } from '../helpers/workflow';
 import Papa from 'papaparse';
 import { select, selectOne, closeDb, jsonValue } from '../../src/lib/server/db';
@@ -341,5 +341,27 @@ describe('amendment of a verified protocol', () => {
 		expect((await same.json()).message).toContain('already the verified');
 		const scorer = await s1.request(`/api/v1/protocols/${id}/amendments`, { method: 'POST', json: { test: 'switch-rule', field: 'raw', value: '3', reason: 'a reason here' } });
 		expect(scorer.status).toBe(403);
+	});
+});
+
+describe('reopen with a reason', () => {
+	it('keeps the previous decisions as defaults, and the e-mail names the round and the reason', async () => {
+		const id = await raw42();
+		const list = await rows(id);
+		expect((await resolve(list[0].id, { choice: 'first' })).status).toBe(200);
+		const p = await selectOne<{ lock_version: number }>('SELECT lock_version FROM protocols WHERE id = :id', { id });
+		expect((await reviewer.request(`/api/v1/protocols/${id}/signoff`, { method: 'POST', json: { lockVersion: p!.lock_version } })).status).toBe(200);
+		const re = await lead.action(`/protocols/${id}?/reopen`, { reason: 'The scan was of another page; check again.' });
+		expect(re.body.type).toBe('success');
+		// round 2: every row open again, each pointing at its round-1 decision
+		const r2 = await select<{ carried_from: number; resolved_at: Date | null }>('SELECT carried_from, resolved_at FROM discrepancies WHERE protocol_id = :id AND round = 2 ORDER BY position', { id });
+		expect(r2.map((d) => [d.carried_from, d.resolved_at])).toEqual(list.map((d) => [d.id, null]));
+		// the Review page offers the earlier decisions: the raw card's "First pass" is chosen by default
+		const html = await (await reviewer.get(`/protocols/${id}/review`)).text();
+		expect(html).toContain('offered as the default');
+		expect(html).toContain('Keep the previous round’s decisions');
+		const code = (await selectOne<{ code: string }>('SELECT e.code FROM protocols p JOIN examinees e ON e.id = p.examinee_id WHERE p.id = :id', { id }))!.code;
+		const mail = await waitFor(async () => (await caughtMail(ACCOUNTS.reviewer)).find((m) => m.subject.includes(code) && m.text.includes('round 2')), 20_000);
+		expect(mail.text).toContain('It was reopened for review round 2. Reason: The scan was of another page; check again.');
 	});
 });
