@@ -15,12 +15,11 @@ import { audit } from '../audit';
 import { protocolFor, type Actor, type ProtocolRow } from './service';
 import { protocolTests } from './catalog-read';
 import { finalScores } from './review';
-import { referencesForRaw } from './evidence';
+import { referencesForRaw, kindAgainst } from './evidence';
 import { conflict, invalid, notFound, WorkflowError } from './errors';
 import { amendments, type Amendment } from '../models/amendment';
-import { checkField, classifyDerived, classifyPair } from '../../scoring/reconcile';
+import { checkField, classifyPair } from '../../scoring/reconcile';
 import { parseEntered, formatReference, FIELDS, type DerivedField, type Field } from '../../scoring/scales';
-import { engineTest, normDef } from './catalog-read';
 import { FIELD_LABELS } from '../../status';
 
 const amendSchema = z.object({
@@ -169,14 +168,8 @@ async function apply(p: ProtocolRow, a: Amendment, actor: Actor, t: Transaction,
 			if (info && r !== undefined && info.z !== null && info.norm) {
 				expected = formatReference(a.field as DerivedField, r);
 				const pv = parseEntered(a.old_value, a.field);
-				if (!same(a.old_value, expected, a.field)) {
-					kind = classifyDerived(a.field as DerivedField, a.old_value, pv, r, {
-						test: engineTest(info.test),
-						z: info.z,
-						raw: info.raw as number,
-						otherNorms: info.groups.filter((g) => g.id !== info.norm!.id).map(normDef)
-					});
-				}
+				void pv;
+				if (!same(a.old_value, expected, a.field)) kind = kindAgainst(info.test, info.groups, info.norm.group_code, rawKept!, null, a.field as DerivedField, a.old_value);
 			}
 		}
 		const pos = Number((await selectOne<{ n: number }>('SELECT COALESCE(MAX(position), 0) AS n FROM discrepancies WHERE protocol_id = :p AND round = :next', { p: p.id, next }, t))?.n ?? 0) + 1;

@@ -19,7 +19,8 @@ import type { Transaction } from 'sequelize';
 import { select, selectOne, exec, jsonValue, type Tx } from '../db';
 import { audit } from '../audit';
 import { protocolTests, normGroups, normDef, engineTest } from './catalog-read';
-import { classifyDerived, testReferences } from '../../scoring/reconcile';
+import { reconcile, testReferences, type Kind } from '../../scoring/reconcile';
+import type { NormEntry } from '../../scoring/norms';
 import { parseEntered, zFromRaw, formatReference, DERIVED_FIELDS, type DerivedField, type Field } from '../../scoring/scales';
 import { recordResolution } from '../audit-stats/record';
 import type { Scores } from './passes';
@@ -84,9 +85,40 @@ export async function referencesForRaw(protocolId: number, normSetId: number, te
 /** testReferences, or null for a norm form this engine version does not handle (nothing is re-judged then). */
 function safeReferences(test: Parameters<typeof engineTest>[0], norm: Parameters<typeof normDef>[0], raw: string | null | undefined) {
 	try {
-		return testReferences(engineTest(test), normDef(norm), raw ?? null);
+		return testReferences(engineTest(test), normDef(norm) as NormEntry, raw ?? null);
 	} catch {
 		return null;
+	}
+}
+
+/**
+ * The kind of value `v` in `field` judged against the reference of `keptRaw`, named by the engine
+ * itself: a one-test reconciliation whose first pass holds the kept raw score and `v`, and whose
+ * second pass holds `altRaw` (the other pass's raw score, for rule 5's follows_other_raw).
+ */
+export function kindAgainst(
+	test: Parameters<typeof engineTest>[0],
+	groups: Parameters<typeof normDef>[0][],
+	groupCode: string,
+	keptRaw: string,
+	altRaw: string | null,
+	field: DerivedField,
+	v: string | null
+): Kind {
+	try {
+		const result = reconcile({
+			tests: [{ ...engineTest(test), reported: [field] }],
+			norms: groups.map(normDef),
+			protocol: { group: groupCode },
+			passes: [
+				{ scorer: 'first', scores: { [test.code]: { raw: keptRaw, [field]: v } } },
+				{ scorer: 'second', scores: { [test.code]: { raw: altRaw ?? keptRaw } } }
+			]
+		});
+		const d = result.discrepancies.find((x) => x.field === field && x.pass === 'first');
+		return (d?.kind as Kind | undefined) ?? 'mismatch';
+	} catch {
+		return 'mismatch';
 	}
 }
 
@@ -101,8 +133,7 @@ export async function rejudgeDerived(
 	const info = await referencesForRaw(p.id, p.norm_set_id, testCode, keptRaw, t);
 	if (!info || !info.refs || info.z === null || !info.norm) return out;
 	const { test, refs, z } = info;
-	const otherNorms = info.groups.filter((g) => g.id !== info.norm!.id).map(normDef);
-	const ctx = { test: engineTest(test), z, raw: info.raw as number, otherNorms };
+	void z;
 
 	const passes = await select<{ which: 'first' | 'second'; scores: unknown }>('SELECT which, scores FROM passes WHERE protocol_id = :p AND round = :r', { p: p.id, r: p.round }, t);
 	const scoresOf = (w: 'first' | 'second') => (jsonValue<Scores>(passes.find((x) => x.which === w)?.scores) ?? {})[testCode] ?? {};
@@ -113,8 +144,11 @@ export async function rejudgeDerived(
 	const ownRefs = (w: 'first' | 'second') => (info.norm ? safeReferences(test, info.norm, (w === 'first' ? first : second).raw ?? null) : null);
 	const refsFirst = ownRefs('first');
 	const refsSecond = ownRefs('second');
-	const numeric = (x: unknown) => (typeof x === 'number' ? x : null);
-	const altFor = (pass: 'first' | 'second' | 'both', field: DerivedField) => (pass === 'first' ? numeric(refsSecond?.[field]) : pass === 'second' ? numeric(refsFirst?.[field]) : null);
+	void refsFirst;
+	void refsSecond;
+	// the other pass's raw score (rule 5): a value right for it is still named so after the decision
+	const altRawFor = (pass: 'first' | 'second' | 'both') => (pass === 'first' ? (second.raw ?? null) : pass === 'second' ? (first.raw ?? null) : null);
+	const kindOf = (field: DerivedField, pass: 'first' | 'second' | 'both', v: string | null) => kindAgainst(test, info.groups, info.norm!.group_code, keptRaw, altRawFor(pass), field, v);
 	const base: 'first' | 'second' = keptN !== null && num(first.raw, 'raw') === keptN ? 'first' : keptN !== null && num(second.raw, 'raw') === keptN ? 'second' : 'first';
 
 	const rows = await select<Row>(
@@ -158,7 +192,7 @@ export async function rejudgeDerived(
 		}
 		// stays open (or opens again) with the new recomputed value and its kind named against it
 		const v = d.pass === 'both' ? candidate : d.value;
-		const kind = classifyDerived(field, v, parseEntered(v ?? null, field), r, ctx, altFor(d.pass, field));
+		const kind = kindOf(field, d.pass, v ?? null);
 		if (open && d.expected === rs && d.kind === kind) continue;
 		await exec(
 			`UPDATE discrepancies SET expected = :rs, kind = :kind, resolution = NULL, resolved_value = NULL, resolved_by = NULL, resolved_at = NULL,
@@ -193,7 +227,7 @@ export async function rejudgeDerived(
 		if (r === undefined || flagged.has(field)) continue;
 		const v = baseScores[field] ?? null;
 		if (eq(v, r, field)) continue;
-		const kind = classifyDerived(field, v, parseEntered(v, field), r, ctx, altFor(base, field));
+		const kind = kindOf(field, base, v);
 		const rs = formatReference(field, r);
 		const { insertId } = await exec(
 			`INSERT INTO discrepancies (protocol_id, round, position, test_code, field, pass, kind, value, other, expected, out_of_range)
