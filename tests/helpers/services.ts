@@ -188,13 +188,14 @@ export async function startWorker(extraEnv: Record<string, string> = {}): Promis
 	});
 	child.unref();
 	writeFileSync(workerPidFile(), `${child.pid}\n`);
-	const end = Date.now() + 20_000;
+	// generous: tsx compiles the worker on start, which takes long on a loaded machine
+	const end = Date.now() + 90_000;
 	for (;;) {
 		const text = readFileSync(log, 'utf8');
 		const since = text.slice(text.lastIndexOf(marker));
 		if (/\[worker\] started/.test(since)) return child.pid!;
 		if (!alive(child.pid!)) throw new Error(`worker exited at start:\n${since.slice(-2000)}`);
-		if (Date.now() > end) throw new Error('worker did not start in 20 s');
+		if (Date.now() > end) throw new Error('worker did not start in 90 s');
 		await sleep(100);
 	}
 }
