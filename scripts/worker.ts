@@ -10,6 +10,7 @@ import { MAIL_QUEUE, dispatchOutbox, closeMailQueue } from '../src/lib/server/ma
 import { deliver, type MailJob } from '../src/lib/server/mail/deliver';
 import { closeDb } from '../src/lib/server/db';
 import '../src/lib/server/mail/review'; // registers the review renderers
+import '../src/lib/server/mail/verification'; // registers the back-to-full-double-entry e-mail
 import { sweepMail, markMailFailed } from '../src/lib/server/mail/recover';
 
 const interval = Number(process.env.DISPATCH_INTERVAL_MS ?? 500);

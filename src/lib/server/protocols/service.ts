@@ -13,6 +13,7 @@ import { models } from '../models';
 import { WorkflowError, notFound, invalid, conflict } from './errors';
 import { cleanFilename } from '../filenames';
 import type { Role } from '../../roles';
+import { protocolVerification, singlePassIds } from '../verification';
 
 export type Status = 'draft' | 'awaiting_second' | 'in_review' | 'verified';
 export type Duty = 'first' | 'second' | 'reviewer' | 'lead';
@@ -356,7 +357,9 @@ export async function listProtocols(user: Actor, opts: { status?: Status | null;
 		params
 	);
 	const total = await selectOne<{ n: number }>(`SELECT COUNT(*) AS n FROM protocols p JOIN examinees e ON e.id = p.examinee_id ${w}`, params);
-	return { rows, total: Number(total?.n ?? 0), page, perPage };
+	// a scorer learns whether a protocol is single pass only once it is in review (after the first submit)
+	const single = await singlePassIds(rows.filter((r) => r.status === 'in_review' || r.status === 'verified').map((r) => r.id));
+	return { rows: rows.map((r) => ({ ...r, single_pass: single.has(r.id) })), total: Number(total?.n ?? 0), page, perPage };
 }
 
 export interface WorkItem {
@@ -368,6 +371,8 @@ export interface WorkItem {
 	status: Status;
 	open: number;
 	draftStarted: boolean;
+	/** Reviews only: the protocol was entered once (not drawn for a second pass). */
+	singlePass?: boolean;
 }
 
 /** What is waiting for this user, oldest first: at most `limit` items of each kind (the oldest). */
@@ -400,6 +405,8 @@ export async function worklist(user: Actor, limit = WORKLIST_LIMIT): Promise<Wor
 		);
 		for (const r of rows) items.push({ kind: Number(r.open) > 0 ? 'review' : 'sign_off', protocolId: r.id, code: r.code, battery: r.battery, since: r.since, status: r.status, open: Number(r.open), draftStarted: false });
 	}
+	const single = await singlePassIds(items.filter((i) => i.kind === 'review' || i.kind === 'sign_off').map((i) => i.protocolId));
+	for (const i of items) if (single.has(i.protocolId)) i.singlePass = true;
 	return items.sort((a, b) => new Date(a.since).getTime() - new Date(b.since).getTime());
 }
 
@@ -450,7 +457,8 @@ export async function protocolView(id: number, user: Actor) {
 		assignments: { first: nameOf(p.first_scorer_id), second: nameOf(p.second_scorer_id), reviewer: nameOf(p.reviewer_id) },
 		passes: passes.map((x) => ({ which: x.which, status: x.status, submittedAt: x.submitted_at, fieldsEntered: x.fields_entered, started: x.draft_version > 0 })),
 		discrepancies: { open: Number(open?.open ?? 0), total: Number(open?.total ?? 0) },
-		attachments
+		attachments,
+		verification: await protocolVerification(p, duties)
 	};
 }
 

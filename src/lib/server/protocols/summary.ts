@@ -8,6 +8,7 @@ import { writeCsv } from '../../csv';
 import { protocolFor, type Actor } from './service';
 import { protocolTests, normGroups, normSet } from './catalog-read';
 import { finalScores } from './review';
+import { isSinglePass, SINGLE_PASS_NOTE } from '../verification';
 import { notFound, WorkflowError } from './errors';
 import { labelFor, AACN_2020 } from '../../scoring/labels';
 import { confidenceInterval } from '../../scoring/reliability';
@@ -86,7 +87,7 @@ export async function protocolSummary(protocolId: number, user: Actor) {
 	});
 	const placed = rows.filter((r) => r.z !== null);
 	return {
-		protocol: { id: p.id, code: ex!.code, testDate: p.test_date, age: p.age_text, battery: battery!.name, round: p.round, verifiedAt: p.verified_at, verifiedBy: signer?.name ?? null },
+		protocol: { id: p.id, code: ex!.code, testDate: p.test_date, age: p.age_text, battery: battery!.name, round: p.round, verifiedAt: p.verified_at, verifiedBy: signer?.name ?? null, singlePass: await isSinglePass(p.id) },
 		normSet: set ? { name: set.name, version: set.version, source: set.source } : null,
 		rows,
 		lowScores: { below: placed.filter((r) => (r.z as number) < -1).length, given: placed.length },
@@ -96,7 +97,8 @@ export async function protocolSummary(protocolId: number, user: Actor) {
 
 /** The summary as CSV (one row per test) through the one CSV writer (src/lib/csv.ts), norms and caution as comment lines. */
 export function summaryCsv(s: Awaited<ReturnType<typeof protocolSummary>>): string {
-	const head = ['examinee_code', 'test_date', 'age', 'domain', 'test', 'norm_group', 'raw', 'z', 'standard', 'scaled', 't', 'percentile', 'percentile_recomputed', 'label', 'ci95_lower', 'ci95_upper', 'ci_scale'];
+	const head = ['examinee_code', 'test_date', 'age', 'domain', 'test', 'norm_group', 'raw', 'z', 'standard', 'scaled', 't', 'percentile', 'percentile_recomputed', 'label', 'ci95_lower', 'ci95_upper', 'ci_scale', 'entry'];
+	const entry = s.protocol.singlePass ? 'single pass' : 'double entry';
 	const rows = s.rows.map((r) => [
 		s.protocol.code,
 		s.protocol.testDate,
@@ -114,10 +116,12 @@ export function summaryCsv(s: Awaited<ReturnType<typeof protocolSummary>>): stri
 		r.label?.text,
 		r.ci?.lower,
 		r.ci?.upper,
-		r.ci?.field
+		r.ci?.field,
+		entry
 	]);
 	return writeCsv(head, rows, {
 		comments: [
+			...(s.protocol.singlePass ? [`# ${SINGLE_PASS_NOTE}`] : []),
 			`# Norms: ${s.normSet ? `${s.normSet.name} (${s.normSet.version}). ${s.normSet.source}` : 'unknown'}`,
 			'# Scores support, and never replace, the judgement of a licensed clinician.'
 		]
