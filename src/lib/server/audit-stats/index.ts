@@ -2,7 +2,7 @@
  * The audit reports behind /api/v1/audit/[report]: each answers one table (columns + rows), so
  * every table on the Audit screen exports to CSV the same way.
  */
-import Papa from 'papaparse';
+import { writeCsv } from '../../csv';
 import { select } from '../db';
 import { KINDS, kindName } from '../../scoring/kinds';
 import { FIELD_LABELS } from '../../status';
@@ -233,9 +233,8 @@ export async function runReport(report: ReportName, filters: AuditFilters): Prom
 }
 
 /**
- * The report's table as CSV: a header of column labels, one line per row, numbers as numbers.
- * Text cells starting with = + - @ (or tab / carriage return) are prefixed with ' so a spreadsheet
- * does not run them as formulae (papaparse escapeFormulae); the file starts with a UTF-8 BOM.
+ * The report's table as CSV: a header of column labels, one line per row, numbers as numbers,
+ * through the one CSV writer (src/lib/csv.ts: formula-like text escaped); a UTF-8 BOM first.
  */
 export function toCsv(result: ReportResult): string {
 	const data = result.rows.map((row) =>
@@ -246,5 +245,9 @@ export function toCsv(result: ReportResult): string {
 			return String(v);
 		})
 	);
-	return '\ufeff' + Papa.unparse({ fields: result.columns.map((c) => c.label), data }, { escapeFormulae: true, newline: '\r\n' });
+	return writeCsv(
+		result.columns.map((c) => c.label),
+		data,
+		{ bom: true }
+	);
 }
