@@ -169,7 +169,7 @@ export function reportDocument(s: Summary): Document {
 				children: [
 					new Paragraph({ children: [run(`Score summary · ${p.code}`, { bold: true, size: 28 })], spacing: { after: 80 } }),
 					new Paragraph({
-						children: facts.flatMap(([k, v], i) => [run(`${i ? '   ' : ''}${k}: `, { color: SOFT }), run(v ?? '—')]),
+						children: facts.flatMap(([k, v], i) => [run(`${i ? ' · ' : ''}${k}: `, { color: SOFT }), run(v ?? '—')]),
 						spacing: { after: 160 }
 					}),
 					new Table({
