@@ -227,3 +227,39 @@ describe('the layout at each width', () => {
 		await page.context().close();
 	}, 120_000);
 });
+
+describe('Audit charts at every width', () => {
+	it('draw their text at the page type size (12 px, not scaled), keep it inside the chart, and keep the axis titles', async () => {
+		const page = await as('lead');
+		for (const w of WIDTHS) {
+			await page.setViewportSize({ width: w, height: 900 });
+			await page.goto(`${BASE_URL}/audit`, { waitUntil: 'networkidle' });
+			await page.waitForFunction(() => !document.querySelector('[aria-busy="true"]'), undefined, { timeout: 30_000 });
+			const charts = await page.locator('svg[role="img"][aria-labelledby^="forest"], svg[role="img"][aria-labelledby^="weekly"], svg[role="img"][aria-labelledby^="ba"]').evaluateAll((svgs) =>
+				svgs.map((svg) => {
+					const box = svg.getBoundingClientRect();
+					const texts = [...svg.querySelectorAll('text')].filter((t) => t.textContent?.trim());
+					return {
+						id: svg.getAttribute('aria-labelledby'),
+						// one SVG unit is one CSS pixel: the drawing is not scaled
+						scale: box.width / (svg as SVGSVGElement).viewBox.baseVal.width,
+						sizes: [...new Set(texts.map((t) => getComputedStyle(t).fontSize))],
+						outside: texts.filter((t) => { const b = t.getBoundingClientRect(); return b.left < box.left - 0.5 || b.right > box.right + 0.5 || b.top < box.top - 0.5 || b.bottom > box.bottom + 0.5; }).map((t) => t.textContent),
+						all: texts.map((t) => t.textContent ?? '').join(' | '),
+						right: box.right
+					};
+				})
+			);
+			expect(charts.length, `at ${w}`).toBe(3);
+			for (const c of charts) {
+				expect(c.scale, `${c.id} at ${w}`).toBeCloseTo(1, 2);
+				expect(c.sizes, `${c.id} at ${w}`).toEqual(['12px']);
+				expect(c.outside, `${c.id} at ${w}: text outside the chart`).toEqual([]);
+				expect(c.right, `${c.id} at ${w}`).toBeLessThanOrEqual(w);
+			}
+			const all = charts.map((c) => c.all).join(' ');
+			for (const title of ['Errors per 100 fields entered (dot)', 'Week starting (Monday, ISO 8601 weeks', 'Errors per 100 fields', 'Mean of the two entries', 'First − second']) expect(all, `at ${w}`).toContain(title);
+		}
+		await page.context().close();
+	}, 180_000);
+});
