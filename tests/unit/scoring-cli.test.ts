@@ -44,7 +44,7 @@ describe('batch command end to end (spawned via tsx)', () => {
 		const out = JSON.parse(r.stdout);
 		expect(out.summary).toEqual({ fields_compared: 12, discrepancies: 10 });
 		expect(out.discrepancies[0]).toEqual({
-			test: 'speeded-match', field: 'z', pass: 'first', kind: 'sign_flip', value: '-1.00', other: null, expected: 1, out_of_range: false
+			test: 'speeded-match', field: 'z', pass: 'first', kind: 'sign_flip', value: '-1.00', other: null, expected: 1, alternative: null, out_of_range: false
 		});
 	});
 	it('an array of documents gives an array of results in the same order', async () => {

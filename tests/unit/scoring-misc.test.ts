@@ -7,6 +7,7 @@ import {
 	confidenceInterval,
 	explainKind,
 	KINDS,
+	KIND_NAMES,
 	parseIsoDate,
 	parseReconcileInput,
 	selectNormGroup,
@@ -139,7 +140,13 @@ describe('kind explanations', () => {
 			expect(explainKind(k).length).toBeGreaterThan(10);
 			expect(explainKind(k)).not.toContain('\n');
 		}
-		expect(KINDS).toHaveLength(13);
+		// the order of the contract's kind table (shared/spec/reconcile.md, "Kinds"), copied by hand
+		expect(KINDS).toEqual([
+			'missing', 'follows_other_raw', 'carried', 'sum_error', 'sign_flip', 'wrong_norm_group', 'adjacent_row',
+			'wrong_scale', 'raw_as_derived', 'decimal_shift', 'transposition', 'rounding', 'digit_drop', 'digit_extra',
+			'wrong_digit', 'out_of_range', 'mismatch'
+		]);
+		for (const k of KINDS) expect(KIND_NAMES[k].length).toBeGreaterThan(3);
 	});
 });
 

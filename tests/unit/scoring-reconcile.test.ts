@@ -20,7 +20,7 @@ describe('spec worked examples (shared/spec/reconcile.md)', () => {
 		const r = reconcile(specExample());
 		expect(r.summary).toEqual({ fields_compared: 12, discrepancies: 10 });
 		expect(r.discrepancies[0]).toEqual({
-			test: 'speeded-match', field: 'z', pass: 'first', kind: 'sign_flip', value: '-1.00', other: null, expected: 1, out_of_range: false
+			test: 'speeded-match', field: 'z', pass: 'first', kind: 'sign_flip', value: '-1.00', other: null, expected: 1, alternative: null, out_of_range: false
 		});
 	});
 	it('speeded-match: z −1.00 and scaled 7 are sign_flips, standard 151 a transposition, empties missing', () => {
@@ -158,7 +158,7 @@ describe('raw pairs (spec: Comparing two passes, rule 1)', () => {
 	const raw = (a: FieldValues['raw'], b: FieldValues['raw']) =>
 		reconcile(wordRecall({ raw: a }, { raw: b })).discrepancies.filter((d) => d.field === 'raw');
 	it('transposition 29/92 where 92 is out of range: pass second, out_of_range true', () => {
-		expect(raw(29, 92)).toEqual([{ test: 'word-recall', field: 'raw', pass: 'second', kind: 'transposition', value: 92, other: 29, expected: null, out_of_range: true }]);
+		expect(raw(29, 92)).toEqual([{ test: 'word-recall', field: 'raw', pass: 'second', kind: 'transposition', value: 92, other: 29, expected: null, alternative: null, out_of_range: true }]);
 	});
 	it('both in range and different: pass both (nobody knows which is right)', () => {
 		expect(raw(29, 39)[0]).toMatchObject({ pass: 'both', kind: 'wrong_digit', value: 29, other: 39, out_of_range: false });
@@ -179,13 +179,13 @@ describe('raw pairs (spec: Comparing two passes, rule 1)', () => {
 		expect(raw(null, 60)[0]).toMatchObject({ pass: 'both', kind: 'missing', out_of_range: true });
 	});
 	it('the same impossible raw score in both: one discrepancy, pass both, out_of_range', () => {
-		expect(raw(60, '60')).toEqual([{ test: 'word-recall', field: 'raw', pass: 'both', kind: 'out_of_range', value: 60, other: '60', expected: null, out_of_range: true }]);
+		expect(raw(60, '60')).toEqual([{ test: 'word-recall', field: 'raw', pass: 'both', kind: 'out_of_range', value: 60, other: '60', expected: null, alternative: null, out_of_range: true }]);
 	});
 	it('two different impossible raw scores: pass both, out_of_range', () => {
 		expect(raw(50, 73)[0]).toMatchObject({ pass: 'both', kind: 'out_of_range', out_of_range: true });
 	});
 	it('no raw score in either pass: one missing discrepancy, pass both (our choice)', () => {
-		expect(raw(null, null)).toEqual([{ test: 'word-recall', field: 'raw', pass: 'both', kind: 'missing', value: null, other: null, expected: null, out_of_range: false }]);
+		expect(raw(null, null)).toEqual([{ test: 'word-recall', field: 'raw', pass: 'both', kind: 'missing', value: null, other: null, expected: null, alternative: null, out_of_range: false }]);
 	});
 	it('raw kinds are only those the spec lists for raw pairs; 29/299 is digit_drop either way round', () => {
 		expect(raw(29, 290)[0].kind).toBe('decimal_shift');
@@ -208,7 +208,7 @@ describe('derived fields against each pass’s own raw score (rules 2 and 3)', (
 	it('a shared error is one discrepancy with pass both — what double entry alone would miss', () => {
 		const r = reconcile(wordRecall({ standard: 161 }, { standard: '161' }));
 		expect(r.discrepancies).toEqual([
-			{ test: 'word-recall', field: 'standard', pass: 'both', kind: 'transposition', value: 161, other: '161', expected: 116, out_of_range: true }
+			{ test: 'word-recall', field: 'standard', pass: 'both', kind: 'transposition', value: 161, other: '161', expected: 116, alternative: null, out_of_range: true }
 		]);
 	});
 	it('both passes empty on a field: two missing discrepancies, not one (spec: speeded-match counts 10)', () => {
@@ -225,8 +225,8 @@ describe('derived fields against each pass’s own raw score (rules 2 and 3)', (
 	it('a pass with an out-of-range raw score: its derived fields are compared with the other pass only (expected null)', () => {
 		const r = reconcile(wordRecall({ raw: 92, standard: 161 }, {}));
 		expect(r.discrepancies).toEqual([
-			{ test: 'word-recall', field: 'raw', pass: 'first', kind: 'transposition', value: 92, other: 29, expected: null, out_of_range: true },
-			{ test: 'word-recall', field: 'standard', pass: 'both', kind: 'transposition', value: 161, other: 116, expected: null, out_of_range: true }
+			{ test: 'word-recall', field: 'raw', pass: 'first', kind: 'transposition', value: 92, other: 29, expected: null, alternative: null, out_of_range: true },
+			{ test: 'word-recall', field: 'standard', pass: 'both', kind: 'transposition', value: 161, other: 116, expected: null, alternative: null, out_of_range: true }
 		]);
 	});
 	it('a pass with a missing raw score whose other values agree with the other pass: only the raw discrepancy', () => {

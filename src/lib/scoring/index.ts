@@ -8,11 +8,18 @@ export * from './digits';
 export { charDiff, type DiffSegment } from './diff';
 export {
 	reconcile,
+	testReferences,
 	checkField,
-	classifyDerived,
+	classify,
+	compositeReferences,
+	compositeSpan,
+	type Judgement,
 	classifyPair,
 	ReconcileInputError,
 	type Discrepancy,
+	type TestDiscrepancy,
+	type CompositeDiscrepancy,
+	type Reference,
 	type FieldProblem,
 	type FieldProblemCode,
 	type FieldValues,
@@ -25,4 +32,6 @@ export {
 	type ReconcileResult,
 	type TestDef
 } from './reconcile';
+export * from './norms';
+export { canonicalBand, tablePercentileRef, testScorer, compositeScorer, regressionPredicted, type Scorer, type Point } from './forms';
 export { parseReconcileInput, reconcileInputSchema, formatPath, type ParseResult } from './schema';

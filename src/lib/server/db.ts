@@ -6,6 +6,7 @@
 import { Sequelize, QueryTypes, Transaction } from 'sequelize';
 import * as mariadb from 'mariadb';
 import { config } from './config';
+import { withRetry, type RetryOptions } from './tx';
 
 let instance: Sequelize | null = null;
 
@@ -37,7 +38,9 @@ export type Params = Record<string, unknown>;
 export type Tx = Transaction | null | undefined;
 
 export async function select<T = Record<string, unknown>>(sql: string, replacements: Params = {}, transaction?: Tx): Promise<T[]> {
-	return db().query(sql, { type: QueryTypes.SELECT, replacements, transaction: transaction ?? undefined }) as Promise<T[]>;
+	const run = () => db().query(sql, { type: QueryTypes.SELECT, replacements, transaction: transaction ?? undefined }) as Promise<T[]>;
+	// inside a transaction the transaction's retry decides; a plain read is safe to run again
+	return transaction ? run() : withRetry(() => run(), { maxAttempts: 3 });
 }
 
 export async function selectOne<T = Record<string, unknown>>(sql: string, replacements: Params = {}, transaction?: Tx): Promise<T | null> {
@@ -47,15 +50,37 @@ export async function selectOne<T = Record<string, unknown>>(sql: string, replac
 
 /** INSERT/UPDATE/DELETE: returns the insert id and the number of affected rows. */
 export async function exec(sql: string, replacements: Params = {}, transaction?: Tx): Promise<{ insertId: number; affected: number }> {
-	const out = (await db().query(sql, { replacements, transaction: transaction ?? undefined, raw: true })) as unknown[];
+	const run = () => db().query(sql, { replacements, transaction: transaction ?? undefined, raw: true }) as Promise<unknown[]>;
+	// A statement on its own commits as it runs: a deadlock or certification conflict (1213) means it
+	// was not applied and is retried; a lost connection may have applied it and is not (committing()).
+	const out = transaction
+		? await run()
+		: await withRetry((_n, committing) => {
+				committing();
+				return run();
+			});
 	// Sequelize answers INSERT with [insertId, affectedRows] and other statements with [OkPacket, …].
 	if (typeof out[0] === 'number') return { insertId: Number(out[0]), affected: Number(out[1] ?? 0) };
 	const packet = out[0] as { insertId?: number | bigint; affectedRows?: number } | undefined;
 	return { insertId: Number(packet?.insertId ?? 0), affected: Number(packet?.affectedRows ?? 0) };
 }
 
-export function transaction<T>(fn: (t: Transaction) => Promise<T>): Promise<T> {
-	return db().transaction({ isolationLevel: Transaction.ISOLATION_LEVELS.READ_COMMITTED }, fn);
+/**
+ * Every multi-statement change runs here: one READ COMMITTED transaction, run again from the start
+ * (bounded, jittered backoff) when MariaDB or Galera answers a deadlock or write conflict (1213), a
+ * lock wait timeout (1205), or a joining node (1047) — see ./tx.ts. The callback must therefore be
+ * safe to rerun: reread what it checks and keep side effects outside the database after the commit.
+ */
+export function transaction<T>(fn: (t: Transaction) => Promise<T>, retry?: RetryOptions): Promise<T> {
+	return withRetry(
+		(_n, committing) =>
+			db().transaction({ isolationLevel: Transaction.ISOLATION_LEVELS.READ_COMMITTED }, async (t) => {
+				const out = await fn(t);
+				committing();
+				return out;
+			}),
+		retry
+	);
 }
 
 /** True when an error means the database cannot be reached (answered with 503, never a 500). */
@@ -63,7 +88,11 @@ export function isDbUnavailable(e: unknown): boolean {
 	const name = (e as { name?: string })?.name ?? '';
 	const code = (e as { original?: { code?: string }; parent?: { code?: string }; code?: string });
 	const c = code?.original?.code ?? code?.parent?.code ?? code?.code ?? '';
+	const errno = Number((e as { original?: { errno?: number } })?.original?.errno ?? (e as { errno?: number })?.errno ?? 0);
 	return (
+		errno === 1047 || // a Galera node that is not synced (joining, or cut off from the cluster)
+		errno === 1053 || // server shutdown in progress
+		errno === 1927 || // connection killed by the server's shutdown
 		name === 'SequelizeConnectionError' ||
 		name === 'SequelizeConnectionRefusedError' ||
 		name === 'SequelizeConnectionAcquireTimeoutError' ||

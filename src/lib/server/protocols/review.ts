@@ -184,11 +184,14 @@ export async function signOff(protocolId: number, user: Actor, body: unknown) {
 		if (p.lock_version !== parsed.data.lockVersion) throw new WorkflowError(409, 'The protocol changed since you opened it (reassigned or reopened). Reload and check before signing off.', undefined, 'stale');
 		const open = await selectOne<{ n: number }>('SELECT COUNT(*) AS n FROM discrepancies WHERE protocol_id = :p AND round = :r AND resolved_at IS NULL', { p: p.id, r: p.round }, t);
 		if (Number(open?.n) > 0) throw conflict(`${open?.n} discrepanc${Number(open?.n) === 1 ? 'y is' : 'ies are'} still open. Resolve every one before signing off.`);
-		await exec(
-			`UPDATE protocols SET status = 'verified', verified_at = CURRENT_TIMESTAMP(3), verified_by = :uid, status_changed_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1 WHERE id = :id`,
-			{ uid: user.id, id: p.id },
+		// compare-and-set: on a Galera cluster the FOR UPDATE above locks only on this node
+		const moved = await exec(
+			`UPDATE protocols SET status = 'verified', verified_at = CURRENT_TIMESTAMP(3), verified_by = :uid, status_changed_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1
+			  WHERE id = :id AND status = 'in_review' AND lock_version = :lock`,
+			{ uid: user.id, id: p.id, lock: p.lock_version },
 			t
 		);
+		if (moved.affected !== 1) throw new WorkflowError(409, 'This protocol was signed off or changed at the same moment elsewhere. Reload to see its state.', undefined, 'stale');
 		await audit({ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'sign_off', oldValue: 'in_review', newValue: { status: 'verified', round: p.round } }, t);
 		return { status: 'verified' as const };
 	});
@@ -220,11 +223,13 @@ export async function reopen(protocolId: number, user: Actor, reason: string) {
 			{ next, p: p.id, r: p.round },
 			t
 		);
-		await exec(
-			`UPDATE protocols SET status = 'in_review', round = :next, verified_at = NULL, verified_by = NULL, status_changed_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1 WHERE id = :id`,
-			{ next, id: p.id },
+		const moved = await exec(
+			`UPDATE protocols SET status = 'in_review', round = :next, verified_at = NULL, verified_by = NULL, status_changed_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1
+			  WHERE id = :id AND status = 'verified' AND round = :r`,
+			{ next, id: p.id, r: p.round },
 			t
 		);
+		if (moved.affected !== 1) throw conflict('This protocol was reopened at the same moment elsewhere.');
 		await audit({ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'reopen', oldValue: { status: 'verified', round: p.round }, newValue: { status: 'in_review', round: next }, reason: reason.trim() }, t);
 		const { notifyReviewStarted } = await import('../mail/review');
 		await notifyReviewStarted(p.id, next, p.reviewer_id, t);

@@ -1,0 +1,124 @@
+/**
+ * The transaction retry (src/lib/server/tx.ts) against a real deadlock on the real MariaDB: two
+ * transactions lock the same two rows in opposite order, so InnoDB picks one as the victim and
+ * answers it 1213 — the same error Galera gives the loser of a write conflict at COMMIT. With the
+ * retry both transactions finish and the retry is counted; with one attempt only, one of them fails
+ * with 1213 (so the first test's success is the retry's doing, not luck of timing).
+ */
+import { afterAll, describe, expect, it } from 'vitest';
+import { select, transaction, closeDb, exec } from '../../src/lib/server/db';
+import { txRetryStats, withRetry, isRetryableConflict } from '../../src/lib/server/tx';
+
+afterAll(async () => {
+	await closeDb();
+});
+
+/** Resolves for everyone once `n` callers have arrived. */
+function barrier(n: number) {
+	let arrived = 0;
+	let release!: () => void;
+	const all = new Promise<void>((r) => (release = r));
+	return async () => {
+		if (++arrived >= n) release();
+		await all;
+	};
+}
+
+async function twoUsers(): Promise<[number, number]> {
+	const rows = await select<{ id: number }>('SELECT id FROM users ORDER BY id LIMIT 2');
+	expect(rows.length).toBe(2);
+	return [rows[0].id, rows[1].id];
+}
+
+/** Transaction `name` locks `first`, waits until the other one holds its first row, then locks `second`. */
+function crossing(attempts: Record<string, number>, meet: () => Promise<void>, maxAttempts?: number) {
+	return (name: string, first: number, second: number) =>
+		transaction(
+			async (t) => {
+				const n = attempts[name]++;
+				await select('SELECT id FROM users WHERE id = :id FOR UPDATE', { id: first }, t);
+				if (n === 0) await meet();
+				await select('SELECT id FROM users WHERE id = :id FOR UPDATE', { id: second }, t);
+				// a write, as the services do (a no-op value: the seeded accounts stay as they are)
+				await exec('UPDATE users SET session_version = session_version + 0 WHERE id = :id', { id: first }, t);
+				return name;
+			},
+			maxAttempts ? { maxAttempts } : undefined
+		);
+}
+
+describe('transaction retry on a real deadlock (1213)', () => {
+	it('both crossing transactions succeed; the victim ran twice and one retry is counted', async () => {
+		const [a, b] = await twoUsers();
+		const before = { retries: txRetryStats.retries, deadlocks: txRetryStats.byCode['1213'] ?? 0 };
+		const attempts: Record<string, number> = { A: 0, B: 0 };
+		const run = crossing(attempts, barrier(2));
+		const out = await Promise.all([run('A', a, b), run('B', b, a)]);
+		expect(out).toEqual(['A', 'B']);
+		// two transactions, one deadlock victim run a second time: 3 attempts in all
+		expect(attempts.A + attempts.B).toBe(3);
+		expect(txRetryStats.retries - before.retries).toBe(1);
+		expect((txRetryStats.byCode['1213'] ?? 0) - before.deadlocks).toBe(1);
+	});
+
+	it('with a single attempt the same crossing fails one of them with MariaDB error 1213', async () => {
+		const [a, b] = await twoUsers();
+		const attempts: Record<string, number> = { A: 0, B: 0 };
+		const run = crossing(attempts, barrier(2), 1);
+		const settled = await Promise.allSettled([run('A', a, b), run('B', b, a)]);
+		const failed = settled.filter((s) => s.status === 'rejected') as PromiseRejectedResult[];
+		expect(failed.length).toBe(1);
+		expect(isRetryableConflict(failed[0].reason)).toBe(true);
+		const errno = (failed[0].reason as { original?: { errno?: number } }).original?.errno;
+		expect(errno).toBe(1213);
+	});
+
+	it('gives up after the bounded number of attempts and rethrows; other errors are not retried', async () => {
+		let calls = 0;
+		const deadlock = Object.assign(new Error('Deadlock found when trying to get lock'), { errno: 1213, code: 'ER_LOCK_DEADLOCK' });
+		await expect(
+			withRetry(
+				async () => {
+					calls++;
+					throw deadlock;
+				},
+				{ maxAttempts: 4, baseMs: 1 }
+			)
+		).rejects.toBe(deadlock);
+		expect(calls).toBe(4);
+		calls = 0;
+		const other = Object.assign(new Error('Duplicate entry'), { errno: 1062, code: 'ER_DUP_ENTRY' });
+		await expect(
+			withRetry(async () => {
+				calls++;
+				throw other;
+			})
+		).rejects.toBe(other);
+		expect(calls).toBe(1);
+	});
+
+	it('a connection lost before COMMIT is retried, one lost during COMMIT is not (it may have been applied)', async () => {
+		const lost = Object.assign(new Error('socket closed'), { code: 'ER_SOCKET_UNEXPECTED_CLOSE' });
+		let calls = 0;
+		const ok = await withRetry(
+			async () => {
+				if (calls++ === 0) throw lost;
+				return 'done';
+			},
+			{ baseMs: 1 }
+		);
+		expect([ok, calls]).toEqual(['done', 2]);
+		calls = 0;
+		await expect(
+			withRetry(
+				async (_n, committing) => {
+					calls++;
+					committing();
+					throw lost;
+				},
+				{ baseMs: 1 }
+			)
+		).rejects.toBe(lost);
+		expect(calls).toBe(1);
+	});
+});
