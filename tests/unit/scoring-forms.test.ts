@@ -538,6 +538,11 @@ describe('bad tables, covariates and composites: exit 2, the path names the row,
 		e.norms.pop();
 		expect(await bad(e)).toContain('protocol.group: no norms for composite "memory-index" in group "a30"');
 	});
+	it('a table on a test whose own raw spec is bad: the test is named, no crash (found by the fuzz test)', async () => {
+		const d = tileBuild() as unknown as { tests: { raw: Record<string, number> }[] };
+		d.tests[0].raw.decimals = -2218821508126678;
+		expect(await bad(d)).toContain('tests[0].raw.decimals: must be 0 or more');
+	});
 	it('a raw score on a composite, a sum on a test, an unknown form', async () => {
 		const d = memoryIndex({ 'memory-index': { raw: 3 } as FieldValues, 'tile-build': { sum: 3 } as FieldValues });
 		const err = await bad(d);
