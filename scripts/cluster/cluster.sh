@@ -151,9 +151,11 @@ defaults
 	timeout connect 2s
 	timeout client 60s
 	timeout server 60s
-	timeout check 2s
+	# generous: on a busy machine a live app server may take seconds to answer /health, and two
+	# slow answers in a row must not take both out of rotation
+	timeout check 5s
 
-# the app servers: a stopped one leaves the rotation after two failed checks (2 s);
+# the app servers: a stopped one leaves the rotation after three failed checks (3 s);
 # a refused connection is retried on the other (retry-on conn-failure, option redispatch)
 frontend web
 	mode http
@@ -168,7 +170,7 @@ backend apps
 	retries 2
 	retry-on conn-failure empty-response
 	option redispatch
-	default-server inter 1s fall 2 rise 2 on-marked-down shutdown-sessions
+	default-server inter 1s fall 3 rise 2 on-marked-down shutdown-sessions
 	server app1 127.0.0.1:$((B + 61)) check
 	server app2 127.0.0.1:$((B + 62)) check
 
@@ -231,6 +233,7 @@ up() {
 	local t0 j
 	# a fresh cluster each run: the figures are for a known start
 	rm -rf "$CL/db1" "$CL/db2" "$CL/db3" "$CL/uploads"
+	rm -f "$RUN_DIR"/*.log "$RUN_DIR"/*.err "$RUN_DIR"/*.first-join
 	start_db 1 bootstrap
 	wait_synced 1 60 >/dev/null || die "db1 did not start (log $RUN_DIR/db1.err)"
 	cp "$RUN_DIR/db1.pid.launch" "$RUN_DIR/db1.pid" 2>/dev/null

@@ -14,7 +14,7 @@
  * CLUSTER_SIGNAL (TERM), CLUSTER_STOP_DB (2), CLUSTER_IDLE_CHECK (1).
  */
 import { spawn, execFile } from 'node:child_process';
-import { existsSync, mkdirSync, readFileSync, readdirSync, writeFileSync } from 'node:fs';
+import { existsSync, mkdirSync, readFileSync, readdirSync, rmSync, writeFileSync } from 'node:fs';
 import { cpus } from 'node:os';
 import { join, resolve } from 'node:path';
 import { promisify } from 'node:util';
@@ -59,7 +59,7 @@ const fail = (s: string) => {
 async function stopByPid(name: string): Promise<number> {
 	const pid = pidOf(name);
 	process.kill(pid, NODE_SIGNAL);
-	for (let i = 0; i < 300; i++) {
+	for (let i = 0; i < 400; i++) {
 		try {
 			process.kill(pid, 0);
 		} catch {
@@ -70,6 +70,8 @@ async function stopByPid(name: string): Promise<number> {
 	process.kill(pid, 'SIGKILL');
 	return pid;
 }
+/** When each stopped app server's process had exited (the balancer notices within seconds after). */
+const exitedAt = new Map<string, number>();
 
 async function signedAt(base: string, email: string): Promise<AnyClient> {
 	const c = new Client(base, LB);
@@ -146,6 +148,7 @@ async function stopApp(n: number) {
 	log(`stopping app${n} by PID (${SIGNAL})`);
 	const stoppedAt = Date.now();
 	const pid = await stopByPid(`app${n}`);
+	exitedAt.set(`app${n}`, Date.now());
 	await sleep(4000);
 	const startedAt = Date.now();
 	await cluster('start-app', String(n));
@@ -348,15 +351,28 @@ async function main() {
 	const t0 = Date.now();
 	const lead = await signedAt(LB, ACCOUNTS.lead);
 	log(`load test: ${USERS} users for ${DURATION} s through ${LB}; stops ${SIGNAL}: db${STOP_DB}, app1, worker1`);
+	rmSync(LOAD_OUT, { force: true }); // never read an earlier run's figures
 	const load = spawn(process.execPath, [join(ROOT, 'node_modules/tsx/dist/cli.mjs'), 'scripts/load.ts', '--users', String(USERS), '--duration', String(DURATION), '--out', LOAD_OUT], {
 		cwd: ROOT,
 		env: { ...process.env, ENV_FILE, ORIGIN: LB, DB_PORT: String(B + 43) },
-		stdio: ['ignore', 'pipe', 'inherit']
+		stdio: ['ignore', 'pipe', 'pipe']
 	});
 	let loadStdout = '';
 	load.stdout.on('data', (d) => (loadStdout += d));
 	const loadDone = new Promise<number>((r) => load.on('exit', (code) => r(code ?? 1)));
-	const loadStart = Date.now();
+	// the stops are timed from the moment the virtual users start (after the load test's sign-ins)
+	let loadStart = 0;
+	const started = new Promise<void>((resolveStart) => {
+		load.stderr.on('data', (d: Buffer) => {
+			process.stderr.write(d);
+			if (!loadStart && /users for .* against/.test(String(d))) {
+				loadStart = Date.now();
+				resolveStart();
+			}
+		});
+		loadDone.then(() => resolveStart());
+	});
+	await started;
 	const atFraction = async (f: number) => {
 		const wait = loadStart + f * DURATION * 1000 - Date.now();
 		if (wait > 0) await sleep(wait);
@@ -376,12 +392,13 @@ async function main() {
 	// balancer, or a dropped connection) within the seconds the balancer needs to take it out
 	const appStops = stops.filter((s) => s.what.startsWith('app'));
 	const excused = (L.error_events as { t: number; status: number | null }[]).filter((e) =>
-		(e.status === null || e.status === 502 || e.status === 503 || e.status === 504) && appStops.some((s) => e.t >= s.stoppedAt - 1000 && e.t <= s.stoppedAt + 4000)
+		(e.status === null || e.status === 502 || e.status === 503 || e.status === 504) && appStops.some((s) => e.t >= s.stoppedAt - 1000 && e.t <= (exitedAt.get(s.what) ?? s.stoppedAt) + 6000)
 	).length;
 	const realErrors = L.errors - excused;
 	if (realErrors > 0) fail(`${realErrors} request error(s) besides those in flight on the stopped app server (${JSON.stringify(L.error_samples.slice(0, 5))})`);
 	if (L.count_problems > 0) fail(`${L.count_problems} counting problem(s) in the load test: ${JSON.stringify(L.count_problem_samples.slice(0, 5))}`);
 	if (L.protocols === 0) fail('the load test created no protocol');
+	if (loadCode !== 0 && realErrors === 0 && L.count_problems === 0) fail(`the load test exited with ${loadCode}`);
 	if (stops.length !== 3) fail(`only ${stops.length} of 3 stops happened (the run may be too short: CLUSTER_DURATION)`);
 
 	log('double submissions on both app servers');
