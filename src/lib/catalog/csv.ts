@@ -19,16 +19,27 @@ import {
 	type TestInput
 } from './schema';
 import { rangeProblems, type RangeRow } from './ranges';
+import { TABLE_SCALES, tableProblems, type RawSpan, type TableRowInput, type TableScale } from './norm-forms';
 
-export type CsvKind = 'norms' | 'tests';
+export type CsvKind = 'norms' | 'tests' | 'tables' | 'equations';
+/** The kinds whose rows become norm groups of a norm set (imported into a new or an existing set). */
+export const NORM_KINDS: readonly CsvKind[] = ['norms', 'tables', 'equations'];
+export const KIND_NAMES: Record<CsvKind, string> = { norms: 'norm table (mean/SD)', tests: 'test list', tables: 'conversion tables', equations: 'regression equations' };
 
 export const NORM_COLUMNS = ['test_code', 'group_code', 'age_min_months', 'age_max_months', 'sex', 'edu_min', 'edu_max', 'mean', 'sd', 'n'] as const;
 export const NORM_REQUIRED = ['test_code', 'group_code', 'age_min_months', 'age_max_months', 'mean', 'sd'] as const;
 export const TEST_COLUMNS = ['code', 'name', 'domain', 'unit', 'direction', 'raw_min', 'raw_max', 'raw_decimals', 'reported', 'bounds', 'reliability', 'notes'] as const;
 export const TEST_REQUIRED = ['code', 'name', 'domain', 'direction', 'raw_min', 'raw_max', 'reported'] as const;
 
-export const COLUMNS: Record<CsvKind, readonly string[]> = { norms: NORM_COLUMNS, tests: TEST_COLUMNS };
-export const REQUIRED: Record<CsvKind, readonly string[]> = { norms: NORM_REQUIRED, tests: TEST_REQUIRED };
+/** Conversion tables: one line per table row; the group's columns repeat on every row of its table. */
+export const TABLE_COLUMNS = ['test_code', 'group_code', 'age_min_months', 'age_max_months', 'sex', 'edu_min', 'edu_max', 'scale', 'raw_lo', 'raw_hi', 'score', 'percentile'] as const;
+export const TABLE_REQUIRED = ['test_code', 'group_code', 'age_min_months', 'age_max_months', 'scale', 'raw_lo', 'raw_hi'] as const;
+/** Regression equations: one line per group; coefficients b_age, b_education, b_sex (empty = not used). */
+export const EQUATION_COLUMNS = ['test_code', 'group_code', 'age_min_months', 'age_max_months', 'sex', 'edu_min', 'edu_max', 'intercept', 'b_age', 'b_education', 'b_sex', 'residual_sd', 'n'] as const;
+export const EQUATION_REQUIRED = ['test_code', 'group_code', 'age_min_months', 'age_max_months', 'intercept', 'residual_sd'] as const;
+
+export const COLUMNS: Record<CsvKind, readonly string[]> = { norms: NORM_COLUMNS, tests: TEST_COLUMNS, tables: TABLE_COLUMNS, equations: EQUATION_COLUMNS };
+export const REQUIRED: Record<CsvKind, readonly string[]> = { norms: NORM_REQUIRED, tests: TEST_REQUIRED, tables: TABLE_REQUIRED, equations: EQUATION_REQUIRED };
 
 /** Other spellings accepted in a header, mapped to our column names. */
 const ALIASES: Record<string, string> = {
@@ -45,7 +56,14 @@ const ALIASES: Record<string, string> = {
 	test_code: 'test_code',
 	decimals: 'raw_decimals',
 	min: 'raw_min',
-	max: 'raw_max'
+	max: 'raw_max',
+	sum_lo: 'raw_lo',
+	sum_hi: 'raw_hi',
+	lo: 'raw_lo',
+	hi: 'raw_hi',
+	sd_residual: 'residual_sd',
+	age: 'b_age',
+	education: 'b_education'
 };
 
 export const LIMITS = {
@@ -75,9 +93,19 @@ export interface ColumnMapping {
 	field: string | null;
 }
 
+/** What a table must cover: a test's raw range or a composite's sum span, and the scale bounds. */
+export interface SubjectSpan {
+	subject: 'test' | 'composite';
+	span: RawSpan;
+	bounds: Record<string, [number, number]> | null;
+	reported: string[];
+}
+
 export interface ValidationContext {
 	/** Codes of current tests (a norm row naming another code is an unknown test). */
 	testCodes: ReadonlySet<string>;
+	/** Tables and equations: each test's and composite's span (composite codes are accepted in tables). */
+	spans?: Readonly<Record<string, SubjectSpan>>;
 	/** Domain codes (a test row naming another domain is refused). */
 	domains: ReadonlySet<string>;
 }
@@ -99,7 +127,7 @@ export interface PreviewResult {
 	badLines: number;
 }
 
-export type ParsedRow<K extends CsvKind> = K extends 'norms' ? NormGroupInput & { line: number } : TestInput & { line: number };
+export type ParsedRow<K extends CsvKind> = K extends 'tests' ? TestInput & { line: number } : NormGroupInput & { line: number };
 
 const FORMULA_START = /^[=+\-@\t\r]/;
 const NUMBER_RE = /^[+-]?(\d+(\.\d*)?|\.\d+)$/;
@@ -136,6 +164,8 @@ export class CsvValidator<K extends CsvKind> {
 	readonly rows: ParsedRow<K>[] = [];
 	private map: (string | null)[] | null = null;
 	private ranges: RangeRow[] = [];
+	/** Conversion tables being read: per test and group, its keys, first line and rows with their lines. */
+	private tables = new Map<string, { group: NormGroupInput & { line: number }; lines: number[]; keysText: string; bad: boolean }>();
 	private seenCodes = new Map<string, number>();
 	private lineErrors = new Set<number>();
 	private line = 0;
@@ -208,6 +238,8 @@ export class CsvValidator<K extends CsvKind> {
 			this.result.sample.push({ line, values: shown });
 		}
 		if (this.kind === 'norms') this.normRow(line, values);
+		else if (this.kind === 'tables') this.tableRow(line, values);
+		else if (this.kind === 'equations') this.equationRow(line, values);
 		else this.testRow(line, values);
 	}
 
@@ -243,9 +275,10 @@ export class CsvValidator<K extends CsvKind> {
 				);
 			}
 		}
-		const other: CsvKind = this.kind === 'norms' ? 'tests' : 'norms';
-		if (REQUIRED[other].every((c) => names.includes(c))) {
-			return this.fileError(`This looks like a ${other === 'tests' ? 'test list' : 'norm table'}, not a ${this.kind === 'tests' ? 'test list' : 'norm table'}. Choose the other kind of upload.`);
+		for (const other of (['tests', 'norms', 'tables', 'equations'] as CsvKind[]).filter((k) => k !== this.kind)) {
+			if (REQUIRED[other].every((c) => names.includes(c) || names.some((n) => ALIASES[n] === c))) {
+				return this.fileError(`This looks like a file of ${KIND_NAMES[other]}, not ${KIND_NAMES[this.kind]}. Choose the other kind of upload.`);
+			}
 		}
 		if (/[\u0000-\u0008\u000e-\u001f\ufffd]/.test(joined)) {
 			return this.fileError('This does not look like a text CSV file (it holds binary data). Upload the CSV exported from your spreadsheet.');
@@ -274,6 +307,114 @@ export class CsvValidator<K extends CsvKind> {
 			return undefined;
 		}
 		return n;
+	}
+
+	/** The group's columns shared by every norm kind; `ok` when they read well. */
+	private groupKeys(line: number, v: Record<string, string>, allowComposite: boolean) {
+		const before = this.result.errorCount;
+		const test = v.test_code ?? '';
+		const group = v.group_code ?? '';
+		const known = this.ctx.testCodes.has(test) || (allowComposite && this.ctx.spans?.[test]?.subject === 'composite');
+		if (!test) this.err(line, 'test_code', 'test_code: missing value');
+		else if (!known) this.err(line, 'test_code', `test_code: unknown ${allowComposite ? 'test or composite' : 'test'} code "${clip(test)}"`);
+		if (!group) this.err(line, 'group_code', 'group_code: missing value');
+		else if (!/^[A-Za-z0-9][A-Za-z0-9._-]{0,39}$/.test(group)) this.err(line, 'group_code', `group_code: "${clip(group)}" — use 1–40 letters, digits, dot, hyphen, underscore`);
+		const min = this.num(line, v, 'age_min_months', { required: true, int: true });
+		const max = this.num(line, v, 'age_max_months', { required: true, int: true });
+		for (const [c, x] of [['age_min_months', min], ['age_max_months', max]] as const) {
+			if (typeof x === 'number' && (x < 0 || x > MAX_AGE_MONTHS)) this.err(line, c, `${c}: ${x} is outside 0–${MAX_AGE_MONTHS} months`);
+		}
+		if (typeof min === 'number' && typeof max === 'number' && min > max)
+			this.err(line, 'age_max_months', `Age range reversed: ${min}–${max} months (the upper age is below the lower)`);
+		let sex: 'F' | 'M' | null = null;
+		const sx = (v.sex ?? '').toUpperCase();
+		if (sx === 'F' || sx === 'M') sex = sx;
+		else if (sx !== '') this.err(line, 'sex', `sex: "${clip(v.sex)}" — use F, M or leave empty`);
+		const eMin = this.num(line, v, 'edu_min', { int: true });
+		const eMax = this.num(line, v, 'edu_max', { int: true });
+		if ((eMin === null) !== (eMax === null) && eMin !== undefined && eMax !== undefined) this.err(line, eMin === null ? 'edu_min' : 'edu_max', 'Give both edu_min and edu_max, or neither');
+		else if (typeof eMin === 'number' && typeof eMax === 'number') {
+			if (eMin > eMax) this.err(line, 'edu_max', `Education range reversed: ${eMin}–${eMax} years`);
+			if (eMin < 0 || eMax > 40) this.err(line, 'edu_min', 'Education years must lie within 0–40');
+		}
+		const keys = { test_code: test, group_code: group, age_min_months: min as number, age_max_months: max as number, sex, edu_min: (eMin as number | null) ?? null, edu_max: (eMax as number | null) ?? null };
+		return { keys, ok: this.result.errorCount === before };
+	}
+
+	private tableRow(line: number, v: Record<string, string>): void {
+		const before = this.result.errorCount;
+		const { keys, ok } = this.groupKeys(line, v, true);
+		const scale = (v.scale ?? '').toLowerCase() as TableScale;
+		if (!TABLE_SCALES.includes(scale)) this.err(line, 'scale', v.scale ? `scale: "${clip(v.scale)}" — use ${TABLE_SCALES.join(', ')}` : 'scale: missing value');
+		const lo = this.num(line, v, 'raw_lo', { required: true });
+		const hi = this.num(line, v, 'raw_hi', { required: true });
+		const score = this.num(line, v, 'score', { int: true });
+		if (TABLE_SCALES.includes(scale) && scale !== 'percentile' && score === null) this.err(line, 'score', 'score: missing value');
+		const key = `${keys.test_code}|${keys.group_code}`;
+		const keysText = `${keys.age_min_months}|${keys.age_max_months}|${keys.sex}|${keys.edu_min}|${keys.edu_max}|${scale}`;
+		let t = this.tables.get(key);
+		if (ok && keys.test_code && keys.group_code) {
+			if (!t) {
+				const group: NormGroupInput & { line: number } = {
+					line, ...keys, subject: this.ctx.spans?.[keys.test_code]?.subject ?? 'test', form: 'table', scale: TABLE_SCALES.includes(scale) ? scale : null,
+					rows: [], mean: null, sd: null, n: null, intercept: null, coefficients: null
+				};
+				t = { group, lines: [], keysText, bad: false };
+				this.tables.set(key, t);
+				this.ranges.push({ label: `line ${line}`, ...keys });
+			} else if (t.keysText !== keysText) {
+				this.err(line, 'age_min_months', `Group ${keys.group_code} of ${keys.test_code} has other ages, keys or scale here than on line ${t.group.line}; every row of one table repeats the same group columns`);
+			}
+		}
+		if (!t) return;
+		if (this.result.errorCount > before) {
+			t.bad = true; // its coverage is not checked (a missing row would read as a gap)
+			return;
+		}
+		t.group.rows!.push({ lo: lo as number, hi: hi as number, score: scale === 'percentile' ? null : (score as number | null), percentile: v.percentile ? v.percentile : null });
+		t.lines.push(line);
+	}
+
+	private equationRow(line: number, v: Record<string, string>): void {
+		const before = this.result.errorCount;
+		const { keys, ok } = this.groupKeys(line, v, false);
+		if (ok) this.ranges.push({ label: `line ${line}`, ...keys });
+		const intercept = this.num(line, v, 'intercept', { required: true });
+		const coefficients: Record<string, number> = {};
+		for (const [col, cov] of [['b_age', 'age'], ['b_education', 'education'], ['b_sex', 'sex']] as const) {
+			const x = this.num(line, v, col);
+			if (typeof x === 'number') coefficients[cov] = x;
+		}
+		if (this.result.errorCount === before && Object.keys(coefficients).length === 0) this.err(line, 'b_age', 'Give at least one coefficient (b_age, b_education or b_sex)');
+		const sd = this.num(line, v, 'residual_sd', { required: true });
+		if (typeof sd === 'number' && sd <= 0) this.err(line, 'residual_sd', `residual_sd: ${v.residual_sd} — must be above 0`);
+		const n = this.num(line, v, 'n', { int: true });
+		if (typeof n === 'number' && (n < 1 || n > 10_000_000)) this.err(line, 'n', `n: ${n} — must be 1 to 10,000,000`);
+		if (this.result.errorCount > before) return;
+		const row: NormGroupInput & { line: number } = {
+			line, ...keys, subject: 'test', form: 'regression', intercept: intercept as number, coefficients, sd: sd as number, n: (n as number | null) ?? null,
+			mean: null, scale: null, rows: null
+		};
+		if (this.keepRows) (this.rows as (NormGroupInput & { line: number })[]).push(row);
+	}
+
+	/** After the last line of a tables file: each table's coverage against its test or composite, errors on the lines of its rows. */
+	private finishTables(): void {
+		for (const t of this.tables.values()) {
+			const g = t.group;
+			const span = this.ctx.spans?.[g.test_code];
+			if (!span || !g.scale || t.bad) continue;
+			if (span.subject === 'test' && g.scale === 'percentile' && span.reported.some((f) => f !== 'percentile'))
+				this.err(g.line, 'scale', `Group ${g.group_code} of ${g.test_code}: a percentile-only table fits only a test that reports the percentile alone (it reports ${span.reported.join(', ')})`);
+			if (span.subject === 'composite' && g.scale === 'percentile') this.err(g.line, 'scale', `Group ${g.group_code} of ${g.test_code}: a composite table gives a score, not percentiles only`);
+			const bounds = g.scale === 'percentile' ? null : (span.bounds?.[g.scale] ?? null);
+			for (const p of tableProblems(g.rows as TableRowInput[], span.span, g.scale, bounds, span.subject === 'composite' ? 'sum' : 'raw')) {
+				const line = t.lines[Math.max(0, p.row - 1)] ?? g.line;
+				const col = p.column === 'lo' ? 'raw_lo' : p.column === 'hi' ? 'raw_hi' : p.column;
+				this.err(line, col, `${g.test_code} ${g.group_code}, table ${p.message.charAt(0).toLowerCase()}${p.message.slice(1)}`);
+			}
+		}
+		if (this.keepRows) for (const t of this.tables.values()) (this.rows as (NormGroupInput & { line: number })[]).push(t.group);
 	}
 
 	private normRow(line: number, v: Record<string, string>): void {
@@ -323,9 +464,15 @@ export class CsvValidator<K extends CsvKind> {
 			sex,
 			edu_min: (eMin as number | null) ?? null,
 			edu_max: (eMax as number | null) ?? null,
+			subject: 'test' as const,
+			form: 'mean_sd' as const,
 			mean: mean as number,
 			sd: sd as number,
-			n: (n as number | null) ?? null
+			n: (n as number | null) ?? null,
+			scale: null,
+			rows: null,
+			intercept: null,
+			coefficients: null
 		};
 		if (this.keepRows) (this.rows as (NormGroupInput & { line: number })[]).push(row);
 	}
@@ -382,7 +529,8 @@ export class CsvValidator<K extends CsvKind> {
 			if (this.map === null) this.fileError('The file is empty: no header and no rows.');
 			else if (this.result.rowCount === 0) this.fileError('The file has a header but no rows.');
 		}
-		if (this.kind === 'norms' && !this.stopped) {
+		if (this.kind === 'tables' && !this.stopped) this.finishTables();
+		if (this.kind !== 'tests' && !this.stopped) {
 			for (const p of rangeProblems(this.ranges)) {
 				const line = Number(p.rows[1].replace('line ', ''));
 				this.err(line, p.kind === 'duplicate' ? 'group_code' : 'age_min_months', p.message);
@@ -454,9 +602,35 @@ export function testsToCsv(tests: readonly TestInput[]): string {
 	);
 }
 
-export function normGroupsToCsv(groups: readonly NormGroupInput[]): string {
+type GroupKeys = Pick<NormGroupInput, 'test_code' | 'group_code' | 'age_min_months' | 'age_max_months' | 'sex' | 'edu_min' | 'edu_max'>;
+
+/** Mean/SD groups as the norms CSV (groups in other forms go to their own files). */
+export function normGroupsToCsv(groups: readonly (GroupKeys & { mean: number | null; sd: number | null; n: number | null; form?: string })[]): string {
+	groups = groups.filter((g) => (g.form ?? 'mean_sd') === 'mean_sd');
 	return toCsv(
 		NORM_COLUMNS,
 		groups.map((g) => [g.test_code, g.group_code, g.age_min_months, g.age_max_months, g.sex, g.edu_min, g.edu_max, g.mean, g.sd, g.n])
+	);
+}
+
+type GroupRecord = GroupKeys & { form?: string; scale?: string | null; rows?: TableRowInput[] | null; intercept?: number | null; coefficients?: Record<string, number> | null; sd: number | null; n: number | null };
+
+/** Conversion tables as the tables CSV: one line per row, the group's columns repeated. */
+export function normTablesToCsv(groups: readonly GroupRecord[]): string {
+	return toCsv(
+		TABLE_COLUMNS,
+		groups
+			.filter((g) => g.form === 'table')
+			.flatMap((g) => (g.rows ?? []).map((r) => [g.test_code, g.group_code, g.age_min_months, g.age_max_months, g.sex, g.edu_min, g.edu_max, g.scale, r.lo, r.hi, r.score, r.percentile]))
+	);
+}
+
+/** Regression equations as the equations CSV: one line per group. */
+export function normEquationsToCsv(groups: readonly GroupRecord[]): string {
+	return toCsv(
+		EQUATION_COLUMNS,
+		groups
+			.filter((g) => g.form === 'regression')
+			.map((g) => [g.test_code, g.group_code, g.age_min_months, g.age_max_months, g.sex, g.edu_min, g.edu_max, g.intercept, g.coefficients?.age, g.coefficients?.education, g.coefficients?.sex, g.sd, g.n])
 	);
 }

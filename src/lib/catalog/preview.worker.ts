@@ -4,10 +4,10 @@
  * blocks the page.
  */
 import Papa from 'papaparse';
-import { CsvValidator, LIMITS, formatBytes, type CsvKind, type PreviewResult } from './csv';
+import { CsvValidator, LIMITS, formatBytes, type CsvKind, type PreviewResult, type SubjectSpan } from './csv';
 import { normalizeNewlines, pushRecord } from './parse';
 
-export type WorkerRequest = { file: File; kind: CsvKind; testCodes: string[]; domains: string[] };
+export type WorkerRequest = { file: File; kind: CsvKind; testCodes: string[]; domains: string[]; spans?: Record<string, SubjectSpan> };
 export type WorkerMessage =
 	| { type: 'progress'; done: number; total: number; rows: number }
 	| { type: 'done'; result: PreviewResult; ms: number };
@@ -17,7 +17,7 @@ const post = (m: WorkerMessage) => (self as unknown as Worker).postMessage(m);
 self.onmessage = async (e: MessageEvent<WorkerRequest>) => {
 	const started = performance.now();
 	const { file, kind } = e.data;
-	const v = new CsvValidator(kind, { testCodes: new Set(e.data.testCodes), domains: new Set(e.data.domains) });
+	const v = new CsvValidator(kind, { testCodes: new Set(e.data.testCodes), domains: new Set(e.data.domains), spans: e.data.spans });
 	const done = () => post({ type: 'done', result: v.finish(), ms: Math.round(performance.now() - started) });
 	if (file.size > LIMITS.maxBytes) {
 		v.fileError(`The file is ${formatBytes(file.size)}; the most one import takes is ${formatBytes(LIMITS.maxBytes)}. Split it into smaller files.`);

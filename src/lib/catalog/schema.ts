@@ -3,6 +3,7 @@
  * JSON API and the CSV import. Framework-free: runs in the browser, the server and tsx scripts.
  */
 import { z } from 'zod';
+import { NORM_FORMS, TABLE_SCALES, COVARIATE_AGE } from './norm-forms';
 
 export const DERIVED = ['z', 'standard', 'scaled', 't', 'percentile'] as const;
 export type Derived = (typeof DERIVED)[number];
@@ -168,13 +169,30 @@ export const domainSchema = z.object({
 	name: z.string().trim().min(2, 'Enter the domain’s name').max(80, 'At most 80 characters')
 });
 
+export const COMPOSITE_FIELDS = ['sum', 'z', 'standard', 'scaled', 't', 'percentile'] as const;
+export type CompositeField = (typeof COMPOSITE_FIELDS)[number];
+
+export const compositeSchema = z
+	.object({
+		code: codeField,
+		name: z.string().trim().min(2, 'Enter the composite’s name').max(120, 'At most 120 characters'),
+		parts: z.array(codeField).min(1, 'Choose at least one part').max(30).refine((a) => new Set(a).size === a.length, 'A part appears twice'),
+		part_field: z.enum(['scaled', 'standard', 't'], { message: 'Choose scaled, standard or t' }),
+		reported: z.array(z.enum(COMPOSITE_FIELDS)).min(1, 'Choose at least one reported field').refine((a) => new Set(a).size === a.length, 'A field appears twice'),
+		reliability: z.number({ message: 'Enter a number between 0 and 1' }).gt(0, 'Above 0').lt(1, 'Below 1').nullable().default(null)
+	})
+	.transform((c) => ({ ...c, reported: COMPOSITE_FIELDS.filter((f) => c.reported.includes(f)) }));
+export type CompositeInput = z.output<typeof compositeSchema>;
+
 export const batterySchema = z.object({
 	code: codeField,
 	name: z.string().trim().min(2, 'Enter the battery’s name').max(160, 'At most 160 characters'),
 	description: z.string().trim().max(2000).default(''),
 	norm_set_id: z.number().int().positive().nullable().default(null),
 	tests: z.array(codeField).min(1, 'Choose at least one test').max(100, 'At most 100 tests')
-		.refine((a) => new Set(a).size === a.length, 'A test appears twice')
+		.refine((a) => new Set(a).size === a.length, 'A test appears twice'),
+	/** Absent: the battery's composites stay as they are; an array replaces them. */
+	composites: z.array(compositeSchema).max(20, 'At most 20 composites').optional()
 });
 export type BatteryInput = z.output<typeof batterySchema>;
 
@@ -187,7 +205,9 @@ export const normSetSchema = z.object({
 	source: z.string().trim().min(3, 'Cite the published source (or say it is invented)').max(4000),
 	version: z.string().trim().min(1, 'Enter a version').max(40, 'At most 40 characters').regex(/^[A-Za-z0-9._-]+$/, 'Letters, digits, dot, hyphen, underscore'),
 	borrow_days: z.enum(AGE_BORROW, { message: 'Choose 30 or actual' }).default('30'),
-	rounding: z.enum(AGE_ROUNDING, { message: 'Choose truncate or round_days' }).default('truncate')
+	rounding: z.enum(AGE_ROUNDING, { message: 'Choose truncate or round_days' }).default('truncate'),
+	/** How age enters regression norms. */
+	covariate_age: z.enum(COVARIATE_AGE, { message: 'Choose whole_years or decimal_years' }).default('whole_years')
 });
 export type NormSetInput = z.output<typeof normSetSchema>;
 
@@ -199,23 +219,56 @@ export function ageRuleOf(n: Pick<NormSetInput, 'borrow_days' | 'rounding'>): { 
 export const SEXES = ['F', 'M'] as const;
 export const MAX_AGE_MONTHS = 1500;
 
+const tableRowSchema = z.object({
+	lo: z.number({ message: 'Enter a number' }).finite().min(-RAW_LIMIT).max(RAW_LIMIT),
+	hi: z.number({ message: 'Enter a number' }).finite().min(-RAW_LIMIT).max(RAW_LIMIT),
+	score: z.number({ message: 'Enter a whole number' }).int('Enter a whole number').min(-1000).max(1000).nullable().default(null),
+	percentile: z.string().trim().max(12).nullable().default(null).transform((v) => (v === '' ? null : v))
+});
+
+const coefficientsSchema = z.strictObject(
+	{ age: z.number().finite().optional(), education: z.number().finite().optional(), sex: z.number().finite().optional() },
+	{ error: 'Coefficients may name only age, education and sex' }
+);
+
 export const normGroupSchema = z
 	.object({
 		test_code: codeField,
+		/** `composite`: the norm of a battery's composite (test_code holds the composite's code). */
+		subject: z.enum(['test', 'composite']).default('test'),
 		group_code: z.string().trim().regex(/^[A-Za-z0-9][A-Za-z0-9._-]{0,39}$/, 'Use 1–40 letters, digits, dot, hyphen, underscore'),
 		age_min_months: z.number({ message: 'Enter whole months' }).int('Whole months').min(0).max(MAX_AGE_MONTHS),
 		age_max_months: z.number({ message: 'Enter whole months' }).int('Whole months').min(0).max(MAX_AGE_MONTHS),
 		sex: z.enum(SEXES).nullable().default(null),
 		edu_min: z.number().int().min(0).max(40).nullable().default(null),
 		edu_max: z.number().int().min(0).max(40).nullable().default(null),
-		mean: z.number({ message: 'Enter a number' }).finite().min(-RAW_LIMIT).max(RAW_LIMIT),
-		sd: z.number({ message: 'Enter a number' }).finite().gt(0, 'SD must be above 0').max(RAW_LIMIT),
-		n: z.number().int().min(1).max(10_000_000).nullable().default(null)
+		form: z.enum(NORM_FORMS, { message: 'Choose mean_sd, table or regression' }).default('mean_sd'),
+		mean: z.number({ message: 'Enter a number' }).finite().min(-RAW_LIMIT).max(RAW_LIMIT).nullable().default(null),
+		/** The SD (mean/SD) or the residual SD (regression). */
+		sd: z.number({ message: 'Enter a number' }).finite().gt(0, 'SD must be above 0').max(RAW_LIMIT).nullable().default(null),
+		n: z.number().int().min(1).max(10_000_000).nullable().default(null),
+		scale: z.enum(TABLE_SCALES, { message: 'Choose scaled, standard, t or percentile' }).nullable().default(null),
+		rows: z.array(tableRowSchema).max(2000, 'At most 2000 rows').nullable().default(null),
+		intercept: z.number({ message: 'Enter a number' }).finite().min(-RAW_LIMIT).max(RAW_LIMIT).nullable().default(null),
+		coefficients: coefficientsSchema.nullable().default(null)
 	})
 	.superRefine((g, ctx) => {
 		if (g.age_min_months > g.age_max_months) ctx.addIssue({ code: 'custom', path: ['age_max_months'], message: 'Age range reversed: the upper age is below the lower' });
 		if ((g.edu_min === null) !== (g.edu_max === null)) ctx.addIssue({ code: 'custom', path: ['edu_max'], message: 'Give both education bounds or neither' });
 		else if (g.edu_min !== null && g.edu_max !== null && g.edu_min > g.edu_max) ctx.addIssue({ code: 'custom', path: ['edu_max'], message: 'Education range reversed' });
+		if (g.form === 'mean_sd') {
+			if (g.mean === null) ctx.addIssue({ code: 'custom', path: ['mean'], message: 'Enter the mean' });
+			if (g.sd === null) ctx.addIssue({ code: 'custom', path: ['sd'], message: 'Enter the SD' });
+		} else if (g.form === 'regression') {
+			if (g.subject === 'composite') ctx.addIssue({ code: 'custom', path: ['form'], message: 'A composite is normed by mean/SD of its sum or by a sum table' });
+			if (g.intercept === null) ctx.addIssue({ code: 'custom', path: ['intercept'], message: 'Enter the intercept' });
+			if (g.sd === null) ctx.addIssue({ code: 'custom', path: ['sd'], message: 'Enter the residual SD' });
+			if (!g.coefficients || Object.keys(g.coefficients).length === 0) ctx.addIssue({ code: 'custom', path: ['coefficients'], message: 'Give at least one coefficient (age, education or sex)' });
+		} else {
+			if (g.scale === null) ctx.addIssue({ code: 'custom', path: ['scale'], message: 'Choose the scale the table gives' });
+			if (!g.rows || g.rows.length === 0) ctx.addIssue({ code: 'custom', path: ['rows'], message: 'The table has no rows' });
+			if (g.subject === 'composite' && g.scale === 'percentile') ctx.addIssue({ code: 'custom', path: ['scale'], message: 'A composite table gives a score, not percentiles only' });
+		}
 	});
 export type NormGroupInput = z.output<typeof normGroupSchema>;
 
@@ -233,19 +286,19 @@ export function issuesByPath(error: z.ZodError): Record<string, string> {
 // CSV import requests (the JSON API)
 
 export const importPreviewSchema = z.object({
-	kind: z.enum(['norms', 'tests'], { message: 'Choose norms or tests' }),
+	kind: z.enum(['norms', 'tests', 'tables', 'equations'], { message: 'Choose norms, tests, tables or equations' }),
 	csv: z.string({ message: 'Send the CSV text as a string' })
 });
 
 export const importConfirmSchema = z.discriminatedUnion('kind', [
 	z.object({ kind: z.literal('tests'), csv: z.string({ message: 'Send the CSV text as a string' }) }),
 	z.object({
-		kind: z.literal('norms'),
+		kind: z.enum(['norms', 'tables', 'equations']),
 		csv: z.string({ message: 'Send the CSV text as a string' }),
 		target: z.discriminatedUnion('mode', [
 			z.object({ mode: z.literal('new'), set: normSetSchema }),
 			z.object({ mode: z.literal('existing'), id: z.number().int().positive() })
 		])
 	})
-], { message: 'kind must be norms or tests' });
+], { message: 'kind must be norms, tests, tables or equations' });
 export type ImportConfirm = z.output<typeof importConfirmSchema>;

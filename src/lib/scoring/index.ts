@@ -14,6 +14,9 @@ export {
 	classifyPair,
 	ReconcileInputError,
 	type Discrepancy,
+	type TestDiscrepancy,
+	type CompositeDiscrepancy,
+	type Reference,
 	type FieldProblem,
 	type FieldProblemCode,
 	type FieldValues,
@@ -26,4 +29,5 @@ export {
 	type ReconcileResult,
 	type TestDef
 } from './reconcile';
+export * from './norms';
 export { parseReconcileInput, reconcileInputSchema, formatPath, type ParseResult } from './schema';

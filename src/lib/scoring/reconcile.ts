@@ -26,6 +26,7 @@ import {
 } from './scales';
 import { isDigitDrop, isDigitExtra, isTransposition, isWrongDigit } from './digits';
 import { KIND_RANK, type Kind } from './kinds';
+import { isCompositeNorm, type AnyNormEntry, type CompositeDef, type CompositeField, type Covariates, type MeanSdNorm, type NormEntry } from './norms';
 
 export type { Kind } from './kinds';
 
@@ -44,12 +45,8 @@ export interface TestDef {
 	bounds?: BoundsOverride | null;
 }
 
-export interface NormDef {
-	test: string;
-	group: string;
-	mean: number;
-	sd: number;
-}
+/** A mean/SD norm (the original form; `form` absent or `"mean_sd"`). See ./norms for all forms. */
+export type NormDef = MeanSdNorm;
 
 export type FieldValues = Partial<Record<Field, Entered>>;
 
@@ -61,22 +58,31 @@ export interface PassInput {
 export interface ProtocolInput {
 	/** The norm group used for every test … */
 	group: string;
-	/** … unless a test has its own here (test id → group). */
+	/** … unless a test or composite has its own here (test or composite id → group). */
 	groups?: Readonly<Record<string, string>> | null;
+	/** Covariate values for regression norms (e.g. `{ age: 46, education: 14 }`). */
+	covariates?: Covariates | null;
 }
 
 export interface ReconcileInput {
 	tests: readonly TestDef[];
-	norms: readonly NormDef[];
+	/** Test norms (any form) and composite norms, side by side. */
+	norms: readonly AnyNormEntry[];
+	/** Composites over the tests, in output order. */
+	composites?: readonly CompositeDef[] | null;
 	protocol: ProtocolInput;
 	passes: readonly [PassInput, PassInput] | readonly PassInput[];
 }
 
 export type PassName = 'first' | 'second' | 'both';
 
-export interface Discrepancy {
-	test: string;
-	field: Field;
+/**
+ * A reference value: a number, or (percentile-only tables) a percentile band as the table writes it
+ * (`"10-25"`, `"<=5"`, `">=75"`).
+ */
+export type Reference = number | string;
+
+interface DiscrepancyBase {
 	pass: PassName;
 	kind: Kind;
 	/** The flagged pass's value as entered (the first pass's for `both`); null when empty. */
@@ -84,14 +90,30 @@ export interface Discrepancy {
 	/** The other pass's value for the same field, or null. */
 	other: number | string | null;
 	/** The recomputed reference, or null (raw fields; passes without a usable raw score). */
-	expected: number | null;
+	expected: Reference | null;
 	/**
 	 * Rule 5: when the two raw scores differ and both are usable, the reference computed from the
-	 * other pass's raw score (for `both`, the first pass's); otherwise null.
+	 * other pass's raw score (for `both`, the first pass's); otherwise null. Always null on composites.
 	 */
-	alternative: number | null;
+	alternative: Reference | null;
 	out_of_range: boolean;
 }
+
+/** A discrepancy on a test's field. */
+export interface TestDiscrepancy extends DiscrepancyBase {
+	test: string;
+	composite?: undefined;
+	field: Field;
+}
+
+/** A discrepancy on a composite's field (these come after all the tests' discrepancies). */
+export interface CompositeDiscrepancy extends DiscrepancyBase {
+	composite: string;
+	test?: undefined;
+	field: CompositeField;
+}
+
+export type Discrepancy = TestDiscrepancy | CompositeDiscrepancy;
 
 export interface ReconcileResult {
 	discrepancies: Discrepancy[];
@@ -203,9 +225,13 @@ export function classifyPair(
 	return 'mismatch';
 }
 
-function indexNorms(norms: readonly NormDef[]): Map<string, NormDef[]> {
+function indexNorms(norms: readonly AnyNormEntry[]): Map<string, NormDef[]> {
 	const byTest = new Map<string, NormDef[]>();
 	for (const n of norms) {
+		if (isCompositeNorm(n)) continue;
+		if (n.form !== undefined && n.form !== 'mean_sd') {
+			throw new ReconcileInputError(`norm form ${JSON.stringify(n.form)} is not handled by this version of the engine`, ['norms']);
+		}
 		const list = byTest.get(n.test);
 		if (list) list.push(n);
 		else byTest.set(n.test, [n]);
@@ -216,16 +242,27 @@ function indexNorms(norms: readonly NormDef[]): Map<string, NormDef[]> {
 const EMPTY: FieldValues = {};
 
 /**
- * The references of one test for a given raw score, through the given norm: every derived field the
- * norm yields (the review screen re-judges a test's derived discrepancies against the kept raw score
- * with this). Returns null when the raw score is empty, not a number, or outside the test's range
- * (no reference, as in rule 3). Pure; the same computation `reconcile` uses.
+ * The references of one test for a given raw score, through the given norm (any form; regression
+ * norms need the protocol's covariates): every derived field the norm yields, which is all five for
+ * mean/SD, regression and score tables, and `percentile` alone for percentile-only tables (a number
+ * or a band string). The review screen re-judges a test's derived discrepancies against the kept raw
+ * score with this. Returns null when the raw score is empty, not a number, or outside the test's
+ * range (no reference, as in rule 3). Pure; the same computation `reconcile` uses.
  */
-export function testReferences(test: TestDef, norm: NormDef, raw: Entered): Record<DerivedField, number> | null {
+export function testReferences(
+	test: TestDef,
+	norm: NormEntry,
+	raw: Entered,
+	covariates?: Covariates | null
+): Partial<Record<DerivedField, Reference>> | null {
 	const n = parseEntered(raw, 'raw');
 	if (n === null || Number.isNaN(n) || !rawInRange(n, test.raw)) return null;
+	if (norm.form !== undefined && norm.form !== 'mean_sd') {
+		void covariates;
+		throw new ReconcileInputError(`norm form ${JSON.stringify(norm.form)} is not handled by this version of the engine`, ['norms']);
+	}
 	const z = zFromRaw(n, norm.mean, norm.sd, test.direction);
-	const out = {} as Record<DerivedField, number>;
+	const out: Partial<Record<DerivedField, Reference>> = {};
 	for (const f of DERIVED_FIELDS) out[f] = referenceScore(f, z, test.bounds);
 	return out;
 }

@@ -144,8 +144,12 @@ export function referenceScores(z: number, override?: BoundsOverride | null): Re
 	};
 }
 
-/** A reference written at its field's precision, for the digit kinds: z as `1.07` / `-0.30`, others whole. */
-export function formatReference(field: DerivedField, value: number): string {
+/**
+ * A reference written at its field's precision, for the digit kinds and for storage: z as `1.07` /
+ * `-0.30`, other scales (and composite sums) whole; a percentile band (a string) as it is.
+ */
+export function formatReference(field: DerivedField | 'sum', value: number | string): string {
+	if (typeof value === 'string') return value;
 	return field === 'z' ? value.toFixed(2) : String(value);
 }
 

@@ -1,7 +1,8 @@
 /** Batteries: ordered lists of tests grouped by domain, as a protocol is administered. */
 import { exec, select, selectOne, transaction, type Tx } from '../db';
 import { audit } from '../audit';
-import { batterySchema, type BatteryInput } from '../../catalog/schema';
+import { batterySchema, type BatteryInput, type CompositeInput, type CompositeField } from '../../catalog/schema';
+import { models } from '../models';
 import { CatalogError, notFoundError } from './errors';
 import { listTests, type TestRecord } from './tests';
 
@@ -21,6 +22,28 @@ export interface BatteryRecord extends BatterySummary {
 	items: (TestRecord & { position: number })[];
 	/** The same tests grouped by domain, domains in the order they first appear. */
 	domains: { code: string; name: string; tests: (TestRecord & { position: number })[] }[];
+	/** Composite (index) scores over the battery's tests, in report order. */
+	composites: CompositeRecord[];
+}
+
+export interface CompositeRecord extends CompositeInput {
+	id: number;
+	position: number;
+}
+
+export async function listComposites(batteryId: number, tx?: Tx): Promise<CompositeRecord[]> {
+	const { Composite } = models();
+	const rows = await Composite.findAll({ where: { battery_id: batteryId }, order: [['position', 'ASC']], transaction: tx ?? undefined });
+	return rows.map((c) => ({
+		id: c.id,
+		position: c.position,
+		code: c.code,
+		name: c.name,
+		parts: c.parts,
+		part_field: c.part_field,
+		reported: c.reported.split(',').filter(Boolean) as CompositeField[],
+		reliability: c.reliability
+	}));
 }
 
 const SUMMARY = `SELECT b.*, s.name AS norm_set_name, COUNT(bt.test_code) AS tests FROM batteries b
@@ -59,7 +82,7 @@ export async function getBattery(id: number, tx?: Tx): Promise<BatteryRecord | n
 		if (!d) domains.push((d = { code: it.domain, name: domainNames.get(it.domain) ?? it.domain, tests: [] }));
 		d.tests.push(it);
 	}
-	return { ...rowToSummary(r), items, domains };
+	return { ...rowToSummary(r), items, domains, composites: await listComposites(id, tx) };
 }
 
 export async function getBatteryByCode(code: string, tx?: Tx): Promise<BatteryRecord | null> {
@@ -85,6 +108,42 @@ async function checkRefs(b: BatteryInput, tr: Tx) {
 	if (unknown.length) throw new CatalogError(400, 'Unknown tests.', { tests: `Unknown test code${unknown.length > 1 ? 's' : ''}: ${unknown.join(', ')}` });
 }
 
+/**
+ * Composites: codes unique across tests and composites, parts among the battery's tests and
+ * reporting the part field. Refused with the composite named.
+ */
+async function checkComposites(batteryId: number | null, b: BatteryInput, tr: Tx) {
+	if (!b.composites) return;
+	const codes = new Set<string>();
+	const tests = await select<{ code: string; reported: string }>('SELECT code, reported FROM tests WHERE is_current = 1', {}, tr);
+	const testCodes = new Map(tests.map((t) => [t.code, t.reported.split(',')]));
+	const { Composite } = models();
+	const taken = await Composite.findAll({ where: { code: b.composites.map((c) => c.code) }, transaction: tr ?? undefined });
+	for (const [i, c] of b.composites.entries()) {
+		const key = `composites.${i}`;
+		if (codes.has(c.code)) throw new CatalogError(400, `Composite ${c.code} is defined twice.`, { [key]: `The code ${c.code} appears twice` });
+		codes.add(c.code);
+		if (testCodes.has(c.code)) throw new CatalogError(400, `Composite ${c.code}: a test has this code; composites and tests need different codes.`, { [key]: `The code ${c.code} is a test's` });
+		const other = taken.find((t) => t.code === c.code && t.battery_id !== batteryId);
+		if (other) throw new CatalogError(409, `Composite ${c.code}: another battery has a composite with this code.`, { [key]: `The code ${c.code} is taken` }, 'conflict');
+		for (const part of c.parts) {
+			if (!b.tests.includes(part)) throw new CatalogError(400, `Composite ${c.code}: part ${part} is not a test of this battery.`, { [key]: `Part ${part} is not in the battery` });
+			if (!testCodes.get(part)?.includes(c.part_field))
+				throw new CatalogError(400, `Composite ${c.code}: part ${part} does not report the ${c.part_field} score the composite sums.`, { [key]: `Part ${part} does not report ${c.part_field}` });
+		}
+	}
+}
+
+async function writeComposites(batteryId: number, b: BatteryInput, tr: Tx) {
+	if (!b.composites) return;
+	const { Composite } = models();
+	await Composite.destroy({ where: { battery_id: batteryId }, transaction: tr ?? undefined });
+	await Composite.bulkCreate(
+		b.composites.map((c, i) => ({ battery_id: batteryId, code: c.code, name: c.name, position: i + 1, part_field: c.part_field, parts: c.parts, reported: c.reported.join(','), reliability: c.reliability })),
+		{ transaction: tr ?? undefined }
+	);
+}
+
 async function writeTests(id: number, tests: string[], tr: Tx) {
 	await exec('DELETE FROM battery_tests WHERE battery_id = :id', { id }, tr);
 	for (const [i, code] of tests.entries()) await exec('INSERT INTO battery_tests (battery_id, test_code, position) VALUES (:id, :code, :pos)', { id, code, pos: i + 1 }, tr);
@@ -103,9 +162,11 @@ export async function createBattery(input: unknown, actorId: number | null): Pro
 		if (await selectOne('SELECT id FROM batteries WHERE code = :code', { code: b.code }, tr))
 			throw new CatalogError(409, 'A battery with this code already exists.', { code: `The code ${b.code} is taken` }, 'conflict');
 		await checkRefs(b, tr);
+		await checkComposites(null, b, tr);
 		const domainOf = await domainLookup(tr);
 		const r = await exec('INSERT INTO batteries (code, name, description, norm_set_id) VALUES (:code, :name, :description, :norm_set_id)', { ...b, description: b.description || null }, tr);
 		await writeTests(r.insertId, groupByDomain(b.tests, domainOf), tr);
+		await writeComposites(r.insertId, b, tr);
 		await audit({ actorId, entity: 'battery', entityId: r.insertId, action: 'create', newValue: b }, tr);
 		return (await getBattery(r.insertId, tr))!;
 	});
@@ -125,9 +186,11 @@ export async function updateBattery(id: number, input: unknown, actorId: number 
 		if (await selectOne('SELECT id FROM batteries WHERE code = :code AND id <> :id', { code: b.code, id }, tr))
 			throw new CatalogError(409, 'A battery with this code already exists.', { code: `The code ${b.code} is taken` }, 'conflict');
 		await checkRefs(b, tr);
+		await checkComposites(id, { ...b, composites: b.composites ?? old.composites }, tr);
 		const domainOf = await domainLookup(tr);
 		await exec('UPDATE batteries SET code = :code, name = :name, description = :description, norm_set_id = :norm_set_id WHERE id = :id', { ...b, description: b.description || null, id }, tr);
 		await writeTests(id, groupByDomain(b.tests, domainOf), tr);
+		await writeComposites(id, b, tr);
 		await audit({ actorId, entity: 'battery', entityId: id, action: 'update', oldValue: { ...old, items: old.items.map((i) => i.code), domains: undefined }, newValue: b }, tr);
 		return (await getBattery(id, tr))!;
 	});

@@ -5,19 +5,24 @@
  */
 import { select, transaction } from '../db';
 import { audit } from '../audit';
-import { normGroupsToCsv, testsToCsv, type CsvKind, type PreviewResult, type ValidationContext } from '../../catalog/csv';
+import { normEquationsToCsv, normGroupsToCsv, normTablesToCsv, testsToCsv, type CsvKind, type PreviewResult, type SubjectSpan, type ValidationContext } from '../../catalog/csv';
 import { validateCsvText } from '../../catalog/parse';
 import type { ImportConfirm, NormGroupInput, TestInput } from '../../catalog/schema';
 import { CatalogError, notFoundError } from './errors';
 import { createTest, listTests, updateTest } from './tests';
-import { createNormSet, getNormSet, listNormGroups, replaceNormGroups } from './norms';
+import { createNormSet, getNormSet, listNormGroups, replaceNormGroups, subjectsOf } from './norms';
+import { models } from '../models';
 
 export async function validationContext(): Promise<ValidationContext> {
-	const [tests, domains] = await Promise.all([
+	const { Composite } = models();
+	const [tests, domains, composites] = await Promise.all([
 		select<{ code: string }>('SELECT code FROM tests WHERE is_current = 1'),
-		select<{ code: string }>('SELECT code FROM domains ORDER BY position')
+		select<{ code: string }>('SELECT code FROM domains ORDER BY position'),
+		Composite.findAll({ attributes: ['code'] })
 	]);
-	return { testCodes: new Set(tests.map((t) => t.code)), domains: new Set(domains.map((d) => d.code)) };
+	const subjects = await subjectsOf([...tests.map((t) => t.code), ...composites.map((c) => c.code)], null);
+	const spans: Record<string, SubjectSpan> = Object.fromEntries(subjects);
+	return { testCodes: new Set(tests.map((t) => t.code)), domains: new Set(domains.map((d) => d.code)), spans };
 }
 
 /** Parse and validate without writing anything. */
@@ -77,6 +82,7 @@ export async function confirmImport(req: ImportConfirm, actorId: number | null):
 		});
 	}
 	const groups = rows as (NormGroupInput & { line: number })[];
+	const what = req.kind === 'tables' ? 'table' : req.kind === 'equations' ? 'equation' : 'group';
 	return transaction(async (tr) => {
 		let setId: number;
 		if (req.target.mode === 'new') setId = (await createNormSet(req.target.set, actorId, tr)).id;
@@ -84,8 +90,8 @@ export async function confirmImport(req: ImportConfirm, actorId: number | null):
 			if (!(await getNormSet(req.target.id, tr))) throw notFoundError('This norm set');
 			setId = req.target.id;
 		}
-		const r = await replaceNormGroups(setId, groups.map(({ line: _line, ...g }) => g), tr);
-		const out: ImportOutcome = { kind: 'norms', rows: groups.length, normSetId: setId, created: r.added, removed: r.removed };
+		const r = await replaceNormGroups(setId, groups.map(({ line, ...g }) => ({ ...g, label: `Line ${line} (${what} ${g.group_code} of ${g.test_code})` })), tr);
+		const out: ImportOutcome = { kind: req.kind, rows: req.kind === 'tables' ? groups.reduce((n, g) => n + (g.rows?.length ?? 0), 0) : groups.length, normSetId: setId, created: r.added, removed: r.removed };
 		await audit({ actorId, entity: 'catalog_import', entityId: setId, action: 'import', newValue: out }, tr);
 		return out;
 	});
@@ -95,8 +101,10 @@ export async function exportTestsCsv(): Promise<string> {
 	return testsToCsv(await listTests());
 }
 
-export async function exportNormGroupsCsv(normSetId: number): Promise<{ filename: string; csv: string }> {
+export async function exportNormGroupsCsv(normSetId: number, kind: 'norms' | 'tables' | 'equations' = 'norms'): Promise<{ filename: string; csv: string }> {
 	const set = await getNormSet(normSetId);
 	if (!set) throw notFoundError('This norm set');
-	return { filename: `${set.code}-${set.version}-norms.csv`, csv: normGroupsToCsv(await listNormGroups(normSetId)) };
+	const groups = await listNormGroups(normSetId);
+	const csv = kind === 'tables' ? normTablesToCsv(groups) : kind === 'equations' ? normEquationsToCsv(groups) : normGroupsToCsv(groups);
+	return { filename: `${set.code}-${set.version}-${kind}.csv`, csv };
 }

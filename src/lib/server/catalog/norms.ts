@@ -8,6 +8,8 @@ import { db, exec, select, selectOne, transaction, type Tx } from '../db';
 import { audit } from '../audit';
 import { ageRuleOf, normGroupSchema, normSetSchema, type NormGroupInput, type NormSetInput } from '../../catalog/schema';
 import { rangeProblems, type RangeRow } from '../../catalog/ranges';
+import { SCALE_BOUNDS, sumSpan, tableProblems, type Coefficients, type CovariateAge, type RawSpan, type TableRowInput } from '../../catalog/norm-forms';
+import { models } from '../models';
 import { CatalogError, notFoundError } from './errors';
 
 export interface AgeRuleJson {
@@ -23,6 +25,8 @@ export interface NormSetRecord {
 	source: string;
 	version: string;
 	age_rule: AgeRuleJson;
+	/** How age enters regression norms. */
+	covariate_age: CovariateAge;
 	created_at: string;
 	groups: number;
 	tests: number;
@@ -32,6 +36,7 @@ export interface NormGroupRecord extends NormGroupInput {
 	id: number;
 	norm_set_id: number;
 }
+export type { TableRowInput };
 
 interface SetRow {
 	id: number;
@@ -40,6 +45,7 @@ interface SetRow {
 	source: string;
 	version: string;
 	age_rule: string | AgeRuleJson;
+	covariate_age?: CovariateAge;
 	created_at: Date;
 	groups?: number;
 	tests?: number;
@@ -53,28 +59,56 @@ function rowToSet(r: SetRow): NormSetRecord {
 		source: r.source,
 		version: r.version,
 		age_rule: (typeof r.age_rule === 'string' ? JSON.parse(r.age_rule) : r.age_rule) as AgeRuleJson,
+		covariate_age: r.covariate_age ?? 'whole_years',
 		created_at: new Date(r.created_at).toISOString(),
 		groups: Number(r.groups ?? 0),
 		tests: Number(r.tests ?? 0)
 	};
 }
 
-export function rowToGroup(r: Record<string, unknown>): NormGroupRecord {
+export function rowToGroup(r: Record<string, unknown>, rows: TableRowInput[] | null = null): NormGroupRecord {
 	const n = (v: unknown) => (v === null || v === undefined ? null : Number(v));
+	const form = (r.form as NormGroupRecord['form']) ?? 'mean_sd';
 	return {
 		id: Number(r.id),
 		norm_set_id: Number(r.norm_set_id),
 		test_code: String(r.test_code),
+		subject: (r.subject as 'test' | 'composite') ?? 'test',
+		form,
+		scale: (r.scale as NormGroupRecord['scale']) ?? null,
+		intercept: n(r.intercept),
+		coefficients: r.coefficients ? (typeof r.coefficients === 'string' ? JSON.parse(r.coefficients) : r.coefficients) as Coefficients : null,
+		rows: form === 'table' ? rows ?? [] : null,
 		group_code: String(r.group_code),
 		age_min_months: Number(r.age_min_months),
 		age_max_months: Number(r.age_max_months),
 		sex: (r.sex as 'F' | 'M' | null) ?? null,
 		edu_min: n(r.edu_min),
 		edu_max: n(r.edu_max),
-		mean: Number(r.mean),
-		sd: Number(r.sd),
+		mean: n(r.mean),
+		sd: n(r.sd),
 		n: n(r.n)
 	};
+}
+
+/** The table rows of these groups, by group id, in order. */
+export async function tableRowsOf(groupIds: number[], tx?: Tx): Promise<Map<number, TableRowInput[]>> {
+	const out = new Map<number, TableRowInput[]>();
+	if (!groupIds.length) return out;
+	const { NormTableRow } = models();
+	const rows = await NormTableRow.findAll({ where: { norm_group_id: groupIds }, order: [['norm_group_id', 'ASC'], ['position', 'ASC']], transaction: tx ?? undefined });
+	for (const r of rows) {
+		const list = out.get(r.norm_group_id) ?? [];
+		list.push({ lo: Number(r.lo), hi: Number(r.hi), score: r.score, percentile: r.percentile });
+		out.set(r.norm_group_id, list);
+	}
+	return out;
+}
+
+async function withRows(raw: Record<string, unknown>[], tx?: Tx): Promise<NormGroupRecord[]> {
+	const ids = raw.filter((r) => r.form === 'table').map((r) => Number(r.id));
+	const rows = await tableRowsOf(ids, tx);
+	return raw.map((r) => rowToGroup(r, rows.get(Number(r.id)) ?? null));
 }
 
 const SET_SELECT = `SELECT s.*, COUNT(g.id) AS \`groups\`, COUNT(DISTINCT g.test_code) AS tests
@@ -99,7 +133,7 @@ export async function listNormGroups(normSetId: number, opts: { test?: string } 
 		{ id: normSetId, test: opts.test ?? null },
 		tx
 	);
-	return rows.map(rowToGroup);
+	return withRows(rows, tx);
 }
 
 function parseSet(input: unknown): NormSetInput {
@@ -118,7 +152,7 @@ export async function createNormSet(input: unknown, actorId: number | null, tx?:
 		if (await selectOne('SELECT id FROM norm_sets WHERE code = :code AND version = :version', s, tr))
 			throw new CatalogError(409, 'That norm set version already exists.', { version: `${s.code} version ${s.version} already exists` }, 'conflict');
 		const r = await exec(
-			'INSERT INTO norm_sets (code, name, source, version, age_rule) VALUES (:code, :name, :source, :version, :rule)',
+			'INSERT INTO norm_sets (code, name, source, version, age_rule, covariate_age) VALUES (:code, :name, :source, :version, :rule, :covariate_age)',
 			{ ...s, rule: JSON.stringify(ageRuleOf(s)) },
 			tr
 		);
@@ -135,7 +169,7 @@ export async function updateNormSet(id: number, input: unknown, actorId: number 
 		if (!old) throw notFoundError('This norm set');
 		const clash = await selectOne('SELECT id FROM norm_sets WHERE code = :code AND version = :version AND id <> :id', { ...s, id }, tr);
 		if (clash) throw new CatalogError(409, 'That norm set version already exists.', { version: `${s.code} version ${s.version} already exists` }, 'conflict');
-		await exec('UPDATE norm_sets SET code = :code, name = :name, source = :source, version = :version, age_rule = :rule WHERE id = :id', { ...s, rule: JSON.stringify(ageRuleOf(s)), id }, tr);
+		await exec('UPDATE norm_sets SET code = :code, name = :name, source = :source, version = :version, age_rule = :rule, covariate_age = :covariate_age WHERE id = :id', { ...s, rule: JSON.stringify(ageRuleOf(s)), id }, tr);
 		await audit({ actorId, entity: 'norm_set', entityId: id, action: 'update', oldValue: old, newValue: s }, tr);
 		return (await getNormSet(id, tr))!;
 	});
@@ -161,15 +195,124 @@ export function assertRanges(rows: RangeRow[]): void {
 
 async function groupsInUse(ids: number[], tr: Tx): Promise<number> {
 	if (!ids.length) return 0;
-	const r = await selectOne<{ n: number }>('SELECT COUNT(DISTINCT protocol_id) AS n FROM protocol_tests WHERE norm_group_id IN (:ids)', { ids }, tr);
+	const r = await selectOne<{ n: number }>(
+		`SELECT COUNT(DISTINCT protocol_id) AS n FROM (SELECT protocol_id FROM protocol_tests WHERE norm_group_id IN (:ids)
+		   UNION SELECT protocol_id FROM protocol_composites WHERE norm_group_id IN (:ids)) u`,
+		{ ids },
+		tr
+	);
 	return Number(r?.n ?? 0);
 }
 
 const label = (g: { id?: number; group_code: string }) => `group ${g.group_code}`;
 
-async function checkTest(code: string, tr: Tx) {
-	if (!(await selectOne('SELECT id FROM tests WHERE code = :code AND is_current = 1', { code }, tr)))
-		throw new CatalogError(400, 'Unknown test.', { test_code: `Unknown test code ${code}` });
+interface Subject {
+	subject: 'test' | 'composite';
+	/** Valid raw values (a test) or sums (a composite). */
+	span: RawSpan;
+	bounds: Record<string, [number, number]> | null;
+	reported: string[];
+}
+
+const DEFAULT_BOUNDS: Record<string, [number, number]> = { ...SCALE_BOUNDS, percentile: [1, 99], z: [-5, 5] };
+
+/** What the norms of these codes must fit: the test's raw range or the composite's sum span. */
+export async function subjectsOf(codes: string[], tr: Tx): Promise<Map<string, Subject>> {
+	const out = new Map<string, Subject>();
+	if (!codes.length) return out;
+	const tests = await select<{ code: string; raw_min: number; raw_max: number; raw_decimals: number; bounds: unknown; reported: string }>(
+		'SELECT code, raw_min, raw_max, raw_decimals, bounds, reported FROM tests WHERE is_current = 1',
+		{},
+		tr
+	);
+	const byCode = new Map(tests.map((t) => [t.code, t]));
+	const boundsOf = (b: unknown) => (b ? (typeof b === 'string' ? JSON.parse(b) : b) : null) as Record<string, [number, number]> | null;
+	for (const t of tests) {
+		if (!codes.includes(t.code)) continue;
+		out.set(t.code, {
+			subject: 'test',
+			span: { min: Number(t.raw_min), max: Number(t.raw_max), decimals: Number(t.raw_decimals) },
+			bounds: boundsOf(t.bounds),
+			reported: t.reported.split(',').map((x) => x.trim())
+		});
+	}
+	const missing = codes.filter((c) => !out.has(c));
+	if (missing.length) {
+		const { Composite } = models();
+		for (const c of await Composite.findAll({ where: { code: missing }, transaction: tr ?? undefined })) {
+			const partBounds = c.parts.map((p) => {
+				const t = byCode.get(p);
+				return (t ? boundsOf(t.bounds)?.[c.part_field] : null) ?? DEFAULT_BOUNDS[c.part_field];
+			});
+			out.set(c.code, { subject: 'composite', span: sumSpan(partBounds), bounds: null, reported: c.reported.split(',') });
+		}
+	}
+	return out;
+}
+
+/**
+ * Each group fits its test or composite: the code exists, a table covers every raw value (or sum)
+ * once with scores on its scale, a percentile-only test reports the percentile only. Refused with
+ * the group and row named. Returns the groups with `subject` set from what the code is.
+ */
+export async function checkForms<G extends NormGroupInput>(groups: readonly (G & { label?: string })[], tr: Tx): Promise<G[]> {
+	const subjects = await subjectsOf([...new Set(groups.map((g) => g.test_code))], tr);
+	const problems: string[] = [];
+	const out = groups.map((g) => {
+		const name = g.label ?? `Group ${g.group_code} of ${g.test_code}`;
+		const s = subjects.get(g.test_code);
+		if (!s) {
+			problems.push(`${name}: unknown test or composite ${g.test_code}`);
+			return g;
+		}
+		if (g.form === 'regression' && s.subject === 'composite') problems.push(`${name}: a composite is normed by mean/SD of its sum or by a sum table`);
+		if (g.form === 'table' && g.scale && g.rows) {
+			if (s.subject === 'composite' && g.scale === 'percentile') problems.push(`${name}: a composite table gives a score, not percentiles only`);
+			if (s.subject === 'test' && g.scale === 'percentile' && s.reported.some((f) => f !== 'percentile'))
+				problems.push(`${name}: a percentile-only table fits only a test that reports the percentile alone (${g.test_code} reports ${s.reported.join(', ')})`);
+			const bounds = g.scale === 'percentile' ? null : (s.bounds?.[g.scale] ?? null);
+			for (const p of tableProblems(g.rows, s.span, g.scale, bounds, s.subject === 'composite' ? 'sum' : 'raw')) problems.push(`${name}, ${p.message.charAt(0).toLowerCase()}${p.message.slice(1)}`);
+		}
+		return { ...g, subject: s.subject };
+	});
+	if (problems.length) {
+		const shown = problems.slice(0, 20);
+		throw new CatalogError(422, shown.join('\n') + (problems.length > shown.length ? `\n… and ${problems.length - shown.length} more` : ''), { rows: shown[0] }, 'norm_form', { problems: shown });
+	}
+	return out as G[];
+}
+
+/** The group's columns as stored: only the fields its form uses. */
+function formColumns(g: NormGroupInput) {
+	return {
+		...g,
+		scale: g.form === 'table' ? g.scale : null,
+		intercept: g.form === 'regression' ? g.intercept : null,
+		coefficients: g.form === 'regression' && g.coefficients ? JSON.stringify(g.coefficients) : null,
+		mean: g.form === 'mean_sd' ? g.mean : null,
+		sd: g.form === 'table' ? null : g.sd
+	};
+}
+
+async function writeRows(groupId: number, g: NormGroupInput, tr: Tx): Promise<void> {
+	if (g.form !== 'table' || !g.rows?.length) return;
+	const { NormTableRow } = models();
+	await NormTableRow.bulkCreate(
+		g.rows.map((row, i) => ({ norm_group_id: groupId, position: i + 1, lo: row.lo, hi: row.hi, score: g.scale === 'percentile' ? null : row.score, percentile: row.percentile })),
+		{ transaction: tr ?? undefined }
+	);
+}
+
+/** Insert one group and its table rows. */
+async function insertGroup(normSetId: number, g: NormGroupInput, tr: Tx): Promise<number> {
+	const r = await exec(
+		`INSERT INTO norm_groups (norm_set_id, subject, test_code, group_code, age_min_months, age_max_months, sex, edu_min, edu_max, form, scale, intercept, coefficients, mean, sd, n)
+		 VALUES (:ns, :subject, :test_code, :group_code, :age_min_months, :age_max_months, :sex, :edu_min, :edu_max, :form, :scale, :intercept, :coefficients, :mean, :sd, :n)`,
+		{ ns: normSetId, ...formColumns(g) },
+		tr
+	);
+	await writeRows(r.insertId, g, tr);
+	return r.insertId;
 }
 
 /** Add one group; the test's groups with the same keys must stay contiguous. */
@@ -177,17 +320,12 @@ export async function addNormGroup(normSetId: number, input: unknown, actorId: n
 	const g = parseGroup(input);
 	return transaction(async (tr) => {
 		if (!(await selectOne('SELECT id FROM norm_sets WHERE id = :id FOR UPDATE', { id: normSetId }, tr))) throw notFoundError('This norm set');
-		await checkTest(g.test_code, tr);
+		const [checked] = await checkForms([g], tr);
 		const existing = await listNormGroups(normSetId, { test: g.test_code }, tr);
-		assertRanges([...existing.map((e) => ({ ...e, label: label(e) })), { ...g, label: `the new group ${g.group_code}` }]);
-		const r = await exec(
-			`INSERT INTO norm_groups (norm_set_id, test_code, group_code, age_min_months, age_max_months, sex, edu_min, edu_max, mean, sd, n)
-			 VALUES (:ns, :test_code, :group_code, :age_min_months, :age_max_months, :sex, :edu_min, :edu_max, :mean, :sd, :n)`,
-			{ ns: normSetId, ...g },
-			tr
-		);
-		await audit({ actorId, entity: 'norm_group', entityId: r.insertId, action: 'create', newValue: { norm_set_id: normSetId, ...g } }, tr);
-		return { id: r.insertId, norm_set_id: normSetId, ...g };
+		assertRanges([...existing.map((e) => ({ ...e, label: label(e) })), { ...checked, label: `the new group ${g.group_code}` }]);
+		const id = await insertGroup(normSetId, checked, tr);
+		await audit({ actorId, entity: 'norm_group', entityId: id, action: 'create', newValue: { norm_set_id: normSetId, ...checked } }, tr);
+		return { id, norm_set_id: normSetId, ...checked };
 	});
 }
 
@@ -196,20 +334,24 @@ export async function updateNormGroup(groupId: number, input: unknown, actorId: 
 	return transaction(async (tr) => {
 		const row = await selectOne<Record<string, unknown>>('SELECT * FROM norm_groups WHERE id = :id FOR UPDATE', { id: groupId }, tr);
 		if (!row) throw notFoundError('This norm group');
-		const old = rowToGroup(row);
+		const old = (await withRows([row], tr))[0];
 		if (old.test_code !== g.test_code) throw new CatalogError(400, 'A norm group keeps its test.', { test_code: 'A group keeps its test; add a new group instead' });
+		const [checked] = await checkForms([g], tr);
 		const used = await groupsInUse([groupId], tr);
 		if (used) throw new CatalogError(409, `Group ${old.group_code} of ${old.test_code} was used by ${used} protocol(s); make a new version of the norm set instead.`, {}, 'in_use');
 		const others = (await listNormGroups(old.norm_set_id, { test: g.test_code }, tr)).filter((e) => e.id !== groupId);
 		assertRanges([...others.map((e) => ({ ...e, label: label(e) })), { ...g, label: `the changed group ${g.group_code}` }]);
 		await exec(
 			`UPDATE norm_groups SET group_code = :group_code, age_min_months = :age_min_months, age_max_months = :age_max_months, sex = :sex,
-			        edu_min = :edu_min, edu_max = :edu_max, mean = :mean, sd = :sd, n = :n WHERE id = :id`,
-			{ ...g, id: groupId },
+			        edu_min = :edu_min, edu_max = :edu_max, form = :form, scale = :scale, intercept = :intercept, coefficients = :coefficients,
+			        mean = :mean, sd = :sd, n = :n WHERE id = :id`,
+			{ ...formColumns(checked), id: groupId },
 			tr
 		);
-		await audit({ actorId, entity: 'norm_group', entityId: groupId, action: 'update', oldValue: old, newValue: g }, tr);
-		return { id: groupId, norm_set_id: old.norm_set_id, ...g };
+		await exec('DELETE FROM norm_table_rows WHERE norm_group_id = :id', { id: groupId }, tr);
+		await writeRows(groupId, checked, tr);
+		await audit({ actorId, entity: 'norm_group', entityId: groupId, action: 'update', oldValue: old, newValue: checked }, tr);
+		return { id: groupId, norm_set_id: old.norm_set_id, ...checked };
 	});
 }
 
@@ -218,7 +360,7 @@ export async function deleteNormGroup(groupId: number, actorId: number | null): 
 	await transaction(async (tr) => {
 		const row = await selectOne<Record<string, unknown>>('SELECT * FROM norm_groups WHERE id = :id FOR UPDATE', { id: groupId }, tr);
 		if (!row) throw notFoundError('This norm group');
-		const old = rowToGroup(row);
+		const old = (await withRows([row], tr))[0];
 		const used = await groupsInUse([groupId], tr);
 		if (used) throw new CatalogError(409, `Group ${old.group_code} of ${old.test_code} was used by ${used} protocol(s) and cannot be removed.`, {}, 'in_use');
 		const others = (await listNormGroups(old.norm_set_id, { test: old.test_code }, tr)).filter((e) => e.id !== groupId);
@@ -232,7 +374,11 @@ export async function deleteNormGroup(groupId: number, actorId: number | null): 
  * Replace the groups of the given tests in a norm set by `groups` (already validated), in the
  * caller's transaction. Refused when a protocol used any group being replaced.
  */
-export async function replaceNormGroups(normSetId: number, groups: readonly NormGroupInput[], tr: Tx): Promise<{ removed: number; added: number }> {
+export async function replaceNormGroups(normSetId: number, input: readonly (NormGroupInput & { label?: string })[], tr: Tx): Promise<{ removed: number; added: number }> {
+	const groups = (await checkForms(input, tr)).map((g) => {
+		const { label: _l, ...rest } = g as NormGroupInput & { label?: string };
+		return rest as NormGroupInput;
+	});
 	const tests = [...new Set(groups.map((g) => g.test_code))];
 	let removed = 0;
 	if (tests.length) {
@@ -242,15 +388,18 @@ export async function replaceNormGroups(normSetId: number, groups: readonly Norm
 		if (old.length) removed = (await exec('DELETE FROM norm_groups WHERE norm_set_id = :ns AND test_code IN (:tests)', { ns: normSetId, tests }, tr)).affected;
 	}
 	const esc = (v: unknown) => db().escape(v as string);
-	for (let i = 0; i < groups.length; i += 1000) {
-		const values = groups
+	// Plain mean/SD groups go in as multi-row INSERTs (large imports); tables and equations one by one with their rows.
+	const plain = groups.filter((g) => (g.form ?? 'mean_sd') === 'mean_sd');
+	for (let i = 0; i < plain.length; i += 1000) {
+		const values = plain
 			.slice(i, i + 1000)
-			.map((g) => `(${normSetId},${esc(g.test_code)},${esc(g.group_code)},${g.age_min_months},${g.age_max_months},${esc(g.sex)},${esc(g.edu_min)},${esc(g.edu_max)},${esc(g.mean)},${esc(g.sd)},${esc(g.n)})`)
+			.map((g) => `(${normSetId},${esc(g.subject ?? 'test')},${esc(g.test_code)},${esc(g.group_code)},${g.age_min_months},${g.age_max_months},${esc(g.sex)},${esc(g.edu_min)},${esc(g.edu_max)},${esc(g.mean)},${esc(g.sd)},${esc(g.n)})`)
 			.join(',');
 		await db().query(
-			`INSERT INTO norm_groups (norm_set_id, test_code, group_code, age_min_months, age_max_months, sex, edu_min, edu_max, mean, sd, n) VALUES ${values}`,
+			`INSERT INTO norm_groups (norm_set_id, subject, test_code, group_code, age_min_months, age_max_months, sex, edu_min, edu_max, mean, sd, n) VALUES ${values}`,
 			{ transaction: tr ?? undefined }
 		);
 	}
+	for (const g of groups) if ((g.form ?? 'mean_sd') !== 'mean_sd') await insertGroup(normSetId, g, tr);
 	return { removed, added: groups.length };
 }

@@ -1,5 +1,7 @@
 /** What the workflow reads from the catalog: a battery's tests (current versions) and norm groups. */
 import { select, selectOne, jsonValue, type Tx } from '../db';
+import { models, type FrozenComposite } from '../models';
+import { tableRowsOf, type TableRowInput } from '../catalog/norms';
 import type { TestDef, NormDef } from '../../scoring/reconcile';
 import type { NormGroupDef, AgeRule } from '../../scoring/age';
 import type { DerivedField, BoundsOverride } from '../../scoring/scales';
@@ -92,6 +94,13 @@ export async function protocolTests(protocolId: number, t?: Tx): Promise<(Catalo
 
 export interface NormGroupRow {
 	id: number;
+	subject?: 'test' | 'composite';
+	form?: 'mean_sd' | 'table' | 'regression';
+	scale?: 'scaled' | 'standard' | 't' | 'percentile' | null;
+	intercept?: number | null;
+	coefficients?: unknown;
+	/** Table rows (form `table`), in order. */
+	rows?: TableRowInput[] | null;
 	test_code: string;
 	group_code: string;
 	age_min_months: number;
@@ -99,19 +108,22 @@ export interface NormGroupRow {
 	sex: 'F' | 'M' | null;
 	edu_min: number | null;
 	edu_max: number | null;
-	mean: number;
-	sd: number;
+	mean: number | null;
+	sd: number | null;
 	n: number | null;
 }
 
+/** The groups of these tests (or composites) in a norm set, with their form and table rows. */
 export async function normGroups(normSetId: number, testCodes: string[], t?: Tx): Promise<NormGroupRow[]> {
 	if (testCodes.length === 0) return [];
-	return select<NormGroupRow>(
-		`SELECT id, test_code, group_code, age_min_months, age_max_months, sex, edu_min, edu_max, mean, sd, n
+	const rows = await select<NormGroupRow>(
+		`SELECT id, subject, test_code, group_code, age_min_months, age_max_months, sex, edu_min, edu_max, form, scale, intercept, coefficients, mean, sd, n
 		   FROM norm_groups WHERE norm_set_id = :normSetId AND test_code IN (:testCodes) ORDER BY test_code, age_min_months`,
 		{ normSetId, testCodes },
 		t
 	);
+	const tables = await tableRowsOf(rows.filter((r) => r.form === 'table').map((r) => r.id), t);
+	return rows.map((r) => ({ ...r, coefficients: jsonValue(r.coefficients) ?? null, rows: r.form === 'table' ? tables.get(r.id) ?? [] : null }));
 }
 
 export const groupDef = (g: NormGroupRow): NormGroupDef => ({
@@ -122,7 +134,71 @@ export const groupDef = (g: NormGroupRow): NormGroupDef => ({
 	...(g.edu_min !== null || g.edu_max !== null ? { education: [g.edu_min ?? 0, g.edu_max ?? 99] as const } : {})
 });
 
-export const normDef = (g: NormGroupRow): NormDef => ({ test: g.test_code, group: g.group_code, mean: Number(g.mean), sd: Number(g.sd) });
+/**
+ * A norm entry as the engine takes it (shared/spec/reconcile.md, "Norm forms"): mean/SD, a
+ * regression equation or a conversion table; a composite's entries are keyed by `composite`.
+ */
+export type EngineNorm =
+	| ({ test: string } | { composite: string }) & { group: string } & (
+			| { mean: number; sd: number }
+			| { form: 'regression'; intercept: number; coefficients: Record<string, number>; sd: number }
+			| { form: 'table'; scale: 'scaled' | 'standard' | 't' | 'percentile'; rows: ({ raw: [number, number] } | { sum: [number, number] } & object)[] }
+	  );
+
+export function normDef(g: NormGroupRow): NormDef {
+	const key = g.subject === 'composite' ? { composite: g.test_code } : { test: g.test_code };
+	const form = g.form ?? 'mean_sd';
+	if (form === 'regression')
+		return { ...key, group: g.group_code, form: 'regression', intercept: Number(g.intercept), coefficients: (g.coefficients ?? {}) as Record<string, number>, sd: Number(g.sd) } as unknown as NormDef;
+	if (form === 'table') {
+		const k = g.subject === 'composite' ? 'sum' : 'raw';
+		const percentileOnly = g.scale === 'percentile';
+		return {
+			...key,
+			group: g.group_code,
+			form: 'table',
+			scale: g.scale,
+			rows: (g.rows ?? []).map((r) => ({
+				[k]: [r.lo, r.hi],
+				...(percentileOnly ? {} : { score: r.score }),
+				...(r.percentile !== null && r.percentile !== undefined && r.percentile !== '' ? { percentile: /^\d+$/.test(r.percentile) ? Number(r.percentile) : r.percentile } : {})
+			}))
+		} as unknown as NormDef;
+	}
+	return { ...key, group: g.group_code, mean: Number(g.mean), sd: Number(g.sd) } as NormDef;
+}
+
+/** A composite as the engine takes it. */
+export interface EngineComposite {
+	id: string;
+	parts: string[];
+	part_field: 'scaled' | 'standard' | 't';
+	reported: string[];
+}
+
+export interface CatalogComposite extends FrozenComposite {
+	position: number;
+	groupId: number | null;
+	groupCode: string | null;
+}
+
+/** The battery's composites as defined now (what a new protocol freezes). */
+export async function batteryComposites(batteryId: number, t?: Tx): Promise<FrozenComposite[]> {
+	const { Composite } = models();
+	const rows = await Composite.findAll({ where: { battery_id: batteryId }, order: [['position', 'ASC']], transaction: t ?? undefined });
+	return rows.map((c) => ({ code: c.code, name: c.name, parts: c.parts, part_field: c.part_field, reported: c.reported.split(',').filter(Boolean), reliability: c.reliability }));
+}
+
+/** The composites a protocol froze at creation, in report order, with their norm group. */
+export async function protocolComposites(protocolId: number, t?: Tx): Promise<CatalogComposite[]> {
+	const { ProtocolComposite } = models();
+	const rows = await ProtocolComposite.findAll({ where: { protocol_id: protocolId }, order: [['position', 'ASC']], transaction: t ?? undefined });
+	const ids = rows.map((r) => r.norm_group_id).filter((x): x is number => x !== null);
+	const codes = ids.length ? new Map((await select<{ id: number; group_code: string }>('SELECT id, group_code FROM norm_groups WHERE id IN (:ids)', { ids }, t)).map((g) => [g.id, g.group_code])) : new Map<number, string>();
+	return rows.map((r) => ({ ...r.definition, position: r.position, groupId: r.norm_group_id, groupCode: r.norm_group_id ? codes.get(r.norm_group_id) ?? null : null }));
+}
+
+export const engineComposite = (c: FrozenComposite): EngineComposite => ({ id: c.code, parts: c.parts, part_field: c.part_field, reported: c.reported });
 
 export interface NormSetRow {
 	id: number;
@@ -131,10 +207,11 @@ export interface NormSetRow {
 	source: string;
 	version: string;
 	age_rule: unknown;
+	covariate_age: 'whole_years' | 'decimal_years';
 }
 
 export async function normSet(id: number, t?: Tx): Promise<(NormSetRow & { rule: AgeRule }) | null> {
-	const row = await selectOne<NormSetRow>('SELECT id, code, name, source, version, age_rule FROM norm_sets WHERE id = :id', { id }, t);
+	const row = await selectOne<NormSetRow>('SELECT id, code, name, source, version, age_rule, covariate_age FROM norm_sets WHERE id = :id', { id }, t);
 	if (!row) return null;
 	const rule = jsonValue<Partial<AgeRule>>(row.age_rule) ?? {};
 	return { ...row, rule: { borrowDays: rule.borrowDays === 'actual' ? 'actual' : 30, rounding: rule.rounding === 'round_days' ? 'round_days' : 'truncate', ...(rule.roundUpFromDay ? { roundUpFromDay: rule.roundUpFromDay } : {}) } };

@@ -7,7 +7,7 @@ import { z } from 'zod';
 import { selectOne, exec, transaction, jsonValue, type Tx } from '../db';
 import { audit } from '../audit';
 import { protocolFor, type Actor, type ProtocolRow } from './service';
-import { protocolTests, normGroups, normDef, engineTest, type CatalogTest } from './catalog-read';
+import { protocolTests, protocolComposites, normGroups, normDef, engineTest, engineComposite, type CatalogTest, type CatalogComposite } from './catalog-read';
 import { reconcile, ReconcileInputError, type FieldValues, type ReconcileResult } from '../../scoring/reconcile';
 import { formatReference, type Field } from '../../scoring/scales';
 import { conflict, invalid, notFound, WorkflowError } from './errors';
@@ -35,8 +35,8 @@ const value = z.union([z.string().max(12, 'at most 12 characters'), z.number(), 
 const scoresSchema = z.record(z.string().max(40), z.record(z.string(), value));
 export const draftSchema = z.object({ scores: scoresSchema, draftVersion: z.number().int().min(0) });
 
-/** Keep only the test's raw score and the derived fields it reports; count what was entered. */
-export function cleanScores(raw: unknown, tests: CatalogTest[]): { scores: Scores; entered: number } {
+/** Keep only the test's raw score and the derived fields it reports (a composite: its reported fields, sum included); count what was entered. */
+export function cleanScores(raw: unknown, tests: CatalogTest[], composites: CatalogComposite[] = []): { scores: Scores; entered: number } {
 	const parsed = scoresSchema.safeParse(raw);
 	if (!parsed.success) {
 		const issue = parsed.error.issues[0];
@@ -46,9 +46,11 @@ export function cleanScores(raw: unknown, tests: CatalogTest[]): { scores: Score
 	let entered = 0;
 	for (const [code, fields] of Object.entries(parsed.data)) {
 		const test = tests.find((t) => t.code === code);
-		if (!test) throw invalid(`scores.${code}: this protocol has no such test`, 'scores');
-		const allowed: Field[] = ['raw', ...test.reported];
-		for (const k of Object.keys(fields)) if (!allowed.includes(k as Field)) throw invalid(`scores.${code}.${k}: ${test.name} does not report this field`, 'scores');
+		const composite = test ? undefined : composites.find((c) => c.code === code);
+		if (!test && !composite) throw invalid(`scores.${code}: this protocol has no such test or composite`, 'scores');
+		const allowed = (test ? ['raw', ...test.reported] : composite!.reported) as Field[];
+		const name = test?.name ?? composite!.name;
+		for (const k of Object.keys(fields)) if (!allowed.includes(k as Field)) throw invalid(`scores.${code}.${k}: ${name} does not report this field`, 'scores');
 		out[code] = {};
 		for (const f of allowed) {
 			const v = fields[f] ?? null;
@@ -82,9 +84,11 @@ export async function myPass(protocolId: number, user: Actor) {
 	const pass = await passRow(p, which);
 	if (pass.scorer_id !== user.id) throw notFound('This pass');
 	const tests = await protocolTests(p.id);
+	const composites = await protocolComposites(p.id);
 	return {
 		protocol: p,
 		which,
+		composites,
 		status: pass.status,
 		scores: (jsonValue<Scores>(pass.scores) ?? {}) as Scores,
 		draftVersion: pass.draft_version,
@@ -110,7 +114,7 @@ export async function saveDraft(protocolId: number, user: Actor, body: unknown) 
 			throw new WorkflowError(409, 'This pass was saved from another tab or device since you opened it. Reload to see the latest draft.', 'draftVersion', 'stale_draft');
 		}
 		const tests = await protocolTests(p.id, t);
-		const { scores, entered } = cleanScores(parsed.data.scores, tests);
+		const { scores, entered } = cleanScores(parsed.data.scores, tests, await protocolComposites(p.id, t));
 		await exec(
 			'UPDATE passes SET scores = :scores, fields_entered = :entered, draft_version = draft_version + 1 WHERE id = :id',
 			{ scores: JSON.stringify(scores), entered, id: pass.id },
@@ -123,20 +127,25 @@ export async function saveDraft(protocolId: number, user: Actor, body: unknown) 
 /** Build the engine's input from the stored protocol and passes. */
 export async function engineInput(p: ProtocolRow, passes: { first: Scores; second: Scores }, t?: Tx) {
 	const tests = await protocolTests(p.id, t);
-	const groups = await normGroups(p.norm_set_id, tests.map((x) => x.code), t);
+	const composites = await protocolComposites(p.id, t);
+	// every group of each test and composite, so a value from another band is named wrong_norm_group
+	const groups = await normGroups(p.norm_set_id, [...tests.map((x) => x.code), ...composites.map((c) => c.code)], t);
 	const protocolGroups: Record<string, string> = {};
-	for (const x of tests) if (x.groupCode) protocolGroups[x.code] = x.groupCode;
+	for (const x of [...tests, ...composites]) if (x.groupCode) protocolGroups[x.code] = x.groupCode;
 	const toEngine = (s: Scores) => {
 		const out: Record<string, FieldValues> = {};
-		for (const x of tests) out[x.code] = (s[x.code] ?? {}) as FieldValues;
+		for (const x of [...tests, ...composites]) out[x.code] = (s[x.code] ?? {}) as FieldValues;
 		return out;
 	};
+	const covariates = jsonValue<Record<string, number> | null>(p.covariates ?? null);
 	return {
 		tests,
+		composites,
 		input: {
 			tests: tests.map(engineTest),
 			norms: groups.map(normDef),
-			protocol: { group: tests[0]?.groupCode ?? '', groups: protocolGroups },
+			...(composites.length ? { composites: composites.map(engineComposite) } : {}),
+			protocol: { group: tests[0]?.groupCode ?? '', groups: protocolGroups, ...(covariates ? { covariates } : {}) },
 			passes: [
 				{ scorer: 'first', scores: toEngine(passes.first) },
 				{ scorer: 'second', scores: toEngine(passes.second) }
@@ -154,7 +163,8 @@ export async function storeDiscrepancies(p: ProtocolRow, result: ReconcileResult
 			const i = from + j;
 			Object.assign(params, {
 				[`pos${i}`]: i + 1,
-				[`test${i}`]: d.test,
+				// a composite's discrepancy carries `composite` instead of `test`; codes are unique across both
+				[`test${i}`]: (d as { test?: string; composite?: string }).test ?? (d as { composite?: string }).composite,
 				[`field${i}`]: d.field,
 				[`pass${i}`]: d.pass,
 				[`kind${i}`]: d.kind,

@@ -6,8 +6,10 @@ import type { Transaction } from 'sequelize';
 import { select, selectOne, exec, transaction, type Tx } from '../db';
 import { audit } from '../audit';
 import { getUser } from '../users';
-import { batteryTests, normGroups, normSet, groupDef, protocolTests } from './catalog-read';
-import { selectNormGroup, type AgeWarning } from '../../scoring/age';
+import { batteryTests, batteryComposites, normGroups, normSet, groupDef, protocolTests } from './catalog-read';
+import { selectNormGroup, dayNumber, parseIsoDate, type AgeWarning } from '../../scoring/age';
+import { ageCovariate, COVARIATE_LABELS, type Covariate } from '../../catalog/norm-forms';
+import { models } from '../models';
 import { WorkflowError, notFound, invalid, conflict } from './errors';
 import type { Role } from '../../roles';
 
@@ -22,6 +24,8 @@ export interface ProtocolRow {
 	test_date: string;
 	age_text: string;
 	age_months: number;
+	/** The covariates regression norms used (age, education, sex), frozen at creation. */
+	covariates?: unknown;
 	status: Status;
 	round: number;
 	first_scorer_id: number;
@@ -80,6 +84,8 @@ export interface NewProtocol {
 }
 
 export interface GroupPlan {
+	/** A composite's plan entry (its norm group), after the tests. */
+	composite?: boolean;
 	testCode: string;
 	testName: string;
 	groupCode: string | null;
@@ -113,16 +119,51 @@ export async function planGroups(
 	if (!set) throw invalid('Choose a norm set.', 'normSetId');
 	const tests = await batteryTests(batteryId, t);
 	if (tests.length === 0) throw invalid('This battery has no tests.', 'batteryId');
-	const groups = await normGroups(normSetId, tests.map((x) => x.code), t);
+	const composites = await batteryComposites(batteryId, t);
+	const groups = await normGroups(normSetId, [...tests.map((x) => x.code), ...composites.map((c) => c.code)], t);
 	let age: ReturnType<typeof selectNormGroup>['age'] | null = null;
-	const plan: GroupPlan[] = tests.map((test) => {
-		const mine = groups.filter((g) => g.test_code === test.code);
+	const planOne = (code: string, name: string, composite: boolean): GroupPlan => {
+		const mine = groups.filter((g) => g.test_code === code);
 		const sel = selectNormGroup(ex.birthDate, testDate, mine.map(groupDef), { sex: ex.sex === 'X' ? null : ex.sex, educationYears: ex.educationYears });
 		age = sel.age;
 		const row = sel.group ? mine.find((g) => g.group_code === sel.group!.id) : undefined;
-		return { testCode: test.code, testName: test.name, groupCode: row?.group_code ?? null, groupId: row?.id ?? null, warnings: sel.warnings };
-	});
-	return { set, tests, groups, plan, age: age! };
+		return { ...(composite ? { composite: true } : {}), testCode: code, testName: name, groupCode: row?.group_code ?? null, groupId: row?.id ?? null, warnings: sel.warnings };
+	};
+	const plan: GroupPlan[] = [...tests.map((test) => planOne(test.code, test.name, false)), ...composites.map((c) => planOne(c.code, c.name, true))];
+	return { set, tests, composites, groups, plan, age: age! };
+}
+
+/**
+ * The covariates regression norms take (shared/spec/reconcile.md, "Norm forms"): age as the norm
+ * set says (whole or decimal years), years of education, sex (female 1, male 0). Every regression
+ * norm of the protocol's tests must find its covariates (the engine needs them for every group,
+ * used or not), so a missing one refuses the protocol, naming the test and the covariate.
+ */
+export function covariatesFor(
+	groups: { test_code: string; group_code: string; form?: string; coefficients?: unknown }[],
+	rule: 'whole_years' | 'decimal_years',
+	ex: { birthDate: string; sex?: string | null; educationYears?: number | null },
+	age: { years: number },
+	testDate: string,
+	testName: (code: string) => string
+): Record<string, number> | null {
+	const regression = groups.filter((g) => g.form === 'regression');
+	if (!regression.length) return null;
+	const days = dayNumber(parseIsoDate(testDate)) - dayNumber(parseIsoDate(ex.birthDate));
+	const have: Partial<Record<Covariate, number>> = { age: ageCovariate(rule, age, days) };
+	if (ex.educationYears !== null && ex.educationYears !== undefined) have.education = Number(ex.educationYears);
+	if (ex.sex === 'F') have.sex = 1;
+	else if (ex.sex === 'M') have.sex = 0;
+	for (const g of regression) {
+		for (const k of Object.keys((g.coefficients ?? {}) as object) as Covariate[]) {
+			if (have[k] === undefined)
+				throw invalid(
+					`${testName(g.test_code)} is normed by a regression equation (group ${g.group_code}) that needs ${COVARIATE_LABELS[k].toLowerCase()}; the examinee's record has none.`,
+					k === 'education' ? 'educationYears' : k === 'sex' ? 'sex' : 'birthDate'
+				);
+		}
+	}
+	return have;
 }
 
 export async function createProtocol(input: NewProtocol, actor: Actor): Promise<number> {
@@ -150,12 +191,16 @@ export async function createProtocol(input: NewProtocol, actor: Actor): Promise<
 		}
 		if (input.testDate < ex.birth_date) throw invalid('The test date is before the birth date.', 'testDate');
 
-		const { plan, groups, age } = await planGroups(input.batteryId, normSetId, { birthDate: ex.birth_date, sex: ex.sex, educationYears: ex.education_years }, input.testDate, t);
+		const exInfo = { birthDate: ex.birth_date, sex: ex.sex, educationYears: ex.education_years };
+		const { plan, groups, age, set, composites } = await planGroups(input.batteryId, normSetId, exInfo, input.testDate, t);
 		const tests = await batteryTests(input.batteryId, t);
+		const names = new Map([...tests.map((x) => [x.code, x.name] as const), ...composites.map((c) => [c.code, c.name] as const)]);
+		const covariates = covariatesFor(groups, set.covariate_age ?? 'whole_years', exInfo, age, input.testDate, (c) => names.get(c) ?? c);
 		const { insertId: protocolId } = await exec(
-			`INSERT INTO protocols (examinee_id, battery_id, norm_set_id, test_date, age_text, age_months, status, first_scorer_id, second_scorer_id, reviewer_id, created_by)
-			 VALUES (:ex, :battery, :normSet, :testDate, :ageText, :ageMonths, 'draft', :first, :second, :reviewer, :by)`,
+			`INSERT INTO protocols (examinee_id, battery_id, norm_set_id, test_date, age_text, age_months, covariates, status, first_scorer_id, second_scorer_id, reviewer_id, created_by)
+			 VALUES (:ex, :battery, :normSet, :testDate, :ageText, :ageMonths, :covariates, 'draft', :first, :second, :reviewer, :by)`,
 			{
+				covariates: covariates ? JSON.stringify(covariates) : null,
 				ex: ex.id,
 				battery: input.batteryId,
 				normSet: normSetId,
@@ -189,6 +234,13 @@ export async function createProtocol(input: NewProtocol, actor: Actor): Promise<
 			if (reason) {
 				await audit({ actorId: actor.id, entity: 'protocol', entityId: protocolId, protocolId, action: 'norm_group_override', oldValue: { test: test.code, group: plan[i].groupCode }, newValue: { test: test.code, group: o!.groupCode }, reason }, t);
 			}
+		}
+		// Composites are frozen as defined now, with the norm group that covers the examinee.
+		const { ProtocolComposite } = models();
+		for (const [i, c] of composites.entries()) {
+			const entry = plan[tests.length + i];
+			if (!entry.groupId) throw invalid(`No norm group of this norm set covers this examinee for the composite ${c.name}; add one to the norm set first.`, 'normSetId');
+			await ProtocolComposite.create({ protocol_id: protocolId, position: i + 1, code: c.code, definition: c, norm_group_id: entry.groupId }, { transaction: t });
 		}
 		for (const [which, scorer] of [
 			['first', input.firstScorerId],

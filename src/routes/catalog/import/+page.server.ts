@@ -11,8 +11,9 @@ export const load: PageServerLoad = async (event) => {
 	return {
 		testCodes: [...ctx.testCodes],
 		domains: [...ctx.domains],
+		spans: ctx.spans ?? {},
 		normSets: normSets.map((n) => ({ id: n.id, name: n.name, version: n.version, groups: n.groups })),
-		kind: event.url.searchParams.get('kind') === 'tests' ? ('tests' as const) : ('norms' as const),
+		kind: (['tests', 'tables', 'equations'] as const).find((k) => k === event.url.searchParams.get('kind')) ?? ('norms' as const),
 		set: normSets.some((n) => n.id === set) ? set : null,
 		limits: LIMITS,
 		canEdit: event.locals.user!.roles.includes('lead')

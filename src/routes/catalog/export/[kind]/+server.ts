@@ -3,17 +3,18 @@ import { error } from '@sveltejs/kit';
 import { requireRole } from '$lib/server/guard';
 import { exportNormGroupsCsv, exportTestsCsv, CatalogError } from '$lib/server/catalog';
 
-/** /catalog/export/tests and /catalog/export/norms?set=<id>: the same CSV layouts the import reads. */
+/** /catalog/export/tests and /catalog/export/{norms,tables,equations}?set=<id>: the same CSV layouts the import reads. */
 export const GET: RequestHandler = async (event) => {
 	requireRole(event, 'lead', 'admin');
 	const csvResponse = (csv: string, filename: string) =>
 		new Response(csv, { headers: { 'content-type': 'text/csv; charset=utf-8', 'content-disposition': `attachment; filename="${filename}"` } });
 	if (event.params.kind === 'tests') return csvResponse(await exportTestsCsv(), 'crosstally-tests.csv');
-	if (event.params.kind === 'norms') {
+	const kind = event.params.kind;
+	if (kind === 'norms' || kind === 'tables' || kind === 'equations') {
 		const id = Number(event.url.searchParams.get('set'));
 		if (!Number.isInteger(id) || id <= 0) error(404, { message: 'Choose a norm set to export.', code: 'not_found' });
 		try {
-			const { filename, csv } = await exportNormGroupsCsv(id);
+			const { filename, csv } = await exportNormGroupsCsv(id, kind);
 			return csvResponse(csv, filename);
 		} catch (e) {
 			if (e instanceof CatalogError) error(404, { message: e.message, code: 'not_found' });

@@ -4,10 +4,9 @@ import { z } from 'zod';
 import { requireRole, requireUser } from '$lib/server/guard';
 import { transaction } from '$lib/server/db';
 import { audit } from '$lib/server/audit';
-import { assertRanges, getNormSet, listNormGroups, replaceNormGroups, updateNormSet, notFoundError, CatalogError } from '$lib/server/catalog';
+import { assertRanges, getNormSet, listNormGroups, replaceNormGroups, updateNormSet, notFoundError } from '$lib/server/catalog';
 import { api, idOf, parseWith, readJson } from '$lib/server/catalog/api';
 import { normGroupSchema, normSetSchema } from '$lib/catalog/schema';
-import { validationContext } from '$lib/server/catalog/io';
 
 /** The norm set and its groups (optionally of one test: ?test=code). */
 export const GET: RequestHandler = (event) =>
@@ -29,24 +28,25 @@ export const PUT: RequestHandler = (event) =>
 	api(async () => {
 		const user = requireRole(event, 'lead');
 		const id = idOf(event.params.id);
-		const body = parseWith(putSchema, await readJson(event.request));
+		const raw = await readJson(event.request);
+		const body = parseWith(putSchema, raw);
 		const current = await getNormSet(id);
 		if (!current) throw notFoundError('This norm set');
-		const { groups, ...meta } = body;
+		const { groups, ...parsed } = body;
+		// Only the keys the client sent (the schema's defaults would otherwise reset the age rules).
+		const sent = new Set(raw && typeof raw === 'object' ? Object.keys(raw) : []);
+		const meta = Object.fromEntries(Object.entries(parsed).filter(([k]) => sent.has(k)));
 		if (Object.keys(meta).length) {
 			await updateNormSet(
 				id,
-				{ code: current.code, name: current.name, source: current.source, version: current.version, borrow_days: String(current.age_rule.borrowDays), rounding: current.age_rule.rounding, ...meta },
+				{ code: current.code, name: current.name, source: current.source, version: current.version, borrow_days: String(current.age_rule.borrowDays), rounding: current.age_rule.rounding, covariate_age: current.covariate_age, ...meta },
 				user.id
 			);
 		}
 		if (groups) {
-			const ctx = await validationContext();
-			const unknown = [...new Set(groups.map((g) => g.test_code))].filter((c) => !ctx.testCodes.has(c));
-			if (unknown.length) throw new CatalogError(400, `Unknown test code: ${unknown.join(', ')}`, { groups: `Unknown test code: ${unknown.join(', ')}` });
 			assertRanges(groups.map((g, i) => ({ ...g, label: `groups[${i}] (${g.group_code})` })));
 			await transaction(async (tr) => {
-				const r = await replaceNormGroups(id, groups, tr);
+				const r = await replaceNormGroups(id, groups.map((g, i) => ({ ...g, label: `groups[${i}] (${g.test_code} ${g.group_code})` })), tr);
 				await audit({ actorId: user.id, entity: 'norm_set', entityId: id, action: 'replace_groups', newValue: r }, tr);
 			});
 		}
