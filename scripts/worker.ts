@@ -10,6 +10,7 @@ import { MAIL_QUEUE, dispatchOutbox, closeMailQueue } from '../src/lib/server/ma
 import { deliver, type MailJob } from '../src/lib/server/mail/deliver';
 import { closeDb } from '../src/lib/server/db';
 import { recoverLostReviewMail } from '../src/lib/server/mail/review'; // also registers the review renderers
+import { sweepMarkers } from '../src/lib/server/models/commit-marker';
 
 const interval = Number(process.env.DISPATCH_INTERVAL_MS ?? 500);
 const stalledMs = Number(process.env.WORKER_STALLED_MS ?? (process.env.CROSSTALLY_MODE === 'production' ? 30_000 : 3_000));
@@ -36,6 +37,7 @@ async function loop() {
 				lastSweep = Date.now();
 				const n = await recoverLostReviewMail();
 				if (n > 0) console.error(`[worker] re-dispatching ${n} review message(s) lost from the queue`);
+				await sweepMarkers(); // commit markers older than an hour (see src/lib/server/db.ts)
 			}
 			const n = await dispatchOutbox();
 			if (lastError) console.error('[worker] dispatch recovered');

@@ -5,6 +5,7 @@ import * as m00003 from './00003-protocols';
 import * as m00006 from './00006-audit';
 import * as m00007 from './00007-list-indexes';
 import * as m00014 from './00014-norm-forms';
+import * as m00017 from './00017-commit-markers';
 
 export const migrations = [
 	{ name: '00001-initial', ...m00001 },
@@ -12,7 +13,8 @@ export const migrations = [
 	{ name: '00003-protocols', ...m00003 },
 	{ name: '00006-audit', ...m00006 },
 	{ name: '00007-list-indexes', ...m00007 },
-	{ name: '00014-norm-forms', ...m00014 }
+	{ name: '00014-norm-forms', ...m00014 },
+	{ name: '00017-commit-markers', ...m00017 }
 ];
 
 /** Tables the app may read and add to but never change: the audit trail. */

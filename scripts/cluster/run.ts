@@ -26,8 +26,8 @@ const RUN = process.env.RUN_DIR ?? join(DATA, 'run');
 const ENV_FILE = join(DATA, 'crosstally.env');
 process.loadEnvFile(ENV_FILE);
 const B = Number(process.env.CLUSTER_BASE ?? 4400);
-const USERS = Number(process.env.CLUSTER_USERS ?? 20);
-const DURATION = Number(process.env.CLUSTER_DURATION ?? 120);
+const USERS = Number(process.env.CLUSTER_USERS ?? 10);
+const DURATION = Number(process.env.CLUSTER_DURATION ?? 90);
 const DOUBLES = Number(process.env.CLUSTER_DOUBLE ?? 8);
 const SIGNAL = (process.env.CLUSTER_SIGNAL ?? 'TERM').replace(/^SIG/, '');
 const NODE_SIGNAL = `SIG${SIGNAL}` as NodeJS.Signals;
@@ -59,7 +59,7 @@ const fail = (s: string) => {
 async function stopByPid(name: string): Promise<number> {
 	const pid = pidOf(name);
 	process.kill(pid, NODE_SIGNAL);
-	for (let i = 0; i < 400; i++) {
+	for (let i = 0; i < 1000; i++) {
 		try {
 			process.kill(pid, 0);
 		} catch {
@@ -310,21 +310,28 @@ async function sessionsAcross() {
 	return out;
 }
 
-/** Idle logoff across both app servers: both restarted with a short idle period, then a session left alone. */
+/**
+ * Idle logoff across two app servers. The two behind the balancer run with the normal idle period
+ * (30 min), so two more instances of the same build (app3, app4; not behind the balancer) run with
+ * IDLE_MINUTES: a session made on app3 works on app4, then, left unused past the period, is
+ * refused by both.
+ */
+const IDLE_MINUTES = 0.2;
+let idleServers: Promise<unknown> | null = null;
+function startIdleServers() {
+	idleServers = Promise.all([3, 4].map((n) => sh('bash', [join(ROOT, 'scripts/cluster/cluster.sh'), 'start-app', String(n)], { cwd: ROOT, env: { ...process.env, APP_SESSION_IDLE_MINUTES: String(IDLE_MINUTES) } })));
+	idleServers.catch(() => undefined);
+}
 async function idleAcross() {
-	const idle = 0.2; // minutes
-	for (const n of [1, 2]) {
-		await stopByPid(`app${n}`);
-		await sh('bash', [join(ROOT, 'scripts/cluster/cluster.sh'), 'start-app', String(n)], { cwd: ROOT, env: { ...process.env, APP_SESSION_IDLE_MINUTES: String(idle) } });
-	}
-	const c = await signedAt(APP(1), ACCOUNTS.scorer);
-	const fresh = (await at(c, APP(2)).get('/api/v1/worklist')).status;
-	await sleep(idle * 60_000 + 4000);
-	const later2 = (await at(c, APP(2)).get('/api/v1/worklist')).status;
-	const later1 = (await at(c, APP(1)).get('/api/v1/worklist')).status;
-	if (fresh !== 200) fail(`idle check: a fresh session answers ${fresh} on app2`);
-	if (later1 !== 401 || later2 !== 401) fail(`idle logoff: after ${idle * 60 + 4} s unused the session answers ${later1} on app1 and ${later2} on app2 (want 401 on both)`);
-	return { idle_seconds: idle * 60, fresh_on_app2: fresh, after_idle_on_app1: later1, after_idle_on_app2: later2 };
+	await idleServers;
+	const c = await signedAt(APP(3), ACCOUNTS.scorer);
+	const fresh = (await at(c, APP(4)).get('/api/v1/worklist')).status;
+	await sleep(IDLE_MINUTES * 60_000 + 4000);
+	const later4 = (await at(c, APP(4)).get('/api/v1/worklist')).status;
+	const later3 = (await at(c, APP(3)).get('/api/v1/worklist')).status;
+	if (fresh !== 200) fail(`idle check: a session made on app3 answers ${fresh} on app4`);
+	if (later3 !== 401 || later4 !== 401) fail(`idle logoff: after ${IDLE_MINUTES * 60 + 4} s unused the session answers ${later3} on app3 and ${later4} on app4 (want 401 on both)`);
+	return { idle_seconds: IDLE_MINUTES * 60, made_on_app3_used_on_app4: fresh, after_idle_on_app3: later3, after_idle_on_app4: later4 };
 }
 
 function countLogLines(pattern: RegExp) {
@@ -351,6 +358,7 @@ async function main() {
 	const t0 = Date.now();
 	const lead = await signedAt(LB, ACCOUNTS.lead);
 	log(`load test: ${USERS} users for ${DURATION} s through ${LB}; stops ${SIGNAL}: db${STOP_DB}, app1, worker1`);
+	if (process.env.CLUSTER_IDLE_CHECK !== '0') startIdleServers();
 	rmSync(LOAD_OUT, { force: true }); // never read an earlier run's figures
 	const load = spawn(process.execPath, [join(ROOT, 'node_modules/tsx/dist/cli.mjs'), 'scripts/load.ts', '--users', String(USERS), '--duration', String(DURATION), '--out', LOAD_OUT], {
 		cwd: ROOT,

@@ -6,7 +6,9 @@
 import { Sequelize, QueryTypes, Transaction } from 'sequelize';
 import * as mariadb from 'mariadb';
 import { config } from './config';
-import { withRetry, type RetryOptions } from './tx';
+import { randomUUID } from 'node:crypto';
+import { withRetry, isRetryableConflict, type RetryOptions } from './tx';
+import { writeMarker, markerCommitted } from './models/commit-marker';
 
 let instance: Sequelize | null = null;
 
@@ -70,17 +72,39 @@ export async function exec(sql: string, replacements: Params = {}, transaction?:
  * (bounded, jittered backoff) when MariaDB or Galera answers a deadlock or write conflict (1213), a
  * lock wait timeout (1205), or a joining node (1047) — see ./tx.ts. The callback must therefore be
  * safe to rerun: reread what it checks and keep side effects outside the database after the commit.
+ *
+ * The last statement writes a commit marker. When COMMIT fails in a way that leaves its outcome
+ * unknown (the connection or the node went away under it), the marker is looked up through another
+ * connection: found, the change was applied and the caller gets its result; not found, it was not,
+ * and the transaction is run again. So a node stopped mid-commit neither loses a change nor makes it
+ * twice.
  */
 export function transaction<T>(fn: (t: Transaction) => Promise<T>, retry?: RetryOptions): Promise<T> {
-	return withRetry(
-		(_n, committing) =>
-			db().transaction({ isolationLevel: Transaction.ISOLATION_LEVELS.READ_COMMITTED }, async (t) => {
-				const out = await fn(t);
+	return withRetry(async (_n, committing) => {
+		const marker = randomUUID();
+		let out: T | undefined;
+		let bodyDone = false;
+		try {
+			return await db().transaction({ isolationLevel: Transaction.ISOLATION_LEVELS.READ_COMMITTED }, async (t) => {
+				out = await fn(t);
+				await writeMarker(marker, t);
+				bodyDone = true;
 				committing();
 				return out;
-			}),
-		retry
-	);
+			});
+		} catch (e) {
+			if (!bodyDone || isRetryableConflict(e)) throw e; // rolled back for certain
+			// the outcome of COMMIT is unknown: ask the cluster (causal read, after a moment to settle)
+			await new Promise((r) => setTimeout(r, 300));
+			const applied = await withRetry(() => markerCommitted(marker), { maxAttempts: 4 }).catch(() => null);
+			if (applied === true) {
+				console.error('[tx] commit answer lost, the change was applied (commit marker found)');
+				return out as T;
+			}
+			if (applied === false) throw Object.assign(e as object, { notApplied: true });
+			throw e;
+		}
+	}, retry);
 }
 
 /** True when an error means the database cannot be reached (answered with 503, never a 500). */
