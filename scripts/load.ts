@@ -55,7 +55,8 @@ const byStep: Record<string, number[]> = {};
 const statuses: Record<string, number> = {};
 const errors: string[] = [];
 /** When each failed request ended (for a run that stops servers on purpose: scripts/cluster/run.ts). */
-const errorEvents: { t: number; step: string; status: number | null }[] = [];
+const errorEvents: { t: number; step: string; status: number | null; protocol?: number }[] = [];
+const protocolOf = (path: string) => Number(path.match(/\/protocols\/(\d+)/)?.[1]) || undefined;
 let expected409 = 0;
 /** exceptions that only follow from a failed request already counted in errors */
 const followOn: string[] = [];
@@ -67,7 +68,7 @@ async function timed(step: string, c: AnyClient, path: string, init: Parameters<
 		res = await c.request(path, init);
 	} catch (e) {
 		errors.push(`${step} ${path}: ${e instanceof Error ? e.message : e}`);
-		errorEvents.push({ t: Date.now(), step, status: null });
+		errorEvents.push({ t: Date.now(), step, status: null, protocol: protocolOf(path) });
 		throw e;
 	}
 	const ms = performance.now() - t0;
@@ -77,7 +78,7 @@ async function timed(step: string, c: AnyClient, path: string, init: Parameters<
 	if (res.status === 409 && allow409) expected409++;
 	else if (res.status >= 300 && !(res.status === 200 || res.status === 303)) {
 		errors.push(`${step} ${init.method ?? 'GET'} ${path}: ${res.status} ${(await res.clone().text()).slice(0, 200)}`);
-		errorEvents.push({ t: Date.now(), step, status: res.status });
+		errorEvents.push({ t: Date.now(), step, status: res.status, protocol: protocolOf(path) });
 	}
 	return res;
 }
@@ -129,7 +130,9 @@ async function main() {
 	log(`${USERS} users for ${DURATION_S} s against ${base} (run ${RUN})`);
 
 	async function enter(c: AnyClient, id: number, scores: Scores, twoTabs: boolean): Promise<{ status: number; body: { status?: string; discrepancies?: number | null } }> {
-		const pass = await (await timed('get pass', c, `/api/v1/protocols/${id}/pass`)).json();
+		const got = await timed('get pass', c, `/api/v1/protocols/${id}/pass`);
+		if (got.status !== 200) throw new Error(`get pass ${id}: ${got.status}`); // counted; ends this protocol
+		const pass = await got.json();
 		const put = await timed('save draft', c, `/api/v1/protocols/${id}/pass`, { method: 'PUT', json: { scores, draftVersion: pass.draftVersion } });
 		const saved = await put.json();
 		const submit = () => timed('submit', c, `/api/v1/protocols/${id}/pass`, { method: 'POST', json: { draftVersion: saved.draftVersion } }, twoTabs);

@@ -171,7 +171,8 @@ backend apps
 	retries 2
 	retry-on conn-failure
 	option redispatch
-	default-server inter 1s fall 3 rise 2 on-marked-down shutdown-sessions
+	# no on-marked-down shutdown-sessions here: a stopping app server finishes what it has in flight
+	default-server inter 1s fall 3 rise 2
 	server app1 127.0.0.1:$((B + 61)) check
 	server app2 127.0.0.1:$((B + 62)) check
 

@@ -399,14 +399,24 @@ async function main() {
 	// errors: a request in flight on the app server while it was stopped may fail (502/503 from the
 	// balancer, or a dropped connection) within the seconds the balancer needs to take it out
 	const appStops = stops.filter((s) => s.what.startsWith('app'));
-	const excused = (L.error_events as { t: number; status: number | null }[]).filter((e) =>
+	const inFlight = (L.error_events as { t: number; status: number | null; protocol?: number }[]).filter((e) =>
 		(e.status === null || e.status === 502 || e.status === 503 || e.status === 504) && appStops.some((s) => e.t >= s.stoppedAt - 1000 && e.t <= (exitedAt.get(s.what) ?? s.stoppedAt) + 6000)
-	).length;
+	);
+	const excused = inFlight.length;
 	const realErrors = L.errors - excused;
 	if (realErrors > 0) fail(`${realErrors} request error(s) besides those in flight on the stopped app server (${JSON.stringify(L.error_samples.slice(0, 5))})`);
-	if (L.count_problems > 0) fail(`${L.count_problems} counting problem(s) in the load test: ${JSON.stringify(L.count_problem_samples.slice(0, 5))}`);
+	// a submission whose answer was lost with the stopped app server may still have been made: the
+	// run then counts one pass fewer than the database holds. That, and only that, is excused for
+	// the protocols of those requests; duplicates or discrepancy and audit mismatches never are.
+	const lostAnswers = new Set(inFlight.map((e) => e.protocol).filter(Boolean));
+	const countProblems = (L.count_problem_samples as string[]).filter((p) => {
+		const m = p.match(/^protocol (\d+) \((awaiting_second|in_review)\): (\d) passes submitted, the run saw (\d)$/);
+		return !(m && lostAnswers.has(Number(m[1])) && Number(m[3]) === Number(m[4]) + 1);
+	});
+	const excusedCounts = L.count_problems - countProblems.length;
+	if (countProblems.length > 0 || L.count_problems > (L.count_problem_samples as string[]).length) fail(`${L.count_problems - excusedCounts} counting problem(s) in the load test: ${JSON.stringify(countProblems.slice(0, 5))}`);
 	if (L.protocols === 0) fail('the load test created no protocol');
-	if (loadCode !== 0 && realErrors === 0 && L.count_problems === 0) fail(`the load test exited with ${loadCode}`);
+	if (loadCode !== 0 && L.errors === 0 && L.count_problems === 0) fail(`the load test exited with ${loadCode}`);
 	if (stops.length !== 3) fail(`only ${stops.length} of 3 stops happened (the run may be too short: CLUSTER_DURATION)`);
 
 	log('double submissions on both app servers');
@@ -437,7 +447,7 @@ async function main() {
 		errors_in_flight_on_stopped_app: excused,
 		expected_409: L.expected_409,
 		retries,
-		counting_checks: { load_problems: L.count_problems, double_submits: doubles.length, double_submit_problems: failures.filter((f) => f.startsWith('double submit')).length },
+		counting_checks: { load_problems: L.count_problems - excusedCounts, load_pass_counts_after_lost_answers: excusedCounts, double_submits: doubles.length, double_submit_problems: failures.filter((f) => f.startsWith('double submit')).length },
 		duplicate_emails: mail.duplicates,
 		mail,
 		rejoin_s: joins,
@@ -461,7 +471,7 @@ async function main() {
 	line('errors', summary.errors);
 	line('in flight on the stopped app', excused);
 	line('transaction retries (gave up)', `${retries.transactions} (${retries.gave_up})`);
-	line('counting problems', L.count_problems);
+	line('counting problems', `${L.count_problems - excusedCounts}${excusedCounts ? ` (+${excusedCounts} pass counted as not made whose answer was lost in flight)` : ''}`);
 	line('double submits (app1+app2)', `${doubles.length}, each ${doubles.every((d) => d.statuses.join() === '200,409' && d.reconciles === 1) ? 'reconciled once' : 'NOT once'}`);
 	line('e-mails: due / delivered / caught / dup', `${mail.due} / ${mail.delivered} / ${mail.caught} / ${mail.duplicates} (${mail.not_yet_due} reminders not yet due)`);
 	line('rejoin / restart (s)', joins);

@@ -42,7 +42,7 @@ export type Tx = Transaction | null | undefined;
 export async function select<T = Record<string, unknown>>(sql: string, replacements: Params = {}, transaction?: Tx): Promise<T[]> {
 	const run = () => db().query(sql, { type: QueryTypes.SELECT, replacements, transaction: transaction ?? undefined }) as Promise<T[]>;
 	// inside a transaction the transaction's retry decides; a plain read is safe to run again
-	return transaction ? run() : withRetry(() => run(), { maxAttempts: 3 });
+	return transaction ? run() : withRetry(() => run());
 }
 
 export async function selectOne<T = Record<string, unknown>>(sql: string, replacements: Params = {}, transaction?: Tx): Promise<T | null> {
