@@ -68,7 +68,7 @@ export const DEMO_TESTS: DemoTest[] = [
 		raw: [0, 60, 0],
 		reported: ['t', 'percentile'],
 		reliability: 0.78,
-		notes: 'Error count: missed target tones over the 8-minute run.',
+		notes: 'Error count: missed target tones over the 11-minute run (one target in seven).',
 		norms: [[4.1, 3.2], [4.4, 3.3], [5.0, 3.6], [5.9, 4.0], [7.2, 4.6], [9.0, 5.4]]
 	},
 	{
@@ -114,10 +114,10 @@ export const DEMO_TESTS: DemoTest[] = [
 		domain: 'memory',
 		unit: 'words',
 		direction: 'higher_better',
-		raw: [0, 36, 0],
+		raw: [0, 40, 0],
 		reported: ['z', 'standard', 'scaled', 't', 'percentile'],
 		reliability: 0.84,
-		notes: 'Sum of three learning trials of a 12-word list.',
+		notes: 'Sum of four learning trials of a 10-word harbour-errand list.',
 		norms: [[25.8, 4.0], [24.5, 4.2], [22.1, 4.6], [20.6, 4.8], [18.9, 5.0], [16.4, 5.3]]
 	},
 	{
@@ -126,11 +126,11 @@ export const DEMO_TESTS: DemoTest[] = [
 		domain: 'memory',
 		unit: 'words',
 		direction: 'higher_better',
-		raw: [0, 12, 0],
+		raw: [0, 10, 0],
 		reported: ['scaled', 'percentile'],
 		reliability: 0.76,
-		notes: 'Free recall after a 20-minute delay.',
-		norms: [[9.6, 1.9], [9.1, 2.0], [8.4, 2.2], [7.7, 2.3], [6.8, 2.5], [5.6, 2.7]]
+		notes: 'Free recall of the 10 errand words after a 25-minute delay.',
+		norms: [[8.0, 1.6], [7.6, 1.7], [7.0, 1.8], [6.4, 1.9], [5.7, 2.1], [4.7, 2.3]]
 	},
 	{
 		code: 'figure-recall',

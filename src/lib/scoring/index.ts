@@ -10,7 +10,10 @@ export {
 	reconcile,
 	testReferences,
 	checkField,
-	classifyDerived,
+	classify,
+	compositeReferences,
+	compositeSpan,
+	type Judgement,
 	classifyPair,
 	ReconcileInputError,
 	type Discrepancy,
@@ -30,4 +33,5 @@ export {
 	type TestDef
 } from './reconcile';
 export * from './norms';
+export { canonicalBand, tablePercentileRef, testScorer, compositeScorer, regressionPredicted, type Scorer, type Point } from './forms';
 export { parseReconcileInput, reconcileInputSchema, formatPath, type ParseResult } from './schema';

@@ -12,12 +12,9 @@ import {
 	inBounds,
 	parseEntered,
 	rawInRange,
-	referenceScore,
 	roundTo,
 	SCALES,
-	unroundedScore,
 	writtenForm,
-	zFromRaw,
 	type BoundsOverride,
 	type DerivedField,
 	type Direction,
@@ -26,7 +23,18 @@ import {
 } from './scales';
 import { isDigitDrop, isDigitExtra, isTransposition, isWrongDigit } from './digits';
 import { KIND_RANK, type Kind } from './kinds';
-import { isCompositeNorm, type AnyNormEntry, type CompositeDef, type CompositeField, type Covariates, type MeanSdNorm, type NormEntry } from './norms';
+import {
+	COMPOSITE_FIELDS,
+	isCompositeNorm,
+	type AnyNormEntry,
+	type CompositeDef,
+	type CompositeField,
+	type CompositeNormEntry,
+	type Covariates,
+	type MeanSdNorm,
+	type NormEntry
+} from './norms';
+import { canonicalBand, compositeScorer, MissingCovariate, testScorer, type Point, type Scorer } from './forms';
 
 export type { Kind } from './kinds';
 
@@ -138,69 +146,124 @@ function eq(a: number, b: number): boolean {
 	return d <= EPS && d >= -EPS;
 }
 
-function shown(v: Entered, parsed: number | null): number | string | null {
-	return parsed === null ? null : (v as number | string);
+// ---------------------------------------------------------------- entered values
+
+/** An entered value as read: its number (NaN when unreadable, null when empty) or its band. */
+interface Val {
+	v: Entered;
+	p: number | null;
+	/** Canonical percentile band, on percentile-only fields only. */
+	band: string | null;
 }
 
-/** Everything the kind rules need about one pass on one test. */
-interface PassCtx {
-	test: TestDef;
-	/** Unrounded z from this pass's raw score (null when the raw score is missing or out of range). */
-	z: number | null;
-	/** This pass's raw score as a number (may be out of range; null if empty or unreadable). */
-	raw: number | null;
-	/** The other norm groups of this test (for wrong_norm_group). */
-	otherNorms: readonly NormDef[];
+function readVal(v: Entered, field: DerivedField | 'sum' | 'raw', bands: boolean): Val {
+	if (bands && typeof v === 'string') {
+		const band = canonicalBand(v);
+		if (band !== null) return { v, p: NaN, band };
+	}
+	return { v, p: parseEntered(v, field === 'sum' ? 'raw' : field), band: null };
 }
 
-function derivedOutOfRange(field: DerivedField, p: number | null, bounds: BoundsOverride | null | undefined): boolean {
-	return p !== null && (Number.isNaN(p) || !inBounds(field, p, bounds));
+/** Whether an entered value equals a reference (numbers within 1e-6; a band names the same band). */
+function same(x: Val, r: Reference): boolean {
+	if (typeof r === 'string') return x.band !== null && x.band === (canonicalBand(r) ?? r);
+	return x.band === null && x.p !== null && eq(x.p, r);
 }
+
+/** Whether two references are the same value. */
+function refEq(a: Reference, b: Reference): boolean {
+	if (typeof a === 'number' && typeof b === 'number') return eq(a, b);
+	if (typeof a === 'string' && typeof b === 'string') return (canonicalBand(a) ?? a) === (canonicalBand(b) ?? b);
+	return false;
+}
+
+/** Whether two entered values hold the same, readable value (the shared-error test). */
+function sameReadable(a: Val, b: Val): boolean {
+	if (a.band !== null || b.band !== null) return a.band === b.band;
+	return a.p !== null && b.p !== null && !Number.isNaN(a.p) && !Number.isNaN(b.p) && eq(a.p, b.p);
+}
+
+/** Whether two entered values differ (peer comparison): empty vs filled, different numbers, bands or texts. */
+function peersDiffer(a: Val, b: Val): boolean {
+	if (a.p === null || b.p === null) return a.p !== b.p;
+	if (a.band !== null || b.band !== null) return a.band !== b.band;
+	if (Number.isNaN(a.p) || Number.isNaN(b.p)) return writtenForm(a.v) !== writtenForm(b.v);
+	return !eq(a.p, b.p);
+}
+
+function shown(x: Val): number | string | null {
+	return x.p === null ? null : (x.v as number | string);
+}
+
+// ---------------------------------------------------------------- kinds
 
 /**
- * Kind of a derived value `v` (parsed `p`) that differs from its reference `r`, by the spec's order.
- * Precondition: ctx.z is not null, p is not within 1e-6 of r.
+ * What the kind rules need about one pass's value on one field against its reference. Candidates
+ * are functions so that they are only worked out on a mismatch (the agreeing path never needs them).
  */
-export function classifyDerived(field: DerivedField, v: Entered, p: number | null, r: number, ctx: PassCtx, alt: number | null = null): Kind {
-	if (p === null) return 'missing';
-	if (Number.isNaN(p)) return 'mismatch';
-	// follows_other_raw: right for the other pass's raw score (rule 5)
-	if (alt !== null && eq(p, alt)) return 'follows_other_raw';
-	const { test } = ctx;
-	const z = ctx.z as number;
-	const bounds = test.bounds;
-	// sign_flip: the reference with the direction reversed
-	if (eq(p, referenceScore(field, -z, bounds))) return 'sign_flip';
-	// wrong_norm_group: the reference from another group of the same test
-	if (ctx.raw !== null) {
-		for (const n of ctx.otherNorms) {
-			if (eq(p, referenceScore(field, zFromRaw(ctx.raw, n.mean, n.sd, test.direction), bounds))) return 'wrong_norm_group';
-		}
+export interface Judgement {
+	field: DerivedField | 'sum';
+	/** The reference (from this pass's own raw score or parts). */
+	r: Reference;
+	/** The unrounded reference, or null (read from a table; composite sums). */
+	u: number | null;
+	/** Rule 5: the reference from the other pass's raw score, or null. */
+	alt: Reference | null;
+	/** This pass's own raw score (raw_as_derived), null for composites. */
+	ownRaw: number | null;
+	/** Percentile-only field: only missing, follows_other_raw, (carried), wrong_norm_group, adjacent_row, mismatch. */
+	restricted: boolean;
+	/** Composite `sum`: the sum of this pass's entered parts when all are present, else null. */
+	ownPartsSum?: number | null;
+	/** Composite derived field: the reference computed from this pass's own sum s (when carried can apply). */
+	carried?: () => Reference | undefined;
+	flipped: () => Reference | undefined;
+	otherGroups: () => (Reference | undefined)[];
+	adjacent: () => Reference[];
+	otherScales: () => (Reference | undefined)[];
+	outOfRange: (x: Val) => boolean;
+}
+
+/** Kind of a value that differs from its reference, by the contract's order (the first that applies wins). */
+export function classify(x: Val, j: Judgement): Kind {
+	if (x.p === null) return 'missing';
+	if (Number.isNaN(x.p) && x.band === null) return 'mismatch';
+	if (j.alt !== null && same(x, j.alt)) return 'follows_other_raw';
+	if (j.field === 'sum') {
+		if (j.ownPartsSum != null) return same(x, j.ownPartsSum) ? 'carried' : 'sum_error';
+	} else if (j.carried) {
+		const c = j.carried();
+		if (c !== undefined && same(x, c)) return 'carried';
 	}
-	// wrong_scale: this pass's reference on another scale
-	for (const f of DERIVED_FIELDS) {
-		if (f !== field && eq(p, referenceScore(f, z, bounds))) return 'wrong_scale';
-	}
-	if (ctx.raw !== null && eq(p, ctx.raw)) return 'raw_as_derived';
+	const flipped = j.flipped();
+	if (flipped !== undefined && same(x, flipped)) return 'sign_flip';
+	for (const g of j.otherGroups()) if (g !== undefined && same(x, g)) return 'wrong_norm_group';
+	for (const a of j.adjacent()) if (same(x, a)) return 'adjacent_row';
+	if (j.restricted || x.band !== null) return 'mismatch';
+	const p = x.p;
+	for (const o of j.otherScales()) if (o !== undefined && same(x, o)) return 'wrong_scale';
+	if (j.ownRaw !== null && eq(p, j.ownRaw)) return 'raw_as_derived';
+	const r = j.r as number;
 	for (const k of SHIFTS) if (eq(p, r * k)) return 'decimal_shift';
-	const sv = writtenForm(v);
-	const sr = formatReference(field, r);
+	const sv = writtenForm(x.v);
+	const sr = formatReference(j.field, r);
 	if (isTransposition(sv, sr)) return 'transposition';
-	// rounding: floor or ceiling of the unrounded reference at the field's precision; for z also R to 1 decimal
-	const u = unroundedScore(field, z);
-	const d = SCALES[field].decimals;
-	if (eq(p, floorTo(u, d)) || eq(p, ceilTo(u, d)) || (field === 'z' && eq(p, roundTo(u, 1)))) return 'rounding';
+	if (j.u !== null) {
+		const d = j.field === 'sum' ? 0 : SCALES[j.field].decimals;
+		if (eq(p, floorTo(j.u, d)) || eq(p, ceilTo(j.u, d)) || (j.field === 'z' && eq(p, roundTo(j.u, 1)))) return 'rounding';
+	}
 	if (isDigitDrop(sv, sr)) return 'digit_drop';
 	if (isDigitExtra(sv, sr)) return 'digit_extra';
 	if (isWrongDigit(sv, sr)) return 'wrong_digit';
-	if (!inBounds(field, p, bounds)) return 'out_of_range';
+	if (j.outOfRange(x)) return 'out_of_range';
 	return 'mismatch';
 }
 
 /**
  * Kind for two values compared with each other only (raw pairs, and derived values of a pass with no
  * usable raw score). Symmetric in its two sides by construction, so swapping the passes never changes
- * the kind. `ownRaw` (derived only): each side's own raw score, for raw_as_derived.
+ * the kind. `ownRaw` (derived only): each side's own raw score, for raw_as_derived. `restricted`:
+ * percentile-only fields, where only missing and mismatch can apply without a reference.
  */
 export function classifyPair(
 	a: Entered,
@@ -208,9 +271,11 @@ export function classifyPair(
 	b: Entered,
 	pb: number | null,
 	outOfRange: boolean,
-	ownRaw?: readonly [number | null, number | null]
+	ownRaw?: readonly [number | null, number | null],
+	restricted = false
 ): Kind {
 	if (pa === null || pb === null) return 'missing';
+	if (restricted) return 'mismatch';
 	const numeric = !Number.isNaN(pa) && !Number.isNaN(pb);
 	if (ownRaw && numeric) {
 		if ((ownRaw[0] !== null && eq(pa, ownRaw[0])) || (ownRaw[1] !== null && eq(pb, ownRaw[1]))) return 'raw_as_derived';
@@ -225,29 +290,117 @@ export function classifyPair(
 	return 'mismatch';
 }
 
-function indexNorms(norms: readonly AnyNormEntry[]): Map<string, NormDef[]> {
-	const byTest = new Map<string, NormDef[]>();
-	for (const n of norms) {
-		if (isCompositeNorm(n)) continue;
-		if (n.form !== undefined && n.form !== 'mean_sd') {
-			throw new ReconcileInputError(`norm form ${JSON.stringify(n.form)} is not handled by this version of the engine`, ['norms']);
-		}
-		const list = byTest.get(n.test);
-		if (list) list.push(n);
-		else byTest.set(n.test, [n]);
+// ---------------------------------------------------------------- one field of two passes
+
+interface Subject {
+	test?: string;
+	composite?: string;
+}
+
+function mk(
+	subj: Subject,
+	field: Field | CompositeField,
+	pass: PassName,
+	kind: Kind,
+	value: number | string | null,
+	other: number | string | null,
+	expected: Reference | null,
+	alternative: Reference | null,
+	oor: boolean
+): Discrepancy {
+	if (subj.composite !== undefined) {
+		return { composite: subj.composite, field: field as CompositeField, pass, kind, value, other, expected, alternative, out_of_range: oor };
 	}
-	return byTest;
+	return { test: subj.test as string, field: field as Field, pass, kind, value, other, expected, alternative, out_of_range: oor };
+}
+
+/**
+ * Compare one field of the two passes (rules 2–5): each pass against its own reference (null when it
+ * has none), the shared error as one `both`, and passes without a reference against each other.
+ */
+function compareField(
+	out: Discrepancy[],
+	subj: Subject,
+	field: DerivedField | 'sum',
+	x1: Val,
+	x2: Val,
+	r1: Reference | null,
+	r2: Reference | null,
+	/** Rule 5 alternatives (null unless the raw scores differ and both are usable). */
+	alt1: Reference | null,
+	alt2: Reference | null,
+	j1: (r: Reference, alt: Reference | null) => Judgement,
+	j2: (r: Reference, alt: Reference | null) => Judgement,
+	oor: (x: Val) => boolean,
+	pair: { ownRaw?: readonly [number | null, number | null]; restricted: boolean }
+): void {
+	const e1 = r1 !== null && same(x1, r1);
+	const e2 = r2 !== null && same(x2, r2);
+	if (e1 && e2) return;
+	if (r1 !== null && r2 !== null && !e1 && !e2 && refEq(r1, r2) && sameReadable(x1, x2)) {
+		// the shared error double entry alone would miss; the kind is the earlier of the two writings'
+		const k1 = classify(x1, j1(r1, alt1));
+		const k2 = classify(x2, j2(r2, alt2));
+		out.push(mk(subj, field, 'both', KIND_RANK[k2] < KIND_RANK[k1] ? k2 : k1, shown(x1), shown(x2), r1, alt1, oor(x1)));
+		return;
+	}
+	const differ = (r1 === null || r2 === null) && peersDiffer(x1, x2);
+	const peer = (): Discrepancy => {
+		const o = oor(x1) || oor(x2);
+		return mk(subj, field, 'both', classifyPair(x1.v, x1.p, x2.v, x2.p, o, pair.ownRaw, pair.restricted), shown(x1), shown(x2), null, null, o);
+	};
+	// first pass's slot
+	if (r1 !== null) {
+		if (!e1) out.push(mk(subj, field, 'first', classify(x1, j1(r1, alt1)), shown(x1), shown(x2), r1, alt1, oor(x1)));
+	} else if (differ) out.push(peer());
+	// second pass's slot (when neither has a reference, the one peer comparison is already made)
+	if (r2 !== null) {
+		if (!e2) out.push(mk(subj, field, 'second', classify(x2, j2(r2, alt2)), shown(x2), shown(x1), r2, alt2, oor(x2)));
+	} else if (differ && r1 !== null) out.push(peer());
+}
+
+// ---------------------------------------------------------------- norms
+
+function indexBy<T>(items: readonly T[], key: (t: T) => string | undefined): Map<string, T[]> {
+	const m = new Map<string, T[]>();
+	for (const it of items) {
+		const k = key(it);
+		if (k === undefined) continue;
+		const list = m.get(k);
+		if (list) list.push(it);
+		else m.set(k, [it]);
+	}
+	return m;
+}
+
+function scorerOrThrow(make: () => Scorer, normIndex: number): Scorer {
+	try {
+		return make();
+	} catch (e) {
+		if (e instanceof MissingCovariate) {
+			throw new ReconcileInputError(e.message, ['norms', normIndex, 'coefficients', e.covariate]);
+		}
+		throw e;
+	}
 }
 
 const EMPTY: FieldValues = {};
+
+/** Whether a test's norm (any of its groups) is a percentile-only table. */
+function isPercentileOnly(norms: readonly AnyNormEntry[] | undefined): boolean {
+	if (!norms) return false;
+	for (const n of norms) if (n.form === 'table' && n.scale === 'percentile') return true;
+	return false;
+}
 
 /**
  * The references of one test for a given raw score, through the given norm (any form; regression
  * norms need the protocol's covariates): every derived field the norm yields, which is all five for
  * mean/SD, regression and score tables, and `percentile` alone for percentile-only tables (a number
- * or a band string). The review screen re-judges a test's derived discrepancies against the kept raw
- * score with this. Returns null when the raw score is empty, not a number, or outside the test's
- * range (no reference, as in rule 3). Pure; the same computation `reconcile` uses.
+ * or a band string as the table writes it). The review screen re-judges a test's derived
+ * discrepancies against the kept raw score with this. Returns null when the raw score is empty, not
+ * a number, or outside the test's range (no reference, as in rule 3). Throws ReconcileInputError
+ * when a regression covariate is missing. Pure; the same computation `reconcile` uses.
  */
 export function testReferences(
 	test: TestDef,
@@ -257,39 +410,85 @@ export function testReferences(
 ): Partial<Record<DerivedField, Reference>> | null {
 	const n = parseEntered(raw, 'raw');
 	if (n === null || Number.isNaN(n) || !rawInRange(n, test.raw)) return null;
-	if (norm.form !== undefined && norm.form !== 'mean_sd') {
-		void covariates;
-		throw new ReconcileInputError(`norm form ${JSON.stringify(norm.form)} is not handled by this version of the engine`, ['norms']);
-	}
-	const z = zFromRaw(n, norm.mean, norm.sd, test.direction);
+	const sc = scorerOrThrow(() => testScorer(test, norm, covariates), -1);
+	const pt = sc.at(n);
 	const out: Partial<Record<DerivedField, Reference>> = {};
-	for (const f of DERIVED_FIELDS) out[f] = referenceScore(f, z, test.bounds);
+	for (const f of DERIVED_FIELDS) {
+		const r = sc.ref(pt, f);
+		if (r !== undefined) out[f] = r;
+	}
 	return out;
 }
 
 /**
- * Reconcile one protocol. Throws ReconcileInputError when a test has no norms for its group or there
- * are not exactly two passes; validate batch input with `parseReconcileInput` (./schema) first.
+ * The references of a composite for a given sum through its norm: `sum` itself and every derived field
+ * the norm yields. Null when the sum is not a whole number within `span` (the possible sums).
+ */
+export function compositeReferences(
+	norm: CompositeNormEntry,
+	sum: number,
+	span: readonly [number, number]
+): Partial<Record<CompositeField, Reference>> | null {
+	if (!Number.isInteger(sum) || sum < span[0] || sum > span[1]) return null;
+	const sc = compositeScorer(norm);
+	const pt = sc.at(sum);
+	const out: Partial<Record<CompositeField, Reference>> = { sum };
+	for (const f of DERIVED_FIELDS) {
+		const r = sc.ref(pt, f);
+		if (r !== undefined) out[f] = r;
+	}
+	return out;
+}
+
+/** The possible sums of a composite: from the sum of the parts' lower bounds to the sum of their upper bounds on part_field. */
+export function compositeSpan(def: Pick<CompositeDef, 'parts' | 'part_field'>, tests: readonly Pick<TestDef, 'id' | 'bounds'>[]): [number, number] {
+	let lo = 0;
+	let hi = 0;
+	for (const id of def.parts) {
+		const t = tests.find((x) => x.id === id);
+		const [a, b] = boundsFor(def.part_field, t?.bounds);
+		lo += a;
+		hi += b;
+	}
+	return [Math.ceil(lo - 1e-9), Math.floor(hi + 1e-9)];
+}
+
+/** Per test and pass, what composites need: the point (null without a usable raw score). */
+interface TestState {
+	test: TestDef;
+	scorer: Scorer;
+	pt1: Point | null;
+	pt2: Point | null;
+}
+
+/**
+ * Reconcile one protocol. Throws ReconcileInputError when a test or composite has no norms for its
+ * group, a regression covariate is missing, or there are not exactly two passes; validate batch input
+ * with `parseReconcileInput` (./schema) first, which also checks tables and composites.
  */
 export function reconcile(input: ReconcileInput): ReconcileResult {
 	if (input.passes.length !== 2) throw new ReconcileInputError('expected exactly two passes', ['passes']);
 	const [first, second] = input.passes;
-	const normsByTest = indexNorms(input.norms);
+	const protocol = input.protocol;
+	const covariates = protocol.covariates;
+	const normIndex = new Map<AnyNormEntry, number>();
+	input.norms.forEach((n, i) => normIndex.set(n, i));
+	const testNorms = indexBy(input.norms, (n) => (isCompositeNorm(n) ? undefined : n.test)) as Map<string, NormEntry[]>;
 	const out: Discrepancy[] = [];
+	const states = new Map<string, TestState>();
 	let fieldsCompared = 0;
 
 	for (let ti = 0; ti < input.tests.length; ti++) {
 		const test = input.tests[ti];
-		const groupId = input.protocol.groups?.[test.id] ?? input.protocol.group;
-		const all = normsByTest.get(test.id) ?? [];
-		let norm: NormDef | undefined;
+		const groupId = protocol.groups?.[test.id] ?? protocol.group;
+		const all = testNorms.get(test.id) ?? [];
+		let norm: NormEntry | undefined;
 		for (const n of all) if (n.group === groupId) norm = n;
 		if (!norm) {
-			throw new ReconcileInputError(`no norms for test ${JSON.stringify(test.id)} in group ${JSON.stringify(groupId)}`, [
-				'protocol',
-				'group'
-			]);
+			throw new ReconcileInputError(`no norms for test ${JSON.stringify(test.id)} in group ${JSON.stringify(groupId)}`, ['protocol', 'group']);
 		}
+		const theNorm = norm;
+		const scorer = scorerOrThrow(() => testScorer(test, theNorm, covariates), normIndex.get(theNorm) ?? -1);
 		const s1 = first.scores[test.id] ?? EMPTY;
 		const s2 = second.scores[test.id] ?? EMPTY;
 		const reported = test.reported;
@@ -304,156 +503,190 @@ export function reconcile(input: ReconcileInput): ReconcileResult {
 		const ok2 = n2 !== null && !Number.isNaN(n2) && rawInRange(n2, test.raw);
 		const rawSame =
 			n1 !== null && n2 !== null && (Number.isNaN(n1) || Number.isNaN(n2) ? writtenForm(v1) === writtenForm(v2) : eq(n1, n2));
+		const subj: Subject = { test: test.id };
 		if (n1 === null && n2 === null) {
-			out.push({ test: test.id, field: 'raw', pass: 'both', kind: 'missing', value: null, other: null, expected: null, alternative: null, out_of_range: false });
+			out.push(mk(subj, 'raw', 'both', 'missing', null, null, null, null, false));
 		} else if (rawSame) {
-			if (!ok1) {
-				out.push({ test: test.id, field: 'raw', pass: 'both', kind: 'out_of_range', value: v1 as number | string, other: v2 as number | string, expected: null, alternative: null, out_of_range: true });
-			}
+			if (!ok1) out.push(mk(subj, 'raw', 'both', 'out_of_range', v1 as number | string, v2 as number | string, null, null, true));
 		} else {
 			const oor1 = n1 !== null && !ok1;
 			const oor2 = n2 !== null && !ok2;
 			const pass: PassName = ok1 !== ok2 ? (ok1 ? 'second' : 'first') : 'both';
 			const flaggedOor = pass === 'first' ? oor1 : pass === 'second' ? oor2 : oor1 || oor2;
 			const [fv, fn, ov, on] = pass === 'second' ? [v2, n2, v1, n1] : [v1, n1, v2, n2];
-			out.push({
-				test: test.id,
-				field: 'raw',
-				pass,
-				kind: classifyPair(fv, fn, ov, on, flaggedOor),
-				value: shown(fv, fn),
-				other: shown(ov, on),
-				expected: null,
-				alternative: null,
-				out_of_range: flaggedOor
-			});
+			out.push(mk(subj, 'raw', pass, classifyPair(fv, fn, ov, on, flaggedOor), fn === null ? null : (fv as number | string), on === null ? null : (ov as number | string), null, null, flaggedOor));
 		}
+
+		const pt1 = ok1 ? scorer.at(n1 as number) : null;
+		const pt2 = ok2 ? (ok1 && rawSame ? pt1 : scorer.at(n2 as number)) : null;
+		states.set(test.id, { test, scorer, pt1, pt2 });
 		if (reported.length === 0) continue;
 
 		// ---- derived fields
-		const dir = test.direction;
-		const z1 = ok1 ? zFromRaw(n1 as number, norm.mean, norm.sd, dir) : null;
-		const z2 = ok2 ? (ok1 && rawSame ? z1 : zFromRaw(n2 as number, norm.mean, norm.sd, dir)) : null;
-		const sameRef = z1 !== null && z2 !== null && z1 === z2;
 		const bounds = test.bounds;
-		let ctx1: PassCtx | undefined;
-		let ctx2: PassCtx | undefined;
-		const otherNorms = (): NormDef[] => all.filter((n) => n !== norm);
-		const c1 = (): PassCtx => (ctx1 ??= { test, z: z1, raw: n1 !== null && !Number.isNaN(n1) ? n1 : null, otherNorms: otherNorms() });
-		const c2 = (): PassCtx => (ctx2 ??= { test, z: z2, raw: n2 !== null && !Number.isNaN(n2) ? n2 : null, otherNorms: ctx1?.otherNorms ?? otherNorms() });
+		const pctOnly = scorer.kind === 'percentile' || isPercentileOnly(all);
+		const rawsDiffer = pt1 !== null && pt2 !== null && pt1 !== pt2;
+		const own1 = n1 !== null && !Number.isNaN(n1) ? n1 : null;
+		const own2 = n2 !== null && !Number.isNaN(n2) ? n2 : null;
+		let others: { sc: Scorer; pt1: Point | null; pt2: Point | null }[] | undefined;
+		const otherGroups = () =>
+			(others ??= all
+				.filter((n) => n !== theNorm)
+				.map((n) => {
+					const sc = scorerOrThrow(() => testScorer(test, n, covariates), normIndex.get(n) ?? -1);
+					return { sc, pt1: ok1 ? sc.at(n1 as number) : null, pt2: ok2 ? sc.at(n2 as number) : null };
+				}));
+		const oor = (x: Val): boolean => x.p !== null && x.band === null && (Number.isNaN(x.p) || !inBounds(fieldOf, x.p, bounds));
+		let fieldOf: DerivedField = 'z';
+		const judge = (pt: Point, ownRaw: number | null, which: 1 | 2) => (r: Reference, alt: Reference | null): Judgement => {
+			const field = fieldOf;
+			return {
+				field,
+				r,
+				u: scorer.unrounded(pt, field),
+				alt,
+				ownRaw,
+				restricted: pctOnly,
+				flipped: () => scorer.flipped(pt, field),
+				otherGroups: () => otherGroups().map((o) => { const p = which === 1 ? o.pt1 : o.pt2; return p ? o.sc.ref(p, field) : undefined; }),
+				adjacent: () => scorer.adjacent(pt, field),
+				otherScales: () => DERIVED_FIELDS.filter((f) => f !== field).map((f) => scorer.ref(pt, f)),
+				outOfRange: oor
+			};
+		};
+		const pair = { ownRaw: [own1, own2] as const, restricted: pctOnly };
 
 		for (const field of DERIVED_FIELDS) {
 			if (!reported.includes(field)) continue;
-			const a1 = s1[field];
-			const a2 = s2[field];
-			const p1 = parseEntered(a1, field);
-			const p2 = parseEntered(a2, field);
+			fieldOf = field;
+			const bands = pctOnly && field === 'percentile';
+			const x1 = readVal(s1[field], field, bands);
+			const x2 = readVal(s2[field], field, bands);
+			const r1 = pt1 ? (scorer.ref(pt1, field) ?? null) : null;
+			const r2 = pt2 ? (pt2 === pt1 ? r1 : (scorer.ref(pt2, field) ?? null)) : null;
+			compareField(
+				out, subj, field, x1, x2, r1, r2,
+				rawsDiffer ? r2 : null,
+				rawsDiffer ? r1 : null,
+				judge(pt1 as Point, own1, 1),
+				judge(pt2 as Point, own2, 2),
+				oor,
+				pair
+			);
+		}
+	}
 
-			if (sameRef) {
-				// fast path: both passes share one reference; most fields agree with it
-				const r = referenceScore(field, z1 as number, bounds);
-				const e1 = p1 !== null && eq(p1, r);
-				const e2 = p2 !== null && eq(p2, r);
-				if (e1 && e2) continue;
-				if (!e1 && !e2 && p1 !== null && p2 !== null && !Number.isNaN(p1) && !Number.isNaN(p2) && eq(p1, p2)) {
-					// the shared error double entry alone would miss; the kind is the earlier of the two writings'
-					const k1 = classifyDerived(field, a1, p1, r, c1());
-					const k2 = classifyDerived(field, a2, p2, r, c2());
-					out.push({
-						test: test.id,
-						field,
-						pass: 'both',
-						kind: KIND_RANK[k2] < KIND_RANK[k1] ? k2 : k1,
-						value: a1 as number | string,
-						other: a2 as number | string,
-						expected: r,
-						alternative: null,
-						out_of_range: derivedOutOfRange(field, p1, bounds)
+	// ---- composites, after all the tests
+	const composites = input.composites ?? [];
+	if (composites.length > 0) {
+		const compNorms = indexBy(input.norms, (n) => (isCompositeNorm(n) ? n.composite : undefined)) as Map<string, CompositeNormEntry[]>;
+		for (const c of composites) {
+			const groupId = protocol.groups?.[c.id] ?? protocol.group;
+			const all = compNorms.get(c.id) ?? [];
+			const norm = all.find((n) => n.group === groupId);
+			if (!norm) {
+				throw new ReconcileInputError(`no norms for composite ${JSON.stringify(c.id)} in group ${JSON.stringify(groupId)}`, ['protocol', 'group']);
+			}
+			const scorer = compositeScorer(norm);
+			const partStates: TestState[] = [];
+			for (const id of c.parts) {
+				const st = states.get(id);
+				if (!st) throw new ReconcileInputError(`composite ${JSON.stringify(c.id)}: unknown part ${JSON.stringify(id)}`, ['composites']);
+				partStates.push(st);
+			}
+			const span = compositeSpan(c, input.tests);
+			const pf = c.part_field;
+			const refSum = (which: 1 | 2): number | null => {
+				let s = 0;
+				for (const st of partStates) {
+					const pt = which === 1 ? st.pt1 : st.pt2;
+					if (!pt) return null;
+					const r = st.scorer.ref(pt, pf);
+					if (typeof r !== 'number') return null;
+					s += r;
+				}
+				return s;
+			};
+			const ownParts = (scores: PassInput['scores']): number | null => {
+				let s = 0;
+				for (const st of partStates) {
+					const p = parseEntered(scores[st.test.id]?.[pf], pf);
+					if (p === null || Number.isNaN(p)) return null;
+					s += p;
+				}
+				return s;
+			};
+			const S1 = refSum(1);
+			const S2 = refSum(2);
+			const sameSum = S1 !== null && S2 !== null && S1 === S2;
+			const cp1 = S1 !== null ? scorer.at(S1) : null;
+			const cp2 = S2 !== null ? (sameSum ? cp1 : scorer.at(S2)) : null;
+			const e1 = (first.scores[c.id] ?? EMPTY) as Partial<Record<CompositeField, Entered>>;
+			const e2 = (second.scores[c.id] ?? EMPTY) as Partial<Record<CompositeField, Entered>>;
+			const parts1 = ownParts(first.scores);
+			const parts2 = ownParts(second.scores);
+			const own = (e: Partial<Record<CompositeField, Entered>>, parts: number | null): number | null => {
+				const p = parseEntered(e.sum, 'raw');
+				if (p === null) return parts;
+				return Number.isNaN(p) ? null : p;
+			};
+			const s1 = own(e1, parts1);
+			const s2 = own(e2, parts2);
+			const pctOnly = scorer.kind === 'percentile' || isPercentileOnly(all);
+			const subj: Subject = { composite: c.id };
+			let others: Scorer[] | undefined;
+			const otherScorers = () => (others ??= all.filter((n) => n !== norm).map(compositeScorer));
+			const sumOor = (x: Val): boolean => x.p !== null && (Number.isNaN(x.p) || x.band !== null || !Number.isInteger(x.p) || x.p < span[0] || x.p > span[1]);
+			let fieldOf: DerivedField = 'z';
+			const derivedOor = (x: Val): boolean => x.p !== null && x.band === null && (Number.isNaN(x.p) || !inBounds(fieldOf, x.p, null));
+			fieldsCompared += 2 * c.reported.length;
+
+			for (const field of COMPOSITE_FIELDS) {
+				if (!c.reported.includes(field)) continue;
+				if (field === 'sum') {
+					const x1 = readVal(e1.sum, 'sum', false);
+					const x2 = readVal(e2.sum, 'sum', false);
+					const sumJudge = (partsSum: number | null) => (r: Reference): Judgement => ({
+						field: 'sum', r, u: null, alt: null, ownRaw: null, restricted: false, ownPartsSum: partsSum,
+						flipped: () => undefined, otherGroups: () => [], adjacent: () => [], otherScales: () => [], outOfRange: sumOor
 					});
+					compareField(out, subj, 'sum', x1, x2, S1, S2, null, null, sumJudge(parts1), sumJudge(parts2), sumOor, { restricted: false });
 					continue;
 				}
-				if (!e1) out.push(derived(test.id, field, 'first', a1, p1, a2, p2, r, null, c1(), bounds));
-				if (!e2) out.push(derived(test.id, field, 'second', a2, p2, a1, p1, r, null, c2(), bounds));
-				continue;
-			}
-
-			// general path: different references, or a pass without a usable raw score
-			const r1 = z1 !== null ? referenceScore(field, z1, bounds) : null;
-			const r2 = z2 !== null ? referenceScore(field, z2, bounds) : null;
-			const e1 = r1 !== null && p1 !== null && eq(p1, r1);
-			const e2 = r2 !== null && p2 !== null && eq(p2, r2);
-			if (
-				r1 !== null && r2 !== null && eq(r1, r2) && !e1 && !e2 && p1 !== null && p2 !== null &&
-				!Number.isNaN(p1) && !Number.isNaN(p2) && eq(p1, p2)
-			) {
-				// both references exist here, so the raw scores differ and both are usable: rule 5's alternatives
-				const k1 = classifyDerived(field, a1, p1, r1, c1(), r2);
-				const k2 = classifyDerived(field, a2, p2, r2, c2(), r1);
-				out.push({ test: test.id, field, pass: 'both', kind: KIND_RANK[k2] < KIND_RANK[k1] ? k2 : k1, value: a1 as number | string, other: a2 as number | string, expected: r1, alternative: r2, out_of_range: derivedOutOfRange(field, p1, bounds) });
-				continue;
-			}
-			const peersDiffer =
-				(r1 === null || r2 === null) &&
-				(p1 === null || p2 === null
-					? p1 !== p2
-					: Number.isNaN(p1) || Number.isNaN(p2)
-						? writtenForm(a1) !== writtenForm(a2)
-						: !eq(p1, p2));
-			const peer = (): Discrepancy => {
-				const oor = derivedOutOfRange(field, p1, bounds) || derivedOutOfRange(field, p2, bounds);
-				return {
-					test: test.id,
-					field,
-					pass: 'both',
-					kind: classifyPair(a1, p1, a2, p2, oor, [c1().raw, c2().raw]),
-					value: shown(a1, p1),
-					other: shown(a2, p2),
-					expected: null,
-					alternative: null,
-					out_of_range: oor
+				fieldOf = field;
+				const bands = pctOnly && field === 'percentile';
+				const x1 = readVal(e1[field], field, bands);
+				const x2 = readVal(e2[field], field, bands);
+				const r1 = cp1 ? (scorer.ref(cp1, field) ?? null) : null;
+				const r2 = cp2 ? (cp2 === cp1 ? r1 : (scorer.ref(cp2, field) ?? null)) : null;
+				const judge = (pt: Point, S: number, s: number | null) => (r: Reference): Judgement => {
+					const f = field;
+					return {
+						field: f,
+						r,
+						u: scorer.unrounded(pt, f),
+						alt: null,
+						ownRaw: null,
+						restricted: pctOnly,
+						carried: () => (s !== null && Number.isInteger(s) && s >= span[0] && s <= span[1] && s !== S ? scorer.ref(scorer.at(s), f) : undefined),
+						flipped: () => scorer.flipped(pt, f),
+						otherGroups: () => otherScorers().map((o) => o.ref(o.at(S), f)),
+						adjacent: () => scorer.adjacent(pt, f),
+						otherScales: () => DERIVED_FIELDS.filter((g) => g !== f).map((g) => scorer.ref(pt, g)),
+						outOfRange: derivedOor
+					};
 				};
-			};
-			// first pass's slot
-			if (r1 !== null) {
-				if (!e1) out.push(derived(test.id, field, 'first', a1, p1, a2, p2, r1, r2, c1(), bounds));
-			} else if (peersDiffer) {
-				out.push(peer());
-			}
-			// second pass's slot (when neither has a reference, the one peer comparison is already made)
-			if (r2 !== null) {
-				if (!e2) out.push(derived(test.id, field, 'second', a2, p2, a1, p1, r2, r1, c2(), bounds));
-			} else if (peersDiffer && r1 !== null) {
-				out.push(peer());
+				compareField(
+					out, subj, field, x1, x2, r1, r2, null, null,
+					judge(cp1 as Point, S1 as number, s1),
+					judge(cp2 as Point, S2 as number, s2),
+					derivedOor,
+					{ restricted: pctOnly }
+				);
 			}
 		}
 	}
 	return { discrepancies: out, summary: { fields_compared: fieldsCompared, discrepancies: out.length } };
-}
-
-function derived(
-	test: string,
-	field: DerivedField,
-	pass: 'first' | 'second',
-	v: Entered,
-	p: number | null,
-	o: Entered,
-	po: number | null,
-	r: number,
-	alt: number | null,
-	ctx: PassCtx,
-	bounds: BoundsOverride | null | undefined
-): Discrepancy {
-	return {
-		test,
-		field,
-		pass,
-		kind: classifyDerived(field, v, p, r, ctx, alt),
-		value: shown(v, p),
-		other: shown(o, po),
-		expected: r,
-		alternative: alt,
-		out_of_range: derivedOutOfRange(field, p, bounds)
-	};
 }
 
 // ---------------------------------------------------------------- live field checks

@@ -49,6 +49,7 @@ export const ACCESS: Record<string, RouteRules> = {
 	'/api/v1/batteries/[id]': { GET: 'signed-in', PUT: lead },
 	'/api/v1/norm-sets': { GET: 'signed-in', POST: lead },
 	'/api/v1/norm-sets/[id]': { GET: 'signed-in', PUT: lead },
+	'/api/v1/norm-sets/[id]/groups': { POST: lead },
 	'/api/v1/catalog/import/preview': { POST: lead },
 	'/api/v1/catalog/import/confirm': { POST: lead },
 

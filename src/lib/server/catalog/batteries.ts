@@ -31,6 +31,12 @@ export interface CompositeRecord extends CompositeInput {
 	position: number;
 }
 
+/** Every battery's composites by code and name (the norm editor's list). */
+export async function listAllComposites(tx?: Tx): Promise<{ code: string; name: string }[]> {
+	const { Composite } = models();
+	return (await Composite.findAll({ attributes: ['code', 'name'], order: [['code', 'ASC']], transaction: tx ?? undefined })).map((c) => ({ code: c.code, name: c.name }));
+}
+
 export async function listComposites(batteryId: number, tx?: Tx): Promise<CompositeRecord[]> {
 	const { Composite } = models();
 	const rows = await Composite.findAll({ where: { battery_id: batteryId }, order: [['position', 'ASC']], transaction: tx ?? undefined });

@@ -403,3 +403,14 @@ export async function replaceNormGroups(normSetId: number, input: readonly (Norm
 	for (const g of groups) if ((g.form ?? 'mean_sd') !== 'mean_sd') await insertGroup(normSetId, g, tr);
 	return { removed, added: groups.length };
 }
+
+/**
+ * Save one group (the catalog's norm editor): replaces the group with the same test and code, or
+ * adds it. Checked as every change is (form, coverage of a table, age ranges); refused when a
+ * protocol used the group.
+ */
+export async function saveNormGroup(normSetId: number, input: unknown, actorId: number | null): Promise<NormGroupRecord> {
+	const g = parseGroup(input);
+	const existing = await selectOne<{ id: number }>('SELECT id FROM norm_groups WHERE norm_set_id = :ns AND test_code = :test AND group_code = :group', { ns: normSetId, test: g.test_code, group: g.group_code });
+	return existing ? updateNormGroup(existing.id, g, actorId) : addNormGroup(normSetId, g, actorId);
+}

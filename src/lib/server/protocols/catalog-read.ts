@@ -2,7 +2,8 @@
 import { select, selectOne, jsonValue, type Tx } from '../db';
 import { models, type FrozenComposite } from '../models';
 import { tableRowsOf, type TableRowInput } from '../catalog/norms';
-import type { TestDef, NormDef } from '../../scoring/reconcile';
+import type { TestDef } from '../../scoring/reconcile';
+import type { AnyNormEntry, CompositeDef, CompositeField } from '../../scoring/norms';
 import type { NormGroupDef, AgeRule } from '../../scoring/age';
 import type { DerivedField, BoundsOverride } from '../../scoring/scales';
 
@@ -135,46 +136,33 @@ export const groupDef = (g: NormGroupRow): NormGroupDef => ({
 });
 
 /**
- * A norm entry as the engine takes it (shared/spec/reconcile.md, "Norm forms"): mean/SD, a
- * regression equation or a conversion table; a composite's entries are keyed by `composite`.
+ * A norm entry as the engine takes it (shared/spec/reconcile.md, "Norm forms"; types in
+ * src/lib/scoring/norms.ts): mean/SD, a regression equation or a conversion table; a composite's
+ * entries are keyed by `composite`, its table rows by `sum`.
  */
-export type EngineNorm =
-	| ({ test: string } | { composite: string }) & { group: string } & (
-			| { mean: number; sd: number }
-			| { form: 'regression'; intercept: number; coefficients: Record<string, number>; sd: number }
-			| { form: 'table'; scale: 'scaled' | 'standard' | 't' | 'percentile'; rows: ({ raw: [number, number] } | { sum: [number, number] } & object)[] }
-	  );
-
-export function normDef(g: NormGroupRow): NormDef {
-	const key = g.subject === 'composite' ? { composite: g.test_code } : { test: g.test_code };
+export function normDef(g: NormGroupRow): AnyNormEntry {
 	const form = g.form ?? 'mean_sd';
+	const pct = (p: string | null | undefined) => (p !== null && p !== undefined && p !== '' ? { percentile: /^\d+$/.test(p) ? Number(p) : p } : {});
+	if (g.subject === 'composite') {
+		if (form === 'table')
+			return { composite: g.test_code, group: g.group_code, form: 'table', scale: g.scale!, rows: (g.rows ?? []).map((r) => ({ sum: [r.lo, r.hi] as const, score: r.score ?? undefined, ...pct(r.percentile) })) };
+		return { composite: g.test_code, group: g.group_code, mean: Number(g.mean), sd: Number(g.sd) };
+	}
 	if (form === 'regression')
-		return { ...key, group: g.group_code, form: 'regression', intercept: Number(g.intercept), coefficients: (g.coefficients ?? {}) as Record<string, number>, sd: Number(g.sd) } as unknown as NormDef;
+		return { test: g.test_code, group: g.group_code, form: 'regression', intercept: Number(g.intercept), coefficients: (g.coefficients ?? {}) as Record<string, number>, sd: Number(g.sd) };
 	if (form === 'table') {
-		const k = g.subject === 'composite' ? 'sum' : 'raw';
 		const percentileOnly = g.scale === 'percentile';
 		return {
-			...key,
+			test: g.test_code,
 			group: g.group_code,
 			form: 'table',
-			scale: g.scale,
-			rows: (g.rows ?? []).map((r) => ({
-				[k]: [r.lo, r.hi],
-				...(percentileOnly ? {} : { score: r.score }),
-				...(r.percentile !== null && r.percentile !== undefined && r.percentile !== '' ? { percentile: /^\d+$/.test(r.percentile) ? Number(r.percentile) : r.percentile } : {})
-			}))
-		} as unknown as NormDef;
+			scale: g.scale!,
+			rows: (g.rows ?? []).map((r) => ({ raw: [r.lo, r.hi] as const, ...(percentileOnly || r.score === null ? {} : { score: r.score }), ...pct(r.percentile) }))
+		};
 	}
-	return { ...key, group: g.group_code, mean: Number(g.mean), sd: Number(g.sd) } as NormDef;
+	return { test: g.test_code, group: g.group_code, mean: Number(g.mean), sd: Number(g.sd) };
 }
 
-/** A composite as the engine takes it. */
-export interface EngineComposite {
-	id: string;
-	parts: string[];
-	part_field: 'scaled' | 'standard' | 't';
-	reported: string[];
-}
 
 export interface CatalogComposite extends FrozenComposite {
 	position: number;
@@ -198,7 +186,7 @@ export async function protocolComposites(protocolId: number, t?: Tx): Promise<Ca
 	return rows.map((r) => ({ ...r.definition, position: r.position, groupId: r.norm_group_id, groupCode: r.norm_group_id ? codes.get(r.norm_group_id) ?? null : null }));
 }
 
-export const engineComposite = (c: FrozenComposite): EngineComposite => ({ id: c.code, parts: c.parts, part_field: c.part_field, reported: c.reported });
+export const engineComposite = (c: FrozenComposite): CompositeDef => ({ id: c.code, parts: c.parts, part_field: c.part_field, reported: c.reported as CompositeField[] });
 
 export interface NormSetRow {
 	id: number;

@@ -3,7 +3,8 @@ import { fail } from '@sveltejs/kit';
 import { superValidate, message, setError } from 'sveltekit-superforms';
 import { zod4 } from 'sveltekit-superforms/adapters';
 import { requireRole, idParam, notFound } from '$lib/server/guard';
-import { getNormSet, listNormGroups, listTests, updateNormSet, addNormGroup, deleteNormGroup, CatalogError } from '$lib/server/catalog';
+import { getNormSet, listNormGroups, listTests, updateNormSet, addNormGroup, deleteNormGroup, listAllComposites, CatalogError } from '$lib/server/catalog';
+import { validationContext } from '$lib/server/catalog/io';
 import { normGroupSchema, normSetSchema } from '$lib/catalog/schema';
 
 export const load: PageServerLoad = async (event) => {
@@ -11,14 +12,18 @@ export const load: PageServerLoad = async (event) => {
 	const id = idParam(event.params.id, 'This norm set');
 	const set = await getNormSet(id);
 	if (!set) notFound('This norm set');
-	const [groups, tests] = await Promise.all([listNormGroups(id), listTests()]);
+	const [groups, tests, ctx] = await Promise.all([listNormGroups(id), listTests(), validationContext()]);
+	const spans = ctx.spans ?? {};
+	const composites = await listAllComposites();
 	return {
 		set,
 		groups,
 		tests: tests.map((t) => ({ code: t.code, name: t.name })),
+		subjects: [...tests.map((t) => ({ code: t.code, name: t.name, composite: false })), ...composites.map((c) => ({ code: c.code, name: c.name, composite: true }))],
+		spans,
 		test: event.url.searchParams.get('test') ?? '',
 		metaForm: await superValidate(
-			{ code: set.code, name: set.name, source: set.source, version: set.version, borrow_days: set.age_rule.borrowDays === 'actual' ? 'actual' : '30', rounding: set.age_rule.rounding },
+			{ code: set.code, name: set.name, source: set.source, version: set.version, borrow_days: set.age_rule.borrowDays === 'actual' ? 'actual' : '30', rounding: set.age_rule.rounding, covariate_age: set.covariate_age },
 			zod4(normSetSchema),
 			{ id: 'meta' }
 		),
