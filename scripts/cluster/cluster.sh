@@ -30,6 +30,8 @@ export REMINDER_INTERVAL_MINUTES="${REMINDER_INTERVAL_MINUTES:-1440}" SIGNIN_MAX
 # the load test and the checks sign every account in several times from one address
 export SIGNIN_MAX_PER_ACCOUNT="${SIGNIN_MAX_PER_ACCOUNT:-1000}"
 export SESSION_IDLE_MINUTES="${SESSION_IDLE_MINUTES:-30}"
+# on a machine shared with other work, opening a connection through the balancer can take seconds
+export DB_CONNECT_TIMEOUT_MS="${DB_CONNECT_TIMEOUT_MS:-10000}"
 . "$(dirname "$0")/../lib/env.sh"
 . "$(dirname "$0")/../lib/setup.sh"
 cd "$ROOT_DIR" || exit 1

@@ -22,7 +22,7 @@ export function db(): Sequelize {
 			logging: false,
 			timezone: '+00:00',
 			pool: { max: config.db.pool, min: 0, idle: 10_000, acquire: 5_000 },
-			dialectOptions: { connectTimeout: 3_000, decimalAsNumber: true, bigIntAsNumber: true, dateStrings: ['DATE'] }
+			dialectOptions: { connectTimeout: Number(process.env.DB_CONNECT_TIMEOUT_MS ?? 3_000), decimalAsNumber: true, bigIntAsNumber: true, dateStrings: ['DATE'] }
 		});
 	}
 	return instance;
