@@ -244,6 +244,9 @@ up() {
 	# a fresh cluster each run: the figures are for a known start
 	rm -rf "$CL/db1" "$CL/db2" "$CL/db3" "$CL/uploads"
 	rm -f "$RUN_DIR"/*.log "$RUN_DIR"/*.err "$RUN_DIR"/*.first-join
+	# the production build (when sources changed) runs while the nodes join
+	( ensure_build ) &
+	local build_pid=$!
 	start_db 1 bootstrap
 	wait_synced 1 60 >/dev/null || die "db1 did not start (log $RUN_DIR/db1.err)"
 	cp "$RUN_DIR/db1.pid.launch" "$RUN_DIR/db1.pid" 2>/dev/null
@@ -266,7 +269,7 @@ up() {
 	node -e "fetch(process.argv[1], { method: 'DELETE' }).catch(() => {})" "http://127.0.0.1:$MAILFAKE_PORT/messages"
 	DB_PORT=$((B + 1)) MIGRATE_SOCKET="$(db_sock 1)" node_modules/.bin/tsx scripts/migrate.ts || die "migration failed"
 	DB_PORT=$((B + 1)) node_modules/.bin/tsx db/seeds/run.ts test >/dev/null || die "seeding failed"
-	ensure_build
+	wait "$build_pid" || die "build failed (log: $CROSSTALLY_DATA_DIR/build.log)"
 	start_dbcheck
 	start_haproxy
 	start_app_n 1
