@@ -307,6 +307,7 @@ async function sessionsAcross() {
 	out.signed_out_token_on_app1 = String(r1.status);
 	out.signed_out_token_on_app2 = String(r2.status);
 	out.signout_holds = r1.status === 401 && r2.status === 401;
+	if (!out.signout_holds) fail(`a token signed out on app2 still answers ${r1.status} on app1 and ${r2.status} on app2 (want 401 on both)`);
 	return out;
 }
 

@@ -13,7 +13,38 @@ import { run as reconcileRun } from '../../scripts/cli/reconcile';
 import { run as agreementRun } from '../../scripts/cli/agreement';
 import { validateCsvText } from '../../src/lib/catalog/parse';
 import { COLUMNS } from '../../src/lib/catalog/csv';
-import { specExample, wordRecall } from './scoring-fixtures';
+import { CATEGORY_NAMING, CATEGORY_NAMING_NORM, memoryIndex, specExample, tileBuild, wordRecall } from './scoring-fixtures';
+
+/** Documents with the other norm forms (issue 14): a table, a composite, a regression norm, a percentile-only table with bands. */
+function formsBases(): unknown[] {
+	const regression = {
+		tests: [CATEGORY_NAMING],
+		norms: [CATEGORY_NAMING_NORM, { test: 'category-naming', group: 'e12', mean: 40, sd: 10 }],
+		protocol: { group: 'all', covariates: { age: 46, education: 14 } },
+		passes: [
+			{ scorer: 'a', scores: { 'category-naming': { raw: 48, z: '1.01', standard: 115, t: 60, percentile: 84 } } },
+			{ scorer: 'b', scores: { 'category-naming': { raw: '47', z: '-1.01', standard: 112, t: 61 } } }
+		]
+	};
+	const bands = {
+		tests: [{ id: 'error-count', direction: 'lower_better', raw: { min: 0, max: 30, decimals: 0 }, reported: ['percentile'] }],
+		norms: [
+			{ test: 'error-count', group: 'a30', form: 'table', scale: 'percentile', rows: [{ raw: [0, 0], percentile: '>=75' }, { raw: [1, 2], percentile: '50-74' }, { raw: [3, 5], percentile: '25-49' }, { raw: [6, 30], percentile: '<=9' }] },
+			{ test: 'error-count', group: 'a40', form: 'table', scale: 'percentile', rows: [{ raw: [0, 1], percentile: '>=75' }, { raw: [2, 30], percentile: '<=74' }] }
+		],
+		protocol: { group: 'a30' },
+		passes: [
+			{ scorer: 'a', scores: { 'error-count': { raw: 4, percentile: '25 \u2013 49' } } },
+			{ scorer: 'b', scores: { 'error-count': { raw: 7, percentile: 30 } } }
+		]
+	};
+	return [
+		tileBuild({ scaled: 13, percentile: 95 }, { raw: 17, percentile: '90' }),
+		memoryIndex({ 'tile-build': { scaled: 13 }, 'memory-index': { sum: 26, standard: 117 } }, { 'word-recall': { raw: null }, 'memory-index': { sum: 72 } }),
+		regression,
+		bands
+	];
+}
 
 type Runner = typeof reconcileRun;
 export const FUZZ_RUNS = Number(process.env.FUZZ_RUNS ?? 1000);
@@ -93,7 +124,7 @@ describe('reconcile batch command: malformed input never crashes it', () => {
 	});
 
 	it('valid documents with one value replaced, removed or appended (single and in arrays, cut into chunks)', async () => {
-		const bases = [specExample(), wordRecall(), wordRecall({ raw: 92 }, { z: -1.07 })];
+		const bases = [specExample(), wordRecall(), wordRecall({ raw: 92 }, { z: -1.07 }), ...formsBases()];
 		await fc.assert(
 			fc.asyncProperty(
 				fc.nat(bases.length - 1), fc.nat(10_000), oddValue, fc.nat(2), fc.boolean(), fc.integer({ min: 1, max: 64 }),
@@ -105,12 +136,41 @@ describe('reconcile batch command: malformed input never crashes it', () => {
 					checkOutcome(await runWith(reconcileRun, chunks), doc);
 				}
 			),
+			{ numRuns: FUZZ_RUNS * 3 }
+		);
+	}, 240_000);
+
+	it('tables with rows moved, split, dropped or re-scored; composites with parts and norms shuffled', async () => {
+		const bases = formsBases() as { norms: { rows?: { raw?: number[]; sum?: number[]; score?: number; percentile?: unknown }[] }[]; composites?: { parts: string[] }[] }[];
+		await fc.assert(
+			fc.asyncProperty(
+				fc.nat(bases.length - 1), fc.nat(50), fc.nat(50), fc.integer({ min: -3, max: 3 }), fc.constantFrom('lo', 'hi', 'drop', 'dup', 'score', 'pct', 'swap', 'parts'), oddValue,
+				async (b, ni, ri, delta, op, odd) => {
+					const doc = structuredClone(bases[b]);
+					const norm = doc.norms[ni % doc.norms.length];
+					const rows = norm.rows;
+					if (op === 'parts' && doc.composites) doc.composites[0].parts = [...doc.composites[0].parts].reverse().concat(ri % 2 ? [JSON.stringify(odd) ?? 'x'] : []);
+					else if (rows && rows.length) {
+						const i = ri % rows.length;
+						const key = rows[i].raw ? 'raw' : 'sum';
+						const range = rows[i][key] as number[];
+						if (op === 'lo') range[0] += delta;
+						else if (op === 'hi') range[1] += delta / 10;
+						else if (op === 'drop') rows.splice(i, 1);
+						else if (op === 'dup') rows.splice(i, 0, structuredClone(rows[i]));
+						else if (op === 'score') rows[i].score = (rows[i].score ?? 10) + delta * 7;
+						else if (op === 'pct') rows[i].percentile = odd;
+						else if (op === 'swap' && i > 0) [rows[i - 1], rows[i]] = [rows[i], rows[i - 1]];
+					}
+					checkOutcome(await runWith(reconcileRun, [JSON.stringify(doc)]), doc);
+				}
+			),
 			{ numRuns: FUZZ_RUNS * 2 }
 		);
-	});
+	}, 240_000);
 
 	it('truncated and spliced documents, and multi-byte characters split across chunks', async () => {
-		const good = JSON.stringify([specExample(), wordRecall()]);
+		const good = JSON.stringify([specExample(), wordRecall(), ...formsBases()]);
 		await fc.assert(
 			fc.asyncProperty(fc.nat(good.length), fc.nat(good.length), fc.string({ unit: 'grapheme', maxLength: 8 }), async (a, b, insert) => {
 				const text = good.slice(0, Math.min(a, b)) + insert + good.slice(Math.max(a, b));

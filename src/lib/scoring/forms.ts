@@ -9,7 +9,6 @@ import {
 	SCALES,
 	referenceScore,
 	unroundedScore,
-	zFromRaw,
 	type BoundsOverride,
 	type DerivedField,
 	type Direction
@@ -86,27 +85,43 @@ export function tablePercentileRef(p: TablePercentile): Ref {
 
 // ---------------------------------------------------------------- scorers
 
-function zScorer(zOf: (x: number) => number, bounds: BoundsOverride | null | undefined): Scorer {
-	return {
-		kind: 'z',
-		at: (x) => ({ z: zOf(x), row: -1 }),
-		ref: (p, f) => referenceScore(f, p.z as number, bounds),
-		unrounded: (p, f) => unroundedScore(f, p.z as number),
-		flipped: (p, f) => referenceScore(f, -(p.z as number), bounds),
-		adjacent: () => []
-	};
+/** Mean/SD and regression norms: z = ±(x − center) / sd. A class, so a protocol's scorers share their methods. */
+class ZScorer implements Scorer {
+	readonly kind = 'z' as const;
+	constructor(
+		private readonly center: number,
+		private readonly sd: number,
+		private readonly reversed: boolean,
+		private readonly bounds: BoundsOverride | null | undefined
+	) {}
+	at(x: number): Point {
+		const z = (x - this.center) / this.sd;
+		return { z: this.reversed ? -z : z, row: -1 };
+	}
+	ref(p: Point, f: DerivedField): Ref {
+		return referenceScore(f, p.z as number, this.bounds);
+	}
+	unrounded(p: Point, f: DerivedField): number {
+		return unroundedScore(f, p.z as number);
+	}
+	flipped(p: Point, f: DerivedField): Ref {
+		return referenceScore(f, -(p.z as number), this.bounds);
+	}
+	adjacent(): Ref[] {
+		return [];
+	}
 }
 
 interface TableLike {
 	scale: TableScale;
-	rows: readonly { score?: number; percentile?: TablePercentile }[];
+	rows: readonly { raw?: readonly [number, number]; sum?: readonly [number, number]; score?: number; percentile?: TablePercentile }[];
 }
 
 /**
- * A table scorer. `keys[i]` is row i's [lo, hi] as integers at the given precision (10^decimals);
- * rows ascend and (after validation) cover the range once.
+ * A table scorer over rows keyed by `key` (`raw` or `sum`) at a precision of 10^−decimals. Rows ascend
+ * and (after validation) cover the range once; a lookup is a binary search comparing at that precision.
  */
-function tableScorer(table: TableLike, keys: readonly (readonly [number, number])[], decimals: number, bounds: BoundsOverride | null | undefined): Scorer {
+function tableScorer(table: TableLike, key: 'raw' | 'sum', decimals: number, bounds: BoundsOverride | null | undefined): Scorer {
 	const f10 = 10 ** decimals;
 	const scale = table.scale;
 	const rows = table.rows;
@@ -127,10 +142,10 @@ function tableScorer(table: TableLike, keys: readonly (readonly [number, number]
 		at(x) {
 			const k = Math.round(x * f10);
 			let lo = 0;
-			let hi = keys.length - 1;
+			let hi = rows.length - 1;
 			while (lo < hi) {
 				const mid = (lo + hi + 1) >> 1;
-				if (keys[mid][0] <= k) lo = mid;
+				if (Math.round((rows[mid][key] as readonly [number, number])[0] * f10) <= k) lo = mid;
 				else hi = mid - 1;
 			}
 			return pointOf(lo);
@@ -154,12 +169,6 @@ function tableScorer(table: TableLike, keys: readonly (readonly [number, number]
 			return out;
 		}
 	};
-}
-
-/** Integer keys of table rows at a precision: [R(lo·10^d), R(hi·10^d)]. */
-export function rowKeys(ranges: readonly (readonly [number, number])[], decimals: number): [number, number][] {
-	const f = 10 ** decimals;
-	return ranges.map(([lo, hi]) => [Math.round(lo * f), Math.round(hi * f)]);
 }
 
 /** predicted = intercept + Σ coefficient · covariate; throws (naming the covariate) when one is missing. */
@@ -188,22 +197,18 @@ export function testScorer(
 	const dir = test.direction;
 	switch (norm.form) {
 		case 'regression': {
-			const predicted = regressionPredicted(norm.intercept, norm.coefficients, covariates);
-			const sd = norm.sd;
-			return zScorer((x) => (dir === 'lower_better' ? -(x - predicted) / sd : (x - predicted) / sd), test.bounds);
+			return new ZScorer(regressionPredicted(norm.intercept, norm.coefficients, covariates), norm.sd, dir === 'lower_better', test.bounds);
 		}
 		case 'table':
-			return tableScorer(norm, rowKeys(norm.rows.map((r) => r.raw), test.raw.decimals), test.raw.decimals, test.bounds);
-		default: {
-			const { mean, sd } = norm;
-			return zScorer((x) => zFromRaw(x, mean, sd, dir), test.bounds);
-		}
+			return tableScorer(norm, 'raw', test.raw.decimals, test.bounds);
+		default:
+			// z = (raw − mean)/sd, reversed for lower_better: the same arithmetic as zFromRaw
+			return new ZScorer(norm.mean, norm.sd, dir === 'lower_better', test.bounds);
 	}
 }
 
 /** The scorer of a composite's norm: of the sum, higher sums better, default scale bounds. */
 export function compositeScorer(norm: CompositeNormEntry): Scorer {
-	if (norm.form === 'table') return tableScorer(norm, rowKeys(norm.rows.map((r) => r.sum), 0), 0, null);
-	const { mean, sd } = norm;
-	return zScorer((x) => (x - mean) / sd, null);
+	if (norm.form === 'table') return tableScorer(norm, 'sum', 0, null);
+	return new ZScorer(norm.mean, norm.sd, false, null);
 }

@@ -56,7 +56,8 @@ export interface TestDef {
 /** A mean/SD norm (the original form; `form` absent or `"mean_sd"`). See ./norms for all forms. */
 export type NormDef = MeanSdNorm;
 
-export type FieldValues = Partial<Record<Field, Entered>>;
+/** One test's (or composite's) values in a pass: raw and derived fields for a test, `sum` and derived fields for a composite. */
+export type FieldValues = Partial<Record<Field | 'sum', Entered>>;
 
 export interface PassInput {
 	scorer: string;
@@ -361,24 +362,14 @@ function compareField(
 
 // ---------------------------------------------------------------- norms
 
-function indexBy<T>(items: readonly T[], key: (t: T) => string | undefined): Map<string, T[]> {
-	const m = new Map<string, T[]>();
-	for (const it of items) {
-		const k = key(it);
-		if (k === undefined) continue;
-		const list = m.get(k);
-		if (list) list.push(it);
-		else m.set(k, [it]);
-	}
-	return m;
-}
-
-function scorerOrThrow(make: () => Scorer, normIndex: number): Scorer {
+/** The scorer of a test's norm; a missing covariate becomes a ReconcileInputError naming the norm. */
+function makeTestScorer(test: TestDef, norm: NormEntry, covariates: Covariates | null | undefined, norms: readonly AnyNormEntry[] | null): Scorer {
 	try {
-		return make();
+		return testScorer(test, norm, covariates);
 	} catch (e) {
 		if (e instanceof MissingCovariate) {
-			throw new ReconcileInputError(e.message, ['norms', normIndex, 'coefficients', e.covariate]);
+			const i = norms ? norms.indexOf(norm) : -1;
+			throw new ReconcileInputError(e.message, i >= 0 ? ['norms', i, 'coefficients', e.covariate] : ['protocol', 'covariates', e.covariate]);
 		}
 		throw e;
 	}
@@ -410,7 +401,7 @@ export function testReferences(
 ): Partial<Record<DerivedField, Reference>> | null {
 	const n = parseEntered(raw, 'raw');
 	if (n === null || Number.isNaN(n) || !rawInRange(n, test.raw)) return null;
-	const sc = scorerOrThrow(() => testScorer(test, norm, covariates), -1);
+	const sc = makeTestScorer(test, norm, covariates, null);
 	const pt = sc.at(n);
 	const out: Partial<Record<DerivedField, Reference>> = {};
 	for (const f of DERIVED_FIELDS) {
@@ -461,6 +452,104 @@ interface TestState {
 	pt2: Point | null;
 }
 
+/** A raw pair whose values differ (rule 1). */
+function rawPair(id: string, v1: Entered, n1: number | null, ok1: boolean, v2: Entered, n2: number | null, ok2: boolean): Discrepancy {
+	const oor1 = n1 !== null && !ok1;
+	const oor2 = n2 !== null && !ok2;
+	const pass: PassName = ok1 !== ok2 ? (ok1 ? 'second' : 'first') : 'both';
+	const flaggedOor = pass === 'first' ? oor1 : pass === 'second' ? oor2 : oor1 || oor2;
+	const [fv, fn, ov, on] = pass === 'second' ? [v2, n2, v1, n1] : [v1, n1, v2, n2];
+	return mk({ test: id }, 'raw', pass, classifyPair(fv, fn, ov, on, flaggedOor), fn === null ? null : (fv as number | string), on === null ? null : (ov as number | string), null, null, flaggedOor);
+}
+
+/**
+ * One test's derived fields that did not agree on the fast path: everything the kind rules need,
+ * built once per test and only when needed.
+ */
+class TestFields {
+	private readonly subj: Subject;
+	private readonly pctOnly: boolean;
+	private readonly rawsDiffer: boolean;
+	private readonly own1: number | null;
+	private readonly own2: number | null;
+	private readonly pair: { ownRaw: readonly [number | null, number | null]; restricted: boolean };
+	private others: { sc: Scorer; pt1: Point | null; pt2: Point | null }[] | undefined;
+	private field: DerivedField = 'z';
+
+	constructor(
+		private readonly test: TestDef,
+		private readonly scorer: Scorer,
+		private readonly norm: NormEntry,
+		private readonly all: readonly NormEntry[],
+		private readonly covariates: Covariates | null | undefined,
+		private readonly norms: readonly AnyNormEntry[],
+		n1: number | null,
+		n2: number | null,
+		private readonly pt1: Point | null,
+		private readonly pt2: Point | null
+	) {
+		this.subj = { test: test.id };
+		this.pctOnly = scorer.kind === 'percentile' || isPercentileOnly(all);
+		this.rawsDiffer = pt1 !== null && pt2 !== null && pt1 !== pt2;
+		this.own1 = n1 !== null && !Number.isNaN(n1) ? n1 : null;
+		this.own2 = n2 !== null && !Number.isNaN(n2) ? n2 : null;
+		this.pair = { ownRaw: [this.own1, this.own2], restricted: this.pctOnly };
+	}
+
+	private otherGroups(): { sc: Scorer; pt1: Point | null; pt2: Point | null }[] {
+		if (!this.others) {
+			this.others = [];
+			for (const n of this.all) {
+				if (n === this.norm) continue;
+				const sc = makeTestScorer(this.test, n, this.covariates, this.norms);
+				const at = (raw: number | null) => (raw !== null && rawInRange(raw, this.test.raw) ? sc.at(raw) : null);
+				this.others.push({ sc, pt1: this.pt1 ? at(this.own1) : null, pt2: this.pt2 ? at(this.own2) : null });
+			}
+		}
+		return this.others;
+	}
+
+	private readonly oor = (x: Val): boolean =>
+		x.p !== null && x.band === null && (Number.isNaN(x.p) || !inBounds(this.field, x.p, this.test.bounds));
+
+	private judgement(which: 1 | 2, r: Reference, alt: Reference | null): Judgement {
+		const field = this.field;
+		const pt = (which === 1 ? this.pt1 : this.pt2) as Point;
+		const scorer = this.scorer;
+		return {
+			field,
+			r,
+			u: scorer.unrounded(pt, field),
+			alt,
+			ownRaw: which === 1 ? this.own1 : this.own2,
+			restricted: this.pctOnly,
+			flipped: () => scorer.flipped(pt, field),
+			otherGroups: () =>
+				this.otherGroups().map((o) => {
+					const p = which === 1 ? o.pt1 : o.pt2;
+					return p ? o.sc.ref(p, field) : undefined;
+				}),
+			adjacent: () => scorer.adjacent(pt, field),
+			otherScales: () => DERIVED_FIELDS.filter((f) => f !== field).map((f) => scorer.ref(pt, f)),
+			outOfRange: this.oor
+		};
+	}
+
+	private readonly j1 = (r: Reference, alt: Reference | null) => this.judgement(1, r, alt);
+	private readonly j2 = (r: Reference, alt: Reference | null) => this.judgement(2, r, alt);
+
+	compare(out: Discrepancy[], field: DerivedField, a1: Entered, a2: Entered, r1: Reference | null): void {
+		this.field = field;
+		const bands = this.pctOnly && field === 'percentile';
+		const x1 = readVal(a1, field, bands);
+		const x2 = readVal(a2, field, bands);
+		const pt2 = this.pt2;
+		const r2 = pt2 ? (pt2 === this.pt1 ? r1 : (this.scorer.ref(pt2, field) ?? null)) : null;
+		const d = this.rawsDiffer;
+		compareField(out, this.subj, field, x1, x2, r1, r2, d ? r2 : null, d ? r1 : null, this.j1, this.j2, this.oor, this.pair);
+	}
+}
+
 /**
  * Reconcile one protocol. Throws ReconcileInputError when a test or composite has no norms for its
  * group, a regression covariate is missing, or there are not exactly two passes; validate batch input
@@ -471,11 +560,16 @@ export function reconcile(input: ReconcileInput): ReconcileResult {
 	const [first, second] = input.passes;
 	const protocol = input.protocol;
 	const covariates = protocol.covariates;
-	const normIndex = new Map<AnyNormEntry, number>();
-	input.norms.forEach((n, i) => normIndex.set(n, i));
-	const testNorms = indexBy(input.norms, (n) => (isCompositeNorm(n) ? undefined : n.test)) as Map<string, NormEntry[]>;
+	const testNorms = new Map<string, NormEntry[]>();
+	for (const n of input.norms) {
+		if (isCompositeNorm(n)) continue;
+		const list = testNorms.get(n.test);
+		if (list) list.push(n);
+		else testNorms.set(n.test, [n]);
+	}
 	const out: Discrepancy[] = [];
-	const states = new Map<string, TestState>();
+	const composites = input.composites ?? [];
+	const states = composites.length > 0 ? new Map<string, TestState>() : null;
 	let fieldsCompared = 0;
 
 	for (let ti = 0; ti < input.tests.length; ti++) {
@@ -487,8 +581,7 @@ export function reconcile(input: ReconcileInput): ReconcileResult {
 		if (!norm) {
 			throw new ReconcileInputError(`no norms for test ${JSON.stringify(test.id)} in group ${JSON.stringify(groupId)}`, ['protocol', 'group']);
 		}
-		const theNorm = norm;
-		const scorer = scorerOrThrow(() => testScorer(test, theNorm, covariates), normIndex.get(theNorm) ?? -1);
+		const scorer = makeTestScorer(test, norm, covariates, input.norms);
 		const s1 = first.scores[test.id] ?? EMPTY;
 		const s2 = second.scores[test.id] ?? EMPTY;
 		const reported = test.reported;
@@ -503,83 +596,48 @@ export function reconcile(input: ReconcileInput): ReconcileResult {
 		const ok2 = n2 !== null && !Number.isNaN(n2) && rawInRange(n2, test.raw);
 		const rawSame =
 			n1 !== null && n2 !== null && (Number.isNaN(n1) || Number.isNaN(n2) ? writtenForm(v1) === writtenForm(v2) : eq(n1, n2));
-		const subj: Subject = { test: test.id };
 		if (n1 === null && n2 === null) {
-			out.push(mk(subj, 'raw', 'both', 'missing', null, null, null, null, false));
+			out.push(mk({ test: test.id }, 'raw', 'both', 'missing', null, null, null, null, false));
 		} else if (rawSame) {
-			if (!ok1) out.push(mk(subj, 'raw', 'both', 'out_of_range', v1 as number | string, v2 as number | string, null, null, true));
+			if (!ok1) out.push(mk({ test: test.id }, 'raw', 'both', 'out_of_range', v1 as number | string, v2 as number | string, null, null, true));
 		} else {
-			const oor1 = n1 !== null && !ok1;
-			const oor2 = n2 !== null && !ok2;
-			const pass: PassName = ok1 !== ok2 ? (ok1 ? 'second' : 'first') : 'both';
-			const flaggedOor = pass === 'first' ? oor1 : pass === 'second' ? oor2 : oor1 || oor2;
-			const [fv, fn, ov, on] = pass === 'second' ? [v2, n2, v1, n1] : [v1, n1, v2, n2];
-			out.push(mk(subj, 'raw', pass, classifyPair(fv, fn, ov, on, flaggedOor), fn === null ? null : (fv as number | string), on === null ? null : (ov as number | string), null, null, flaggedOor));
+			out.push(rawPair(test.id, v1, n1, ok1, v2, n2, ok2));
 		}
 
 		const pt1 = ok1 ? scorer.at(n1 as number) : null;
 		const pt2 = ok2 ? (ok1 && rawSame ? pt1 : scorer.at(n2 as number)) : null;
-		states.set(test.id, { test, scorer, pt1, pt2 });
+		if (states) states.set(test.id, { test, scorer, pt1, pt2 });
 		if (reported.length === 0) continue;
 
-		// ---- derived fields
-		const bounds = test.bounds;
-		const pctOnly = scorer.kind === 'percentile' || isPercentileOnly(all);
-		const rawsDiffer = pt1 !== null && pt2 !== null && pt1 !== pt2;
-		const own1 = n1 !== null && !Number.isNaN(n1) ? n1 : null;
-		const own2 = n2 !== null && !Number.isNaN(n2) ? n2 : null;
-		let others: { sc: Scorer; pt1: Point | null; pt2: Point | null }[] | undefined;
-		const otherGroups = () =>
-			(others ??= all
-				.filter((n) => n !== theNorm)
-				.map((n) => {
-					const sc = scorerOrThrow(() => testScorer(test, n, covariates), normIndex.get(n) ?? -1);
-					return { sc, pt1: ok1 ? sc.at(n1 as number) : null, pt2: ok2 ? sc.at(n2 as number) : null };
-				}));
-		const oor = (x: Val): boolean => x.p !== null && x.band === null && (Number.isNaN(x.p) || !inBounds(fieldOf, x.p, bounds));
-		let fieldOf: DerivedField = 'z';
-		const judge = (pt: Point, ownRaw: number | null, which: 1 | 2) => (r: Reference, alt: Reference | null): Judgement => {
-			const field = fieldOf;
-			return {
-				field,
-				r,
-				u: scorer.unrounded(pt, field),
-				alt,
-				ownRaw,
-				restricted: pctOnly,
-				flipped: () => scorer.flipped(pt, field),
-				otherGroups: () => otherGroups().map((o) => { const p = which === 1 ? o.pt1 : o.pt2; return p ? o.sc.ref(p, field) : undefined; }),
-				adjacent: () => scorer.adjacent(pt, field),
-				otherScales: () => DERIVED_FIELDS.filter((f) => f !== field).map((f) => scorer.ref(pt, f)),
-				outOfRange: oor
-			};
-		};
-		const pair = { ownRaw: [own1, own2] as const, restricted: pctOnly };
-
+		// ---- derived fields: a fast path for agreeing values, the rest through TestFields
+		let slow: TestFields | undefined;
 		for (const field of DERIVED_FIELDS) {
 			if (!reported.includes(field)) continue;
-			fieldOf = field;
-			const bands = pctOnly && field === 'percentile';
-			const x1 = readVal(s1[field], field, bands);
-			const x2 = readVal(s2[field], field, bands);
+			const a1 = s1[field];
+			const a2 = s2[field];
 			const r1 = pt1 ? (scorer.ref(pt1, field) ?? null) : null;
-			const r2 = pt2 ? (pt2 === pt1 ? r1 : (scorer.ref(pt2, field) ?? null)) : null;
-			compareField(
-				out, subj, field, x1, x2, r1, r2,
-				rawsDiffer ? r2 : null,
-				rawsDiffer ? r1 : null,
-				judge(pt1 as Point, own1, 1),
-				judge(pt2 as Point, own2, 2),
-				oor,
-				pair
-			);
+			if (pt2 === pt1 && typeof r1 === 'number') {
+				// one reference for both passes, and (mostly) both values agree with it
+				const p1 = parseEntered(a1, field);
+				if (p1 !== null && eq(p1, r1)) {
+					const p2 = parseEntered(a2, field);
+					if (p2 !== null && eq(p2, r1)) continue;
+				}
+			}
+			slow ??= new TestFields(test, scorer, norm, all, covariates, input.norms, n1, n2, pt1, pt2);
+			slow.compare(out, field, a1, a2, r1);
 		}
 	}
 
 	// ---- composites, after all the tests
-	const composites = input.composites ?? [];
-	if (composites.length > 0) {
-		const compNorms = indexBy(input.norms, (n) => (isCompositeNorm(n) ? n.composite : undefined)) as Map<string, CompositeNormEntry[]>;
+	if (states) {
+		const compNorms = new Map<string, CompositeNormEntry[]>();
+		for (const n of input.norms) {
+			if (!isCompositeNorm(n)) continue;
+			const list = compNorms.get(n.composite);
+			if (list) list.push(n);
+			else compNorms.set(n.composite, [n]);
+		}
 		for (const c of composites) {
 			const groupId = protocol.groups?.[c.id] ?? protocol.group;
 			const all = compNorms.get(c.id) ?? [];

@@ -70,7 +70,9 @@ export const ACCESS: Record<string, RouteRules> = {
 
 	// Audit
 	'/audit': { GET: lead },
-	'/api/v1/audit/[report]': { GET: lead }
+	'/api/v1/audit/[report]': { GET: lead },
+	// risk-based verification: per-scorer standing and risk; POST ?/policy sets a battery's policy
+	'/audit/verification': { GET: lead, POST: lead }
 };
 
 export function ruleFor(routeId: string, method: string): Rule | undefined {

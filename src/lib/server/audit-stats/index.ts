@@ -2,7 +2,7 @@
  * The audit reports behind /api/v1/audit/[report]: each answers one table (columns + rows), so
  * every table on the Audit screen exports to CSV the same way.
  */
-import Papa from 'papaparse';
+import { writeCsv } from '../../csv';
 import { select } from '../db';
 import { KINDS } from '../../scoring/kinds';
 import { KOO_LI_2016, LANDIS_KOCH_1977, ICC_FORMS } from '../../scoring/agreement';
@@ -198,9 +198,8 @@ export async function runReport(report: ReportName, filters: AuditFilters): Prom
 }
 
 /**
- * The report's table as CSV: a header of column labels, one line per row, numbers as numbers.
- * Text cells starting with = + - @ (or tab / carriage return) are prefixed with ' so a spreadsheet
- * does not run them as formulae (papaparse escapeFormulae); the file starts with a UTF-8 BOM.
+ * The report's table as CSV: a header of column labels, one line per row, numbers as numbers,
+ * through the one CSV writer (src/lib/csv.ts: formula-like text escaped); a UTF-8 BOM first.
  */
 export function toCsv(result: ReportResult): string {
 	const data = result.rows.map((row) =>
@@ -211,5 +210,9 @@ export function toCsv(result: ReportResult): string {
 			return String(v);
 		})
 	);
-	return '\ufeff' + Papa.unparse({ fields: result.columns.map((c) => c.label), data }, { escapeFormulae: true, newline: '\r\n' });
+	return writeCsv(
+		result.columns.map((c) => c.label),
+		data,
+		{ bom: true }
+	);
 }

@@ -6,7 +6,7 @@
  */
 import { exec, select, type Tx } from '../db';
 
-export type MailKind = 'invite' | 'reset' | 'review_first' | 'review_reminder';
+export type MailKind = 'invite' | 'reset' | 'review_first' | 'review_reminder' | 'verification_full';
 
 export interface OutboxRow {
 	id: number;

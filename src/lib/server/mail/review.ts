@@ -469,7 +469,7 @@ export async function listProtocolMail(protocolId: number): Promise<ProtocolMail
 		reminder_no: number | null;
 		recipients: string;
 		subject: string;
-		status: 'sending' | 'sent';
+		status: 'claimed' | 'sending' | 'sent' | 'uncertain';
 		created_at: Date;
 		sent_at: Date | null;
 	}>(
@@ -496,7 +496,7 @@ export async function listProtocolMail(protocolId: number): Promise<ProtocolMail
 			to,
 			cc,
 			subject: r.subject,
-			status: r.status === 'sent' ? 'sent' : stale ? 'uncertain' : 'sending',
+			status: r.status === 'sent' ? 'sent' : r.status === 'uncertain' || stale ? 'uncertain' : 'sending',
 			sentAt: r.sent_at,
 			createdAt: r.created_at
 		};

@@ -13,6 +13,7 @@ import { formatReference, type Field } from '../../scoring/scales';
 import { conflict, invalid, notFound, WorkflowError } from './errors';
 import { notifyReviewStarted } from '../mail/review';
 import { recordSubmission } from '../audit-stats/record';
+import { decideAtFirstSubmit, reconcileSinglePass, afterReconcile, guardSecondPass } from '../verification';
 
 export type Which = 'first' | 'second';
 export type Scores = Record<string, Partial<Record<Field, string | null>>>;
@@ -110,6 +111,7 @@ export async function saveDraft(protocolId: number, user: Actor, body: unknown) 
 		const pass = await passRow(p, which, t, true);
 		if (pass.scorer_id !== user.id) throw notFound('This pass');
 		if (pass.status === 'submitted') throw conflict('This pass is submitted and locked; the draft was not changed.');
+		if (which === 'second') await guardSecondPass(p, t);
 		if (pass.draft_version !== parsed.data.draftVersion) {
 			throw new WorkflowError(409, 'This pass was saved from another tab or device since you opened it. Reload to see the latest draft.', 'draftVersion', 'stale_draft');
 		}
@@ -194,7 +196,7 @@ async function moveProtocol(p: ProtocolRow, to: ProtocolRow['status'], t: Tx) {
 	if (moved.affected !== 1) throw new WorkflowError(409, 'This protocol changed while the pass was being submitted (another submission got there first). Nothing was changed; reload to see its state.', undefined, 'already_submitted');
 }
 
-export type SubmitResult = { which: Which; status: ProtocolRow['status']; discrepancies: number | null };
+export type SubmitResult = { which: Which; status: ProtocolRow['status']; discrepancies: number | null; singlePass?: boolean };
 
 export async function submitPass(protocolId: number, user: Actor, body: unknown): Promise<SubmitResult> {
 	const version = z.object({ draftVersion: z.number().int().min(0) }).safeParse(body);
@@ -209,6 +211,7 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 		if (pass.draft_version !== version.data.draftVersion) {
 			throw new WorkflowError(409, 'This pass changed in another tab since you opened it. Reload, check the values and submit again.', 'draftVersion', 'stale_draft');
 		}
+		if (which === 'second') await guardSecondPass(p, t);
 		if (which === 'second' && p.status === 'draft') {
 			throw conflict('The first pass has not been submitted yet. Your draft is saved; submit once the first scorer has submitted.');
 		}
@@ -225,6 +228,16 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 		await audit({ actorId: user.id, entity: 'pass', entityId: pass.id, protocolId: p.id, action: `submit_${which}`, newValue: { round: p.round, fields: pass.fields_entered, scores: jsonValue(pass.scores) } }, t);
 
 		if (which === 'first') {
+			// Risk-based verification: the draw is made here, at the submission, never before.
+			const scores = jsonValue<Scores>(pass.scores) ?? {};
+			const outcome = await decideAtFirstSubmit(p, scores, pass.fields_entered, user, t);
+			if (outcome === 'not_drawn') {
+				const single = await reconcileSinglePass(p, { id: pass.id, scorer_id: pass.scorer_id, fields_entered: pass.fields_entered, scores }, user, t);
+				await moveProtocol(p, 'in_review', t);
+				await audit({ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'reconcile', oldValue: p.status, newValue: { status: 'in_review', round: p.round, single_pass: true, ...single.summary } }, t);
+				await notifyReviewStarted(p.id, p.round, p.reviewer_id, t);
+				return { which, status: 'in_review' as const, discrepancies: single.discrepancies.length, singlePass: true };
+			}
 			await moveProtocol(p, 'awaiting_second', t);
 			await audit({ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'status', oldValue: p.status, newValue: 'awaiting_second' }, t);
 			return { which, status: 'awaiting_second' as const, discrepancies: null };
@@ -247,6 +260,7 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 			t
 		);
 		await recordSubmission(p.id, p.round, t);
+		await afterReconcile(p, t);
 		await notifyReviewStarted(p.id, p.round, p.reviewer_id, t);
 		return { which, status: 'in_review' as const, discrepancies: result.discrepancies.length };
 	});

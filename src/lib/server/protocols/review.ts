@@ -14,6 +14,7 @@ import { explainKind, type Kind } from '../../scoring/kinds';
 import { checkField } from '../../scoring/reconcile';
 import type { Field } from '../../scoring/scales';
 import { recordResolution } from '../audit-stats/record';
+import { afterResolution, isSinglePass } from '../verification';
 import type { Scores } from './passes';
 
 export interface DiscrepancyRow {
@@ -63,6 +64,7 @@ export async function reviewView(protocolId: number, user: Actor) {
 	return {
 		protocol: p,
 		canResolve: duties.includes('reviewer') && p.status === 'in_review',
+		singlePass: await isSinglePass(p.id),
 		tests: tests.map((x) => ({ code: x.code, name: x.name, domain: x.domainName, group: x.groupCode, raw: x.raw, bounds: x.bounds, reported: x.reported })),
 		discrepancies: rows.map((d) => {
 			const v = passValues(d);
@@ -158,6 +160,7 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 			t
 		);
 		await recordResolution(d.id, t);
+		await afterResolution(d.id, t);
 		const open = await selectOne<{ n: number }>('SELECT COUNT(*) AS n FROM discrepancies WHERE protocol_id = :p AND round = :r AND resolved_at IS NULL', { p: p.id, r: p.round }, t);
 		return { id: d.id, resolution: choice, resolvedValue: kept, note: note || null, lockVersion: d.lock_version + 1, open: Number(open?.n ?? 0) };
 	});

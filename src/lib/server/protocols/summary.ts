@@ -4,9 +4,11 @@
  * one common z axis for the bell curve.
  */
 import { selectOne } from '../db';
+import { writeCsv } from '../../csv';
 import { protocolFor, type Actor } from './service';
 import { protocolTests, normGroups, normSet } from './catalog-read';
 import { finalScores } from './review';
+import { isSinglePass, SINGLE_PASS_NOTE } from '../verification';
 import { notFound, WorkflowError } from './errors';
 import { labelFor, AACN_2020 } from '../../scoring/labels';
 import { confidenceInterval } from '../../scoring/reliability';
@@ -85,7 +87,7 @@ export async function protocolSummary(protocolId: number, user: Actor) {
 	});
 	const placed = rows.filter((r) => r.z !== null);
 	return {
-		protocol: { id: p.id, code: ex!.code, testDate: p.test_date, age: p.age_text, battery: battery!.name, round: p.round, verifiedAt: p.verified_at, verifiedBy: signer?.name ?? null },
+		protocol: { id: p.id, code: ex!.code, testDate: p.test_date, age: p.age_text, battery: battery!.name, round: p.round, verifiedAt: p.verified_at, verifiedBy: signer?.name ?? null, singlePass: await isSinglePass(p.id) },
 		normSet: set ? { name: set.name, version: set.version, source: set.source } : null,
 		rows,
 		lowScores: { below: placed.filter((r) => (r.z as number) < -1).length, given: placed.length },
@@ -93,24 +95,35 @@ export async function protocolSummary(protocolId: number, user: Actor) {
 	};
 }
 
-/** The summary as CSV (one row per test), with formula-like cells neutralised. */
+/** The summary as CSV (one row per test) through the one CSV writer (src/lib/csv.ts), norms and caution as comment lines. */
 export function summaryCsv(s: Awaited<ReturnType<typeof protocolSummary>>): string {
-	const cell = (v: unknown) => {
-		let x = v === null || v === undefined ? '' : String(v);
-		if (/^[=+\-@\t\r]/.test(x) && !/^-?\d/.test(x)) x = `'${x}`;
-		return /[",\n]/.test(x) ? `"${x.replace(/"/g, '""')}"` : x;
-	};
-	const head = ['examinee_code', 'test_date', 'age', 'domain', 'test', 'norm_group', 'raw', 'z', 'standard', 'scaled', 't', 'percentile', 'percentile_recomputed', 'label', 'ci95_lower', 'ci95_upper', 'ci_scale'];
-	const lines = [head.join(',')];
-	for (const r of s.rows) {
-		lines.push(
-			[s.protocol.code, s.protocol.testDate, s.protocol.age, r.domain, r.name, r.group, r.raw, r.values.z, r.values.standard, r.values.scaled, r.values.t, r.percentile?.value, r.percentile?.recomputed ? 'yes' : 'no', r.label?.text, r.ci?.lower, r.ci?.upper, r.ci?.field]
-				.map(cell)
-				.join(',')
-		);
-	}
-	lines.push('');
-	lines.push(`# Norms: ${s.normSet ? `${s.normSet.name} (${s.normSet.version}). ${s.normSet.source}` : 'unknown'}`.replace(/\n/g, ' '));
-	lines.push('# Scores support, and never replace, the judgement of a licensed clinician.');
-	return lines.join('\r\n') + '\r\n';
+	const head = ['examinee_code', 'test_date', 'age', 'domain', 'test', 'norm_group', 'raw', 'z', 'standard', 'scaled', 't', 'percentile', 'percentile_recomputed', 'label', 'ci95_lower', 'ci95_upper', 'ci_scale', 'entry'];
+	const entry = s.protocol.singlePass ? 'single pass' : 'double entry';
+	const rows = s.rows.map((r) => [
+		s.protocol.code,
+		s.protocol.testDate,
+		s.protocol.age,
+		r.domain,
+		r.name,
+		r.group,
+		r.raw,
+		r.values.z,
+		r.values.standard,
+		r.values.scaled,
+		r.values.t,
+		r.percentile?.value,
+		r.percentile?.recomputed ? 'yes' : 'no',
+		r.label?.text,
+		r.ci?.lower,
+		r.ci?.upper,
+		r.ci?.field,
+		entry
+	]);
+	return writeCsv(head, rows, {
+		comments: [
+			...(s.protocol.singlePass ? [`# ${SINGLE_PASS_NOTE}`] : []),
+			`# Norms: ${s.normSet ? `${s.normSet.name} (${s.normSet.version}). ${s.normSet.source}` : 'unknown'}`,
+			'# Scores support, and never replace, the judgement of a licensed clinician.'
+		]
+	});
 }

@@ -5,6 +5,7 @@ import { requireUser, requireRole, idParam } from '$lib/server/guard';
 import { protocolView, protocolHistoryFor, reassign, planGroups } from '$lib/server/protocols/service';
 import { addAttachment } from '$lib/server/protocols/attachments';
 import { reopen } from '$lib/server/protocols/review';
+import { requireSecondPass } from '$lib/server/verification';
 import { usersWithRole } from '$lib/server/users';
 import { listProtocolMail, notifyReviewerChanged } from '$lib/server/mail/review';
 import { selectOne } from '$lib/server/db';
@@ -67,6 +68,16 @@ export const actions: Actions = {
 			return { action: 'reassign', ok: true };
 		} catch (e) {
 			return actionError(e, 'reassign');
+		}
+	},
+	requireSecond: async (event) => {
+		const user = requireRole(event, 'lead');
+		const reason = (await event.request.formData()).get('reason');
+		try {
+			await requireSecondPass(idParam(event.params.id), user, reason);
+			return { action: 'requireSecond', ok: true };
+		} catch (e) {
+			return actionError(e, 'requireSecond');
 		}
 	},
 	reopen: async (event) => {

@@ -15,6 +15,7 @@ export const load: PageServerLoad = async (event) => {
 			protocol: { id, code: view.examinee.code, status: review.protocol.status, round: review.protocol.round, lockVersion: review.protocol.lock_version, battery: view.battery.name, testDate: review.protocol.test_date, age: review.protocol.age_text },
 			assignments: view.assignments,
 			canResolve: review.canResolve,
+			singlePass: review.singlePass,
 			discrepancies: review.discrepancies,
 			attachments: view.attachments,
 			previous
