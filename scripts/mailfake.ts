@@ -8,14 +8,19 @@
 import { SMTPServer } from 'smtp-server';
 import { simpleParser } from 'mailparser';
 import { createServer } from 'node:http';
-import { mkdirSync, readdirSync, readFileSync, writeFileSync, rmSync } from 'node:fs';
+import { chmodSync, mkdirSync, readdirSync, readFileSync, writeFileSync, rmSync } from 'node:fs';
 import { join } from 'node:path';
 import { randomUUID } from 'node:crypto';
 
 const smtpPort = Number(process.env.SMTP_PORT ?? 2525);
 const httpPort = Number(process.env.MAILFAKE_PORT ?? 2526);
 const dir = join(process.env.CROSSTALLY_DATA_DIR ?? '.data/demo', 'mail');
-mkdirSync(dir, { recursive: true });
+// Caught mail holds set-password links: readable by the owner only (a 0700 folder, 0600 files).
+const ensureDir = () => {
+	mkdirSync(dir, { recursive: true, mode: 0o700 });
+	chmodSync(dir, 0o700);
+};
+ensureDir();
 
 interface Caught {
 	id: string;
@@ -82,7 +87,7 @@ const smtp = new SMTPServer({
 					text: parsed.text ?? '',
 					html: typeof parsed.html === 'string' ? parsed.html : null
 				};
-				writeFileSync(join(dir, `${msg.id}.json`), JSON.stringify(msg));
+				writeFileSync(join(dir, `${msg.id}.json`), JSON.stringify(msg), { mode: 0o600 });
 				callback();
 			} catch (e) {
 				callback(e as Error);
@@ -108,7 +113,7 @@ const http = createServer((req, res) => {
 	}
 	if (url.pathname === '/messages' && req.method === 'DELETE') {
 		rmSync(dir, { recursive: true, force: true });
-		mkdirSync(dir, { recursive: true });
+		ensureDir();
 		return send(200, { ok: true });
 	}
 	const m = url.pathname.match(/^\/messages\/([\w-]+)$/);

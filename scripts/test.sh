@@ -23,7 +23,7 @@ trap cleanup INT TERM EXIT
 start_mariadb
 ensure_database fresh
 start_redis
-redis-cli -p "$REDIS_PORT" flushall >/dev/null
+redis_cli flushall >/dev/null
 rm -rf "$CROSSTALLY_DATA_DIR/uploads"
 start_mailfake
 MIGRATE_SOCKET="$RUN_DIR/mariadb.sock" node_modules/.bin/tsx scripts/migrate.ts || die "migration failed"

@@ -9,34 +9,48 @@ import { bullConnection } from '../src/lib/server/redis';
 import { MAIL_QUEUE, dispatchOutbox, closeMailQueue } from '../src/lib/server/mail/queue';
 import { deliver, type MailJob } from '../src/lib/server/mail/deliver';
 import { closeDb } from '../src/lib/server/db';
-import { recoverLostReviewMail } from '../src/lib/server/mail/review'; // also registers the review renderers
+import '../src/lib/server/mail/review'; // registers the review renderers
 import '../src/lib/server/mail/verification'; // registers the back-to-full-double-entry e-mail
+import { sweepMail, markMailFailed } from '../src/lib/server/mail/recover';
+import { sweepMarkers } from '../src/lib/server/models/commit-marker';
 
 const interval = Number(process.env.DISPATCH_INTERVAL_MS ?? 500);
+const sweepMs = Number(process.env.MAIL_SWEEP_MS ?? 30_000);
 const stalledMs = Number(process.env.WORKER_STALLED_MS ?? (process.env.CROSSTALLY_MODE === 'production' ? 30_000 : 3_000));
 
 const worker = new Worker<MailJob>(
 	MAIL_QUEUE,
 	async (job) => {
 		const result = await deliver(job.data);
+		// nothing to send (an invitation to an account deactivated since): the row ends, visibly
+		if (result === 'skipped' && !job.data.kind.startsWith('review_')) await markMailFailed(job.data.key, 'not sent: nothing to send (the account is inactive or gone)');
 		return result;
 	},
 	{ connection: bullConnection(), concurrency: Number(process.env.WORKER_CONCURRENCY ?? 8), stalledInterval: stalledMs, lockDuration: Math.max(stalledMs, 5_000), maxStalledCount: 2 }
 );
-worker.on('failed', (job, err) => console.error(`[worker] ${job?.data.key} attempt ${job?.attemptsMade}: ${err.message}`));
+worker.on('failed', (job, err) => {
+	console.error(`[worker] ${job?.data.key} attempt ${job?.attemptsMade}: ${err.message}`);
+	// out of retries: the outbox row is marked failed (visible), never left waiting
+	if (job && job.attemptsMade >= (job.opts.attempts ?? 1)) {
+		markMailFailed(job.data.key, err.message).catch((e) => console.error(`[worker] could not mark ${job.data.key} failed: ${e instanceof Error ? e.message : e}`));
+	}
+});
 worker.on('error', (err) => console.error(`[worker] ${err.message}`));
 
 let stopping = false;
 let lastError = '';
-let lastSweep = Date.now();
+let lastSweep = 0; // on start, then every MAIL_SWEEP_MS
 async function loop() {
 	while (!stopping) {
 		try {
-			// Redis keeps nothing across a restart: hand lost review jobs back to the dispatcher.
-			if (Date.now() - lastSweep > 30_000) {
+			// Redis keeps nothing across a restart, and a worker can die mid-send: every kind of mail is
+			// handed back, abandoned claims retried, abandoned sends marked uncertain (mail/recover.ts).
+			if (Date.now() - lastSweep > sweepMs) {
 				lastSweep = Date.now();
-				const n = await recoverLostReviewMail();
-				if (n > 0) console.error(`[worker] re-dispatching ${n} review message(s) lost from the queue`);
+				const s = await sweepMail();
+				if (s.redispatched + s.claimsTakenBack + s.markedUncertain + s.failed > 0)
+					console.error(`[worker] mail sweep: ${s.redispatched} re-dispatched, ${s.claimsTakenBack} abandoned claim(s) retried, ${s.markedUncertain} marked uncertain, ${s.failed} failed`);
+				await sweepMarkers(); // commit markers older than an hour (see src/lib/server/db.ts)
 			}
 			const n = await dispatchOutbox();
 			if (lastError) console.error('[worker] dispatch recovered');

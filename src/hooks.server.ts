@@ -2,7 +2,7 @@ import { sequence } from '@sveltejs/kit/hooks';
 import { json, redirect, error, type Handle, type HandleServerError, type RequestEvent } from '@sveltejs/kit';
 import { handle as authHandle } from './auth';
 import { decide } from '$lib/server/access';
-import { sessionUser } from '$lib/server/session';
+import { sessionUser, SessionUnchecked } from '$lib/server/session';
 import { isDbUnavailable, closeDb } from '$lib/server/db';
 import { closeRedis } from '$lib/server/redis';
 import { compress } from '$lib/server/compress';
@@ -17,6 +17,7 @@ const isApi = (e: RequestEvent) => e.url.pathname.startsWith('/api/');
 /** Route ids of the +server endpoints (found at build time; the modules are not loaded here). */
 const ENDPOINTS = new Set(Object.keys(import.meta.glob('./routes/**/+server.ts')).map((k) => k.slice('./routes'.length, -'/+server.ts'.length) || '/'));
 const UNAVAILABLE = 'The database cannot be reached right now. Nothing was saved; try again in a minute.';
+const SESSIONS_UNAVAILABLE = 'Your session cannot be checked right now (a service is not reachable). Nothing was saved; try again in a minute.';
 
 /**
  * A body that claims to be a form but cannot be parsed (a broken multipart boundary, bad
@@ -46,16 +47,20 @@ const authorize: Handle = async ({ event, resolve }) => {
 	const routeId = event.route.id;
 	if (routeId === null) return resolve(event); // no such route: SvelteKit answers 404
 
+	let unchecked = false;
 	try {
 		const session = await event.locals.auth();
 		event.locals.user = await sessionUser(session);
 	} catch (e) {
-		if (isDbUnavailable(e)) {
-			event.locals.unavailable = true;
-			if (isApi(event)) return json({ message: UNAVAILABLE, code: 'unavailable' }, { status: 503 });
-			error(503, { message: UNAVAILABLE, code: 'unavailable' });
+		if (e instanceof SessionUnchecked) unchecked = true;
+		else {
+			if (isDbUnavailable(e)) {
+				event.locals.unavailable = true;
+				if (isApi(event)) return json({ message: UNAVAILABLE, code: 'unavailable' }, { status: 503 });
+				error(503, { message: UNAVAILABLE, code: 'unavailable' });
+			}
+			throw e;
 		}
-		throw e;
 	}
 
 	const decision = decide(routeId, event.request.method, event.locals.user?.roles ?? null);
@@ -64,6 +69,11 @@ const authorize: Handle = async ({ event, resolve }) => {
 		return resolve(event);
 	}
 	if (decision === 'unknown-route') console.error(`[access] no rule for ${event.request.method} ${routeId}: refused`);
+	if (decision === 'anonymous' && unchecked) {
+		// Signed in, but whether the session was ended cannot be checked: refuse, keep the session.
+		if (isApi(event) || event.request.method !== 'GET') return json({ message: SESSIONS_UNAVAILABLE, code: 'unavailable' }, { status: 503 });
+		return new Response(errorPage(503, SESSIONS_UNAVAILABLE), { status: 503, headers: { 'content-type': 'text/html; charset=utf-8' } });
+	}
 	if (decision === 'anonymous') {
 		if (isApi(event)) return json({ message: 'Sign in first.', code: 'unauthenticated' }, { status: 401 });
 		const back = event.url.pathname + event.url.search;

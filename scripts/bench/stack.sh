@@ -16,11 +16,11 @@ case "${1:-}" in
 		stop_pidfile "$RUN_DIR/app.pid"; stop_pidfile "$RUN_DIR/worker.pid"
 		ensure_packages; ensure_node_modules; mkdir -p "$RUN_DIR"
 		# the benchmarks sign in many times from 127.0.0.1
-		export SIGNIN_MAX_PER_ADDRESS="${SIGNIN_MAX_PER_ADDRESS:-100000}" SIGNIN_MAX_PER_ACCOUNT="${SIGNIN_MAX_PER_ACCOUNT:-100000}"
+		export SIGNIN_MAX_PER_ADDRESS="${SIGNIN_MAX_PER_ADDRESS:-100000}" SIGNIN_MAX_PER_ACCOUNT="${SIGNIN_MAX_PER_ACCOUNT:-100000}" SIGNIN_MAX_PER_PAIR="${SIGNIN_MAX_PER_PAIR:-100000}"
 		write_env_file; load_env_file
 		# a fresh database each run unless BENCH_KEEP_DATA=1: the figures then never depend on leftovers
 		start_mariadb; if [ "${BENCH_KEEP_DATA:-0}" = 1 ]; then ensure_database; else ensure_database fresh; fi
-		start_redis; redis-cli -p "$REDIS_PORT" flushall >/dev/null; start_mailfake
+		start_redis; redis_cli flushall >/dev/null; start_mailfake
 		MIGRATE_SOCKET="$RUN_DIR/mariadb.sock" node_modules/.bin/tsx scripts/migrate.ts || die "migration failed"
 		DB_POOL_MAX=2 node_modules/.bin/tsx db/seeds/run.ts test || die "seeding failed" ;;
 	app)

@@ -39,15 +39,23 @@ mariadb_bin() { command -v "$1" 2>/dev/null || echo "/usr/sbin/$1"; }
 
 pid_alive() { [ -f "$1" ] && kill -0 "$(cat "$1")" 2>/dev/null; }
 
+# The data folder and the run folder (MariaDB's socket, Redis's config with its password, PID
+# files, logs) are for the user running Crosstally only: 0700. Called by every start below.
+secure_dirs() {
+	mkdir -p "$CROSSTALLY_DATA_DIR" "$RUN_DIR"
+	chmod 700 "$CROSSTALLY_DATA_DIR" "$RUN_DIR"
+}
+
 start_mariadb() {
 	local dir="$CROSSTALLY_DATA_DIR/mariadb" sock="$RUN_DIR/mariadb.sock" pidf="$RUN_DIR/mariadb.pid"
-	mkdir -p "$RUN_DIR"
-	if pid_alive "$pidf"; then log "MariaDB already running (pid $(cat "$pidf"))"; return 0; fi
+	secure_dirs
+	if pid_alive "$pidf"; then log "MariaDB already running (pid $(cat "$pidf"))"; secure_mariadb_root; return 0; fi
 	if [ ! -d "$dir/mysql" ]; then
 		log "initialising MariaDB data directory $dir"
 		mkdir -p "$dir"
+		# root@localhost by unix_socket only: the OS user root, over the socket (no password, no TCP)
 		"$(mariadb_bin mariadb-install-db)" --no-defaults --datadir="$dir" --user=root \
-			--auth-root-authentication-method=normal --skip-test-db --skip-name-resolve >"$RUN_DIR/mariadb-install.log" 2>&1 \
+			--auth-root-authentication-method=socket --skip-test-db --skip-name-resolve >"$RUN_DIR/mariadb-install.log" 2>&1 \
 			|| { cat "$RUN_DIR/mariadb-install.log" >&2; die "mariadb-install-db failed"; }
 	fi
 	"$(mariadb_bin mariadbd)" --no-defaults --datadir="$dir" --socket="$sock" --pid-file="$pidf" \
@@ -57,7 +65,7 @@ start_mariadb() {
 	local i
 	for i in $(seq 1 100); do
 		if mariadb-admin --no-defaults --protocol=socket --socket="$sock" -uroot ping >/dev/null 2>&1; then
-			log "MariaDB listening on 127.0.0.1:$DB_PORT (pid $(cat "$pidf"))"; return 0
+			log "MariaDB listening on 127.0.0.1:$DB_PORT (pid $(cat "$pidf"))"; secure_mariadb_root; return 0
 		fi
 		sleep 0.2
 	done
@@ -66,6 +74,18 @@ start_mariadb() {
 }
 
 mariadb_root() { mariadb --no-defaults --protocol=socket --socket="$RUN_DIR/mariadb.sock" -uroot "$@"; }
+
+# MariaDB's root: only root@localhost, authenticated by unix_socket (the OS user root over the
+# socket, in the 0700 run folder); every other root account (127.0.0.1, ::1, the host name,
+# anonymous users) is dropped, so root cannot sign in over TCP at all. Idempotent: also converts
+# data folders made before (root with an empty password on 127.0.0.1). No --skip-grant-tables.
+secure_mariadb_root() {
+	local drops
+	drops="$(mariadb_root -N -e "SELECT CONCAT('DROP USER ', QUOTE(user), '@', QUOTE(host), ';') FROM mysql.user
+		WHERE (user = 'root' AND host <> 'localhost') OR user = ''")" || die "could not read MariaDB's accounts as root over the socket"
+	mariadb_root -e "$drops ALTER USER 'root'@'localhost' IDENTIFIED VIA unix_socket; FLUSH PRIVILEGES;" \
+		|| die "could not restrict MariaDB's root to the socket"
+}
 
 # Create the database and the app user; password generated once and kept in the env file.
 ensure_database() {
@@ -78,19 +98,31 @@ ensure_database() {
 		ALTER USER '$DB_USER'@'localhost' IDENTIFIED BY '$DB_PASSWORD';" || die "could not create database $DB_NAME"
 }
 
+# redis-cli with the generated password (REDISCLI_AUTH: never on a command line, where ps shows it).
+redis_cli() { REDISCLI_AUTH="$REDIS_PASSWORD" redis-cli -h 127.0.0.1 -p "$REDIS_PORT" --no-auth-warning "$@"; }
+
+# Redis asks for the password generated in the env file (requirepass). It is written to
+# $RUN_DIR/redis.conf (0600, in the 0700 run folder) rather than passed on the command line.
+write_redis_conf() {
+	[ -n "${REDIS_PASSWORD:-}" ] || die "REDIS_PASSWORD is not set (write_env_file generates it)"
+	(umask 077 && printf 'requirepass %s\n' "$REDIS_PASSWORD" >"$RUN_DIR/redis.conf")
+}
+
 start_redis() {
 	local pidf="$RUN_DIR/redis.pid"
+	secure_dirs
 	mkdir -p "$RUN_DIR/redis"
 	if pid_alive "$pidf"; then log "Redis already running (pid $(cat "$pidf"))"; return 0; fi
-	redis-server --port "$REDIS_PORT" --bind 127.0.0.1 --save '' --appendonly no --dir "$RUN_DIR/redis" \
+	write_redis_conf
+	redis-server "$RUN_DIR/redis.conf" --port "$REDIS_PORT" --bind 127.0.0.1 --save '' --appendonly no --dir "$RUN_DIR/redis" \
 		--pidfile "$pidf" --daemonize yes --maxmemory-policy noeviction --logfile "$RUN_DIR/redis.log" >/dev/null \
 		|| die "redis-server did not start"
 	local i
 	for i in $(seq 1 50); do
-		if redis-cli -p "$REDIS_PORT" ping >/dev/null 2>&1; then log "Redis listening on 127.0.0.1:$REDIS_PORT (pid $(cat "$pidf"))"; return 0; fi
+		if [ "$(redis_cli ping 2>/dev/null)" = PONG ]; then log "Redis listening on 127.0.0.1:$REDIS_PORT (pid $(cat "$pidf"))"; return 0; fi
 		sleep 0.1
 	done
-	die "Redis did not answer on port $REDIS_PORT"
+	die "Redis did not answer on port $REDIS_PORT (with the password of $ENV_FILE)"
 }
 
 # Start a node process in the background and record its PID.
@@ -142,7 +174,7 @@ stop_all() {
 	stop_pidfile "$RUN_DIR/app.pid"
 	stop_pidfile "$RUN_DIR/worker.pid"
 	stop_pidfile "$RUN_DIR/mailfake.pid"
-	if pid_alive "$RUN_DIR/redis.pid"; then redis-cli -p "$REDIS_PORT" shutdown nosave >/dev/null 2>&1 || true; fi
+	if pid_alive "$RUN_DIR/redis.pid"; then redis_cli shutdown nosave >/dev/null 2>&1 || true; fi
 	stop_pidfile "$RUN_DIR/redis.pid"
 	if pid_alive "$RUN_DIR/mariadb.pid"; then
 		mariadb-admin --no-defaults --protocol=socket --socket="$RUN_DIR/mariadb.sock" -uroot shutdown >/dev/null 2>&1 || true
@@ -157,10 +189,13 @@ write_env_file() {
 		# keep generated secrets
 		DB_PASSWORD="${DB_PASSWORD:-$(sed -n 's/^DB_PASSWORD=//p' "$ENV_FILE")}"
 		AUTH_SECRET="${AUTH_SECRET:-$(sed -n 's/^AUTH_SECRET=//p' "$ENV_FILE")}"
+		REDIS_PASSWORD="${REDIS_PASSWORD:-$(sed -n 's/^REDIS_PASSWORD=//p' "$ENV_FILE")}"
 	fi
 	: "${DB_PASSWORD:=$(node -e "console.log(require('crypto').randomBytes(18).toString('base64url'))")}"
 	: "${AUTH_SECRET:=$(node -e "console.log(require('crypto').randomBytes(32).toString('base64url'))")}"
-	export DB_PASSWORD AUTH_SECRET
+	: "${REDIS_PASSWORD:=$(node -e "console.log(require('crypto').randomBytes(24).toString('base64url'))")}"
+	export DB_PASSWORD AUTH_SECRET REDIS_PASSWORD
+	secure_dirs
 	umask 077
 	cat >"$ENV_FILE" <<ENV
 # Generated by Crosstally's scripts; never commit. Secrets are kept across runs.
@@ -171,7 +206,8 @@ DB_PORT=$DB_PORT
 DB_NAME=$DB_NAME
 DB_USER=$DB_USER
 DB_PASSWORD=$DB_PASSWORD
-REDIS_URL=redis://127.0.0.1:$REDIS_PORT
+REDIS_PASSWORD=$REDIS_PASSWORD
+REDIS_URL=redis://:$REDIS_PASSWORD@127.0.0.1:$REDIS_PORT
 SMTP_URL=${SMTP_URL:-smtp://127.0.0.1:$SMTP_PORT}
 MAILFAKE_URL=${MAILFAKE_URL:-http://127.0.0.1:$MAILFAKE_PORT}
 SMTP_PORT=$SMTP_PORT
@@ -184,8 +220,9 @@ SESSION_IDLE_MINUTES=${SESSION_IDLE_MINUTES:-30}
 REMINDER_INTERVAL_MINUTES=${REMINDER_INTERVAL_MINUTES:-$([ "$CROSSTALLY_MODE" = production ] && echo 1440 || echo 3)}
 ESCALATE_AFTER_REMINDERS=${ESCALATE_AFTER_REMINDERS:-3}
 BODY_SIZE_LIMIT=${BODY_SIZE_LIMIT:-25M}
-SIGNIN_MAX_PER_ACCOUNT=${SIGNIN_MAX_PER_ACCOUNT:-5}
-SIGNIN_MAX_PER_ADDRESS=${SIGNIN_MAX_PER_ADDRESS:-20}
+SIGNIN_MAX_PER_PAIR=${SIGNIN_MAX_PER_PAIR:-5}
+SIGNIN_MAX_PER_ACCOUNT=${SIGNIN_MAX_PER_ACCOUNT:-100}
+SIGNIN_MAX_PER_ADDRESS=${SIGNIN_MAX_PER_ADDRESS:-30}
 ENV
 	umask 022
 }

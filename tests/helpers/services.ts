@@ -88,19 +88,29 @@ export async function stopRedis(): Promise<void> {
 	rmSync(redisPidFile(), { force: true });
 }
 
-/** Start Redis with the command line of scripts/lib/setup.sh start_redis, and wait for PONG. */
+/** redis-cli with the generated password (REDISCLI_AUTH, as scripts/lib/setup.sh redis_cli). */
+export function redisCli(...args: string[]) {
+	return spawnSync('redis-cli', ['-h', '127.0.0.1', '-p', redisPort(), '--no-auth-warning', ...args], { env: { ...process.env, REDISCLI_AUTH: env('REDIS_PASSWORD') } });
+}
+
+/**
+ * Start Redis with the command line of scripts/lib/setup.sh start_redis (its config file
+ * $RUN_DIR/redis.conf holds requirepass), and wait for PONG.
+ */
 export async function startRedis(): Promise<void> {
 	if (redisRunning()) return;
 	const dir = join(runDir(), 'redis');
 	mkdirSync(dir, { recursive: true });
+	const conf = join(runDir(), 'redis.conf');
+	if (!existsSync(conf)) writeFileSync(conf, `requirepass ${env('REDIS_PASSWORD')}\n`, { mode: 0o600 });
 	const r = spawnSync('redis-server', [
-		'--port', redisPort(), '--bind', '127.0.0.1', '--save', '', '--appendonly', 'no', '--dir', dir,
+		conf, '--port', redisPort(), '--bind', '127.0.0.1', '--save', '', '--appendonly', 'no', '--dir', dir,
 		'--pidfile', redisPidFile(), '--daemonize', 'yes', '--maxmemory-policy', 'noeviction', '--logfile', join(runDir(), 'redis.log')
 	]);
 	if (r.status !== 0) throw new Error(`redis-server did not start: ${r.stderr}`);
 	const end = Date.now() + 10_000;
 	for (;;) {
-		const ping = spawnSync('redis-cli', ['-p', redisPort(), 'ping']);
+		const ping = redisCli('ping');
 		if (ping.stdout?.toString().trim() === 'PONG') return;
 		if (Date.now() > end) throw new Error('Redis did not answer');
 		await sleep(100);
@@ -178,13 +188,14 @@ export async function startWorker(extraEnv: Record<string, string> = {}): Promis
 	});
 	child.unref();
 	writeFileSync(workerPidFile(), `${child.pid}\n`);
-	const end = Date.now() + 20_000;
+	// generous: tsx compiles the worker on start, which takes long on a loaded machine
+	const end = Date.now() + 90_000;
 	for (;;) {
 		const text = readFileSync(log, 'utf8');
 		const since = text.slice(text.lastIndexOf(marker));
 		if (/\[worker\] started/.test(since)) return child.pid!;
 		if (!alive(child.pid!)) throw new Error(`worker exited at start:\n${since.slice(-2000)}`);
-		if (Date.now() > end) throw new Error('worker did not start in 20 s');
+		if (Date.now() > end) throw new Error('worker did not start in 90 s');
 		await sleep(100);
 	}
 }

@@ -20,6 +20,7 @@ import {
 } from './schema';
 import { rangeProblems, type RangeRow } from './ranges';
 import { TABLE_SCALES, tableProblems, type RawSpan, type TableRowInput, type TableScale } from './norm-forms';
+import { isFormulaLike, writeCsv, type CsvCell } from '../csv';
 
 export type CsvKind = 'norms' | 'tests' | 'tables' | 'equations';
 /** The kinds whose rows become norm groups of a norm set (imported into a new or an existing set). */
@@ -129,7 +130,7 @@ export interface PreviewResult {
 
 export type ParsedRow<K extends CsvKind> = K extends 'tests' ? TestInput & { line: number } : NormGroupInput & { line: number };
 
-const FORMULA_START = /^[=+\-@\t\r]/;
+
 const NUMBER_RE = /^[+-]?(\d+(\.\d*)?|\.\d+)$/;
 
 function normHeader(h: string): string {
@@ -138,15 +139,10 @@ function normHeader(h: string): string {
 
 /** A leading apostrophe protects a formula-like cell on export; strip it back on import. */
 function unescapeCell(v: string): string {
-	return v.length > 1 && v[0] === "'" && FORMULA_START.test(v.slice(1)) ? v.slice(1) : v;
+	return v.length > 1 && v[0] === "'" && isFormulaLike(v.slice(1)) ? v.slice(1) : v;
 }
 
-/** Is the cell a spreadsheet formula (or formula-like)? A signed plain number is not. */
-export function isFormulaLike(v: string): boolean {
-	if (!FORMULA_START.test(v)) return false;
-	if ((v[0] === '-' || v[0] === '+') && NUMBER_RE.test(v.trim())) return false;
-	return true;
-}
+export { isFormulaLike };
 
 const DELIMS: [string, string][] = [
 	[';', 'semicolons (;)'],
@@ -225,7 +221,7 @@ export class CsvValidator<K extends CsvKind> {
 			if (!f) continue;
 			const raw = cells[i] ?? '';
 			if (isFormulaLike(raw)) {
-				this.err(line, f, `${f}: "${clip(raw)}" looks like a spreadsheet formula (starts with "${raw[0] === '\t' ? 'tab' : raw[0]}"); type the value itself`);
+				this.err(line, f, `${f}: "${clip(raw)}" looks like a spreadsheet formula (starts with "${raw[0] === '\t' ? 'tab' : raw[0] === '\r' ? 'carriage return' : raw.trimStart()[0]}"); type the value itself`);
 				values[f] = '';
 				this.flagged.add(f);
 				continue;
@@ -579,15 +575,9 @@ export function parseBounds(s: string): Bounds | null | string {
 // ---------------------------------------------------------------------------------------------
 // Export
 
-function cell(v: string | number | null | undefined): string {
-	if (v === null || v === undefined) return '';
-	let s = String(v);
-	if (typeof v === 'string' && isFormulaLike(s)) s = `'${s}`; // never hand a spreadsheet a formula
-	return /[",\r\n]/.test(s) || s !== s.trim() ? `"${s.replace(/"/g, '""')}"` : s;
-}
-
-export function toCsv(columns: readonly string[], rows: (string | number | null | undefined)[][]): string {
-	return [columns.join(','), ...rows.map((r) => r.map(cell).join(','))].join('\r\n') + '\r\n';
+/** The catalog's CSV layouts go through the one CSV writer (src/lib/csv.ts). */
+export function toCsv(columns: readonly string[], rows: CsvCell[][]): string {
+	return writeCsv(columns, rows);
 }
 
 export function formatBounds(b: Bounds | null | undefined): string {

@@ -35,10 +35,15 @@ export const config = {
 	sessionIdleMinutes: num('SESSION_IDLE_MINUTES', 30),
 	reminderIntervalMinutes: num('REMINDER_INTERVAL_MINUTES', 1440),
 	escalateAfterReminders: num('ESCALATE_AFTER_REMINDERS', 3),
+	/** Review e-mails: `full` (every discrepancy with its values) or `counts` (how many, and the link). */
+	mailDetail: env.REVIEW_MAIL_DETAIL ?? 'full',
+	/** Sign-in throttle (src/lib/server/throttle.ts). */
 	signIn: {
-		maxPerAccount: num('SIGNIN_MAX_PER_ACCOUNT', 5),
-		maxPerAddress: num('SIGNIN_MAX_PER_ADDRESS', 20),
-		windowSeconds: num('SIGNIN_WINDOW_SECONDS', 900)
+		maxPerPair: num('SIGNIN_MAX_PER_PAIR', 5),
+		maxPerAccount: num('SIGNIN_MAX_PER_ACCOUNT', 100),
+		maxPerAddress: num('SIGNIN_MAX_PER_ADDRESS', 30),
+		windowSeconds: num('SIGNIN_WINDOW_SECONDS', 900),
+		knownSeconds: num('SIGNIN_KNOWN_SECONDS', 30 * 86_400)
 	},
 	uploadMaxBytes: num('UPLOAD_MAX_BYTES', 10 * 1024 * 1024),
 	bcryptCost: num('BCRYPT_COST', 12)

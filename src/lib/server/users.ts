@@ -5,6 +5,7 @@ import { select, selectOne, exec, transaction, type Tx } from './db';
 import { config } from './config';
 import { parseRoles, type Role } from '../roles';
 import { audit } from './audit';
+import { signInThrottle } from './throttle';
 
 export interface UserRow {
 	id: number;
@@ -40,12 +41,17 @@ const toUser = (r: UserRow): User => ({
 	invited: r.password_hash === null
 });
 
-// A constant hash so that an unknown e-mail costs the same time as a wrong password.
-const DUMMY_HASH = bcrypt.hashSync('not-a-real-password', 4);
+/**
+ * An unknown e-mail (or an invited account with no password yet) is compared against this hash,
+ * of the same cost as real ones, so it costs the same bcrypt work as a known account: the answer
+ * time does not tell which e-mails have accounts. Made once, on first use.
+ */
+let dummyHash: Promise<string> | null = null;
+const dummy = () => (dummyHash ??= hashPassword(randomBytes(18).toString('base64url')));
 
 export async function verifyCredentials(email: string, password: string): Promise<User | null> {
 	const row = await selectOne<UserRow>('SELECT * FROM users WHERE email = :email', { email: email.toLowerCase() });
-	const ok = await bcrypt.compare(password, row?.password_hash ?? DUMMY_HASH);
+	const ok = await bcrypt.compare(password, row?.password_hash ?? (await dummy()));
 	if (!row || !row.password_hash || !ok || !row.active) return null;
 	await exec('UPDATE users SET last_sign_in_at = CURRENT_TIMESTAMP(3) WHERE id = :id', { id: row.id });
 	return toUser(row);
@@ -111,6 +117,11 @@ export async function setActive(id: number, active: boolean, actorId: number): P
 	});
 }
 
+/** End every session of this account at its next request (sign-out when Redis cannot be reached). */
+export async function endAllSessions(id: number): Promise<void> {
+	await exec('UPDATE users SET session_version = session_version + 1 WHERE id = :id', { id });
+}
+
 const sha256 = (s: string) => createHash('sha256').update(s).digest('hex');
 
 /** A one-time token for a set-password link; only its hash is stored. */
@@ -141,9 +152,22 @@ export async function checkToken(token: string, t?: Tx): Promise<TokenCheck> {
 	return { ok: true, userId: row.user_id, purpose: row.purpose, email: row.email };
 }
 
-/** Use a token once: set the password, end other sessions. */
+/**
+ * Use a token once: set the password, end other sessions, and lift any sign-in block on the account
+ * (the sign-in page tells a blocked user to reset their password).
+ */
 export async function useToken(token: string, password: string): Promise<TokenCheck> {
 	const hash = await hashPassword(password);
+	const result = await setPasswordWithToken(token, hash);
+	if (result.ok) {
+		await signInThrottle()
+			.liftAccount(result.email)
+			.catch((e) => console.warn(`[auth] sign-in block not lifted after a password reset (Redis: ${e instanceof Error ? e.message : e})`));
+	}
+	return result;
+}
+
+function setPasswordWithToken(token: string, hash: string): Promise<TokenCheck> {
 	return transaction(async (t) => {
 		const check = await checkToken(token, t);
 		if (!check.ok) return check;

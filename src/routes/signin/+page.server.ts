@@ -2,6 +2,7 @@ import type { Actions, PageServerLoad } from './$types';
 import { fail, redirect } from '@sveltejs/kit';
 import { CredentialsSignin } from '@auth/sveltekit';
 import { signIn } from '../../auth';
+import { sameOriginPath } from '$lib/server/redirect';
 
 const MESSAGES: Record<string, string> = {
 	credentials: 'That e-mail and password do not match an active account.',
@@ -9,9 +10,10 @@ const MESSAGES: Record<string, string> = {
 	unavailable: 'Sign-in is unavailable right now (a service is not reachable). Try again in a minute.'
 };
 
-/** Only same-site paths may be returned to after sign-in. */
+/** Only paths of this site may be returned to after sign-in (see $lib/server/redirect). */
 function safeTarget(value: string | null): string {
-	return value && value.startsWith('/') && !value.startsWith('//') && !value.startsWith('/signin') ? value : '/';
+	const path = sameOriginPath(value);
+	return path.startsWith('/signin') ? '/' : path;
 }
 
 export const load: PageServerLoad = async ({ locals, url }) => {

@@ -1,10 +1,15 @@
 /**
  * Rendering and sending one outbox message, at most once per idempotency key.
  *
- * mail_log holds one row per key. Before the SMTP call the row is claimed ('sending'); after the
- * server accepts, it becomes 'sent'. An SMTP refusal releases the claim so BullMQ's retry with
- * backoff can send again. A worker killed between claim and 'sent' leaves the claim in place: the
- * retry does not send again (at most once) and logs the key so a person can check.
+ * mail_log holds one row per key and the phase of the send:
+ * - 'claimed': rendered, about to be handed to SMTP. A claim lives MAIL_CLAIM_LEASE_MS; a claim
+ *   older than that belonged to a worker that died before sending, so it is taken over (here, or
+ *   by the sweep in ./recover.ts) and the message is sent after all.
+ * - 'sending': handed to SMTP. An SMTP refusal deletes the row so BullMQ's retry with backoff
+ *   sends again. A worker killed in this phase may or may not have had the message accepted: the
+ *   row becomes 'uncertain' (by the retry, or by the sweep once the lease ends) and it is never
+ *   sent again (at most once); the protocol page shows it.
+ * - 'sent': accepted by the server.
  */
 import { exec, selectOne } from '../db';
 import { config } from '../config';
@@ -52,8 +57,12 @@ export const renderers: Partial<Record<MailKind, Renderer>> = {
 
 export type DeliveryResult = 'sent' | 'already-sent' | 'uncertain' | 'skipped';
 
-/** Test hook: pause after the SMTP server accepted, so a test can kill the worker right there. */
+/** How long a claim or a send in progress may last before it counts as abandoned (a dead worker). */
+export const claimLeaseMs = () => Number(process.env.MAIL_CLAIM_LEASE_MS ?? 10 * 60_000);
+
+/** Test hooks: pause after the SMTP server accepted, or after the claim before SMTP, so a test can kill the worker right there. */
 const pauseAfterSend = Number(process.env.MAIL_TEST_PAUSE_AFTER_SEND_MS ?? 0);
+const pauseBeforeSend = Number(process.env.MAIL_TEST_PAUSE_BEFORE_SEND_MS ?? 0);
 
 /**
  * Hooks run after a delivery attempt that ended with the message sent, already sent or possibly
@@ -70,11 +79,20 @@ export async function deliver(job: MailJob): Promise<DeliveryResult> {
 }
 
 async function deliverOnce(job: MailJob): Promise<DeliveryResult> {
-	const existing = await selectOne<{ status: string }>('SELECT status FROM mail_log WHERE idempotency_key = :key', { key: job.key });
+	const existing = await selectOne<{ status: string; stale: number }>(
+		`SELECT status, created_at < :before AS stale FROM mail_log WHERE idempotency_key = :key`,
+		{ key: job.key, before: new Date(Date.now() - claimLeaseMs()) }
+	);
 	if (existing?.status === 'sent') return 'already-sent';
-	if (existing?.status === 'sending') {
+	if (existing?.status === 'sending' || existing?.status === 'uncertain') {
+		await exec(`UPDATE mail_log SET status = 'uncertain' WHERE idempotency_key = :key AND status = 'sending'`, { key: job.key });
 		console.error(`[mail] ${job.key}: an earlier attempt stopped mid-send; not sending again (check the mail server's log)`);
 		return 'uncertain';
+	}
+	if (existing?.status === 'claimed') {
+		// another worker is about to send it; or one died before sending (lease over): take over
+		if (!Number(existing.stale)) throw new Error(`${job.key} is claimed by another worker; retrying later`);
+		await exec(`DELETE FROM mail_log WHERE idempotency_key = :key AND status = 'claimed'`, { key: job.key });
 	}
 	const render = renderers[job.kind];
 	if (!render) throw new Error(`no renderer for mail kind ${job.kind}`);
@@ -82,7 +100,7 @@ async function deliverOnce(job: MailJob): Promise<DeliveryResult> {
 	if (!mail) return 'skipped';
 	const claim = await exec(
 		`INSERT IGNORE INTO mail_log (idempotency_key, kind, protocol_id, reminder_no, recipients, subject, status)
-		 VALUES (:key, :kind, :protocolId, :reminderNo, :recipients, :subject, 'sending')`,
+		 VALUES (:key, :kind, :protocolId, :reminderNo, :recipients, :subject, 'claimed')`,
 		{
 			key: job.key,
 			kind: job.kind,
@@ -92,7 +110,11 @@ async function deliverOnce(job: MailJob): Promise<DeliveryResult> {
 			subject: mail.subject.slice(0, 300)
 		}
 	);
-	if (claim.affected !== 1) return 'already-sent'; // another worker claimed it first
+	if (claim.affected !== 1) throw new Error(`${job.key} was claimed by another worker first; retrying later`);
+	if (pauseBeforeSend > 0) await new Promise((r) => setTimeout(r, pauseBeforeSend));
+	// the hand-over to SMTP: only if the claim is still ours (the sweep may have taken a stale one back)
+	const handOver = await exec(`UPDATE mail_log SET status = 'sending', sending_at = CURRENT_TIMESTAMP(3) WHERE idempotency_key = :key AND status = 'claimed'`, { key: job.key });
+	if (handOver.affected !== 1) throw new Error(`${job.key}: the claim was taken back before sending; retrying`);
 	let messageId: string | null;
 	try {
 		messageId = await sendMail({ ...mail, headers: { ...(mail.headers ?? {}), 'X-Crosstally-Key': job.key } });
@@ -101,7 +123,8 @@ async function deliverOnce(job: MailJob): Promise<DeliveryResult> {
 		throw e;
 	}
 	if (pauseAfterSend > 0) await new Promise((r) => setTimeout(r, pauseAfterSend));
-	await exec(`UPDATE mail_log SET status = 'sent', sent_at = CURRENT_TIMESTAMP(3), message_id = :messageId WHERE idempotency_key = :key`, {
+	// 'uncertain' too: a slow send marked by the sweep that did finish is sent after all
+	await exec(`UPDATE mail_log SET status = 'sent', sent_at = CURRENT_TIMESTAMP(3), message_id = :messageId WHERE idempotency_key = :key AND status IN ('sending','uncertain')`, {
 		key: job.key,
 		messageId
 	});

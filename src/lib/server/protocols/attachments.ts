@@ -3,13 +3,14 @@
  * size-limited, stored under the data folder by a random name, with their SHA-256.
  */
 import { createHash, randomUUID } from 'node:crypto';
-import { mkdir, writeFile, readFile, unlink } from 'node:fs/promises';
+import { chmod, mkdir, writeFile, readFile, unlink } from 'node:fs/promises';
 import { join } from 'node:path';
 import { config } from '../config';
 import { exec, selectOne, transaction } from '../db';
 import { audit } from '../audit';
-import { protocolFor, type Actor } from './service';
+import { protocolFor, attachmentHidden, type Actor } from './service';
 import { WorkflowError, notFound } from './errors';
+import { cleanFilename } from '../filenames';
 
 const TYPES: { mime: string; ext: string; test: (b: Uint8Array) => boolean }[] = [
 	{ mime: 'application/pdf', ext: 'pdf', test: (b) => b.length > 5 && String.fromCharCode(...b.slice(0, 5)) === '%PDF-' },
@@ -22,11 +23,9 @@ export function sniffType(bytes: Uint8Array): { mime: string; ext: string } | nu
 	return t ? { mime: t.mime, ext: t.ext } : null;
 }
 
-/** A display name without any path, control or quoting characters. */
+/** A display name without any path, control, bidi or quoting characters (../filenames.ts). */
 export function safeFilename(name: string, ext: string): string {
-	const base = name.split(/[\\/]/).pop() ?? '';
-	const clean = base.replace(/[\u0000-\u001f\u007f"<>|:*?]/g, '').replace(/^\.+/, '').trim().slice(0, 120);
-	return clean || `record-form.${ext}`;
+	return cleanFilename(name, `record-form.${ext}`);
 }
 
 const dir = () => join(config.dataDir, 'uploads');
@@ -40,8 +39,10 @@ export async function addAttachment(protocolId: number, user: Actor, file: File 
 	if (!type) throw new WorkflowError(415, 'Only PDF, PNG and JPEG scans can be attached (checked by content, not by the name).', 'file');
 	const sha256 = createHash('sha256').update(bytes).digest('hex');
 	const storage = `${randomUUID()}.${type.ext}`;
-	await mkdir(dir(), { recursive: true });
-	await writeFile(join(dir(), storage), bytes, { flag: 'wx' });
+	// Scans are health records: a folder only the service's user can open, files only it can read.
+	await mkdir(dir(), { recursive: true, mode: 0o700 });
+	await chmod(dir(), 0o700);
+	await writeFile(join(dir(), storage), bytes, { flag: 'wx', mode: 0o600 });
 	try {
 		return await transaction(async (t) => {
 			const { p } = await protocolFor(protocolId, user, t);
@@ -62,12 +63,13 @@ export async function addAttachment(protocolId: number, user: Actor, file: File 
 }
 
 export async function readAttachment(protocolId: number, attachmentId: number, user: Actor) {
-	await protocolFor(protocolId, user);
-	const row = await selectOne<{ filename: string; mime: string; storage_name: string; sha256: string }>(
-		'SELECT filename, mime, storage_name, sha256 FROM attachments WHERE id = :id AND protocol_id = :p',
+	const { p } = await protocolFor(protocolId, user);
+	const row = await selectOne<{ filename: string; mime: string; storage_name: string; sha256: string; uploaded_by: number | null }>(
+		'SELECT filename, mime, storage_name, sha256, uploaded_by FROM attachments WHERE id = :id AND protocol_id = :p',
 		{ id: attachmentId, p: protocolId }
 	);
-	if (!row) throw notFound('This attachment');
+	// the blind rule: the other scorer's upload is not there for an assigned scorer until both passes are in
+	if (!row || attachmentHidden(p, user, row.uploaded_by)) throw notFound('This attachment');
 	const bytes = await readFile(join(dir(), row.storage_name));
-	return { ...row, bytes };
+	return { ...row, filename: cleanFilename(row.filename, 'record-form'), bytes };
 }

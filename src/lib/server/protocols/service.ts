@@ -11,6 +11,7 @@ import { selectNormGroup, dayNumber, parseIsoDate, type AgeWarning } from '../..
 import { ageCovariate, COVARIATE_LABELS, type Covariate } from '../../catalog/norm-forms';
 import { models } from '../models';
 import { WorkflowError, notFound, invalid, conflict } from './errors';
+import { cleanFilename } from '../filenames';
 import type { Role } from '../../roles';
 import { protocolVerification, singlePassIds } from '../verification';
 
@@ -69,6 +70,23 @@ export async function protocolFor(id: number, user: Actor, t?: Tx, forUpdate = f
 
 /** Blind rule: both passes are visible to anyone only once the second pass is submitted. */
 export const passesRevealed = (status: Status) => status === 'in_review' || status === 'verified';
+
+/** One of the protocol's two assigned scorers, whatever roles the account holds now. */
+export const isAssignedScorer = (p: Pick<ProtocolRow, 'first_scorer_id' | 'second_scorer_id'>, user: Pick<Actor, 'id'>) =>
+	p.first_scorer_id === user.id || p.second_scorer_id === user.id;
+
+/**
+ * The blind rule follows the assignment, not the roles held now: while the passes are not revealed,
+ * an assigned scorer sees nothing of the other pass, even after losing the scorer role or while
+ * also holding lead, reviewer or admin (roles can be edited; the assignment is what made them a
+ * scorer of this protocol).
+ */
+export const isBlind = (p: Pick<ProtocolRow, 'status' | 'first_scorer_id' | 'second_scorer_id'>, user: Pick<Actor, 'id'>) =>
+	!passesRevealed(p.status) && isAssignedScorer(p, user);
+
+/** While blind, files the other assigned scorer uploaded are not shown (they may show their entries). */
+export const attachmentHidden = (p: Pick<ProtocolRow, 'status' | 'first_scorer_id' | 'second_scorer_id'>, user: Pick<Actor, 'id'>, uploadedBy: number | null) =>
+	isBlind(p, user) && uploadedBy !== user.id && uploadedBy !== null && (uploadedBy === p.first_scorer_id || uploadedBy === p.second_scorer_id);
 
 // ---------------------------------------------------------------- creation
 
@@ -414,10 +432,14 @@ export async function protocolView(id: number, user: Actor) {
 		'SELECT SUM(resolved_at IS NULL) AS open, COUNT(*) AS total FROM discrepancies WHERE protocol_id = :p AND round = :r',
 		{ p: p.id, r: p.round }
 	);
-	const attachments = await select<{ id: number; filename: string; mime: string; size: number; sha256: string; created_at: Date }>(
-		'SELECT id, filename, mime, size, sha256, created_at FROM attachments WHERE protocol_id = :p ORDER BY id',
-		{ p: p.id }
-	);
+	const attachments = (
+		await select<{ id: number; filename: string; mime: string; size: number; sha256: string; created_at: Date; uploaded_by: number | null }>(
+			'SELECT id, filename, mime, size, sha256, created_at, uploaded_by FROM attachments WHERE protocol_id = :p ORDER BY id',
+			{ p: p.id }
+		)
+	)
+		.filter((a) => !attachmentHidden(p, user, a.uploaded_by))
+		.map(({ uploaded_by: _by, ...a }) => ({ ...a, filename: cleanFilename(a.filename, 'record-form') }));
 	return {
 		protocol: p,
 		duties,
@@ -431,7 +453,7 @@ export async function protocolView(id: number, user: Actor) {
 		},
 		battery: battery!,
 		normSet: set ? { name: set.name, version: set.version, source: set.source } : null,
-		tests: tests.map((x) => ({ code: x.code, name: x.name, domain: x.domainName, group: x.groupCode, overrideReason: x.overrideReason, version: x.version })),
+		tests: tests.map((x) => ({ code: x.code, name: x.name, domain: x.domainName, group: x.groupText, overrideReason: x.overrideReason, version: x.version, reported: x.reported as string[] })),
 		assignments: { first: nameOf(p.first_scorer_id), second: nameOf(p.second_scorer_id), reviewer: nameOf(p.reviewer_id) },
 		passes: passes.map((x) => ({ which: x.which, status: x.status, submittedAt: x.submitted_at, fieldsEntered: x.fields_entered, started: x.draft_version > 0 })),
 		discrepancies: { open: Number(open?.open ?? 0), total: Number(open?.total ?? 0) },
@@ -443,12 +465,18 @@ export async function protocolView(id: number, user: Actor) {
 /** Status history for the protocol page. Before both passes are in, values of passes are hidden. */
 export async function protocolHistoryFor(id: number, user: Actor) {
 	const { p } = await protocolFor(id, user);
-	const rows = await select<{ id: number; at: Date; actor_name: string | null; action: string; old_value: string | null; new_value: string | null; reason: string | null; entity: string }>(
-		`SELECT a.id, a.at, u.name AS actor_name, a.action, a.old_value, a.new_value, a.reason, a.entity
+	const all = await select<{ id: number; at: Date; actor_id: number | null; actor_name: string | null; action: string; old_value: string | null; new_value: string | null; reason: string | null; entity: string }>(
+		`SELECT a.id, a.at, a.actor_id, u.name AS actor_name, a.action, a.old_value, a.new_value, a.reason, a.entity
 		   FROM audit_events a LEFT JOIN users u ON u.id = a.actor_id WHERE a.protocol_id = :p ORDER BY a.id`,
 		{ p: p.id }
 	);
-	const reveal = passesRevealed(p.status) || user.roles.includes('lead') && !dutiesOf(p, user).some((d) => d === 'first' || d === 'second');
+	// uploads the other scorer made are not there for a blind scorer (nor their file: attachmentHidden)
+	const rows = all
+		.filter((r) => !(r.entity === 'attachment' && attachmentHidden(p, user, r.actor_id)))
+		.map(({ actor_id: _a, ...r }) => r);
+	// Pass values: for everyone once revealed; before that for leads who are not its scorers (an
+	// assigned scorer never, whatever roles they hold now: isBlind).
+	const reveal = passesRevealed(p.status) || (user.roles.includes('lead') && !isBlind(p, user));
 	return rows.map((r) => ({
 		...r,
 		old_value: r.entity === 'pass' && !reveal ? null : r.old_value,

@@ -1,13 +1,14 @@
 import type { RequestHandler } from './$types';
 import { error } from '@sveltejs/kit';
 import { requireRole } from '$lib/server/guard';
+import { contentDisposition } from '$lib/server/filenames';
 import { exportNormGroupsCsv, exportTestsCsv, CatalogError } from '$lib/server/catalog';
 
 /** /catalog/export/tests and /catalog/export/{norms,tables,equations}?set=<id>: the same CSV layouts the import reads. */
 export const GET: RequestHandler = async (event) => {
 	requireRole(event, 'lead', 'admin');
 	const csvResponse = (csv: string, filename: string) =>
-		new Response(csv, { headers: { 'content-type': 'text/csv; charset=utf-8', 'content-disposition': `attachment; filename="${filename}"` } });
+		new Response(csv, { headers: { 'content-type': 'text/csv; charset=utf-8', 'content-disposition': contentDisposition('attachment', filename, 'export.csv') } });
 	if (event.params.kind === 'tests') return csvResponse(await exportTestsCsv(), 'crosstally-tests.csv');
 	const kind = event.params.kind;
 	if (kind === 'norms' || kind === 'tables' || kind === 'equations') {

@@ -6,6 +6,7 @@
 import { json } from '@sveltejs/kit';
 import type { RequestHandler } from './$types';
 import { isReport, parseFilters, REPORT_NAMES, runReport, toCsv } from '$lib/server/audit-stats';
+import { contentDisposition } from '$lib/server/filenames';
 
 export const GET: RequestHandler = async ({ params, url }) => {
 	if (!isReport(params.report)) {
@@ -24,7 +25,7 @@ export const GET: RequestHandler = async ({ params, url }) => {
 		return new Response(toCsv(result), {
 			headers: {
 				'content-type': 'text/csv; charset=utf-8',
-				'content-disposition': `attachment; filename="crosstally-audit-${params.report}-${day}.csv"`
+				'content-disposition': contentDisposition('attachment', `crosstally-audit-${params.report}-${day}.csv`, 'audit.csv')
 			}
 		});
 	}

@@ -2,6 +2,7 @@ import type { RequestHandler } from './$types';
 import { requireUser, idParam } from '$lib/server/guard';
 import { readAttachment } from '$lib/server/protocols/attachments';
 import { pageError } from '$lib/server/http';
+import { contentDisposition } from '$lib/server/filenames';
 
 export const GET: RequestHandler = async (event) => {
 	const user = requireUser(event);
@@ -10,7 +11,7 @@ export const GET: RequestHandler = async (event) => {
 		return new Response(new Uint8Array(a.bytes), {
 			headers: {
 				'content-type': a.mime,
-				'content-disposition': `inline; filename="${a.filename.replace(/[^\w.\- ]/g, '_')}"`,
+				'content-disposition': contentDisposition('inline', a.filename, 'record-form'),
 				'x-content-type-options': 'nosniff',
 				'cache-control': 'private, no-store',
 				etag: `"${a.sha256}"`,
