@@ -120,7 +120,7 @@ describe('double entry, end to end', () => {
 		for (const item of [flip, swap]) {
 			await item.getByLabel('Recomputed').check();
 			await item.getByTestId('resolve').click();
-			await expect.poll(() => item.innerText()).toContain('kept');
+			await expect.poll(() => item.innerText(), { timeout: 15_000 }).toContain('kept');
 		}
 		await page.getByTestId('sign-off').click();
 		await expect.poll(() => page.getByRole('status').allInnerTexts()).toContain('Verified and locked.');

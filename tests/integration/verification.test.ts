@@ -234,6 +234,40 @@ describe('back to full double entry', () => {
 		expect((await drawOf(next))?.outcome).toBe('scorer_full');
 	}, 240_000);
 
+	it('when the rolling upper bound is no longer below T the scorer goes back to full double entry and the lead is e-mailed', async () => {
+		const b = await makeBattery();
+		await setPolicy(b.id, { mode: 'sampled', minFields: '2000', windowDays: '180', thresholdPer100: '0.5', probabilityPercent: '100' });
+		const a = await makeScorer('Ada');
+		const second = await makeScorer('Bo');
+		seeded.push(await seedCleanRecord(a.id, b.id, 400));
+		const c = await signedIn(a.email);
+		const c2 = await signedIn(second.email);
+		const id = await newProtocol(b.id, a.id, second.id);
+		const good = await correctScores(id, {});
+		expect((await saveAndSubmit(c, id, good)).body.status).toBe('awaiting_second');
+		expect((await standingOf(a.id, b.id))?.mode).toBe('sampled');
+		// meanwhile 10 raw-score errors of this scorer come to light elsewhere (resolved discrepancies, inserted in bulk)
+		const { exec } = await import('../../src/lib/server/db');
+		const fakeIds = Array.from({ length: 10 }, (_, i) => 3_950_000_000 + a.id * 20 + i);
+		for (const d of fakeIds)
+			await exec(`INSERT INTO error_events (discrepancy_id, protocol_id, scorer_id, battery_id, test_code, domain, field, kind, entered_at) VALUES (:d, 0, :s, :b, 'seeded', 'seeded', 'raw', 'transposition', NOW(3) - INTERVAL 1 DAY)`, { d, s: a.id, b: b.id });
+		try {
+			// the clean second pass reconciles: no raw discrepancy in this protocol, but the rolling record is
+			// 10 errors in 2,000 + 5 = 2,005 raw fields: centre (10 + 1.920729)/2008.841459 = 0.0059341,
+			// half 0.00097567 × √(10 × 1995/2005 + 0.960365) = 0.00097567 × 3.303104 = 0.0032227,
+			// upper 0.0091569 → 0.916 per 100, not below 0.5
+			expect((await saveAndSubmit(c2, id, good)).body.status).toBe('in_review');
+			const st = await standingOf(a.id, b.id);
+			expect(st?.mode).toBe('full');
+			expect(st?.reason).toContain('rolling raw-score error rate: 10 in 2005 raw fields, 95% upper bound 0.916 per 100');
+			const mail = await waitFor(async () => (await caughtMail()).find((m) => m.subject.includes(`Back to full double entry: ${a.name}`)), 90_000);
+			expect(mail.to).toContain(ACCOUNTS.lead);
+			expect(mail.text).toContain('0.916 per 100');
+		} finally {
+			await exec('DELETE FROM error_events WHERE discrepancy_id IN (:ids)', { ids: fakeIds });
+		}
+	}, 240_000);
+
 	it('a lead can require a second pass for one protocol; the scorer sees nothing of it before submitting', async () => {
 		const b = await makeBattery();
 		await setPolicy(b.id, { mode: 'sampled', minFields: '2000', windowDays: '180', thresholdPer100: '0.5', probabilityPercent: '1' });

@@ -68,6 +68,9 @@ export const ACCESS: Record<string, RouteRules> = {
 	'/api/v1/protocols/[id]/pass': { GET: ['scorer'], PUT: ['scorer'], POST: ['scorer'] },
 	'/api/v1/protocols/[id]/signoff': { POST: ['reviewer'] },
 	'/api/v1/discrepancies/[id]': { PATCH: ['reviewer'] },
+	// amendment of a verified protocol: a lead's applies, a reviewer's is a request; a lead decides requests
+	'/api/v1/protocols/[id]/amendments': { POST: ['lead', 'reviewer'] },
+	'/api/v1/amendments/[id]': { POST: lead },
 
 	// Audit
 	'/audit': { GET: lead },
