@@ -8,7 +8,8 @@ type Command = (input: Readable, output: Writable, errors: Writable) => Promise<
 
 const commands: Record<string, () => Promise<{ run: Command }>> = {
 	reconcile: () => import('./cli/reconcile.ts'),
-	agreement: () => import('./cli/agreement.ts')
+	agreement: () => import('./cli/agreement.ts'),
+	kinds: () => import('./cli/kinds.ts')
 };
 
 async function main(): Promise<number> {

@@ -1,3 +1,4 @@
+import { KIND_NAMES } from './scoring/kinds';
 /** Protocol statuses in words, with the icon used everywhere (never colour alone). Client-safe. */
 export const STATUS: Record<string, { label: string; icon: string; tone: 'neutral' | 'attention' | 'verified' }> = {
 	draft: { label: 'First pass', icon: 'draft', tone: 'neutral' },
@@ -15,23 +16,21 @@ export const FIELD_LABELS: Record<string, string> = {
 	percentile: 'Percentile'
 };
 
+/** A field's name inside a sentence ("raw score", "T-score"): the same words, lower-case where English wants it. */
+export function fieldWords(field: string): string {
+	const l = FIELD_LABELS[field];
+	return l ? l.replace(/^(Raw|Standard|Scaled|Percentile)/, (w) => w.toLowerCase()) : field;
+}
+
+/** A status in words ("Second pass"), never the internal code. */
+export function statusWords(status: unknown): string {
+	return STATUS[String(status)]?.label ?? String(status ?? '');
+}
+
 export const FIELD_SHORT: Record<string, string> = { raw: 'Raw', z: 'z', standard: 'SS', scaled: 'ScS', t: 'T', percentile: '%ile' };
 
-export const KIND_LABELS: Record<string, string> = {
-	missing: 'Missing',
-	sign_flip: 'Direction wrong way round',
-	wrong_norm_group: 'Wrong norm group',
-	wrong_scale: 'Wrong scale',
-	raw_as_derived: 'Raw score copied',
-	decimal_shift: 'Decimal shift',
-	transposition: 'Digits swapped',
-	rounding: 'Rounding',
-	digit_drop: 'Digit left out',
-	digit_extra: 'Extra digit',
-	wrong_digit: 'Wrong digit',
-	out_of_range: 'Impossible value',
-	mismatch: 'Differs'
-};
+/** Kind names come from the one list in src/lib/scoring/kinds.ts. */
+export const KIND_LABELS: Readonly<Record<string, string>> = KIND_NAMES;
 
 /** Age of an item in words: "3 h", "2 d". */
 export function ageOf(since: string | Date, now = new Date()): string {

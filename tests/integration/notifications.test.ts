@@ -78,9 +78,11 @@ describe('review notifications', () => {
 		expect(m.text).toMatch(/First pass: {2}1\[16\]\s/); // both swapped digits marked
 		expect(m.text).toMatch(/Second pass: 1\[61\]\s/);
 		expect(m.text).toContain('Recomputed:  116');
-		expect(m.text).toContain('Kind: transposition (out of range): Two neighbouring digits swapped');
-		expect(m.text).toContain('Kind: sign flip: The direction is the wrong way round');
-		expect(m.text).toContain('Kind: wrong norm group');
+		// kind names as the Review chip shows them (one vocabulary: src/lib/scoring/kinds.ts), never the code
+		expect(m.text).toContain('Kind: Digits swapped (out of range): Two neighbouring digits swapped');
+		expect(m.text).toContain('Kind: Direction wrong way round: The direction is the wrong way round');
+		expect(m.text).toContain('Kind: Wrong norm group');
+		expect(m.text).not.toMatch(/transposition|sign flip|sign_flip|wrong norm group/);
 		expect(m.text).toMatch(/First pass: {2}\[-\]1\.07/);
 		expect(m.html).toMatch(/<mark[^>]*>-<\/mark>1\.07/);
 		expect(m.html).toContain('Two neighbouring digits swapped');
@@ -89,6 +91,17 @@ describe('review notifications', () => {
 		const log = await listProtocolMail(f.protocolId);
 		expect(log[0]).toMatchObject({ kind: 'review_first', label: 'First e-mail', reminderNo: 0, round: 1, reviewerId: f.reviewerId, to: [ACCOUNTS.reviewer], cc: [], status: 'sent' });
 		expect(log[0].sentAt).toBeInstanceOf(Date);
+	});
+
+	it('with e-mail detail set to counts, the message gives how many of each kind and the link, and no value at all', async () => {
+		await saveReviewMailSettings({ reminderIntervalMinutes: config.reminderIntervalMinutes, escalateAfterReminders: config.escalateAfterReminders, detail: 'counts' });
+		const f = await protocolReachesReview();
+		const m = await waitForKey(f, keyFor(f.protocolId, f.reviewerId, 0));
+		expect(m.subject).toBe(`Review needed: protocol ${f.code} (4 discrepancies)`);
+		// the fixture's four: 2 transpositions (raw 29/92, standard 161/116), 1 sign flip, 1 wrong norm group
+		expect(m.text).toContain('Discrepancies: 4 (2 Digits swapped, 1 Direction wrong way round, 1 Wrong norm group)');
+		expect(m.text).toContain(`${config.origin}/protocols/${f.protocolId}/review`);
+		for (const part of [m.text, m.html!]) for (const v of ['161', '116', '1.07', '-1.07']) expect(part.replaceAll(f.code, '').replace(/#[0-9a-f]{3,6}\b/gi, '').replace(/\d{4}-\d{2}-\d{2}/g, '')).not.toMatch(new RegExp(`(^|[^\\d.])${v.replace('.', '\\.')}($|[^\\d])`));
 	});
 
 	it('calling notifyReviewStarted twice (a retried request) still sends one first e-mail', async () => {

@@ -11,6 +11,7 @@ import {
 	parseIsoDate,
 	parseReconcileInput,
 	selectNormGroup,
+	groupCoverage,
 	sem,
 	type NormGroupDef
 } from '../../src/lib/scoring';
@@ -76,8 +77,30 @@ describe('norm-group selection', () => {
 		const s = selectNormGroup('1990-06-15', '2020-06-12', groups, {}, { today, nearDays: 7 });
 		expect(s.age.text).toBe('29;11;27');
 		expect(s.group?.id).toBe('a20');
-		expect(s.warnings).toEqual([expect.objectContaining({ code: 'near_boundary', otherGroup: 'a30', days: 7 })]);
+		// The 30th birthday is 2020-06-15, three days after the test date: 2020-06-13 → 29;11;28 and
+		// 2020-06-14 → 29;11;29 keep a20; 2020-06-15 → 30;0;0 is a30. So the warning names 3 days
+		// (the day that really changes the group), not the 7-day search window, and says what a30 covers.
+		expect(s.warnings).toEqual([expect.objectContaining({ code: 'near_boundary', otherGroup: 'a30', days: 3 })]);
+		expect(s.warnings[0].message).toContain('3 days later');
+		expect(s.warnings[0].message).toContain('ages 30;0–39;11');
+		expect(s.warnings[0].message).not.toContain('a30');
 		expect(selectNormGroup('1990-06-15', '2020-01-12', groups, {}, { today }).warnings).toEqual([]);
+	});
+	it('warns once per group change, each direction with its own day count', () => {
+		// Birth 1990-06-15; groups a20 (to 29;11) and a30 (30;0–39;11) plus a narrow one-month group for
+		// 30;0 only would be odd, so use two boundaries a week apart: a20 ends at 29;11, a30 begins at
+		// 30;0. Test 2020-06-15 (30;0;0): one day earlier (2020-06-14, 29;11;30) is a20 → "1 day earlier";
+		// later dates stay a30 → exactly one warning.
+		const s = selectNormGroup('1990-06-15', '2020-06-15', groups, {}, { today, nearDays: 7 });
+		expect(s.group?.id).toBe('a30');
+		expect(s.warnings.map((w) => [w.code, (w as { days?: number }).days])).toEqual([['near_boundary', 1]]);
+		expect(s.warnings[0].message).toContain('1 day earlier');
+		expect(s.warnings[0].message).toContain('ages 20;0–29;11');
+	});
+	it('names groups by what they cover, never by code', () => {
+		expect(groupCoverage({ minMonths: 360, maxMonths: 479, education: [13, 99] })).toBe('ages 30;0–39;11, 13+ years of education');
+		expect(groupCoverage({ minMonths: 480, maxMonths: 599, education: [0, 12] })).toBe('ages 40;0–49;11, up to 12 years of education');
+		expect(groupCoverage({ minMonths: 240, maxMonths: 359, sex: 'F' })).toBe('ages 20;0–29;11, women');
 	});
 	it('warns on a test date in the future and when no group fits', () => {
 		const s = selectNormGroup('1950-01-01', '2031-01-01', groups, {}, { today });

@@ -144,6 +144,27 @@ export interface NormGroupDef {
 	education?: readonly [number, number];
 }
 
+/** Age in months as years;months ("30;0", "39;11"). */
+const ym = (m: number) => `${Math.floor(m / 12)};${m % 12}`;
+
+/**
+ * A norm group as people read it, by what it covers: "ages 30;0–39;11, 13+ years of education"
+ * (never its internal code). Education 0 as the lower bound or 99 as the upper one means "open".
+ */
+export function groupCoverage(g: Pick<NormGroupDef, 'minMonths' | 'maxMonths' | 'sex' | 'education'> | null | undefined): string {
+	if (!g) return 'no group';
+	const parts = [`ages ${ym(g.minMonths)}–${ym(g.maxMonths)}`];
+	if (g.sex === 'F') parts.push('women');
+	else if (g.sex === 'M') parts.push('men');
+	if (g.education) {
+		const [lo, hi] = g.education;
+		if (lo > 0 && hi >= 99) parts.push(`${lo}+ years of education`);
+		else if (lo <= 0 && hi < 99) parts.push(`up to ${hi} years of education`);
+		else if (lo > 0 || hi < 99) parts.push(lo === hi ? `${lo} years of education` : `${lo}–${hi} years of education`);
+	}
+	return parts.join(', ');
+}
+
 export interface Examinee {
 	sex?: string | null;
 	educationYears?: number | null;
@@ -219,17 +240,26 @@ export function selectNormGroup(
 		warnings.push({ code: 'no_group', message: `No norm group covers age ${age.text} (${age.totalMonths} months) for this examinee.` });
 	}
 	if (near > 0) {
-		for (const delta of [-near, near]) {
-			const other = addDays(testIso, delta);
-			if (dayNumber(parseIsoDate(other)) < dayNumber(parseIsoDate(birthIso))) continue;
-			const g = pickGroup(groups, chronologicalAge(birthIso, other, rule).totalMonths, who);
-			if ((g?.id ?? null) !== (group?.id ?? null)) {
-				warnings.push({
-					code: 'near_boundary',
-					otherGroup: g?.id ?? null,
-					days: near,
-					message: `Age ${age.text} is within ${near} days of a norm-group boundary: a test date ${Math.abs(delta)} days ${delta < 0 ? 'earlier' : 'later'} would use ${g ? `group ${g.id}` : 'no group'}. Check the birth and test dates.`
-				});
+		// Walk day by day away from the test date, in each direction, to the first day that selects
+		// another group: the warning names that many days (not the search window), once per change.
+		const seen = new Set<string>();
+		for (const sign of [-1, 1]) {
+			for (let d = 1; d <= near; d++) {
+				const other = addDays(testIso, sign * d);
+				if (dayNumber(parseIsoDate(other)) < dayNumber(parseIsoDate(birthIso))) break;
+				const g = pickGroup(groups, chronologicalAge(birthIso, other, rule).totalMonths, who);
+				if ((g?.id ?? null) === (group?.id ?? null)) continue;
+				const key = g?.id ?? '';
+				if (!seen.has(key)) {
+					seen.add(key);
+					const when = `${d} day${d === 1 ? '' : 's'} ${sign < 0 ? 'earlier' : 'later'}`;
+					warnings.push({
+						code: 'near_boundary',
+						otherGroup: g?.id ?? null,
+						days: d,
+						message: `Age ${age.text} is close to a norm-group boundary: a test date ${when} would use ${g ? `the group for ${groupCoverage(g)}` : 'no group'}${group ? ` instead of ${groupCoverage(group)}` : ''}. Check the birth and test dates.`
+					});
+				}
 				break;
 			}
 		}

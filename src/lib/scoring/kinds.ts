@@ -92,9 +92,15 @@ export const KIND_EXPLANATIONS: Readonly<Record<Kind, string>> = {
 };
 
 export function explainKind(kind: Kind): string {
-	return KIND_EXPLANATIONS[kind];
+	return KIND_EXPLANATIONS[kind] ?? 'Differs, with no recognisable pattern.';
 }
 
-export function kindName(kind: Kind): string {
-	return KIND_NAMES[kind];
+/** A kind's name in words ("Digits swapped" for `transposition`); a code this list lacks is shown in words. */
+export function kindName(kind: Kind | string): string {
+	return (KIND_NAMES as Readonly<Record<string, string>>)[kind] ?? kind.replace(/_/g, ' ');
+}
+
+/** Every kind with its name and one-line explanation, in the engine's order (for filters, docs and CSV). */
+export function kindList(): { id: Kind; name: string; explanation: string }[] {
+	return KINDS.map((k) => ({ id: k, name: kindName(k), explanation: explainKind(k) }));
 }

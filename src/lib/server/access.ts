@@ -62,11 +62,15 @@ export const ACCESS: Record<string, RouteRules> = {
 	'/protocols/[id]/review': { GET: ['reviewer', 'lead'] },
 	'/protocols/[id]/summary': { GET: ['reviewer', 'lead'] },
 	'/protocols/[id]/summary.csv': { GET: ['reviewer', 'lead'] },
+	'/protocols/[id]/summary.docx': { GET: ['reviewer', 'lead'] },
 	'/protocols/[id]/attachments/[attachmentId]': { GET: ['reviewer', 'lead', 'scorer'] },
 	'/api/v1/worklist': { GET: 'signed-in' },
 	'/api/v1/protocols/[id]/pass': { GET: ['scorer'], PUT: ['scorer'], POST: ['scorer'] },
 	'/api/v1/protocols/[id]/signoff': { POST: ['reviewer'] },
 	'/api/v1/discrepancies/[id]': { PATCH: ['reviewer'] },
+	// amendment of a verified protocol: a lead's applies, a reviewer's is a request; a lead decides requests
+	'/api/v1/protocols/[id]/amendments': { POST: ['lead', 'reviewer'] },
+	'/api/v1/amendments/[id]': { POST: lead },
 
 	// Audit
 	'/audit': { GET: lead },

@@ -35,6 +35,8 @@ export const config = {
 	sessionIdleMinutes: num('SESSION_IDLE_MINUTES', 30),
 	reminderIntervalMinutes: num('REMINDER_INTERVAL_MINUTES', 1440),
 	escalateAfterReminders: num('ESCALATE_AFTER_REMINDERS', 3),
+	/** Review e-mails: `full` (every discrepancy with its values) or `counts` (how many, and the link). */
+	mailDetail: env.REVIEW_MAIL_DETAIL ?? 'full',
 	/** Sign-in throttle (src/lib/server/throttle.ts). */
 	signIn: {
 		maxPerPair: num('SIGNIN_MAX_PER_PAIR', 5),

@@ -1,6 +1,6 @@
 import type { PageServerLoad } from './$types';
 import { select } from '$lib/server/db';
-import { KINDS, KIND_EXPLANATIONS } from '$lib/scoring/kinds';
+import { kindList } from '$lib/scoring/kinds';
 import { LANDIS_KOCH_1977, KOO_LI_2016 } from '$lib/scoring/agreement';
 
 /** The filter choices; the tables and charts themselves come from /api/v1/audit/[report]. */
@@ -18,7 +18,7 @@ export const load: PageServerLoad = async () => {
 			scorers: scorers.map((s) => ({ id: Number(s.id), name: s.name })),
 			batteries: batteries.map((b) => ({ id: Number(b.id), name: b.name })),
 			tests,
-			kinds: KINDS.map((k) => ({ id: k, label: k.replace(/_/g, ' '), explanation: KIND_EXPLANATIONS[k] }))
+			kinds: kindList().map((k) => ({ id: k.id, label: k.name, explanation: k.explanation }))
 		},
 		bands: { kappa: LANDIS_KOCH_1977, icc: KOO_LI_2016 }
 	};

@@ -1,4 +1,4 @@
-import { KIND_LABELS } from '$lib/status';
+import { kindName } from '$lib/scoring/kinds';
 /** Number formatting for the Audit screen (tabular figures are set in CSS). */
 export const fmt = (v: unknown, decimals = 2): string => {
 	if (v === null || v === undefined || v === '') return '—';
@@ -18,7 +18,7 @@ export const signed = (v: unknown, decimals = 2): string => {
 	return s !== '—' && Number(v) > 0 ? `+${s}` : s.replace('-', '−');
 };
 /** The same words for a kind as on the Review screen. */
-export const kindLabel = (k: string) => KIND_LABELS[k] ?? k.replace(/_/g, ' ');
+export const kindLabel = (k: string) => kindName(k);
 
 /** Marker shapes and dash patterns per series, so lines differ by more than colour. */
 export const SERIES_STYLES = [

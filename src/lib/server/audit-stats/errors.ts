@@ -11,7 +11,7 @@
  */
 import { select } from '../db';
 import { errorRatePer100 } from '../../scoring/rates';
-import { KINDS } from '../../scoring/kinds';
+import { KINDS, kindName } from '../../scoring/kinds';
 import type { AuditFilters } from './filters';
 import { dailyWhere, errorWhere } from './sql';
 
@@ -116,6 +116,8 @@ export interface KindRow extends RateCells {
 	scorer_id: number | null;
 	scorer: string;
 	kind: string;
+	/** The kind's name in words, the same as on Review (src/lib/scoring/kinds.ts). */
+	kind_name: string;
 }
 
 /** Errors of each kind per scorer per 100 fields that scorer entered; "All scorers" rows too. */
@@ -139,9 +141,9 @@ export async function kindRates(f: AuditFilters, names: Names): Promise<KindRow[
 		for (const id of scorerIds) {
 			const e = count.get(`${id}|${kind}`) ?? 0;
 			all += e;
-			rows.push({ scorer_id: id, scorer: names.scorers.get(id) ?? `#${id}`, kind, ...rateCells(e, fields.get(`${id}|`)?.fields ?? 0) });
+			rows.push({ scorer_id: id, scorer: names.scorers.get(id) ?? `#${id}`, kind, kind_name: kindName(kind), ...rateCells(e, fields.get(`${id}|`)?.fields ?? 0) });
 		}
-		rows.push({ scorer_id: null, scorer: 'All scorers', kind, ...rateCells(all, totalFields) });
+		rows.push({ scorer_id: null, scorer: 'All scorers', kind, kind_name: kindName(kind), ...rateCells(all, totalFields) });
 	}
 	return rows;
 }

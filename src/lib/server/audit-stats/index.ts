@@ -4,7 +4,9 @@
  */
 import { writeCsv } from '../../csv';
 import { select } from '../db';
-import { KINDS } from '../../scoring/kinds';
+import { KINDS, kindName } from '../../scoring/kinds';
+import { FIELD_LABELS } from '../../status';
+import { errorWhere } from './sql';
 import { KOO_LI_2016, LANDIS_KOCH_1977, ICC_FORMS } from '../../scoring/agreement';
 import type { AuditFilters } from './filters';
 import { groupRates, kindRates, loadNames, scorerRates, weekRates } from './errors';
@@ -98,7 +100,7 @@ const REPORTS = {
 		const rows = await kindRates(f, await loadNames());
 		return {
 			title: 'Errors by kind and scorer',
-			columns: [{ key: 'kind', label: 'Kind' }, { key: 'scorer', label: 'Scorer' }, ...RATE_COLUMNS],
+			columns: [{ key: 'kind', label: 'Kind code' }, { key: 'kind_name', label: 'Kind' }, { key: 'scorer', label: 'Scorer' }, ...RATE_COLUMNS],
 			rows: rows as unknown as Record<string, unknown>[],
 			meta: { kinds: KINDS },
 			notes: ['Rate of each kind per 100 fields the scorer entered (all fields, not only those of that kind).']
@@ -158,6 +160,39 @@ const REPORTS = {
 			rows: rows.map(flattenIcc),
 			meta: { bands: { kappa: LANDIS_KOCH_1977, icc: KOO_LI_2016 } },
 			notes: agreementNotes(f)
+		};
+	},
+	judgements: async (f) => {
+		const w = errorWhere(f, 'e');
+		const rows = await select<Record<string, unknown>>(
+			`SELECT e.id, e.entered_at, x.code AS protocol, e.protocol_id, e.test_code, COALESCE(t.name, e.test_code) AS test, e.field, e.kind,
+			        u.name AS scorer, d.resolved_value AS kept, d.expected AS recomputed, d.note, r.name AS reviewer, d.resolved_at
+			   FROM error_events e
+			   JOIN discrepancies d ON d.id = e.discrepancy_id
+			   JOIN protocols p ON p.id = e.protocol_id
+			   JOIN examinees x ON x.id = p.examinee_id
+			   LEFT JOIN users u ON u.id = e.scorer_id
+			   LEFT JOIN users r ON r.id = d.resolved_by
+			   LEFT JOIN (SELECT code, MAX(name) AS name FROM tests GROUP BY code) t ON t.code = e.test_code
+			   ${w.sql ? `${w.sql} AND e.judgement = 1` : 'WHERE e.judgement = 1'}
+			  ORDER BY e.entered_at DESC, e.id DESC LIMIT 500`,
+			w.params
+		);
+		return {
+			title: 'Charges resting on the reviewer’s judgement',
+			columns: [
+				{ key: 'protocol', label: 'Protocol' },
+				{ key: 'test', label: 'Test' },
+				{ key: 'field_name', label: 'Field' },
+				{ key: 'scorer', label: 'Scorer charged' },
+				{ key: 'kind_name', label: 'Kind' },
+				{ key: 'kept', label: 'Kept value' },
+				{ key: 'recomputed', label: 'Recomputed' },
+				{ key: 'note', label: 'Reviewer’s note' },
+				{ key: 'reviewer', label: 'Reviewer' }
+			],
+			rows: rows.map((r) => ({ ...r, field_name: FIELD_LABELS[String(r.field)] ?? r.field, kind_name: kindName(String(r.kind)) })),
+			notes: ['Errors charged where the kept value contradicts the recomputation: the charge rests on the reviewer’s note, not on the arithmetic. A lead can check each against the record form.']
 		};
 	},
 	'bland-altman': async (f) => {

@@ -253,6 +253,8 @@ interface DiscrepancyRow {
 	other: string | null;
 	resolution: string | null;
 	resolved_value: string | null;
+	expected: string | null;
+	carried_from: number | null;
 	battery_id: number;
 }
 
@@ -293,7 +295,7 @@ export function attributedPasses(d: Pick<DiscrepancyRow, 'pass' | 'value' | 'oth
 export async function recordResolution(discrepancyId: number, t: Transaction): Promise<void> {
 	const d = await selectOne<DiscrepancyRow>(
 		`SELECT d.id, d.protocol_id, d.round, d.test_code, d.field, d.pass, d.kind, d.value, d.other,
-		        d.resolution, d.resolved_value, p.battery_id
+		        d.resolution, d.resolved_value, d.expected, d.carried_from, p.battery_id
 		   FROM discrepancies d JOIN protocols p ON p.id = d.protocol_id
 		  WHERE d.id = :discrepancyId`,
 		{ discrepancyId },
@@ -301,8 +303,13 @@ export async function recordResolution(discrepancyId: number, t: Transaction): P
 	);
 	if (!d) throw new Error(`recordResolution: discrepancy ${discrepancyId} does not exist`);
 	await exec('DELETE FROM error_events WHERE discrepancy_id = :discrepancyId', { discrepancyId }, t);
+	// A later round decided this field again (reopen, amendment): its decision replaces the earlier
+	// round's, so the earlier round's charges for it go (an error is counted once).
+	if (d.carried_from !== null && d.resolution !== null) await exec('DELETE FROM error_events WHERE discrepancy_id = :c', { c: d.carried_from }, t);
 	const against = attributedPasses(d);
 	if (against.length === 0) return;
+	// The kept value contradicts the recomputation: the charge rests on the reviewer's judgement.
+	const judgement = d.expected !== null && !sameValue(d.resolved_value, d.expected, d.field) ? 1 : 0;
 
 	const passes = await select<{ which: 'first' | 'second'; scorer_id: number; submitted_at: Date | string | null }>(
 		'SELECT which, scorer_id, submitted_at FROM passes WHERE protocol_id = :protocolId AND round = :round',
@@ -314,9 +321,9 @@ export async function recordResolution(discrepancyId: number, t: Transaction): P
 		const pass = passes.find((p) => p.which === which);
 		if (!pass) continue;
 		await exec(
-			`INSERT INTO error_events (discrepancy_id, protocol_id, scorer_id, battery_id, test_code, domain, field, kind, entered_at)
-			 VALUES (:discrepancyId, :protocolId, :scorerId, :batteryId, :testCode, :domain, :field, :kind, :enteredAt)
-			 ON DUPLICATE KEY UPDATE kind = VALUES(kind), field = VALUES(field), entered_at = VALUES(entered_at)`,
+			`INSERT INTO error_events (discrepancy_id, protocol_id, scorer_id, battery_id, test_code, domain, field, kind, entered_at, judgement)
+			 VALUES (:discrepancyId, :protocolId, :scorerId, :batteryId, :testCode, :domain, :field, :kind, :enteredAt, :judgement)
+			 ON DUPLICATE KEY UPDATE kind = VALUES(kind), field = VALUES(field), entered_at = VALUES(entered_at), judgement = VALUES(judgement)`,
 			{
 				discrepancyId,
 				protocolId: d.protocol_id,
@@ -326,7 +333,8 @@ export async function recordResolution(discrepancyId: number, t: Transaction): P
 				domain,
 				field: d.field,
 				kind: d.kind,
-				enteredAt: pass.submitted_at ? new Date(pass.submitted_at) : new Date()
+				enteredAt: pass.submitted_at ? new Date(pass.submitted_at) : new Date(),
+				judgement
 			},
 			t
 		);

@@ -27,7 +27,8 @@ import { afterDelivery, renderers, type DeliveryResult, type MailJob, type Rende
 import { esc, layout, button } from './templates';
 import { usersWithRole } from '../users';
 import { charDiff, type DiffSegment } from '../../scoring/diff';
-import { KIND_EXPLANATIONS, type Kind } from '../../scoring/kinds';
+import { KIND_EXPLANATIONS, kindName as vocabularyKindName, type Kind } from '../../scoring/kinds';
+import { FIELD_LABELS, fieldWords } from '../../status';
 
 // ---------------------------------------------------------------------------------------------
 // Settings (per site, in the `settings` table; defaults from the environment)
@@ -37,14 +38,24 @@ export interface ReviewMailSettings {
 	reminderIntervalMinutes: number;
 	/** Reminders after which leads are copied in: reminder N+1 and later carry the leads in cc. */
 	escalateAfterReminders: number;
+	/**
+	 * What a review e-mail says about the discrepancies: `full` lists each one with both values and the
+	 * recomputed value; `counts` gives only how many (by kind) and the link, for sites that keep
+	 * scores out of e-mail.
+	 */
+	detail: MailDetail;
 }
+
+export type MailDetail = 'full' | 'counts';
+const validDetail = (d: unknown): d is MailDetail => d === 'full' || d === 'counts';
 
 export const REVIEW_MAIL_SETTING = 'review_mail';
 
 export async function reviewMailSettings(t?: Tx): Promise<ReviewMailSettings> {
 	const defaults: ReviewMailSettings = {
 		reminderIntervalMinutes: config.reminderIntervalMinutes,
-		escalateAfterReminders: config.escalateAfterReminders
+		escalateAfterReminders: config.escalateAfterReminders,
+		detail: validDetail(config.mailDetail) ? config.mailDetail : 'full'
 	};
 	const row = await selectOne<{ value: unknown }>('SELECT value FROM settings WHERE name = :name', { name: REVIEW_MAIL_SETTING }, t);
 	if (!row) return defaults;
@@ -52,7 +63,8 @@ export async function reviewMailSettings(t?: Tx): Promise<ReviewMailSettings> {
 		const v = json<Partial<ReviewMailSettings>>(row.value);
 		return {
 			reminderIntervalMinutes: validInterval(v.reminderIntervalMinutes) ? v.reminderIntervalMinutes : defaults.reminderIntervalMinutes,
-			escalateAfterReminders: validCount(v.escalateAfterReminders) ? v.escalateAfterReminders : defaults.escalateAfterReminders
+			escalateAfterReminders: validCount(v.escalateAfterReminders) ? v.escalateAfterReminders : defaults.escalateAfterReminders,
+			detail: validDetail(v.detail) ? v.detail : defaults.detail
 		};
 	} catch {
 		return defaults;
@@ -68,9 +80,11 @@ const validInterval = (n: unknown): n is number => typeof n === 'number' && Numb
 const validCount = (n: unknown): n is number => typeof n === 'number' && Number.isInteger(n) && n >= 0 && n <= 1000;
 
 /** Save the site's reminder settings (admin service settings). Throws on values out of range. */
-export async function saveReviewMailSettings(s: ReviewMailSettings, t?: Tx): Promise<void> {
+export async function saveReviewMailSettings(input: Omit<ReviewMailSettings, 'detail'> & { detail?: MailDetail }, t?: Tx): Promise<void> {
+	const s: ReviewMailSettings = { ...input, detail: input.detail ?? 'full' };
 	if (!validInterval(s.reminderIntervalMinutes)) throw new Error('reminderIntervalMinutes must be above 0 and at most 90 days');
 	if (!validCount(s.escalateAfterReminders)) throw new Error('escalateAfterReminders must be a whole number from 0 to 1000');
+	if (!validDetail(s.detail)) throw new Error('detail must be "full" or "counts"');
 	await exec(
 		`INSERT INTO settings (name, value) VALUES (:name, :value) ON DUPLICATE KEY UPDATE value = VALUES(value)`,
 		{ name: REVIEW_MAIL_SETTING, value: JSON.stringify(s) },
@@ -90,6 +104,8 @@ export interface ReviewMailPayload {
 	/** 0 for the first e-mail, 1.. for reminders. */
 	reminderNo: number;
 	notBefore?: number;
+	/** Why this round exists, for a round after the first: a reopen or an amendment, with its reason. */
+	why?: { action: 'reopen' | 'amendment'; reason: string; field?: string };
 }
 
 const roundPrefix = (protocolId: number, round: number) => `review:${protocolId}:r${round}:`;
@@ -121,9 +137,9 @@ async function currentChain(protocolId: number, round: number, t?: Tx): Promise<
  * Inside the reconciliation transaction, when a protocol reaches `in_review`: the outbox row of the
  * reviewer's first e-mail. Calling it again for the same protocol, round and reviewer is a no-op.
  */
-export async function notifyReviewStarted(protocolId: number, round: number, reviewerId: number, t: Tx): Promise<void> {
+export async function notifyReviewStarted(protocolId: number, round: number, reviewerId: number, t: Tx, why?: ReviewMailPayload['why']): Promise<void> {
 	const chain = chainOf(protocolId, round, reviewerId);
-	const payload: ReviewMailPayload = { protocolId, round, reviewerId, chain, reminderNo: 0 };
+	const payload: ReviewMailPayload = { protocolId, round, reviewerId, chain, reminderNo: 0, ...(why ? { why } : {}) };
 	await enqueueMail('review_first', reviewMailKey(chain, 0), { ...payload }, t);
 }
 
@@ -174,19 +190,14 @@ interface DiscrepancyRow {
 	out_of_range: number;
 }
 
-export const FIELD_WORDS: Record<string, string> = {
-	raw: 'raw score',
-	z: 'z-score',
-	standard: 'standard score',
-	scaled: 'scaled score',
-	t: 'T-score',
-	percentile: 'percentile'
-};
+/** Field names in a sentence: the same words as the screens (src/lib/status.ts). */
+export const FIELD_WORDS: Record<string, string> = Object.fromEntries(Object.keys(FIELD_LABELS).map((f) => [f, fieldWords(f)]));
 
 const PASS_WORDS = { first: 'first pass', second: 'second pass', both: 'both passes' } as const;
 
+/** The kind's name as the Review chip shows it ("Digits swapped"): one list, src/lib/scoring/kinds.ts. */
 export function kindName(kind: string): string {
-	return kind === 'out_of_range' ? 'out of range' : kind.replace(/_/g, ' ');
+	return vocabularyKindName(kind);
 }
 
 export function kindWords(kind: string): string {
@@ -246,6 +257,13 @@ export function markedValues(first: string | null, second: string | null): { tex
 
 const plural = (n: number, one: string, many = `${one}s`) => `${n} ${n === 1 ? one : many}`;
 
+/** "3 (2 Digits swapped, 1 Wrong digit)": how many, by kind name, no values. */
+function countsByKind(list: Pick<DiscrepancyRow, 'kind'>[]): string {
+	const by = new Map<string, number>();
+	for (const d of list) by.set(d.kind, (by.get(d.kind) ?? 0) + 1);
+	return `${list.length} (${[...by].map(([k, m]) => `${m} ${kindName(k)}`).join(', ')})`;
+}
+
 export interface ReviewMailContent {
 	reminderNo: number;
 	code: string;
@@ -256,6 +274,11 @@ export interface ReviewMailContent {
 	discrepancies: DiscrepancyRow[];
 	escalated: boolean;
 	intervalMinutes: number;
+	/** `counts`: no values in the message, only how many of each kind and the link. Default `full`. */
+	detail?: MailDetail;
+	/** The review round, and why it was opened (reopen or amendment) when it is not the first. */
+	round?: number;
+	why?: ReviewMailPayload['why'];
 }
 
 function everyWords(minutes: number): string {
@@ -277,12 +300,19 @@ export function reviewMailBody(c: ReviewMailContent): { subject: string; text: s
 	const subject = subjectOf(c);
 	const n = c.discrepancies.length;
 	const date = typeof c.testDate === 'string' ? c.testDate : '';
+	const roundWords =
+		c.round && c.round > 1 && c.why
+			? c.why.action === 'reopen'
+				? `It was reopened for review round ${c.round}. Reason: ${c.why.reason}`
+				: `It was amended (${c.why.field ?? 'one field'}) and needs review round ${c.round}. Reason: ${c.why.reason}`
+			: '';
 	const intro =
 		c.reminderNo === 0
 			? n === 0
 				? `Protocol ${c.code} is ready for review: both passes and the recomputation agree everywhere. It needs your sign-off.`
 				: `Protocol ${c.code} is ready for review: ${plural(n, 'discrepancy needs', 'discrepancies need')} your decision.`
 			: `Reminder ${c.reminderNo}: protocol ${c.code} still has ${plural(n, 'open discrepancy', 'open discrepancies')}.`;
+	const counts = n > 0 ? countsByKind(c.discrepancies) : '';
 	const escalation = c.escalated
 		? `The leads are copied in because this protocol has had ${plural(c.reminderNo - 1, 'reminder')} without being resolved.`
 		: '';
@@ -314,11 +344,16 @@ export function reviewMailBody(c: ReviewMailContent): { subject: string; text: s
 		`Hello ${c.reviewerName},`,
 		'',
 		intro,
+		roundWords,
 		escalation,
 		'',
 		facts.join('\n'),
 		'',
-		n > 0 ? `${c.reminderNo === 0 ? 'Discrepancies' : 'Still open'} (characters that differ between the passes are in [brackets]):\n\n${textList}` : '',
+		n > 0
+			? c.detail === 'counts'
+				? `${c.reminderNo === 0 ? 'Discrepancies' : 'Still open'}: ${counts}. The values are on the Review screen (this site keeps scores out of e-mail).`
+				: `${c.reminderNo === 0 ? 'Discrepancies' : 'Still open'} (characters that differ between the passes are in [brackets]):\n\n${textList}`
+			: '',
 		'',
 		`Open the Review screen: ${c.link}`,
 		'',
@@ -333,6 +368,8 @@ export function reviewMailBody(c: ReviewMailContent): { subject: string; text: s
 	const tableHtml =
 		n === 0
 			? ''
+			: c.detail === 'counts'
+				? `<p>${esc(c.reminderNo === 0 ? 'Discrepancies' : 'Still open')}: ${esc(counts)}. The values are on the Review screen (this site keeps scores out of e-mail).</p>`
 			: `<table role="presentation" cellpadding="0" cellspacing="0" width="100%" style="border-collapse:collapse;margin:12px 0;font-size:13px">
 <thead><tr><th style="${head}">#</th><th style="${head}">Test · field</th><th style="${head}">First pass</th><th style="${head}">Second pass</th><th style="${head}">Recomputed</th><th style="${head}">Kind</th></tr></thead>
 <tbody>${rows
@@ -351,7 +388,7 @@ export function reviewMailBody(c: ReviewMailContent): { subject: string; text: s
 
 	const html = layout(
 		subject,
-		`<p>Hello ${esc(c.reviewerName)},</p><p>${esc(intro)}</p>${escalation ? `<p style="color:#9a3412"><strong>${esc(escalation)}</strong></p>` : ''}
+		`<p>Hello ${esc(c.reviewerName)},</p><p>${esc(intro)}</p>${roundWords ? `<p><strong>${esc(roundWords)}</strong></p>` : ''}${escalation ? `<p style="color:#9a3412"><strong>${esc(escalation)}</strong></p>` : ''}
 <p style="color:#4a5563">${facts.map(esc).join('<br>')}</p>${tableHtml}
 ${button(c.link, 'Open the Review screen')}<p style="color:#4a5563">If the button does not work, copy this address: ${esc(c.link)}</p>${schedule ? `<p style="color:#4a5563;font-size:12px">${esc(schedule)}</p>` : ''}`
 	);
@@ -378,7 +415,10 @@ async function renderReview(raw: Record<string, unknown>): Promise<RenderedMail 
 		testDate,
 		discrepancies: state.open,
 		escalated,
-		intervalMinutes: settings.reminderIntervalMinutes
+		intervalMinutes: settings.reminderIntervalMinutes,
+		detail: settings.detail,
+		round: p.round,
+		why: p.reminderNo === 0 ? p.why : undefined
 	});
 	return { to: [state.reviewer.email], cc, ...body, protocolId: p.protocolId, reminderNo: p.reminderNo };
 }

@@ -4,7 +4,7 @@ import { models, type FrozenComposite } from '../models';
 import { tableRowsOf, type TableRowInput } from '../catalog/norms';
 import type { TestDef } from '../../scoring/reconcile';
 import type { AnyNormEntry, CompositeDef, CompositeField } from '../../scoring/norms';
-import type { NormGroupDef, AgeRule } from '../../scoring/age';
+import { groupCoverage, type NormGroupDef, type AgeRule } from '../../scoring/age';
 import type { DerivedField, BoundsOverride } from '../../scoring/scales';
 
 export interface TestRow {
@@ -79,9 +79,10 @@ export async function batteryTests(batteryId: number, t?: Tx): Promise<CatalogTe
 }
 
 /** The tests a protocol was created with (frozen versions), in order, with the norm group chosen. */
-export async function protocolTests(protocolId: number, t?: Tx): Promise<(CatalogTest & { position: number; groupId: number | null; groupCode: string | null; overrideReason: string | null })[]> {
-	const rows = await select<TestRow & { position: number; norm_group_id: number | null; group_code: string | null; override_reason: string | null }>(
-		`SELECT ${TEST_COLUMNS}, pt.position, pt.norm_group_id, ng.group_code, pt.override_reason
+export async function protocolTests(protocolId: number, t?: Tx): Promise<(CatalogTest & { position: number; groupId: number | null; groupCode: string | null; groupText: string; overrideReason: string | null })[]> {
+	const rows = await select<TestRow & { position: number; norm_group_id: number | null; group_code: string | null; override_reason: string | null } & Pick<NormGroupRow, 'age_min_months' | 'age_max_months' | 'sex' | 'edu_min' | 'edu_max'>>(
+		`SELECT ${TEST_COLUMNS}, pt.position, pt.norm_group_id, ng.group_code, pt.override_reason,
+		        ng.age_min_months, ng.age_max_months, ng.sex, ng.edu_min, ng.edu_max
 		   FROM protocol_tests pt
 		   JOIN tests t ON t.id = pt.test_id
 		   JOIN domains d ON d.code = t.domain
@@ -90,7 +91,15 @@ export async function protocolTests(protocolId: number, t?: Tx): Promise<(Catalo
 		{ protocolId },
 		t
 	);
-	return rows.map((r) => ({ ...toCatalogTest(r), position: r.position, groupId: r.norm_group_id, groupCode: r.group_code, overrideReason: r.override_reason }));
+	return rows.map((r) => ({
+		...toCatalogTest(r),
+		position: r.position,
+		groupId: r.norm_group_id,
+		groupCode: r.group_code,
+		// what the group covers, for people ("ages 30;0–39;11, 13+ years of education")
+		groupText: r.group_code === null ? '—' : groupCoverage(groupDef({ ...r, test_code: r.code, id: r.norm_group_id ?? 0, mean: 0, sd: 1, n: null } as NormGroupRow)),
+		overrideReason: r.override_reason
+	}));
 }
 
 export interface NormGroupRow {

@@ -156,6 +156,13 @@ export async function engineInput(p: ProtocolRow, passes: { first: Scores; secon
 	};
 }
 
+/** A discrepancy's `alternative` at its field's precision, or null. */
+function altOf(d: ReconcileResult['discrepancies'][number]): string | null {
+	const a = d.alternative;
+	if (a === null || a === undefined || d.field === 'raw') return null;
+	return formatReference(d.field, a);
+}
+
 /** Store a reconciliation result as the round's discrepancy list: one multi-row INSERT (not one per row). */
 export async function storeDiscrepancies(p: ProtocolRow, result: ReconcileResult, t: Tx) {
 	const CHUNK = 500;
@@ -174,12 +181,14 @@ export async function storeDiscrepancies(p: ProtocolRow, result: ReconcileResult
 				[`other${i}`]: d.other === null ? null : String(d.other),
 				// written at the field's precision (z as 1.00), as a reviewer keeps it
 				[`expected${i}`]: d.expected === null ? null : d.field === 'raw' ? String(d.expected) : formatReference(d.field, d.expected),
+				// rule 5: the reference from the other pass's raw score (null where the rule gives none)
+				[`alt${i}`]: altOf(d),
 				[`oor${i}`]: d.out_of_range ? 1 : 0
 			});
-			return `(:p, :round, :pos${i}, :test${i}, :field${i}, :pass${i}, :kind${i}, :value${i}, :other${i}, :expected${i}, :oor${i})`;
+			return `(:p, :round, :pos${i}, :test${i}, :field${i}, :pass${i}, :kind${i}, :value${i}, :other${i}, :expected${i}, :alt${i}, :oor${i})`;
 		});
 		await exec(
-			`INSERT INTO discrepancies (protocol_id, round, position, test_code, field, pass, kind, value, other, expected, out_of_range) VALUES ${rows.join(', ')}`,
+			`INSERT INTO discrepancies (protocol_id, round, position, test_code, field, pass, kind, value, other, expected, alternative, out_of_range) VALUES ${rows.join(', ')}`,
 			params,
 			t
 		);

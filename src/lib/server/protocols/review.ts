@@ -16,6 +16,10 @@ import type { Field } from '../../scoring/scales';
 import { recordResolution } from '../audit-stats/record';
 import { afterResolution, isSinglePass } from '../verification';
 import type { Scores } from './passes';
+import { rejudgeDerived } from './evidence';
+import { waitsOn } from '../../scoring/waits';
+import { kindName } from '../../scoring/kinds';
+import { FIELD_LABELS } from '../../status';
 
 export interface DiscrepancyRow {
 	id: number;
@@ -29,6 +33,7 @@ export interface DiscrepancyRow {
 	value: string | null;
 	other: string | null;
 	expected: string | null;
+	alternative: string | null;
 	out_of_range: number;
 	resolution: 'first' | 'second' | 'recomputed' | 'other' | null;
 	resolved_value: string | null;
@@ -36,11 +41,40 @@ export interface DiscrepancyRow {
 	resolved_by: number | null;
 	resolved_at: Date | null;
 	lock_version: number;
+	settled_by: 'raw_decision' | 'amendment' | null;
+	settled_by_id: number | null;
+	carried_from: number | null;
 }
 
 /** First and second pass's values of a discrepancy (value/other are stored relative to the flagged pass). */
 export function passValues(d: Pick<DiscrepancyRow, 'pass' | 'value' | 'other'>): { first: string | null; second: string | null } {
 	return d.pass === 'second' ? { first: d.other, second: d.value } : { first: d.value, second: d.other };
+}
+
+/** Numerically equal values (a note is needed only when the kept value differs from the recomputation). */
+const same = (a: string | null, b: string | null) => a !== null && b !== null && Number(a) === Number(b);
+
+/**
+ * Rule 5 in words: a single pass's derived value that is right for the other pass's raw score
+ * ("fits the first pass's raw score 24"), or null.
+ */
+function fitsOther(d: Pick<DiscrepancyRow, 'field' | 'pass' | 'value' | 'alternative' | 'kind'>, otherRaw: string | null, ownRaw: string | null): string | null {
+	if (d.field === 'raw' || d.pass === 'both' || d.alternative === null || d.value === null || otherRaw === null) return null;
+	if ((d.kind as string) !== 'follows_other_raw' && !same(d.value, d.alternative)) return null;
+	const other = d.pass === 'first' ? 'second' : 'first';
+	return `fits the ${other} pass’s raw score ${otherRaw}${ownRaw !== null ? ` — the raw ${ownRaw} is likely a typing slip` : ''}`;
+}
+
+/** On a raw card: which pass's derived values fit the other pass's raw score (rule 5's evidence). */
+function slipOf(d: DiscrepancyRow, rows: DiscrepancyRow[], rawOf: (w: 'first' | 'second', code: string) => string | null): string | null {
+	for (const which of ['first', 'second'] as const) {
+		const other = which === 'first' ? 'second' : 'first';
+		const fit = rows.filter((x) => x.test_code === d.test_code && x.field !== 'raw' && x.pass === which && fitsOther(x, rawOf(other, d.test_code), null));
+		if (fit.length === 0) continue;
+		const words = fit.map((x) => FIELD_LABELS[x.field]?.toLowerCase().replace('t-score', 'T-score') ?? x.field).join(', ');
+		return `The ${which} pass’s ${words} fit${fit.length === 1 ? 's' : ''} the ${other} pass’s raw score ${rawOf(other, d.test_code)} — the raw ${rawOf(which, d.test_code)} is likely a typing slip.`;
+	}
+	return null;
 }
 
 function requireReviewer(duties: string[]) {
@@ -61,11 +95,20 @@ export async function reviewView(protocolId: number, user: Actor) {
 		  WHERE d.protocol_id = :p AND d.round = :r ORDER BY d.position`,
 		{ p: p.id, r: p.round }
 	);
+	const items = rows.map((d) => ({ id: d.id, test: d.test_code, field: d.field, open: d.resolved_at === null }));
+	// an amendment that opened this round: its field's card offers the amended value and the reason
+	const amended = await select<{ test_code: string; field: string; new_value: string; old_value: string | null; reason: string; name: string; decided_at: Date }>(
+		`SELECT a.test_code, a.field, a.new_value, a.old_value, a.reason, u.name, a.decided_at FROM amendments a JOIN users u ON u.id = a.requested_by
+		  WHERE a.protocol_id = :p AND a.round = :r AND a.status = 'applied'`,
+		{ p: p.id, r: p.round }
+	);
+	const byId = new Map(rows.map((d) => [d.id, d]));
+	const seenKinds = new Set<string>();
 	return {
 		protocol: p,
 		canResolve: duties.includes('reviewer') && p.status === 'in_review',
 		singlePass: await isSinglePass(p.id),
-		tests: tests.map((x) => ({ code: x.code, name: x.name, domain: x.domainName, group: x.groupCode, raw: x.raw, bounds: x.bounds, reported: x.reported })),
+		tests: tests.map((x) => ({ code: x.code, name: x.name, domain: x.domainName, group: x.groupText, raw: x.raw, bounds: x.bounds, reported: x.reported })),
 		discrepancies: rows.map((d) => {
 			const v = passValues(d);
 			const test = tests.find((x) => x.code === d.test_code);
@@ -73,13 +116,28 @@ export async function reviewView(protocolId: number, user: Actor) {
 				id: d.id,
 				test: d.test_code,
 				testName: test?.name ?? d.test_code,
-				group: test?.groupCode ?? null,
+				group: test?.groupText ?? null,
 				raws: { first: rawOf('first', d.test_code), second: rawOf('second', d.test_code) },
 				domain: test?.domainName ?? '',
 				field: d.field,
 				pass: d.pass,
 				kind: d.kind,
+				kindName: kindName(d.kind),
 				explanation: explainKind(d.kind),
+				// the long explanation is shown once per kind (on its first card); chips keep it as a tooltip
+				firstOfKind: !seenKinds.has(d.kind) && !!seenKinds.add(d.kind),
+				alternative: d.alternative,
+				fits: fitsOther(d, rawOf(d.pass === 'second' ? 'first' : 'second', d.test_code), d.pass === 'both' ? null : rawOf(d.pass, d.test_code)),
+				slip: d.field === 'raw' ? slipOf(d, rows, rawOf) : null,
+				waitsOn: waitsOn(items.find((x) => x.id === d.id)!, items).map((w) => ({ id: w.id, field: w.field })),
+				settledBy: d.settled_by,
+				settledByRaw: d.settled_by === 'raw_decision' && d.settled_by_id ? byId.get(d.settled_by_id)?.resolved_value ?? null : null,
+				carried: d.carried_from !== null && d.resolved_at !== null,
+				amendment: (() => {
+					const a = amended.find((x) => x.test_code === d.test_code && x.field === d.field);
+					return a ? { value: a.new_value, before: a.old_value, reason: a.reason, by: a.name, at: a.decided_at } : null;
+				})(),
+				contradicts: d.resolved_at !== null && d.expected !== null && !same(d.resolved_value, d.expected),
 				first: v.first,
 				second: v.second,
 				expected: d.expected,
@@ -103,8 +161,6 @@ export const resolutionSchema = z.object({
 	lockVersion: z.number().int().min(1)
 });
 
-/** Numerically equal values (a note is needed only when the kept value differs from the recomputation). */
-const same = (a: string | null, b: string | null) => a !== null && b !== null && Number(a) === Number(b);
 
 export async function resolveDiscrepancy(discrepancyId: number, user: Actor, body: unknown) {
 	const parsed = resolutionSchema.safeParse(body);
@@ -120,6 +176,14 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 		requireReviewer(duties);
 		if (p.status !== 'in_review' || d.round !== p.round) throw conflict('This protocol is not open for review (signed off, or a newer round exists).');
 		if (parsed.data.lockVersion !== d.lock_version) throw await staleResolution(d.id, t);
+		if (d.field !== 'raw') {
+			const raw = await selectOne<{ id: number }>(
+				`SELECT id FROM discrepancies WHERE protocol_id = :p AND round = :r AND test_code = :test AND field = 'raw' AND resolved_at IS NULL`,
+				{ p: p.id, r: p.round, test: d.test_code },
+				t
+			);
+			if (raw) throw new WorkflowError(409, 'Settle this test’s raw score first: its derived scores are judged again against the raw score you keep.', 'choice', 'waits_on_raw');
+		}
 		const v = passValues(d);
 		let kept: string | null;
 		if (choice === 'first') kept = v.first;
@@ -161,8 +225,10 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 		);
 		await recordResolution(d.id, t);
 		await afterResolution(d.id, t);
+		// The raw score is settled: the test's derived discrepancies are judged again, in this transaction.
+		const rejudged = d.field === 'raw' ? await rejudgeDerived(p, d.test_code, kept, { by: 'raw_decision', id: d.id, actorId: user.id }, t) : null;
 		const open = await selectOne<{ n: number }>('SELECT COUNT(*) AS n FROM discrepancies WHERE protocol_id = :p AND round = :r AND resolved_at IS NULL', { p: p.id, r: p.round }, t);
-		return { id: d.id, resolution: choice, resolvedValue: kept, note: note || null, lockVersion: d.lock_version + 1, open: Number(open?.n ?? 0) };
+		return { id: d.id, resolution: choice, resolvedValue: kept, note: note || null, lockVersion: d.lock_version + 1, open: Number(open?.n ?? 0), rejudged };
 	});
 }
 
@@ -176,8 +242,19 @@ async function staleResolution(id: number, t: Transaction): Promise<WorkflowErro
 	return new WorkflowError(409, `Someone else changed this discrepancy first${now?.name ? ` (${now.name} kept ${now.resolved_value ?? 'no value'})` : ''}. Reload to see it; your choice was not saved.`, undefined, 'stale');
 }
 
+/** Kept values that differ from the recomputation (each with its note): sign-off lists them for one confirmation. */
+export async function keptAgainstRecomputation(protocolId: number, round: number, t?: Transaction) {
+	const rows = await select<{ id: number; test_code: string; field: Field; resolved_value: string | null; expected: string | null; note: string | null }>(
+		`SELECT id, test_code, field, resolved_value, expected, note FROM discrepancies
+		  WHERE protocol_id = :p AND round = :r AND resolved_at IS NOT NULL AND expected IS NOT NULL ORDER BY position`,
+		{ p: protocolId, r: round },
+		t
+	);
+	return rows.filter((d) => !same(d.resolved_value, d.expected)).map((d) => ({ id: d.id, test: d.test_code, field: d.field, kept: d.resolved_value, recomputed: d.expected, note: d.note }));
+}
+
 export async function signOff(protocolId: number, user: Actor, body: unknown) {
-	const parsed = z.object({ lockVersion: z.number().int().min(1) }).safeParse(body);
+	const parsed = z.object({ lockVersion: z.number().int().min(1), confirmKept: z.boolean().optional() }).safeParse(body);
 	if (!parsed.success) throw invalid('lockVersion: expected the protocol version you reviewed', 'lockVersion');
 	return transaction(async (t) => {
 		const { p, duties } = await protocolFor(protocolId, user, t, true);
@@ -187,6 +264,11 @@ export async function signOff(protocolId: number, user: Actor, body: unknown) {
 		if (p.lock_version !== parsed.data.lockVersion) throw new WorkflowError(409, 'The protocol changed since you opened it (reassigned or reopened). Reload and check before signing off.', undefined, 'stale');
 		const open = await selectOne<{ n: number }>('SELECT COUNT(*) AS n FROM discrepancies WHERE protocol_id = :p AND round = :r AND resolved_at IS NULL', { p: p.id, r: p.round }, t);
 		if (Number(open?.n) > 0) throw conflict(`${open?.n} discrepanc${Number(open?.n) === 1 ? 'y is' : 'ies are'} still open. Resolve every one before signing off.`);
+		const against = await keptAgainstRecomputation(p.id, p.round, t);
+		if (against.length > 0 && parsed.data.confirmKept !== true) {
+			const list = against.map((x) => `${x.test} ${FIELD_LABELS[x.field] ?? x.field}: kept ${x.kept}, recomputed ${x.recomputed}`).join('; ');
+			throw new WorkflowError(409, `Confirm the ${against.length} kept value${against.length === 1 ? '' : 's'} that differ${against.length === 1 ? 's' : ''} from the recomputation before signing off (${list}).`, 'confirmKept', 'confirm_kept');
+		}
 		// compare-and-set: on a Galera cluster the FOR UPDATE above locks only on this node
 		const moved = await exec(
 			`UPDATE protocols SET status = 'verified', verified_at = CURRENT_TIMESTAMP(3), verified_by = :uid, status_changed_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1
@@ -195,7 +277,7 @@ export async function signOff(protocolId: number, user: Actor, body: unknown) {
 			t
 		);
 		if (moved.affected !== 1) throw new WorkflowError(409, 'This protocol was signed off or changed at the same moment elsewhere. Reload to see its state.', undefined, 'stale');
-		await audit({ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'sign_off', oldValue: 'in_review', newValue: { status: 'verified', round: p.round } }, t);
+		await audit({ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'sign_off', oldValue: 'in_review', newValue: { status: 'verified', round: p.round, ...(against.length ? { keptAgainstRecomputation: against } : {}) } }, t);
 		return { status: 'verified' as const };
 	});
 }
@@ -220,9 +302,10 @@ export async function reopen(protocolId: number, user: Actor, reason: string) {
 				t
 			);
 		}
+		// unresolved, each pointing at its previous decision (shown and offered as the default)
 		await exec(
-			`INSERT INTO discrepancies (protocol_id, round, position, test_code, field, pass, kind, value, other, expected, out_of_range)
-			 SELECT protocol_id, :next, position, test_code, field, pass, kind, value, other, expected, out_of_range FROM discrepancies WHERE protocol_id = :p AND round = :r`,
+			`INSERT INTO discrepancies (protocol_id, round, position, test_code, field, pass, kind, value, other, expected, alternative, out_of_range, carried_from)
+			 SELECT protocol_id, :next, position, test_code, field, pass, kind, value, other, expected, alternative, out_of_range, id FROM discrepancies WHERE protocol_id = :p AND round = :r`,
 			{ next, p: p.id, r: p.round },
 			t
 		);
@@ -235,7 +318,7 @@ export async function reopen(protocolId: number, user: Actor, reason: string) {
 		if (moved.affected !== 1) throw conflict('This protocol was reopened at the same moment elsewhere.');
 		await audit({ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'reopen', oldValue: { status: 'verified', round: p.round }, newValue: { status: 'in_review', round: next }, reason: reason.trim() }, t);
 		const { notifyReviewStarted } = await import('../mail/review');
-		await notifyReviewStarted(p.id, next, p.reviewer_id, t);
+		await notifyReviewStarted(p.id, next, p.reviewer_id, t, { action: 'reopen', reason: reason.trim() });
 		return { round: next };
 	});
 }
@@ -250,14 +333,15 @@ export async function previousDecisions(protocolId: number, round: number) {
 }
 
 /** The verified value of every field: the pass value where both agreed, else the resolution. */
-export async function finalScores(protocolId: number, round: number): Promise<Scores> {
-	const first = await selectOne<{ scores: unknown }>('SELECT scores FROM passes WHERE protocol_id = :p AND round = :r AND which = \'first\'', { p: protocolId, r: round });
-	const second = await selectOne<{ scores: unknown }>('SELECT scores FROM passes WHERE protocol_id = :p AND round = :r AND which = \'second\'', { p: protocolId, r: round });
+export async function finalScores(protocolId: number, round: number, t?: Transaction): Promise<Scores> {
+	const first = await selectOne<{ scores: unknown }>('SELECT scores FROM passes WHERE protocol_id = :p AND round = :r AND which = \'first\'', { p: protocolId, r: round }, t);
+	const second = await selectOne<{ scores: unknown }>('SELECT scores FROM passes WHERE protocol_id = :p AND round = :r AND which = \'second\'', { p: protocolId, r: round }, t);
 	const a = jsonValue<Scores>(first?.scores) ?? {};
 	const b = jsonValue<Scores>(second?.scores) ?? {};
 	const rows = await select<{ test_code: string; field: Field; resolved_value: string | null }>(
-		'SELECT test_code, field, resolved_value FROM discrepancies WHERE protocol_id = :p AND round = :r AND resolved_at IS NOT NULL',
-		{ p: protocolId, r: round }
+		'SELECT test_code, field, resolved_value FROM discrepancies WHERE protocol_id = :p AND round = :r AND resolved_at IS NOT NULL ORDER BY position',
+		{ p: protocolId, r: round },
+		t
 	);
 	const out: Scores = {};
 	for (const code of new Set([...Object.keys(a), ...Object.keys(b)])) {

@@ -453,7 +453,7 @@ export async function protocolView(id: number, user: Actor) {
 		},
 		battery: battery!,
 		normSet: set ? { name: set.name, version: set.version, source: set.source } : null,
-		tests: tests.map((x) => ({ code: x.code, name: x.name, domain: x.domainName, group: x.groupCode, overrideReason: x.overrideReason, version: x.version })),
+		tests: tests.map((x) => ({ code: x.code, name: x.name, domain: x.domainName, group: x.groupText, overrideReason: x.overrideReason, version: x.version, reported: x.reported as string[] })),
 		assignments: { first: nameOf(p.first_scorer_id), second: nameOf(p.second_scorer_id), reviewer: nameOf(p.reviewer_id) },
 		passes: passes.map((x) => ({ which: x.which, status: x.status, submittedAt: x.submitted_at, fieldsEntered: x.fields_entered, started: x.draft_version > 0 })),
 		discrepancies: { open: Number(open?.open ?? 0), total: Number(open?.total ?? 0) },

@@ -7,7 +7,8 @@ import { selectOne } from '../db';
 import { writeCsv } from '../../csv';
 import { protocolFor, type Actor } from './service';
 import { protocolTests, normGroups, normSet } from './catalog-read';
-import { finalScores } from './review';
+import { finalScores, keptAgainstRecomputation } from './review';
+import { protocolAmendments } from './amendments';
 import { isSinglePass, SINGLE_PASS_NOTE } from '../verification';
 import { notFound, WorkflowError } from './errors';
 import { labelFor, AACN_2020 } from '../../scoring/labels';
@@ -34,6 +35,8 @@ export interface SummaryRow {
 	z: number | null;
 	/** True when a verified derived score differs from what the verified raw score gives. */
 	inconsistent: boolean;
+	/** Cells whose kept value contradicts the recomputation: the reviewer's judgement, with the note. */
+	kept: Partial<Record<'raw' | DerivedField, { recomputed: string | null; note: string | null }>>;
 }
 
 function toZ(field: DerivedField, v: number): number {
@@ -54,6 +57,8 @@ export async function protocolSummary(protocolId: number, user: Actor) {
 	const tests = await protocolTests(p.id);
 	const groups = await normGroups(p.norm_set_id, tests.map((t) => t.code));
 	const scores = await finalScores(p.id, p.round);
+	const against = await keptAgainstRecomputation(p.id, p.round);
+	const amendments = (await protocolAmendments(p.id)).filter((a) => a.status === 'applied');
 	const rows: SummaryRow[] = tests.map((t) => {
 		const s = scores[t.code] ?? {};
 		const values: Partial<Record<DerivedField, string | null>> = {};
@@ -83,13 +88,16 @@ export async function protocolSummary(protocolId: number, user: Actor) {
 					})()
 				: null;
 		const z = basis && basisValue !== null && !Number.isNaN(basisValue) ? toZ(basis, basisValue) : zRef;
-		return { code: t.code, name: t.name, domain: t.domainName, unit: t.unit, direction: t.direction, group: t.groupCode, raw: s.raw ?? null, values, reported: t.reported, percentile, label, ci, z, inconsistent };
+		const kept: SummaryRow['kept'] = {};
+		for (const k of against) if (k.test === t.code && (s[k.field] ?? null) !== null && Number(s[k.field]) === Number(k.kept)) kept[k.field] = { recomputed: k.recomputed, note: k.note };
+		return { code: t.code, name: t.name, domain: t.domainName, unit: t.unit, direction: t.direction, group: t.groupText, raw: s.raw ?? null, values, reported: t.reported, percentile, label, ci, z, inconsistent, kept };
 	});
 	const placed = rows.filter((r) => r.z !== null);
 	return {
 		protocol: { id: p.id, code: ex!.code, testDate: p.test_date, age: p.age_text, battery: battery!.name, round: p.round, verifiedAt: p.verified_at, verifiedBy: signer?.name ?? null, singlePass: await isSinglePass(p.id) },
 		normSet: set ? { name: set.name, version: set.version, source: set.source } : null,
 		rows,
+		amendments: amendments.map((a) => ({ id: a.id, test: a.test_name ?? a.test_code, field: a.field, before: a.old_value, after: a.new_value, reason: a.reason, by: a.requested_by_name, approvedBy: a.decided_by_name, at: a.decided_at, round: a.round })),
 		lowScores: { below: placed.filter((r) => (r.z as number) < -1).length, given: placed.length },
 		labelScheme: { name: AACN_2020.name, source: AACN_2020.source }
 	};
@@ -97,7 +105,7 @@ export async function protocolSummary(protocolId: number, user: Actor) {
 
 /** The summary as CSV (one row per test) through the one CSV writer (src/lib/csv.ts), norms and caution as comment lines. */
 export function summaryCsv(s: Awaited<ReturnType<typeof protocolSummary>>): string {
-	const head = ['examinee_code', 'test_date', 'age', 'domain', 'test', 'norm_group', 'raw', 'z', 'standard', 'scaled', 't', 'percentile', 'percentile_recomputed', 'label', 'ci95_lower', 'ci95_upper', 'ci_scale', 'entry'];
+	const head = ['examinee_code', 'test_date', 'age', 'domain', 'test', 'norm_group', 'raw', 'z', 'standard', 'scaled', 't', 'percentile', 'percentile_recomputed', 'label', 'ci95_lower', 'ci95_upper', 'ci_scale', 'entry', 'kept_against_recomputation'];
 	const entry = s.protocol.singlePass ? 'single pass' : 'double entry';
 	const rows = s.rows.map((r) => [
 		s.protocol.code,
@@ -117,7 +125,8 @@ export function summaryCsv(s: Awaited<ReturnType<typeof protocolSummary>>): stri
 		r.ci?.lower,
 		r.ci?.upper,
 		r.ci?.field,
-		entry
+		entry,
+		Object.entries(r.kept).map(([f, k]) => `${f} (recomputed ${k?.recomputed})`).join('; ')
 	]);
 	return writeCsv(head, rows, {
 		comments: [

@@ -5,6 +5,7 @@ import { requireUser, requireRole, idParam } from '$lib/server/guard';
 import { protocolView, protocolHistoryFor, reassign, planGroups } from '$lib/server/protocols/service';
 import { addAttachment } from '$lib/server/protocols/attachments';
 import { reopen } from '$lib/server/protocols/review';
+import { protocolAmendments } from '$lib/server/protocols/amendments';
 import { requireSecondPass } from '$lib/server/verification';
 import { usersWithRole } from '$lib/server/users';
 import { listProtocolMail, notifyReviewerChanged } from '$lib/server/mail/review';
@@ -28,7 +29,9 @@ export const load: PageServerLoad = async (event) => {
 		const people = isLead
 			? { scorers: (await usersWithRole('scorer')).map((u) => ({ id: u.id, name: u.name })), reviewers: (await usersWithRole('reviewer')).map((u) => ({ id: u.id, name: u.name })) }
 			: null;
+		const amendments = isLead || view.duties.includes('reviewer') ? await protocolAmendments(id) : [];
 		return {
+			amendments,
 			view: { ...view, protocol: { ...view.protocol, status_changed_at: view.protocol.status_changed_at, created_at: view.protocol.created_at } },
 			history,
 			mail,

@@ -19,7 +19,7 @@ export const load: PageServerLoad = async (event) => {
 			scores: pass.scores,
 			draftVersion: pass.draftVersion,
 			submittedAt: pass.submittedAt,
-			tests: pass.tests.map((t) => ({ code: t.code, name: t.name, domain: t.domainName, unit: t.unit, direction: t.direction, group: t.groupCode, raw: t.raw, bounds: t.bounds, reported: t.reported }))
+			tests: pass.tests.map((t) => ({ code: t.code, name: t.name, domain: t.domainName, unit: t.unit, direction: t.direction, group: t.groupText, raw: t.raw, bounds: t.bounds, reported: t.reported }))
 		};
 	} catch (e) {
 		pageError(e);
