@@ -21,7 +21,7 @@ export default {
 		},
 		extend: {
 			colors: {
-				ink: { DEFAULT: '#1d2733', soft: '#4a5563', faint: '#7b8591' },
+				ink: { DEFAULT: '#1d2733', soft: '#4a5563', faint: '#5f6874' },
 				paper: { DEFAULT: '#f7f4ee', raised: '#fffdf9', sunk: '#eee8dd' },
 				line: { DEFAULT: '#dcd4c6', strong: '#b9ae9c' },
 				accent: { DEFAULT: '#1e5f74', hover: '#174b5c', soft: '#e2eef2' },

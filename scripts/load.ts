@@ -54,7 +54,12 @@ const samples: number[] = [];
 const byStep: Record<string, number[]> = {};
 const statuses: Record<string, number> = {};
 const errors: string[] = [];
+/** When each failed request ended (for a run that stops servers on purpose: scripts/cluster/run.ts). */
+const errorEvents: { t: number; step: string; status: number | null; protocol?: number }[] = [];
+const protocolOf = (path: string) => Number(path.match(/\/protocols\/(\d+)/)?.[1]) || undefined;
 let expected409 = 0;
+/** exceptions that only follow from a failed request already counted in errors */
+const followOn: string[] = [];
 
 async function timed(step: string, c: AnyClient, path: string, init: Parameters<AnyClient['request']>[1] = {}, allow409 = false): Promise<Response> {
 	const t0 = performance.now();
@@ -63,6 +68,7 @@ async function timed(step: string, c: AnyClient, path: string, init: Parameters<
 		res = await c.request(path, init);
 	} catch (e) {
 		errors.push(`${step} ${path}: ${e instanceof Error ? e.message : e}`);
+		errorEvents.push({ t: Date.now(), step, status: null, protocol: protocolOf(path) });
 		throw e;
 	}
 	const ms = performance.now() - t0;
@@ -72,6 +78,7 @@ async function timed(step: string, c: AnyClient, path: string, init: Parameters<
 	if (res.status === 409 && allow409) expected409++;
 	else if (res.status >= 300 && !(res.status === 200 || res.status === 303)) {
 		errors.push(`${step} ${init.method ?? 'GET'} ${path}: ${res.status} ${(await res.clone().text()).slice(0, 200)}`);
+		errorEvents.push({ t: Date.now(), step, status: res.status, protocol: protocolOf(path) });
 	}
 	return res;
 }
@@ -123,7 +130,9 @@ async function main() {
 	log(`${USERS} users for ${DURATION_S} s against ${base} (run ${RUN})`);
 
 	async function enter(c: AnyClient, id: number, scores: Scores, twoTabs: boolean): Promise<{ status: number; body: { status?: string; discrepancies?: number | null } }> {
-		const pass = await (await timed('get pass', c, `/api/v1/protocols/${id}/pass`)).json();
+		const got = await timed('get pass', c, `/api/v1/protocols/${id}/pass`);
+		if (got.status !== 200) throw new Error(`get pass ${id}: ${got.status}`); // counted; ends this protocol
+		const pass = await got.json();
 		const put = await timed('save draft', c, `/api/v1/protocols/${id}/pass`, { method: 'PUT', json: { scores, draftVersion: pass.draftVersion } });
 		const saved = await put.json();
 		const submit = () => timed('submit', c, `/api/v1/protocols/${id}/pass`, { method: 'POST', json: { draftVersion: saved.draftVersion } }, twoTabs);
@@ -140,6 +149,19 @@ async function main() {
 	async function user(u: number) {
 		while (Date.now() < deadline && n < MAX_PROTOCOLS) {
 			const k = n++;
+			const seen = errorEvents.length;
+			try {
+				await oneProtocol(u, k);
+			} catch (e) {
+				// a failed request already counted (e.g. a 502 body that is not JSON) ends this protocol only
+				if (errorEvents.length > seen) followOn.push(`user ${u}: ${e instanceof Error ? e.message : e}`);
+				else errors.push(`user ${u}: ${e instanceof Error ? e.stack : e}`);
+			}
+		}
+	}
+
+	async function oneProtocol(u: number, k: number) {
+		{
 			const [a, b] = [scorers[k % 3], scorers[(k + 1 + (u % 2)) % 3]];
 			const rv = reviewers[k % 2];
 			const form = {
@@ -151,7 +173,7 @@ async function main() {
 			const id = Number(String(cb.location ?? '').match(/\/protocols\/(\d+)/)?.[1]);
 			if (!id) {
 				errors.push(`create: ${JSON.stringify(cb).slice(0, 200)}`);
-				continue;
+				return;
 			}
 			const m: Made = { id, engineCount: null, resolved: 0, signedOff: false, submits: 0 };
 			made.push(m);
@@ -162,10 +184,10 @@ async function main() {
 			if (k % 3 !== 0) second['word-recall'].standard = first['word-recall'].standard!.replace(/^(\d)(\d)(\d)$/, '$1$3$2');
 			if (k % 2 === 0) second['speeded-match'].z = String(-Number(first['speeded-match'].z));
 			const r1 = await enter(a.c, id, first, false);
-			if (r1.status !== 200) continue;
+			if (r1.status !== 200) return;
 			m.submits++;
 			const r2 = await enter(b.c, id, second, k % 5 === 0);
-			if (r2.status !== 200) continue;
+			if (r2.status !== 200) return;
 			m.submits++;
 			m.engineCount = Number(r2.body.discrepancies);
 			await timed('review page', rv.c, `/protocols/${id}/review`, { headers: { accept: 'text/html' } });
@@ -257,7 +279,7 @@ async function main() {
 	for (const e of errors.slice(0, 10)) log(`error: ${e}`);
 	for (const p of problems.slice(0, 10)) log(`count: ${p}`);
 	mkdirSync(dirname(OUT), { recursive: true });
-	writeFileSync(OUT, JSON.stringify({ ...summary, error_samples: errors.slice(0, 50), count_problem_samples: problems.slice(0, 50) }, null, 2) + '\n');
+	writeFileSync(OUT, JSON.stringify({ ...summary, error_samples: errors.slice(0, 50), error_events: errorEvents.slice(0, 2000), other_errors: errors.length - errorEvents.length, follow_on: followOn.slice(0, 50), count_problem_samples: problems.slice(0, 50) }, null, 2) + '\n');
 	console.log(`BENCH_JSON ${JSON.stringify(summary)}`);
 	await closeRedis().catch(() => undefined);
 	await closeDb();

@@ -12,6 +12,7 @@ import { closeDb } from '../src/lib/server/db';
 import '../src/lib/server/mail/review'; // registers the review renderers
 import '../src/lib/server/mail/verification'; // registers the back-to-full-double-entry e-mail
 import { sweepMail, markMailFailed } from '../src/lib/server/mail/recover';
+import { sweepMarkers } from '../src/lib/server/models/commit-marker';
 
 const interval = Number(process.env.DISPATCH_INTERVAL_MS ?? 500);
 const sweepMs = Number(process.env.MAIL_SWEEP_MS ?? 30_000);
@@ -49,6 +50,7 @@ async function loop() {
 				const s = await sweepMail();
 				if (s.redispatched + s.claimsTakenBack + s.markedUncertain + s.failed > 0)
 					console.error(`[worker] mail sweep: ${s.redispatched} re-dispatched, ${s.claimsTakenBack} abandoned claim(s) retried, ${s.markedUncertain} marked uncertain, ${s.failed} failed`);
+				await sweepMarkers(); // commit markers older than an hour (see src/lib/server/db.ts)
 			}
 			const n = await dispatchOutbox();
 			if (lastError) console.error('[worker] dispatch recovered');

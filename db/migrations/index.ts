@@ -5,6 +5,7 @@ import * as m00003 from './00003-protocols';
 import * as m00006 from './00006-audit';
 import * as m00007 from './00007-list-indexes';
 import * as m00014 from './00014-norm-forms';
+import * as m00017 from './00017-commit-markers';
 import * as m00019 from './00019-verification';
 import * as m00022 from './00022-mail-claims';
 import * as m00023 from './00023-review-evidence';
@@ -16,6 +17,7 @@ export const migrations = [
 	{ name: '00006-audit', ...m00006 },
 	{ name: '00007-list-indexes', ...m00007 },
 	{ name: '00014-norm-forms', ...m00014 },
+	{ name: '00017-commit-markers', ...m00017 },
 	{ name: '00019-verification', ...m00019 },
 	{ name: '00022-mail-claims', ...m00022 },
 	{ name: '00023-review-evidence', ...m00023 }

@@ -88,6 +88,8 @@ function table(): Row[] {
 	const r = results;
 	if (r.reconcile)
 		rows.push({ area: 'reconcile', figure: `engine, ${r.reconcile.protocols} protocols (${r.reconcile.engine_protocols_per_s}/s)`, value: `${f(r.reconcile.engine_ms)} ms`, floor: `${f(r.reconcile.floor_ms)} ms JSON parse+stringify`, ratio: f(r.reconcile.ratio, 2), goal: '≤ 3', met: yes(r.reconcile.ratio <= 3) });
+	if (r.reconcile?.forms)
+		rows.push({ area: 'reconcile', figure: `engine, tables/regression/bands/composites, ${r.reconcile.forms.protocols} protocols (${r.reconcile.forms.engine_protocols_per_s}/s)`, value: `${f(r.reconcile.forms.engine_ms)} ms`, floor: `${f(r.reconcile.forms.floor_ms)} ms JSON parse+stringify`, ratio: f(r.reconcile.forms.ratio, 2), goal: '≤ 3', met: yes(r.reconcile.forms.ratio <= 3) });
 	if (r.mail)
 		rows.push({ area: 'mail', figure: `${r.mail.protocols} first e-mails caught`, value: `${f(r.mail.all_caught_ms, 0)} ms (${r.mail.emails_per_second}/s, p95 ${r.mail.latency_ms?.p95} ms)`, floor: 'none measured', ratio: '—', goal: 'no duplicates', met: yes(r.mail.duplicates === 0) });
 	if (r.audit)

@@ -191,7 +191,15 @@ function formsProtocol(): ReconcileInput {
 			for (const fld of t.reported) {
 				let v: Entered = rr[fld];
 				if (rand() < ERROR_RATE) {
-					const other = norm.form === 'table' ? (testReferences(t, F_NORMS.find((n) => !('composite' in n) && n.test === t.id && n.group !== group) as NormEntry, r, COVARIATES) as Record<string, Entered>)[fld] : null;
+					let other: Entered = null;
+					if (norm.form === 'table' && rand() < 0.5) {
+						// a look-up slip: the row just above or below
+						const at = norm.rows.findIndex((row) => row.raw[0] <= r && r <= row.raw[1]);
+						const nb = norm.rows[at + (rand() < 0.5 ? -1 : 1)];
+						if (nb) other = (testReferences(t, norm, nb.raw[0], COVARIATES) as Record<string, Entered>)[fld];
+					} else if (norm.form === 'table') {
+						other = (testReferences(t, F_NORMS.find((n) => !('composite' in n) && n.test === t.id && n.group !== group) as NormEntry, r, COVARIATES) as Record<string, Entered>)[fld];
+					}
 					v = other ?? (typeof v === 'number' ? slip(fld, v) : '10-24');
 				}
 				e[fld] = fld === 'z' && typeof v === 'number' ? v.toFixed(2) : v;

@@ -5,7 +5,13 @@ ensure_packages() {
 	local missing=()
 	command -v mariadbd >/dev/null 2>&1 || [ -x /usr/sbin/mariadbd ] || missing+=(mariadb-server mariadb-client)
 	command -v redis-server >/dev/null 2>&1 || missing+=(redis-server)
-	if [ "${CROSSTALLY_NEED_BROWSER:-0}" = 1 ] && ! command -v chromium >/dev/null 2>&1; then missing+=(chromium); fi
+	if [ "${CROSSTALLY_NEED_BROWSER:-0}" = 1 ]; then
+		command -v chromium >/dev/null 2>&1 || missing+=(chromium)
+		# the print and report tests read the PDF and the .docx back with independent tools
+		command -v pdftoppm >/dev/null 2>&1 && command -v pdftotext >/dev/null 2>&1 || missing+=(poppler-utils)
+		command -v pandoc >/dev/null 2>&1 || missing+=(pandoc)
+		command -v unzip >/dev/null 2>&1 || missing+=(unzip)
+	fi
 	if [ ${#missing[@]} -gt 0 ]; then
 		[ "$(id -u)" = 0 ] || die "missing ${missing[*]}: run as root, or install them with apt-get"
 		log "installing ${missing[*]} from Debian (once)"

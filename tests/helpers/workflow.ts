@@ -69,3 +69,33 @@ export async function saveAndSubmit(c: Client, id: number, scores: Scores) {
 	const post = await c.request(`/api/v1/protocols/${id}/pass`, { method: 'POST', json: { draftVersion: saved.draftVersion } });
 	return { status: post.status, body: await post.json() };
 }
+
+/**
+ * A protocol carried through the workflow by the app's own routes: both scorers submit (the second
+ * with `second` overriding some values), and, when `verify` is set, the reviewer keeps the
+ * recomputed value of every discrepancy and signs off. Returns the protocol id.
+ */
+export async function throughWorkflow(
+	c: { lead: Client; first: Client; second: Client; reviewer: Client },
+	opts: { first: string; second: string; reviewer: string; battery?: string; code?: string; birthDate?: string; testDate?: string; raws?: Record<string, number>; secondChanges?: Scores; verify?: boolean }
+): Promise<number> {
+	const id = await createViaForm(c.lead, opts);
+	const correct = await correctScores(id, opts.raws ?? {});
+	expect((await saveAndSubmit(c.first, id, correct)).status).toBe(200);
+	const second: Scores = JSON.parse(JSON.stringify(correct));
+	for (const [code, fields] of Object.entries(opts.secondChanges ?? {})) Object.assign(second[code], fields);
+	expect((await saveAndSubmit(c.second, id, second)).status).toBe(200);
+	if (!opts.verify) return id;
+	const { select } = await import('../../src/lib/server/db');
+	// one at a time: settling a raw score may close its test's derived discrepancies
+	for (let guard = 0; guard < 100; guard++) {
+		const [d] = await select<{ id: number; lock_version: number }>('SELECT id, lock_version FROM discrepancies WHERE protocol_id = :id AND resolved_at IS NULL ORDER BY id LIMIT 1', { id });
+		if (!d) break;
+		const r = await c.reviewer.request(`/api/v1/discrepancies/${d.id}`, { method: 'PATCH', json: { choice: 'recomputed', lockVersion: d.lock_version } });
+		expect(r.status, await r.clone().text()).toBe(200);
+	}
+	const p = await selectOne<{ lock_version: number }>('SELECT lock_version FROM protocols WHERE id = :id', { id });
+	const ok = await c.reviewer.request(`/api/v1/protocols/${id}/signoff`, { method: 'POST', json: { lockVersion: p!.lock_version } });
+	expect(ok.status, await ok.clone().text()).toBe(200);
+	return id;
+}

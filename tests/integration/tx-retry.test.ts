@@ -122,3 +122,60 @@ describe('transaction retry on a real deadlock (1213)', () => {
 		expect(calls).toBe(1);
 	});
 });
+
+describe('a COMMIT whose answer is lost (a database node stopped under it)', () => {
+	// Sequelize's commit, wrapped so the connection "breaks" around it the way a stopped node breaks it
+	async function withBrokenCommit<T>(mode: 'after' | 'instead', run: () => Promise<T>): Promise<T> {
+		const proto = (await import('sequelize')).Transaction.prototype as unknown as { commit: () => Promise<void>; rollback: () => Promise<void> };
+		const original = proto.commit;
+		let broken = false;
+		proto.commit = async function (this: { rollback: () => Promise<void> }) {
+			if (broken) return original.call(this);
+			broken = true;
+			// 'after': the server applied it, the answer was lost; 'instead': it never got there
+			if (mode === 'after') await original.call(this);
+			else await this.rollback();
+			throw Object.assign(new Error('socket has unexpectedly been closed'), { code: 'ER_SOCKET_UNEXPECTED_CLOSE', errno: 45009 });
+		};
+		try {
+			return await run();
+		} finally {
+			proto.commit = original;
+		}
+	}
+
+	async function countEvents(code: string) {
+		const r = await select<{ n: number }>("SELECT COUNT(*) AS n FROM audit_events WHERE entity = 'tx_test' AND reason = :code", { code });
+		return Number(r[0].n);
+	}
+
+	it('applied: the marker is found, the caller gets its result and the body is not run again', async () => {
+		const code = `applied-${Date.now()}`;
+		let runs = 0;
+		const out = await withBrokenCommit('after', () =>
+			transaction(async (t) => {
+				runs++;
+				await exec("INSERT INTO audit_events (entity, entity_id, action, reason) VALUES ('tx_test', 0, 'test', :code)", { code }, t);
+				return 'result';
+			})
+		);
+		expect(out).toBe('result');
+		expect(runs).toBe(1);
+		expect(await countEvents(code)).toBe(1);
+	});
+
+	it('not applied: no marker, the transaction runs again and the change is made once', async () => {
+		const code = `rolled-${Date.now()}`;
+		let runs = 0;
+		const out = await withBrokenCommit('instead', () =>
+			transaction(async (t) => {
+				runs++;
+				await exec("INSERT INTO audit_events (entity, entity_id, action, reason) VALUES ('tx_test', 0, 'test', :code)", { code }, t);
+				return 'result';
+			})
+		);
+		expect(out).toBe('result');
+		expect(runs).toBe(2);
+		expect(await countEvents(code)).toBe(1);
+	});
+});

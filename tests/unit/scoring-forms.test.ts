@@ -9,7 +9,7 @@
 import { describe, expect, it } from 'vitest';
 import { PassThrough, Readable } from 'node:stream';
 import { run } from '../../scripts/cli/reconcile';
-import { reconcile, testReferences, compositeReferences, type Discrepancy, type FieldValues, type ReconcileInput, type TestDef } from '../../src/lib/scoring';
+import { checkCompositeSum, checkField, reconcile, testReferences, compositeReferences, type Discrepancy, type FieldValues, type ReconcileInput, type TestDef } from '../../src/lib/scoring';
 import {
 	CATEGORY_NAMING,
 	CATEGORY_NAMING_NORM,
@@ -538,6 +538,11 @@ describe('bad tables, covariates and composites: exit 2, the path names the row,
 		e.norms.pop();
 		expect(await bad(e)).toContain('protocol.group: no norms for composite "memory-index" in group "a30"');
 	});
+	it('a table on a test whose own raw spec is bad: the test is named, no crash (found by the fuzz test)', async () => {
+		const d = tileBuild() as unknown as { tests: { raw: Record<string, number> }[] };
+		d.tests[0].raw.decimals = -2218821508126678;
+		expect(await bad(d)).toContain('tests[0].raw.decimals: must be 0 or more');
+	});
 	it('a raw score on a composite, a sum on a test, an unknown form', async () => {
 		const d = memoryIndex({ 'memory-index': { raw: 3 } as FieldValues, 'tile-build': { sum: 3 } as FieldValues });
 		const err = await bad(d);
@@ -549,5 +554,24 @@ describe('bad tables, covariates and composites: exit 2, the path names the row,
 		const g = tileBuild() as unknown as { norms: Record<string, unknown>[] };
 		g.norms[0].colour = 'blue';
 		expect(await bad(g)).toContain('norms[0].colour: unknown field');
+	});
+});
+
+// ---------------------------------------------------------------- live checks while typing (blind)
+
+describe('live checks for bands and composite sums (no reference shown)', () => {
+	it('a band on a percentile-only test is fine as typed; elsewhere it is not a number', () => {
+		expect(checkField(ERROR_COUNT, 'percentile', '25 \u2013 49', { percentileBands: true })).toEqual([]);
+		expect(checkField(ERROR_COUNT, 'percentile', '<=5', { percentileBands: true })).toEqual([]);
+		expect(checkField(ERROR_COUNT, 'percentile', '52-49', { percentileBands: true }).map((p) => p.code)).toEqual(['not_a_number']);
+		expect(checkField(TILE_BUILD, 'percentile', '25-49').map((p) => p.code)).toEqual(['not_a_number']);
+	});
+	it('a sum that is not the total of the pass’s own parts is pointed out with the pass’s own arithmetic', () => {
+		// parts 13 and 13 entered, sum 27: 13 + 13 = 26 (the scorer's numbers, not the reference 27)
+		expect(checkCompositeSum([2, 38], [13, '13'], 27)).toEqual([{ code: 'sum_differs', message: 'The part scores entered add up to 13 + 13 = 26, not 27.' }]);
+		expect(checkCompositeSum([2, 38], [13, 13], '26')).toEqual([]);
+		// a part not yet entered: nothing to compare; a sum outside 2–38 or not whole
+		expect(checkCompositeSum([2, 38], [13, null], 40).map((p) => p.code)).toEqual(['out_of_range']);
+		expect(checkCompositeSum([2, 38], [13, null], 26.5).map((p) => p.code)).toEqual(['too_many_decimals']);
 	});
 });

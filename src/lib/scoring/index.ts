@@ -10,6 +10,7 @@ export {
 	reconcile,
 	testReferences,
 	checkField,
+	checkCompositeSum,
 	classify,
 	compositeReferences,
 	compositeSpan,

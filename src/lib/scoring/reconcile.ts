@@ -749,7 +749,7 @@ export function reconcile(input: ReconcileInput): ReconcileResult {
 
 // ---------------------------------------------------------------- live field checks
 
-export type FieldProblemCode = 'not_a_number' | 'out_of_range' | 'too_many_decimals';
+export type FieldProblemCode = 'not_a_number' | 'out_of_range' | 'too_many_decimals' | 'sum_differs';
 
 export interface FieldProblem {
 	code: FieldProblemCode;
@@ -762,11 +762,28 @@ export interface FieldProblem {
  * Decimals: raw at most `raw.decimals`, z at most 2, the other scales whole numbers; trailing zeros
  * do not count (36.20 has one decimal).
  */
-export function checkField(test: Pick<TestDef, 'raw' | 'bounds'>, field: Field, value: Entered): FieldProblem[] {
+export function checkField(
+	test: Pick<TestDef, 'raw' | 'bounds'>,
+	field: Field,
+	value: Entered,
+	opts: { percentileBands?: boolean } = {}
+): FieldProblem[] {
 	const p = parseEntered(value, field);
 	if (p === null) return [];
 	if (Number.isNaN(p)) {
-		return [{ code: 'not_a_number', message: field === 'percentile' ? 'Enter a number (or <1, >99).' : 'Enter a number written in digits.' }];
+		// on a percentile-only test a band is typed as written ("25-49", "<=5", ">=75")
+		if (field === 'percentile' && opts.percentileBands && canonicalBand(value) !== null) return [];
+		return [
+			{
+				code: 'not_a_number',
+				message:
+					field !== 'percentile'
+						? 'Enter a number written in digits.'
+						: opts.percentileBands
+							? 'Enter a percentile (or <1, >99) or a band as the table writes it (25-49, <=5, >=75).'
+							: 'Enter a number (or <1, >99).'
+			}
+		];
 	}
 	const problems: FieldProblem[] = [];
 	const written = writtenForm(value);
@@ -799,6 +816,31 @@ export function checkField(test: Pick<TestDef, 'raw' | 'bounds'>, field: Field, 
 			code: 'too_many_decimals',
 			message: allowed === 0 ? `A ${SCALES[field].label} is a whole number.` : `A ${SCALES[field].label} has at most ${allowed} decimals.`
 		});
+	}
+	return problems;
+}
+
+/**
+ * Live check of a composite's `sum` while it is typed: a whole number within the possible sums
+ * (`span`, see compositeSpan), and — the scorer's own arithmetic, never the reference — equal to the
+ * total of the part scores this pass has entered (when all are there and are numbers).
+ */
+export function checkCompositeSum(span: readonly [number, number], parts: readonly Entered[], sum: Entered): FieldProblem[] {
+	const p = parseEntered(sum, 'raw');
+	if (p === null) return [];
+	if (Number.isNaN(p)) return [{ code: 'not_a_number', message: 'Enter a number written in digits.' }];
+	const problems: FieldProblem[] = [];
+	if (!Number.isInteger(p)) problems.push({ code: 'too_many_decimals', message: 'A sum of scores is a whole number.' });
+	if (p < span[0] || p > span[1]) problems.push({ code: 'out_of_range', message: `The sum of these parts lies between ${span[0]} and ${span[1]}.` });
+	const values: number[] = [];
+	for (const v of parts) {
+		const x = parseEntered(v, 'raw');
+		if (x === null || Number.isNaN(x)) return problems;
+		values.push(x);
+	}
+	const total = values.reduce((a, b) => a + b, 0);
+	if (!eq(total, p)) {
+		problems.push({ code: 'sum_differs', message: `The part scores entered add up to ${values.join(' + ')} = ${total}, not ${writtenForm(sum)}.` });
 	}
 	return problems;
 }

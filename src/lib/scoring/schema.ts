@@ -213,7 +213,8 @@ function crossCheck(doc: Doc, ctx: { addIssue: (i: { code: 'custom'; path: (stri
 			for (const pr of checkTableRows(rows, spec)) add({ path: ['norms', i, ...pr.path], message: pr.message });
 		} else {
 			const t = doc.tests[ids.get(String(n.test)) ?? -1];
-			if (!t) return;
+			// a test whose raw spec is itself bad (reported at tests[i].raw) cannot have its table checked
+			if (!t || !Number.isInteger(t.raw.decimals) || t.raw.decimals < 0 || t.raw.decimals > 6 || !(t.raw.min <= t.raw.max)) return;
 			const spec = { key: 'raw' as const, min: t.raw.min, max: t.raw.max, decimals: t.raw.decimals, scale, bounds: scale === 'percentile' ? undefined : boundsFor(scale, t.bounds) };
 			for (const pr of checkTableRows(rows, spec)) add({ path: ['norms', i, ...pr.path], message: pr.message });
 		}

@@ -53,6 +53,9 @@ export function checkTableRows(rows: readonly RowLike[], spec: TableSpec): Table
 	const { key, decimals: d } = spec;
 	const f = 10 ** d;
 	const what = key === 'raw' ? 'raw score' : 'sum';
+	if (!Number.isInteger(d) || d < 0 || d > 6 || !Number.isFinite(spec.min) || !Number.isFinite(spec.max) || spec.min > spec.max) {
+		return [{ path: [], message: `cannot check the table: the ${what} range or decimals are not valid` }];
+	}
 	if (rows.length === 0) return [{ path: ['rows'], message: 'a table needs at least one row' }];
 	const min = Math.round(spec.min * f);
 	const max = Math.round(spec.max * f);

@@ -62,6 +62,7 @@ export const ACCESS: Record<string, RouteRules> = {
 	'/protocols/[id]/review': { GET: ['reviewer', 'lead'] },
 	'/protocols/[id]/summary': { GET: ['reviewer', 'lead'] },
 	'/protocols/[id]/summary.csv': { GET: ['reviewer', 'lead'] },
+	'/protocols/[id]/summary.docx': { GET: ['reviewer', 'lead'] },
 	'/protocols/[id]/attachments/[attachmentId]': { GET: ['reviewer', 'lead', 'scorer'] },
 	'/api/v1/worklist': { GET: 'signed-in' },
 	'/api/v1/protocols/[id]/pass': { GET: ['scorer'], PUT: ['scorer'], POST: ['scorer'] },

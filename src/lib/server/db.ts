@@ -6,7 +6,9 @@
 import { Sequelize, QueryTypes, Transaction } from 'sequelize';
 import * as mariadb from 'mariadb';
 import { config } from './config';
-import { withRetry, type RetryOptions } from './tx';
+import { randomUUID } from 'node:crypto';
+import { withRetry, isRetryableConflict, type RetryOptions } from './tx';
+import { writeMarker, markerCommitted } from './models/commit-marker';
 
 let instance: Sequelize | null = null;
 
@@ -20,7 +22,7 @@ export function db(): Sequelize {
 			logging: false,
 			timezone: '+00:00',
 			pool: { max: config.db.pool, min: 0, idle: 10_000, acquire: 5_000 },
-			dialectOptions: { connectTimeout: 3_000, decimalAsNumber: true, bigIntAsNumber: true, dateStrings: ['DATE'] }
+			dialectOptions: { connectTimeout: Number(process.env.DB_CONNECT_TIMEOUT_MS ?? 3_000), decimalAsNumber: true, bigIntAsNumber: true, dateStrings: ['DATE'] }
 		});
 	}
 	return instance;
@@ -40,7 +42,7 @@ export type Tx = Transaction | null | undefined;
 export async function select<T = Record<string, unknown>>(sql: string, replacements: Params = {}, transaction?: Tx): Promise<T[]> {
 	const run = () => db().query(sql, { type: QueryTypes.SELECT, replacements, transaction: transaction ?? undefined }) as Promise<T[]>;
 	// inside a transaction the transaction's retry decides; a plain read is safe to run again
-	return transaction ? run() : withRetry(() => run(), { maxAttempts: 3 });
+	return transaction ? run() : withRetry(() => run());
 }
 
 export async function selectOne<T = Record<string, unknown>>(sql: string, replacements: Params = {}, transaction?: Tx): Promise<T | null> {
@@ -70,17 +72,39 @@ export async function exec(sql: string, replacements: Params = {}, transaction?:
  * (bounded, jittered backoff) when MariaDB or Galera answers a deadlock or write conflict (1213), a
  * lock wait timeout (1205), or a joining node (1047) — see ./tx.ts. The callback must therefore be
  * safe to rerun: reread what it checks and keep side effects outside the database after the commit.
+ *
+ * The last statement writes a commit marker. When COMMIT fails in a way that leaves its outcome
+ * unknown (the connection or the node went away under it), the marker is looked up through another
+ * connection: found, the change was applied and the caller gets its result; not found, it was not,
+ * and the transaction is run again. So a node stopped mid-commit neither loses a change nor makes it
+ * twice.
  */
 export function transaction<T>(fn: (t: Transaction) => Promise<T>, retry?: RetryOptions): Promise<T> {
-	return withRetry(
-		(_n, committing) =>
-			db().transaction({ isolationLevel: Transaction.ISOLATION_LEVELS.READ_COMMITTED }, async (t) => {
-				const out = await fn(t);
+	return withRetry(async (_n, committing) => {
+		const marker = randomUUID();
+		let out: T | undefined;
+		let bodyDone = false;
+		try {
+			return await db().transaction({ isolationLevel: Transaction.ISOLATION_LEVELS.READ_COMMITTED }, async (t) => {
+				out = await fn(t);
+				await writeMarker(marker, t);
+				bodyDone = true;
 				committing();
 				return out;
-			}),
-		retry
-	);
+			});
+		} catch (e) {
+			if (!bodyDone || isRetryableConflict(e)) throw e; // rolled back for certain
+			// the outcome of COMMIT is unknown: ask the cluster (causal read, after a moment to settle)
+			await new Promise((r) => setTimeout(r, 300));
+			const applied = await withRetry(() => markerCommitted(marker), { maxAttempts: 4 }).catch(() => null);
+			if (applied === true) {
+				console.error('[tx] commit answer lost, the change was applied (commit marker found)');
+				return out as T;
+			}
+			if (applied === false) throw Object.assign(e as object, { notApplied: true });
+			throw e;
+		}
+	}, retry);
 }
 
 /** True when an error means the database cannot be reached (answered with 503, never a 500). */

@@ -13,11 +13,14 @@
  * - 1047 "WSREP has not yet prepared node for application use" (a node that is joining);
  * - a connection lost or killed while the body ran (before COMMIT was sent): the server rolled it
  *   back; the pool hands out a fresh connection (through the local balancer, to a live node).
- * Not retried: a connection lost during COMMIT (it may have been applied: the caller gets the
- * database-unavailable answer and can ask for the state), refused connections and pool timeouts
+ * At COMMIT, 1047 and a lost connection leave the outcome unknown: db.ts `transaction()` then looks
+ * up its commit marker and either returns (applied) or marks the error `notApplied` (retried here);
+ * when even that cannot be learnt the error goes to the caller (503). Not retried: refused
+ * connections and pool timeouts
  * (the database is down: retrying only adds waiting), and every other error.
  *
- * Backoff: full jitter, base TX_RETRY_BASE_MS (20 ms) doubling per attempt, capped at 1 s;
+ * Backoff: full jitter, base TX_RETRY_BASE_MS (20 ms) doubling per attempt, capped at 1 s; after a
+ * lost connection or a joining node, base 250 ms capped at 2 s (the balancer needs a moment);
  * at most TX_MAX_ATTEMPTS attempts (6). Each retry is counted (`txRetryStats`) and logged as one
  * `[tx] retry` line on stderr, which the cluster test counts across processes.
  */
@@ -88,7 +91,11 @@ export async function withRetry<T>(attempt: (n: number, committing: () => void) 
 				atCommit = true;
 			});
 		} catch (e) {
-			const retryable = isRetryableConflict(e) || (!atCommit && isLostConnection(e));
+			// at COMMIT only a certain rollback is retried: a conflict (1213/1205), or a commit whose
+			// marker was looked up and not found (db.ts transaction() sets notApplied)
+			const notApplied = (e as { notApplied?: boolean })?.notApplied === true;
+			const certainConflict = isRetryableConflict(e) && !(atCommit && errInfo(e).errno === 1047);
+			const retryable = certainConflict || notApplied || (!atCommit && isLostConnection(e));
 			if (!retryable) throw e;
 			if (n + 1 >= max) {
 				txRetryStats.gaveUp++;
@@ -99,7 +106,10 @@ export async function withRetry<T>(attempt: (n: number, committing: () => void) 
 			const key = errno ? String(errno) : code || 'lost';
 			txRetryStats.retries++;
 			txRetryStats.byCode[key] = (txRetryStats.byCode[key] ?? 0) + 1;
-			const delay = Math.random() * Math.min(1000, base * 2 ** n);
+			// a lost connection or a joining node needs the balancer to move on (seconds), a write
+			// conflict only the other transaction's commit (milliseconds)
+			const slow = errno === 1047 || !isRetryableConflict(e);
+			const delay = Math.random() * Math.min(slow ? 2000 : 1000, (slow ? Math.max(base, 250) : base) * 2 ** n);
 			console.error(`[tx] retry ${n + 1}/${max - 1} after ${key}${atCommit ? ' at commit' : ''}${opts.label ? ` (${opts.label})` : ''}, waiting ${Math.round(delay)} ms`);
 			await sleep(delay);
 		}

@@ -1,0 +1,265 @@
+/**
+ * Every screen at every width, in Chromium: 390 px (a phone), 768 px (a tablet upright), 1024 px
+ * (a tablet on its side, a small laptop) and 1440 px (a desktop). On each, each role's screens must
+ * not scroll the page sideways (document.scrollWidth <= innerWidth) and must pass axe-core's WCAG
+ * 2.1 A/AA rules (serious and critical). Below 1024 px the navigation is a menu behind a button
+ * (aria-expanded, keyboard); Entry is one card per test on a phone and keeps its keyboard order;
+ * Worklist and People stack their rows; Review puts the record form under the cards.
+ */
+import { describe, it, expect, beforeAll, afterAll } from 'vitest';
+import type { Browser, Page } from 'playwright-core';
+import { launch, signIn, BASE_URL } from '../helpers/browser';
+import { ACCOUNTS, DEMO_PASSWORD, signedIn, caughtMail, waitFor } from '../helpers/http';
+import { throughWorkflow, createViaForm, uniqueCode } from '../helpers/workflow';
+import { seriousViolations, describeViolations } from '../helpers/axe';
+import { closeDb, selectOne } from '../../src/lib/server/db';
+
+const WIDTHS = [390, 768, 1024, 1440];
+let browser: Browser;
+const ids = { draft: 0, review: 0, verified: 0, battery: 0, normSet: 0, mail: '' };
+
+beforeAll(async () => {
+	browser = await launch();
+	const lead = await signedIn('lead');
+	const first = await signedIn('scorer');
+	const second = await signedIn('scorer2');
+	const reviewer = await signedIn('reviewer');
+	const who = { first: ACCOUNTS.scorer, second: ACCOUNTS.scorer2, reviewer: ACCOUNTS.reviewer };
+	ids.draft = await createViaForm(lead, { ...who, battery: 'core-adult', code: uniqueCode('W') });
+	ids.review = await throughWorkflow({ lead, first, second, reviewer }, { ...who, battery: 'core-adult', code: uniqueCode('W'), secondChanges: { 'word-recall': { standard: '611' } } });
+	ids.verified = await throughWorkflow({ lead, first, second, reviewer }, { ...who, battery: 'core-adult', code: uniqueCode('W'), secondChanges: { 'word-recall': { standard: '611' } }, verify: true });
+	ids.battery = (await selectOne<{ id: number }>("SELECT id FROM batteries WHERE code = 'core-adult'"))!.id;
+	ids.normSet = (await selectOne<{ id: number }>('SELECT id FROM norm_sets ORDER BY id LIMIT 1'))!.id;
+	// a caught message for the mailbox's message screen
+	const admin = await signedIn('admin');
+	const email = `width-${Date.now()}@clinic.test`;
+	const inv = await admin.action('/people?/invite', { name: 'Wren Okoye', email, roles: ['scorer'] });
+	expect(inv.status).toBe(200);
+	const [mail] = await waitFor(async () => {
+		const m = await caughtMail(email);
+		return m.length ? m : null;
+	}, 30_000);
+	ids.mail = mail.id;
+}, 240_000);
+
+afterAll(async () => {
+	await browser?.close();
+	await closeDb();
+});
+
+type Role = 'anon' | 'scorer' | 'reviewer' | 'lead' | 'admin';
+const SCREENS: { role: Role; name: string; path: () => string }[] = [
+	{ role: 'anon', name: 'sign-in', path: () => '/signin' },
+	{ role: 'anon', name: 'forgot password', path: () => '/forgot' },
+	{ role: 'scorer', name: 'worklist', path: () => '/' },
+	{ role: 'scorer', name: 'protocols', path: () => '/protocols' },
+	{ role: 'scorer', name: 'protocol', path: () => `/protocols/${ids.draft}` },
+	{ role: 'scorer', name: 'entry', path: () => `/protocols/${ids.draft}/entry` },
+	{ role: 'reviewer', name: 'worklist', path: () => '/' },
+	{ role: 'reviewer', name: 'review', path: () => `/protocols/${ids.review}/review` },
+	{ role: 'reviewer', name: 'summary', path: () => `/protocols/${ids.verified}/summary` },
+	{ role: 'lead', name: 'new protocol', path: () => '/protocols/new' },
+	{ role: 'lead', name: 'audit', path: () => '/audit' },
+	{ role: 'lead', name: 'catalog', path: () => '/catalog' },
+	{ role: 'lead', name: 'tests', path: () => '/catalog/tests' },
+	{ role: 'lead', name: 'test', path: () => '/catalog/tests/word-recall' },
+	{ role: 'lead', name: 'batteries', path: () => '/catalog/batteries' },
+	{ role: 'lead', name: 'battery', path: () => `/catalog/batteries/${ids.battery}` },
+	{ role: 'lead', name: 'norm sets', path: () => '/catalog/norm-sets' },
+	{ role: 'lead', name: 'norm set', path: () => `/catalog/norm-sets/${ids.normSet}` },
+	{ role: 'lead', name: 'import', path: () => '/catalog/import' },
+	{ role: 'admin', name: 'people', path: () => '/people' },
+	{ role: 'admin', name: 'mailbox', path: () => '/mailbox' },
+	{ role: 'admin', name: 'message', path: () => `/mailbox/${ids.mail}` }
+];
+
+async function as(role: Role): Promise<Page> {
+	const ctx = await browser.newContext({ viewport: { width: 1440, height: 900 }, bypassCSP: true });
+	const page = await ctx.newPage();
+	if (role !== 'anon') await signIn(page, ACCOUNTS[role], DEMO_PASSWORD);
+	return page;
+}
+
+/** The widest elements that stick out of the viewport (and are not inside a box that scrolls), for the failure message. */
+async function overflowReport(page: Page): Promise<{ scrollWidth: number; innerWidth: number; culprits: string[] }> {
+	return page.evaluate(`(() => {
+		const iw = innerWidth;
+		const inScroller = (e) => { for (let a = e.parentElement; a && a !== document.body; a = a.parentElement) if (getComputedStyle(a).overflowX !== 'visible') return true; return false; };
+		const culprits = [...document.querySelectorAll('body *')]
+			.filter((e) => e.getBoundingClientRect().right > iw + 0.5 && !inScroller(e))
+			.slice(-5)
+			.map((e) => e.tagName.toLowerCase() + '.' + String(e.className).slice(0, 60) + ' right=' + Math.round(e.getBoundingClientRect().right));
+		return { scrollWidth: document.documentElement.scrollWidth, innerWidth: iw, culprits };
+	})()`);
+}
+
+describe('every screen at every width: no sideways page scroll, axe clean', () => {
+	for (const role of ['anon', 'scorer', 'reviewer', 'lead', 'admin'] as Role[]) {
+		it(`${role}: ${SCREENS.filter((s) => s.role === role).map((s) => s.name).join(', ')}`, async () => {
+			const page = await as(role);
+			const failures: string[] = [];
+			for (const screen of SCREENS.filter((s) => s.role === role)) {
+				for (const w of WIDTHS) {
+					await page.setViewportSize({ width: w, height: 900 });
+					const res = await page.goto(`${BASE_URL}${screen.path()}`, { waitUntil: 'networkidle' });
+					expect(res?.status(), `${screen.name} at ${w}`).toBe(200);
+					// screens that load their figures after the page (Audit) say so with aria-busy
+					await page.waitForFunction(() => !document.querySelector('[aria-busy="true"]'), undefined, { timeout: 30_000 });
+					const o = await overflowReport(page);
+					if (o.scrollWidth > o.innerWidth) failures.push(`${screen.name} at ${w} px scrolls sideways to ${o.scrollWidth}: ${o.culprits.join(' | ')}`);
+					const v = await seriousViolations(page);
+					if (v.length) failures.push(`${screen.name} at ${w} px, axe: ${describeViolations(v)}`);
+				}
+			}
+			expect(failures, failures.join('\n')).toEqual([]);
+			await page.context().close();
+		}, 600_000);
+	}
+});
+
+describe('the layout at each width', () => {
+	it('below 1024 px the navigation is a menu behind a button, usable by keyboard; from 1024 px it is always shown', async () => {
+		const page = await as('lead');
+		const nav = page.getByRole('navigation', { name: 'Main' });
+		for (const w of [390, 768]) {
+			await page.setViewportSize({ width: w, height: 900 });
+			await page.goto(`${BASE_URL}/`);
+			const button = page.getByTestId('menu-button');
+			expect(await button.isVisible()).toBe(true);
+			expect(await button.getAttribute('aria-expanded')).toBe('false');
+			expect(await button.getAttribute('aria-controls')).toBe('main-nav');
+			expect(await nav.isVisible()).toBe(false);
+			// keyboard: focus the button, Enter opens, the links are reachable with Tab, Escape closes and returns focus
+			await button.focus();
+			await page.keyboard.press('Enter');
+			expect(await button.getAttribute('aria-expanded')).toBe('true');
+			expect(await nav.isVisible()).toBe(true);
+			expect((await nav.getByRole('link').allInnerTexts()).map((t) => t.trim())).toEqual(['Worklist', 'Protocols', 'Audit', 'Catalog']);
+			await page.keyboard.press('Tab');
+			expect(await page.evaluate(() => document.activeElement?.textContent?.trim())).toBe('Worklist');
+			await page.keyboard.press('Escape');
+			expect(await button.getAttribute('aria-expanded')).toBe('false');
+			expect(await page.evaluate(() => document.activeElement?.getAttribute('data-testid'))).toBe('menu-button');
+			// following a link closes the menu
+			await button.click();
+			await nav.getByRole('link', { name: 'Catalog' }).click();
+			await page.waitForURL(/\/catalog$/);
+			expect(await button.getAttribute('aria-expanded')).toBe('false');
+		}
+		for (const w of [1024, 1440]) {
+			await page.setViewportSize({ width: w, height: 900 });
+			await page.goto(`${BASE_URL}/`);
+			expect(await page.getByTestId('menu-button').isVisible()).toBe(false);
+			expect(await nav.isVisible()).toBe(true);
+			const box = (await nav.boundingBox())!;
+			expect(box.x).toBe(0);
+			expect(box.width).toBe(224); // the left column, w-56
+		}
+		await page.context().close();
+	}, 120_000);
+
+	it('Entry: one card per test below 1280 px, raw score first, keyboard order unchanged; a table at 1440 px', async () => {
+		const page = await as('scorer');
+		for (const w of [390, 768, 1024, 1440]) {
+			await page.setViewportSize({ width: w, height: 900 });
+			await page.goto(`${BASE_URL}/protocols/${ids.draft}/entry`);
+			const firstRow = page.locator('.entry-table tbody tr').first();
+			const display = await firstRow.evaluate((e) => getComputedStyle(e).display);
+			expect(display, `at ${w}`).toBe(w < 1280 ? 'grid' : 'table-row');
+			// the first field focused is the first test's raw score, and Enter walks the administration order
+			const order = await page.locator('.entry-table input').evaluateAll((es) => es.map((e) => e.id));
+			expect(order[0]).toMatch(/-raw$/);
+			expect(await page.evaluate(() => document.activeElement?.id)).toBe(order[0]);
+			await page.keyboard.press('Enter');
+			expect(await page.evaluate(() => document.activeElement?.id)).toBe(order[1]);
+			await page.keyboard.press('Enter');
+			expect(await page.evaluate(() => document.activeElement?.id)).toBe(order[2]);
+			if (w < 1280) {
+				// in a card, each field sits under its own visible label, raw score first, and the
+				// card's fields read left to right, top to bottom in the order the keyboard takes
+				const cells = await firstRow.locator('td').evaluateAll((tds) =>
+					tds.filter((td) => getComputedStyle(td).display !== 'none').map((td) => ({ label: getComputedStyle(td, '::before').content, box: td.getBoundingClientRect().toJSON() as DOMRect }))
+				);
+				expect(cells[0].label).toBe('"Raw score"');
+				for (let i = 1; i < cells.length; i++) {
+					const a = cells[i - 1].box, b = cells[i].box;
+					expect(b.top > a.top + 1 || (Math.abs(b.top - a.top) <= 1 && b.left > a.left), `${w}: cell ${i} after cell ${i - 1}`).toBe(true);
+				}
+				// every card fits inside the viewport
+				const right = await page.locator('.entry-table tbody tr').evaluateAll((rs) => Math.max(...rs.map((r) => r.getBoundingClientRect().right)));
+				expect(right).toBeLessThanOrEqual(w);
+			}
+		}
+		await page.context().close();
+	}, 120_000);
+
+	it('Worklist and People stack their rows on a phone and are tables from 768 px', async () => {
+		for (const [role, path, testid] of [
+			['scorer', '/', 'worklist'],
+			['admin', '/people', 'people-table']
+		] as const) {
+			const page = await as(role);
+			for (const w of WIDTHS) {
+				await page.setViewportSize({ width: w, height: 900 });
+				await page.goto(`${BASE_URL}${path}`);
+				const table = page.getByTestId(testid);
+				const row = table.locator('tbody tr').first();
+				expect(await row.evaluate((e) => getComputedStyle(e).display), `${path} at ${w}`).toBe(w < 768 ? 'block' : 'table-row');
+				// the header row is kept for screen readers but takes no room on a phone
+				const head = await table.locator('thead').boundingBox();
+				if (w < 768) expect(head!.height).toBeLessThanOrEqual(1);
+				else expect(head!.height).toBeGreaterThan(20);
+			}
+			await page.context().close();
+		}
+	}, 120_000);
+
+	it('Review puts the record form under the discrepancy cards below 1280 px, beside them from 1280 px', async () => {
+		const page = await as('reviewer');
+		for (const w of [...WIDTHS, 1280]) {
+			await page.setViewportSize({ width: w, height: 900 });
+			await page.goto(`${BASE_URL}/protocols/${ids.review}/review`);
+			const list = (await page.getByTestId('discrepancies').boundingBox())!;
+			const form = (await page.getByRole('complementary', { name: 'Scanned record form' }).boundingBox())!;
+			if (w < 1280) expect(form.y, `at ${w}`).toBeGreaterThanOrEqual(list.y + list.height);
+			else expect(form.x, `at ${w}`).toBeGreaterThanOrEqual(list.x + list.width);
+		}
+		await page.context().close();
+	}, 120_000);
+});
+
+describe('Audit charts at every width', () => {
+	it('draw their text at the page type size (12 px, not scaled), keep it inside the chart, and keep the axis titles', async () => {
+		const page = await as('lead');
+		for (const w of WIDTHS) {
+			await page.setViewportSize({ width: w, height: 900 });
+			await page.goto(`${BASE_URL}/audit`, { waitUntil: 'networkidle' });
+			await page.waitForFunction(() => !document.querySelector('[aria-busy="true"]'), undefined, { timeout: 30_000 });
+			const charts = await page.locator('svg[role="img"][aria-labelledby^="forest"], svg[role="img"][aria-labelledby^="weekly"], svg[role="img"][aria-labelledby^="ba"]').evaluateAll((svgs) =>
+				svgs.map((svg) => {
+					const box = svg.getBoundingClientRect();
+					const texts = [...svg.querySelectorAll('text')].filter((t) => t.textContent?.trim());
+					return {
+						id: svg.getAttribute('aria-labelledby'),
+						// one SVG unit is one CSS pixel: the drawing is not scaled
+						scale: box.width / (svg as SVGSVGElement).viewBox.baseVal.width,
+						sizes: [...new Set(texts.map((t) => getComputedStyle(t).fontSize))],
+						outside: texts.filter((t) => { const b = t.getBoundingClientRect(); return b.left < box.left - 0.5 || b.right > box.right + 0.5 || b.top < box.top - 0.5 || b.bottom > box.bottom + 0.5; }).map((t) => t.textContent),
+						all: texts.map((t) => t.textContent ?? '').join(' | '),
+						right: box.right
+					};
+				})
+			);
+			expect(charts.length, `at ${w}`).toBe(3);
+			for (const c of charts) {
+				expect(c.scale, `${c.id} at ${w}`).toBeCloseTo(1, 2);
+				expect(c.sizes, `${c.id} at ${w}`).toEqual(['12px']);
+				expect(c.outside, `${c.id} at ${w}: text outside the chart`).toEqual([]);
+				expect(c.right, `${c.id} at ${w}`).toBeLessThanOrEqual(w);
+			}
+			const all = charts.map((c) => c.all).join(' ');
+			for (const title of ['Errors per 100 fields entered (dot)', 'Week starting (Monday, ISO 8601 weeks', 'Errors per 100 fields', 'Mean of the two entries', 'First − second']) expect(all, `at ${w}`).toContain(title);
+		}
+		await page.context().close();
+	}, 180_000);
+});
