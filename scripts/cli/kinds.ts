@@ -8,7 +8,7 @@
  *   {"kinds": [{"kind": "missing", "name": "Missing", "explanation": "Left empty: …"}, …]}
  */
 import type { Readable, Writable } from 'node:stream';
-import { kindList } from '../../src/lib/scoring/kinds.ts';
+import { kindList } from '../../src/lib/scoring/kinds';
 
 export async function run(_input: Readable, output: Writable): Promise<number> {
 	const kinds = kindList().map((k) => ({ kind: k.id, name: k.name, explanation: k.explanation }));
