@@ -105,6 +105,7 @@ describe('every screen at every width: no sideways page scroll, axe clean', () =
 					expect(res?.status(), `${screen.name} at ${w}`).toBe(200);
 					// screens that load their figures after the page (Audit) say so with aria-busy
 					await page.waitForFunction(() => !document.querySelector('[aria-busy="true"]'), undefined, { timeout: 30_000 });
+					if (process.env.WIDTH_SHOTS) await page.screenshot({ path: `test-results/widths/${role}-${screen.name.replace(/\W+/g, '-')}-${w}.png`, fullPage: true });
 					const o = await overflowReport(page);
 					if (o.scrollWidth > o.innerWidth) failures.push(`${screen.name} at ${w} px scrolls sideways to ${o.scrollWidth}: ${o.culprits.join(' | ')}`);
 					const v = await seriousViolations(page);
