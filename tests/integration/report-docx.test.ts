@@ -9,13 +9,39 @@ import { mkdtempSync, writeFileSync, readFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { ACCOUNTS, signedIn, type Client } from '../helpers/http';
-import { throughWorkflow, uniqueCode } from '../helpers/workflow';
+import { throughWorkflow, uniqueCode, createViaForm, saveAndSubmit } from '../helpers/workflow';
+import { select, selectOne } from '../../src/lib/server/db';
 import { closeDb } from '../../src/lib/server/db';
 
 let reviewer: Client;
 let id: number;
 let code: string;
 let file: string;
+let tideCode: string;
+let tideFile: string;
+
+/**
+ * A verified protocol of the demo's Tidewater Cognitive Profile (tables per age band, two composites),
+ * entered the same by both scorers. Examinee born 1990-03-10, tested 2025-11-20: 35;8;10, band a30;
+ * education 14. The right look-ups (worked by hand in tests/e2e/norm-forms-workflow.test.ts, tables
+ * from db/seeds/profile.ts, all invented):
+ * - word-recall raw 29 (a30 mean 24.5, SD 4.2): z 4.5/4.2 = 1.07, SS 116, ScS 13, T 61, %ile 86.
+ * - tile-build raw 16: a30 row 16 → scaled 14.
+ * - knot-copy raw 25 → 12; cargo-code raw 53 → 11; category-naming raw 48 → z 0.81, SS 112, T 58, %ile 79.
+ * - beacon-slips raw 3: the 2–3 row's band 50-74.
+ * - memory-index: 13 + 14 = 27; (27 − 20)/5.2 = 1.346 → SS 100 + 15·1.346 = 120.2 → 120; %ile Φ(1.346) ≈ 91.
+ * - visuomotor-index: 12 + 11 = 23, sum-table row 22–23 → SS 106; %ile Φ(0.40) = .6554 → 66.
+ */
+const TIDEWATER = {
+	'word-recall': { raw: '29', z: '1.07', standard: '116', scaled: '13', t: '61', percentile: '86' },
+	'tile-build': { raw: '16', scaled: '14', percentile: '91' },
+	'knot-copy': { raw: '25', scaled: '12', percentile: '75' },
+	'cargo-code': { raw: '53', scaled: '11' },
+	'category-naming': { raw: '48', z: '0.81', standard: '112', t: '58', percentile: '79' },
+	'beacon-slips': { raw: '3', percentile: '50-74' },
+	'memory-index': { sum: '27', standard: '120', percentile: '91' },
+	'visuomotor-index': { sum: '23', standard: '106', percentile: '66' }
+};
 
 beforeAll(async () => {
 	const c = { lead: await signedIn('lead'), first: await signedIn('scorer'), second: await signedIn('scorer2'), reviewer: await signedIn('reviewer') };
@@ -38,11 +64,24 @@ beforeAll(async () => {
 	expect(res.headers.get('content-disposition')).toBe(`attachment; filename="summary-${code}.docx"`);
 	file = join(mkdtempSync(join(tmpdir(), 'ct-docx-')), 'summary.docx');
 	writeFileSync(file, Buffer.from(await res.arrayBuffer()));
-}, 120_000);
+
+	tideCode = uniqueCode('DOCTW');
+	const tide = await createViaForm(c.lead, { first: ACCOUNTS.scorer, second: ACCOUNTS.scorer2, reviewer: ACCOUNTS.reviewer, battery: 'tidewater-profile', code: tideCode, birthDate: '1990-03-10', testDate: '2025-11-20', educationYears: 14 });
+	expect((await saveAndSubmit(c.first, tide, TIDEWATER)).status).toBe(200);
+	expect((await saveAndSubmit(c.second, tide, TIDEWATER)).status).toBe(200);
+	// both passes agree with each other and with the recomputation: nothing to resolve
+	expect(await select('SELECT id FROM discrepancies WHERE protocol_id = :id', { id: tide })).toEqual([]);
+	const p = await selectOne<{ lock_version: number }>('SELECT lock_version FROM protocols WHERE id = :id', { id: tide });
+	expect((await reviewer.request(`/api/v1/protocols/${tide}/signoff`, { method: 'POST', json: { lockVersion: p!.lock_version } })).status).toBe(200);
+	const tr = await reviewer.get(`/protocols/${tide}/summary.docx`);
+	expect(tr.status).toBe(200);
+	tideFile = join(mkdtempSync(join(tmpdir(), 'ct-docx-')), 'summary.docx');
+	writeFileSync(tideFile, Buffer.from(await tr.arrayBuffer()));
+}, 180_000);
 
 afterAll(() => closeDb());
 
-const pandoc = (to: string) => execFileSync('pandoc', ['-f', 'docx', '-t', to, '--columns=250', file]).toString();
+const pandoc = (to: string, of = file) => execFileSync('pandoc', ['-f', 'docx', '-t', to, '--columns=250', of]).toString();
 
 type Inline = { t: string; c?: unknown };
 const text = (inlines: Inline[]): string =>
@@ -105,6 +144,32 @@ describe('the report document (.docx)', () => {
 		// a test that does not report a field leaves its cell empty, never a dash (Delayed recall reports scaled and percentile only)
 		const delayed = byName.get('Harbour Word Recall, Delayed')!;
 		expect([delayed[2], delayed[3], delayed[5]]).toEqual(['', '', '']);
+	});
+
+	it('leads with the composites (Tidewater battery): a Composites row first, each composite with its sum, index score, label and CI; bands as written', () => {
+		const doc = JSON.parse(pandoc('json', tideFile)) as { blocks: { t: string; c: unknown[] }[] };
+		const tables = doc.blocks.filter((b) => b.t === 'Table');
+		expect(tables).toHaveLength(1);
+		const [, , , , bodies] = tables[0].c as [unknown, unknown, unknown[], unknown, [unknown, number, Row[], Row[]][]];
+		type Cell = [unknown, unknown, number, number, { t: string; c: Inline[] }[]];
+		type Row = [unknown, Cell[]];
+		const cellText = (cell: Cell) => cell[4].map((b) => text(b.c)).join(' ').trim();
+		const rows = bodies.flatMap((b) => b[3]).map((r) => r[1].map(cellText));
+		// the first row is the Composites heading, then the two composites in the battery's order, then the domains
+		expect(rows[0]).toEqual(['Composites']);
+		// Memory Index: Σ 27, SS 120 (above), %ile 91; label on SS 120–129 "Above average" (AACN 2020, Guilmette et al.; from memory);
+		// 95% CI, reliability .90: SEM = 15·√0.10 = 4.743, 1.96·4.743 = 9.30, 120 ± 9.30 = 110.70–129.30 → 111–129.
+		expect(rows[1]).toEqual(['Memory Index (scaled scores of Harbour Word Recall + Tile Build)', 'Σ 27', '', '120', '', '', '91', 'Above average (SS)', '111–129']);
+		// Visuomotor Index: Σ 23, SS 106 (table row 22–23), %ile 66; 90–109 "Average";
+		// reliability .88: SEM = 15·√0.12 = 5.196, 1.96·5.196 = 10.18, 106 ± 10.18 = 95.82–116.18 → 96–116.
+		expect(rows[2]).toEqual(['Visuomotor Index (scaled scores of Knot Copy + Cargo Code)', 'Σ 23', '', '106', '', '', '66', 'Average (SS)', '96–116']);
+		expect(rows[3]).toHaveLength(1); // the first domain's heading follows the composites
+		// the percentile-band test keeps its band as entered, marked as a band
+		const beacon = rows.find((r) => r[0].startsWith('Beacon Watch False Alarms'))!;
+		expect(beacon[6]).toBe('50-74 band');
+		const plain = pandoc('plain', tideFile).replace(/[ \t]+/g, ' ');
+		expect(plain).toContain('Σ: a composite’s sum of its parts’ scores');
+		expect(plain).toContain('Battery: Tidewater Cognitive Profile');
 	});
 
 	it("asks for the app's font, IBM Plex Sans, in the document's styles", () => {

@@ -376,3 +376,52 @@ describe('reopen with a reason', () => {
 		expect(mail.text).toContain('It was reopened for review round 2. Reason: The scan was of another page; check again.');
 	});
 });
+
+describe('a composite waits on its parts (Tidewater battery)', () => {
+	/**
+	 * Examinee born 1990-03-10, tested 2025-11-20 (35;8;10, band a30), education 14; the right
+	 * look-ups are worked by hand in tests/e2e/norm-forms-workflow.test.ts (invented tables,
+	 * db/seeds/profile.ts). Tile Build raw 16 is the a30 row 16 → scaled 14; Memory Index = Harbour
+	 * Word Recall scaled 13 + Tile Build scaled 14 = 27 → standard R(100 + 15·7/5.2) = R(120.19) = 120,
+	 * percentile 91. The first pass reads Tile Build off the next row (17–18 → 15) and carries it:
+	 * 13 + 15 = 28 → standard R(100 + 15·8/5.2) = R(123.08) = 123, percentile R(100·Φ(1.538)) = 94.
+	 */
+	const RIGHT: Scores = {
+		'word-recall': { raw: '29', z: '1.07', standard: '116', scaled: '13', t: '61', percentile: '86' },
+		'tile-build': { raw: '16', scaled: '14', percentile: '91' },
+		'knot-copy': { raw: '25', scaled: '12', percentile: '75' },
+		'cargo-code': { raw: '53', scaled: '11' },
+		'category-naming': { raw: '48', z: '0.81', standard: '112', t: '58', percentile: '79' },
+		'beacon-slips': { raw: '3', percentile: '50-74' },
+		'memory-index': { sum: '27', standard: '120', percentile: '91' },
+		'visuomotor-index': { sum: '23', standard: '106', percentile: '66' }
+	} as Scores;
+
+	it('its carried cards cannot be decided while a part is open (409 waits_on_parts), the Review page says so, and after the part they can', async () => {
+		const id = await createViaForm(lead, { ...duties, battery: 'tidewater-profile', birthDate: '1990-03-10', testDate: '2025-11-20', educationYears: 14 });
+		made.push(id);
+		const first: Scores = JSON.parse(JSON.stringify(RIGHT));
+		first['tile-build'].scaled = '15';
+		Object.assign(first['memory-index'], { sum: '28', standard: '123', percentile: '94' });
+		expect((await saveAndSubmit(s1, id, first)).status).toBe(200);
+		expect((await saveAndSubmit(s2, id, RIGHT)).status).toBe(200);
+		const tile = await rows(id, 'tile-build');
+		expect(tile.map((d) => [d.field, d.pass, d.kind, d.value, d.expected])).toEqual([['scaled', 'first', 'adjacent_row', '15', '14']]);
+		const index = await rows(id, 'memory-index');
+		expect(index.map((d) => [d.field, d.kind, d.value, d.expected])).toEqual([
+			['sum', 'carried', '28', '27'],
+			['standard', 'carried', '123', '120'],
+			['percentile', 'carried', '94', '91']
+		]);
+		const early = await resolve(index[1].id, { choice: 'recomputed' });
+		expect(early.status).toBe(409);
+		expect(early.body.code).toBe('waits_on_parts');
+		const html = await (await reviewer.get(`/protocols/${id}/review`)).text();
+		expect(html).toContain('waits on its parts');
+		expect(html).toContain('Parts (scaled scores): first pass 13 + 15, second pass 13 + 14');
+		expect((await resolve(tile[0].id, { choice: 'recomputed' })).status).toBe(200);
+		const later = await resolve(index[1].id, { choice: 'recomputed' });
+		expect(later.status, JSON.stringify(later.body)).toBe(200);
+		expect(later.body.resolvedValue).toBe('120');
+	});
+});

@@ -79,10 +79,10 @@ export async function batteryTests(batteryId: number, t?: Tx): Promise<CatalogTe
 }
 
 /** The tests a protocol was created with (frozen versions), in order, with the norm group chosen. */
-export async function protocolTests(protocolId: number, t?: Tx): Promise<(CatalogTest & { position: number; groupId: number | null; groupCode: string | null; groupText: string; overrideReason: string | null })[]> {
-	const rows = await select<TestRow & { position: number; norm_group_id: number | null; group_code: string | null; override_reason: string | null } & Pick<NormGroupRow, 'age_min_months' | 'age_max_months' | 'sex' | 'edu_min' | 'edu_max'>>(
+export async function protocolTests(protocolId: number, t?: Tx): Promise<(CatalogTest & { position: number; groupId: number | null; groupCode: string | null; groupText: string; overrideReason: string | null; normForm: string; normScale: string | null })[]> {
+	const rows = await select<TestRow & { position: number; norm_group_id: number | null; group_code: string | null; override_reason: string | null; norm_form: string | null; norm_scale: string | null } & Pick<NormGroupRow, 'age_min_months' | 'age_max_months' | 'sex' | 'edu_min' | 'edu_max'>>(
 		`SELECT ${TEST_COLUMNS}, pt.position, pt.norm_group_id, ng.group_code, pt.override_reason,
-		        ng.age_min_months, ng.age_max_months, ng.sex, ng.edu_min, ng.edu_max
+		        ng.age_min_months, ng.age_max_months, ng.sex, ng.edu_min, ng.edu_max, ng.form AS norm_form, ng.scale AS norm_scale
 		   FROM protocol_tests pt
 		   JOIN tests t ON t.id = pt.test_id
 		   JOIN domains d ON d.code = t.domain
@@ -98,7 +98,9 @@ export async function protocolTests(protocolId: number, t?: Tx): Promise<(Catalo
 		groupCode: r.group_code,
 		// what the group covers, for people ("ages 30;0–39;11, 13+ years of education")
 		groupText: r.group_code === null ? '—' : groupCoverage(groupDef({ ...r, test_code: r.code, id: r.norm_group_id ?? 0, mean: 0, sd: 1, n: null } as NormGroupRow)),
-		overrideReason: r.override_reason
+		overrideReason: r.override_reason,
+		normForm: r.norm_form ?? 'mean_sd',
+		normScale: r.norm_scale
 	}));
 }
 
