@@ -98,7 +98,7 @@ describe('single pass, labelled everywhere', () => {
 		const lines = csv.split('\r\n');
 		// the entry column says how the scores were entered (later columns: kept-against notes, a composite's sum)
 		// read back with papaparse (an independent reader; test names may hold commas and are quoted)
-		const table = Papa.parse<string[]>(csv, { skipEmptyLines: true }).data;
+		const table = Papa.parse<string[]>(csv.replace(/^\ufeff/, ''), { skipEmptyLines: true, delimiter: ',' }).data;
 		const col = table[0].indexOf('entry');
 		expect(col).toBeGreaterThan(0);
 		const rows = table.slice(1).filter((r) => !r[0].startsWith('#'));

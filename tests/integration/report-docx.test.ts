@@ -4,13 +4,14 @@
  * through the library that wrote it. Expected values are worked out by hand below.
  */
 import { describe, it, expect, beforeAll, afterAll } from 'vitest';
-import { execFileSync } from 'node:child_process';
+import { execFile, execFileSync } from 'node:child_process';
+import { promisify } from 'node:util';
 import { mkdtempSync, writeFileSync, readFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { ACCOUNTS, signedIn, type Client } from '../helpers/http';
-import { throughWorkflow, uniqueCode, createViaForm, saveAndSubmit } from '../helpers/workflow';
-import { select, selectOne } from '../../src/lib/server/db';
+import { throughWorkflow, uniqueCode } from '../helpers/workflow';
+import { tidewaterProtocol } from '../helpers/tidewater';
 import { closeDb } from '../../src/lib/server/db';
 
 let reviewer: Client;
@@ -20,28 +21,6 @@ let file: string;
 let tideCode: string;
 let tideFile: string;
 
-/**
- * A verified protocol of the demo's Tidewater Cognitive Profile (tables per age band, two composites),
- * entered the same by both scorers. Examinee born 1990-03-10, tested 2025-11-20: 35;8;10, band a30;
- * education 14. The right look-ups (worked by hand in tests/e2e/norm-forms-workflow.test.ts, tables
- * from db/seeds/profile.ts, all invented):
- * - word-recall raw 29 (a30 mean 24.5, SD 4.2): z 4.5/4.2 = 1.07, SS 116, ScS 13, T 61, %ile 86.
- * - tile-build raw 16: a30 row 16 → scaled 14.
- * - knot-copy raw 25 → 12; cargo-code raw 53 → 11; category-naming raw 48 → z 0.81, SS 112, T 58, %ile 79.
- * - beacon-slips raw 3: the 2–3 row's band 50-74.
- * - memory-index: 13 + 14 = 27; (27 − 20)/5.2 = 1.346 → SS 100 + 15·1.346 = 120.2 → 120; %ile Φ(1.346) ≈ 91.
- * - visuomotor-index: 12 + 11 = 23, sum-table row 22–23 → SS 106; %ile Φ(0.40) = .6554 → 66.
- */
-const TIDEWATER = {
-	'word-recall': { raw: '29', z: '1.07', standard: '116', scaled: '13', t: '61', percentile: '86' },
-	'tile-build': { raw: '16', scaled: '14', percentile: '91' },
-	'knot-copy': { raw: '25', scaled: '12', percentile: '75' },
-	'cargo-code': { raw: '53', scaled: '11' },
-	'category-naming': { raw: '48', z: '0.81', standard: '112', t: '58', percentile: '79' },
-	'beacon-slips': { raw: '3', percentile: '50-74' },
-	'memory-index': { sum: '27', standard: '120', percentile: '91' },
-	'visuomotor-index': { sum: '23', standard: '106', percentile: '66' }
-};
 
 beforeAll(async () => {
 	const c = { lead: await signedIn('lead'), first: await signedIn('scorer'), second: await signedIn('scorer2'), reviewer: await signedIn('reviewer') };
@@ -65,14 +44,9 @@ beforeAll(async () => {
 	file = join(mkdtempSync(join(tmpdir(), 'ct-docx-')), 'summary.docx');
 	writeFileSync(file, Buffer.from(await res.arrayBuffer()));
 
+	// a verified Tidewater protocol (tables, two composites, a band), both passes right: tests/helpers/tidewater.ts
 	tideCode = uniqueCode('DOCTW');
-	const tide = await createViaForm(c.lead, { first: ACCOUNTS.scorer, second: ACCOUNTS.scorer2, reviewer: ACCOUNTS.reviewer, battery: 'tidewater-profile', code: tideCode, birthDate: '1990-03-10', testDate: '2025-11-20', educationYears: 14 });
-	expect((await saveAndSubmit(c.first, tide, TIDEWATER)).status).toBe(200);
-	expect((await saveAndSubmit(c.second, tide, TIDEWATER)).status).toBe(200);
-	// both passes agree with each other and with the recomputation: nothing to resolve
-	expect(await select('SELECT id FROM discrepancies WHERE protocol_id = :id', { id: tide })).toEqual([]);
-	const p = await selectOne<{ lock_version: number }>('SELECT lock_version FROM protocols WHERE id = :id', { id: tide });
-	expect((await reviewer.request(`/api/v1/protocols/${tide}/signoff`, { method: 'POST', json: { lockVersion: p!.lock_version } })).status).toBe(200);
+	const tide = await tidewaterProtocol(c, { first: ACCOUNTS.scorer, second: ACCOUNTS.scorer2, reviewer: ACCOUNTS.reviewer, code: tideCode }, { verify: true });
 	const tr = await reviewer.get(`/protocols/${tide}/summary.docx`);
 	expect(tr.status).toBe(200);
 	tideFile = join(mkdtempSync(join(tmpdir(), 'ct-docx-')), 'summary.docx');
@@ -81,7 +55,10 @@ beforeAll(async () => {
 
 afterAll(() => closeDb());
 
-const pandoc = (to: string, of = file) => execFileSync('pandoc', ['-f', 'docx', '-t', to, '--columns=250', of]).toString();
+// asynchronous: a synchronous child process would block the event loop for seconds, and the HTTP
+// client would then reuse a keep-alive socket the app has meanwhile closed ("other side closed")
+const run = promisify(execFile);
+const pandoc = async (to: string, of = file) => (await run('pandoc', ['-f', 'docx', '-t', to, '--columns=250', of], { maxBuffer: 64 << 20 })).stdout;
 
 type Inline = { t: string; c?: unknown };
 const text = (inlines: Inline[]): string =>
@@ -90,8 +67,8 @@ const text = (inlines: Inline[]): string =>
 		.join('');
 
 describe('the report document (.docx)', () => {
-	it('opens in an independent reader with the facts, the domain groups in order, labels, CIs and the notes', () => {
-		const plain = pandoc('plain').replace(/[ \t]+/g, ' ');
+	it('opens in an independent reader with the facts, the domain groups in order, labels, CIs and the notes', async () => {
+		const plain = (await pandoc('plain')).replace(/[ \t]+/g, ' ');
 		for (const s of [
 			`Score summary · ${code}`,
 			`Examinee: ${code}`,
@@ -110,8 +87,8 @@ describe('the report document (.docx)', () => {
 		expect([...order].sort((a, b) => a - b)).toEqual(order);
 	});
 
-	it('is one table: 9 columns, the header row marked to repeat, one spanning row per domain, one row per test with hand-worked values', () => {
-		const doc = JSON.parse(pandoc('json')) as { blocks: { t: string; c: unknown[] }[] };
+	it('is one table: 9 columns, the header row marked to repeat, one spanning row per domain, one row per test with hand-worked values', async () => {
+		const doc = JSON.parse(await pandoc('json')) as { blocks: { t: string; c: unknown[] }[] };
 		const tables = doc.blocks.filter((b) => b.t === 'Table');
 		expect(tables).toHaveLength(1);
 		// pandoc's Table: [attr, caption, colspecs, head, bodies, foot]
@@ -146,8 +123,8 @@ describe('the report document (.docx)', () => {
 		expect([delayed[2], delayed[3], delayed[5]]).toEqual(['', '', '']);
 	});
 
-	it('leads with the composites (Tidewater battery): a Composites row first, each composite with its sum, index score, label and CI; bands as written', () => {
-		const doc = JSON.parse(pandoc('json', tideFile)) as { blocks: { t: string; c: unknown[] }[] };
+	it('leads with the composites (Tidewater battery): a Composites row first, each composite with its sum, index score, label and CI; bands as written', async () => {
+		const doc = JSON.parse(await pandoc('json', tideFile)) as { blocks: { t: string; c: unknown[] }[] };
 		const tables = doc.blocks.filter((b) => b.t === 'Table');
 		expect(tables).toHaveLength(1);
 		const [, , , , bodies] = tables[0].c as [unknown, unknown, unknown[], unknown, [unknown, number, Row[], Row[]][]];
@@ -167,7 +144,7 @@ describe('the report document (.docx)', () => {
 		// the percentile-band test keeps its band as entered, marked as a band
 		const beacon = rows.find((r) => r[0].startsWith('Beacon Watch False Alarms'))!;
 		expect(beacon[6]).toBe('50-74 band');
-		const plain = pandoc('plain', tideFile).replace(/[ \t]+/g, ' ');
+		const plain = (await pandoc('plain', tideFile)).replace(/[ \t]+/g, ' ');
 		expect(plain).toContain('Σ: a composite’s sum of its parts’ scores');
 		expect(plain).toContain('Battery: Tidewater Cognitive Profile');
 	});

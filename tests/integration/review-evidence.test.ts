@@ -15,6 +15,7 @@ import { describe, it, expect, beforeAll, afterAll } from 'vitest';
 import { Client, signedIn, ACCOUNTS, caughtMail, waitFor } from '../helpers/http';
 import { createViaForm, correctScores, saveAndSubmit, type Scores } from '../helpers/workflow';
 import Papa from 'papaparse';
+import { tidewaterProtocol, tidewaterCarriedSlip } from '../helpers/tidewater';
 import { select, selectOne, exec, closeDb, jsonValue } from '../../src/lib/server/db';
 import { closeRedis } from '../../src/lib/server/redis';
 
@@ -386,25 +387,10 @@ describe('a composite waits on its parts (Tidewater battery)', () => {
 	 * percentile 91. The first pass reads Tile Build off the next row (17–18 → 15) and carries it:
 	 * 13 + 15 = 28 → standard R(100 + 15·8/5.2) = R(123.08) = 123, percentile R(100·Φ(1.538)) = 94.
 	 */
-	const RIGHT: Scores = {
-		'word-recall': { raw: '29', z: '1.07', standard: '116', scaled: '13', t: '61', percentile: '86' },
-		'tile-build': { raw: '16', scaled: '14', percentile: '91' },
-		'knot-copy': { raw: '25', scaled: '12', percentile: '75' },
-		'cargo-code': { raw: '53', scaled: '11' },
-		'category-naming': { raw: '48', z: '0.81', standard: '112', t: '58', percentile: '79' },
-		'beacon-slips': { raw: '3', percentile: '50-74' },
-		'memory-index': { sum: '27', standard: '120', percentile: '91' },
-		'visuomotor-index': { sum: '23', standard: '106', percentile: '66' }
-	} as Scores;
 
 	it('its carried cards cannot be decided while a part is open (409 waits_on_parts), the Review page says so, and after the part they can', async () => {
-		const id = await createViaForm(lead, { ...duties, battery: 'tidewater-profile', birthDate: '1990-03-10', testDate: '2025-11-20', educationYears: 14 });
+		const id = await tidewaterProtocol({ lead, first: s1, second: s2, reviewer }, duties, { first: tidewaterCarriedSlip() });
 		made.push(id);
-		const first: Scores = JSON.parse(JSON.stringify(RIGHT));
-		first['tile-build'].scaled = '15';
-		Object.assign(first['memory-index'], { sum: '28', standard: '123', percentile: '94' });
-		expect((await saveAndSubmit(s1, id, first)).status).toBe(200);
-		expect((await saveAndSubmit(s2, id, RIGHT)).status).toBe(200);
 		const tile = await rows(id, 'tile-build');
 		expect(tile.map((d) => [d.field, d.pass, d.kind, d.value, d.expected])).toEqual([['scaled', 'first', 'adjacent_row', '15', '14']]);
 		const index = await rows(id, 'memory-index');

@@ -179,6 +179,7 @@ export interface CatalogComposite extends FrozenComposite {
 	position: number;
 	groupId: number | null;
 	groupCode: string | null;
+	groupText: string;
 }
 
 /** The battery's composites as defined now (what a new protocol freezes). */
@@ -193,8 +194,21 @@ export async function protocolComposites(protocolId: number, t?: Tx): Promise<Ca
 	const { ProtocolComposite } = models();
 	const rows = await ProtocolComposite.findAll({ where: { protocol_id: protocolId }, order: [['position', 'ASC']], transaction: t ?? undefined });
 	const ids = rows.map((r) => r.norm_group_id).filter((x): x is number => x !== null);
-	const codes = ids.length ? new Map((await select<{ id: number; group_code: string }>('SELECT id, group_code FROM norm_groups WHERE id IN (:ids)', { ids }, t)).map((g) => [g.id, g.group_code])) : new Map<number, string>();
-	return rows.map((r) => ({ ...r.definition, position: r.position, groupId: r.norm_group_id, groupCode: r.norm_group_id ? codes.get(r.norm_group_id) ?? null : null }));
+	type G = Pick<NormGroupRow, 'id' | 'group_code' | 'test_code' | 'age_min_months' | 'age_max_months' | 'sex' | 'edu_min' | 'edu_max'>;
+	const groups = ids.length
+		? new Map((await select<G>('SELECT id, group_code, test_code, age_min_months, age_max_months, sex, edu_min, edu_max FROM norm_groups WHERE id IN (:ids)', { ids }, t)).map((g) => [g.id, g]))
+		: new Map<number, G>();
+	return rows.map((r) => {
+		const g = r.norm_group_id ? groups.get(r.norm_group_id) : undefined;
+		return {
+			...r.definition,
+			position: r.position,
+			groupId: r.norm_group_id,
+			groupCode: g?.group_code ?? null,
+			// what the group covers, in words, as for tests ("ages 30;0–39;11")
+			groupText: g ? groupCoverage(groupDef({ ...g, mean: 0, sd: 1, n: null } as NormGroupRow)) : '—'
+		};
+	});
 }
 
 export const engineComposite = (c: FrozenComposite): CompositeDef => ({ id: c.code, parts: c.parts, part_field: c.part_field, reported: c.reported as CompositeField[] });

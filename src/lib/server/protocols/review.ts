@@ -121,7 +121,7 @@ export async function reviewView(protocolId: number, user: Actor) {
 		const c = composites.find((x) => x.code === d.test_code);
 		if (c) {
 			const partsOf = (which: 'first' | 'second') => c.parts.map((part) => passScores(which)[part]?.[c.part_field] ?? '—').join(' + ');
-			let text = `Parts (${c.part_field} scores): first pass ${partsOf('first')}, second pass ${partsOf('second')} · norm group ${c.groupCode ?? '—'}.`;
+			let text = `Parts (${c.part_field} scores): first pass ${partsOf('first')}, second pass ${partsOf('second')} · norm group ${c.groupText}.`;
 			if (d.kind === 'carried') text += ` Waits on its parts: this value follows from the pass's own ${(d.field as string) === 'sum' ? 'part scores' : 'sum'}; settle the parts first, then keep the value their decision gives.`;
 			if (d.kind === 'adjacent_row') text += ' Read from the row next to the one that holds the sum.';
 			return text;
@@ -151,7 +151,7 @@ export async function reviewView(protocolId: number, user: Actor) {
 				testName: test?.name ?? composite?.name ?? d.test_code,
 				composite: !!composite,
 				context: contextOf(d),
-				group: test?.groupText ?? composite?.groupCode ?? null,
+				group: test?.groupText ?? composite?.groupText ?? null,
 				raws: { first: rawOf('first', d.test_code), second: rawOf('second', d.test_code) },
 				domain: test?.domainName ?? (composite ? 'Composites' : ''),
 				field: d.field,

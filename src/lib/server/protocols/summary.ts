@@ -152,7 +152,7 @@ export async function protocolSummary(protocolId: number, user: Actor) {
 		return {
 			code: c.code,
 			name: c.name,
-			group: c.groupCode,
+			group: c.groupText,
 			parts: c.parts.map((code) => ({ code, name: tests.find((t) => t.code === code)?.name ?? code })),
 			partField: c.part_field,
 			values,
