@@ -22,6 +22,10 @@ import { rejudgeDerived } from './evidence';
 import { waitsOn } from '../../scoring/waits';
 import { kindName } from '../../scoring/kinds';
 import { FIELD_LABELS } from '../../status';
+// A static import on purpose: the production bundler (Rolldown in Vite 8.3.8) dropped the `why` argument
+// of this call when it was reached through a dynamic import(), so reopen and amendment e-mails lost
+// their round and reason (tests/integration/review-evidence.test.ts, against the built app).
+import { notifyReviewStarted } from '../mail/review';
 
 export interface DiscrepancyRow {
 	id: number;
@@ -345,6 +349,16 @@ export async function signOff(protocolId: number, user: Actor, body: unknown) {
 	});
 }
 
+/** A new review round starts from the same two passes: both are copied from `from` to `to` (reopen, amendment). */
+export async function carryPasses(protocolId: number, from: number, to: number, t: Transaction): Promise<void> {
+	await exec(
+		`INSERT INTO passes (protocol_id, round, which, scorer_id, status, scores, fields_entered, draft_version, submitted_at)
+		 SELECT protocol_id, :to, which, scorer_id, status, scores, fields_entered, draft_version, submitted_at FROM passes WHERE protocol_id = :p AND round = :from ORDER BY which`,
+		{ to, p: protocolId, from },
+		t
+	);
+}
+
 /**
  * A lead reopens a verified protocol with a reason: a new review round. The round's discrepancies are
  * carried over unresolved (the earlier decisions stay in history and are shown as the previous
@@ -357,14 +371,7 @@ export async function reopen(protocolId: number, user: Actor, reason: string) {
 		if (!duties.includes('lead')) throw notFound();
 		if (p.status !== 'verified') throw conflict('Only a verified protocol can be reopened.');
 		const next = p.round + 1;
-		for (const which of ['first', 'second'] as const) {
-			await exec(
-				`INSERT INTO passes (protocol_id, round, which, scorer_id, status, scores, fields_entered, draft_version, submitted_at)
-				 SELECT protocol_id, :next, which, scorer_id, status, scores, fields_entered, draft_version, submitted_at FROM passes WHERE protocol_id = :p AND round = :r AND which = :w`,
-				{ next, p: p.id, r: p.round, w: which },
-				t
-			);
-		}
+		await carryPasses(p.id, p.round, next, t);
 		// unresolved, each pointing at its previous decision (shown and offered as the default)
 		await exec(
 			`INSERT INTO discrepancies (protocol_id, round, position, test_code, field, pass, kind, value, other, expected, alternative, out_of_range, carried_from)
@@ -380,7 +387,6 @@ export async function reopen(protocolId: number, user: Actor, reason: string) {
 		);
 		if (moved.affected !== 1) throw conflict('This protocol was reopened at the same moment elsewhere.');
 		await audit({ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'reopen', oldValue: { status: 'verified', round: p.round }, newValue: { status: 'in_review', round: next }, reason: reason.trim() }, t);
-		const { notifyReviewStarted } = await import('../mail/review');
 		await notifyReviewStarted(p.id, next, p.reviewer_id, t, { action: 'reopen', reason: reason.trim() });
 		return { round: next };
 	});
