@@ -10,8 +10,9 @@ cd "$ROOT_DIR" || exit 1
 ensure_packages
 ensure_node_modules
 mkdir -p "$RUN_DIR"
-# Types first (svelte-check over the app, the scripts and the tests): an error fails the run before
-# any service starts. CROSSTALLY_SKIP_CHECK=1 skips it for a quick subset while iterating.
+# Types first (svelte-check over the app, the scripts and the tests), then ESLint and Prettier: an
+# error fails the run before any service starts. CROSSTALLY_SKIP_CHECK=1 skips all three for a quick
+# subset while iterating.
 if [ "${CROSSTALLY_SKIP_CHECK:-0}" != 1 ]; then
 	log "type check (npm run check)"
 	npm run --silent check -- --threshold error --output machine >"$RUN_DIR/check.log" 2>&1
@@ -19,6 +20,16 @@ if [ "${CROSSTALLY_SKIP_CHECK:-0}" != 1 ]; then
 	if [ $check_status -ne 0 ]; then
 		grep -E 'ERROR|COMPLETED' "$RUN_DIR/check.log" >&2 || tail -n 40 "$RUN_DIR/check.log" >&2
 		die "type check failed (npm run check); no tests were run"
+	fi
+	# Lint (ESLint) and format (Prettier) next, also before any service starts.
+	log "lint and format check (npm run lint)"
+	if ! npx eslint . >"$RUN_DIR/lint.log" 2>&1; then
+		tail -n 40 "$RUN_DIR/lint.log" >&2
+		die "lint failed (npx eslint .); no tests were run"
+	fi
+	if ! npx prettier --check . >>"$RUN_DIR/lint.log" 2>&1; then
+		grep -F '[warn]' "$RUN_DIR/lint.log" | head -n 20 >&2
+		die "files not formatted (npm run format writes them); no tests were run"
 	fi
 fi
 # a day between reminders: the protocols the suite leaves in review stay quiet (hundreds of chains
