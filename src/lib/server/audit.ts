@@ -1,5 +1,5 @@
 /** The append-only audit trail (the app's database user may only SELECT and INSERT here). */
-import { exec, select, type Tx } from './db';
+import { exec, type Tx } from './db';
 
 export interface AuditInput {
 	actorId: number | null;
@@ -27,26 +27,5 @@ export async function audit(e: AuditInput, t?: Tx): Promise<void> {
 			reason: e.reason ?? null
 		},
 		t
-	);
-}
-
-export interface AuditRow {
-	id: number;
-	at: Date;
-	actor_id: number | null;
-	actor_name: string | null;
-	entity: string;
-	entity_id: string;
-	action: string;
-	old_value: string | null;
-	new_value: string | null;
-	reason: string | null;
-}
-
-export async function protocolHistory(protocolId: number): Promise<AuditRow[]> {
-	return select<AuditRow>(
-		`SELECT a.*, u.name AS actor_name FROM audit_events a LEFT JOIN users u ON u.id = a.actor_id
-		  WHERE a.protocol_id = :protocolId ORDER BY a.id`,
-		{ protocolId }
 	);
 }

@@ -274,11 +274,3 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 		return { which, status: 'in_review' as const, discrepancies: result.discrepancies.length };
 	});
 }
-
-/** For a retry that cannot know whether it got through: the pass's current status. */
-export async function passStatus(protocolId: number, user: Actor) {
-	const { p, duties } = await protocolFor(protocolId, user);
-	const pass = await passRow(p, myDuty(duties));
-	return { status: pass.status, protocolStatus: p.status };
-}
-
