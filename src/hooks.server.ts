@@ -2,7 +2,7 @@ import { sequence } from '@sveltejs/kit/hooks';
 import { json, redirect, error, type Handle, type HandleServerError, type RequestEvent } from '@sveltejs/kit';
 import { handle as authHandle } from './auth';
 import { decide } from '$lib/server/access';
-import { sessionUser, SessionUnchecked } from '$lib/server/session';
+import { quickSession, sessionUser, SessionUnchecked } from '$lib/server/session';
 import { isDbUnavailable, closeDb } from '$lib/server/db';
 import { closeRedis } from '$lib/server/redis';
 import { compress } from '$lib/server/compress';
@@ -49,8 +49,11 @@ const authorize: Handle = async ({ event, resolve }) => {
 
 	let unchecked = false;
 	try {
-		const session = await event.locals.auth();
-		event.locals.user = await sessionUser(session);
+		// Most requests: the cookie is checked here with one Redis round trip and not re-issued; Auth.js's
+		// full session path runs only when the token is due for re-issue or must be refused (session.ts).
+		const quick = await quickSession(event.cookies, event.url.protocol === 'https:');
+		if (quick.kind === 'user') event.locals.user = quick.user;
+		else if (quick.kind === 'full') event.locals.user = await sessionUser(await event.locals.auth());
 	} catch (e) {
 		if (e instanceof SessionUnchecked) unchecked = true;
 		else {

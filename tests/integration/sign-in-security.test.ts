@@ -72,7 +72,7 @@ describe('sign-out ends the session (item 12)', () => {
 	it('a cookie saved before sign-out is refused afterwards: API 401, pages go to sign-in', async () => {
 		const c = await signedIn('scorer2');
 		const early = new Map(c.cookies); // the cookie right after sign-in
-		expect((await c.get('/api/v1/me')).status).toBe(200); // the session slides: a newer cookie
+		expect((await c.get('/api/v1/me')).status).toBe(200); // a later cookie (the same one while no re-issue is due)
 		const late = new Map(c.cookies);
 		const out = await signOut(c);
 		expect([302, 303]).toContain(out.status);

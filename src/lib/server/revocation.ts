@@ -17,6 +17,7 @@
 import { randomUUID } from 'node:crypto';
 import { config } from './config';
 import { redis } from './redis';
+import { genKey, stateKey } from './user-cache';
 
 const EPOCH_KEY = 'ct:session:epoch';
 const revokedKey = (sid: string) => `ct:session:revoked:${sid}`;
@@ -44,17 +45,26 @@ export type SessionState = 'ok' | 'revoked' | 'unknown';
 
 /** Is this session still valid? One round trip in the normal case. */
 export async function sessionState(sid: unknown, ep: unknown): Promise<SessionState> {
-	if (typeof sid !== 'string' || typeof ep !== 'string') return 'revoked'; // a token from before sessions had ids
+	return (await sessionCheck(sid, ep, null)).state;
+}
+
+/**
+ * The session's state and, in the same round trip, the account's cached state (user-cache.ts) when
+ * `uid` is given: `gen` and `entry` as read from Redis, for `accountState`.
+ */
+export async function sessionCheck(sid: unknown, ep: unknown, uid: number | null): Promise<{ state: SessionState; gen: string | null; entry: string | null }> {
+	if (typeof sid !== 'string' || typeof ep !== 'string') return { state: 'revoked', gen: null, entry: null }; // a token from before sessions had ids
 	try {
-		const [epoch, revoked] = await redis().mget(EPOCH_KEY, revokedKey(sid));
-		if (revoked) return 'revoked';
+		const keys = [EPOCH_KEY, revokedKey(sid), ...(uid === null ? [] : [genKey(uid), stateKey(uid)])];
+		const [epoch, revoked, gen = null, entry = null] = await redis().mget(...keys);
+		if (revoked) return { state: 'revoked', gen, entry };
 		if (epoch === null) {
 			await sessionEpoch(); // the deny-list was lost: start a new epoch; this token is from the old one
-			return 'revoked';
+			return { state: 'revoked', gen, entry };
 		}
-		return epoch === ep ? 'ok' : 'revoked';
+		return { state: epoch === ep ? 'ok' : 'revoked', gen, entry };
 	} catch {
-		return 'unknown';
+		return { state: 'unknown', gen: null, entry: null };
 	}
 }
 

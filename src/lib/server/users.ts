@@ -6,6 +6,7 @@ import { config } from './config';
 import { parseRoles, type Role } from '../roles';
 import { audit } from './audit';
 import { signInThrottle } from './throttle';
+import { invalidateUser, invalidateUserAfterCommit } from './user-cache';
 
 export interface UserRow {
 	id: number;
@@ -100,13 +101,18 @@ export async function createUser(
 	return insertId;
 }
 
+// Every change to an account that the session check reads (roles, active, session version) calls
+// invalidateUser inside its transaction (a Redis failure fails the change) and again after the
+// commit: src/lib/server/user-cache.ts explains why both.
 export async function setRoles(id: number, roles: Role[], actorId: number): Promise<void> {
 	await transaction(async (t) => {
 		const before = await getUser(id, t);
 		if (!before) throw new Error('no such user');
 		await exec('UPDATE users SET roles = :roles WHERE id = :id', { id, roles: roles.join(',') }, t);
 		await audit({ actorId, entity: 'user', entityId: id, action: 'roles', oldValue: before.roles, newValue: roles }, t);
+		await invalidateUser(id);
 	});
+	await invalidateUserAfterCommit(id);
 }
 
 /** Deactivate or reactivate; bumping the session version ends existing sessions at their next request. */
@@ -114,12 +120,17 @@ export async function setActive(id: number, active: boolean, actorId: number): P
 	await transaction(async (t) => {
 		await exec('UPDATE users SET active = :active, session_version = session_version + 1 WHERE id = :id', { id, active: active ? 1 : 0 }, t);
 		await audit({ actorId, entity: 'user', entityId: id, action: active ? 'reactivate' : 'deactivate' }, t);
+		await invalidateUser(id);
 	});
+	await invalidateUserAfterCommit(id);
 }
 
 /** End every session of this account at its next request (sign-out when Redis cannot be reached). */
 export async function endAllSessions(id: number): Promise<void> {
 	await exec('UPDATE users SET session_version = session_version + 1 WHERE id = :id', { id });
+	// called when Redis is not reachable: the cached state expires within STATE_TTL, and until
+	// Redis answers again every request of this account is refused (503) anyway
+	await invalidateUserAfterCommit(id);
 }
 
 const sha256 = (s: string) => createHash('sha256').update(s).digest('hex');
@@ -168,13 +179,17 @@ export async function useToken(token: string, password: string): Promise<TokenCh
 }
 
 function setPasswordWithToken(token: string, hash: string): Promise<TokenCheck> {
-	return transaction(async (t) => {
+	return transaction(async (t): Promise<TokenCheck> => {
 		const check = await checkToken(token, t);
 		if (!check.ok) return check;
 		const { affected } = await exec('UPDATE user_tokens SET used_at = CURRENT_TIMESTAMP(3) WHERE token_hash = :h AND used_at IS NULL', { h: sha256(token) }, t);
 		if (affected !== 1) return { ok: false, reason: 'This link has already been used.' };
 		await exec('UPDATE users SET password_hash = :hash, session_version = session_version + 1 WHERE id = :id', { hash, id: check.userId }, t);
 		await audit({ actorId: check.userId, entity: 'user', entityId: check.userId, action: check.purpose === 'invite' ? 'accept_invite' : 'reset_password' }, t);
+		await invalidateUser(check.userId);
+		return check;
+	}).then(async (check: TokenCheck) => {
+		if (check.ok) await invalidateUserAfterCommit(check.userId);
 		return check;
 	});
 }
