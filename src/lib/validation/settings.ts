@@ -15,9 +15,11 @@ export const serviceSettingsSchema = z.object({
 		.max(MAX_INTERVAL_MINUTES, `Reminder interval: at most ${MAX_INTERVAL_MINUTES} minutes (90 days)`),
 	escalate_after_reminders: z
 		.number({ message: 'Escalation: enter a whole number of reminders' })
-		.int('Escalation: enter a whole number of reminders')
 		.min(0, 'Escalation: 0 or more reminders')
-		.max(1000, 'Escalation: at most 1000 reminders'),
+		.max(1000, 'Escalation: at most 1000 reminders')
+		// a refinement, not .int(): superforms reads an integer field with parseInt, which would take
+		// "2.5" as 2; read as a number, 2.5 is refused with this message
+		.refine(Number.isInteger, 'Escalation: enter a whole number of reminders'),
 	detail: z.enum(['full', 'counts'], { message: 'E-mail detail: choose "full" or "counts"' })
 });
 
