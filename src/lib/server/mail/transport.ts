@@ -10,12 +10,26 @@ export function mailTransport(): Transporter {
 		transporter = nodemailer.createTransport(config.smtpUrl, {
 			// The local fake speaks plain SMTP on loopback; real servers negotiate TLS.
 			...(local ? { ignoreTLS: true, secure: false } : {}),
+			// Pooled connections (issue 18): one SMTP session carries up to 100 messages instead of a
+			// connect + greeting + EHLO per message; up to SMTP_POOL (5) at once for the worker's jobs.
+			pool: true,
+			maxConnections: Number(process.env.SMTP_POOL ?? 5),
+			maxMessages: 100,
 			connectionTimeout: 5_000,
 			greetingTimeout: 5_000,
 			socketTimeout: 10_000
 		});
 	}
 	return transporter;
+}
+
+/** Close the pooled connections (worker shutdown). */
+export function closeMailTransport(): void {
+	if (transporter) {
+		const t = transporter;
+		transporter = null;
+		t.close();
+	}
 }
 
 export interface OutgoingMail {
