@@ -10,11 +10,8 @@ export function mailTransport(): Transporter {
 		transporter = nodemailer.createTransport(config.smtpUrl, {
 			// The local fake speaks plain SMTP on loopback; real servers negotiate TLS.
 			...(local ? { ignoreTLS: true, secure: false } : {}),
-			// Pooled connections (issue 18): one SMTP session carries up to 100 messages instead of a
-			// connect + greeting + EHLO per message; up to SMTP_POOL (5) at once for the worker's jobs.
-			pool: true,
-			maxConnections: Number(process.env.SMTP_POOL ?? 5),
-			maxMessages: 100,
+			// Pooled SMTP connections (issue 18) were tried and taken out again: under the shared
+			// machine's load they could not be shown to help, and a mail test timed out with them.
 			connectionTimeout: 5_000,
 			greetingTimeout: 5_000,
 			socketTimeout: 10_000
