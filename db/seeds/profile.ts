@@ -162,8 +162,8 @@ export function profileGroups(): NormGroupInput[] {
 		const band = { group_code: b.code, age_min_months: b.min, age_max_months: b.max };
 		const [m, sd] = wordRecall.norms[i];
 		groups.push({ ...keys, ...band, test_code: 'word-recall', form: 'mean_sd', mean: m, sd, n: b.n });
-		// a18 one point down from a30, a40 one up (as the contract), older bands further up
-		groups.push({ ...keys, ...band, test_code: 'tile-build', form: 'table', scale: 'scaled', rows: rows(shiftTable(TILE_BUILD_A30, i - 1, 0, 20)) });
+		// a18 as a30, a40 one raw point up (as the contract), older bands further up
+		groups.push({ ...keys, ...band, test_code: 'tile-build', form: 'table', scale: 'scaled', rows: rows(shiftTable(TILE_BUILD_A30, Math.max(0, i - 1), 0, 20)) });
 		groups.push({ ...keys, ...band, test_code: 'knot-copy', form: 'table', scale: 'scaled', rows: rows(scaledTable(0, 30, ...KNOT_COPY[i])) });
 		groups.push({ ...keys, ...band, test_code: 'cargo-code', form: 'table', scale: 'scaled', rows: rows(scaledTable(0, 75, ...CARGO_CODE[i])) });
 		groups.push({ ...keys, ...band, test_code: 'memory-index', subject: 'composite', form: 'mean_sd', mean: 20, sd: MEMORY_INDEX_SD[i] });

@@ -18,6 +18,7 @@ import { getUserByEmail } from '../../src/lib/server/users';
 import { referenceScore, zFromRaw, roundTo, type DerivedField, type Field } from '../../src/lib/scoring/scales';
 import { recordFormPdf } from './record-form';
 import { clinicToday } from '../../src/lib/server/clock';
+import { seedTidewaterProtocols } from './tidewater-protocols';
 
 function prng(seed: number) {
 	return () => {
@@ -231,8 +232,10 @@ export async function seedProtocols(): Promise<void> {
 			await signOff(id, reviewer, { lockVersion: last.protocol.lock_version });
 		}
 	}
+	// the second battery (tables, composites, bands): a few protocols in different states
+	const tidewater = await seedTidewaterProtocols(actors, lead);
 	await db().query('SET timestamp = DEFAULT');
-	console.error(`[crosstally] seeded ${PLANS.length} demo protocols`);
+	console.error(`[crosstally] seeded ${PLANS.length + tidewater} demo protocols`);
 }
 
 function pdfFile(code: string, tests: TestInfo[], truth: Record<string, number>): File {

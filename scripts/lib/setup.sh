@@ -50,6 +50,16 @@ mariadb_bin() { command -v "$1" 2>/dev/null || echo "/usr/sbin/$1"; }
 
 pid_alive() { [ -f "$1" ] && kill -0 "$(cat "$1")" 2>/dev/null; }
 
+# Refuse to start a server on a port another process already listens on: otherwise a second run on the
+# same ports (an earlier test run still going, a demo) would answer our health checks and catch our
+# mail, and the tests would fail far from the cause.
+port_in_use() { (exec 3<>"/dev/tcp/127.0.0.1/$1") 2>/dev/null; }
+ensure_port_free() {
+	local port="$1" what="$2" var="$3"
+	port_in_use "$port" && die "port $port ($what) is already in use by another process; stop it (another Crosstally run?) or set $var to a free port"
+	return 0
+}
+
 # The data folder and the run folder (MariaDB's socket, Redis's config with its password, PID
 # files, logs) are for the user running Crosstally only: 0700. Called by every start below.
 secure_dirs() {
@@ -61,6 +71,7 @@ start_mariadb() {
 	local dir="$CROSSTALLY_DATA_DIR/mariadb" sock="$RUN_DIR/mariadb.sock" pidf="$RUN_DIR/mariadb.pid"
 	secure_dirs
 	if pid_alive "$pidf"; then log "MariaDB already running (pid $(cat "$pidf"))"; secure_mariadb_root; return 0; fi
+	ensure_port_free "$DB_PORT" MariaDB DB_PORT
 	if [ ! -d "$dir/mysql" ]; then
 		log "initialising MariaDB data directory $dir"
 		mkdir -p "$dir"
@@ -124,6 +135,7 @@ start_redis() {
 	secure_dirs
 	mkdir -p "$RUN_DIR/redis"
 	if pid_alive "$pidf"; then log "Redis already running (pid $(cat "$pidf"))"; return 0; fi
+	ensure_port_free "$REDIS_PORT" Redis REDIS_PORT
 	write_redis_conf
 	redis-server "$RUN_DIR/redis.conf" --port "$REDIS_PORT" --bind 127.0.0.1 --save '' --appendonly no --dir "$RUN_DIR/redis" \
 		--pidfile "$pidf" --daemonize yes --maxmemory-policy noeviction --logfile "$RUN_DIR/redis.log" >/dev/null \
@@ -155,12 +167,17 @@ wait_http() {
 }
 
 start_mailfake() {
+	if ! pid_alive "$RUN_DIR/mailfake.pid"; then
+		ensure_port_free "$SMTP_PORT" "the mail fake's SMTP" SMTP_PORT
+		ensure_port_free "$MAILFAKE_PORT" "the mail fake's HTTP" MAILFAKE_PORT
+	fi
 	start_node_process mailfake node_modules/.bin/tsx scripts/mailfake.ts
 	wait_http "http://127.0.0.1:$MAILFAKE_PORT/health" || { tail -20 "$RUN_DIR/mailfake.log" >&2; die "mail fake did not start"; }
 	log "mail fake: SMTP 127.0.0.1:$SMTP_PORT, messages at http://127.0.0.1:$MAILFAKE_PORT/messages"
 }
 
 start_app() {
+	pid_alive "$RUN_DIR/app.pid" || ensure_port_free "$PORT" "the app" PORT
 	start_node_process app node --env-file="$ENV_FILE" "$CROSSTALLY_BUILD_DIR/index.js"
 	wait_http "http://127.0.0.1:$PORT/health" || { tail -30 "$RUN_DIR/app.log" >&2; die "app did not start"; }
 }

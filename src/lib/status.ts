@@ -14,13 +14,14 @@ export const FIELD_LABELS: Record<string, string> = {
 	standard: 'Standard score',
 	scaled: 'Scaled score',
 	t: 'T-score',
-	percentile: 'Percentile'
+	percentile: 'Percentile',
+	sum: 'Sum of parts'
 };
 
 /** A field's name inside a sentence ("raw score", "T-score"): the same words, lower-case where English wants it. */
 export function fieldWords(field: string): string {
 	const l = FIELD_LABELS[field];
-	return l ? l.replace(/^(Raw|Standard|Scaled|Percentile)/, (w) => w.toLowerCase()) : field;
+	return l ? l.replace(/^(Raw|Standard|Scaled|Percentile|Sum)/, (w) => w.toLowerCase()) : field;
 }
 
 /** A status in words ("Second pass"), never the internal code. */
@@ -28,9 +29,9 @@ export function statusWords(status: unknown): string {
 	return STATUS[String(status)]?.label ?? String(status ?? '');
 }
 
-export const FIELD_SHORT: Record<string, string> = { raw: 'Raw', z: 'z', standard: 'SS', scaled: 'ScS', t: 'T', percentile: '%ile' };
+export const FIELD_SHORT: Record<string, string> = { raw: 'Raw', z: 'z', standard: 'SS', scaled: 'ScS', t: 'T', percentile: '%ile', sum: 'Sum' };
 
-/** Kind names come from the one list in src/lib/scoring/kinds.ts. */
+/** Kind names come from the one list in src/lib/scoring/kinds.ts (the issue-14 kinds included). */
 export const KIND_LABELS: Readonly<Record<string, string>> = KIND_NAMES;
 
 /** Age of an item in words: "3 h", "2 d". */

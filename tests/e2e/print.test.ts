@@ -19,6 +19,7 @@ import type { Browser, Page } from 'playwright-core';
 import { launch, signIn, BASE_URL } from '../helpers/browser';
 import { ACCOUNTS, DEMO_PASSWORD, signedIn } from '../helpers/http';
 import { throughWorkflow, uniqueCode } from '../helpers/workflow';
+import { tidewaterProtocol } from '../helpers/tidewater';
 import { closeDb } from '../../src/lib/server/db';
 
 const OUT = 'test-results/print';
@@ -156,4 +157,45 @@ describe('the Summary printed', () => {
 		expect(pages).toBeGreaterThan(2);
 		await p.context().close();
 	}, 120_000);
+
+	it('a battery with composites (Tidewater) prints them first, before the first domain, and the band test’s note beside the curve; nothing in the right margin', async () => {
+		const c = { lead: await signedIn('lead'), first: await signedIn('scorer'), second: await signedIn('scorer2'), reviewer: await signedIn('reviewer') };
+		const twCode = uniqueCode('PRTW');
+		const tw = await tidewaterProtocol(c, { first: ACCOUNTS.scorer, second: ACCOUNTS.scorer2, reviewer: ACCOUNTS.reviewer, code: twCode }, { verify: true });
+		const p = await (await browser.newContext({ viewport: { width: 1280, height: 900 } })).newPage();
+		await signIn(p, ACCOUNTS.reviewer, DEMO_PASSWORD);
+		await p.goto(`${BASE_URL}/protocols/${tw}/summary`, { waitUntil: 'networkidle' });
+		const pdf = join(OUT, 'summary-composites-A4.pdf');
+		await p.pdf({ path: pdf, format: 'A4' });
+		const { pages, text, images } = pdfPages(pdf, 'summary-composites-A4');
+		const flat = text.map((t) => t.replace(/\s+/g, ' '));
+		const all = flat.join(' ');
+		// the composites' heading and both composites come before the domains' tests (the parts' names also appear in
+		// the composites' rows, so the check uses a domain heading and a test that is part of no composite)
+		const first = Math.min(all.indexOf('Visuospatial'), all.indexOf('Category Naming'));
+		expect(all.indexOf('Composites')).toBeGreaterThan(0);
+		expect(all.indexOf('Composites')).toBeLessThan(all.indexOf('Memory Index'));
+		expect(all.indexOf('Memory Index')).toBeLessThan(all.indexOf('Visuomotor Index'));
+		expect(all.indexOf('Visuomotor Index')).toBeLessThan(first);
+		// the sum of the parts: 13 + 14 = 27 (tests/helpers/tidewater.ts)
+		expect(all).toContain('Σ 27');
+		expect(all).toContain('Not on the curve: Beacon Watch False Alarms.');
+		for (const [i, t] of text.entries()) expect(t, `page ${i + 1}`).toContain(twCode);
+		expect(pages).toBeGreaterThanOrEqual(2);
+		for (const [i, img] of images.entries()) {
+			const from = Math.ceil(img.w * (1 - (MARGIN_MM - 2) / 210));
+			let ink = 0;
+			for (let y = 0; y < img.h; y++) for (let x = from; x < img.w; x++) { const [r, g, b] = img.px(x, y); if (r < 235 || g < 235 || b < 235) ink++; }
+			expect(ink, `page ${i + 1}: pixels with ink in the right margin`).toBe(0);
+		}
+		// screen and print emulation at a desktop and a phone width, to look at (test-results/print/)
+		for (const w of [1440, 390]) {
+			await p.setViewportSize({ width: w, height: 900 });
+			await p.emulateMedia({ media: 'screen' });
+			await p.screenshot({ path: join(OUT, `summary-composites-screen-${w}.png`), fullPage: true });
+			await p.emulateMedia({ media: 'print' });
+			await p.screenshot({ path: join(OUT, `summary-composites-print-${w}.png`), fullPage: true });
+		}
+		await p.context().close();
+	}, 180_000);
 });

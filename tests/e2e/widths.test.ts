@@ -11,12 +11,13 @@ import type { Browser, Page } from 'playwright-core';
 import { launch, signIn, BASE_URL } from '../helpers/browser';
 import { ACCOUNTS, DEMO_PASSWORD, signedIn, caughtMail, waitFor } from '../helpers/http';
 import { throughWorkflow, createViaForm, uniqueCode } from '../helpers/workflow';
+import { tidewaterProtocol, tidewaterCarriedSlip } from '../helpers/tidewater';
 import { seriousViolations, describeViolations } from '../helpers/axe';
 import { closeDb, selectOne } from '../../src/lib/server/db';
 
 const WIDTHS = [390, 768, 1024, 1440];
 let browser: Browser;
-const ids = { draft: 0, review: 0, verified: 0, battery: 0, normSet: 0, mail: '' };
+const ids = { draft: 0, review: 0, verified: 0, twDraft: 0, twReview: 0, twVerified: 0, battery: 0, normSet: 0, mail: '' };
 
 beforeAll(async () => {
 	browser = await launch();
@@ -28,6 +29,10 @@ beforeAll(async () => {
 	ids.draft = await createViaForm(lead, { ...who, battery: 'core-adult', code: uniqueCode('W') });
 	ids.review = await throughWorkflow({ lead, first, second, reviewer }, { ...who, battery: 'core-adult', code: uniqueCode('W'), secondChanges: { 'word-recall': { standard: '611' } } });
 	ids.verified = await throughWorkflow({ lead, first, second, reviewer }, { ...who, battery: 'core-adult', code: uniqueCode('W'), secondChanges: { 'word-recall': { standard: '611' } }, verify: true });
+	// the Tidewater battery: composites after their parts, composite cards, composites first and a band on the Summary
+	ids.twDraft = await createViaForm(lead, { ...who, battery: 'tidewater-profile', code: uniqueCode('WT'), birthDate: '1990-03-10', testDate: '2025-11-20' });
+	ids.twReview = await tidewaterProtocol({ lead, first, second, reviewer }, { ...who, code: uniqueCode('WT') }, { first: tidewaterCarriedSlip() });
+	ids.twVerified = await tidewaterProtocol({ lead, first, second, reviewer }, { ...who, code: uniqueCode('WT') }, { first: tidewaterCarriedSlip(), verify: true });
 	ids.battery = (await selectOne<{ id: number }>("SELECT id FROM batteries WHERE code = 'core-adult'"))!.id;
 	ids.normSet = (await selectOne<{ id: number }>('SELECT id FROM norm_sets ORDER BY id LIMIT 1'))!.id;
 	// a caught message for the mailbox's message screen
@@ -58,6 +63,9 @@ const SCREENS: { role: Role; name: string; path: () => string }[] = [
 	{ role: 'reviewer', name: 'worklist', path: () => '/' },
 	{ role: 'reviewer', name: 'review', path: () => `/protocols/${ids.review}/review` },
 	{ role: 'reviewer', name: 'summary', path: () => `/protocols/${ids.verified}/summary` },
+	{ role: 'scorer', name: 'entry (composites)', path: () => `/protocols/${ids.twDraft}/entry` },
+	{ role: 'reviewer', name: 'review (composites)', path: () => `/protocols/${ids.twReview}/review` },
+	{ role: 'reviewer', name: 'summary (composites)', path: () => `/protocols/${ids.twVerified}/summary` },
 	{ role: 'lead', name: 'new protocol', path: () => '/protocols/new' },
 	{ role: 'lead', name: 'audit', path: () => '/audit' },
 	{ role: 'lead', name: 'catalog', path: () => '/catalog' },

@@ -3,12 +3,12 @@
  * during a submission, the worker killed by its PID between the SMTP accept and the mail_log
  * update, the SMTP server refusing. Each test puts Redis and a plain worker back at the end.
  */
-import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
+import { afterAll, afterEach, beforeAll, beforeEach, describe, expect, it } from 'vitest';
 import { Queue } from 'bullmq';
-import { selectOne } from '../../src/lib/server/db';
+import { exec, selectOne } from '../../src/lib/server/db';
 import { bullConnection } from '../../src/lib/server/redis';
 import { MAIL_QUEUE } from '../../src/lib/server/mail/queue';
-import { listProtocolMail, recoverLostReviewMail } from '../../src/lib/server/mail/review';
+import { listProtocolMail, recoverLostReviewMail, saveReviewMailSettings, REVIEW_MAIL_SETTING } from '../../src/lib/server/mail/review';
 import { config } from '../../src/lib/server/config';
 import { ACCOUNTS, waitFor } from '../helpers/http';
 import {
@@ -24,7 +24,9 @@ import {
 } from '../helpers/review-fixtures';
 import { killWorker, restoreServices, startRedis, startWorker, stopRedis, stopWorker, workerPid } from '../helpers/services';
 
-const INTERVAL_MS = config.reminderIntervalMinutes * 60_000;
+/** The suite's reminder interval is a day; these tests save a reminder every 3 s (0.05 min × 60 000 ms). */
+const INTERVAL_MINUTES = 0.05;
+const INTERVAL_MS = 3_000;
 const sleep = (ms: number) => new Promise((r) => setTimeout(r, ms));
 const firstKey = (protocolId: number, reviewerId: number) => `review:${protocolId}:r1:u${reviewerId}:0`;
 const byKey = (msgs: FakeMessage[], key: string) => msgs.filter((m) => keyOf(m) === key);
@@ -33,10 +35,15 @@ beforeAll(async () => {
 	await restoreServices();
 });
 
+beforeEach(async () => {
+	await saveReviewMailSettings({ reminderIntervalMinutes: INTERVAL_MINUTES, escalateAfterReminders: config.escalateAfterReminders });
+});
+
 afterEach(async () => {
 	await refuseNext(0);
 	await restoreServices();
 	await endAllChains();
+	await exec(`DELETE FROM settings WHERE name = :n`, { n: REVIEW_MAIL_SETTING });
 }, 60_000);
 
 afterAll(async () => {

@@ -1,9 +1,10 @@
 /**
  * Reviewer notifications against the real MariaDB, Redis, worker and mail fake that npm test
- * starts (REMINDER_INTERVAL_MINUTES=0.05: a reminder every 3 s). Fixtures are inserted straight
+ * starts. The suite's reminder interval is a day (so the protocols other files leave in review stay
+ * quiet); each test here saves the site setting of a reminder every 3 s. Fixtures are inserted straight
  * into the tables; the tests call notifyReviewStarted / notifyReviewerChanged as the workflow does.
  */
-import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
+import { afterAll, afterEach, beforeEach, describe, expect, it } from 'vitest';
 import { exec, transaction } from '../../src/lib/server/db';
 import { config } from '../../src/lib/server/config';
 import {
@@ -32,7 +33,9 @@ import {
 	type Fixture
 } from '../helpers/review-fixtures';
 
-const INTERVAL_MS = config.reminderIntervalMinutes * 60_000;
+/** A reminder every 3 s while these tests run (0.05 min × 60 000 ms = 3 000 ms). */
+const INTERVAL_MINUTES = 0.05;
+const INTERVAL_MS = 3_000;
 const sleep = (ms: number) => new Promise((r) => setTimeout(r, ms));
 
 const byKey = (msgs: FakeMessage[], key: string) => msgs.filter((m) => keyOf(m) === key);
@@ -42,8 +45,8 @@ async function waitForKey(f: Fixture, key: string, timeoutMs = 20_000): Promise<
 	return waitFor(async () => byKey(await caughtFor(f), key)[0], timeoutMs, 150);
 }
 
-beforeAll(() => {
-	expect(INTERVAL_MS, 'npm test runs with a short reminder interval').toBeLessThanOrEqual(10_000);
+beforeEach(async () => {
+	await saveReviewMailSettings({ reminderIntervalMinutes: INTERVAL_MINUTES, escalateAfterReminders: config.escalateAfterReminders });
 });
 
 afterEach(async () => {
@@ -94,7 +97,7 @@ describe('review notifications', () => {
 	});
 
 	it('with e-mail detail set to counts, the message gives how many of each kind and the link, and no value at all', async () => {
-		await saveReviewMailSettings({ reminderIntervalMinutes: config.reminderIntervalMinutes, escalateAfterReminders: config.escalateAfterReminders, detail: 'counts' });
+		await saveReviewMailSettings({ reminderIntervalMinutes: INTERVAL_MINUTES, escalateAfterReminders: config.escalateAfterReminders, detail: 'counts' });
 		const f = await protocolReachesReview();
 		const m = await waitForKey(f, keyFor(f.protocolId, f.reviewerId, 0));
 		expect(m.subject).toBe(`Review needed: protocol ${f.code} (4 discrepancies)`);
@@ -134,7 +137,7 @@ describe('review notifications', () => {
 	}, 60_000);
 
 	it('copies the active leads in after the configured number of reminders (escalation)', async () => {
-		await saveReviewMailSettings({ reminderIntervalMinutes: config.reminderIntervalMinutes, escalateAfterReminders: 1 });
+		await saveReviewMailSettings({ reminderIntervalMinutes: INTERVAL_MINUTES, escalateAfterReminders: 1 });
 		const f = await protocolReachesReview();
 		const r1 = await waitForKey(f, keyFor(f.protocolId, f.reviewerId, 1), 2 * INTERVAL_MS + 15_000);
 		expect(r1.cc, 'reminder 1 is within the allowance').toBe('');
@@ -149,7 +152,7 @@ describe('review notifications', () => {
 	}, 60_000);
 
 	it('a lead who is the reviewer is not copied in on their own reminder', async () => {
-		await saveReviewMailSettings({ reminderIntervalMinutes: config.reminderIntervalMinutes, escalateAfterReminders: 0 });
+		await saveReviewMailSettings({ reminderIntervalMinutes: INTERVAL_MINUTES, escalateAfterReminders: 0 });
 		const f = await protocolReachesReview({ reviewer: ACCOUNTS.lead });
 		const r1 = await waitForKey(f, keyFor(f.protocolId, f.reviewerId, 1), 2 * INTERVAL_MS + 15_000);
 		expect(r1.envelope.to).toEqual([ACCOUNTS.lead]);

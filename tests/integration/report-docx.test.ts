@@ -4,18 +4,23 @@
  * through the library that wrote it. Expected values are worked out by hand below.
  */
 import { describe, it, expect, beforeAll, afterAll } from 'vitest';
-import { execFileSync } from 'node:child_process';
+import { execFile, execFileSync } from 'node:child_process';
+import { promisify } from 'node:util';
 import { mkdtempSync, writeFileSync, readFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { ACCOUNTS, signedIn, type Client } from '../helpers/http';
 import { throughWorkflow, uniqueCode } from '../helpers/workflow';
+import { tidewaterProtocol } from '../helpers/tidewater';
 import { closeDb } from '../../src/lib/server/db';
 
 let reviewer: Client;
 let id: number;
 let code: string;
 let file: string;
+let tideCode: string;
+let tideFile: string;
+
 
 beforeAll(async () => {
 	const c = { lead: await signedIn('lead'), first: await signedIn('scorer'), second: await signedIn('scorer2'), reviewer: await signedIn('reviewer') };
@@ -38,11 +43,22 @@ beforeAll(async () => {
 	expect(res.headers.get('content-disposition')).toBe(`attachment; filename="summary-${code}.docx"`);
 	file = join(mkdtempSync(join(tmpdir(), 'ct-docx-')), 'summary.docx');
 	writeFileSync(file, Buffer.from(await res.arrayBuffer()));
-}, 120_000);
+
+	// a verified Tidewater protocol (tables, two composites, a band), both passes right: tests/helpers/tidewater.ts
+	tideCode = uniqueCode('DOCTW');
+	const tide = await tidewaterProtocol(c, { first: ACCOUNTS.scorer, second: ACCOUNTS.scorer2, reviewer: ACCOUNTS.reviewer, code: tideCode }, { verify: true });
+	const tr = await reviewer.get(`/protocols/${tide}/summary.docx`);
+	expect(tr.status).toBe(200);
+	tideFile = join(mkdtempSync(join(tmpdir(), 'ct-docx-')), 'summary.docx');
+	writeFileSync(tideFile, Buffer.from(await tr.arrayBuffer()));
+}, 180_000);
 
 afterAll(() => closeDb());
 
-const pandoc = (to: string) => execFileSync('pandoc', ['-f', 'docx', '-t', to, '--columns=250', file]).toString();
+// asynchronous: a synchronous child process would block the event loop for seconds, and the HTTP
+// client would then reuse a keep-alive socket the app has meanwhile closed ("other side closed")
+const run = promisify(execFile);
+const pandoc = async (to: string, of = file) => (await run('pandoc', ['-f', 'docx', '-t', to, '--columns=250', of], { maxBuffer: 64 << 20 })).stdout;
 
 type Inline = { t: string; c?: unknown };
 const text = (inlines: Inline[]): string =>
@@ -51,8 +67,8 @@ const text = (inlines: Inline[]): string =>
 		.join('');
 
 describe('the report document (.docx)', () => {
-	it('opens in an independent reader with the facts, the domain groups in order, labels, CIs and the notes', () => {
-		const plain = pandoc('plain').replace(/[ \t]+/g, ' ');
+	it('opens in an independent reader with the facts, the domain groups in order, labels, CIs and the notes', async () => {
+		const plain = (await pandoc('plain')).replace(/[ \t]+/g, ' ');
 		for (const s of [
 			`Score summary · ${code}`,
 			`Examinee: ${code}`,
@@ -71,8 +87,8 @@ describe('the report document (.docx)', () => {
 		expect([...order].sort((a, b) => a - b)).toEqual(order);
 	});
 
-	it('is one table: 9 columns, the header row marked to repeat, one spanning row per domain, one row per test with hand-worked values', () => {
-		const doc = JSON.parse(pandoc('json')) as { blocks: { t: string; c: unknown[] }[] };
+	it('is one table: 9 columns, the header row marked to repeat, one spanning row per domain, one row per test with hand-worked values', async () => {
+		const doc = JSON.parse(await pandoc('json')) as { blocks: { t: string; c: unknown[] }[] };
 		const tables = doc.blocks.filter((b) => b.t === 'Table');
 		expect(tables).toHaveLength(1);
 		// pandoc's Table: [attr, caption, colspecs, head, bodies, foot]
@@ -105,6 +121,32 @@ describe('the report document (.docx)', () => {
 		// a test that does not report a field leaves its cell empty, never a dash (Delayed recall reports scaled and percentile only)
 		const delayed = byName.get('Harbour Word Recall, Delayed')!;
 		expect([delayed[2], delayed[3], delayed[5]]).toEqual(['', '', '']);
+	});
+
+	it('leads with the composites (Tidewater battery): a Composites row first, each composite with its sum, index score, label and CI; bands as written', async () => {
+		const doc = JSON.parse(await pandoc('json', tideFile)) as { blocks: { t: string; c: unknown[] }[] };
+		const tables = doc.blocks.filter((b) => b.t === 'Table');
+		expect(tables).toHaveLength(1);
+		const [, , , , bodies] = tables[0].c as [unknown, unknown, unknown[], unknown, [unknown, number, Row[], Row[]][]];
+		type Cell = [unknown, unknown, number, number, { t: string; c: Inline[] }[]];
+		type Row = [unknown, Cell[]];
+		const cellText = (cell: Cell) => cell[4].map((b) => text(b.c)).join(' ').trim();
+		const rows = bodies.flatMap((b) => b[3]).map((r) => r[1].map(cellText));
+		// the first row is the Composites heading, then the two composites in the battery's order, then the domains
+		expect(rows[0]).toEqual(['Composites']);
+		// Memory Index: Σ 27, SS 120 (above), %ile 91; label on SS 120–129 "Above average" (AACN 2020, Guilmette et al.; from memory);
+		// 95% CI, reliability .90: SEM = 15·√0.10 = 4.743, 1.96·4.743 = 9.30, 120 ± 9.30 = 110.70–129.30 → 111–129.
+		expect(rows[1]).toEqual(['Memory Index (scaled scores of Harbour Word Recall + Tile Build)', 'Σ 27', '', '120', '', '', '91', 'Above average (SS)', '111–129']);
+		// Visuomotor Index: Σ 23, SS 106 (table row 22–23), %ile 66; 90–109 "Average";
+		// reliability .88: SEM = 15·√0.12 = 5.196, 1.96·5.196 = 10.18, 106 ± 10.18 = 95.82–116.18 → 96–116.
+		expect(rows[2]).toEqual(['Visuomotor Index (scaled scores of Knot Copy + Cargo Code)', 'Σ 23', '', '106', '', '', '66', 'Average (SS)', '96–116']);
+		expect(rows[3]).toHaveLength(1); // the first domain's heading follows the composites
+		// the percentile-band test keeps its band as entered, marked as a band
+		const beacon = rows.find((r) => r[0].startsWith('Beacon Watch False Alarms'))!;
+		expect(beacon[6]).toBe('50-74 band');
+		const plain = (await pandoc('plain', tideFile)).replace(/[ \t]+/g, ' ');
+		expect(plain).toContain('Σ: a composite’s sum of its parts’ scores');
+		expect(plain).toContain('Battery: Tidewater Cognitive Profile');
 	});
 
 	it("asks for the app's font, IBM Plex Sans, in the document's styles", () => {

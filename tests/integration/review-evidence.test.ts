@@ -15,6 +15,7 @@ import { describe, it, expect, beforeAll, afterAll } from 'vitest';
 import { Client, signedIn, ACCOUNTS, caughtMail, waitFor } from '../helpers/http';
 import { createViaForm, correctScores, saveAndSubmit, type Scores } from '../helpers/workflow';
 import Papa from 'papaparse';
+import { tidewaterProtocol, tidewaterCarriedSlip } from '../helpers/tidewater';
 import { select, selectOne, exec, closeDb, jsonValue } from '../../src/lib/server/db';
 import { closeRedis } from '../../src/lib/server/redis';
 
@@ -24,7 +25,7 @@ beforeAll(async () => {
 });
 const made: number[] = [];
 afterAll(async () => {
-	// end the reminder chains of what is still in review here (every 3 s in test mode), so they do not
+	// end the reminder chains of what is still in review here (npm test's interval is a day; a run with a short one set stays quiet too), so they do not
 	// flood the mail fake for the test files that run after this one
 	if (made.length) await exec(`UPDATE protocols SET status = 'verified', verified_at = CURRENT_TIMESTAMP(3) WHERE id IN (:ids) AND status = 'in_review'`, { ids: made });
 	await closeRedis();
@@ -287,6 +288,11 @@ describe('amendment of a verified protocol', () => {
 		const ap = await approve.json();
 		expect(approve.status, JSON.stringify(ap)).toBe(200);
 		expect(ap).toMatchObject({ status: 'applied', round: 2 });
+		// the reviewer's round-2 e-mail is written in the same transaction and names the amendment: the
+		// test's name, the field and the reason (read back from its outbox row: the reviewer settles the
+		// round below before the worker would send it)
+		const mailRow = await selectOne<{ payload: unknown }>("SELECT payload FROM outbox WHERE idempotency_key LIKE :k AND kind = 'review_first'", { k: `review:${id}:r2:%` });
+		expect(jsonValue<{ why?: unknown }>(mailRow!.payload).why).toEqual({ action: 'amendment', reason: 'record form shows 3 errors, both passes read 5', field: 'Switching Rule Errors, raw score' });
 
 		// round 2: the earlier rows are carried with their decisions, none reopened
 		const round2 = await select<{ position: number; test_code: string; field: string; resolution: string | null; resolved_value: string | null; resolved_by: number | null; value: string | null; other: string | null }>(
@@ -368,11 +374,43 @@ describe('reopen with a reason', () => {
 		expect(html).toContain('Keep the previous round’s decisions');
 		reopenedId = id;
 	});
-	// Known defect, not yet found: the round-2 outbox row is written without its `why`, so the e-mail
-	// does not name the round and the reason (issue 13 stays open until this passes again).
-	it.skip('the reopen e-mail names the round and the reason', { timeout: 150_000 }, async () => {
+	it('the reopen e-mail names the round and the reason', { timeout: 150_000 }, async () => {
 		const code = (await selectOne<{ code: string }>('SELECT e.code FROM protocols p JOIN examinees e ON e.id = p.examinee_id WHERE p.id = :id', { id: reopenedId }))!.code;
 		const mail = await waitFor(async () => (await caughtMail(ACCOUNTS.reviewer)).find((m) => m.subject.includes(code) && m.text.includes('round 2')), 90_000, 1_000);
 		expect(mail.text).toContain('It was reopened for review round 2. Reason: The scan was of another page; check again.');
+	});
+});
+
+describe('a composite waits on its parts (Tidewater battery)', () => {
+	/**
+	 * Examinee born 1990-03-10, tested 2025-11-20 (35;8;10, band a30), education 14; the right
+	 * look-ups are worked by hand in tests/e2e/norm-forms-workflow.test.ts (invented tables,
+	 * db/seeds/profile.ts). Tile Build raw 16 is the a30 row 16 → scaled 14; Memory Index = Harbour
+	 * Word Recall scaled 13 + Tile Build scaled 14 = 27 → standard R(100 + 15·7/5.2) = R(120.19) = 120,
+	 * percentile 91. The first pass reads Tile Build off the next row (17–18 → 15) and carries it:
+	 * 13 + 15 = 28 → standard R(100 + 15·8/5.2) = R(123.08) = 123, percentile R(100·Φ(1.538)) = 94.
+	 */
+
+	it('its carried cards cannot be decided while a part is open (409 waits_on_parts), the Review page says so, and after the part they can', async () => {
+		const id = await tidewaterProtocol({ lead, first: s1, second: s2, reviewer }, duties, { first: tidewaterCarriedSlip() });
+		made.push(id);
+		const tile = await rows(id, 'tile-build');
+		expect(tile.map((d) => [d.field, d.pass, d.kind, d.value, d.expected])).toEqual([['scaled', 'first', 'adjacent_row', '15', '14']]);
+		const index = await rows(id, 'memory-index');
+		expect(index.map((d) => [d.field, d.kind, d.value, d.expected])).toEqual([
+			['sum', 'carried', '28', '27'],
+			['standard', 'carried', '123', '120'],
+			['percentile', 'carried', '94', '91']
+		]);
+		const early = await resolve(index[1].id, { choice: 'recomputed' });
+		expect(early.status).toBe(409);
+		expect(early.body.code).toBe('waits_on_parts');
+		const html = await (await reviewer.get(`/protocols/${id}/review`)).text();
+		expect(html).toContain('waits on its parts');
+		expect(html).toContain('Parts (scaled scores): first pass 13 + 15, second pass 13 + 14');
+		expect((await resolve(tile[0].id, { choice: 'recomputed' })).status).toBe(200);
+		const later = await resolve(index[1].id, { choice: 'recomputed' });
+		expect(later.status, JSON.stringify(later.body)).toBe(200);
+		expect(later.body.resolvedValue).toBe('120');
 	});
 });

@@ -415,31 +415,7 @@ export class CsvValidator<K extends CsvKind> {
 
 	private normRow(line: number, v: Record<string, string>): void {
 		const before = this.result.errorCount;
-		const test = v.test_code ?? '';
-		const group = v.group_code ?? '';
-		if (!test) this.err(line, 'test_code', 'test_code: missing value');
-		else if (!this.ctx.testCodes.has(test)) this.err(line, 'test_code', `test_code: unknown test code "${clip(test)}"`);
-		if (!group) this.err(line, 'group_code', 'group_code: missing value');
-		else if (!/^[A-Za-z0-9][A-Za-z0-9._-]{0,39}$/.test(group)) this.err(line, 'group_code', `group_code: "${clip(group)}" — use 1–40 letters, digits, dot, hyphen, underscore`);
-		const min = this.num(line, v, 'age_min_months', { required: true, int: true });
-		const max = this.num(line, v, 'age_max_months', { required: true, int: true });
-		for (const [c, x] of [['age_min_months', min], ['age_max_months', max]] as const) {
-			if (typeof x === 'number' && (x < 0 || x > MAX_AGE_MONTHS)) this.err(line, c, `${c}: ${x} is outside 0–${MAX_AGE_MONTHS} months`);
-		}
-		if (typeof min === 'number' && typeof max === 'number' && min > max)
-			this.err(line, 'age_max_months', `Age range reversed: ${min}–${max} months (the upper age is below the lower)`);
-		let sex: 'F' | 'M' | null = null;
-		const sx = (v.sex ?? '').toUpperCase();
-		if (sx === 'F' || sx === 'M') sex = sx;
-		else if (sx !== '') this.err(line, 'sex', `sex: "${clip(v.sex)}" — use F, M or leave empty`);
-		const eMin = this.num(line, v, 'edu_min', { int: true });
-		const eMax = this.num(line, v, 'edu_max', { int: true });
-		if ((eMin === null) !== (eMax === null) && eMin !== undefined && eMax !== undefined) this.err(line, eMin === null ? 'edu_min' : 'edu_max', 'Give both edu_min and edu_max, or neither');
-		else if (typeof eMin === 'number' && typeof eMax === 'number') {
-			if (eMin > eMax) this.err(line, 'edu_max', `Education range reversed: ${eMin}–${eMax} years`);
-			if (eMin < 0 || eMax > 40) this.err(line, 'edu_min', 'Education years must lie within 0–40');
-		}
-		const rangeOk = this.result.errorCount === before;
+		const { keys, ok: rangeOk } = this.groupKeys(line, v, false);
 		const mean = this.num(line, v, 'mean', { required: true });
 		const sd = this.num(line, v, 'sd', { required: true });
 		if (typeof sd === 'number' && sd <= 0) this.err(line, 'sd', `sd: ${v.sd} — SD must be above 0`);
@@ -447,19 +423,12 @@ export class CsvValidator<K extends CsvKind> {
 			if (typeof x === 'number' && Math.abs(x) > 99_999_999) this.err(line, c, `${c}: ${v[c]} is too large`);
 		const n = this.num(line, v, 'n', { int: true });
 		if (typeof n === 'number' && (n < 1 || n > 10_000_000)) this.err(line, 'n', `n: ${n} — must be 1 to 10,000,000`);
-		const keys = { test_code: test, group_code: group, age_min_months: min as number, age_max_months: max as number, sex, edu_min: (eMin as number | null) ?? null, edu_max: (eMax as number | null) ?? null };
 		// A row whose ages and keys read well takes part in the overlap check even if its mean or SD is bad.
 		if (rangeOk) this.ranges.push({ label: `line ${line}`, ...keys });
 		if (this.result.errorCount > before) return;
 		const row = {
 			line,
-			test_code: test,
-			group_code: group,
-			age_min_months: min as number,
-			age_max_months: max as number,
-			sex,
-			edu_min: (eMin as number | null) ?? null,
-			edu_max: (eMax as number | null) ?? null,
+			...keys,
 			subject: 'test' as const,
 			form: 'mean_sd' as const,
 			mean: mean as number,

@@ -263,3 +263,24 @@ export function sumSpan(partBounds: readonly [number, number][]): RawSpan {
 export function ageCovariate(rule: CovariateAge, whole: { years: number }, daysSinceBirth: number): number {
 	return rule === 'whole_years' ? whole.years : Math.round((daysSinceBirth / 365.25) * 100) / 100;
 }
+
+/**
+ * Live checks of a composite's sum as a scorer enters it: a whole number within the sums the parts
+ * can give, and — the scorer's own arithmetic, never the recomputation — whether it equals the sum
+ * of the part scores entered in this same pass (when every part is there).
+ */
+export function compositeSumProblems(sum: string | null | undefined, parts: readonly (string | null | undefined)[], span: RawSpan): string[] {
+	if (sum === null || sum === undefined || sum.trim() === '') return [];
+	const t = sum.trim();
+	if (!/^[+-]?\d+(\.\d+)?$/.test(t)) return ['Enter a number written in digits.'];
+	const v = Number(t);
+	const out: string[] = [];
+	if (!Number.isInteger(v)) out.push('A sum of scores is a whole number.');
+	else if (v < span.min || v > span.max) out.push(`Sums of these parts run from ${span.min} to ${span.max}.`);
+	const nums = parts.map((p) => (p === null || p === undefined || !/^\s*[+-]?\d+(\.\d+)?\s*$/.test(p) ? null : Number(p)));
+	if (nums.every((n) => n !== null)) {
+		const own = (nums as number[]).reduce((a, b) => a + b, 0);
+		if (own !== v) out.push(`The part scores you entered above add up to ${own}.`);
+	}
+	return out;
+}

@@ -14,13 +14,17 @@ import { select, selectOne, exec, transaction } from '../db';
 import { audit } from '../audit';
 import { protocolFor, type Actor, type ProtocolRow } from './service';
 import { protocolTests } from './catalog-read';
-import { finalScores } from './review';
+import { carryPasses, finalScores } from './review';
 import { referencesForRaw, kindAgainst } from './evidence';
 import { conflict, invalid, notFound, WorkflowError } from './errors';
 import { amendments, type Amendment } from '../models/amendment';
 import { checkField, classifyPair } from '../../scoring/reconcile';
 import { parseEntered, formatReference, FIELDS, type DerivedField, type Field } from '../../scoring/scales';
 import { FIELD_LABELS } from '../../status';
+// A static import on purpose: the production bundler (Rolldown in Vite 8.3.8) dropped the `why` argument
+// of this call when it was reached through a dynamic import(), so reopen and amendment e-mails lost
+// their round and reason (tests/integration/review-evidence.test.ts, against the built app).
+import { notifyReviewStarted } from '../mail/review';
 
 const amendSchema = z.object({
 	test: z.string().trim().min(1, 'Choose the test').max(40),
@@ -114,14 +118,7 @@ export async function decideAmendment(amendmentId: number, user: Actor, body: un
 
 async function apply(p: ProtocolRow, a: Amendment, actor: Actor, t: Transaction, note: string | null): Promise<number> {
 	const next = p.round + 1;
-	for (const which of ['first', 'second'] as const) {
-		await exec(
-			`INSERT INTO passes (protocol_id, round, which, scorer_id, status, scores, fields_entered, draft_version, submitted_at)
-			 SELECT protocol_id, :next, which, scorer_id, status, scores, fields_entered, draft_version, submitted_at FROM passes WHERE protocol_id = :p AND round = :r AND which = :w`,
-			{ next, p: p.id, r: p.round, w: which },
-			t
-		);
-	}
+	await carryPasses(p.id, p.round, next, t);
 	// Every decision stands: the rows are copied with their resolutions.
 	await exec(
 		`INSERT INTO discrepancies (protocol_id, round, position, test_code, field, pass, kind, value, other, expected, alternative, out_of_range,
@@ -201,7 +198,6 @@ async function apply(p: ProtocolRow, a: Amendment, actor: Actor, t: Transaction,
 	);
 	const tests = await protocolTests(p.id, t);
 	const name = tests.find((x) => x.code === a.test_code)?.name ?? a.test_code;
-	const { notifyReviewStarted } = await import('../mail/review');
 	await notifyReviewStarted(p.id, next, p.reviewer_id, t, { action: 'amendment', reason: a.reason, field: `${name}, ${FIELD_LABELS[a.field].toLowerCase()}` });
 	return next;
 }

@@ -79,10 +79,10 @@ export async function batteryTests(batteryId: number, t?: Tx): Promise<CatalogTe
 }
 
 /** The tests a protocol was created with (frozen versions), in order, with the norm group chosen. */
-export async function protocolTests(protocolId: number, t?: Tx): Promise<(CatalogTest & { position: number; groupId: number | null; groupCode: string | null; groupText: string; overrideReason: string | null })[]> {
-	const rows = await select<TestRow & { position: number; norm_group_id: number | null; group_code: string | null; override_reason: string | null } & Pick<NormGroupRow, 'age_min_months' | 'age_max_months' | 'sex' | 'edu_min' | 'edu_max'>>(
+export async function protocolTests(protocolId: number, t?: Tx): Promise<(CatalogTest & { position: number; groupId: number | null; groupCode: string | null; groupText: string; overrideReason: string | null; normForm: string; normScale: string | null })[]> {
+	const rows = await select<TestRow & { position: number; norm_group_id: number | null; group_code: string | null; override_reason: string | null; norm_form: string | null; norm_scale: string | null } & Pick<NormGroupRow, 'age_min_months' | 'age_max_months' | 'sex' | 'edu_min' | 'edu_max'>>(
 		`SELECT ${TEST_COLUMNS}, pt.position, pt.norm_group_id, ng.group_code, pt.override_reason,
-		        ng.age_min_months, ng.age_max_months, ng.sex, ng.edu_min, ng.edu_max
+		        ng.age_min_months, ng.age_max_months, ng.sex, ng.edu_min, ng.edu_max, ng.form AS norm_form, ng.scale AS norm_scale
 		   FROM protocol_tests pt
 		   JOIN tests t ON t.id = pt.test_id
 		   JOIN domains d ON d.code = t.domain
@@ -98,7 +98,9 @@ export async function protocolTests(protocolId: number, t?: Tx): Promise<(Catalo
 		groupCode: r.group_code,
 		// what the group covers, for people ("ages 30;0–39;11, 13+ years of education")
 		groupText: r.group_code === null ? '—' : groupCoverage(groupDef({ ...r, test_code: r.code, id: r.norm_group_id ?? 0, mean: 0, sd: 1, n: null } as NormGroupRow)),
-		overrideReason: r.override_reason
+		overrideReason: r.override_reason,
+		normForm: r.norm_form ?? 'mean_sd',
+		normScale: r.norm_scale
 	}));
 }
 
@@ -177,6 +179,7 @@ export interface CatalogComposite extends FrozenComposite {
 	position: number;
 	groupId: number | null;
 	groupCode: string | null;
+	groupText: string;
 }
 
 /** The battery's composites as defined now (what a new protocol freezes). */
@@ -191,8 +194,21 @@ export async function protocolComposites(protocolId: number, t?: Tx): Promise<Ca
 	const { ProtocolComposite } = models();
 	const rows = await ProtocolComposite.findAll({ where: { protocol_id: protocolId }, order: [['position', 'ASC']], transaction: t ?? undefined });
 	const ids = rows.map((r) => r.norm_group_id).filter((x): x is number => x !== null);
-	const codes = ids.length ? new Map((await select<{ id: number; group_code: string }>('SELECT id, group_code FROM norm_groups WHERE id IN (:ids)', { ids }, t)).map((g) => [g.id, g.group_code])) : new Map<number, string>();
-	return rows.map((r) => ({ ...r.definition, position: r.position, groupId: r.norm_group_id, groupCode: r.norm_group_id ? codes.get(r.norm_group_id) ?? null : null }));
+	type G = Pick<NormGroupRow, 'id' | 'group_code' | 'test_code' | 'age_min_months' | 'age_max_months' | 'sex' | 'edu_min' | 'edu_max'>;
+	const groups = ids.length
+		? new Map((await select<G>('SELECT id, group_code, test_code, age_min_months, age_max_months, sex, edu_min, edu_max FROM norm_groups WHERE id IN (:ids)', { ids }, t)).map((g) => [g.id, g]))
+		: new Map<number, G>();
+	return rows.map((r) => {
+		const g = r.norm_group_id ? groups.get(r.norm_group_id) : undefined;
+		return {
+			...r.definition,
+			position: r.position,
+			groupId: r.norm_group_id,
+			groupCode: g?.group_code ?? null,
+			// what the group covers, in words, as for tests ("ages 30;0–39;11")
+			groupText: g ? groupCoverage(groupDef({ ...g, mean: 0, sd: 1, n: null } as NormGroupRow)) : '—'
+		};
+	});
 }
 
 export const engineComposite = (c: FrozenComposite): CompositeDef => ({ id: c.code, parts: c.parts, part_field: c.part_field, reported: c.reported as CompositeField[] });

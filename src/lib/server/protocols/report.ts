@@ -26,7 +26,8 @@ import {
 	WidthType,
 	type ParagraphChild
 } from 'docx';
-import type { protocolSummary, SummaryRow } from './summary';
+import type { protocolSummary, SummaryRow, CompositeSummaryRow } from './summary';
+import { fieldWords } from '../../status';
 
 type Summary = Awaited<ReturnType<typeof protocolSummary>>;
 
@@ -77,7 +78,8 @@ function rowCells(r: SummaryRow): TableCell[] {
 	const detail = `${r.unit}${r.direction === 'lower_better' ? ', lower is better' : ''}`;
 	if (detail) testCell.push(run(` (${detail})`, { color: SOFT, size: 16 }));
 	if (r.inconsistent) testCell.push(run(' ‡', { bold: true }));
-	const pct: ParagraphChild[] = [run(r.percentile ? r.percentile.value : '—')];
+	// a percentile-only norm: the band as written, and that it is a band
+	const pct: ParagraphChild[] = r.band ? [run(r.band.text), run(' band', { color: SOFT, size: 16 })] : [run(r.percentile ? r.percentile.value : '—')];
 	if (r.percentile?.recomputed) pct.push(run('†', { superScript: true }));
 	const label: ParagraphChild[] = [run(r.label?.text ?? '—')];
 	if (r.label) label.push(run(` (${SHORT[r.label.basis]})`, { color: SOFT, size: 16 }));
@@ -92,6 +94,24 @@ function rowCells(r: SummaryRow): TableCell[] {
 		cell(pct, { num: true }),
 		cell(label),
 		cell([run(ci)], { num: true })
+	];
+}
+
+/** A composite's row: its name and parts, the sum of the parts in the raw-score column (Σ), its scores, label and CI. */
+function compositeCells(c: CompositeSummaryRow): TableCell[] {
+	const v = (f: 'z' | 'standard' | 'scaled' | 't') => (c.reported.includes(f) ? (c.values[f] ?? '—') : '');
+	const label: ParagraphChild[] = [run(c.label?.text ?? '—')];
+	if (c.label) label.push(run(` (${SHORT[c.label.basis]})`, { color: SOFT, size: 16 }));
+	return [
+		cell([run(c.name, { bold: true }), run(` (${fieldWords(c.partField)}s of ${c.parts.map((x) => x.name).join(' + ')})`, { color: SOFT, size: 16 })]),
+		cell([run(c.values.sum != null ? `Σ ${c.values.sum}` : '—')], { num: true }),
+		cell([run(v('z'))], { num: true }),
+		cell([run(v('standard'))], { num: true }),
+		cell([run(v('scaled'))], { num: true }),
+		cell([run(v('t'))], { num: true }),
+		cell([run(c.values.percentile ?? '—')], { num: true }),
+		cell(label),
+		cell([run(c.ci ? `${c.ci.lower}–${c.ci.upper}` : '—')], { num: true })
 	];
 }
 
@@ -114,7 +134,12 @@ export function reportDocument(s: Summary): Document {
 		children: REPORT_COLUMNS.map((c) => cell([run(c.head, { bold: true, size: 16, color: SOFT })], { num: c.num, header: true, width: c.width }))
 	});
 	const body: TableRow[] = [];
-	for (const g of domainGroups(s.rows)) {
+	// composites first, as on the Summary (a report leads with the index scores)
+	const groups: { domain: string; rows: TableCell[][] }[] = [
+		...(s.composites.length ? [{ domain: 'Composites', rows: s.composites.map(compositeCells) }] : []),
+		...domainGroups(s.rows).map((g) => ({ domain: g.domain, rows: g.rows.map(rowCells) }))
+	];
+	for (const g of groups) {
 		// keepNext on the domain row's paragraph keeps the heading with its first test across a page break
 		body.push(
 			new TableRow({
@@ -131,7 +156,7 @@ export function reportDocument(s: Summary): Document {
 				]
 			})
 		);
-		for (const r of g.rows) body.push(new TableRow({ cantSplit: true, children: rowCells(r) }));
+		for (const cells of g.rows) body.push(new TableRow({ cantSplit: true, children: cells }));
 	}
 	const anyRecomputed = s.rows.some((r) => r.percentile?.recomputed);
 	const anyInconsistent = s.rows.some((r) => r.inconsistent);
@@ -139,6 +164,8 @@ export function reportDocument(s: Summary): Document {
 	const note = (children: ParagraphChild[]) => notes.push(new Paragraph({ children, spacing: { before: 40, after: 40 } }));
 	note([run('Note. ', { italics: true, size: 16 }), run(`Descriptive labels: ${s.labelScheme.name}, on the score named after each label (SS standard score, T T-score, ScS scaled score, %ile percentile; the first of these the test reports).`, { size: 16 })]);
 	note([run('95% CI = score ± 1.96 · SEM, SEM = SD · √(1 − reliability), on the labelled scale; shown where the test has a reliability coefficient.', { size: 16 })]);
+	if (s.composites.length) note([run('Σ: a composite’s sum of its parts’ scores, from which the composite’s scores are looked up (its CI from the composite’s own reliability).', { size: 16 })]);
+	if (s.rows.some((r) => r.band)) note([run(`Percentile bands (${s.offCurve.join(', ')}): the norms give bands only, as the manual prints them.`, { size: 16 })]);
 	if (anyRecomputed) note([run('†', { superScript: true, size: 16 }), run(' Percentile recomputed from the verified raw score (the test does not report one).', { size: 16 })]);
 	if (anyInconsistent) note([run('‡ A verified derived score differs from what the verified raw score gives with these norms; see the protocol\'s review record.', { size: 16 })]);
 	note([run(`Norms: ${s.normSet ? `${s.normSet.name} (${s.normSet.version}). ${s.normSet.source}` : 'unknown'}`, { size: 16 })]);

@@ -7,7 +7,9 @@ import { z } from 'zod';
 import { select, selectOne, exec, transaction, jsonValue } from '../db';
 import { audit } from '../audit';
 import { protocolFor, type Actor } from './service';
-import { protocolTests } from './catalog-read';
+import { protocolTests, protocolComposites, normGroups } from './catalog-read';
+import type { TableRowInput } from '../catalog/norms';
+import { isBand, normalizePercentile, parsePercentile } from '../../catalog/norm-forms';
 import { conflict, invalid, notFound, WorkflowError } from './errors';
 import { charDiff } from '../../scoring/diff';
 import { explainKind, type Kind } from '../../scoring/kinds';
@@ -20,6 +22,10 @@ import { rejudgeDerived } from './evidence';
 import { waitsOn } from '../../scoring/waits';
 import { kindName } from '../../scoring/kinds';
 import { FIELD_LABELS } from '../../status';
+// A static import on purpose: the production bundler (Rolldown in Vite 8.3.8) dropped the `why` argument
+// of this call when it was reached through a dynamic import(), so reopen and amendment e-mails lost
+// their round and reason (tests/integration/review-evidence.test.ts, against the built app).
+import { notifyReviewStarted } from '../mail/review';
 
 export interface DiscrepancyRow {
 	id: number;
@@ -52,7 +58,8 @@ export function passValues(d: Pick<DiscrepancyRow, 'pass' | 'value' | 'other'>):
 }
 
 /** Numerically equal values (a note is needed only when the kept value differs from the recomputation). */
-const same = (a: string | null, b: string | null) => a !== null && b !== null && Number(a) === Number(b);
+const same = (a: string | null, b: string | null) =>
+	a !== null && b !== null && (Number(a) === Number(b) || (isBand(a) && normalizePercentile(a) === normalizePercentile(b)));
 
 /**
  * Rule 5 in words: a single pass's derived value that is right for the other pass's raw score
@@ -95,7 +102,11 @@ export async function reviewView(protocolId: number, user: Actor) {
 		  WHERE d.protocol_id = :p AND d.round = :r ORDER BY d.position`,
 		{ p: p.id, r: p.round }
 	);
-	const items = rows.map((d) => ({ id: d.id, test: d.test_code, field: d.field, open: d.resolved_at === null }));
+	const composites = await protocolComposites(p.id);
+	// a composite's cards wait on its parts' open cards, as a derived card waits on its raw score
+	const isComposite = (code: string) => composites.some((c) => c.code === code);
+	const items = rows.map((d) => ({ id: d.id, test: isComposite(d.test_code) ? null : d.test_code, composite: isComposite(d.test_code) ? d.test_code : null, field: d.field, open: d.resolved_at === null }));
+	const partsOf = (code: string) => composites.find((c) => c.code === code)?.parts ?? [];
 	// an amendment that opened this round: its field's card offers the amended value and the reason
 	const amended = await select<{ test_code: string; field: string; new_value: string; old_value: string | null; reason: string; name: string; decided_at: Date }>(
 		`SELECT a.test_code, a.field, a.new_value, a.old_value, a.reason, u.name, a.decided_at FROM amendments a JOIN users u ON u.id = a.requested_by
@@ -104,6 +115,31 @@ export async function reviewView(protocolId: number, user: Actor) {
 	);
 	const byId = new Map(rows.map((d) => [d.id, d]));
 	const seenKinds = new Set<string>();
+	const passScores = (which: 'first' | 'second') => jsonValue<Scores>(passRows.find((x) => x.which === which)?.scores) ?? {};
+	// adjacent_row: which row of the table was read, beside the one that holds the raw score
+	const tableCodes = [...new Set(rows.filter((d) => d.kind === 'adjacent_row').map((d) => d.test_code))];
+	const tables = tableCodes.length ? await normGroups(p.norm_set_id, tableCodes) : [];
+	const rowText = (r: TableRowInput, field: string) => `${r.lo === r.hi ? r.lo : `${r.lo}–${r.hi}`} (${field === 'percentile' && r.percentile !== null ? `percentile ${r.percentile}` : `score ${r.score}`})`;
+	/** Words under a card that the kind alone does not say: composites' parts, the waiting, the row read. */
+	const contextOf = (d: DiscrepancyRow): string | null => {
+		const c = composites.find((x) => x.code === d.test_code);
+		if (c) {
+			const partsOf = (which: 'first' | 'second') => c.parts.map((part) => passScores(which)[part]?.[c.part_field] ?? '—').join(' + ');
+			let text = `Parts (${c.part_field} scores): first pass ${partsOf('first')}, second pass ${partsOf('second')} · norm group ${c.groupText}.`;
+			if (d.kind === 'carried') text += ` Waits on its parts: this value follows from the pass's own ${(d.field as string) === 'sum' ? 'part scores' : 'sum'}; settle the parts first, then keep the value their decision gives.`;
+			if (d.kind === 'adjacent_row') text += ' Read from the row next to the one that holds the sum.';
+			return text;
+		}
+		if (d.kind !== 'adjacent_row') return null;
+		const test = tests.find((x) => x.code === d.test_code);
+		const table = tables.find((g) => g.test_code === d.test_code && g.group_code === test?.groupCode)?.rows ?? [];
+		const raw = Number(rawOf(d.pass === 'second' ? 'second' : 'first', d.test_code));
+		const i = table.findIndex((r) => raw >= r.lo - 1e-9 && raw <= r.hi + 1e-9);
+		if (i < 0) return null;
+		const matches = (r: TableRowInput | undefined) => r && d.value !== null && (d.field === 'percentile' ? String(r.percentile) === d.value || Number(r.percentile) === Number(d.value) : Number(r.score) === Number(d.value));
+		const read = [table[i - 1], table[i + 1]].find(matches);
+		return `Raw ${raw} is in the row ${rowText(table[i], d.field)}${read ? `; the value entered is the row ${table[i - 1] === read ? 'above' : 'below'}, ${rowText(read, d.field)}` : ''}.`;
+	};
 	return {
 		protocol: p,
 		canResolve: duties.includes('reviewer') && p.status === 'in_review',
@@ -112,13 +148,16 @@ export async function reviewView(protocolId: number, user: Actor) {
 		discrepancies: rows.map((d) => {
 			const v = passValues(d);
 			const test = tests.find((x) => x.code === d.test_code);
+			const composite = composites.find((x) => x.code === d.test_code);
 			return {
 				id: d.id,
 				test: d.test_code,
-				testName: test?.name ?? d.test_code,
-				group: test?.groupText ?? null,
+				testName: test?.name ?? composite?.name ?? d.test_code,
+				composite: !!composite,
+				context: contextOf(d),
+				group: test?.groupText ?? composite?.groupText ?? null,
 				raws: { first: rawOf('first', d.test_code), second: rawOf('second', d.test_code) },
-				domain: test?.domainName ?? '',
+				domain: test?.domainName ?? (composite ? 'Composites' : ''),
 				field: d.field,
 				pass: d.pass,
 				kind: d.kind,
@@ -129,7 +168,7 @@ export async function reviewView(protocolId: number, user: Actor) {
 				alternative: d.alternative,
 				fits: fitsOther(d, rawOf(d.pass === 'second' ? 'first' : 'second', d.test_code), d.pass === 'both' ? null : rawOf(d.pass, d.test_code)),
 				slip: d.field === 'raw' ? slipOf(d, rows, rawOf) : null,
-				waitsOn: waitsOn(items.find((x) => x.id === d.id)!, items).map((w) => ({ id: w.id, field: w.field })),
+				waitsOn: waitsOn(items.find((x) => x.id === d.id)!, items, partsOf).map((w) => ({ id: w.id, field: w.field })),
 				settledBy: d.settled_by,
 				settledByRaw: d.settled_by === 'raw_decision' && d.settled_by_id ? byId.get(d.settled_by_id)?.resolved_value ?? null : null,
 				carried: d.carried_from !== null && d.resolved_at !== null,
@@ -187,6 +226,16 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 				t
 			);
 			if (raw) throw new WorkflowError(409, 'Settle this test’s raw score first: its derived scores are judged again against the raw score you keep.', 'choice', 'waits_on_raw');
+			// a composite's value waits on its parts, as a derived score waits on its raw score
+			const composite = (await protocolComposites(p.id, t)).find((c) => c.code === d.test_code);
+			const part = composite
+				? await selectOne<{ test_code: string }>(
+						`SELECT test_code FROM discrepancies WHERE protocol_id = :p AND round = :r AND test_code IN (:parts) AND resolved_at IS NULL LIMIT 1`,
+						{ p: p.id, r: p.round, parts: composite.parts },
+						t
+					)
+				: null;
+			if (composite && part) throw new WorkflowError(409, `Settle the parts of ${composite.name} first (${part.test_code} is still open): the composite follows from the part scores you keep.`, 'choice', 'waits_on_parts');
 		}
 		const v = passValues(d);
 		let kept: string | null;
@@ -200,8 +249,14 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 		const test = tests.find((x) => x.code === d.test_code);
 		// The recomputed value is the engine's own (z is never clamped); anything a person chose is checked.
 		if (test && choice !== 'recomputed') {
-			const problems = checkField(test, d.field, kept);
-			if (problems.length) throw invalid(`The value to keep is not valid: ${problems[0].message}`, 'value');
+			if (test.normScale === 'percentile' && d.field === 'percentile') {
+				// a percentile-only norm: the value kept may be a band as the manual prints it
+				const band = parsePercentile(kept, true);
+				if (typeof band === 'string') throw invalid(`The value to keep is not valid: ${band}.`, 'value');
+			} else {
+				const problems = checkField(test, d.field, kept);
+				if (problems.length) throw invalid(`The value to keep is not valid: ${problems[0].message}`, 'value');
+			}
 		}
 		const needsNote = choice === 'other' || (d.expected !== null && !same(kept, d.expected));
 		if (needsNote && (!note || note.length < 3)) {
@@ -294,6 +349,16 @@ export async function signOff(protocolId: number, user: Actor, body: unknown) {
 	});
 }
 
+/** A new review round starts from the same two passes: both are copied from `from` to `to` (reopen, amendment). */
+export async function carryPasses(protocolId: number, from: number, to: number, t: Transaction): Promise<void> {
+	await exec(
+		`INSERT INTO passes (protocol_id, round, which, scorer_id, status, scores, fields_entered, draft_version, submitted_at)
+		 SELECT protocol_id, :to, which, scorer_id, status, scores, fields_entered, draft_version, submitted_at FROM passes WHERE protocol_id = :p AND round = :from ORDER BY which`,
+		{ to, p: protocolId, from },
+		t
+	);
+}
+
 /**
  * A lead reopens a verified protocol with a reason: a new review round. The round's discrepancies are
  * carried over unresolved (the earlier decisions stay in history and are shown as the previous
@@ -306,14 +371,7 @@ export async function reopen(protocolId: number, user: Actor, reason: string) {
 		if (!duties.includes('lead')) throw notFound();
 		if (p.status !== 'verified') throw conflict('Only a verified protocol can be reopened.');
 		const next = p.round + 1;
-		for (const which of ['first', 'second'] as const) {
-			await exec(
-				`INSERT INTO passes (protocol_id, round, which, scorer_id, status, scores, fields_entered, draft_version, submitted_at)
-				 SELECT protocol_id, :next, which, scorer_id, status, scores, fields_entered, draft_version, submitted_at FROM passes WHERE protocol_id = :p AND round = :r AND which = :w`,
-				{ next, p: p.id, r: p.round, w: which },
-				t
-			);
-		}
+		await carryPasses(p.id, p.round, next, t);
 		// unresolved, each pointing at its previous decision (shown and offered as the default)
 		await exec(
 			`INSERT INTO discrepancies (protocol_id, round, position, test_code, field, pass, kind, value, other, expected, alternative, out_of_range, carried_from)
@@ -329,7 +387,6 @@ export async function reopen(protocolId: number, user: Actor, reason: string) {
 		);
 		if (moved.affected !== 1) throw conflict('This protocol was reopened at the same moment elsewhere.');
 		await audit({ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'reopen', oldValue: { status: 'verified', round: p.round }, newValue: { status: 'in_review', round: next }, reason: reason.trim() }, t);
-		const { notifyReviewStarted } = await import('../mail/review');
 		await notifyReviewStarted(p.id, next, p.reviewer_id, t, { action: 'reopen', reason: reason.trim() });
 		return { round: next };
 	});

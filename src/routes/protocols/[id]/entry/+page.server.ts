@@ -19,7 +19,9 @@ export const load: PageServerLoad = async (event) => {
 			scores: pass.scores,
 			draftVersion: pass.draftVersion,
 			submittedAt: pass.submittedAt,
-			tests: pass.tests.map((t) => ({ code: t.code, name: t.name, domain: t.domainName, unit: t.unit, direction: t.direction, group: t.groupText, raw: t.raw, bounds: t.bounds, reported: t.reported }))
+			// percentileOnly: the norm gives percentile bands (typed as the manual writes them), not a reference
+			tests: pass.tests.map((t) => ({ code: t.code, name: t.name, domain: t.domainName, unit: t.unit, direction: t.direction, group: t.groupText, raw: t.raw, bounds: t.bounds, reported: t.reported, percentileOnly: t.normScale === 'percentile' })),
+			composites: pass.composites.map((c) => ({ code: c.code, name: c.name, parts: c.parts, partField: c.part_field, reported: c.reported, group: c.groupText }))
 		};
 	} catch (e) {
 		pageError(e);
