@@ -20,7 +20,7 @@ export function mailTransport(): Transporter {
 	return transporter;
 }
 
-/** Close the pooled connections (worker shutdown). */
+/** Close the transport (worker shutdown). */
 export function closeMailTransport(): void {
 	if (transporter) {
 		const t = transporter;
