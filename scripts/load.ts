@@ -67,7 +67,9 @@ async function timed(step: string, c: AnyClient, path: string, init: Parameters<
 	try {
 		res = await c.request(path, init);
 	} catch (e) {
-		errors.push(`${step} ${path}: ${e instanceof Error ? e.message : e}`);
+		// fetch() says only "fetch failed"; the reason (a reset, a closed keep-alive socket, a timeout) is its cause
+		const cause = e instanceof Error && e.cause ? ` (${(e.cause as { code?: string; message?: string }).code ?? ''} ${(e.cause as { message?: string }).message ?? ''})`.replace('( ', '(') : '';
+		errors.push(`${step} ${path}: ${e instanceof Error ? e.message : e}${cause} after ${Math.round(performance.now() - t0)} ms`);
 		errorEvents.push({ t: Date.now(), step, status: null, protocol: protocolOf(path) });
 		throw e;
 	}
