@@ -1,9 +1,12 @@
 /**
  * The local mail fake for demo and test mode: an SMTP server on loopback (smtp-server) that keeps
  * every message it receives, and a small HTTP API on loopback to read them:
- *   GET /health, GET /messages, GET /messages/:id, DELETE /messages,
+ *   GET /health, GET /messages[?to=&limit=&offset=&newest=1&summary=1], GET /messages/:id, DELETE /messages,
  *   POST /faults {"refuse": n}  — refuse the next n messages with a temporary 451 (for retry tests).
- * Messages are kept as JSON files under $CROSSTALLY_DATA_DIR/mail so a restart loses none.
+ * Messages are kept as JSON files under $CROSSTALLY_DATA_DIR/mail so a restart loses none, and in
+ * memory (read once at start), so a list does not re-read thousands of files (a full test run
+ * leaves ~3000). `limit`/`offset` page the list, `newest=1` puts the newest first, `summary=1`
+ * leaves out the bodies and headers; the total before paging is in `X-Total-Count`.
  */
 import { SMTPServer } from 'smtp-server';
 import { simpleParser } from 'mailparser';
@@ -38,11 +41,15 @@ interface Caught {
 
 let refuseNext = 0;
 
+const byTime = (a: Caught, b: Caught) => a.receivedAt.localeCompare(b.receivedAt) || a.id.localeCompare(b.id);
+/** Every caught message, oldest first. */
+let caught: Caught[] = readdirSync(dir)
+	.filter((f) => f.endsWith('.json'))
+	.map((f) => JSON.parse(readFileSync(join(dir, f), 'utf8')) as Caught)
+	.sort(byTime);
+
 function list(): Caught[] {
-	return readdirSync(dir)
-		.filter((f) => f.endsWith('.json'))
-		.map((f) => JSON.parse(readFileSync(join(dir, f), 'utf8')) as Caught)
-		.sort((a, b) => a.receivedAt.localeCompare(b.receivedAt) || a.id.localeCompare(b.id));
+	return caught;
 }
 
 const addr = (a: unknown): string => {
@@ -88,6 +95,8 @@ const smtp = new SMTPServer({
 					html: typeof parsed.html === 'string' ? parsed.html : null
 				};
 				writeFileSync(join(dir, `${msg.id}.json`), JSON.stringify(msg), { mode: 0o600 });
+				caught.push(msg);
+				if (caught.length > 1 && byTime(caught[caught.length - 2], msg) > 0) caught.sort(byTime);
 				callback();
 			} catch (e) {
 				callback(e as Error);
@@ -100,8 +109,8 @@ smtp.listen(smtpPort, '127.0.0.1');
 
 const http = createServer((req, res) => {
 	const url = new URL(req.url ?? '/', 'http://x');
-	const send = (status: number, body: unknown) => {
-		res.writeHead(status, { 'content-type': 'application/json' });
+	const send = (status: number, body: unknown, headers: Record<string, string> = {}) => {
+		res.writeHead(status, { 'content-type': 'application/json', ...headers });
 		res.end(JSON.stringify(body));
 	};
 	if (url.pathname === '/health') return send(200, { ok: true });
@@ -109,11 +118,18 @@ const http = createServer((req, res) => {
 		const to = url.searchParams.get('to');
 		let all = list();
 		if (to) all = all.filter((m) => m.envelope.to.some((t) => t.toLowerCase() === to.toLowerCase()));
-		return send(200, all);
+		const total = all.length;
+		if (url.searchParams.get('newest') === '1') all = [...all].reverse();
+		const offset = Math.max(0, Number(url.searchParams.get('offset') ?? 0) || 0);
+		const limit = url.searchParams.has('limit') ? Math.max(0, Number(url.searchParams.get('limit')) || 0) : all.length;
+		all = all.slice(offset, offset + limit);
+		const body = url.searchParams.get('summary') === '1' ? all.map(({ id, receivedAt, envelope, from, to, cc, subject }) => ({ id, receivedAt, envelope, from, to, cc, subject })) : all;
+		return send(200, body, { 'x-total-count': String(total) });
 	}
 	if (url.pathname === '/messages' && req.method === 'DELETE') {
 		rmSync(dir, { recursive: true, force: true });
 		ensureDir();
+		caught = [];
 		return send(200, { ok: true });
 	}
 	const m = url.pathname.match(/^\/messages\/([\w-]+)$/);

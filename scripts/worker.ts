@@ -9,6 +9,7 @@ import { bullConnection } from '../src/lib/server/redis';
 import { MAIL_QUEUE, dispatchOutbox, closeMailQueue } from '../src/lib/server/mail/queue';
 import { deliver, type MailJob } from '../src/lib/server/mail/deliver';
 import { closeDb } from '../src/lib/server/db';
+import { closeMailTransport } from '../src/lib/server/mail/transport';
 import '../src/lib/server/mail/review'; // registers the review renderers
 import '../src/lib/server/mail/verification'; // registers the back-to-full-double-entry e-mail
 import { sweepMail, markMailFailed } from '../src/lib/server/mail/recover';
@@ -70,6 +71,7 @@ async function stop() {
 	stopping = true;
 	await worker.close().catch(() => undefined);
 	await closeMailQueue();
+	closeMailTransport();
 	await closeDb().catch(() => undefined);
 	process.exit(0);
 }

@@ -191,7 +191,12 @@ export async function seedProtocols(): Promise<void> {
 		const reviewer = actors[plan.reviewer];
 		const list = await reviewView(id, reviewer);
 		const todo = plan.state === 'in_review_partly' ? list.discrepancies.slice(0, Math.ceil(list.discrepancies.length / 2)) : list.discrepancies;
-		for (const d of todo) {
+		// raw scores first: a raw decision re-judges its test's derived rows (issue 13) and may settle
+		// them, so each row is read again before it is decided
+		const ordered = [...todo].sort((a, b) => (a.field === 'raw' ? 0 : 1) - (b.field === 'raw' ? 0 : 1));
+		for (const listed of ordered) {
+			const d = (await reviewView(id, reviewer)).discrepancies.find((x) => x.id === listed.id)!;
+			if (d.resolvedAt) continue;
 			const trueRaw = String(truth[d.test]);
 			if (d.field === 'raw') {
 				const choice = Number(d.first) === Number(trueRaw) ? 'first' : Number(d.second) === Number(trueRaw) ? 'second' : 'other';
@@ -220,7 +225,9 @@ export async function seedProtocols(): Promise<void> {
 			await reopen(id, lead, 'Family reported a later birth date; re-check the age band before the report goes out.');
 			await at(Math.max(0, plan.daysAgo - 3.5), 14);
 			const again = await reviewView(id, reviewer);
-			for (const d of again.discrepancies) {
+			for (const listed of [...again.discrepancies].sort((a, b) => (a.field === 'raw' ? 0 : 1) - (b.field === 'raw' ? 0 : 1))) {
+				const d = (await reviewView(id, reviewer)).discrepancies.find((x) => x.id === listed.id)!;
+				if (d.resolvedAt) continue;
 				const prev = await selectOne<{ resolution: string; resolved_value: string }>(
 					'SELECT resolution, resolved_value FROM discrepancies WHERE protocol_id = :p AND round = :r AND position = :pos',
 					{ p: id, r: again.protocol.round - 1, pos: d.id ? (await selectOne<{ position: number }>('SELECT position FROM discrepancies WHERE id = :id', { id: d.id }))!.position : 0 }

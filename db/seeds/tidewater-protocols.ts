@@ -2,8 +2,9 @@
  * Demo protocols of the invented Tidewater Cognitive Profile (db/seeds/profile.ts): conversion tables
  * per age band, two composites, a regression-normed test and a percentile-band error count. A few
  * examinees in different states, so a new user sees composites and bands on Review and Summary:
- *   TW-0201  verified: the second pass read Tile Build off the next row of the table and carried
- *            it into the Memory Index; the reviewer kept the recomputed values.
+ *   TW-0201  verified: the second pass wrote Tile Build's scaled score one too high (the value
+ *            another age band's table gives, so it is named a wrong norm group) and carried it
+ *            into the Memory Index; the reviewer kept the recomputed values.
  *   TW-0202  in review: Knot Copy read off the next row and carried into the Visuomotor Index by
  *            one pass, the other added the Memory Index's parts up wrong.
  *   TW-0203  verified, both passes clean: a low profile with a wide false-alarm band.
@@ -49,7 +50,7 @@ const PLANS: TwPlan[] = [
 	{
 		code: 'TW-0201', birth: '1984-06-02', sex: 'F', edu: 16, first: 'sam', second: 'kit', reviewer: 'rita', daysAgo: 20, state: 'verified',
 		raws: { 'word-recall': 27, 'tile-build': 13, 'knot-copy': 24, 'cargo-code': 55, 'category-naming': 51, 'beacon-slips': 1 },
-		// Kit reads Tile Build's scaled score off the row below and carries it into the Memory Index
+		// Kit writes Tile Build's scaled score one too high and carries it into the Memory Index
 		secondSlips: [bump('tile-build', 'scaled', 1)]
 	},
 	{

@@ -12,16 +12,23 @@
  *
  * Needs the app running on the bench services (npm run bench does all of it). Fixtures are made
  * through the services in this process before timing. Options: --connections N (10),
- * --duration S (8, for GET routes), --submits N (300), --resolutions N (1200), --out PATH.
+ * --duration S (8, for GET routes), --submits N (300), --resolutions N (1200), --profiled N (40), --out PATH.
+ * At the end, the second submit and the resolution run once more in this process with every SQL
+ * statement timed, and a table per transaction shows where the time goes.
  */
 import { performance } from 'node:perf_hooks';
 import { arg, baseUrl, emit, loadBenchEnv, machine, pct, r2 } from './lib';
 
+// per-statement timing of the in-process profile at the end (src/lib/server/sql-profile.ts)
+process.env.CROSSTALLY_SQL_PROFILE = '1';
 loadBenchEnv('http');
 const { default: autocannon } = await import('autocannon');
 const { Client } = await import('../../tests/helpers/http');
 const { closeDb } = await import('../../src/lib/server/db');
 const F = await import('./fixtures');
+const { submitPass } = await import('../../src/lib/server/protocols/passes');
+const { resolveDiscrepancy } = await import('../../src/lib/server/protocols/review');
+const { startProfile, takeProfile } = await import('../../src/lib/server/sql-profile');
 
 const BASE = baseUrl();
 const CONNECTIONS = Number(arg('connections', '10'));
@@ -29,6 +36,7 @@ const DURATION = Number(arg('duration', '8'));
 const SUBMITS = Number(arg('submits', '300'));
 const RESOLUTIONS = Number(arg('resolutions', '1200'));
 const SLIPS = 4;
+const PROFILED = Number(arg('profiled', '40'));
 const log = (s: string) => console.error(`[bench:http] ${s}`);
 
 interface Figures {
@@ -104,6 +112,8 @@ async function main() {
 	const ready = await F.makeProtocols({ n: SUBMITS + 20, second: F.EMAILS.second, reconcile: false, prefix: 'BH-S' });
 	const reviewed = await F.makeProtocols({ n: Math.ceil((RESOLUTIONS + 20) / SLIPS), second: F.EMAILS.second2, reconcile: true, slips: SLIPS, prefix: 'BH-R' });
 	const open = await F.openDiscrepancies(reviewed.map((p) => p.id));
+	const profSubmit = await F.makeProtocols({ n: PROFILED, second: F.EMAILS.second, reconcile: false, prefix: 'BH-PS' });
+	const profOpen = await F.openDiscrepancies((await F.makeProtocols({ n: Math.ceil(PROFILED / SLIPS) + 1, second: F.EMAILS.second2, reconcile: true, slips: SLIPS, prefix: 'BH-PR' })).map((p) => p.id));
 	log(`fixtures made in ${((performance.now() - t) / 1000).toFixed(1)} s (${open.length} open discrepancies)`);
 	if (open.length < RESOLUTIONS) log(`only ${open.length} open discrepancies: the resolution run is shorter`);
 
@@ -159,9 +169,43 @@ async function main() {
 		const g = goals.find((x) => x.route === r.route);
 		console.log(`${r.route.padEnd(30)}${String(r.requests).padStart(7)}${String(r.rps).padStart(8)}${r.p50.toFixed(1).padStart(9)}${r.p95.toFixed(1).padStart(9)}${r.p99.toFixed(1).padStart(9)}  ${g ? `${g.ratio} (goal ≤ ${g.goal}: ${g.met ? 'met' : 'NOT met'})` : ''}`);
 	}
+	// Where a transaction's time goes: the same services in this process, CONNECTIONS at a time (as
+	// the HTTP runs), every SQL statement timed (Sequelize's benchmark logging). "JS and waiting" is
+	// the wall time of a transaction not spent inside a statement (engine, JSON, pool and event loop).
+	const profile = async (label: string, jobs: Array<() => Promise<unknown>>) => {
+		const walls: number[] = [];
+		startProfile();
+		let next = 0;
+		await Promise.all(
+			Array.from({ length: CONNECTIONS }, async () => {
+				while (next < jobs.length) {
+					const job = jobs[next++];
+					const t0 = performance.now();
+					await job();
+					walls.push(performance.now() - t0);
+				}
+			})
+		);
+		const statements = takeProfile();
+		const n = walls.length;
+		const wall = walls.reduce((a, b) => a + b, 0);
+		const inSql = statements.reduce((a, x) => a + x.total_ms, 0);
+		console.log(`\n${label}: ${n} transactions, ${CONNECTIONS} at a time; wall p50 ${pct(walls, 50).toFixed(1)} ms, p95 ${pct(walls, 95).toFixed(1)} ms; ${(statements.reduce((a, x) => a + x.count, 0) / n).toFixed(1)} statements each`);
+		console.log(`${'statement'.padEnd(34)}${'per tx'.padStart(8)}${'mean ms'.padStart(9)}${'p95 ms'.padStart(9)}${'share'.padStart(8)}`);
+		for (const x of statements) console.log(`${x.statement.padEnd(34)}${(x.count / n).toFixed(1).padStart(8)}${x.mean_ms.toFixed(2).padStart(9)}${x.p95_ms.toFixed(1).padStart(9)}${`${Math.round((100 * x.total_ms) / wall)} %`.padStart(8)}`);
+		console.log(`${'JS and waiting (wall − SQL)'.padEnd(34)}${''.padStart(8)}${((wall - inSql) / n).toFixed(2).padStart(9)}${''.padStart(9)}${`${Math.round((100 * (wall - inSql)) / wall)} %`.padStart(8)}`);
+		return { transactions: n, wall_p50_ms: r2(pct(walls, 50)), wall_p95_ms: r2(pct(walls, 95)), statements_per_tx: r2(statements.reduce((a, x) => a + x.count, 0) / n), js_and_waiting_ms_per_tx: r2((wall - inSql) / n), statements };
+	};
+	const scorerActor = await F.actor(F.EMAILS.second);
+	const reviewerActor = await F.actor(F.EMAILS.reviewer);
+	const profiles = {
+		submit: await profile('Second submit, per statement (in process)', profSubmit.map((p) => () => submitPass(p.id, scorerActor, { draftVersion: p.secondDraftVersion }))),
+		resolve: await profile('Resolution, per statement (in process)', profOpen.slice(0, PROFILED).map((d) => () => resolveDiscrepancy(d.id, reviewerActor, d.body)))
+	};
+
 	const bad = results.filter((r) => r.non2xx || r.errors);
 	if (bad.length) console.log(`\nWARNING: non-2xx or errors in ${bad.map((b) => b.route).join(', ')}`);
-	emit('http', { ...env, connections: CONNECTIONS, floor_p95_ms: floorP95, results, goals, ok: goals.every((g) => g.met) && bad.length === 0 });
+	emit('http', { ...env, connections: CONNECTIONS, floor_p95_ms: floorP95, results, goals, profiles, ok: goals.every((g) => g.met) && bad.length === 0 });
 }
 
 main()

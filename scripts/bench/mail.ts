@@ -154,7 +154,7 @@ function startWorkers(): Promise<ChildProcess[]> {
 		procs.push(p);
 		ready.push(
 			new Promise((res, rej) => {
-				const t = setTimeout(() => rej(new Error('worker did not start in 20 s')), 20_000);
+				const t = setTimeout(() => rej(new Error('worker did not start in 60 s')), 60_000);
 				p.stdout!.on('data', (d: Buffer) => {
 					if (d.toString().includes('[worker] started')) {
 						clearTimeout(t);
@@ -200,13 +200,20 @@ async function main() {
 		const committedAt = new Map<number, number>();
 		const t0 = performance.now();
 		const wall0 = Date.now();
+		// as many at once as the connection pool holds (DB_POOL_MAX, 20): all 1,000 at once only queued
+		// for a connection, and on a loaded machine the wait passed the pool's 5 s acquire timeout
+		let nextProtocol = 0;
 		await Promise.all(
-			s.protocols.map((id) =>
-				transaction(async (t) => {
-					await exec(`UPDATE protocols SET status_changed_at = CURRENT_TIMESTAMP(3) WHERE id = :id`, { id }, t);
-					await notifyReviewStarted(id, 1, s.reviewerId, t);
-				}).then(() => committedAt.set(id, Date.now()))
-			)
+			Array.from({ length: Number(process.env.DB_POOL_MAX ?? 20) }, async () => {
+				while (nextProtocol < s.protocols.length) {
+					const id = s.protocols[nextProtocol++];
+					await transaction(async (t) => {
+						await exec(`UPDATE protocols SET status_changed_at = CURRENT_TIMESTAMP(3) WHERE id = :id`, { id }, t);
+						await notifyReviewStarted(id, 1, s.reviewerId, t);
+					});
+					committedAt.set(id, Date.now());
+				}
+			})
 		);
 		const tCommitted = performance.now() - t0;
 		let caught: Caught[] = [];

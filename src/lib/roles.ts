@@ -35,7 +35,8 @@ export const NAV: NavItem[] = [
 	{ href: '/audit', label: 'Audit', roles: ['lead'], icon: 'chart' },
 	{ href: '/catalog', label: 'Catalog', roles: ['lead', 'admin'], icon: 'book' },
 	{ href: '/people', label: 'People', roles: ['admin'], icon: 'users' },
-	{ href: '/mailbox', label: 'Mailbox', roles: ['admin'], icon: 'mail', demoOnly: true }
+	{ href: '/mailbox', label: 'Mailbox', roles: ['admin'], icon: 'mail', demoOnly: true },
+	{ href: '/settings', label: 'Settings', roles: ['admin'], icon: 'gear' }
 ];
 
 export function navFor(roles: readonly string[], mailFake: boolean): NavItem[] {

@@ -21,10 +21,10 @@ afterAll(async () => {
 });
 
 const ROLES: { who: keyof typeof ACCOUNTS; nav: string[]; allowed: string[]; refused: string[] }[] = [
-	{ who: 'scorer', nav: ['Worklist', 'Protocols'], allowed: ['/', '/protocols'], refused: ['/people', '/catalog', '/audit', '/mailbox', '/protocols/new'] },
+	{ who: 'scorer', nav: ['Worklist', 'Protocols'], allowed: ['/', '/protocols'], refused: ['/people', '/catalog', '/audit', '/mailbox', '/settings', '/protocols/new'] },
 	{ who: 'reviewer', nav: ['Worklist', 'Protocols'], allowed: ['/', '/protocols'], refused: ['/people', '/catalog', '/audit', '/protocols/new'] },
-	{ who: 'lead', nav: ['Worklist', 'Protocols', 'Audit', 'Catalog'], allowed: ['/', '/protocols', '/protocols/new', '/catalog', '/audit'], refused: ['/people', '/mailbox'] },
-	{ who: 'admin', nav: ['Worklist', 'Catalog', 'People', 'Mailbox'], allowed: ['/', '/people', '/mailbox', '/catalog'], refused: ['/audit', '/protocols', '/protocols/new'] }
+	{ who: 'lead', nav: ['Worklist', 'Protocols', 'Audit', 'Catalog'], allowed: ['/', '/protocols', '/protocols/new', '/catalog', '/audit'], refused: ['/people', '/mailbox', '/settings'] },
+	{ who: 'admin', nav: ['Worklist', 'Catalog', 'People', 'Mailbox', 'Settings'], allowed: ['/', '/people', '/mailbox', '/catalog', '/settings'], refused: ['/audit', '/protocols', '/protocols/new'] }
 ];
 
 describe('roles in the browser', () => {

@@ -43,7 +43,7 @@ describe('Mailbox → Review screen', () => {
 		await expect.poll(() => frame.locator('body').innerText()).toContain(f.code);
 		const body = await frame.locator('body').innerText();
 		expect(body).not.toContain(EXAMINEE_NAME);
-		expect(body).toContain('transposition');
+		expect(body).toContain('Digits swapped'); // the kind as the Review chip names it (src/lib/scoring/kinds.ts), never its code
 		const href = await frame.getByRole('link', { name: 'Open the Review screen' }).getAttribute('href');
 		expect(href).toBe(`${BASE_URL}/protocols/${f.protocolId}/review`);
 

@@ -52,7 +52,8 @@ describe('the catalog table grid', () => {
 		await editor.getByTestId('table-ok').waitFor();
 		expect(await editor.getByTestId('table-ok').innerText()).toBe('Covers 0–20 once: 7 rows.');
 		await editor.getByRole('button', { name: 'Save this group' }).click();
-		await editor.getByText(`Saved group ${group} of tile-build.`).waitFor();
+		// 1080 months = 90 years 0 months, 1199 = 99 × 12 + 11 (the group by what it covers, not its code)
+		await editor.getByText('Saved the group for ages 90;0–99;11 of tile-build.').waitFor();
 		const saved = await selectOne<{ n: number; form: string; scale: string }>(
 			`SELECT g.form, g.scale, COUNT(r.id) AS n FROM norm_groups g JOIN norm_table_rows r ON r.norm_group_id = g.id
 			  WHERE g.norm_set_id = :s AND g.test_code = 'tile-build' AND g.group_code = :group GROUP BY g.id`,

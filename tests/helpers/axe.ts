@@ -15,7 +15,8 @@ export interface AxeViolation {
 
 /** Serious and critical violations on the current page (WCAG 2.1 A and AA rules). */
 export async function seriousViolations(page: Page): Promise<AxeViolation[]> {
-	await page.evaluate(source);
+	// inject axe once per document (a resize keeps the document; a navigation starts a new one)
+	if (!(await page.evaluate('typeof window.axe !== "undefined"'))) await page.evaluate(source);
 	const result = (await page.evaluate(`axe.run(document, { runOnly: { type: 'tag', values: ['wcag2a', 'wcag2aa', 'wcag21a', 'wcag21aa'] } })`)) as {
 		violations: AxeViolation[];
 	};

@@ -22,8 +22,8 @@ describe('access table', () => {
 	it('navigation shows each role only its screens', () => {
 		const hrefs = (roles: string[], fake = true) => navFor(roles, fake).map((n) => n.href);
 		expect(hrefs(['scorer'])).toEqual(['/', '/protocols']);
-		expect(hrefs(['admin'])).toEqual(['/', '/catalog', '/people', '/mailbox']);
-		expect(hrefs(['admin'], false)).toEqual(['/', '/catalog', '/people']);
+		expect(hrefs(['admin'])).toEqual(['/', '/catalog', '/people', '/mailbox', '/settings']);
+		expect(hrefs(['admin'], false)).toEqual(['/', '/catalog', '/people', '/settings']);
 		expect(hrefs(['lead'])).toEqual(['/', '/protocols', '/audit', '/catalog']);
 	});
 });

@@ -84,7 +84,8 @@ describe('norm table CSV', () => {
 			[3, 'Age ranges overlap for word-recall'],
 			[4, 'Age gap for word-recall']
 		]);
-		expect(result.errors[0].message).toContain('line 2 (a18, 216–359 months) and line 3 (a30, 350–479 months)');
+		// groups by what they cover (216 = 18 × 12 → 18;0, 359 = 29 × 12 + 11 → 29;11, 350 = 29 × 12 + 2 → 29;2, 479 → 39;11); the line names the row
+		expect(result.errors[0].message).toContain('line 2 (ages 18;0–29;11; 216–359 months) and line 3 (ages 29;2–39;11; 350–479 months)');
 	});
 	it('reports a missing column before any row', () => {
 		const { result } = validateCsvText('norms', 'test_code,group_code,age_min_months,age_max_months,mean\nword-recall,a,0,1,2\n', ctx);

@@ -2,6 +2,7 @@
  * Age ranges of norm groups: for one test and one set of keys (sex, education band), the groups'
  * age ranges (months, inclusive) must neither overlap nor leave a gap. Pure; runs anywhere.
  */
+import { groupCoverage } from '../scoring/age';
 
 export interface RangeRow {
 	/** How the row is named in messages: a CSV line ("line 14") or a group code ("group a30"). */
@@ -32,6 +33,19 @@ export function describeKeys(r: Pick<RangeRow, 'sex' | 'edu_min' | 'edu_max'>): 
 	if (r.sex) parts.push(`sex ${r.sex}`);
 	if (r.edu_min !== null && r.edu_max !== null) parts.push(`education ${r.edu_min}–${r.edu_max} y`);
 	return parts.length ? ` (${parts.join(', ')})` : '';
+}
+
+/**
+ * A norm group as people read it, by what it covers ("ages 30;0–39;11, 13+ years of education"),
+ * from its catalog row: the same words as Review and the Summary (`groupCoverage`), never its code.
+ */
+export function groupWords(r: Pick<RangeRow, 'age_min_months' | 'age_max_months' | 'sex' | 'edu_min' | 'edu_max'>): string {
+	return groupCoverage({
+		minMonths: r.age_min_months,
+		maxMonths: r.age_max_months,
+		...(r.sex ? { sex: r.sex } : {}),
+		...(r.edu_min !== null || r.edu_max !== null ? { education: [r.edu_min ?? 0, r.edu_max ?? 99] as const } : {})
+	});
 }
 
 export function monthsText(m: number): string {
@@ -75,14 +89,14 @@ export function rangeProblems(rows: readonly RangeRow[]): RangeProblem[] {
 					kind: 'overlap',
 					rows: [a.label, b.label],
 					test_code: b.test_code,
-					message: `Age ranges overlap for ${b.test_code}${keys}: ${a.label} (${a.group_code}, ${a.age_min_months}–${a.age_max_months} months) and ${b.label} (${b.group_code}, ${b.age_min_months}–${b.age_max_months} months)`
+					message: `Age ranges overlap for ${b.test_code}${keys}: ${a.label} (${groupWords(a)}; ${a.age_min_months}–${a.age_max_months} months) and ${b.label} (${groupWords(b)}; ${b.age_min_months}–${b.age_max_months} months)`
 				});
 			} else if (b.age_min_months > a.age_max_months + 1) {
 				problems.push({
 					kind: 'gap',
 					rows: [a.label, b.label],
 					test_code: b.test_code,
-					message: `Age gap for ${b.test_code}${keys}: nothing covers ${a.age_max_months + 1}–${b.age_min_months - 1} months (${monthsText(a.age_max_months + 1)} to ${monthsText(b.age_min_months - 1)}) between ${a.label} (${a.group_code}) and ${b.label} (${b.group_code})`
+					message: `Age gap for ${b.test_code}${keys}: nothing covers ${a.age_max_months + 1}–${b.age_min_months - 1} months (${monthsText(a.age_max_months + 1)} to ${monthsText(b.age_min_months - 1)}) between ${a.label} (${groupWords(a)}) and ${b.label} (${groupWords(b)})`
 				});
 			}
 		}

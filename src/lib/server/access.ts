@@ -31,6 +31,8 @@ export const ACCESS: Record<string, RouteRules> = {
 	'/people': { '*': admin },
 	'/mailbox': { GET: admin },
 	'/mailbox/[id]': { GET: admin },
+	// service settings (review e-mail: reminder interval, escalation, detail); POST is the save action
+	'/settings': { GET: admin, POST: admin },
 	'/api/v1/me': { GET: 'signed-in' },
 
 	// Catalog

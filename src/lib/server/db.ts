@@ -9,6 +9,7 @@ import { config } from './config';
 import { randomUUID } from 'node:crypto';
 import { withRetry, isRetryableConflict, type RetryOptions } from './tx';
 import { writeMarker, markerCommitted } from './models/commit-marker';
+import { sqlProfileEnabled, recordStatement } from './sql-profile';
 
 let instance: Sequelize | null = null;
 
@@ -19,7 +20,8 @@ export function db(): Sequelize {
 			port: config.db.port,
 			dialect: 'mariadb',
 			dialectModule: mariadb,
-			logging: false,
+			// the benchmarks' per-statement timing (sql-profile.ts); off in the app
+			...(sqlProfileEnabled() ? { benchmark: true, logging: (sql: string, ms?: number) => recordStatement(sql, ms) } : { logging: false }),
 			timezone: '+00:00',
 			pool: { max: config.db.pool, min: 0, idle: 10_000, acquire: 5_000 },
 			dialectOptions: { connectTimeout: Number(process.env.DB_CONNECT_TIMEOUT_MS ?? 3_000), decimalAsNumber: true, bigIntAsNumber: true, dateStrings: ['DATE'] }

@@ -17,12 +17,19 @@ export function mailboxEnabled(): boolean {
 	return config.mailFakeUrl !== null;
 }
 
-export async function listCaught(): Promise<CaughtMail[]> {
-	if (!config.mailFakeUrl) return [];
-	const res = await fetch(`${config.mailFakeUrl}/messages`);
+export type CaughtSummary = Pick<CaughtMail, 'id' | 'receivedAt' | 'envelope' | 'from' | 'to' | 'cc' | 'subject'>;
+
+/** One page of the catch, newest first, without the bodies; `total` counts every caught message. */
+export async function listCaught(page = 1, perPage = MAILBOX_PAGE): Promise<{ messages: CaughtSummary[]; total: number }> {
+	if (!config.mailFakeUrl) return { messages: [], total: 0 };
+	const offset = (Math.max(1, page) - 1) * perPage;
+	const res = await fetch(`${config.mailFakeUrl}/messages?newest=1&summary=1&limit=${perPage}&offset=${offset}`);
 	if (!res.ok) throw new Error(`mail fake answered ${res.status}`);
-	return ((await res.json()) as CaughtMail[]).reverse();
+	return { messages: (await res.json()) as CaughtSummary[], total: Number(res.headers.get('x-total-count') ?? 0) };
 }
+
+/** Messages per Mailbox page: a full test run leaves thousands, which one page cannot hold. */
+export const MAILBOX_PAGE = 50;
 
 export async function getCaught(id: string): Promise<CaughtMail | null> {
 	if (!config.mailFakeUrl || !/^[\w-]+$/.test(id)) return null;

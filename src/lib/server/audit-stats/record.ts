@@ -94,9 +94,18 @@ export async function recordSubmission(protocolId: number, round: number, t: Tra
 	const roundAt = new Date(Math.max(enteredAt(first).getTime(), enteredAt(second).getTime()));
 
 	const where = 'protocol_id = :protocolId AND round = :round';
-	await applyToDaily({ protocolId, round }, -1, t);
-	await exec(`DELETE FROM audit_fields WHERE ${where}`, { protocolId, round }, t);
-	await exec(`DELETE FROM agreement_pairs WHERE ${where}`, { protocolId, round }, t);
+	// A round recorded before (recorded again): take its rows out of the sums first. The usual case,
+	// a round's first recording, has none, and one look-up replaces the subtraction's statements.
+	const earlier = await selectOne<{ n: number }>(
+		`SELECT EXISTS (SELECT 1 FROM audit_fields WHERE ${where}) + EXISTS (SELECT 1 FROM agreement_pairs WHERE ${where}) AS n`,
+		{ protocolId, round },
+		t
+	);
+	if (Number(earlier?.n ?? 1) > 0) {
+		await applyToDaily({ protocolId, round }, -1, t);
+		await exec(`DELETE FROM audit_fields WHERE ${where}`, { protocolId, round }, t);
+		await exec(`DELETE FROM agreement_pairs WHERE ${where}`, { protocolId, round }, t);
+	}
 
 	const fieldRows: unknown[][] = [];
 	for (const pass of [first, second]) {
@@ -194,18 +203,21 @@ export async function applyToDaily(scope: { protocolId: number; round: number } 
 		['agreement_daily', 'day', 'DATE(g.entered_at)'],
 		['agreement_weekly', 'week', 'DATE_SUB(DATE(g.entered_at), INTERVAL WEEKDAY(g.entered_at) DAY)']
 	];
+	// each pair counts three times — for everyone (scorer 0), for its first and for its second scorer —
+	// in one statement per table (a UNION ALL of the three), not three
+	const asScorers = ['0', 'g.first_scorer_id', 'g.second_scorer_id']
+		.map((scorer) => `SELECT ${scorer} AS as_scorer, g.* FROM agreement_pairs g WHERE ${gWhere}`)
+		.join(' UNION ALL ');
 	for (const [table, col, bucket] of buckets) {
-		for (const scorer of ['0', 'g.first_scorer_id', 'g.second_scorer_id']) {
-			await exec(
-				`INSERT INTO ${table} (scorer_id, ${col}, battery_id, test_code, field, first_label, second_label, ${cols})
-				 SELECT ${scorer}, ${bucket}, g.battery_id, g.test_code, g.field, COALESCE(g.first_label, ''), COALESCE(g.second_label, ''), ${sums}
-				   FROM agreement_pairs g WHERE ${gWhere}
-				  GROUP BY 1, 2, 3, 4, 5, 6, 7
-				 ON DUPLICATE KEY UPDATE ${update}`,
-				p,
-				t
-			);
-		}
+		await exec(
+			`INSERT INTO ${table} (scorer_id, ${col}, battery_id, test_code, field, first_label, second_label, ${cols})
+			 SELECT g.as_scorer, ${bucket}, g.battery_id, g.test_code, g.field, COALESCE(g.first_label, ''), COALESCE(g.second_label, ''), ${sums}
+			   FROM (${asScorers}) g
+			  GROUP BY 1, 2, 3, 4, 5, 6, 7
+			 ON DUPLICATE KEY UPDATE ${update}`,
+			p,
+			t
+		);
 	}
 	await exec(
 		`INSERT INTO agreement_pair_daily (field, day, first_scorer_id, second_scorer_id, battery_id, test_code, first_label, second_label, ${cols})

@@ -7,7 +7,7 @@
 import { db, exec, select, selectOne, transaction, type Tx } from '../db';
 import { audit } from '../audit';
 import { ageRuleOf, normGroupSchema, normSetSchema, type NormGroupInput, type NormSetInput } from '../../catalog/schema';
-import { rangeProblems, type RangeRow } from '../../catalog/ranges';
+import { rangeProblems, groupWords, type RangeRow } from '../../catalog/ranges';
 import { SCALE_BOUNDS, sumSpan, tableProblems, type Coefficients, type CovariateAge, type RawSpan, type TableRowInput } from '../../catalog/norm-forms';
 import { models } from '../models';
 import { CatalogError, notFoundError } from './errors';
@@ -238,7 +238,8 @@ async function groupsInUse(ids: number[], tr: Tx): Promise<number> {
 	return Number(r?.n ?? 0);
 }
 
-const label = (g: { id?: number; group_code: string }) => `group ${g.group_code}`;
+/** A group in messages, by what it covers (never its code). */
+const label = (g: Parameters<typeof groupWords>[0]) => `the group for ${groupWords(g)}`;
 
 interface Subject {
 	subject: 'test' | 'composite';
@@ -293,7 +294,7 @@ export async function checkForms<G extends NormGroupInput>(groups: readonly (G &
 	const subjects = await subjectsOf([...new Set(groups.map((g) => g.test_code))], tr);
 	const problems: string[] = [];
 	const out = groups.map((g) => {
-		const name = g.label ?? `Group ${g.group_code} of ${g.test_code}`;
+		const name = g.label ?? `The group for ${groupWords(g)} of ${g.test_code}`;
 		const s = subjects.get(g.test_code);
 		if (!s) {
 			problems.push(`${name}: unknown test or composite ${g.test_code}`);
@@ -356,7 +357,7 @@ export async function addNormGroup(normSetId: number, input: unknown, actorId: n
 		if (!(await selectOne('SELECT id FROM norm_sets WHERE id = :id FOR UPDATE', { id: normSetId }, tr))) throw notFoundError('This norm set');
 		const [checked] = await checkForms([g], tr);
 		const existing = await listNormGroups(normSetId, { test: g.test_code }, tr);
-		assertRanges([...existing.map((e) => ({ ...e, label: label(e) })), { ...checked, label: `the new group ${g.group_code}` }]);
+		assertRanges([...existing.map((e) => ({ ...e, label: label(e) })), { ...checked, label: `the new group (${groupWords(checked)})` }]);
 		const id = await insertGroup(normSetId, checked, tr);
 		await audit({ actorId, entity: 'norm_group', entityId: id, action: 'create', newValue: { norm_set_id: normSetId, ...checked } }, tr);
 		return { id, norm_set_id: normSetId, ...checked };
@@ -372,9 +373,9 @@ export async function updateNormGroup(groupId: number, input: unknown, actorId: 
 		if (old.test_code !== g.test_code) throw new CatalogError(400, 'A norm group keeps its test.', { test_code: 'A group keeps its test; add a new group instead' });
 		const [checked] = await checkForms([g], tr);
 		const used = await groupsInUse([groupId], tr);
-		if (used) throw new CatalogError(409, `Group ${old.group_code} of ${old.test_code} was used by ${used} protocol(s); make a new version of the norm set instead.`, {}, 'in_use');
+		if (used) throw new CatalogError(409, `The group for ${groupWords(old)} of ${old.test_code} was used by ${used} protocol(s); make a new version of the norm set instead.`, {}, 'in_use');
 		const others = (await listNormGroups(old.norm_set_id, { test: g.test_code }, tr)).filter((e) => e.id !== groupId);
-		assertRanges([...others.map((e) => ({ ...e, label: label(e) })), { ...g, label: `the changed group ${g.group_code}` }]);
+		assertRanges([...others.map((e) => ({ ...e, label: label(e) })), { ...g, label: `the changed group (${groupWords(g)})` }]);
 		await exec(
 			`UPDATE norm_groups SET group_code = :group_code, age_min_months = :age_min_months, age_max_months = :age_max_months, sex = :sex,
 			        edu_min = :edu_min, edu_max = :edu_max, form = :form, scale = :scale, intercept = :intercept, coefficients = :coefficients,
@@ -396,7 +397,7 @@ export async function deleteNormGroup(groupId: number, actorId: number | null): 
 		if (!row) throw notFoundError('This norm group');
 		const old = (await withRows([row], tr))[0];
 		const used = await groupsInUse([groupId], tr);
-		if (used) throw new CatalogError(409, `Group ${old.group_code} of ${old.test_code} was used by ${used} protocol(s) and cannot be removed.`, {}, 'in_use');
+		if (used) throw new CatalogError(409, `The group for ${groupWords(old)} of ${old.test_code} was used by ${used} protocol(s) and cannot be removed.`, {}, 'in_use');
 		const others = (await listNormGroups(old.norm_set_id, { test: old.test_code }, tr)).filter((e) => e.id !== groupId);
 		assertRanges(others.map((e) => ({ ...e, label: label(e) })));
 		await exec('DELETE FROM norm_groups WHERE id = :id', { id: groupId }, tr);

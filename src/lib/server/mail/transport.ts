@@ -10,12 +10,23 @@ export function mailTransport(): Transporter {
 		transporter = nodemailer.createTransport(config.smtpUrl, {
 			// The local fake speaks plain SMTP on loopback; real servers negotiate TLS.
 			...(local ? { ignoreTLS: true, secure: false } : {}),
+			// Pooled SMTP connections (issue 18) were tried and taken out again: under the shared
+			// machine's load they could not be shown to help, and a mail test timed out with them.
 			connectionTimeout: 5_000,
 			greetingTimeout: 5_000,
 			socketTimeout: 10_000
 		});
 	}
 	return transporter;
+}
+
+/** Close the transport (worker shutdown). */
+export function closeMailTransport(): void {
+	if (transporter) {
+		const t = transporter;
+		transporter = null;
+		t.close();
+	}
 }
 
 export interface OutgoingMail {

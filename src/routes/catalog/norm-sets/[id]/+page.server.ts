@@ -6,6 +6,7 @@ import { requireRole, idParam, notFound } from '$lib/server/guard';
 import { getNormSet, listNormGroups, listTests, updateNormSet, addNormGroup, deleteNormGroup, listAllComposites, CatalogError } from '$lib/server/catalog';
 import { validationContext } from '$lib/server/catalog/io';
 import { normGroupSchema, normSetSchema } from '$lib/catalog/schema';
+import { groupWords } from '$lib/catalog/ranges';
 
 export const load: PageServerLoad = async (event) => {
 	requireRole(event, 'lead', 'admin');
@@ -56,7 +57,7 @@ export const actions: Actions = {
 		if (!form.valid) return fail(400, { groupForm: form });
 		try {
 			const g = await addNormGroup(idParam(event.params.id), form.data, user.id);
-			return message(form, `Added group ${g.group_code} for ${g.test_code}.`);
+			return message(form, `Added the group for ${groupWords(g)} of ${g.test_code}.`);
 		} catch (e) {
 			return refusal(form, e);
 		}
