@@ -60,6 +60,8 @@ function run(cmd: string, args: string[]): Promise<{ code: number; out: string }
 }
 const stack = (what: string) => run('bash', ['scripts/bench/stack.sh', what]);
 
+// each bench prints its own JSON shape; the table below reads it field by field
+// eslint-disable-next-line @typescript-eslint/no-explicit-any
 const results: Partial<Record<Name, Record<string, any>>> = {};
 const failures: string[] = [];
 async function bench(name: Name) {
@@ -97,7 +99,7 @@ function table(): Row[] {
 		rows.push({ key: 'audit', metric: r.audit.worst_ms, unit: ' ms', area: 'audit', figure: `slowest report over ${r.audit.data?.fields_entered ?? '?'} fields`, value: `${f(r.audit.worst_ms)} ms`, floor: '—', ratio: '—', goal: '< 300 ms', met: yes(r.audit.ok) });
 	if (r.http) {
 		for (const g of r.http.goals ?? []) {
-			const x = (r.http.results ?? []).find((y: any) => y.route === g.route) ?? {};
+			const x = (r.http.results ?? []).find((y: { route: string }) => y.route === g.route) ?? {};
 			rows.push({ key: `http ${g.route}`, area: 'http', figure: `${g.route} p50/p95/p99, req/s`, value: `${f(x.p50)}/${f(x.p95)}/${f(x.p99)} ms, ${x.rps}/s`, floor: `${g.floor ?? '/health'} p95 ${f(g.floor_p95)} ms`, ratio: f(g.ratio, 2), goal: `≤ ${g.goal}×`, met: yes(g.met) });
 		}
 	}

@@ -22,7 +22,7 @@ import { mkdirSync, writeFileSync } from 'node:fs';
 import { dirname } from 'node:path';
 import { performance } from 'node:perf_hooks';
 import { QueryTypes } from 'sequelize';
-import { closeDb, db, select, selectOne } from '../../src/lib/server/db';
+import { closeDb, db, selectOne } from '../../src/lib/server/db';
 import { NO_FILTERS, REPORT_NAMES, runReport, type AuditFilters } from '../../src/lib/server/audit-stats';
 import { seedAuditData } from './audit-seed';
 

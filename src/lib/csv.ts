@@ -33,6 +33,7 @@ const OPTIONS = { escapeFormulae: FORMULA_PATTERN, newline: '\r\n', quotes: fals
 
 /** A comment line's text: control characters (line breaks, tabs, bidi controls aside) become spaces. */
 function commentText(s: string): string {
+	// eslint-disable-next-line no-control-regex -- control characters are what this removes
 	return s.replace(/[\u0000-\u001f\u007f-\u009f\u2028\u2029]+/g, ' ').trim();
 }
 

@@ -98,7 +98,6 @@ describe('single pass, labelled everywhere', () => {
 		const pdf = await page.pdf({ format: 'A4' });
 		expect(pdf.length).toBeGreaterThan(1000);
 		const csv = await (await page.request.get(`${BASE_URL}/protocols/${id}/summary.csv`)).text();
-		const lines = csv.split('\r\n');
 		// the entry column says how the scores were entered (later columns: kept-against notes, a composite's sum)
 		// read back with papaparse (an independent reader; test names may hold commas and are quoted)
 		const table = Papa.parse<string[]>(csv.replace(/^\ufeff/, ''), { skipEmptyLines: true, delimiter: ',' }).data;

@@ -35,6 +35,6 @@ export async function signIn(page: Page, email: string, password: string, base =
 		await page.waitForLoadState('domcontentloaded');
 	} catch (e) {
 		const title = await page.title().catch(() => '?');
-		throw new Error(`sign-in as ${email} did not finish: at ${page.url()} ("${title}"): ${e instanceof Error ? e.message : e}`);
+		throw new Error(`sign-in as ${email} did not finish: at ${page.url()} ("${title}"): ${e instanceof Error ? e.message : e}`, { cause: e });
 	}
 }

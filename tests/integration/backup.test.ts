@@ -47,7 +47,7 @@ describe('backup and restore', () => {
 		expect(file).toMatch(/backups\/crosstally-.+\.sql\.gz$/);
 		expect(file.startsWith(config.dataDir)).toBe(true);
 		expect(existsSync(`${file}.sha256`)).toBe(true);
-		expect(readFileSync(`${file}.sha256`, 'utf8')).toMatch(/^[0-9a-f]{64}  crosstally-.+\.sql\.gz\n$/);
+		expect(readFileSync(`${file}.sha256`, 'utf8')).toMatch(/^[0-9a-f]{64} {2}crosstally-.+\.sql\.gz\n$/);
 		const sql = spawnSync('gunzip', ['-c', file], { encoding: 'utf8', maxBuffer: 512 * 1024 * 1024 }).stdout;
 		expect(sql).toContain('CREATE TABLE `audit_events`');
 		expect(sql).toMatch(/-- Dump completed/);

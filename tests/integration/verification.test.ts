@@ -6,13 +6,12 @@
  */
 import { describe, it, expect, beforeAll, afterAll } from 'vitest';
 import { signedIn, caughtMail, waitFor, ACCOUNTS, type Client } from '../helpers/http';
-import { createViaForm, correctScores, saveAndSubmit, getPass, uniqueCode, userId } from '../helpers/workflow';
+import { correctScores, saveAndSubmit, getPass, uniqueCode, userId } from '../helpers/workflow';
 import { makeBattery, makeScorer, seedCleanRecord, unseed, drawOf, standingOf, auditEvents } from '../helpers/verification';
 import { select, selectOne } from '../../src/lib/server/db';
 import { createProtocol } from '../../src/lib/server/protocols/service';
 
 let lead: Client;
-let reviewer: Client;
 const seeded: number[] = [];
 
 async function setPolicy(batteryId: number, p: Record<string, string>) {
@@ -37,7 +36,6 @@ async function newProtocol(batteryId: number, first: number, second: number): Pr
 
 beforeAll(async () => {
 	lead = await signedIn('lead');
-	reviewer = await signedIn('reviewer');
 });
 
 afterAll(async () => {

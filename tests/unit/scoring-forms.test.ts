@@ -13,13 +13,10 @@ import { checkCompositeSum, checkField, reconcile, testReferences, compositeRefe
 import {
 	CATEGORY_NAMING,
 	CATEGORY_NAMING_NORM,
-	MEMORY_INDEX,
 	MEMORY_INDEX_NORM,
-	NORMS,
 	TILE_A30_ROWS,
 	TILE_BUILD,
 	TILE_NORMS,
-	WORD_RECALL,
 	memoryIndex,
 	tileBuild,
 	wordRecall

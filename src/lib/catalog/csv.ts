@@ -276,6 +276,7 @@ export class CsvValidator<K extends CsvKind> {
 				return this.fileError(`This looks like a file of ${KIND_NAMES[other]}, not ${KIND_NAMES[this.kind]}. Choose the other kind of upload.`);
 			}
 		}
+		// eslint-disable-next-line no-control-regex -- control characters are what this looks for (binary data)
 		if (/[\u0000-\u0008\u000e-\u001f\ufffd]/.test(joined)) {
 			return this.fileError('This does not look like a text CSV file (it holds binary data). Upload the CSV exported from your spreadsheet.');
 		}

@@ -8,6 +8,7 @@
  * characters Windows or a header cannot hold (`" < > | : * ?`).
  */
 const BIDI = /[\u061c\u200e\u200f\u202a-\u202e\u2066-\u2069]/g;
+// eslint-disable-next-line no-control-regex -- control characters are what this removes
 const INVISIBLE = /[\u0000-\u001f\u007f-\u009f\u200b-\u200d\u2028\u2029\ufeff]/g;
 
 export function stripBidi(s: string): string {

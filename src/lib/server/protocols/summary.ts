@@ -86,7 +86,7 @@ export async function protocolSummary(protocolId: number, user: Actor) {
 		for (const f of t.reported) values[f] = s[f] ?? null;
 		const norm = groups.find((g) => g.test_code === t.code && g.group_code === t.groupCode);
 		// the references of the verified raw score through the test's own norm form (mean/SD, table, regression)
-		let refs: Partial<Record<DerivedField, number | string>> | null = null;
+		let refs: Partial<Record<DerivedField, number | string>> | null;
 		try {
 			refs = norm ? testReferences(engineTest(t), normDef(norm) as NormEntry, s.raw ?? null, covariates) : null;
 		} catch {
