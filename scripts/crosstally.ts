@@ -16,9 +16,7 @@ async function main(): Promise<number> {
 	const name = process.argv[2];
 	const load = name ? commands[name] : undefined;
 	if (!load) {
-		process.stderr.write(
-			`usage: npm run --silent crosstally -- <${Object.keys(commands).join('|')}> < input.json\n`
-		);
+		process.stderr.write(`usage: npm run --silent crosstally -- <${Object.keys(commands).join('|')}> < input.json\n`);
 		return 2;
 	}
 	const { run } = await load();

@@ -68,7 +68,10 @@ async function timed(step: string, c: AnyClient, path: string, init: Parameters<
 		res = await c.request(path, init);
 	} catch (e) {
 		// fetch() says only "fetch failed"; the reason (a reset, a closed keep-alive socket, a timeout) is its cause
-		const cause = e instanceof Error && e.cause ? ` (${(e.cause as { code?: string; message?: string }).code ?? ''} ${(e.cause as { message?: string }).message ?? ''})`.replace('( ', '(') : '';
+		const cause =
+			e instanceof Error && e.cause
+				? ` (${(e.cause as { code?: string; message?: string }).code ?? ''} ${(e.cause as { message?: string }).message ?? ''})`.replace('( ', '(')
+				: '';
 		errors.push(`${step} ${path}: ${e instanceof Error ? e.message : e}${cause} after ${Math.round(performance.now() - t0)} ms`);
 		errorEvents.push({ t: Date.now(), step, status: null, protocol: protocolOf(path) });
 		throw e;
@@ -103,7 +106,12 @@ const made: Made[] = [];
 
 async function main() {
 	const base = process.env.ORIGIN!;
-	if (!(await fetch(new URL('/health', base)).then((r) => r.ok, () => false))) {
+	if (
+		!(await fetch(new URL('/health', base)).then(
+			(r) => r.ok,
+			() => false
+		))
+	) {
 		log(`the app does not answer at ${base}/health: start it first`);
 		process.exit(2);
 	}
@@ -112,7 +120,13 @@ async function main() {
 		if (!(await c.signIn(email))) throw new Error(`could not sign in as ${email}`);
 		return c;
 	};
-	const [lead, sam, rae, kit, rita] = await Promise.all([sign(ACCOUNTS.lead), sign(ACCOUNTS.scorer), sign(ACCOUNTS.scorer2), sign(ACCOUNTS.scorer3), sign(ACCOUNTS.reviewer)]);
+	const [lead, sam, rae, kit, rita] = await Promise.all([
+		sign(ACCOUNTS.lead),
+		sign(ACCOUNTS.scorer),
+		sign(ACCOUNTS.scorer2),
+		sign(ACCOUNTS.scorer3),
+		sign(ACCOUNTS.reviewer)
+	]);
 	// a second session per reviewer and scorer: "the other tab"
 	const [rita2, lead2] = await Promise.all([sign(ACCOUNTS.reviewer), sign(ACCOUNTS.lead)]);
 	const scorers = [
@@ -131,7 +145,12 @@ async function main() {
 	let n = 0;
 	log(`${USERS} users for ${DURATION_S} s against ${base} (run ${RUN})`);
 
-	async function enter(c: AnyClient, id: number, scores: Scores, twoTabs: boolean): Promise<{ status: number; body: { status?: string; discrepancies?: number | null } }> {
+	async function enter(
+		c: AnyClient,
+		id: number,
+		scores: Scores,
+		twoTabs: boolean
+	): Promise<{ status: number; body: { status?: string; discrepancies?: number | null } }> {
 		const got = await timed('get pass', c, `/api/v1/protocols/${id}/pass`);
 		if (got.status !== 200) throw new Error(`get pass ${id}: ${got.status}`); // counted; ends this protocol
 		const pass = await got.json();
@@ -167,10 +186,21 @@ async function main() {
 			const [a, b] = [scorers[k % 3], scorers[(k + 1 + (u % 2)) % 3]];
 			const rv = reviewers[k % 2];
 			const form = {
-				code: `${RUN}-${k}`, birthDate: '1988-05-17', sex: 'F', educationYears: '14', batteryId: String(battery), testDate: '2026-11-20',
-				firstScorerId: String(a.id), secondScorerId: String(b.id), reviewerId: String(rv.id)
+				code: `${RUN}-${k}`,
+				birthDate: '1988-05-17',
+				sex: 'F',
+				educationYears: '14',
+				batteryId: String(battery),
+				testDate: '2026-11-20',
+				firstScorerId: String(a.id),
+				secondScorerId: String(b.id),
+				reviewerId: String(rv.id)
 			};
-			const created = await timed('create', lead, '/protocols/new', { method: 'POST', form, headers: { 'x-sveltekit-action': 'true', accept: 'application/json' } });
+			const created = await timed('create', lead, '/protocols/new', {
+				method: 'POST',
+				form,
+				headers: { 'x-sveltekit-action': 'true', accept: 'application/json' }
+			});
 			const cb = await created.json();
 			const id = Number(String(cb.location ?? '').match(/\/protocols\/(\d+)/)?.[1]);
 			if (!id) {
@@ -193,7 +223,10 @@ async function main() {
 			m.submits++;
 			m.engineCount = Number(r2.body.discrepancies);
 			await timed('review page', rv.c, `/protocols/${id}/review`, { headers: { accept: 'text/html' } });
-			const ds = await select<{ id: number; lock_version: number }>('SELECT id, lock_version FROM discrepancies WHERE protocol_id = :id AND resolved_at IS NULL', { id });
+			const ds = await select<{ id: number; lock_version: number }>(
+				'SELECT id, lock_version FROM discrepancies WHERE protocol_id = :id AND resolved_at IS NULL',
+				{ id }
+			);
 			for (const [i, d] of ds.entries()) {
 				const body = { choice: 'recomputed', lockVersion: d.lock_version };
 				if (i === 0 && k % 4 === 0) {
@@ -222,23 +255,35 @@ async function main() {
 	const ids = made.map((m) => m.id);
 	const problems: string[] = [];
 	if (ids.length) {
-		const prot = new Map((await select<{ id: number; status: string }>('SELECT id, status FROM protocols WHERE id IN (:ids)', { ids })).map((p) => [p.id, p.status]));
+		const prot = new Map(
+			(await select<{ id: number; status: string }>('SELECT id, status FROM protocols WHERE id IN (:ids)', { ids })).map((p) => [p.id, p.status])
+		);
 		const passes = await select<{ protocol_id: number; n: number; submitted: number; dup: number }>(
 			`SELECT protocol_id, COUNT(*) AS n, SUM(status = 'submitted') AS submitted, COUNT(*) - COUNT(DISTINCT which, round) AS dup FROM passes WHERE protocol_id IN (:ids) GROUP BY protocol_id`,
 			{ ids }
-		).catch(async () => select<{ protocol_id: number; n: number; submitted: number; dup: number }>(
-			`SELECT protocol_id, COUNT(*) AS n, SUM(status = 'submitted') AS submitted, COUNT(*) - COUNT(DISTINCT which) AS dup FROM passes WHERE protocol_id IN (:ids) GROUP BY protocol_id`,
-			{ ids }
-		));
+		).catch(async () =>
+			select<{ protocol_id: number; n: number; submitted: number; dup: number }>(
+				`SELECT protocol_id, COUNT(*) AS n, SUM(status = 'submitted') AS submitted, COUNT(*) - COUNT(DISTINCT which) AS dup FROM passes WHERE protocol_id IN (:ids) GROUP BY protocol_id`,
+				{ ids }
+			)
+		);
 		const pmap = new Map(passes.map((p) => [p.protocol_id, p]));
-		const dis = new Map((await select<{ protocol_id: number; n: number; open: number; dup: number }>(
-			`SELECT protocol_id, COUNT(*) AS n, SUM(resolved_at IS NULL) AS open, COUNT(*) - COUNT(DISTINCT round, position) AS dup FROM discrepancies WHERE protocol_id IN (:ids) GROUP BY protocol_id`,
-			{ ids }
-		)).map((d) => [d.protocol_id, d]));
-		const aud = new Map((await select<{ protocol_id: number; submits: number; resolves: number; signoffs: number }>(
-			`SELECT protocol_id, SUM(action LIKE 'submit_%') AS submits, SUM(action = 'resolve') AS resolves, SUM(action = 'sign_off') AS signoffs FROM audit_events WHERE protocol_id IN (:ids) GROUP BY protocol_id`,
-			{ ids }
-		)).map((a) => [a.protocol_id, a]));
+		const dis = new Map(
+			(
+				await select<{ protocol_id: number; n: number; open: number; dup: number }>(
+					`SELECT protocol_id, COUNT(*) AS n, SUM(resolved_at IS NULL) AS open, COUNT(*) - COUNT(DISTINCT round, position) AS dup FROM discrepancies WHERE protocol_id IN (:ids) GROUP BY protocol_id`,
+					{ ids }
+				)
+			).map((d) => [d.protocol_id, d])
+		);
+		const aud = new Map(
+			(
+				await select<{ protocol_id: number; submits: number; resolves: number; signoffs: number }>(
+					`SELECT protocol_id, SUM(action LIKE 'submit_%') AS submits, SUM(action = 'resolve') AS resolves, SUM(action = 'sign_off') AS signoffs FROM audit_events WHERE protocol_id IN (:ids) GROUP BY protocol_id`,
+					{ ids }
+				)
+			).map((a) => [a.protocol_id, a])
+		);
 		for (const m of made) {
 			const status = prot.get(m.id);
 			const p = pmap.get(m.id);
@@ -248,11 +293,13 @@ async function main() {
 			const want = status === 'draft' ? 0 : status === 'awaiting_second' ? 1 : 2;
 			if (submitted !== want || submitted !== m.submits) problems.push(`protocol ${m.id} (${status}): ${submitted} passes submitted, the run saw ${m.submits}`);
 			if (Number(p?.dup ?? 0) > 0) problems.push(`protocol ${m.id}: duplicated pass rows`);
-			if (m.engineCount !== null && Number(d?.n ?? 0) !== m.engineCount) problems.push(`protocol ${m.id}: ${d?.n ?? 0} discrepancies stored, engine said ${m.engineCount}`);
+			if (m.engineCount !== null && Number(d?.n ?? 0) !== m.engineCount)
+				problems.push(`protocol ${m.id}: ${d?.n ?? 0} discrepancies stored, engine said ${m.engineCount}`);
 			if (Number(d?.dup ?? 0) > 0) problems.push(`protocol ${m.id}: duplicated discrepancy rows`);
 			if (Number(a?.submits ?? 0) !== submitted) problems.push(`protocol ${m.id}: ${a?.submits ?? 0} submit audit events for ${submitted} submitted passes`);
 			if (Number(a?.resolves ?? 0) !== m.resolved) problems.push(`protocol ${m.id}: ${a?.resolves ?? 0} resolve audit events for ${m.resolved} resolutions`);
-			if (m.signedOff && (status !== 'verified' || Number(a?.signoffs) !== 1 || Number(d?.open ?? 0) !== 0)) problems.push(`protocol ${m.id}: signed off but ${status}, ${a?.signoffs} sign-off events, ${d?.open} open`);
+			if (m.signedOff && (status !== 'verified' || Number(a?.signoffs) !== 1 || Number(d?.open ?? 0) !== 0))
+				problems.push(`protocol ${m.id}: signed off but ${status}, ${a?.signoffs} sign-off events, ${d?.open} open`);
 		}
 	}
 
@@ -276,12 +323,30 @@ async function main() {
 		statuses,
 		machine: { cpus: cpus().length, node: process.version }
 	};
-	log(`${summary.requests} requests in ${summary.duration_s} s (${summary.rps}/s) by ${USERS} users: ${made.length} protocols, ${verified} verified, ${summary.passes_submitted} passes, ${summary.discrepancies_resolved} resolutions`);
-	log(`latency p50 ${summary.latency_ms.p50} ms, p95 ${summary.latency_ms.p95} ms, p99 ${summary.latency_ms.p99} ms; ${expected409} expected 409s; ${errors.length} errors; ${problems.length} counting problems`);
+	log(
+		`${summary.requests} requests in ${summary.duration_s} s (${summary.rps}/s) by ${USERS} users: ${made.length} protocols, ${verified} verified, ${summary.passes_submitted} passes, ${summary.discrepancies_resolved} resolutions`
+	);
+	log(
+		`latency p50 ${summary.latency_ms.p50} ms, p95 ${summary.latency_ms.p95} ms, p99 ${summary.latency_ms.p99} ms; ${expected409} expected 409s; ${errors.length} errors; ${problems.length} counting problems`
+	);
 	for (const e of errors.slice(0, 10)) log(`error: ${e}`);
 	for (const p of problems.slice(0, 10)) log(`count: ${p}`);
 	mkdirSync(dirname(OUT), { recursive: true });
-	writeFileSync(OUT, JSON.stringify({ ...summary, error_samples: errors.slice(0, 50), error_events: errorEvents.slice(0, 2000), other_errors: errors.length - errorEvents.length, follow_on: followOn.slice(0, 50), count_problem_samples: problems.slice(0, 50) }, null, 2) + '\n');
+	writeFileSync(
+		OUT,
+		JSON.stringify(
+			{
+				...summary,
+				error_samples: errors.slice(0, 50),
+				error_events: errorEvents.slice(0, 2000),
+				other_errors: errors.length - errorEvents.length,
+				follow_on: followOn.slice(0, 50),
+				count_problem_samples: problems.slice(0, 50)
+			},
+			null,
+			2
+		) + '\n'
+	);
 	console.log(`BENCH_JSON ${JSON.stringify(summary)}`);
 	await closeRedis().catch(() => undefined);
 	await closeDb();

@@ -123,7 +123,10 @@ const http = createServer((req, res) => {
 		const offset = Math.max(0, Number(url.searchParams.get('offset') ?? 0) || 0);
 		const limit = url.searchParams.has('limit') ? Math.max(0, Number(url.searchParams.get('limit')) || 0) : all.length;
 		all = all.slice(offset, offset + limit);
-		const body = url.searchParams.get('summary') === '1' ? all.map(({ id, receivedAt, envelope, from, to, cc, subject }) => ({ id, receivedAt, envelope, from, to, cc, subject })) : all;
+		const body =
+			url.searchParams.get('summary') === '1'
+				? all.map(({ id, receivedAt, envelope, from, to, cc, subject }) => ({ id, receivedAt, envelope, from, to, cc, subject }))
+				: all;
 		return send(200, body, { 'x-total-count': String(total) });
 	}
 	if (url.pathname === '/messages' && req.method === 'DELETE') {

@@ -30,10 +30,10 @@ export const umzug = new Umzug({
 });
 
 async function grants() {
-	const rows = (await sequelize.query(
-		`SELECT table_name AS t FROM information_schema.tables WHERE table_schema = :db AND table_type = 'BASE TABLE'`,
-		{ replacements: { db: dbName }, type: 'SELECT' }
-	)) as { t: string }[];
+	const rows = (await sequelize.query(`SELECT table_name AS t FROM information_schema.tables WHERE table_schema = :db AND table_type = 'BASE TABLE'`, {
+		replacements: { db: dbName },
+		type: 'SELECT'
+	})) as { t: string }[];
 	for (const host of ['127.0.0.1', 'localhost']) {
 		const who = `'${appUser}'@'${host}'`;
 		const exists = await sequelize.query(`SELECT 1 FROM mysql.user WHERE User = :u AND Host = :h`, {

@@ -24,16 +24,25 @@ const worker = new Worker<MailJob>(
 	async (job) => {
 		const result = await deliver(job.data);
 		// nothing to send (an invitation to an account deactivated since): the row ends, visibly
-		if (result === 'skipped' && !job.data.kind.startsWith('review_')) await markMailFailed(job.data.key, 'not sent: nothing to send (the account is inactive or gone)');
+		if (result === 'skipped' && !job.data.kind.startsWith('review_'))
+			await markMailFailed(job.data.key, 'not sent: nothing to send (the account is inactive or gone)');
 		return result;
 	},
-	{ connection: bullConnection(), concurrency: Number(process.env.WORKER_CONCURRENCY ?? 8), stalledInterval: stalledMs, lockDuration: Math.max(stalledMs, 5_000), maxStalledCount: 2 }
+	{
+		connection: bullConnection(),
+		concurrency: Number(process.env.WORKER_CONCURRENCY ?? 8),
+		stalledInterval: stalledMs,
+		lockDuration: Math.max(stalledMs, 5_000),
+		maxStalledCount: 2
+	}
 );
 worker.on('failed', (job, err) => {
 	console.error(`[worker] ${job?.data.key} attempt ${job?.attemptsMade}: ${err.message}`);
 	// out of retries: the outbox row is marked failed (visible), never left waiting
 	if (job && job.attemptsMade >= (job.opts.attempts ?? 1)) {
-		markMailFailed(job.data.key, err.message).catch((e) => console.error(`[worker] could not mark ${job.data.key} failed: ${e instanceof Error ? e.message : e}`));
+		markMailFailed(job.data.key, err.message).catch((e) =>
+			console.error(`[worker] could not mark ${job.data.key} failed: ${e instanceof Error ? e.message : e}`)
+		);
 	}
 });
 worker.on('error', (err) => console.error(`[worker] ${err.message}`));
@@ -50,7 +59,9 @@ async function loop() {
 				lastSweep = Date.now();
 				const s = await sweepMail();
 				if (s.redispatched + s.claimsTakenBack + s.markedUncertain + s.failed > 0)
-					console.error(`[worker] mail sweep: ${s.redispatched} re-dispatched, ${s.claimsTakenBack} abandoned claim(s) retried, ${s.markedUncertain} marked uncertain, ${s.failed} failed`);
+					console.error(
+						`[worker] mail sweep: ${s.redispatched} re-dispatched, ${s.claimsTakenBack} abandoned claim(s) retried, ${s.markedUncertain} marked uncertain, ${s.failed} failed`
+					);
 				await sweepMarkers(); // commit markers older than an hour (see src/lib/server/db.ts)
 			}
 			const n = await dispatchOutbox();

@@ -82,8 +82,7 @@ const authorize: Handle = async ({ event, resolve }) => {
 		const back = event.url.pathname + event.url.search;
 		redirect(303, `/signin?redirectTo=${encodeURIComponent(back)}`);
 	}
-	const message =
-		decision === 'unknown-route' ? 'This address is not open to anyone yet.' : 'Your role does not include this screen or action.';
+	const message = decision === 'unknown-route' ? 'This address is not open to anyone yet.' : 'Your role does not include this screen or action.';
 	// Endpoints (CSV downloads, scans), API routes and actions: a JSON refusal.
 	if (isApi(event) || event.request.method !== 'GET' || ENDPOINTS.has(routeId)) return json({ message, code: 'forbidden' }, { status: 403 });
 	// A page: the app's error page, answered here, so no load function or layout of it ever runs.

@@ -82,6 +82,5 @@ export const up: Migration = async ({ context: q }) => {
 };
 
 export const down: Migration = async ({ context: q }) => {
-	for (const t of ['mail_log', 'outbox', 'audit_events', 'settings', 'user_tokens', 'users'])
-		await q.sequelize.query(`DROP TABLE IF EXISTS ${t}`);
+	for (const t of ['mail_log', 'outbox', 'audit_events', 'settings', 'user_tokens', 'users']) await q.sequelize.query(`DROP TABLE IF EXISTS ${t}`);
 };

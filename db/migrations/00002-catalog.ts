@@ -82,6 +82,5 @@ export const up: Migration = async ({ context: q }) => {
 };
 
 export const down: Migration = async ({ context: q }) => {
-	for (const t of ['battery_tests', 'batteries', 'norm_groups', 'norm_sets', 'tests', 'domains'])
-		await q.sequelize.query(`DROP TABLE IF EXISTS ${t}`);
+	for (const t of ['battery_tests', 'batteries', 'norm_groups', 'norm_sets', 'tests', 'domains']) await q.sequelize.query(`DROP TABLE IF EXISTS ${t}`);
 };

@@ -72,6 +72,8 @@ export const down: Migration = async ({ context: q }) => {
 	await q.sequelize.query('ALTER TABLE protocols DROP COLUMN covariates');
 	for (const t of ['protocol_composites', 'composites', 'norm_table_rows']) await q.sequelize.query(`DROP TABLE IF EXISTS ${t}`);
 	await q.sequelize.query("DELETE FROM norm_groups WHERE form <> 'mean_sd' OR subject <> 'test'");
-	await q.sequelize.query('ALTER TABLE norm_groups DROP COLUMN subject, DROP COLUMN form, DROP COLUMN scale, DROP COLUMN intercept, DROP COLUMN coefficients, MODIFY mean DECIMAL(12,4) NOT NULL, MODIFY sd DECIMAL(12,4) NOT NULL');
+	await q.sequelize.query(
+		'ALTER TABLE norm_groups DROP COLUMN subject, DROP COLUMN form, DROP COLUMN scale, DROP COLUMN intercept, DROP COLUMN coefficients, MODIFY mean DECIMAL(12,4) NOT NULL, MODIFY sd DECIMAL(12,4) NOT NULL'
+	);
 	await q.sequelize.query('ALTER TABLE norm_sets DROP COLUMN covariate_age');
 };

@@ -57,7 +57,14 @@ export const DEMO_TESTS: DemoTest[] = [
 		reported: ['scaled', 'percentile'],
 		reliability: 0.86,
 		notes: 'Number strings relayed back in order and in reverse; the two trial sets summed.',
-		norms: [[10.8, 2.3], [10.5, 2.3], [10.1, 2.4], [9.6, 2.4], [9.1, 2.5], [8.4, 2.6]]
+		norms: [
+			[10.8, 2.3],
+			[10.5, 2.3],
+			[10.1, 2.4],
+			[9.6, 2.4],
+			[9.1, 2.5],
+			[8.4, 2.6]
+		]
 	},
 	{
 		code: 'tone-vigil',
@@ -69,7 +76,14 @@ export const DEMO_TESTS: DemoTest[] = [
 		reported: ['t', 'percentile'],
 		reliability: 0.78,
 		notes: 'Error count: missed target tones over the 11-minute run (one target in seven).',
-		norms: [[4.1, 3.2], [4.4, 3.3], [5.0, 3.6], [5.9, 4.0], [7.2, 4.6], [9.0, 5.4]]
+		norms: [
+			[4.1, 3.2],
+			[4.4, 3.3],
+			[5.0, 3.6],
+			[5.9, 4.0],
+			[7.2, 4.6],
+			[9.0, 5.4]
+		]
 	},
 	{
 		code: 'speeded-match',
@@ -82,7 +96,14 @@ export const DEMO_TESTS: DemoTest[] = [
 		bounds: { t: [20, 80] },
 		reliability: 0.88,
 		notes: 'Timed: seconds to complete the match sheet, to one decimal.',
-		norms: [[39.5, 5.6], [42.0, 6.0], [45.3, 6.8], [49.8, 7.9], [55.6, 9.4], [63.2, 11.5]]
+		norms: [
+			[39.5, 5.6],
+			[42.0, 6.0],
+			[45.3, 6.8],
+			[49.8, 7.9],
+			[55.6, 9.4],
+			[63.2, 11.5]
+		]
 	},
 	{
 		code: 'glyph-sort',
@@ -93,7 +114,14 @@ export const DEMO_TESTS: DemoTest[] = [
 		raw: [0, 120, 0],
 		reported: ['standard', 'percentile'],
 		reliability: 0.9,
-		norms: [[78.2, 11.4], [75.6, 11.2], [71.3, 11.5], [66.0, 11.9], [59.8, 12.4], [52.1, 13.0]]
+		norms: [
+			[78.2, 11.4],
+			[75.6, 11.2],
+			[71.3, 11.5],
+			[66.0, 11.9],
+			[59.8, 12.4],
+			[52.1, 13.0]
+		]
 	},
 	{
 		code: 'dot-chase',
@@ -106,7 +134,14 @@ export const DEMO_TESTS: DemoTest[] = [
 		bounds: { t: [25, 75] },
 		reliability: 0.81,
 		notes: 'Timed: connect numbered dots in order; discontinue at 180 s.',
-		norms: [[28.4, 7.9], [30.1, 8.4], [33.0, 9.2], [36.9, 10.5], [42.7, 12.6], [51.5, 16.0]]
+		norms: [
+			[28.4, 7.9],
+			[30.1, 8.4],
+			[33.0, 9.2],
+			[36.9, 10.5],
+			[42.7, 12.6],
+			[51.5, 16.0]
+		]
 	},
 	{
 		code: 'word-recall',
@@ -118,7 +153,14 @@ export const DEMO_TESTS: DemoTest[] = [
 		reported: ['z', 'standard', 'scaled', 't', 'percentile'],
 		reliability: 0.84,
 		notes: 'Sum of four learning trials of a 10-word harbour-errand list.',
-		norms: [[25.8, 4.0], [24.5, 4.2], [22.1, 4.6], [20.6, 4.8], [18.9, 5.0], [16.4, 5.3]]
+		norms: [
+			[25.8, 4.0],
+			[24.5, 4.2],
+			[22.1, 4.6],
+			[20.6, 4.8],
+			[18.9, 5.0],
+			[16.4, 5.3]
+		]
 	},
 	{
 		code: 'word-recall-delayed',
@@ -130,7 +172,14 @@ export const DEMO_TESTS: DemoTest[] = [
 		reported: ['scaled', 'percentile'],
 		reliability: 0.76,
 		notes: 'Free recall of the 10 errand words after a 25-minute delay.',
-		norms: [[8.0, 1.6], [7.6, 1.7], [7.0, 1.8], [6.4, 1.9], [5.7, 2.1], [4.7, 2.3]]
+		norms: [
+			[8.0, 1.6],
+			[7.6, 1.7],
+			[7.0, 1.8],
+			[6.4, 1.9],
+			[5.7, 2.1],
+			[4.7, 2.3]
+		]
 	},
 	{
 		code: 'figure-recall',
@@ -142,7 +191,14 @@ export const DEMO_TESTS: DemoTest[] = [
 		reported: ['t', 'percentile', 'z'],
 		reliability: 0.8,
 		notes: 'Half points allowed per element.',
-		norms: [[24.9, 5.2], [23.8, 5.4], [22.0, 5.7], [20.1, 5.9], [17.6, 6.2], [14.8, 6.5]]
+		norms: [
+			[24.9, 5.2],
+			[23.8, 5.4],
+			[22.0, 5.7],
+			[20.1, 5.9],
+			[17.6, 6.2],
+			[14.8, 6.5]
+		]
 	},
 	{
 		code: 'word-harvest',
@@ -156,8 +212,22 @@ export const DEMO_TESTS: DemoTest[] = [
 		notes: 'Words of one category in 60 seconds. Norms split by years of education (0–12, 13+).',
 		norms: [],
 		eduNorms: {
-			low: [[19.8, 4.6], [19.5, 4.6], [19.0, 4.7], [18.2, 4.8], [17.1, 4.9], [15.4, 5.0]],
-			high: [[23.4, 5.0], [23.1, 5.0], [22.6, 5.1], [21.7, 5.2], [20.4, 5.3], [18.6, 5.4]]
+			low: [
+				[19.8, 4.6],
+				[19.5, 4.6],
+				[19.0, 4.7],
+				[18.2, 4.8],
+				[17.1, 4.9],
+				[15.4, 5.0]
+			],
+			high: [
+				[23.4, 5.0],
+				[23.1, 5.0],
+				[22.6, 5.1],
+				[21.7, 5.2],
+				[20.4, 5.3],
+				[18.6, 5.4]
+			]
 		}
 	},
 	{
@@ -169,7 +239,14 @@ export const DEMO_TESTS: DemoTest[] = [
 		raw: [0, 40, 0],
 		reported: ['scaled', 'percentile'],
 		bounds: { scaled: [1, 19] },
-		norms: [[35.2, 2.9], [35.6, 2.8], [35.7, 2.9], [35.3, 3.1], [34.4, 3.4], [32.7, 3.9]]
+		norms: [
+			[35.2, 2.9],
+			[35.6, 2.8],
+			[35.7, 2.9],
+			[35.3, 3.1],
+			[34.4, 3.4],
+			[32.7, 3.9]
+		]
 	},
 	{
 		code: 'tile-pattern',
@@ -180,7 +257,14 @@ export const DEMO_TESTS: DemoTest[] = [
 		raw: [0, 48, 0],
 		reported: ['scaled', 'standard'],
 		reliability: 0.87,
-		norms: [[34.1, 7.2], [33.0, 7.3], [31.2, 7.5], [28.9, 7.6], [25.8, 7.8], [22.0, 8.1]]
+		norms: [
+			[34.1, 7.2],
+			[33.0, 7.3],
+			[31.2, 7.5],
+			[28.9, 7.6],
+			[25.8, 7.8],
+			[22.0, 8.1]
+		]
 	},
 	{
 		code: 'compass-angle',
@@ -192,7 +276,14 @@ export const DEMO_TESTS: DemoTest[] = [
 		reported: ['t', 'percentile'],
 		bounds: { t: [25, 75], percentile: [1, 99] },
 		reliability: 0.72,
-		norms: [[24.6, 3.3], [24.5, 3.3], [24.1, 3.4], [23.5, 3.6], [22.6, 3.8], [21.2, 4.1]]
+		norms: [
+			[24.6, 3.3],
+			[24.5, 3.3],
+			[24.1, 3.4],
+			[23.5, 3.6],
+			[22.6, 3.8],
+			[21.2, 4.1]
+		]
 	},
 	{
 		code: 'switch-rule',
@@ -205,7 +296,14 @@ export const DEMO_TESTS: DemoTest[] = [
 		bounds: { standard: [55, 145] },
 		reliability: 0.7,
 		notes: 'Error count: perseverative responses after each rule change.',
-		norms: [[6.2, 4.1], [6.8, 4.4], [7.9, 4.9], [9.4, 5.6], [11.6, 6.5], [14.5, 7.7]]
+		norms: [
+			[6.2, 4.1],
+			[6.8, 4.4],
+			[7.9, 4.9],
+			[9.4, 5.6],
+			[11.6, 6.5],
+			[14.5, 7.7]
+		]
 	},
 	{
 		code: 'route-plan',
@@ -215,7 +313,14 @@ export const DEMO_TESTS: DemoTest[] = [
 		direction: 'higher_better',
 		raw: [0, 20, 0],
 		reported: ['scaled', 'z'],
-		norms: [[15.3, 2.6], [15.0, 2.7], [14.4, 2.8], [13.6, 2.9], [12.5, 3.1], [11.0, 3.3]]
+		norms: [
+			[15.3, 2.6],
+			[15.0, 2.7],
+			[14.4, 2.8],
+			[13.6, 2.9],
+			[12.5, 3.1],
+			[11.0, 3.3]
+		]
 	}
 ];
 
@@ -290,8 +395,28 @@ export async function seedCatalog(): Promise<void> {
 				if (test.eduNorms) {
 					const [lm, ls] = test.eduNorms.low[bi];
 					const [hm, hs] = test.eduNorms.high[bi];
-					await insertGroup({ test: test.code, group: `${band.code}-e0`, min: band.min, max: band.max, eduMin: 0, eduMax: 12, mean: lm, sd: ls, n: Math.round(n * 0.45) });
-					await insertGroup({ test: test.code, group: `${band.code}-e13`, min: band.min, max: band.max, eduMin: 13, eduMax: 30, mean: hm, sd: hs, n: n - Math.round(n * 0.45) });
+					await insertGroup({
+						test: test.code,
+						group: `${band.code}-e0`,
+						min: band.min,
+						max: band.max,
+						eduMin: 0,
+						eduMax: 12,
+						mean: lm,
+						sd: ls,
+						n: Math.round(n * 0.45)
+					});
+					await insertGroup({
+						test: test.code,
+						group: `${band.code}-e13`,
+						min: band.min,
+						max: band.max,
+						eduMin: 13,
+						eduMax: 30,
+						mean: hm,
+						sd: hs,
+						n: n - Math.round(n * 0.45)
+					});
 				} else {
 					const [mean, sd] = test.norms[bi];
 					await insertGroup({ test: test.code, group: band.code, min: band.min, max: band.max, mean, sd, n });

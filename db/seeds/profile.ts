@@ -84,11 +84,26 @@ export const PROFILE_TESTS = [
 export const PROFILE_BATTERY = {
 	code: 'tidewater-profile',
 	name: 'Tidewater Cognitive Profile',
-	description: 'Invented demo battery normed as most batteries are: conversion tables per age band, two index scores, one regression-normed test, one error count with percentile bands.',
+	description:
+		'Invented demo battery normed as most batteries are: conversion tables per age band, two index scores, one regression-normed test, one error count with percentile bands.',
 	tests: ['word-recall', 'tile-build', 'knot-copy', 'cargo-code', 'category-naming', 'beacon-slips'],
 	composites: [
-		{ code: 'memory-index', name: 'Memory Index', parts: ['word-recall', 'tile-build'], part_field: 'scaled', reported: ['sum', 'standard', 'percentile'], reliability: 0.9 },
-		{ code: 'visuomotor-index', name: 'Visuomotor Index', parts: ['knot-copy', 'cargo-code'], part_field: 'scaled', reported: ['sum', 'standard', 'percentile'], reliability: 0.88 }
+		{
+			code: 'memory-index',
+			name: 'Memory Index',
+			parts: ['word-recall', 'tile-build'],
+			part_field: 'scaled',
+			reported: ['sum', 'standard', 'percentile'],
+			reliability: 0.9
+		},
+		{
+			code: 'visuomotor-index',
+			name: 'Visuomotor Index',
+			parts: ['knot-copy', 'cargo-code'],
+			part_field: 'scaled',
+			reported: ['sum', 'standard', 'percentile'],
+			reliability: 0.88
+		}
 	]
 };
 
@@ -105,8 +120,20 @@ export const PROFILE_NORM_SET = {
 
 /** reconcile.md, tile-build group a30. */
 export const TILE_BUILD_A30: [number, number, number][] = [
-	[0, 4, 3], [5, 6, 4], [7, 7, 5], [8, 8, 6], [9, 9, 7], [10, 10, 8], [11, 11, 9], [12, 12, 10],
-	[13, 13, 11], [14, 14, 12], [15, 15, 13], [16, 16, 14], [17, 18, 15], [19, 20, 17]
+	[0, 4, 3],
+	[5, 6, 4],
+	[7, 7, 5],
+	[8, 8, 6],
+	[9, 9, 7],
+	[10, 10, 8],
+	[11, 11, 9],
+	[12, 12, 10],
+	[13, 13, 11],
+	[14, 14, 12],
+	[15, 15, 13],
+	[16, 16, 14],
+	[17, 18, 15],
+	[19, 20, 17]
 ];
 
 /**
@@ -133,14 +160,43 @@ function scaledTable(min: number, max: number, mean: number, sd: number): [numbe
 }
 
 /** Invented per-band means and SDs the knot-copy and cargo-code tables were drawn from (a18 … a70). */
-const KNOT_COPY: [number, number][] = [[23.1, 3.9], [22.6, 4.0], [21.7, 4.2], [20.4, 4.4], [18.6, 4.7], [16.2, 5.1]];
-const CARGO_CODE: [number, number][] = [[52.4, 9.8], [49.6, 9.6], [45.9, 9.7], [41.8, 9.9], [37.0, 10.2], [31.5, 10.6]];
+const KNOT_COPY: [number, number][] = [
+	[23.1, 3.9],
+	[22.6, 4.0],
+	[21.7, 4.2],
+	[20.4, 4.4],
+	[18.6, 4.7],
+	[16.2, 5.1]
+];
+const CARGO_CODE: [number, number][] = [
+	[52.4, 9.8],
+	[49.6, 9.6],
+	[45.9, 9.7],
+	[41.8, 9.9],
+	[37.0, 10.2],
+	[31.5, 10.6]
+];
 /** memory-index: the sum of two scaled scores; a30 is reconcile.md's 20 / 5.2. */
 const MEMORY_INDEX_SD = [5.0, 5.2, 5.3, 5.3, 5.5, 5.6];
 /** visuomotor-index sum table (standard scores), the same at every age: sums 2–38. */
 export const VISUOMOTOR_INDEX: [number, number, number][] = [
-	[2, 4, 55], [5, 6, 60], [7, 8, 66], [9, 10, 71], [11, 12, 77], [13, 14, 82], [15, 16, 88], [17, 18, 94],
-	[19, 21, 100], [22, 23, 106], [24, 25, 112], [26, 27, 118], [28, 29, 123], [30, 31, 129], [32, 33, 134], [34, 35, 140], [36, 38, 146]
+	[2, 4, 55],
+	[5, 6, 60],
+	[7, 8, 66],
+	[9, 10, 71],
+	[11, 12, 77],
+	[13, 14, 82],
+	[15, 16, 88],
+	[17, 18, 94],
+	[19, 21, 100],
+	[22, 23, 106],
+	[24, 25, 112],
+	[26, 27, 118],
+	[28, 29, 123],
+	[30, 31, 129],
+	[32, 33, 134],
+	[34, 35, 140],
+	[36, 38, 146]
 ];
 /** beacon-slips: percentile bands as a manual would print them (lower is better). */
 export const BEACON_SLIPS: { lo: number; hi: number; percentile: string }[] = [
@@ -153,7 +209,19 @@ export const BEACON_SLIPS: { lo: number; hi: number; percentile: string }[] = [
 ];
 
 const rows = (t: [number, number, number][]): TableRowInput[] => t.map(([lo, hi, score]) => ({ lo, hi, score, percentile: null }));
-const keys = { sex: null, edu_min: null, edu_max: null, n: null, mean: null, sd: null, scale: null, rows: null, intercept: null, coefficients: null, subject: 'test' as const };
+const keys = {
+	sex: null,
+	edu_min: null,
+	edu_max: null,
+	n: null,
+	mean: null,
+	sd: null,
+	scale: null,
+	rows: null,
+	intercept: null,
+	coefficients: null,
+	subject: 'test' as const
+};
 
 export function profileGroups(): NormGroupInput[] {
 	const groups: NormGroupInput[] = [];
@@ -163,13 +231,29 @@ export function profileGroups(): NormGroupInput[] {
 		const [m, sd] = wordRecall.norms[i];
 		groups.push({ ...keys, ...band, test_code: 'word-recall', form: 'mean_sd', mean: m, sd, n: b.n });
 		// a18 as a30, a40 one raw point up (as the contract), older bands further up
-		groups.push({ ...keys, ...band, test_code: 'tile-build', form: 'table', scale: 'scaled', rows: rows(shiftTable(TILE_BUILD_A30, Math.max(0, i - 1), 0, 20)) });
+		groups.push({
+			...keys,
+			...band,
+			test_code: 'tile-build',
+			form: 'table',
+			scale: 'scaled',
+			rows: rows(shiftTable(TILE_BUILD_A30, Math.max(0, i - 1), 0, 20))
+		});
 		groups.push({ ...keys, ...band, test_code: 'knot-copy', form: 'table', scale: 'scaled', rows: rows(scaledTable(0, 30, ...KNOT_COPY[i])) });
 		groups.push({ ...keys, ...band, test_code: 'cargo-code', form: 'table', scale: 'scaled', rows: rows(scaledTable(0, 75, ...CARGO_CODE[i])) });
 		groups.push({ ...keys, ...band, test_code: 'memory-index', subject: 'composite', form: 'mean_sd', mean: 20, sd: MEMORY_INDEX_SD[i] });
 	}
 	const all = { group_code: 'all', age_min_months: DEMO_BANDS[0].min, age_max_months: DEMO_BANDS[DEMO_BANDS.length - 1].max };
-	groups.push({ ...keys, ...all, test_code: 'category-naming', form: 'regression', intercept: 30, coefficients: { age: -0.15, education: 1.2 }, sd: 8, n: 612 });
+	groups.push({
+		...keys,
+		...all,
+		test_code: 'category-naming',
+		form: 'regression',
+		intercept: 30,
+		coefficients: { age: -0.15, education: 1.2 },
+		sd: 8,
+		n: 612
+	});
 	groups.push({ ...keys, ...all, test_code: 'beacon-slips', form: 'table', scale: 'percentile', rows: BEACON_SLIPS.map((r) => ({ ...r, score: null })) });
 	groups.push({ ...keys, ...all, test_code: 'visuomotor-index', subject: 'composite', form: 'table', scale: 'standard', rows: rows(VISUOMOTOR_INDEX) });
 	return groups;

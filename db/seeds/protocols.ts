@@ -110,25 +110,229 @@ async function at(daysAgo: number, hour = 10) {
 	await db().query(`SET timestamp = ${ts}`);
 }
 
-type Plan = { code: string; birth: string; sex: 'F' | 'M'; edu: number; battery: string; first: string; second: string; reviewer: string; daysAgo: number; ability: number; state: 'draft' | 'draft_started' | 'awaiting_second' | 'in_review' | 'in_review_partly' | 'verified' | 'reopened' };
+type Plan = {
+	code: string;
+	birth: string;
+	sex: 'F' | 'M';
+	edu: number;
+	battery: string;
+	first: string;
+	second: string;
+	reviewer: string;
+	daysAgo: number;
+	ability: number;
+	state: 'draft' | 'draft_started' | 'awaiting_second' | 'in_review' | 'in_review_partly' | 'verified' | 'reopened';
+};
 
 const PLANS: Plan[] = [
-	{ code: 'HV-0101', birth: '1956-03-14', sex: 'F', edu: 12, battery: 'core-adult', first: 'sam', second: 'kit', reviewer: 'rita', daysAgo: 68, ability: -0.4, state: 'verified' },
-	{ code: 'HV-0102', birth: '1991-11-02', sex: 'M', edu: 16, battery: 'core-adult', first: 'kit', second: 'rae', reviewer: 'rita', daysAgo: 63, ability: 0.6, state: 'verified' },
-	{ code: 'HV-0103', birth: '1948-07-30', sex: 'F', edu: 10, battery: 'brief-screen', first: 'rae', second: 'sam', reviewer: 'lee', daysAgo: 57, ability: -1.3, state: 'verified' },
-	{ code: 'HV-0104', birth: '1979-01-19', sex: 'M', edu: 14, battery: 'core-adult', first: 'kit', second: 'sam', reviewer: 'rita', daysAgo: 50, ability: 0.1, state: 'reopened' },
-	{ code: 'HV-0105', birth: '1965-09-08', sex: 'F', edu: 18, battery: 'core-adult', first: 'rae', second: 'kit', reviewer: 'rita', daysAgo: 44, ability: 1.1, state: 'verified' },
-	{ code: 'HV-0106', birth: '2001-05-23', sex: 'M', edu: 13, battery: 'brief-screen', first: 'sam', second: 'rae', reviewer: 'rita', daysAgo: 37, ability: -0.2, state: 'verified' },
-	{ code: 'HV-0107', birth: '1952-12-01', sex: 'M', edu: 11, battery: 'core-adult', first: 'kit', second: 'rae', reviewer: 'lee', daysAgo: 30, ability: -0.9, state: 'verified' },
-	{ code: 'HV-0108', birth: '1987-04-11', sex: 'F', edu: 17, battery: 'core-adult', first: 'sam', second: 'kit', reviewer: 'rita', daysAgo: 23, ability: 0.4, state: 'verified' },
-	{ code: 'HV-0109', birth: '1944-02-27', sex: 'F', edu: 9, battery: 'core-adult', first: 'rae', second: 'sam', reviewer: 'rita', daysAgo: 16, ability: -1.6, state: 'in_review' },
-	{ code: 'HV-0110', birth: '1996-08-15', sex: 'M', edu: 15, battery: 'core-adult', first: 'kit', second: 'sam', reviewer: 'rita', daysAgo: 11, ability: 0.9, state: 'in_review_partly' },
-	{ code: 'HV-0111', birth: '1970-10-05', sex: 'F', edu: 12, battery: 'brief-screen', first: 'sam', second: 'rae', reviewer: 'lee', daysAgo: 8, ability: 0.0, state: 'in_review' },
-	{ code: 'HV-0112', birth: '1959-06-18', sex: 'M', edu: 14, battery: 'core-adult', first: 'rae', second: 'kit', reviewer: 'rita', daysAgo: 5, ability: -0.5, state: 'in_review' },
-	{ code: 'HV-0113', birth: '1983-03-09', sex: 'F', edu: 16, battery: 'core-adult', first: 'kit', second: 'rae', reviewer: 'rita', daysAgo: 3, ability: 0.3, state: 'awaiting_second' },
-	{ code: 'HV-0114', birth: '1938-11-21', sex: 'M', edu: 8, battery: 'brief-screen', first: 'sam', second: 'kit', reviewer: 'lee', daysAgo: 2, ability: -2.0, state: 'awaiting_second' },
-	{ code: 'HV-0115', birth: '1975-07-07', sex: 'F', edu: 12, battery: 'core-adult', first: 'sam', second: 'rae', reviewer: 'rita', daysAgo: 1, ability: 0.2, state: 'draft_started' },
-	{ code: 'HV-0116', birth: '1999-01-31', sex: 'M', edu: 14, battery: 'brief-screen', first: 'rae', second: 'sam', reviewer: 'rita', daysAgo: 0.2, ability: 0.5, state: 'draft' }
+	{
+		code: 'HV-0101',
+		birth: '1956-03-14',
+		sex: 'F',
+		edu: 12,
+		battery: 'core-adult',
+		first: 'sam',
+		second: 'kit',
+		reviewer: 'rita',
+		daysAgo: 68,
+		ability: -0.4,
+		state: 'verified'
+	},
+	{
+		code: 'HV-0102',
+		birth: '1991-11-02',
+		sex: 'M',
+		edu: 16,
+		battery: 'core-adult',
+		first: 'kit',
+		second: 'rae',
+		reviewer: 'rita',
+		daysAgo: 63,
+		ability: 0.6,
+		state: 'verified'
+	},
+	{
+		code: 'HV-0103',
+		birth: '1948-07-30',
+		sex: 'F',
+		edu: 10,
+		battery: 'brief-screen',
+		first: 'rae',
+		second: 'sam',
+		reviewer: 'lee',
+		daysAgo: 57,
+		ability: -1.3,
+		state: 'verified'
+	},
+	{
+		code: 'HV-0104',
+		birth: '1979-01-19',
+		sex: 'M',
+		edu: 14,
+		battery: 'core-adult',
+		first: 'kit',
+		second: 'sam',
+		reviewer: 'rita',
+		daysAgo: 50,
+		ability: 0.1,
+		state: 'reopened'
+	},
+	{
+		code: 'HV-0105',
+		birth: '1965-09-08',
+		sex: 'F',
+		edu: 18,
+		battery: 'core-adult',
+		first: 'rae',
+		second: 'kit',
+		reviewer: 'rita',
+		daysAgo: 44,
+		ability: 1.1,
+		state: 'verified'
+	},
+	{
+		code: 'HV-0106',
+		birth: '2001-05-23',
+		sex: 'M',
+		edu: 13,
+		battery: 'brief-screen',
+		first: 'sam',
+		second: 'rae',
+		reviewer: 'rita',
+		daysAgo: 37,
+		ability: -0.2,
+		state: 'verified'
+	},
+	{
+		code: 'HV-0107',
+		birth: '1952-12-01',
+		sex: 'M',
+		edu: 11,
+		battery: 'core-adult',
+		first: 'kit',
+		second: 'rae',
+		reviewer: 'lee',
+		daysAgo: 30,
+		ability: -0.9,
+		state: 'verified'
+	},
+	{
+		code: 'HV-0108',
+		birth: '1987-04-11',
+		sex: 'F',
+		edu: 17,
+		battery: 'core-adult',
+		first: 'sam',
+		second: 'kit',
+		reviewer: 'rita',
+		daysAgo: 23,
+		ability: 0.4,
+		state: 'verified'
+	},
+	{
+		code: 'HV-0109',
+		birth: '1944-02-27',
+		sex: 'F',
+		edu: 9,
+		battery: 'core-adult',
+		first: 'rae',
+		second: 'sam',
+		reviewer: 'rita',
+		daysAgo: 16,
+		ability: -1.6,
+		state: 'in_review'
+	},
+	{
+		code: 'HV-0110',
+		birth: '1996-08-15',
+		sex: 'M',
+		edu: 15,
+		battery: 'core-adult',
+		first: 'kit',
+		second: 'sam',
+		reviewer: 'rita',
+		daysAgo: 11,
+		ability: 0.9,
+		state: 'in_review_partly'
+	},
+	{
+		code: 'HV-0111',
+		birth: '1970-10-05',
+		sex: 'F',
+		edu: 12,
+		battery: 'brief-screen',
+		first: 'sam',
+		second: 'rae',
+		reviewer: 'lee',
+		daysAgo: 8,
+		ability: 0.0,
+		state: 'in_review'
+	},
+	{
+		code: 'HV-0112',
+		birth: '1959-06-18',
+		sex: 'M',
+		edu: 14,
+		battery: 'core-adult',
+		first: 'rae',
+		second: 'kit',
+		reviewer: 'rita',
+		daysAgo: 5,
+		ability: -0.5,
+		state: 'in_review'
+	},
+	{
+		code: 'HV-0113',
+		birth: '1983-03-09',
+		sex: 'F',
+		edu: 16,
+		battery: 'core-adult',
+		first: 'kit',
+		second: 'rae',
+		reviewer: 'rita',
+		daysAgo: 3,
+		ability: 0.3,
+		state: 'awaiting_second'
+	},
+	{
+		code: 'HV-0114',
+		birth: '1938-11-21',
+		sex: 'M',
+		edu: 8,
+		battery: 'brief-screen',
+		first: 'sam',
+		second: 'kit',
+		reviewer: 'lee',
+		daysAgo: 2,
+		ability: -2.0,
+		state: 'awaiting_second'
+	},
+	{
+		code: 'HV-0115',
+		birth: '1975-07-07',
+		sex: 'F',
+		edu: 12,
+		battery: 'core-adult',
+		first: 'sam',
+		second: 'rae',
+		reviewer: 'rita',
+		daysAgo: 1,
+		ability: 0.2,
+		state: 'draft_started'
+	},
+	{
+		code: 'HV-0116',
+		birth: '1999-01-31',
+		sex: 'M',
+		edu: 14,
+		battery: 'brief-screen',
+		first: 'rae',
+		second: 'sam',
+		reviewer: 'rita',
+		daysAgo: 0.2,
+		ability: 0.5,
+		state: 'draft'
+	}
 ];
 
 export async function seedProtocols(): Promise<void> {
@@ -166,8 +370,18 @@ export async function seedProtocols(): Promise<void> {
 			lead
 		);
 		const p1 = await myPass(id, actors[plan.first]);
-		const tests: TestInfo[] = p1.tests.map((t) => ({ code: t.code, direction: t.direction, raw: t.raw, reported: t.reported, bounds: t.bounds as TestInfo['bounds'], groupCode: t.groupCode }));
-		const norms = await normGroups(battery.norm_set_id, tests.map((t) => t.code));
+		const tests: TestInfo[] = p1.tests.map((t) => ({
+			code: t.code,
+			direction: t.direction,
+			raw: t.raw,
+			reported: t.reported,
+			bounds: t.bounds as TestInfo['bounds'],
+			groupCode: t.groupCode
+		}));
+		const norms = await normGroups(
+			battery.norm_set_id,
+			tests.map((t) => t.code)
+		);
 		const truth = truthFor(tests, norms, plan.ability);
 		if (plan.state === 'draft') continue;
 		const first = enter(tests, truth, norms, plan.first, week);
@@ -200,7 +414,12 @@ export async function seedProtocols(): Promise<void> {
 			const trueRaw = String(truth[d.test]);
 			if (d.field === 'raw') {
 				const choice = Number(d.first) === Number(trueRaw) ? 'first' : Number(d.second) === Number(trueRaw) ? 'second' : 'other';
-				await resolveDiscrepancy(d.id, reviewer, { choice, value: choice === 'other' ? trueRaw : null, note: choice === 'other' ? 'Checked against the record form.' : null, lockVersion: d.lockVersion });
+				await resolveDiscrepancy(d.id, reviewer, {
+					choice,
+					value: choice === 'other' ? trueRaw : null,
+					note: choice === 'other' ? 'Checked against the record form.' : null,
+					lockVersion: d.lockVersion
+				});
 			} else {
 				// The reviewer checks the record form: the right value is the look-up for the true raw score.
 				const t = tests.find((x) => x.code === d.test)!;
@@ -230,10 +449,19 @@ export async function seedProtocols(): Promise<void> {
 				if (d.resolvedAt) continue;
 				const prev = await selectOne<{ resolution: string; resolved_value: string }>(
 					'SELECT resolution, resolved_value FROM discrepancies WHERE protocol_id = :p AND round = :r AND position = :pos',
-					{ p: id, r: again.protocol.round - 1, pos: d.id ? (await selectOne<{ position: number }>('SELECT position FROM discrepancies WHERE id = :id', { id: d.id }))!.position : 0 }
+					{
+						p: id,
+						r: again.protocol.round - 1,
+						pos: d.id ? (await selectOne<{ position: number }>('SELECT position FROM discrepancies WHERE id = :id', { id: d.id }))!.position : 0
+					}
 				);
 				const choice = (prev?.resolution ?? 'recomputed') as 'first' | 'second' | 'recomputed' | 'other';
-				await resolveDiscrepancy(d.id, reviewer, { choice, value: choice === 'other' ? prev?.resolved_value : null, note: 'Age band confirmed; same value as before.', lockVersion: d.lockVersion });
+				await resolveDiscrepancy(d.id, reviewer, {
+					choice,
+					value: choice === 'other' ? prev?.resolved_value : null,
+					note: 'Age band confirmed; same value as before.',
+					lockVersion: d.lockVersion
+				});
 			}
 			const last = await reviewView(id, reviewer);
 			await signOff(id, reviewer, { lockVersion: last.protocol.lock_version });

@@ -42,19 +42,37 @@ interface TwPlan {
 }
 
 /** Add `k` to a composite's part in one pass and carry it: the sum and the look-ups follow the wrong part. */
-const bump = (test: string, field: 'scaled', k: number): Slip => (s) => {
-	s[test][field] = String(Number(s[test][field]) + k);
-};
+const bump =
+	(test: string, field: 'scaled', k: number): Slip =>
+	(s) => {
+		s[test][field] = String(Number(s[test][field]) + k);
+	};
 
 const PLANS: TwPlan[] = [
 	{
-		code: 'TW-0201', birth: '1984-06-02', sex: 'F', edu: 16, first: 'sam', second: 'kit', reviewer: 'rita', daysAgo: 20, state: 'verified',
+		code: 'TW-0201',
+		birth: '1984-06-02',
+		sex: 'F',
+		edu: 16,
+		first: 'sam',
+		second: 'kit',
+		reviewer: 'rita',
+		daysAgo: 20,
+		state: 'verified',
 		raws: { 'word-recall': 27, 'tile-build': 13, 'knot-copy': 24, 'cargo-code': 55, 'category-naming': 51, 'beacon-slips': 1 },
 		// Kit writes Tile Build's scaled score one too high and carries it into the Memory Index
 		secondSlips: [bump('tile-build', 'scaled', 1)]
 	},
 	{
-		code: 'TW-0202', birth: '1961-09-17', sex: 'M', edu: 12, first: 'rae', second: 'sam', reviewer: 'rita', daysAgo: 4, state: 'in_review',
+		code: 'TW-0202',
+		birth: '1961-09-17',
+		sex: 'M',
+		edu: 12,
+		first: 'rae',
+		second: 'sam',
+		reviewer: 'rita',
+		daysAgo: 4,
+		state: 'in_review',
 		raws: { 'word-recall': 19, 'tile-build': 11, 'knot-copy': 19, 'cargo-code': 38, 'category-naming': 33, 'beacon-slips': 5 },
 		// Rae adds the Memory Index's parts up one short (the look-ups are right for the true sum)
 		firstSlips: [(s) => (s['memory-index'].sum = String(Number(s['memory-index'].sum) - 1))],
@@ -62,11 +80,27 @@ const PLANS: TwPlan[] = [
 		secondSlips: [bump('knot-copy', 'scaled', 1)]
 	},
 	{
-		code: 'TW-0203', birth: '1949-01-25', sex: 'F', edu: 10, first: 'kit', second: 'rae', reviewer: 'rita', daysAgo: 12, state: 'verified',
+		code: 'TW-0203',
+		birth: '1949-01-25',
+		sex: 'F',
+		edu: 10,
+		first: 'kit',
+		second: 'rae',
+		reviewer: 'rita',
+		daysAgo: 12,
+		state: 'verified',
 		raws: { 'word-recall': 15, 'tile-build': 8, 'knot-copy': 13, 'cargo-code': 26, 'category-naming': 27, 'beacon-slips': 10 }
 	},
 	{
-		code: 'TW-0204', birth: '1997-12-08', sex: 'M', edu: 15, first: 'sam', second: 'rae', reviewer: 'rita', daysAgo: 1, state: 'awaiting_second',
+		code: 'TW-0204',
+		birth: '1997-12-08',
+		sex: 'M',
+		edu: 15,
+		first: 'sam',
+		second: 'rae',
+		reviewer: 'rita',
+		daysAgo: 1,
+		state: 'awaiting_second',
 		raws: { 'word-recall': 30, 'tile-build': 17, 'knot-copy': 27, 'cargo-code': 60, 'category-naming': 55, 'beacon-slips': 0 }
 	}
 ];
@@ -93,7 +127,10 @@ async function carefulEntry(protocolId: number, raws: Record<string, number>): P
 	for (const c of composites) {
 		const g = groups.find((x) => x.test_code === c.code && x.group_code === c.groupCode)!;
 		const sum = c.parts.reduce((a, part) => a + Number(out[part][c.part_field as DerivedField]), 0);
-		const span = compositeSpan(engineComposite(c), tests.map((t) => engineTest(t)));
+		const span = compositeSpan(
+			engineComposite(c),
+			tests.map((t) => engineTest(t))
+		);
 		const refs = compositeReferences(normDef(g) as CompositeNormEntry, sum, span)!;
 		out[c.code] = {};
 		for (const f of c.reported) out[c.code][f as DerivedField] = refs[f as 'sum'] === undefined ? null : formatReference(f as DerivedField, refs[f as 'sum']!);
@@ -109,14 +146,24 @@ async function withSlips(protocolId: number, right: Scores, raws: Record<string,
 	for (const slip of slips) slip(s);
 	const composites = await protocolComposites(protocolId);
 	const p = await selectOne<{ norm_set_id: number }>('SELECT norm_set_id FROM protocols WHERE id = :id', { id: protocolId });
-	const groups = await normGroups(p!.norm_set_id, composites.map((c) => c.code));
+	const groups = await normGroups(
+		p!.norm_set_id,
+		composites.map((c) => c.code)
+	);
 	const tests = await protocolTests(protocolId);
 	for (const c of composites) {
 		const partsChanged = c.parts.some((part) => JSON.stringify(s[part]) !== JSON.stringify((JSON.parse(before) as Scores)[part]));
 		if (!partsChanged) continue;
 		const g = groups.find((x) => x.test_code === c.code && x.group_code === c.groupCode)!;
 		const sum = c.parts.reduce((a, part) => a + Number(s[part][c.part_field as DerivedField]), 0);
-		const refs = compositeReferences(normDef(g) as CompositeNormEntry, sum, compositeSpan(engineComposite(c), tests.map((t) => engineTest(t))))!;
+		const refs = compositeReferences(
+			normDef(g) as CompositeNormEntry,
+			sum,
+			compositeSpan(
+				engineComposite(c),
+				tests.map((t) => engineTest(t))
+			)
+		)!;
 		for (const f of c.reported) s[c.code][f as DerivedField] = refs[f as 'sum'] === undefined ? null : formatReference(f as DerivedField, refs[f as 'sum']!);
 	}
 	return s;
@@ -144,7 +191,11 @@ export async function seedTidewaterProtocols(actors: Record<string, Actor>, lead
 		const d1 = await saveDraft(id, actors[plan.first], { scores: await withSlips(id, right, plan.raws, plan.firstSlips), draftVersion: 0 });
 		await submitPass(id, actors[plan.first], { draftVersion: d1.draftVersion });
 		const lines = Object.entries(plan.raws).map(([code, raw]) => `${code.padEnd(22, ' ')} raw ${raw}`);
-		await addAttachment(id, lead, new File([recordFormPdf(`Tidewater record form ${plan.code}`, lines)], `record-form-${plan.code}.pdf`, { type: 'application/pdf' }));
+		await addAttachment(
+			id,
+			lead,
+			new File([recordFormPdf(`Tidewater record form ${plan.code}`, lines)], `record-form-${plan.code}.pdf`, { type: 'application/pdf' })
+		);
 		if (plan.state === 'awaiting_second') continue;
 		await at(Math.max(0, plan.daysAgo - 0.6), 15);
 		const d2 = await saveDraft(id, actors[plan.second], { scores: await withSlips(id, right, plan.raws, plan.secondSlips), draftVersion: 0 });

@@ -39,10 +39,21 @@ for (const [k, v] of Object.entries(defaults)) process.env[k] ??= v;
 if (process.argv.includes('--keep-data')) process.env.BENCH_KEEP_DATA = '1';
 const ALL = ['reconcile', 'mail', 'audit', 'http', 'pages', 'db'] as const;
 type Name = (typeof ALL)[number];
-const only = new Set(arg('only', ALL.join(',')).split(',').map((s) => s.trim()) as Name[]);
+const only = new Set(
+	arg('only', ALL.join(','))
+		.split(',')
+		.map((s) => s.trim()) as Name[]
+);
 const QUICK = process.argv.includes('--quick');
 const sizes: Record<Name, string[]> = QUICK
-	? { reconcile: ['--protocols', '2000'], mail: ['--protocols', '200'], audit: ['--protocols', '2000', '--runs', '3'], http: ['--submits', '100', '--resolutions', '400', '--duration', '4'], pages: ['--runs', '3'], db: [] }
+	? {
+			reconcile: ['--protocols', '2000'],
+			mail: ['--protocols', '200'],
+			audit: ['--protocols', '2000', '--runs', '3'],
+			http: ['--submits', '100', '--resolutions', '400', '--duration', '4'],
+			pages: ['--runs', '3'],
+			db: []
+		}
 	: { reconcile: [], mail: [], audit: [], http: [], pages: [], db: [] };
 const log = (s: string) => console.error(`\x1b[1m[bench]\x1b[0m ${s}`);
 
@@ -69,7 +80,10 @@ async function bench(name: Name) {
 	log(`bench:${name} ${sizes[name].join(' ')}`);
 	const t0 = performance.now();
 	const r = await run(join(ROOT, 'node_modules/.bin/tsx'), [`scripts/bench/${name}.ts`, ...sizes[name]]);
-	const line = r.out.split('\n').reverse().find((l) => l.startsWith('BENCH_JSON '));
+	const line = r.out
+		.split('\n')
+		.reverse()
+		.find((l) => l.startsWith('BENCH_JSON '));
 	if (r.code !== 0 || !line) failures.push(`${name} (exit ${r.code}${line ? '' : ', no BENCH_JSON'})`);
 	if (line) results[name] = { ...JSON.parse(line.slice('BENCH_JSON '.length)), seconds: Math.round((performance.now() - t0) / 1000) };
 }
@@ -83,35 +97,133 @@ async function down() {
 }
 for (const sig of ['SIGINT', 'SIGTERM'] as const) process.on(sig, () => void down().then(() => process.exit(130)));
 
-type Row = { key: string; area: string; figure: string; value: string; floor: string; ratio: string; change?: string; metric?: number; unit?: string; goal: string; met: string };
+type Row = {
+	key: string;
+	area: string;
+	figure: string;
+	value: string;
+	floor: string;
+	ratio: string;
+	change?: string;
+	metric?: number;
+	unit?: string;
+	goal: string;
+	met: string;
+};
 function table(): Row[] {
 	const rows: Row[] = [];
 	const f = (x: number | undefined, d = 1) => (x === undefined || x === null || Number.isNaN(x) ? '—' : Number(x).toFixed(d));
 	const yes = (b: boolean | undefined) => (b === undefined ? '' : b ? 'yes' : 'NO');
 	const r = results;
 	if (r.reconcile)
-		rows.push({ key: 'reconcile.engine', area: 'reconcile', figure: `engine, ${r.reconcile.protocols} protocols (${r.reconcile.engine_protocols_per_s}/s)`, value: `${f(r.reconcile.engine_ms)} ms`, floor: `${f(r.reconcile.floor_ms)} ms JSON parse+stringify`, ratio: f(r.reconcile.ratio, 2), goal: '≤ 3', met: yes(r.reconcile.ratio <= 3) });
+		rows.push({
+			key: 'reconcile.engine',
+			area: 'reconcile',
+			figure: `engine, ${r.reconcile.protocols} protocols (${r.reconcile.engine_protocols_per_s}/s)`,
+			value: `${f(r.reconcile.engine_ms)} ms`,
+			floor: `${f(r.reconcile.floor_ms)} ms JSON parse+stringify`,
+			ratio: f(r.reconcile.ratio, 2),
+			goal: '≤ 3',
+			met: yes(r.reconcile.ratio <= 3)
+		});
 	if (r.reconcile?.forms)
-		rows.push({ key: 'reconcile.forms', area: 'reconcile', figure: `engine, tables/regression/bands/composites, ${r.reconcile.forms.protocols} protocols (${r.reconcile.forms.engine_protocols_per_s}/s)`, value: `${f(r.reconcile.forms.engine_ms)} ms`, floor: `${f(r.reconcile.forms.floor_ms)} ms JSON parse+stringify`, ratio: f(r.reconcile.forms.ratio, 2), goal: '≤ 3', met: yes(r.reconcile.forms.ratio <= 3) });
+		rows.push({
+			key: 'reconcile.forms',
+			area: 'reconcile',
+			figure: `engine, tables/regression/bands/composites, ${r.reconcile.forms.protocols} protocols (${r.reconcile.forms.engine_protocols_per_s}/s)`,
+			value: `${f(r.reconcile.forms.engine_ms)} ms`,
+			floor: `${f(r.reconcile.forms.floor_ms)} ms JSON parse+stringify`,
+			ratio: f(r.reconcile.forms.ratio, 2),
+			goal: '≤ 3',
+			met: yes(r.reconcile.forms.ratio <= 3)
+		});
 	if (r.mail)
-		rows.push({ key: 'mail', metric: r.mail.emails_per_second, unit: '/s', area: 'mail', figure: `${r.mail.protocols} first e-mails caught`, value: `${f(r.mail.all_caught_ms, 0)} ms (${r.mail.emails_per_second}/s, p95 ${r.mail.latency_ms?.p95} ms)`, floor: 'none measured', ratio: '—', goal: 'no duplicates', met: yes(r.mail.duplicates === 0) });
+		rows.push({
+			key: 'mail',
+			metric: r.mail.emails_per_second,
+			unit: '/s',
+			area: 'mail',
+			figure: `${r.mail.protocols} first e-mails caught`,
+			value: `${f(r.mail.all_caught_ms, 0)} ms (${r.mail.emails_per_second}/s, p95 ${r.mail.latency_ms?.p95} ms)`,
+			floor: 'none measured',
+			ratio: '—',
+			goal: 'no duplicates',
+			met: yes(r.mail.duplicates === 0)
+		});
 	if (r.audit)
-		rows.push({ key: 'audit', metric: r.audit.worst_ms, unit: ' ms', area: 'audit', figure: `slowest report over ${r.audit.data?.fields_entered ?? '?'} fields`, value: `${f(r.audit.worst_ms)} ms`, floor: '—', ratio: '—', goal: '< 300 ms', met: yes(r.audit.ok) });
+		rows.push({
+			key: 'audit',
+			metric: r.audit.worst_ms,
+			unit: ' ms',
+			area: 'audit',
+			figure: `slowest report over ${r.audit.data?.fields_entered ?? '?'} fields`,
+			value: `${f(r.audit.worst_ms)} ms`,
+			floor: '—',
+			ratio: '—',
+			goal: '< 300 ms',
+			met: yes(r.audit.ok)
+		});
 	if (r.http) {
 		for (const g of r.http.goals ?? []) {
 			const x = (r.http.results ?? []).find((y: { route: string }) => y.route === g.route) ?? {};
-			rows.push({ key: `http ${g.route}`, area: 'http', figure: `${g.route} p50/p95/p99, req/s`, value: `${f(x.p50)}/${f(x.p95)}/${f(x.p99)} ms, ${x.rps}/s`, floor: `${g.floor ?? '/health'} p95 ${f(g.floor_p95)} ms`, ratio: f(g.ratio, 2), goal: `≤ ${g.goal}×`, met: yes(g.met) });
+			rows.push({
+				key: `http ${g.route}`,
+				area: 'http',
+				figure: `${g.route} p50/p95/p99, req/s`,
+				value: `${f(x.p50)}/${f(x.p95)}/${f(x.p99)} ms, ${x.rps}/s`,
+				floor: `${g.floor ?? '/health'} p95 ${f(g.floor_p95)} ms`,
+				ratio: f(g.ratio, 2),
+				goal: `≤ ${g.goal}×`,
+				met: yes(g.met)
+			});
 		}
 	}
 	if (r.pages) {
 		for (const p of r.pages.pages ?? [])
-			rows.push({ key: `pages ${p.page}`, area: 'pages', figure: `${p.page}: JS gzip, CLS`, value: `${f(p.js_gzip_bytes / 1024)} KB, CLS ${f(p.cls, 3)}`, floor: '', ratio: '', goal: p.page.startsWith('Entry') ? '< 100 KB' : '', met: p.page.startsWith('Entry') ? yes(p.js_gzip_bytes < 102400) : '' });
+			rows.push({
+				key: `pages ${p.page}`,
+				area: 'pages',
+				figure: `${p.page}: JS gzip, CLS`,
+				value: `${f(p.js_gzip_bytes / 1024)} KB, CLS ${f(p.cls, 3)}`,
+				floor: '',
+				ratio: '',
+				goal: p.page.startsWith('Entry') ? '< 100 KB' : '',
+				met: p.page.startsWith('Entry') ? yes(p.js_gzip_bytes < 102400) : ''
+			});
 		const e = r.pages.entry ?? {};
-		rows.push({ key: 'pages.tti', area: 'pages', figure: 'Entry (60 fields) time to interactive', value: `${f(e.tti_ms, 0)} ms`, floor: `sign-in ${f(e.floor_tti_ms, 0)} ms`, ratio: f(e.tti_ratio, 2), goal: '', met: '' });
+		rows.push({
+			key: 'pages.tti',
+			area: 'pages',
+			figure: 'Entry (60 fields) time to interactive',
+			value: `${f(e.tti_ms, 0)} ms`,
+			floor: `sign-in ${f(e.floor_tti_ms, 0)} ms`,
+			ratio: f(e.tti_ratio, 2),
+			goal: '',
+			met: ''
+		});
 		const k = r.pages.keystroke ?? {};
-		rows.push({ key: 'pages.keystroke', area: 'pages', figure: 'Enter → next field (focus; next frame) median/p95', value: `${f(k.focus_median_ms, 2)}/${f(k.focus_p95_ms, 2)} ms; ${f(k.frame_median_ms)}/${f(k.frame_p95_ms)} ms`, floor: 'one frame ≈ 16.7 ms', ratio: f(k.frame_median_ms / 16.7, 2), goal: '', met: '' });
+		rows.push({
+			key: 'pages.keystroke',
+			area: 'pages',
+			figure: 'Enter → next field (focus; next frame) median/p95',
+			value: `${f(k.focus_median_ms, 2)}/${f(k.focus_p95_ms, 2)} ms; ${f(k.frame_median_ms)}/${f(k.frame_p95_ms)} ms`,
+			floor: 'one frame ≈ 16.7 ms',
+			ratio: f(k.frame_median_ms / 16.7, 2),
+			goal: '',
+			met: ''
+		});
 	}
-	if (r.db) rows.push({ key: 'db', area: 'db', figure: `list + audit queries with EXPLAIN`, value: `${r.db.queries} queries, ${r.db.full_scans} full scans`, floor: `over ${r.db.data?.protocols} protocols`, ratio: '—', goal: '0 full scans', met: yes(r.db.ok) });
+	if (r.db)
+		rows.push({
+			key: 'db',
+			area: 'db',
+			figure: `list + audit queries with EXPLAIN`,
+			value: `${r.db.queries} queries, ${r.db.full_scans} full scans`,
+			floor: `over ${r.db.data?.protocols} protocols`,
+			ratio: '—',
+			goal: '0 full scans',
+			met: yes(r.db.ok)
+		});
 	return rows;
 }
 
@@ -120,20 +232,24 @@ type HistoryRun = { date: string; quick: boolean; rows: { key: string; ratio: st
 /** The latest earlier run of the same size (full or --quick) from .bench/history.jsonl. */
 function lastRun(quick: boolean): HistoryRun | undefined {
 	if (!existsSync(HISTORY)) return undefined;
-	const runs = readFileSync(HISTORY, 'utf8').split('\n').filter(Boolean).flatMap((l) => {
-		try {
-			return [JSON.parse(l) as HistoryRun];
-		} catch {
-			return [];
-		}
-	});
+	const runs = readFileSync(HISTORY, 'utf8')
+		.split('\n')
+		.filter(Boolean)
+		.flatMap((l) => {
+			try {
+				return [JSON.parse(l) as HistoryRun];
+			} catch {
+				return [];
+			}
+		});
 	return runs.reverse().find((x) => x.quick === quick);
 }
 /** "+0.31 (was 2.40)" against the previous run's ratio (or headline figure where there is no ratio). */
 function change(r: Row, prev: HistoryRun | undefined): string {
 	const p = prev?.rows.find((x) => x.key === r.key);
 	if (!p) return prev ? 'new' : '';
-	const now = Number(r.ratio), before = Number(p.ratio);
+	const now = Number(r.ratio),
+		before = Number(p.ratio);
 	if (r.ratio !== '' && !Number.isNaN(now) && !Number.isNaN(before)) {
 		const d = now - before;
 		return `${d >= 0 ? '+' : ''}${d.toFixed(2)} (was ${before.toFixed(2)}, ${before ? (d >= 0 ? '+' : '') + Math.round((100 * d) / before) : '?'} %)`;
@@ -175,18 +291,56 @@ async function main() {
 	const rows = table();
 	const previous = lastRun(QUICK);
 	for (const r of rows) r.change = change(r, previous);
-	const widths = (['area', 'figure', 'value', 'floor', 'ratio', 'change', 'goal', 'met'] as const).map((k) => Math.max(k.length, ...rows.map((r) => r[k].length)));
-	const line = (r: Record<string, unknown>) => (['area', 'figure', 'value', 'floor', 'ratio', 'change', 'goal', 'met'] as const).map((k, i) => String(r[k] ?? '').padEnd(widths[i])).join('  ');
-	console.log(`\nCrosstally benchmarks — ${started.toISOString().slice(0, 16).replace('T', ' ')} UTC, ${cores} cores (${os.cpus()[0]?.model ?? '?'}), ${Math.round(os.totalmem() / 2 ** 30)} GB, Node ${process.version}${QUICK ? ', --quick sizes' : ''}\n`);
-	console.log(line({ area: 'area', figure: 'figure', value: 'value', floor: 'floor (same run)', ratio: 'ratio', change: previous ? `vs ${previous.date.slice(0, 16).replace('T', ' ')}` : 'change', goal: 'goal', met: 'met' }));
+	const widths = (['area', 'figure', 'value', 'floor', 'ratio', 'change', 'goal', 'met'] as const).map((k) =>
+		Math.max(k.length, ...rows.map((r) => r[k].length))
+	);
+	const line = (r: Record<string, unknown>) =>
+		(['area', 'figure', 'value', 'floor', 'ratio', 'change', 'goal', 'met'] as const).map((k, i) => String(r[k] ?? '').padEnd(widths[i])).join('  ');
+	console.log(
+		`\nCrosstally benchmarks — ${started.toISOString().slice(0, 16).replace('T', ' ')} UTC, ${cores} cores (${os.cpus()[0]?.model ?? '?'}), ${Math.round(os.totalmem() / 2 ** 30)} GB, Node ${process.version}${QUICK ? ', --quick sizes' : ''}\n`
+	);
+	console.log(
+		line({
+			area: 'area',
+			figure: 'figure',
+			value: 'value',
+			floor: 'floor (same run)',
+			ratio: 'ratio',
+			change: previous ? `vs ${previous.date.slice(0, 16).replace('T', ' ')}` : 'change',
+			goal: 'goal',
+			met: 'met'
+		})
+	);
 	for (const r of rows) console.log(line(r));
 	if (failures.length) console.log(`\nFAILED: ${failures.join('; ')}`);
 	mkdirSync(join(ROOT, '.bench'), { recursive: true });
-	const out = { date: started.toISOString(), cores, cpu: os.cpus()[0]?.model, mem_gb: Math.round(os.totalmem() / 2 ** 30), node: process.version, quick: QUICK, table: rows, failures, results };
+	const out = {
+		date: started.toISOString(),
+		cores,
+		cpu: os.cpus()[0]?.model,
+		mem_gb: Math.round(os.totalmem() / 2 ** 30),
+		node: process.version,
+		quick: QUICK,
+		table: rows,
+		failures,
+		results
+	};
 	writeFileSync(join(ROOT, '.bench/all.json'), JSON.stringify(out, null, 2) + '\n');
 	// one line per run, figures only, so the next run can show its change against this one
-	appendFileSync(HISTORY, JSON.stringify({ date: out.date, cores, quick: QUICK, only: [...only], failures, rows: rows.map(({ key, ratio, metric, value }) => ({ key, ratio, metric, value })) }) + '\n');
-	console.log(`\nwritten to .bench/all.json; figures appended to .bench/history.jsonl${previous ? ` (change against the run of ${previous.date})` : ' (no earlier run to compare with)'}`);
+	appendFileSync(
+		HISTORY,
+		JSON.stringify({
+			date: out.date,
+			cores,
+			quick: QUICK,
+			only: [...only],
+			failures,
+			rows: rows.map(({ key, ratio, metric, value }) => ({ key, ratio, metric, value }))
+		}) + '\n'
+	);
+	console.log(
+		`\nwritten to .bench/all.json; figures appended to .bench/history.jsonl${previous ? ` (change against the run of ${previous.date})` : ' (no earlier run to compare with)'}`
+	);
 	process.exitCode = failures.length ? 1 : 0;
 }
 

@@ -16,7 +16,6 @@ import { DEMO_BANDS, DEMO_TESTS } from '../../db/seeds/catalog';
 import { attributedPasses, bandOf, numeric, rebuildDailySums, AUDIT_FIELDS_COLUMNS, AGREEMENT_PAIRS_COLUMNS } from '../../src/lib/server/audit-stats/record';
 import { rng } from './prng';
 
-
 interface Profile {
 	email: string;
 	name: string;
@@ -30,15 +29,68 @@ interface Profile {
 	startsAt?: number;
 }
 
-type Slip = 'transposition' | 'sign_flip' | 'wrong_norm_group' | 'wrong_scale' | 'decimal_shift' | 'rounding' | 'digit_drop' | 'wrong_digit' | 'missing' | 'raw_as_derived';
+type Slip =
+	| 'transposition'
+	| 'sign_flip'
+	| 'wrong_norm_group'
+	| 'wrong_scale'
+	| 'decimal_shift'
+	| 'rounding'
+	| 'digit_drop'
+	| 'wrong_digit'
+	| 'missing'
+	| 'raw_as_derived';
 
 export const PROFILES: Profile[] = [
-	{ email: 'sam.scorer@demo.crosstally.test', name: 'Sam Okafor', rateStart: 0.034, rateEnd: 0.011, volume: 1.3, kinds: { transposition: 6, wrong_digit: 1, rounding: 1, missing: 1 } },
-	{ email: 'rae.scorer@demo.crosstally.test', name: 'Rae Lindqvist', rateStart: 0.01, rateEnd: 0.009, volume: 1.2, kinds: { rounding: 3, wrong_norm_group: 3, transposition: 1, missing: 1 } },
-	{ email: 'kit.scorer@demo.crosstally.test', name: 'Kit Moreau', rateStart: 0.026, rateEnd: 0.027, volume: 1, kinds: { sign_flip: 5, wrong_scale: 2, transposition: 1, decimal_shift: 1 } },
-	{ email: 'noor.scorer@demo.crosstally.test', name: 'Noor Haddad', rateStart: 0.016, rateEnd: 0.014, volume: 0.9, kinds: { wrong_norm_group: 2, transposition: 2, digit_drop: 2, rounding: 1 } },
-	{ email: 'tomas.scorer@demo.crosstally.test', name: 'Tomás Ferreira', rateStart: 0.02, rateEnd: 0.018, volume: 0.8, kinds: { missing: 3, digit_drop: 2, raw_as_derived: 2, transposition: 1 } },
-	{ email: 'ines.scorer@demo.crosstally.test', name: 'Inês Duarte', rateStart: 0.012, rateEnd: 0.012, volume: 0.25, startsAt: 0.8, kinds: { transposition: 2, rounding: 2, wrong_scale: 1 } }
+	{
+		email: 'sam.scorer@demo.crosstally.test',
+		name: 'Sam Okafor',
+		rateStart: 0.034,
+		rateEnd: 0.011,
+		volume: 1.3,
+		kinds: { transposition: 6, wrong_digit: 1, rounding: 1, missing: 1 }
+	},
+	{
+		email: 'rae.scorer@demo.crosstally.test',
+		name: 'Rae Lindqvist',
+		rateStart: 0.01,
+		rateEnd: 0.009,
+		volume: 1.2,
+		kinds: { rounding: 3, wrong_norm_group: 3, transposition: 1, missing: 1 }
+	},
+	{
+		email: 'kit.scorer@demo.crosstally.test',
+		name: 'Kit Moreau',
+		rateStart: 0.026,
+		rateEnd: 0.027,
+		volume: 1,
+		kinds: { sign_flip: 5, wrong_scale: 2, transposition: 1, decimal_shift: 1 }
+	},
+	{
+		email: 'noor.scorer@demo.crosstally.test',
+		name: 'Noor Haddad',
+		rateStart: 0.016,
+		rateEnd: 0.014,
+		volume: 0.9,
+		kinds: { wrong_norm_group: 2, transposition: 2, digit_drop: 2, rounding: 1 }
+	},
+	{
+		email: 'tomas.scorer@demo.crosstally.test',
+		name: 'Tomás Ferreira',
+		rateStart: 0.02,
+		rateEnd: 0.018,
+		volume: 0.8,
+		kinds: { missing: 3, digit_drop: 2, raw_as_derived: 2, transposition: 1 }
+	},
+	{
+		email: 'ines.scorer@demo.crosstally.test',
+		name: 'Inês Duarte',
+		rateStart: 0.012,
+		rateEnd: 0.012,
+		volume: 0.25,
+		startsAt: 0.8,
+		kinds: { transposition: 2, rounding: 2, wrong_scale: 1 }
+	}
 ];
 const REVIEWERS = ['rita.reviewer@demo.crosstally.test', 'lee.lead@demo.crosstally.test'];
 
@@ -65,9 +117,7 @@ function normsFor(code: string, band: number, edu13: boolean): { mean: number; s
 
 const ALL_NORMS: NormDef[] = DEMO_TESTS.flatMap((t) =>
 	DEMO_BANDS.flatMap((b, i) =>
-		t.eduNorms
-			? [false, true].map((e) => ({ test: t.code, ...normsFor(t.code, i, e) }))
-			: [{ test: t.code, ...normsFor(t.code, i, false) }]
+		t.eduNorms ? [false, true].map((e) => ({ test: t.code, ...normsFor(t.code, i, e) })) : [{ test: t.code, ...normsFor(t.code, i, false) }]
 	)
 );
 
@@ -82,7 +132,13 @@ function swapAdjacent(s: string, r: () => number): string | null {
 }
 
 /** One slipped entry for a field, or null when this slip cannot apply. */
-function slip(kind: Slip, field: Field, correct: string, ctx: { z: number; zOther: number; zFlip: number; raw: string; test: TestDef }, r: () => number): string | null {
+function slip(
+	kind: Slip,
+	field: Field,
+	correct: string,
+	ctx: { z: number; zOther: number; zFlip: number; raw: string; test: TestDef },
+	r: () => number
+): string | null {
 	const derived = field === 'raw' ? null : (field as DerivedField);
 	switch (kind) {
 		case 'transposition':
@@ -232,7 +288,20 @@ export async function seedAuditData(opts: { protocols: number; weeks?: number; s
 		const isOpen = frac > 0.97 && r() < openShare * 20;
 
 		examinees.push([exId, `${prefix}-${String(pid).padStart(6, '0')}`, sqlDate(birth).slice(0, 10)]);
-		protocols.push([pid, exId, battery.id, battery.norm_set_id, sqlDate(testDate).slice(0, 10), `${Math.floor(ageMonths / 12)};${ageMonths % 12}`, ageMonths, isOpen ? 'in_review' : 'verified', scorerIds[a], scorerIds[b], reviewer, at2]);
+		protocols.push([
+			pid,
+			exId,
+			battery.id,
+			battery.norm_set_id,
+			sqlDate(testDate).slice(0, 10),
+			`${Math.floor(ageMonths / 12)};${ageMonths % 12}`,
+			ageMonths,
+			isOpen ? 'in_review' : 'verified',
+			scorerIds[a],
+			scorerIds[b],
+			reviewer,
+			at2
+		]);
 		codes.forEach((c, k) => ptests.push([pid, k + 1, testIds.get(c) ?? null]));
 
 		const truth: Record<string, Record<string, string>> = {};
@@ -288,7 +357,21 @@ export async function seedAuditData(opts: { protocols: number; weeks?: number; s
 			for (const code of codes) {
 				const raw = s[code].raw !== '' ? 1 : 0;
 				const derived = Object.entries(s[code]).filter(([f, v]) => f !== 'raw' && v !== '').length;
-				if (raw + derived) fields.push([passIds[k], code, pid, 1, k === 0 ? 'first' : 'second', scorerIds[[a, b][k]], battery.id, DOMAIN.get(code), raw + derived, raw, derived, ats[k]]);
+				if (raw + derived)
+					fields.push([
+						passIds[k],
+						code,
+						pid,
+						1,
+						k === 0 ? 'first' : 'second',
+						scorerIds[[a, b][k]],
+						battery.id,
+						DOMAIN.get(code),
+						raw + derived,
+						raw,
+						derived,
+						ats[k]
+					]);
 			}
 		});
 		for (const code of codes) {
@@ -317,7 +400,24 @@ export async function seedAuditData(opts: { protocols: number; weeks?: number; s
 			const resolution = firstV === correct ? 'first' : secondV === correct ? 'second' : d.expected !== null && d.field !== 'raw' ? 'recomputed' : 'other';
 			const resolved = !isOpen || r() < 0.3;
 			const at = new Date(at2.getTime() + (0.2 + r() * 2) * 86_400_000);
-			discs.push([did, pid, 1, pos + 1, d.test, d.field, d.pass, d.kind, value, other, d.expected === null ? null : String(d.expected), d.out_of_range ? 1 : 0, resolved ? resolution : null, resolved ? correct : null, resolved ? reviewer : null, resolved ? at : null]);
+			discs.push([
+				did,
+				pid,
+				1,
+				pos + 1,
+				d.test,
+				d.field,
+				d.pass,
+				d.kind,
+				value,
+				other,
+				d.expected === null ? null : String(d.expected),
+				d.out_of_range ? 1 : 0,
+				resolved ? resolution : null,
+				resolved ? correct : null,
+				resolved ? reviewer : null,
+				resolved ? at : null
+			]);
 			if (!resolved) return;
 			for (const which of attributedPasses({ pass: d.pass, value, other, resolution, resolved_value: correct, field: d.field })) {
 				const k = which === 'first' ? 0 : 1;
@@ -328,17 +428,67 @@ export async function seedAuditData(opts: { protocols: number; weeks?: number; s
 
 	{
 		await bulk('examinees', ['id', 'code', 'birth_date'], examinees);
-		await bulk('protocols', ['id', 'examinee_id', 'battery_id', 'norm_set_id', 'test_date', 'age_text', 'age_months', 'status', 'first_scorer_id', 'second_scorer_id', 'reviewer_id', 'status_changed_at'], protocols);
+		await bulk(
+			'protocols',
+			[
+				'id',
+				'examinee_id',
+				'battery_id',
+				'norm_set_id',
+				'test_date',
+				'age_text',
+				'age_months',
+				'status',
+				'first_scorer_id',
+				'second_scorer_id',
+				'reviewer_id',
+				'status_changed_at'
+			],
+			protocols
+		);
 		await bulk('protocol_tests', ['protocol_id', 'position', 'test_id'], ptests);
 		await bulk('passes', ['id', 'protocol_id', 'round', 'which', 'scorer_id', 'status', 'scores', 'fields_entered', 'submitted_at'], passes, 1000);
-		await bulk('discrepancies', ['id', 'protocol_id', 'round', 'position', 'test_code', 'field', 'pass', 'kind', 'value', 'other', 'expected', 'out_of_range', 'resolution', 'resolved_value', 'resolved_by', 'resolved_at'], discs);
+		await bulk(
+			'discrepancies',
+			[
+				'id',
+				'protocol_id',
+				'round',
+				'position',
+				'test_code',
+				'field',
+				'pass',
+				'kind',
+				'value',
+				'other',
+				'expected',
+				'out_of_range',
+				'resolution',
+				'resolved_value',
+				'resolved_by',
+				'resolved_at'
+			],
+			discs
+		);
 		await bulk('error_events', ['discrepancy_id', 'protocol_id', 'scorer_id', 'battery_id', 'test_code', 'domain', 'field', 'kind', 'entered_at'], events);
 		await bulk('audit_fields', AUDIT_FIELDS_COLUMNS, fields);
 		await bulk('agreement_pairs', AGREEMENT_PAIRS_COLUMNS, pairs);
 	}
 	// the daily sums, from the row-level tables, as recordSubmission would have added them up
 	await rebuildDailySums();
-	for (const t of ['protocols', 'passes', 'discrepancies', 'error_events', 'audit_fields', 'agreement_pairs', 'audit_daily', 'agreement_daily', 'agreement_weekly', 'agreement_pair_daily']) await db().query(`ANALYZE TABLE ${t}`, { type: QueryTypes.SELECT });
+	for (const t of [
+		'protocols',
+		'passes',
+		'discrepancies',
+		'error_events',
+		'audit_fields',
+		'agreement_pairs',
+		'audit_daily',
+		'agreement_daily',
+		'agreement_weekly',
+		'agreement_pair_daily'
+	])
+		await db().query(`ANALYZE TABLE ${t}`, { type: QueryTypes.SELECT });
 	return {
 		protocols: opts.protocols,
 		passes: passes.length,

@@ -50,9 +50,7 @@ async function ensureData() {
 		await seedAccounts();
 		await seedCatalog();
 	}
-	const have = await selectOne<{ n: number; f: number }>(
-		`SELECT COUNT(*) AS n, COALESCE(SUM(fields_entered), 0) AS f FROM passes WHERE status = 'submitted'`
-	);
+	const have = await selectOne<{ n: number; f: number }>(`SELECT COUNT(*) AS n, COALESCE(SUM(fields_entered), 0) AS f FROM passes WHERE status = 'submitted'`);
 	if (have && have.f >= 900_000 && !process.argv.includes('--reseed')) {
 		console.error(`[bench:audit] using existing data: ${have.n} passes, ${have.f} fields entered`);
 		return null;
@@ -121,7 +119,9 @@ async function main() {
 			if (v.name === 'all' || v.name === 'scorer+kind') {
 				for (const q of queries) {
 					if (/FROM users|FROM tests|FROM domains/.test(q.sql)) continue; // name look-ups
-					const plan = (await db().query(`EXPLAIN ${q.sql}`, { type: QueryTypes.SELECT, replacements: q.replacements as never })) as Array<Record<string, unknown>>;
+					const plan = (await db().query(`EXPLAIN ${q.sql}`, { type: QueryTypes.SELECT, replacements: q.replacements as never })) as Array<
+						Record<string, unknown>
+					>;
 					explains[`${report} [${v.name}] ${q.sql.replace(/\s+/g, ' ').slice(0, 90)}…`] = plan.map((p) => ({
 						table: p.table,
 						type: p.type,
@@ -155,7 +155,9 @@ async function main() {
 		}
 	}
 
-	console.log(`\nAudit reports over ${counts?.protocols} protocols, ${counts?.fields_entered} fields entered, ${counts?.error_events} error events, ${counts?.agreement_pairs} agreement pairs (median of ${RUNS})\n`);
+	console.log(
+		`\nAudit reports over ${counts?.protocols} protocols, ${counts?.fields_entered} fields entered, ${counts?.error_events} error events, ${counts?.agreement_pairs} agreement pairs (median of ${RUNS})\n`
+	);
 	console.log(`${'report'.padEnd(20)}${'filters'.padEnd(16)}${'rows'.padStart(7)}${'service ms'.padStart(12)}${URL_BASE ? 'HTTP ms'.padStart(10) : ''}  goal`);
 	for (const r of results) {
 		const worst = Math.max(r.ms, r.http_ms ?? 0);
@@ -166,7 +168,10 @@ async function main() {
 	console.log('\nEXPLAIN (table / access type / key / rows examined / extra):');
 	for (const [q, plan] of Object.entries(explains)) {
 		console.log(`  ${q}`);
-		for (const p of plan) console.log(`      ${String(p.table).padEnd(6)} ${String(p.type).padEnd(7)} ${String(p.key ?? '— no index —').padEnd(28)} rows≈${String(p.rows).padEnd(8)} ${p.Extra ?? ''}`);
+		for (const p of plan)
+			console.log(
+				`      ${String(p.table).padEnd(6)} ${String(p.type).padEnd(7)} ${String(p.key ?? '— no index —').padEnd(28)} rows≈${String(p.rows).padEnd(8)} ${p.Extra ?? ''}`
+			);
 	}
 	const fullScans = Object.entries(explains).filter(([, plan]) => plan.some((p) => p.type === 'ALL' && p.key === null));
 	console.log(fullScans.length ? `\n${fullScans.length} queries scan a table without an index.` : '\nEvery query reads through an index.');
@@ -175,7 +180,9 @@ async function main() {
 	const out = { bench: 'audit', goal_ms: GOAL_MS, runs: RUNS, data: counts, seeded, worst_ms: worst, ok: worst < GOAL_MS, results, explain: explains };
 	mkdirSync(dirname(OUT), { recursive: true });
 	writeFileSync(OUT, JSON.stringify(out, null, 2));
-	console.log(`BENCH_JSON ${JSON.stringify({ bench: 'audit', goal_ms: GOAL_MS, worst_ms: Number(worst.toFixed(1)), ok: worst < GOAL_MS, data: counts, results })}`);
+	console.log(
+		`BENCH_JSON ${JSON.stringify({ bench: 'audit', goal_ms: GOAL_MS, worst_ms: Number(worst.toFixed(1)), ok: worst < GOAL_MS, data: counts, results })}`
+	);
 }
 
 main()

@@ -41,9 +41,12 @@ async function main() {
 	const scorer = await F.actor(F.EMAILS.second);
 	const first = await F.actor(F.EMAILS.first);
 	const reviewer = await F.actor(F.EMAILS.reviewer);
-	const inReview = await selectOne<{ id: number }>(`SELECT id FROM protocols WHERE status = 'in_review' AND reviewer_id = :r ORDER BY id DESC LIMIT 1`, { r: reviewer.id });
+	const inReview = await selectOne<{ id: number }>(`SELECT id FROM protocols WHERE status = 'in_review' AND reviewer_id = :r ORDER BY id DESC LIMIT 1`, {
+		r: reviewer.id
+	});
 	const normSet = await selectOne<{ id: number }>('SELECT id FROM norm_sets ORDER BY id LIMIT 1');
-	const scorerId = (await selectOne<{ id: number }>('SELECT scorer_id AS id FROM error_events GROUP BY scorer_id ORDER BY COUNT(*) DESC LIMIT 1'))?.id ?? first.id;
+	const scorerId =
+		(await selectOne<{ id: number }>('SELECT scorer_id AS id FROM error_events GROUP BY scorer_id ORDER BY COUNT(*) DESC LIMIT 1'))?.id ?? first.id;
 	captured.length = 0;
 
 	const calls: Array<[string, () => Promise<unknown>]> = [
@@ -68,10 +71,13 @@ async function main() {
 		['catalog tests', () => listTests({})],
 		['catalog batteries', () => listBatteries()],
 		...(normSet ? ([['norm groups', () => listNormGroups(normSet.id)]] as Array<[string, () => Promise<unknown>]>) : []),
-		...REPORT_NAMES.flatMap((r) => [
-			[`audit ${r}`, () => runReport(r, NO_FILTERS)],
-			[`audit ${r} (scorer)`, () => runReport(r, { ...NO_FILTERS, scorer: scorerId })]
-		] as Array<[string, () => Promise<unknown>]>)
+		...REPORT_NAMES.flatMap(
+			(r) =>
+				[
+					[`audit ${r}`, () => runReport(r, NO_FILTERS)],
+					[`audit ${r} (scorer)`, () => runReport(r, { ...NO_FILTERS, scorer: scorerId })]
+				] as Array<[string, () => Promise<unknown>]>
+		)
 	];
 	for (const [l, fn] of calls) {
 		label = l;
@@ -84,7 +90,13 @@ async function main() {
 		        (SELECT COUNT(*) FROM audit_events) AS audit_events, (SELECT COUNT(*) FROM error_events) AS error_events, (SELECT COUNT(*) FROM agreement_pairs) AS agreement_pairs`
 	);
 	const seen = new Set<string>();
-	const queries: Array<{ label: string; sql: string; plan: Array<{ table: string; type: string; key: string | null; rows: number; extra: string }>; full_scans: string[]; small_scans: string[] }> = [];
+	const queries: Array<{
+		label: string;
+		sql: string;
+		plan: Array<{ table: string; type: string; key: string | null; rows: number; extra: string }>;
+		full_scans: string[];
+		small_scans: string[];
+	}> = [];
 	for (const c of captured) {
 		const norm = c.sql.replace(/\s+/g, ' ').trim();
 		if (seen.has(norm)) continue;
@@ -109,11 +121,27 @@ async function main() {
 	console.log(`\nEXPLAIN of ${queries.length} distinct list and audit queries over ${JSON.stringify(counts)}\n`);
 	for (const q of queries) {
 		console.log(`${q.full_scans.length ? 'FULL SCAN ' : 'ok        '}${q.label}: ${q.sql.slice(0, 110)}…`);
-		for (const p of q.plan) console.log(`            ${p.table.padEnd(14)} ${p.type.padEnd(7)} ${String(p.key ?? '— no index —').padEnd(34)} rows≈${String(p.rows).padEnd(8)} ${p.extra}`);
+		for (const p of q.plan)
+			console.log(
+				`            ${p.table.padEnd(14)} ${p.type.padEnd(7)} ${String(p.key ?? '— no index —').padEnd(34)} rows≈${String(p.rows).padEnd(8)} ${p.extra}`
+			);
 	}
 	const bad = queries.filter((q) => q.full_scans.length);
-	console.log(bad.length ? `\n${bad.length} of ${queries.length} queries scan a large table without an index.` : `\nEvery one of ${queries.length} queries reads large tables through an index.`);
-	emit('db', { ...machine(), data: counts, small_table_rows: SMALL, queries: queries.length, full_scans: bad.length, ok: bad.length === 0, flagged: bad.map((q) => ({ label: q.label, sql: q.sql, scans: q.full_scans })), plans: queries });
+	console.log(
+		bad.length
+			? `\n${bad.length} of ${queries.length} queries scan a large table without an index.`
+			: `\nEvery one of ${queries.length} queries reads large tables through an index.`
+	);
+	emit('db', {
+		...machine(),
+		data: counts,
+		small_table_rows: SMALL,
+		queries: queries.length,
+		full_scans: bad.length,
+		ok: bad.length === 0,
+		flagged: bad.map((q) => ({ label: q.label, sql: q.sql, scans: q.full_scans })),
+		plans: queries
+	});
 }
 
 main()

@@ -31,7 +31,10 @@ export async function actor(email: string): Promise<Actor> {
 export async function correctScores(protocolId: number): Promise<Scores> {
 	const p = await selectOne<{ norm_set_id: number }>('SELECT norm_set_id FROM protocols WHERE id = :id', { id: protocolId });
 	const tests = await protocolTests(protocolId);
-	const groups = await normGroups(p!.norm_set_id, tests.map((t) => t.code));
+	const groups = await normGroups(
+		p!.norm_set_id,
+		tests.map((t) => t.code)
+	);
 	const out: Scores = {};
 	for (const [i, t] of tests.entries()) {
 		const g = groups.find((x) => x.test_code === t.code && x.group_code === t.groupCode)!;
@@ -73,7 +76,15 @@ export interface Made {
  * Protocols through the services: created by the lead, first pass saved and submitted, second pass
  * saved; with `reconcile` the second pass is submitted too (in review, `slips` open discrepancies each).
  */
-export async function makeProtocols(opts: { n: number; batteryCode?: string; second: string; reconcile: boolean; slips?: number; concurrency?: number; prefix?: string }): Promise<Made[]> {
+export async function makeProtocols(opts: {
+	n: number;
+	batteryCode?: string;
+	second: string;
+	reconcile: boolean;
+	slips?: number;
+	concurrency?: number;
+	prefix?: string;
+}): Promise<Made[]> {
 	const lead = await actor(EMAILS.lead);
 	const first = await actor(EMAILS.first);
 	const second = await actor(opts.second);
@@ -164,6 +175,9 @@ export async function ensure60FieldBattery(): Promise<string> {
 		);
 	}
 	const ns = await selectOne<{ norm_set_id: number }>(`SELECT norm_set_id FROM batteries WHERE code = 'core-adult'`);
-	await createBattery({ code: BENCH60, name: 'Bench battery, 60 fields', description: 'Invented for bench:pages', norm_set_id: ns?.norm_set_id ?? null, tests: codes }, lead.id);
+	await createBattery(
+		{ code: BENCH60, name: 'Bench battery, 60 fields', description: 'Invented for bench:pages', norm_set_id: ns?.norm_set_id ?? null, tests: codes },
+		lead.id
+	);
 	return BENCH60;
 }

@@ -57,7 +57,10 @@ async function signedIn(email: string) {
 	return [...c.cookies].map(([k, v]) => `${k}=${v}`).join('; ');
 }
 
-function cannon(route: string, opts: { path: string; cookie: string; method?: string; bodies?: Array<{ path: string; body: string }>; amount?: number; duration?: number }): Promise<Figures> {
+function cannon(
+	route: string,
+	opts: { path: string; cookie: string; method?: string; bodies?: Array<{ path: string; body: string }>; amount?: number; duration?: number }
+): Promise<Figures> {
 	return new Promise((resolve, reject) => {
 		const times: number[] = [];
 		let next = 0;
@@ -113,7 +116,9 @@ async function main() {
 	const reviewed = await F.makeProtocols({ n: Math.ceil((RESOLUTIONS + 20) / SLIPS), second: F.EMAILS.second2, reconcile: true, slips: SLIPS, prefix: 'BH-R' });
 	const open = await F.openDiscrepancies(reviewed.map((p) => p.id));
 	const profSubmit = await F.makeProtocols({ n: PROFILED, second: F.EMAILS.second, reconcile: false, prefix: 'BH-PS' });
-	const profOpen = await F.openDiscrepancies((await F.makeProtocols({ n: Math.ceil(PROFILED / SLIPS) + 1, second: F.EMAILS.second2, reconcile: true, slips: SLIPS, prefix: 'BH-PR' })).map((p) => p.id));
+	const profOpen = await F.openDiscrepancies(
+		(await F.makeProtocols({ n: Math.ceil(PROFILED / SLIPS) + 1, second: F.EMAILS.second2, reconcile: true, slips: SLIPS, prefix: 'BH-PR' })).map((p) => p.id)
+	);
 	log(`fixtures made in ${((performance.now() - t) / 1000).toFixed(1)} s (${open.length} open discrepancies)`);
 	if (open.length < RESOLUTIONS) log(`only ${open.length} open discrepancies: the resolution run is shorter`);
 
@@ -135,7 +140,9 @@ async function main() {
 	const run = async (f: Promise<Figures>) => {
 		const r = await f;
 		results.push(r);
-		log(`${r.route.padEnd(28)} ${String(r.requests).padStart(6)} req  ${String(r.rps).padStart(5)} req/s  p50 ${r.p50} ms  p95 ${r.p95} ms  p99 ${r.p99} ms${r.non2xx ? `  NON-2XX ${r.non2xx}` : ''}`);
+		log(
+			`${r.route.padEnd(28)} ${String(r.requests).padStart(6)} req  ${String(r.rps).padStart(5)} req/s  p50 ${r.p50} ms  p95 ${r.p95} ms  p99 ${r.p99} ms${r.non2xx ? `  NON-2XX ${r.non2xx}` : ''}`
+		);
 		return r;
 	};
 	// The machine is shared: each route is measured right after its own floor run (same cookie,
@@ -146,7 +153,15 @@ async function main() {
 	// cookie costs the JWT decode, the session-version check and, near its refresh point, a re-issue).
 	const anonymous = await run(cannon('GET /health (anonymous)', { path: '/health', cookie: '' }));
 	const signedInHealth = await run(cannon('GET /health signed in', { path: '/health', cookie: scorer }));
-	goals.push({ route: signedInHealth.route, p95: signedInHealth.p95, floor_p95: anonymous.p95, floor: 'anonymous /health', goal: 1.5, ratio: r2(signedInHealth.p95 / anonymous.p95), met: signedInHealth.p95 / anonymous.p95 <= 1.5 });
+	goals.push({
+		route: signedInHealth.route,
+		p95: signedInHealth.p95,
+		floor_p95: anonymous.p95,
+		floor: 'anonymous /health',
+		goal: 1.5,
+		ratio: r2(signedInHealth.p95 / anonymous.p95),
+		met: signedInHealth.p95 / anonymous.p95 <= 1.5
+	});
 	const measured = async (goal: number, label: string, f: () => Promise<Figures>) => {
 		const floor = await floorRun(label);
 		const r = await run(f());
@@ -155,19 +170,35 @@ async function main() {
 	await measured(3, 'w1', () => cannon('GET /api/v1/worklist scorer', { path: '/api/v1/worklist', cookie: scorer }));
 	await measured(3, 'w2', () => cannon('GET /api/v1/worklist reviewer', { path: '/api/v1/worklist', cookie: reviewer }));
 	await measured(2, 'r', () =>
-		cannon('PATCH discrepancy', { path: '/api/v1/discrepancies/0', cookie: reviewer, method: 'PATCH', amount: patchBodies.length - W, bodies: patchBodies.slice(W) })
+		cannon('PATCH discrepancy', {
+			path: '/api/v1/discrepancies/0',
+			cookie: reviewer,
+			method: 'PATCH',
+			amount: patchBodies.length - W,
+			bodies: patchBodies.slice(W)
+		})
 	);
 	await measured(4, 's', () =>
-		cannon('POST second submit', { path: '/api/v1/protocols/0/pass', cookie: scorer, method: 'POST', amount: submitBodies.length - W, bodies: submitBodies.slice(W) })
+		cannon('POST second submit', {
+			path: '/api/v1/protocols/0/pass',
+			cookie: scorer,
+			method: 'POST',
+			amount: submitBodies.length - W,
+			bodies: submitBodies.slice(W)
+		})
 	);
 	const floors = goals.filter((g) => !g.floor);
 	const floorP95 = r2(floors.reduce((n, g) => n + g.floor_p95, 0) / floors.length);
 
 	console.log(`\nHTTP on loopback, ${CONNECTIONS} connections, ${env.cores} cores, ${env.date.slice(0, 10)}`);
-	console.log(`${'route'.padEnd(30)}${'req'.padStart(7)}${'req/s'.padStart(8)}${'p50'.padStart(9)}${'p95'.padStart(9)}${'p99'.padStart(9)}  ratio p95 / adjacent health p95`);
+	console.log(
+		`${'route'.padEnd(30)}${'req'.padStart(7)}${'req/s'.padStart(8)}${'p50'.padStart(9)}${'p95'.padStart(9)}${'p99'.padStart(9)}  ratio p95 / adjacent health p95`
+	);
 	for (const r of results) {
 		const g = goals.find((x) => x.route === r.route);
-		console.log(`${r.route.padEnd(30)}${String(r.requests).padStart(7)}${String(r.rps).padStart(8)}${r.p50.toFixed(1).padStart(9)}${r.p95.toFixed(1).padStart(9)}${r.p99.toFixed(1).padStart(9)}  ${g ? `${g.ratio} (goal ≤ ${g.goal}: ${g.met ? 'met' : 'NOT met'})` : ''}`);
+		console.log(
+			`${r.route.padEnd(30)}${String(r.requests).padStart(7)}${String(r.rps).padStart(8)}${r.p50.toFixed(1).padStart(9)}${r.p95.toFixed(1).padStart(9)}${r.p99.toFixed(1).padStart(9)}  ${g ? `${g.ratio} (goal ≤ ${g.goal}: ${g.met ? 'met' : 'NOT met'})` : ''}`
+		);
 	}
 	// Where a transaction's time goes: the same services in this process, CONNECTIONS at a time (as
 	// the HTTP runs), every SQL statement timed (Sequelize's benchmark logging). "JS and waiting" is
@@ -190,17 +221,37 @@ async function main() {
 		const n = walls.length;
 		const wall = walls.reduce((a, b) => a + b, 0);
 		const inSql = statements.reduce((a, x) => a + x.total_ms, 0);
-		console.log(`\n${label}: ${n} transactions, ${CONNECTIONS} at a time; wall p50 ${pct(walls, 50).toFixed(1)} ms, p95 ${pct(walls, 95).toFixed(1)} ms; ${(statements.reduce((a, x) => a + x.count, 0) / n).toFixed(1)} statements each`);
+		console.log(
+			`\n${label}: ${n} transactions, ${CONNECTIONS} at a time; wall p50 ${pct(walls, 50).toFixed(1)} ms, p95 ${pct(walls, 95).toFixed(1)} ms; ${(statements.reduce((a, x) => a + x.count, 0) / n).toFixed(1)} statements each`
+		);
 		console.log(`${'statement'.padEnd(34)}${'per tx'.padStart(8)}${'mean ms'.padStart(9)}${'p95 ms'.padStart(9)}${'share'.padStart(8)}`);
-		for (const x of statements) console.log(`${x.statement.padEnd(34)}${(x.count / n).toFixed(1).padStart(8)}${x.mean_ms.toFixed(2).padStart(9)}${x.p95_ms.toFixed(1).padStart(9)}${`${Math.round((100 * x.total_ms) / wall)} %`.padStart(8)}`);
-		console.log(`${'JS and waiting (wall − SQL)'.padEnd(34)}${''.padStart(8)}${((wall - inSql) / n).toFixed(2).padStart(9)}${''.padStart(9)}${`${Math.round((100 * (wall - inSql)) / wall)} %`.padStart(8)}`);
-		return { transactions: n, wall_p50_ms: r2(pct(walls, 50)), wall_p95_ms: r2(pct(walls, 95)), statements_per_tx: r2(statements.reduce((a, x) => a + x.count, 0) / n), js_and_waiting_ms_per_tx: r2((wall - inSql) / n), statements };
+		for (const x of statements)
+			console.log(
+				`${x.statement.padEnd(34)}${(x.count / n).toFixed(1).padStart(8)}${x.mean_ms.toFixed(2).padStart(9)}${x.p95_ms.toFixed(1).padStart(9)}${`${Math.round((100 * x.total_ms) / wall)} %`.padStart(8)}`
+			);
+		console.log(
+			`${'JS and waiting (wall − SQL)'.padEnd(34)}${''.padStart(8)}${((wall - inSql) / n).toFixed(2).padStart(9)}${''.padStart(9)}${`${Math.round((100 * (wall - inSql)) / wall)} %`.padStart(8)}`
+		);
+		return {
+			transactions: n,
+			wall_p50_ms: r2(pct(walls, 50)),
+			wall_p95_ms: r2(pct(walls, 95)),
+			statements_per_tx: r2(statements.reduce((a, x) => a + x.count, 0) / n),
+			js_and_waiting_ms_per_tx: r2((wall - inSql) / n),
+			statements
+		};
 	};
 	const scorerActor = await F.actor(F.EMAILS.second);
 	const reviewerActor = await F.actor(F.EMAILS.reviewer);
 	const profiles = {
-		submit: await profile('Second submit, per statement (in process)', profSubmit.map((p) => () => submitPass(p.id, scorerActor, { draftVersion: p.secondDraftVersion }))),
-		resolve: await profile('Resolution, per statement (in process)', profOpen.slice(0, PROFILED).map((d) => () => resolveDiscrepancy(d.id, reviewerActor, d.body)))
+		submit: await profile(
+			'Second submit, per statement (in process)',
+			profSubmit.map((p) => () => submitPass(p.id, scorerActor, { draftVersion: p.secondDraftVersion }))
+		),
+		resolve: await profile(
+			'Resolution, per statement (in process)',
+			profOpen.slice(0, PROFILED).map((d) => () => resolveDiscrepancy(d.id, reviewerActor, d.body))
+		)
 	};
 
 	const bad = results.filter((r) => r.non2xx || r.errors);

@@ -27,7 +27,13 @@ export function loadBenchEnv(name: string): void {
 export const baseUrl = () => process.env.ORIGIN ?? `http://localhost:${process.env.PORT ?? 3071}`;
 
 export function machine() {
-	return { cores: os.cpus().length, cpu: os.cpus()[0]?.model ?? '?', mem_gb: Math.round(os.totalmem() / 2 ** 30), node: process.version, date: new Date().toISOString() };
+	return {
+		cores: os.cpus().length,
+		cpu: os.cpus()[0]?.model ?? '?',
+		mem_gb: Math.round(os.totalmem() / 2 ** 30),
+		node: process.version,
+		date: new Date().toISOString()
+	};
 }
 
 /** Print the BENCH_JSON line and write the full result to .bench/<name>.json. */

@@ -137,7 +137,11 @@ async function tearDown(s: Awaited<ReturnType<typeof setUp>>, savedSetting: unkn
 	await exec(`DELETE FROM tests WHERE id = :id`, { id: s.testId });
 	await exec(`DELETE FROM users WHERE id IN (:ids)`, { ids: s.users });
 	if (savedSetting === null) await exec(`DELETE FROM settings WHERE name = :n`, { n: REVIEW_MAIL_SETTING });
-	else await exec(`UPDATE settings SET value = :v WHERE name = :n`, { n: REVIEW_MAIL_SETTING, v: typeof savedSetting === 'string' ? savedSetting : JSON.stringify(savedSetting) });
+	else
+		await exec(`UPDATE settings SET value = :v WHERE name = :n`, {
+			n: REVIEW_MAIL_SETTING,
+			v: typeof savedSetting === 'string' ? savedSetting : JSON.stringify(savedSetting)
+		});
 }
 
 function startWorkers(): Promise<ChildProcess[]> {

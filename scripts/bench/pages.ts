@@ -32,7 +32,16 @@ async function main() {
 	const browser = await chromium.launch({
 		executablePath: process.env.CHROMIUM_PATH ?? '/usr/bin/chromium',
 		headless: true,
-		args: ['--headless', '--no-sandbox', '--disable-gpu', '--disable-quic', '--disable-background-networking', '--disable-component-update', '--disable-sync', '--no-first-run']
+		args: [
+			'--headless',
+			'--no-sandbox',
+			'--disable-gpu',
+			'--disable-quic',
+			'--disable-background-networking',
+			'--disable-component-update',
+			'--disable-sync',
+			'--no-first-run'
+		]
 	});
 	const contextFor = async (email: string) => {
 		const ctx = await browser.newContext({ viewport: { width: 1280, height: 900 }, bypassCSP: true });
@@ -60,7 +69,13 @@ async function main() {
 		const scripts = new Map<string, Promise<number>>();
 		page.on('response', (res) => {
 			if (res.request().resourceType() === 'script' || /\.m?js(\?|$)/.test(res.url())) {
-				scripts.set(res.url(), res.body().then((b) => gzipSync(b, { level: 9 }).length, () => 0));
+				scripts.set(
+					res.url(),
+					res.body().then(
+						(b) => gzipSync(b, { level: 9 }).length,
+						() => 0
+					)
+				);
 			}
 		});
 		await page.goto(BASE + path, { waitUntil: 'commit' });
@@ -73,16 +88,31 @@ async function main() {
 		const shifts = (await page.evaluate('window.__shifts')) as unknown[];
 		if (cls > 0.01) log(`${path}: layout shifts ${JSON.stringify(shifts)}`);
 		const sizes = await Promise.all(scripts.values());
-		const fonts = (await page.evaluate(() => performance.getEntriesByType('resource').filter((e) => /\.woff2?$/.test(e.name)).map((e) => e.name.split('/').pop()))) as string[];
+		const fonts = (await page.evaluate(() =>
+			performance
+				.getEntriesByType('resource')
+				.filter((e) => /\.woff2?$/.test(e.name))
+				.map((e) => e.name.split('/').pop())
+		)) as string[];
 		return { page, tti, cls, jsGzip: sizes.reduce((a, b) => a + b, 0), jsFiles: sizes.length, fonts };
 	}
 
 	const pages = [
-		{ name: 'Entry (60 fields)', ctx: scorer, path: `/protocols/${entry.id}/entry`, ready: `document.activeElement && document.activeElement.tagName === 'INPUT'` },
+		{
+			name: 'Entry (60 fields)',
+			ctx: scorer,
+			path: `/protocols/${entry.id}/entry`,
+			ready: `document.activeElement && document.activeElement.tagName === 'INPUT'`
+		},
 		{ name: 'Review', ctx: reviewer, path: `/protocols/${reviewed.id}/review`, ready: `document.readyState === 'complete'` },
 		{ name: 'Summary', ctx: reviewer, path: `/protocols/${reviewed.id}/summary`, ready: `document.readyState === 'complete'` },
 		{ name: 'Audit', ctx: lead, path: `/audit`, ready: `document.readyState === 'complete'` },
-		{ name: 'Sign-in (floor)', ctx: await browser.newContext({ viewport: { width: 1280, height: 900 }, bypassCSP: true }), path: `/signin`, ready: `document.activeElement && document.activeElement.id === 'email' && document.readyState === 'complete'` }
+		{
+			name: 'Sign-in (floor)',
+			ctx: await browser.newContext({ viewport: { width: 1280, height: 900 }, bypassCSP: true }),
+			path: `/signin`,
+			ready: `document.activeElement && document.activeElement.id === 'email' && document.readyState === 'complete'`
+		}
 	];
 	const rows: Array<{ page: string; js_gzip_bytes: number; js_files: number; cls: number; tti_ms: number; fonts: string[] }> = [];
 	for (const p of pages) {
@@ -95,7 +125,14 @@ async function main() {
 			else await r.page.close();
 		}
 		await first!.page.close();
-		rows.push({ page: p.name, js_gzip_bytes: first!.jsGzip, js_files: first!.jsFiles, cls: Number(first!.cls.toFixed(4)), tti_ms: r1(median(ttis)), fonts: first!.fonts });
+		rows.push({
+			page: p.name,
+			js_gzip_bytes: first!.jsGzip,
+			js_files: first!.jsFiles,
+			cls: Number(first!.cls.toFixed(4)),
+			tti_ms: r1(median(ttis)),
+			fonts: first!.fonts
+		});
 		log(`${p.name}: ${(first!.jsGzip / 1024).toFixed(1)} KB gzip in ${first!.jsFiles} files, CLS ${first!.cls.toFixed(4)}, ready ${r1(median(ttis))} ms`);
 	}
 
@@ -107,7 +144,13 @@ async function main() {
 	await page.evaluate(() => {
 		const w = window as unknown as { __k: number; __moves: Array<{ sync: number; frame: number }> };
 		w.__moves = [];
-		window.addEventListener('keydown', (e) => { if (e.key === 'Enter') w.__k = performance.now(); }, true);
+		window.addEventListener(
+			'keydown',
+			(e) => {
+				if (e.key === 'Enter') w.__k = performance.now();
+			},
+			true
+		);
 		window.addEventListener('focusin', () => {
 			if (!w.__k) return;
 			const sync = performance.now() - w.__k;
@@ -133,19 +176,44 @@ async function main() {
 		fields: ids.length,
 		moves: moves.length,
 		focus_median_ms: r2(median(moves.map((m) => m.sync))),
-		focus_p95_ms: r2(pct(moves.map((m) => m.sync), 95)),
+		focus_p95_ms: r2(
+			pct(
+				moves.map((m) => m.sync),
+				95
+			)
+		),
 		frame_median_ms: r2(median(moves.map((m) => m.frame))),
-		frame_p95_ms: r2(pct(moves.map((m) => m.frame), 95))
+		frame_p95_ms: r2(
+			pct(
+				moves.map((m) => m.frame),
+				95
+			)
+		)
 	};
 	console.log(`\nPages in Chromium, ${env.cores} cores, ${env.date.slice(0, 10)}`);
 	console.log(`${'page'.padEnd(20)}${'JS gzip KB'.padStart(11)}${'files'.padStart(7)}${'CLS'.padStart(8)}${'ready ms'.padStart(10)}`);
-	for (const r of rows) console.log(`${r.page.padEnd(20)}${(r.js_gzip_bytes / 1024).toFixed(1).padStart(11)}${String(r.js_files).padStart(7)}${r.cls.toFixed(3).padStart(8)}${r.tti_ms.toFixed(0).padStart(10)}`);
-	console.log(`Entry JS: ${(entryRow.js_gzip_bytes / 1024).toFixed(1)} KB gzip (goal < 100 KB: ${entryRow.js_gzip_bytes < 100 * 1024 ? 'met' : 'NOT met'}); TTI ${entryRow.tti_ms} ms = ${r2(entryRow.tti_ms / floor.tti_ms)} × sign-in`);
-	console.log(`Enter → next field (${keystroke.fields} fields): focus median ${keystroke.focus_median_ms} ms (p95 ${keystroke.focus_p95_ms}), next frame median ${keystroke.frame_median_ms} ms (p95 ${keystroke.frame_p95_ms})`);
+	for (const r of rows)
+		console.log(
+			`${r.page.padEnd(20)}${(r.js_gzip_bytes / 1024).toFixed(1).padStart(11)}${String(r.js_files).padStart(7)}${r.cls.toFixed(3).padStart(8)}${r.tti_ms.toFixed(0).padStart(10)}`
+		);
+	console.log(
+		`Entry JS: ${(entryRow.js_gzip_bytes / 1024).toFixed(1)} KB gzip (goal < 100 KB: ${entryRow.js_gzip_bytes < 100 * 1024 ? 'met' : 'NOT met'}); TTI ${entryRow.tti_ms} ms = ${r2(entryRow.tti_ms / floor.tti_ms)} × sign-in`
+	);
+	console.log(
+		`Enter → next field (${keystroke.fields} fields): focus median ${keystroke.focus_median_ms} ms (p95 ${keystroke.focus_p95_ms}), next frame median ${keystroke.frame_median_ms} ms (p95 ${keystroke.frame_p95_ms})`
+	);
 	emit('pages', {
 		...env,
 		pages: rows,
-		entry: { js_gzip_kb: r1(entryRow.js_gzip_bytes / 1024), goal_kb: 100, met: entryRow.js_gzip_bytes < 100 * 1024, tti_ms: entryRow.tti_ms, floor_tti_ms: floor.tti_ms, tti_ratio: r2(entryRow.tti_ms / floor.tti_ms), cls: entryRow.cls },
+		entry: {
+			js_gzip_kb: r1(entryRow.js_gzip_bytes / 1024),
+			goal_kb: 100,
+			met: entryRow.js_gzip_bytes < 100 * 1024,
+			tti_ms: entryRow.tti_ms,
+			floor_tti_ms: floor.tti_ms,
+			tti_ratio: r2(entryRow.tti_ms / floor.tti_ms),
+			cls: entryRow.cls
+		},
 		keystroke
 	});
 }

@@ -65,9 +65,7 @@ const TESTS: TestDef[] = Array.from({ length: TESTS_PER_PROTOCOL }, (_, i) => ({
 	raw: { min: 0, max: 100, decimals: i % 4 === 0 ? 1 : 0 },
 	reported: i % 2 === 0 ? ['z', 'standard', 'scaled', 't', 'percentile'] : ['scaled', 'percentile']
 }));
-const NORMS: NormDef[] = TESTS.flatMap((t, i) =>
-	GROUPS.map((g, gi) => ({ test: t.id, group: g, mean: 30 + i * 2 - gi * 1.5, sd: 5 + (i % 5) + gi * 0.3 }))
-);
+const NORMS: NormDef[] = TESTS.flatMap((t, i) => GROUPS.map((g, gi) => ({ test: t.id, group: g, mean: 30 + i * 2 - gi * 1.5, sd: 5 + (i % 5) + gi * 0.3 })));
 
 function slip(field: string, v: number): number | string | null {
 	switch (pick(['transpose', 'sign', 'missing', 'digit', 'shift', 'off_by_one'] as const)) {
@@ -123,8 +121,20 @@ function makeProtocol(): ReconcileInput {
 // ---------------------------------------------------------------- the second batch: tables, regression, bands, composites
 
 const F_TESTS: TestDef[] = Array.from({ length: TESTS_PER_PROTOCOL }, (_, i) => {
-	if (i < 6) return { id: `sub-${i}`, direction: 'higher_better', raw: { min: 0, max: 40 + i * 4, decimals: 0 }, reported: i % 2 === 0 ? ['scaled', 'percentile'] : ['scaled'] };
-	if (i < 8) return { id: `reg-${i}`, direction: i === 7 ? 'lower_better' : 'higher_better', raw: { min: 0, max: 120, decimals: 0 }, reported: ['z', 'standard', 't', 'percentile'] };
+	if (i < 6)
+		return {
+			id: `sub-${i}`,
+			direction: 'higher_better',
+			raw: { min: 0, max: 40 + i * 4, decimals: 0 },
+			reported: i % 2 === 0 ? ['scaled', 'percentile'] : ['scaled']
+		};
+	if (i < 8)
+		return {
+			id: `reg-${i}`,
+			direction: i === 7 ? 'lower_better' : 'higher_better',
+			raw: { min: 0, max: 120, decimals: 0 },
+			reported: ['z', 'standard', 't', 'percentile']
+		};
 	if (i === 8) return { id: 'errors', direction: 'lower_better', raw: { min: 0, max: 40, decimals: 0 }, reported: ['percentile'] };
 	return { id: 'plain', direction: 'higher_better', raw: { min: 0, max: 60, decimals: 1 }, reported: ['z', 'standard', 'percentile'] };
 });
@@ -134,23 +144,47 @@ const COVARIATES = { age: 52, education: 12, sex: 1 };
 /** An invented scaled-score table: rows of one to three raw points, scores 1–19 rising with the raw score. */
 function scaledTable(max: number, shift: number, withPct: boolean): { raw: [number, number]; score: number; percentile?: number | string }[] {
 	const rows: { raw: [number, number]; score: number; percentile?: number | string }[] = [];
-	for (let lo = 0; lo <= max; ) {
+	for (let lo = 0; lo <= max;) {
 		const hi = Math.min(max, lo + ((lo + shift) % 3));
 		const score = Math.min(19, 1 + Math.floor((18 * lo) / (max + 1)) + (shift % 2));
 		rows.push({ raw: [lo, hi], score });
 		lo = hi + 1;
 	}
-	if (withPct) for (const r of rows) r.percentile = r.score <= 2 ? '<1' : r.score >= 18 ? '>99' : Math.min(99, Math.max(1, Math.round(100 / (1 + Math.exp(-(r.score - 10) / 1.7)))));
+	if (withPct)
+		for (const r of rows)
+			r.percentile = r.score <= 2 ? '<1' : r.score >= 18 ? '>99' : Math.min(99, Math.max(1, Math.round(100 / (1 + Math.exp(-(r.score - 10) / 1.7)))));
 	return rows;
 }
 
 const F_NORMS: AnyNormEntry[] = F_TESTS.flatMap((t, i): AnyNormEntry[] =>
 	GROUPS.map((g, gi): NormEntry => {
 		if (i < 6) return { test: t.id, group: g, form: 'table', scale: 'scaled', rows: scaledTable(t.raw.max, gi + i, i < 2) };
-		if (i < 8) return { test: t.id, group: g, form: 'regression', intercept: 40 + gi * 3, coefficients: { age: -0.2 + gi * 0.02, education: 1.1, sex: 0.8 * (i - 6) }, sd: 9 + gi };
+		if (i < 8)
+			return {
+				test: t.id,
+				group: g,
+				form: 'regression',
+				intercept: 40 + gi * 3,
+				coefficients: { age: -0.2 + gi * 0.02, education: 1.1, sex: 0.8 * (i - 6) },
+				sd: 9 + gi
+			};
 		if (i === 8) {
-			const cuts = [[0, 0], [1, 2], [3, 5], [6, 9], [10, 14], [15, 20 + gi], [21 + gi, 40]];
-			return { test: t.id, group: g, form: 'table', scale: 'percentile', rows: cuts.map(([a, b], k) => ({ raw: [a, b] as [number, number], percentile: BANDS[k] })) };
+			const cuts = [
+				[0, 0],
+				[1, 2],
+				[3, 5],
+				[6, 9],
+				[10, 14],
+				[15, 20 + gi],
+				[21 + gi, 40]
+			];
+			return {
+				test: t.id,
+				group: g,
+				form: 'table',
+				scale: 'percentile',
+				rows: cuts.map(([a, b], k) => ({ raw: [a, b] as [number, number], percentile: BANDS[k] }))
+			};
 		}
 		return { test: t.id, group: g, mean: 31 - gi, sd: 7.5 };
 	})
@@ -162,7 +196,8 @@ const F_COMPOSITES: CompositeDef[] = [
 const C_NORMS: CompositeNormEntry[] = GROUPS.flatMap((g, gi): CompositeNormEntry[] => {
 	const [lo, hi] = compositeSpan(F_COMPOSITES[1], F_TESTS);
 	const rows: { sum: [number, number]; score: number }[] = [];
-	for (let s = lo; s <= hi; s += 2) rows.push({ sum: [s, Math.min(hi, s + 1)], score: Math.min(160, Math.max(40, Math.round(100 + (15 * (s - 30 - gi)) / 7.5))) });
+	for (let s = lo; s <= hi; s += 2)
+		rows.push({ sum: [s, Math.min(hi, s + 1)], score: Math.min(160, Math.max(40, Math.round(100 + (15 * (s - 30 - gi)) / 7.5))) });
 	return [
 		{ composite: 'verbal-index', group: g, mean: 30 + gi, sd: 7.5 },
 		{ composite: 'speed-index', group: g, form: 'table', scale: 'standard', rows }
@@ -198,7 +233,12 @@ function formsProtocol(): ReconcileInput {
 						const nb = norm.rows[at + (rand() < 0.5 ? -1 : 1)];
 						if (nb) other = (testReferences(t, norm, nb.raw[0], COVARIATES) as Record<string, Entered>)[fld];
 					} else if (norm.form === 'table') {
-						other = (testReferences(t, F_NORMS.find((n) => !('composite' in n) && n.test === t.id && n.group !== group) as NormEntry, r, COVARIATES) as Record<string, Entered>)[fld];
+						other = (
+							testReferences(t, F_NORMS.find((n) => !('composite' in n) && n.test === t.id && n.group !== group) as NormEntry, r, COVARIATES) as Record<
+								string,
+								Entered
+							>
+						)[fld];
 					}
 					v = other ?? (typeof v === 'number' ? slip(fld, v) : '10-24');
 				}
@@ -333,8 +373,12 @@ console.log(`  ${fields} fields compared, ${discrepancies} discrepancies (${(100
 console.log(`  engine alone:               ${result.engine_ms} ms  (${result.engine_protocols_per_s} protocols/s)`);
 console.log(`  JSON.parse + JSON.stringify: ${result.floor_ms} ms  (${result.floor_protocols_per_s} protocols/s)`);
 console.log(`  ratio engine / floor:        ${result.ratio}  (goal ≤ ${result.goal_ratio}: ${result.ratio <= 3 ? 'met' : 'NOT met'})`);
-console.log(`tables, regression, bands, composites: ${forms.protocols} protocols × ${TESTS_PER_PROTOCOL} tests + ${F_COMPOSITES.length} composites, ${(forms.input_bytes / 1e6).toFixed(1)} MB of JSON`);
-console.log(`  ${forms.fields_compared} fields compared, ${forms.discrepancies} discrepancies (${((100 * forms.discrepancies) / forms.fields_compared).toFixed(1)} %)`);
+console.log(
+	`tables, regression, bands, composites: ${forms.protocols} protocols × ${TESTS_PER_PROTOCOL} tests + ${F_COMPOSITES.length} composites, ${(forms.input_bytes / 1e6).toFixed(1)} MB of JSON`
+);
+console.log(
+	`  ${forms.fields_compared} fields compared, ${forms.discrepancies} discrepancies (${((100 * forms.discrepancies) / forms.fields_compared).toFixed(1)} %)`
+);
 console.log(`  kinds (first 2000 protocols): ${[...kindsSeen].map(([k, n]) => `${k} ${n}`).join(', ')}`);
 console.log(`  engine alone:               ${result.forms.engine_ms} ms  (${result.forms.engine_protocols_per_s} protocols/s)`);
 console.log(`  JSON.parse + JSON.stringify: ${result.forms.floor_ms} ms`);

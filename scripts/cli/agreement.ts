@@ -13,12 +13,7 @@
  * Unknown keys, at the top level or inside a section, are bad input.
  */
 import type { Readable, Writable } from 'node:stream';
-import {
-	AgreementInputError,
-	blandAltman,
-	cohenKappa,
-	intraclassCorrelation
-} from '../../src/lib/scoring/agreement';
+import { AgreementInputError, blandAltman, cohenKappa, intraclassCorrelation } from '../../src/lib/scoring/agreement';
 import { parseAgreementInput } from '../../src/lib/scoring/agreement-schema';
 
 /** At most this many problems are listed; the rest are counted. */

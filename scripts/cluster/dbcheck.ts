@@ -15,7 +15,10 @@ async function state(n: number): Promise<string> {
 	let conn: mariadb.Connection | null = null;
 	try {
 		conn = await mariadb.createConnection({ socketPath: join(runDir, `db${n}.sock`), user: 'root', password: '', connectTimeout: 800 });
-		const rows = (await conn.query("SHOW STATUS WHERE Variable_name IN ('wsrep_local_state_comment', 'wsrep_ready')")) as { Variable_name: string; Value: string }[];
+		const rows = (await conn.query("SHOW STATUS WHERE Variable_name IN ('wsrep_local_state_comment', 'wsrep_ready')")) as {
+			Variable_name: string;
+			Value: string;
+		}[];
 		const v = Object.fromEntries(rows.map((r) => [r.Variable_name, r.Value]));
 		return v.wsrep_ready === 'ON' ? v.wsrep_local_state_comment : `${v.wsrep_local_state_comment ?? 'unknown'} (not ready)`;
 	} catch (e) {

@@ -81,7 +81,16 @@ async function signedAt(base: string, email: string): Promise<AnyClient> {
 const at = (c: AnyClient, base: string): AnyClient => Object.assign(Object.create(Object.getPrototypeOf(c)), c, { base });
 
 function nodeConn(n: number) {
-	return mariadb.createConnection({ host: '127.0.0.1', port: B + n, user: process.env.DB_USER, password: process.env.DB_PASSWORD, database: process.env.DB_NAME, connectTimeout: 1500, bigIntAsNumber: true, decimalAsNumber: true });
+	return mariadb.createConnection({
+		host: '127.0.0.1',
+		port: B + n,
+		user: process.env.DB_USER,
+		password: process.env.DB_PASSWORD,
+		database: process.env.DB_NAME,
+		connectTimeout: 1500,
+		bigIntAsNumber: true,
+		decimalAsNumber: true
+	});
 }
 
 // ---------------------------------------------------------------- during the load: the stops
@@ -129,13 +138,19 @@ async function stopDb(lead: AnyClient) {
 	const starting = cluster('start-db', String(n));
 	// while it joins: what the lead sees, and what the node itself answers
 	let joined = false;
-	starting.then(() => (joined = true), () => (joined = true));
+	starting.then(
+		() => (joined = true),
+		() => (joined = true)
+	);
 	let samples = 0;
 	while (!joined && samples < 60) {
 		await sleep(1500);
 		if (joined) break;
 		samples++;
-		if (samples <= 2 || samples % 12 === 0) rejoinView.push(`db${n} joining (+${((Date.now() - startedAt) / 1000).toFixed(1)} s): lead's audit page ${await leadView(lead)}; db${n} direct ${await directRead(n)}`);
+		if (samples <= 2 || samples % 12 === 0)
+			rejoinView.push(
+				`db${n} joining (+${((Date.now() - startedAt) / 1000).toFixed(1)} s): lead's audit page ${await leadView(lead)}; db${n} direct ${await directRead(n)}`
+			);
 	}
 	const { stdout } = await starting;
 	const restartSeconds = Number(stdout.trim().split('\n').pop());
@@ -181,8 +196,15 @@ async function doubleSubmits(lead: AnyClient, first: AnyClient, second: AnyClien
 	const results: { id: number; statuses: number[]; reconciles: number; submits: number; discrepancies: number; engine: number | null; outbox: number }[] = [];
 	for (let i = 0; i < DOUBLES; i++) {
 		const created = await lead.action('/protocols/new', {
-			code: `CL-DBL-${Date.now().toString(36)}-${i}`.toUpperCase(), birthDate: '1988-05-17', sex: 'F', educationYears: '14', batteryId: String(battery), testDate: '2026-11-20',
-			firstScorerId: String(ids.a), secondScorerId: String(ids.b), reviewerId: String(ids.r)
+			code: `CL-DBL-${Date.now().toString(36)}-${i}`.toUpperCase(),
+			birthDate: '1988-05-17',
+			sex: 'F',
+			educationYears: '14',
+			batteryId: String(battery),
+			testDate: '2026-11-20',
+			firstScorerId: String(ids.a),
+			secondScorerId: String(ids.b),
+			reviewerId: String(ids.r)
 		});
 		const id = Number(String(created.body.location ?? '').match(/\/protocols\/(\d+)/)?.[1]);
 		if (!id) throw new Error(`double submit: could not create a protocol: ${JSON.stringify(created.body)}`);
@@ -194,7 +216,9 @@ async function doubleSubmits(lead: AnyClient, first: AnyClient, second: AnyClien
 		if (r1.status !== 200) throw new Error(`double submit: first pass of ${id}: ${r1.status}`);
 		const v2 = await submitPassOn(second, id, other);
 		// the one session, two app servers, two database nodes, at once
-		const rs = await Promise.all([at(second, APP(1)), at(second, APP(2))].map((c) => c.request(`/api/v1/protocols/${id}/pass`, { method: 'POST', json: { draftVersion: v2 } })));
+		const rs = await Promise.all(
+			[at(second, APP(1)), at(second, APP(2))].map((c) => c.request(`/api/v1/protocols/${id}/pass`, { method: 'POST', json: { draftVersion: v2 } }))
+		);
 		const bodies = await Promise.all(rs.map((r) => r.json().catch(() => ({}))));
 		const ok = bodies.find((_, j) => rs[j].status === 200) as { discrepancies?: number } | undefined;
 		const a = await selectOne<{ reconciles: number; submits: number }>(
@@ -202,13 +226,25 @@ async function doubleSubmits(lead: AnyClient, first: AnyClient, second: AnyClien
 			{ id }
 		);
 		const d = await selectOne<{ n: number }>('SELECT COUNT(*) AS n FROM discrepancies WHERE protocol_id = :id', { id });
-		const o = await selectOne<{ n: number }>("SELECT COUNT(*) AS n FROM outbox WHERE kind = 'review_first' AND payload LIKE :p", { p: `%"protocolId":${id},%` });
-		results.push({ id, statuses: rs.map((r) => r.status).sort(), reconciles: Number(a?.reconciles ?? 0), submits: Number(a?.submits ?? 0), discrepancies: Number(d?.n ?? 0), engine: ok?.discrepancies ?? null, outbox: Number(o?.n ?? 0) });
+		const o = await selectOne<{ n: number }>("SELECT COUNT(*) AS n FROM outbox WHERE kind = 'review_first' AND payload LIKE :p", {
+			p: `%"protocolId":${id},%`
+		});
+		results.push({
+			id,
+			statuses: rs.map((r) => r.status).sort(),
+			reconciles: Number(a?.reconciles ?? 0),
+			submits: Number(a?.submits ?? 0),
+			discrepancies: Number(d?.n ?? 0),
+			engine: ok?.discrepancies ?? null,
+			outbox: Number(o?.n ?? 0)
+		});
 	}
 	for (const r of results) {
 		if (r.statuses.join() !== '200,409') fail(`double submit of protocol ${r.id} on app1 + app2: ${r.statuses.join('/')} (want 200/409)`);
-		if (r.reconciles !== 1 || r.submits !== 1) fail(`double submit of protocol ${r.id}: ${r.reconciles} reconcile and ${r.submits} submit_second audit events (want 1 and 1)`);
-		if (r.engine === null || r.discrepancies !== r.engine) fail(`double submit of protocol ${r.id}: ${r.discrepancies} discrepancies stored, the engine said ${r.engine}`);
+		if (r.reconciles !== 1 || r.submits !== 1)
+			fail(`double submit of protocol ${r.id}: ${r.reconciles} reconcile and ${r.submits} submit_second audit events (want 1 and 1)`);
+		if (r.engine === null || r.discrepancies !== r.engine)
+			fail(`double submit of protocol ${r.id}: ${r.discrepancies} discrepancies stored, the engine said ${r.engine}`);
 	}
 	return results;
 }
@@ -223,12 +259,16 @@ async function mailExactlyOnce() {
 	type Row = { idempotency_key: string; kind: string; payload: unknown; dispatched_at: Date | null };
 	const load = async () => {
 		const rows = await select<Row>('SELECT idempotency_key, kind, payload, dispatched_at FROM outbox');
-		const sent = new Set((await select<{ idempotency_key: string }>("SELECT idempotency_key FROM mail_log WHERE status = 'sent'")).map((r) => r.idempotency_key));
+		const sent = new Set(
+			(await select<{ idempotency_key: string }>("SELECT idempotency_key FROM mail_log WHERE status = 'sent'")).map((r) => r.idempotency_key)
+		);
 		const inReview = new Set((await select<{ id: number }>("SELECT id FROM protocols WHERE status = 'in_review'")).map((r) => r.id));
 		const now = Date.now();
 		const payload = (r: Row) => (typeof r.payload === 'string' ? JSON.parse(r.payload) : r.payload) as { notBefore?: number; protocolId?: number };
 		const due = rows.filter((r) => !(Number(payload(r).notBefore ?? 0) > now));
-		const waiting = due.filter((r) => !sent.has(r.idempotency_key) && (r.kind === 'invite' || r.kind === 'reset' || inReview.has(Number(payload(r).protocolId))));
+		const waiting = due.filter(
+			(r) => !sent.has(r.idempotency_key) && (r.kind === 'invite' || r.kind === 'reset' || inReview.has(Number(payload(r).protocolId)))
+		);
 		return { rows, due, sent, waiting, undispatched: due.filter((r) => !r.dispatched_at).length };
 	};
 	const t0 = Date.now();
@@ -244,7 +284,9 @@ async function mailExactlyOnce() {
 		if (k) byKey.set(k, (byKey.get(k) ?? 0) + 1);
 	}
 	const outKeys = new Set(state.rows.map((r) => r.idempotency_key));
-	let duplicates = 0, notCaught = 0, skipped = 0;
+	let duplicates = 0,
+		notCaught = 0,
+		skipped = 0;
 	for (const r of state.due) {
 		const n = byKey.get(r.idempotency_key) ?? 0;
 		if (n > 1) duplicates += n - 1;
@@ -256,7 +298,13 @@ async function mailExactlyOnce() {
 	if (Number(uncertain?.n)) fail(`${uncertain?.n} message(s) left claimed mid-send ('sending': a worker stopped between claim and send)`);
 	if (duplicates) fail(`${duplicates} duplicate e-mail(s) in the mail fake's catch`);
 	if (notCaught) fail(`${notCaught} message(s) marked sent that the mail fake did not catch exactly once`);
-	if (state.waiting.length) fail(`${state.waiting.length} due outbox row(s) never delivered: ${state.waiting.slice(0, 5).map((r) => r.idempotency_key).join(', ')}`);
+	if (state.waiting.length)
+		fail(
+			`${state.waiting.length} due outbox row(s) never delivered: ${state.waiting
+				.slice(0, 5)
+				.map((r) => r.idempotency_key)
+				.join(', ')}`
+		);
 	if (state.undispatched) fail(`${state.undispatched} due outbox row(s) never dispatched`);
 	if (strangers) fail(`${strangers} caught message key(s) with no outbox row`);
 	return {
@@ -320,7 +368,14 @@ async function sessionsAcross() {
 const IDLE_MINUTES = 0.2;
 let idleServers: Promise<unknown> | null = null;
 function startIdleServers() {
-	idleServers = Promise.all([3, 4].map((n) => sh('bash', [join(ROOT, 'scripts/cluster/cluster.sh'), 'start-app', String(n)], { cwd: ROOT, env: { ...process.env, APP_SESSION_IDLE_MINUTES: String(IDLE_MINUTES) } })));
+	idleServers = Promise.all(
+		[3, 4].map((n) =>
+			sh('bash', [join(ROOT, 'scripts/cluster/cluster.sh'), 'start-app', String(n)], {
+				cwd: ROOT,
+				env: { ...process.env, APP_SESSION_IDLE_MINUTES: String(IDLE_MINUTES) }
+			})
+		)
+	);
 	idleServers.catch(() => undefined);
 }
 async function idleAcross() {
@@ -331,13 +386,17 @@ async function idleAcross() {
 	const later4 = (await at(c, APP(4)).get('/api/v1/worklist')).status;
 	const later3 = (await at(c, APP(3)).get('/api/v1/worklist')).status;
 	if (fresh !== 200) fail(`idle check: a session made on app3 answers ${fresh} on app4`);
-	if (later3 !== 401 || later4 !== 401) fail(`idle logoff: after ${IDLE_MINUTES * 60 + 4} s unused the session answers ${later3} on app3 and ${later4} on app4 (want 401 on both)`);
+	if (later3 !== 401 || later4 !== 401)
+		fail(`idle logoff: after ${IDLE_MINUTES * 60 + 4} s unused the session answers ${later3} on app3 and ${later4} on app4 (want 401 on both)`);
 	return { idle_seconds: IDLE_MINUTES * 60, made_on_app3_used_on_app4: fresh, after_idle_on_app3: later3, after_idle_on_app4: later4 };
 }
 
 function countLogLines(pattern: RegExp) {
 	let n = 0;
-	for (const f of readdirSync(RUN).filter((x) => /^(app|worker)\d\.log$/.test(x))) n += readFileSync(join(RUN, f), 'utf8').split('\n').filter((l) => pattern.test(l)).length;
+	for (const f of readdirSync(RUN).filter((x) => /^(app|worker)\d\.log$/.test(x)))
+		n += readFileSync(join(RUN, f), 'utf8')
+			.split('\n')
+			.filter((l) => pattern.test(l)).length;
 	return n;
 }
 
@@ -345,7 +404,13 @@ async function haproxyRetries() {
 	const csv = await (await fetch(`http://127.0.0.1:${B + 81}/;csv`)).text();
 	const [head, ...rows] = csv.trim().split('\n');
 	const cols = head.replace(/^# /, '').split(',');
-	const i = { px: cols.indexOf('pxname'), sv: cols.indexOf('svname'), retr: cols.indexOf('wretr'), redis: cols.indexOf('wredis'), e5: cols.indexOf('hrsp_5xx') };
+	const i = {
+		px: cols.indexOf('pxname'),
+		sv: cols.indexOf('svname'),
+		retr: cols.indexOf('wretr'),
+		redis: cols.indexOf('wredis'),
+		e5: cols.indexOf('hrsp_5xx')
+	};
 	const out: Record<string, { retries: number; redispatches: number; http_5xx: number }> = {};
 	for (const r of rows.map((x) => x.split(','))) {
 		if (r[i.sv] === 'BACKEND' || r[i.sv] === 'FRONTEND') continue;
@@ -361,11 +426,15 @@ async function main() {
 	log(`load test: ${USERS} users for ${DURATION} s through ${LB}; stops ${SIGNAL}: db${STOP_DB}, app1, worker1`);
 	if (process.env.CLUSTER_IDLE_CHECK !== '0') startIdleServers();
 	rmSync(LOAD_OUT, { force: true }); // never read an earlier run's figures
-	const load = spawn(process.execPath, [join(ROOT, 'node_modules/tsx/dist/cli.mjs'), 'scripts/load.ts', '--users', String(USERS), '--duration', String(DURATION), '--out', LOAD_OUT], {
-		cwd: ROOT,
-		env: { ...process.env, ENV_FILE, ORIGIN: LB, DB_PORT: String(B + 43) },
-		stdio: ['ignore', 'pipe', 'pipe']
-	});
+	const load = spawn(
+		process.execPath,
+		[join(ROOT, 'node_modules/tsx/dist/cli.mjs'), 'scripts/load.ts', '--users', String(USERS), '--duration', String(DURATION), '--out', LOAD_OUT],
+		{
+			cwd: ROOT,
+			env: { ...process.env, ENV_FILE, ORIGIN: LB, DB_PORT: String(B + 43) },
+			stdio: ['ignore', 'pipe', 'pipe']
+		}
+	);
 	let loadStdout = '';
 	load.stdout.on('data', (d) => (loadStdout += d));
 	const loadDone = new Promise<number>((r) => load.on('exit', (code) => r(code ?? 1)));
@@ -400,8 +469,10 @@ async function main() {
 	// errors: a request in flight on the app server while it was stopped may fail (502/503 from the
 	// balancer, or a dropped connection) within the seconds the balancer needs to take it out
 	const appStops = stops.filter((s) => s.what.startsWith('app'));
-	const inFlight = (L.error_events as { t: number; status: number | null; protocol?: number }[]).filter((e) =>
-		(e.status === null || e.status === 502 || e.status === 503 || e.status === 504) && appStops.some((s) => e.t >= s.stoppedAt - 1000 && e.t <= (exitedAt.get(s.what) ?? s.stoppedAt) + 6000)
+	const inFlight = (L.error_events as { t: number; status: number | null; protocol?: number }[]).filter(
+		(e) =>
+			(e.status === null || e.status === 502 || e.status === 503 || e.status === 504) &&
+			appStops.some((s) => e.t >= s.stoppedAt - 1000 && e.t <= (exitedAt.get(s.what) ?? s.stoppedAt) + 6000)
 	);
 	const excused = inFlight.length;
 	const realErrors = L.errors - excused;
@@ -415,7 +486,8 @@ async function main() {
 		return !(m && lostAnswers.has(Number(m[1])) && Number(m[3]) === Number(m[4]) + 1);
 	});
 	const excusedCounts = L.count_problems - countProblems.length;
-	if (countProblems.length > 0 || L.count_problems > (L.count_problem_samples as string[]).length) fail(`${L.count_problems - excusedCounts} counting problem(s) in the load test: ${JSON.stringify(countProblems.slice(0, 5))}`);
+	if (countProblems.length > 0 || L.count_problems > (L.count_problem_samples as string[]).length)
+		fail(`${L.count_problems - excusedCounts} counting problem(s) in the load test: ${JSON.stringify(countProblems.slice(0, 5))}`);
 	if (L.protocols === 0) fail('the load test created no protocol');
 	if (loadCode !== 0 && L.errors === 0 && L.count_problems === 0) fail(`the load test exited with ${loadCode}`);
 	if (stops.length !== 3) fail(`only ${stops.length} of 3 stops happened (the run may be too short: CLUSTER_DURATION)`);
@@ -432,7 +504,8 @@ async function main() {
 	const idle = process.env.CLUSTER_IDLE_CHECK === '0' ? null : await idleAcross();
 	const retries = { transactions: countLogLines(/\[tx\] retry/), gave_up: countLogLines(/\[tx\] gave up/), balancer: await haproxyRetries() };
 	const joins: Record<string, number> = {};
-	for (const n of [2, 3]) if (existsSync(join(RUN, `db${n}.first-join`))) joins[`db${n}_first_join_sst_s`] = Number(readFileSync(join(RUN, `db${n}.first-join`), 'utf8'));
+	for (const n of [2, 3])
+		if (existsSync(join(RUN, `db${n}.first-join`))) joins[`db${n}_first_join_sst_s`] = Number(readFileSync(join(RUN, `db${n}.first-join`), 'utf8'));
 	for (const s of stops) joins[`${s.what}_restart_s`] = Math.round(s.restartSeconds * 10) / 10;
 
 	const summary = {
@@ -448,7 +521,12 @@ async function main() {
 		errors_in_flight_on_stopped_app: excused,
 		expected_409: L.expected_409,
 		retries,
-		counting_checks: { load_problems: L.count_problems - excusedCounts, load_pass_counts_after_lost_answers: excusedCounts, double_submits: doubles.length, double_submit_problems: failures.filter((f) => f.startsWith('double submit')).length },
+		counting_checks: {
+			load_problems: L.count_problems - excusedCounts,
+			load_pass_counts_after_lost_answers: excusedCounts,
+			double_submits: doubles.length,
+			double_submit_problems: failures.filter((f) => f.startsWith('double submit')).length
+		},
 		duplicate_emails: mail.duplicates,
 		mail,
 		rejoin_s: joins,
@@ -472,16 +550,27 @@ async function main() {
 	line('errors', summary.errors);
 	line('in flight on the stopped app', excused);
 	line('transaction retries (gave up)', `${retries.transactions} (${retries.gave_up})`);
-	line('counting problems', `${L.count_problems - excusedCounts}${excusedCounts ? ` (+${excusedCounts} pass counted as not made whose answer was lost in flight)` : ''}`);
-	line('double submits (app1+app2)', `${doubles.length}, each ${doubles.every((d) => d.statuses.join() === '200,409' && d.reconciles === 1) ? 'reconciled once' : 'NOT once'}`);
-	line('e-mails: due / delivered / caught / dup', `${mail.due} / ${mail.delivered} / ${mail.caught} / ${mail.duplicates} (${mail.not_yet_due} reminders not yet due)`);
+	line(
+		'counting problems',
+		`${L.count_problems - excusedCounts}${excusedCounts ? ` (+${excusedCounts} pass counted as not made whose answer was lost in flight)` : ''}`
+	);
+	line(
+		'double submits (app1+app2)',
+		`${doubles.length}, each ${doubles.every((d) => d.statuses.join() === '200,409' && d.reconciles === 1) ? 'reconciled once' : 'NOT once'}`
+	);
+	line(
+		'e-mails: due / delivered / caught / dup',
+		`${mail.due} / ${mail.delivered} / ${mail.caught} / ${mail.duplicates} (${mail.not_yet_due} reminders not yet due)`
+	);
 	line('rejoin / restart (s)', joins);
 	line('latency p50 / p95 / p99 (ms)', `${L.latency_ms.p50} / ${L.latency_ms.p95} / ${L.latency_ms.p99}`);
 	line('sessions across app servers', sessions);
 	if (idle) line('idle logoff', idle);
 	for (const v of rejoinView) line('during rejoin', v);
 	line('written', OUT);
-	console.log(`BENCH_JSON ${JSON.stringify({ bench: 'cluster', requests: summary.requests, errors: summary.errors, retries: retries.transactions, duplicate_emails: mail.duplicates, latency_ms: L.latency_ms, rejoin_s: joins })}`);
+	console.log(
+		`BENCH_JSON ${JSON.stringify({ bench: 'cluster', requests: summary.requests, errors: summary.errors, retries: retries.transactions, duplicate_emails: mail.duplicates, latency_ms: L.latency_ms, rejoin_s: joins })}`
+	);
 	if (failures.length) log(`${failures.length} failure(s):\n  ${failures.join('\n  ')}`);
 	await closeRedis().catch(() => undefined);
 	await closeDb();

@@ -40,7 +40,5 @@ export const NAV: NavItem[] = [
 ];
 
 export function navFor(roles: readonly string[], mailFake: boolean): NavItem[] {
-	return NAV.filter(
-		(n) => (n.roles === 'all' || n.roles.some((r) => roles.includes(r))) && (!n.demoOnly || mailFake)
-	);
+	return NAV.filter((n) => (n.roles === 'all' || n.roles.some((r) => roles.includes(r))) && (!n.demoOnly || mailFake));
 }

@@ -38,7 +38,9 @@ async function screenText(path: string): Promise<string> {
 	return page.evaluate(() =>
 		[
 			document.body.innerText,
-			...[...document.querySelectorAll('[aria-label],[title],[placeholder]')].flatMap((e) => ['aria-label', 'title', 'placeholder'].map((a) => e.getAttribute(a) ?? ''))
+			...[...document.querySelectorAll('[aria-label],[title],[placeholder]')].flatMap((e) =>
+				['aria-label', 'title', 'placeholder'].map((a) => e.getAttribute(a) ?? '')
+			)
 		].join('\n')
 	);
 }
@@ -50,7 +52,18 @@ describe('Catalog screens name norm groups by what they cover', () => {
 	it('no screen shows a group code; the norm set shows each group in words', async () => {
 		// the demo's codes (db/seeds/catalog.ts): a18 … a70, and a30-e0 / a30-e13 for the test normed by education
 		expect(codes).toEqual(expect.arrayContaining(['a18', 'a30', 'a70', 'a30-e0', 'a30-e13']));
-		const screens = ['/catalog', '/catalog/tests', '/catalog/tests/word-recall', '/catalog/tests/word-harvest', '/catalog/norm-sets', `/catalog/norm-sets/${setId}`, `/catalog/norm-sets/${setId}?test=word-harvest`, '/catalog/batteries', `/catalog/batteries/${batteryId}`, '/catalog/import'];
+		const screens = [
+			'/catalog',
+			'/catalog/tests',
+			'/catalog/tests/word-recall',
+			'/catalog/tests/word-harvest',
+			'/catalog/norm-sets',
+			`/catalog/norm-sets/${setId}`,
+			`/catalog/norm-sets/${setId}?test=word-harvest`,
+			'/catalog/batteries',
+			`/catalog/batteries/${batteryId}`,
+			'/catalog/import'
+		];
 		for (const path of screens) {
 			const text = await screenText(path);
 			const shown = codes.filter((c) => codeIn(text, c));

@@ -53,12 +53,20 @@ describe('CSV import screen', () => {
 		for (let i = 0; i < 100_000; i++) {
 			const k = i % 246;
 			const band = Math.floor(i / 246);
-			rows.push(`${k % 2 ? 'word-recall' : 'speeded-match'},g${i},${band * 3},${band * 3 + 2},${['', 'F', 'M'][Math.floor(k / 2) % 3]},${Math.floor(k / 6)},${Math.floor(k / 6)},24.5,4.2,100`);
+			rows.push(
+				`${k % 2 ? 'word-recall' : 'speeded-match'},g${i},${band * 3},${band * 3 + 2},${['', 'F', 'M'][Math.floor(k / 2) % 3]},${Math.floor(k / 6)},${Math.floor(k / 6)},24.5,4.2,100`
+			);
 		}
 		const t0 = Date.now();
 		await page.setInputFiles('[data-testid=csv-file]', { name: 'big.csv', mimeType: 'text/csv', buffer: Buffer.from(rows.join('\n')) });
 		// The main thread answers while the worker reads.
-		const ping = await page.evaluate(() => new Promise<number>((r) => { const s = performance.now(); setTimeout(() => r(performance.now() - s), 0); }));
+		const ping = await page.evaluate(
+			() =>
+				new Promise<number>((r) => {
+					const s = performance.now();
+					setTimeout(() => r(performance.now() - s), 0);
+				})
+		);
 		expect(ping).toBeLessThan(200);
 		await page.getByText('Every row reads well').waitFor({ timeout: 30_000 });
 		const ms = Date.now() - t0;

@@ -115,7 +115,11 @@ describe('item 8: keyboard on Review and Entry', () => {
 		const pass = await getPass(s1, id);
 		const put = await s1.request(`/api/v1/protocols/${id}/pass`, { method: 'PUT', json: { scores: draft, draftVersion: pass.body.draftVersion } });
 		expect(put.status).toBe(200);
-		const ids = (await select<{ code: string }>('SELECT t.code FROM protocol_tests pt JOIN tests t ON t.id = pt.test_id WHERE pt.protocol_id = :id ORDER BY pt.position', { id })).map((r) => r.code);
+		const ids = (
+			await select<{ code: string }>('SELECT t.code FROM protocol_tests pt JOIN tests t ON t.id = pt.test_id WHERE pt.protocol_id = :id ORDER BY pt.position', {
+				id
+			})
+		).map((r) => r.code);
 		expect(ids[0]).toBe(firstTest);
 
 		const page = await person(ACCOUNTS.scorer);

@@ -21,40 +21,59 @@ afterAll(async () => {
 });
 
 const ROLES: { who: keyof typeof ACCOUNTS; nav: string[]; allowed: string[]; refused: string[] }[] = [
-	{ who: 'scorer', nav: ['Worklist', 'Protocols'], allowed: ['/', '/protocols'], refused: ['/people', '/catalog', '/audit', '/mailbox', '/settings', '/protocols/new'] },
+	{
+		who: 'scorer',
+		nav: ['Worklist', 'Protocols'],
+		allowed: ['/', '/protocols'],
+		refused: ['/people', '/catalog', '/audit', '/mailbox', '/settings', '/protocols/new']
+	},
 	{ who: 'reviewer', nav: ['Worklist', 'Protocols'], allowed: ['/', '/protocols'], refused: ['/people', '/catalog', '/audit', '/protocols/new'] },
-	{ who: 'lead', nav: ['Worklist', 'Protocols', 'Audit', 'Catalog'], allowed: ['/', '/protocols', '/protocols/new', '/catalog', '/audit'], refused: ['/people', '/mailbox', '/settings'] },
-	{ who: 'admin', nav: ['Worklist', 'Catalog', 'People', 'Mailbox', 'Settings'], allowed: ['/', '/people', '/mailbox', '/catalog', '/settings'], refused: ['/audit', '/protocols', '/protocols/new'] }
+	{
+		who: 'lead',
+		nav: ['Worklist', 'Protocols', 'Audit', 'Catalog'],
+		allowed: ['/', '/protocols', '/protocols/new', '/catalog', '/audit'],
+		refused: ['/people', '/mailbox', '/settings']
+	},
+	{
+		who: 'admin',
+		nav: ['Worklist', 'Catalog', 'People', 'Mailbox', 'Settings'],
+		allowed: ['/', '/people', '/mailbox', '/catalog', '/settings'],
+		refused: ['/audit', '/protocols', '/protocols/new']
+	}
 ];
 
 describe('roles in the browser', () => {
-	it.each(ROLES)('$who sees its own navigation and screens', async ({ who, nav, allowed, refused }) => {
-		const ctx = await browser.newContext({ bypassCSP: true });
-		const page = await ctx.newPage();
-		await signIn(page, ACCOUNTS[who], DEMO_PASSWORD);
-		expect(new URL(page.url()).pathname).toBe('/');
-		const links = await page.getByRole('navigation', { name: 'Main' }).getByRole('link').allInnerTexts();
-		expect(links.map((l) => l.trim()).filter((l) => l !== 'Crosstally')).toEqual(nav);
-		for (const path of allowed) {
-			const res = await page.goto(`${BASE_URL}${path}`);
-			expect(res?.status(), `${who} ${path}`).toBe(200);
-			expect(await page.getByTestId('error-page').count(), `${who} ${path}`).toBe(0);
-		}
-		for (const path of refused) {
-			const res = await page.goto(`${BASE_URL}${path}`);
-			expect(res?.status(), `${who} ${path}`).toBe(403);
-			expect(await page.getByTestId('error-page').innerText()).toContain('Your role does not include this screen');
-		}
-		await page.goto(`${BASE_URL}/`);
-		const v = await seriousViolations(page);
-		expect(v, describeViolations(v)).toEqual([]);
-		await page.getByRole('button', { name: 'Sign out' }).click();
-		await page.waitForURL(/\/signin/);
-		const back = await page.goto(`${BASE_URL}/protocols`);
-		expect(new URL(page.url()).pathname).toBe('/signin');
-		expect(back?.status()).toBe(200);
-		await ctx.close();
-	}, 90_000);
+	it.each(ROLES)(
+		'$who sees its own navigation and screens',
+		async ({ who, nav, allowed, refused }) => {
+			const ctx = await browser.newContext({ bypassCSP: true });
+			const page = await ctx.newPage();
+			await signIn(page, ACCOUNTS[who], DEMO_PASSWORD);
+			expect(new URL(page.url()).pathname).toBe('/');
+			const links = await page.getByRole('navigation', { name: 'Main' }).getByRole('link').allInnerTexts();
+			expect(links.map((l) => l.trim()).filter((l) => l !== 'Crosstally')).toEqual(nav);
+			for (const path of allowed) {
+				const res = await page.goto(`${BASE_URL}${path}`);
+				expect(res?.status(), `${who} ${path}`).toBe(200);
+				expect(await page.getByTestId('error-page').count(), `${who} ${path}`).toBe(0);
+			}
+			for (const path of refused) {
+				const res = await page.goto(`${BASE_URL}${path}`);
+				expect(res?.status(), `${who} ${path}`).toBe(403);
+				expect(await page.getByTestId('error-page').innerText()).toContain('Your role does not include this screen');
+			}
+			await page.goto(`${BASE_URL}/`);
+			const v = await seriousViolations(page);
+			expect(v, describeViolations(v)).toEqual([]);
+			await page.getByRole('button', { name: 'Sign out' }).click();
+			await page.waitForURL(/\/signin/);
+			const back = await page.goto(`${BASE_URL}/protocols`);
+			expect(new URL(page.url()).pathname).toBe('/signin');
+			expect(back?.status()).toBe(200);
+			await ctx.close();
+		},
+		90_000
+	);
 });
 
 describe('invitation by e-mail, in the browser', () => {

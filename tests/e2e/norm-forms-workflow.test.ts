@@ -92,7 +92,10 @@ async function enter(page: Page, values: Entry) {
 async function submit(page: Page, which: 'first' | 'second') {
 	await page.locator('#submit-pass').click();
 	await page.getByRole('dialog').waitFor();
-	await page.getByRole('dialog').getByRole('button', { name: /Submit and lock/ }).click();
+	await page
+		.getByRole('dialog')
+		.getByRole('button', { name: /Submit and lock/ })
+		.click();
 	await page.waitForURL(new RegExp(`/protocols/${id}\\?submitted=${which}`));
 }
 
@@ -120,7 +123,10 @@ describe('the Tidewater profile, end to end', () => {
 			'SELECT pc.code, g.group_code FROM protocol_composites pc JOIN norm_groups g ON g.id = pc.norm_group_id WHERE pc.protocol_id = :id ORDER BY pc.position',
 			{ id }
 		);
-		expect(frozen).toEqual([{ code: 'memory-index', group_code: 'a30' }, { code: 'visuomotor-index', group_code: 'all' }]);
+		expect(frozen).toEqual([
+			{ code: 'memory-index', group_code: 'a30' },
+			{ code: 'visuomotor-index', group_code: 'all' }
+		]);
 		await page.context().close();
 	}, 90_000);
 
@@ -129,14 +135,21 @@ describe('the Tidewater profile, end to end', () => {
 		await enter(page, FIRST);
 		const fields = await page.locator('input[id^="f-"]').evaluateAll((els) => els.map((e) => e.id));
 		// every test field first, then the composites' fields
-		expect(fields.slice(-6)).toEqual(['f-memory-index-sum', 'f-memory-index-standard', 'f-memory-index-percentile', 'f-visuomotor-index-sum', 'f-visuomotor-index-standard', 'f-visuomotor-index-percentile']);
+		expect(fields.slice(-6)).toEqual([
+			'f-memory-index-sum',
+			'f-memory-index-standard',
+			'f-memory-index-percentile',
+			'f-visuomotor-index-sum',
+			'f-visuomotor-index-standard',
+			'f-visuomotor-index-percentile'
+		]);
 		expect(await page.getByTestId('field-warning').allInnerTexts()).toEqual([]);
 		await page.screenshot({ path: `${SHOTS}/entry-composites.png`, fullPage: true });
 		await submit(page, 'first');
 		await page.context().close();
 	}, 90_000);
 
-	it('second scorer: a sum that is not the own parts\' total is pointed out (the scorer\'s own arithmetic, never the reference)', async () => {
+	it("second scorer: a sum that is not the own parts' total is pointed out (the scorer's own arithmetic, never the reference)", async () => {
 		const page = await person(ACCOUNTS.scorer2);
 		await enter(page, SECOND);
 		const warn = page.locator('#f-memory-index-sum-msg');
@@ -165,7 +178,9 @@ describe('the Tidewater profile, end to end', () => {
 		const adjacent = page.locator('[data-testid="discrepancy"][data-kind="adjacent_row"]');
 		await adjacent.waitFor();
 		// raw 16 sits in the row 16 (scaled 14); 15 is the row below, 17–18
-		expect(await adjacent.getByTestId('card-context').innerText()).toBe('Raw 16 is in the row 16 (score 14); the value entered is the row below, 17–18 (score 15).');
+		expect(await adjacent.getByTestId('card-context').innerText()).toBe(
+			'Raw 16 is in the row 16 (score 14); the value entered is the row below, 17–18 (score 15).'
+		);
 		const carried = page.locator('[data-testid="discrepancy"][data-kind="carried"]').first();
 		expect(await carried.getByTestId('card-context').innerText()).toContain('Waits on its parts');
 		expect(await carried.getByTestId('card-context').innerText()).toContain('Parts (scaled scores): first pass 13 + 15, second pass 13 + 14');

@@ -63,12 +63,14 @@ describe('the catalog table grid', () => {
 		await page.screenshot({ path: `${SHOTS}/norm-set.png`, fullPage: true });
 	});
 
-	it('shows the battery\'s composites and lets a lead edit them', async () => {
+	it("shows the battery's composites and lets a lead edit them", async () => {
 		const b = await selectOne<{ id: number }>("SELECT id FROM batteries WHERE code = 'tidewater-profile'");
 		await page.goto(`${BASE_URL}/catalog/batteries/${b!.id}`);
 		const rows = page.getByTestId('battery-composites').locator('tbody tr');
 		expect(await rows.count()).toBe(2);
-		expect(await rows.first().innerText()).toMatch(/^Memory Index memory-index\s+Harbour Word Recall \+ Tile Build \(scaled scores\)\s+Sum, Standard score, Percentile\s+0\.9$/);
+		expect(await rows.first().innerText()).toMatch(
+			/^Memory Index memory-index\s+Harbour Word Recall \+ Tile Build \(scaled scores\)\s+Sum, Standard score, Percentile\s+0\.9$/
+		);
 		const editor = page.getByTestId('composites-editor');
 		await editor.getByLabel('Reliability').first().fill('0.91');
 		await editor.getByRole('button', { name: 'Save composites' }).click();

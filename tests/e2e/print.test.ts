@@ -51,7 +51,16 @@ beforeAll(async () => {
 	browser = await launch();
 	const c = { lead: await signedIn('lead'), first: await signedIn('scorer'), second: await signedIn('scorer2'), reviewer: await signedIn('reviewer') };
 	code = uniqueCode('PR');
-	id = await throughWorkflow(c, { first: ACCOUNTS.scorer, second: ACCOUNTS.scorer2, reviewer: ACCOUNTS.reviewer, battery: 'core-adult', code, birthDate: '1956-03-14', testDate: '2026-09-25', verify: true });
+	id = await throughWorkflow(c, {
+		first: ACCOUNTS.scorer,
+		second: ACCOUNTS.scorer2,
+		reviewer: ACCOUNTS.reviewer,
+		battery: 'core-adult',
+		code,
+		birthDate: '1956-03-14',
+		testDate: '2026-09-25',
+		verify: true
+	});
 	page = await (await browser.newContext({ viewport: { width: 1280, height: 900 } })).newPage();
 	await signIn(page, ACCOUNTS.reviewer, DEMO_PASSWORD);
 	await page.goto(`${BASE_URL}/protocols/${id}/summary`, { waitUntil: 'networkidle' });
@@ -78,7 +87,10 @@ function pdfPages(pdf: string, name: string) {
 	for (const f of readdirSync(OUT).filter((f) => f.startsWith(`${name}-`))) rmSync(join(OUT, f));
 	execFileSync('pdftoppm', ['-r', '60', '-png', pdf, join(OUT, name)]);
 	execFileSync('pdftoppm', ['-r', '60', pdf, join(OUT, `${name}-raw`)]);
-	const images = readdirSync(OUT).filter((f) => f.startsWith(`${name}-raw`) && f.endsWith('.ppm')).sort().map((f) => readPpm(join(OUT, f)));
+	const images = readdirSync(OUT)
+		.filter((f) => f.startsWith(`${name}-raw`) && f.endsWith('.ppm'))
+		.sort()
+		.map((f) => readPpm(join(OUT, f)));
 	return { pages, text, images };
 }
 
@@ -98,7 +110,17 @@ describe('the Summary printed', () => {
 				expect(flat(t), `page ${i + 1}`).toContain(`Page ${i + 1} of ${pages}`);
 			}
 			// the score page carries the report's facts and the caution
-			for (const fact of ['Test date', '2026-09-25', 'Age at testing', '70;6;11', 'Harbourview Core Adult Battery', 'Harbourview Adult Norms 2024', 'AACN', 'never replace']) expect(flat(text[0])).toContain(fact);
+			for (const fact of [
+				'Test date',
+				'2026-09-25',
+				'Age at testing',
+				'70;6;11',
+				'Harbourview Core Adult Battery',
+				'Harbourview Adult Norms 2024',
+				'AACN',
+				'never replace'
+			])
+				expect(flat(text[0])).toContain(fact);
 			// † explained where a percentile was recomputed (Dot Chase does not report one)
 			expect(flat(text[0])).toContain('† Percentile recomputed');
 			// the bell curve has the second page
@@ -107,7 +129,11 @@ describe('the Summary printed', () => {
 			for (const [i, img] of images.entries()) {
 				const from = Math.ceil(img.w * (1 - (MARGIN_MM - 2) / paper.widthMm));
 				let ink = 0;
-				for (let y = 0; y < img.h; y++) for (let x = from; x < img.w; x++) { const [r, g, b] = img.px(x, y); if (r < 235 || g < 235 || b < 235) ink++; }
+				for (let y = 0; y < img.h; y++)
+					for (let x = from; x < img.w; x++) {
+						const [r, g, b] = img.px(x, y);
+						if (r < 235 || g < 235 || b < 235) ink++;
+					}
 				expect(ink, `page ${i + 1}: pixels with ink in the right margin`).toBe(0);
 			}
 		}, 120_000);
@@ -118,7 +144,9 @@ describe('the Summary printed', () => {
 			await signIn(p, ACCOUNTS.reviewer, DEMO_PASSWORD);
 			await p.goto(`${BASE_URL}/protocols/${id}/summary`, { waitUntil: 'networkidle' });
 			await p.emulateMedia({ media: 'print' });
-			const over = await p.evaluate(`[...document.querySelectorAll('body *')].filter((e) => e.getBoundingClientRect().width > 0 && e.getBoundingClientRect().right > ${printable} + 0.5).map((e) => e.tagName + '.' + e.className + ' ' + Math.round(e.getBoundingClientRect().right))`);
+			const over = await p.evaluate(
+				`[...document.querySelectorAll('body *')].filter((e) => e.getBoundingClientRect().width > 0 && e.getBoundingClientRect().right > ${printable} + 0.5).map((e) => e.tagName + '.' + e.className + ' ' + Math.round(e.getBoundingClientRect().right))`
+			);
 			expect(over).toEqual([]);
 			const table = (await p.getByTestId('summary-table').boundingBox())!;
 			// full width: the table spans the printable width
@@ -142,7 +170,11 @@ describe('the Summary printed', () => {
 		const { pages, text } = pdfPages(pdf, 'summary-long-A4');
 		const bellAt = text.findIndex((t) => t.includes('On the normal curve'));
 		// pages before the bell curve's that hold table rows (the table's notes may run onto a page of their own)
-		const tablePages = text.slice(0, bellAt).filter((t) => Object.values(DOMAINS).flat().some((n) => t.includes(n)));
+		const tablePages = text.slice(0, bellAt).filter((t) =>
+			Object.values(DOMAINS)
+				.flat()
+				.some((n) => t.includes(n))
+		);
 		expect(tablePages.length).toBeGreaterThanOrEqual(2);
 		for (const [i, t] of tablePages.entries()) {
 			expect(t.replace(/\s+/g, ' '), `table page ${i + 1}: header row`).toContain('Raw score');
@@ -151,7 +183,10 @@ describe('the Summary printed', () => {
 			for (const [domain, tests] of Object.entries(DOMAINS)) {
 				const at = t.search(new RegExp(`^\\s*${domain}\\s*$`, 'm'));
 				if (at < 0) continue;
-				expect(tests.some((n) => t.indexOf(n, at) > at), `table page ${i + 1}: "${domain}" alone at the foot`).toBe(true);
+				expect(
+					tests.some((n) => t.indexOf(n, at) > at),
+					`table page ${i + 1}: "${domain}" alone at the foot`
+				).toBe(true);
 			}
 		}
 		expect(pages).toBeGreaterThan(2);
@@ -185,7 +220,11 @@ describe('the Summary printed', () => {
 		for (const [i, img] of images.entries()) {
 			const from = Math.ceil(img.w * (1 - (MARGIN_MM - 2) / 210));
 			let ink = 0;
-			for (let y = 0; y < img.h; y++) for (let x = from; x < img.w; x++) { const [r, g, b] = img.px(x, y); if (r < 235 || g < 235 || b < 235) ink++; }
+			for (let y = 0; y < img.h; y++)
+				for (let x = from; x < img.w; x++) {
+					const [r, g, b] = img.px(x, y);
+					if (r < 235 || g < 235 || b < 235) ink++;
+				}
 			expect(ink, `page ${i + 1}: pixels with ink in the right margin`).toBe(0);
 		}
 		// screen and print emulation at a desktop and a phone width, to look at (test-results/print/)

@@ -27,7 +27,13 @@ beforeAll(async () => {
 	browser = await launch();
 	mkdirSync(SCREENS, { recursive: true });
 	const [lead, s1, s2] = await Promise.all([signedIn('lead'), signedIn('scorer'), signedIn('scorer2')]);
-	id = await createViaForm(lead, { first: ACCOUNTS.scorer, second: ACCOUNTS.scorer2, reviewer: ACCOUNTS.reviewer, educationYears: 12, code: `RAW42-${Date.now().toString(36).toUpperCase()}` });
+	id = await createViaForm(lead, {
+		first: ACCOUNTS.scorer,
+		second: ACCOUNTS.scorer2,
+		reviewer: ACCOUNTS.reviewer,
+		educationYears: 12,
+		code: `RAW42-${Date.now().toString(36).toUpperCase()}`
+	});
 	// both passes right everywhere else (setup only); Word Harvest as in the scenario
 	const first = await correctScores(id, {});
 	first['word-harvest'] = { raw: '24', z: '0.98', t: '60', percentile: '84' };
@@ -105,7 +111,9 @@ describe('a raw decision settles its derived scores (raw 42 for 24)', () => {
 
 		// the audit: one error, charged to the second scorer, on the raw score
 		const sue = (await selectOne<{ id: number }>('SELECT id FROM users WHERE email = :e', { e: ACCOUNTS.scorer2 }))!.id;
-		const events = await select<{ scorer_id: number; field: string; kind: string }>('SELECT scorer_id, field, kind FROM error_events WHERE protocol_id = :id', { id });
+		const events = await select<{ scorer_id: number; field: string; kind: string }>('SELECT scorer_id, field, kind FROM error_events WHERE protocol_id = :id', {
+			id
+		});
 		expect(events).toEqual([{ scorer_id: sue, field: 'raw', kind: 'transposition' }]);
 		await page.context().close();
 	}, 120_000);

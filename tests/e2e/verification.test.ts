@@ -25,7 +25,14 @@ beforeAll(async () => {
 	browser = await launch();
 	lead = await signedIn('lead');
 	const b = await makeBattery();
-	const r = await lead.action('/audit/verification?/policy', { batteryId: String(b.id), mode: 'sampled', minFields: '2000', windowDays: '180', thresholdPer100: '0.5', probabilityPercent: '25' });
+	const r = await lead.action('/audit/verification?/policy', {
+		batteryId: String(b.id),
+		mode: 'sampled',
+		minFields: '2000',
+		windowDays: '180',
+		thresholdPer100: '0.5',
+		probabilityPercent: '25'
+	});
 	expect(r.body.type).toBe('success');
 	const a = await makeScorer('Zora');
 	const second = await makeScorer('Abel');
@@ -35,7 +42,14 @@ beforeAll(async () => {
 	// submit protocols until one is not drawn (p = 25%: 30 drawn in a row has probability 0.25^30 ≈ 1e-18)
 	for (let i = 0; i < 30 && !id; i++) {
 		const pid = await createProtocol(
-			{ examinee: { code: uniqueCode('SP'), birthDate: '1988-05-17', sex: 'F', educationYears: 14 }, batteryId: b.id, testDate: '2026-11-20', firstScorerId: a.id, secondScorerId: second.id, reviewerId: await userId(ACCOUNTS.reviewer) },
+			{
+				examinee: { code: uniqueCode('SP'), birthDate: '1988-05-17', sex: 'F', educationYears: 14 },
+				batteryId: b.id,
+				testDate: '2026-11-20',
+				firstScorerId: a.id,
+				secondScorerId: second.id,
+				reviewerId: await userId(ACCOUNTS.reviewer)
+			},
 			{ id: leadId, name: 'Lee Lead', roles: ['lead'] }
 		);
 		const s = await correctScores(pid, {});
@@ -83,7 +97,9 @@ describe('single pass, labelled everywhere', () => {
 		const n = await select<{ n: number }>('SELECT COUNT(*) AS n FROM discrepancies WHERE protocol_id = :id', { id });
 		expect(Number(n[0].n)).toBe(0);
 		await page.getByTestId('sign-off').click();
-		await expect.poll(async () => (await selectOne<{ status: string }>('SELECT status FROM protocols WHERE id = :id', { id }))?.status, { timeout: 15_000 }).toBe('verified');
+		await expect
+			.poll(async () => (await selectOne<{ status: string }>('SELECT status FROM protocols WHERE id = :id', { id }))?.status, { timeout: 15_000 })
+			.toBe('verified');
 		await page.context().close();
 	}, 120_000);
 

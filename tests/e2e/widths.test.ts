@@ -27,12 +27,22 @@ beforeAll(async () => {
 	const reviewer = await signedIn('reviewer');
 	const who = { first: ACCOUNTS.scorer, second: ACCOUNTS.scorer2, reviewer: ACCOUNTS.reviewer };
 	ids.draft = await createViaForm(lead, { ...who, battery: 'core-adult', code: uniqueCode('W') });
-	ids.review = await throughWorkflow({ lead, first, second, reviewer }, { ...who, battery: 'core-adult', code: uniqueCode('W'), secondChanges: { 'word-recall': { standard: '611' } } });
-	ids.verified = await throughWorkflow({ lead, first, second, reviewer }, { ...who, battery: 'core-adult', code: uniqueCode('W'), secondChanges: { 'word-recall': { standard: '611' } }, verify: true });
+	ids.review = await throughWorkflow(
+		{ lead, first, second, reviewer },
+		{ ...who, battery: 'core-adult', code: uniqueCode('W'), secondChanges: { 'word-recall': { standard: '611' } } }
+	);
+	ids.verified = await throughWorkflow(
+		{ lead, first, second, reviewer },
+		{ ...who, battery: 'core-adult', code: uniqueCode('W'), secondChanges: { 'word-recall': { standard: '611' } }, verify: true }
+	);
 	// the Tidewater battery: composites after their parts, composite cards, composites first and a band on the Summary
 	ids.twDraft = await createViaForm(lead, { ...who, battery: 'tidewater-profile', code: uniqueCode('WT'), birthDate: '1990-03-10', testDate: '2025-11-20' });
 	ids.twReview = await tidewaterProtocol({ lead, first, second, reviewer }, { ...who, code: uniqueCode('WT') }, { first: tidewaterCarriedSlip() });
-	ids.twVerified = await tidewaterProtocol({ lead, first, second, reviewer }, { ...who, code: uniqueCode('WT') }, { first: tidewaterCarriedSlip(), verify: true });
+	ids.twVerified = await tidewaterProtocol(
+		{ lead, first, second, reviewer },
+		{ ...who, code: uniqueCode('WT') },
+		{ first: tidewaterCarriedSlip(), verify: true }
+	);
 	ids.battery = (await selectOne<{ id: number }>("SELECT id FROM batteries WHERE code = 'core-adult'"))!.id;
 	ids.normSet = (await selectOne<{ id: number }>('SELECT id FROM norm_sets ORDER BY id LIMIT 1'))!.id;
 	// a caught message for the mailbox's message screen
@@ -107,7 +117,9 @@ async function overflowReport(page: Page): Promise<{ scrollWidth: number; innerW
 
 describe('every screen at every width: no sideways page scroll, axe clean', () => {
 	for (const role of ['anon', 'scorer', 'reviewer', 'lead', 'admin'] as Role[]) {
-		it(`${role}: ${SCREENS.filter((s) => s.role === role).map((s) => s.name).join(', ')}`, async () => {
+		it(`${role}: ${SCREENS.filter((s) => s.role === role)
+			.map((s) => s.name)
+			.join(', ')}`, async () => {
 			const page = await as(role);
 			const failures: string[] = [];
 			for (const screen of SCREENS.filter((s) => s.role === role)) {
@@ -124,7 +136,8 @@ describe('every screen at every width: no sideways page scroll, axe clean', () =
 					// screens that load their figures after the page (Audit) say so with aria-busy
 					await page.waitForFunction(() => !document.querySelector('[aria-busy="true"]'), undefined, { timeout: 30_000 });
 					await settle(page);
-					if (process.env.WIDTH_SHOTS) await page.screenshot({ path: `test-results/widths/${role}-${screen.name.replace(/\W+/g, '-')}-${w}.png`, fullPage: true });
+					if (process.env.WIDTH_SHOTS)
+						await page.screenshot({ path: `test-results/widths/${role}-${screen.name.replace(/\W+/g, '-')}-${w}.png`, fullPage: true });
 					const o = await overflowReport(page);
 					if (o.scrollWidth > o.innerWidth) failures.push(`${screen.name} at ${w} px scrolls sideways to ${o.scrollWidth}: ${o.culprits.join(' | ')}`);
 					const v = await seriousViolations(page);
@@ -197,12 +210,17 @@ describe('the layout at each width', () => {
 			if (w < 1280) {
 				// in a card, each field sits under its own visible label, raw score first, and the
 				// card's fields read left to right, top to bottom in the order the keyboard takes
-				const cells = await firstRow.locator('td').evaluateAll((tds) =>
-					tds.filter((td) => getComputedStyle(td).display !== 'none').map((td) => ({ label: getComputedStyle(td, '::before').content, box: td.getBoundingClientRect().toJSON() as DOMRect }))
-				);
+				const cells = await firstRow
+					.locator('td')
+					.evaluateAll((tds) =>
+						tds
+							.filter((td) => getComputedStyle(td).display !== 'none')
+							.map((td) => ({ label: getComputedStyle(td, '::before').content, box: td.getBoundingClientRect().toJSON() as DOMRect }))
+					);
 				expect(cells[0].label).toBe('"Raw score"');
 				for (let i = 1; i < cells.length; i++) {
-					const a = cells[i - 1].box, b = cells[i].box;
+					const a = cells[i - 1].box,
+						b = cells[i].box;
 					expect(b.top > a.top + 1 || (Math.abs(b.top - a.top) <= 1 && b.left > a.left), `${w}: cell ${i} after cell ${i - 1}`).toBe(true);
 				}
 				// every card fits inside the viewport
@@ -256,21 +274,28 @@ describe('Audit charts at every width', () => {
 			await page.setViewportSize({ width: w, height: 900 });
 			await page.waitForFunction(() => !document.querySelector('[aria-busy="true"]'), undefined, { timeout: 30_000 });
 			await settle(page);
-			const charts = await page.locator('svg[role="img"][aria-labelledby^="forest"], svg[role="img"][aria-labelledby^="weekly"], svg[role="img"][aria-labelledby^="ba"]').evaluateAll((svgs) =>
-				svgs.map((svg) => {
-					const box = svg.getBoundingClientRect();
-					const texts = [...svg.querySelectorAll('text')].filter((t) => t.textContent?.trim());
-					return {
-						id: svg.getAttribute('aria-labelledby'),
-						// one SVG unit is one CSS pixel: the drawing is not scaled
-						scale: box.width / (svg as SVGSVGElement).viewBox.baseVal.width,
-						sizes: [...new Set(texts.map((t) => getComputedStyle(t).fontSize))],
-						outside: texts.filter((t) => { const b = t.getBoundingClientRect(); return b.left < box.left - 0.5 || b.right > box.right + 0.5 || b.top < box.top - 0.5 || b.bottom > box.bottom + 0.5; }).map((t) => t.textContent),
-						all: texts.map((t) => t.textContent ?? '').join(' | '),
-						right: box.right
-					};
-				})
-			);
+			const charts = await page
+				.locator('svg[role="img"][aria-labelledby^="forest"], svg[role="img"][aria-labelledby^="weekly"], svg[role="img"][aria-labelledby^="ba"]')
+				.evaluateAll((svgs) =>
+					svgs.map((svg) => {
+						const box = svg.getBoundingClientRect();
+						const texts = [...svg.querySelectorAll('text')].filter((t) => t.textContent?.trim());
+						return {
+							id: svg.getAttribute('aria-labelledby'),
+							// one SVG unit is one CSS pixel: the drawing is not scaled
+							scale: box.width / (svg as SVGSVGElement).viewBox.baseVal.width,
+							sizes: [...new Set(texts.map((t) => getComputedStyle(t).fontSize))],
+							outside: texts
+								.filter((t) => {
+									const b = t.getBoundingClientRect();
+									return b.left < box.left - 0.5 || b.right > box.right + 0.5 || b.top < box.top - 0.5 || b.bottom > box.bottom + 0.5;
+								})
+								.map((t) => t.textContent),
+							all: texts.map((t) => t.textContent ?? '').join(' | '),
+							right: box.right
+						};
+					})
+				);
 			expect(charts.length, `at ${w}`).toBe(3);
 			for (const c of charts) {
 				expect(c.scale, `${c.id} at ${w}`).toBeCloseTo(1, 2);
@@ -279,7 +304,14 @@ describe('Audit charts at every width', () => {
 				expect(c.right, `${c.id} at ${w}`).toBeLessThanOrEqual(w);
 			}
 			const all = charts.map((c) => c.all).join(' ');
-			for (const title of ['Errors per 100 fields entered (dot)', 'Week starting (Monday, ISO 8601 weeks', 'Errors per 100 fields', 'Mean of the two entries', 'First − second']) expect(all, `at ${w}`).toContain(title);
+			for (const title of [
+				'Errors per 100 fields entered (dot)',
+				'Week starting (Monday, ISO 8601 weeks',
+				'Errors per 100 fields',
+				'Mean of the two entries',
+				'First − second'
+			])
+				expect(all, `at ${w}`).toContain(title);
 		}
 		await page.context().close();
 	}, 180_000);
@@ -304,7 +336,9 @@ describe('Summary at every width', () => {
 			expect(scrollers, `at ${w}`).toEqual([]);
 			if (w < 1024) {
 				// each value carries its column's name, as the header row would give it
-				const labels = await row.locator('td').evaluateAll((tds) => tds.filter((td) => getComputedStyle(td).display !== 'none').map((td) => getComputedStyle(td, '::before').content));
+				const labels = await row
+					.locator('td')
+					.evaluateAll((tds) => tds.filter((td) => getComputedStyle(td).display !== 'none').map((td) => getComputedStyle(td, '::before').content));
 				expect(labels, `at ${w}`).toEqual(expect.arrayContaining(['"Raw score"', '"Percentile"', '"Descriptive label"', '"95% CI"', '"Norm group"']));
 				const right = await table.locator('tbody tr').evaluateAll((rs) => Math.max(...rs.map((r) => r.getBoundingClientRect().right)));
 				expect(right, `at ${w}`).toBeLessThanOrEqual(w);
@@ -313,7 +347,13 @@ describe('Summary at every width', () => {
 		// print keeps the table whatever the window's width (the stacking is for the screen only)
 		await page.setViewportSize({ width: 390, height: 900 });
 		await page.emulateMedia({ media: 'print' });
-		expect(await page.getByTestId('summary-table').locator('tbody tr[data-test]').first().evaluate((e) => getComputedStyle(e).display)).toBe('table-row');
+		expect(
+			await page
+				.getByTestId('summary-table')
+				.locator('tbody tr[data-test]')
+				.first()
+				.evaluate((e) => getComputedStyle(e).display)
+		).toBe('table-row');
 		await page.emulateMedia({ media: 'screen' });
 		await page.context().close();
 	}, 120_000);
@@ -331,9 +371,16 @@ describe('Summary at every width', () => {
 				return {
 					scale: box.width / (svg as SVGSVGElement).viewBox.baseVal.width,
 					sizes: [...new Set(texts.map((t) => getComputedStyle(t).fontSize))],
-					outside: boxes.filter(({ b }) => b.left < box.left - 0.5 || b.right > box.right + 0.5 || b.top < box.top - 0.5 || b.bottom > box.bottom + 0.5).map((x) => x.text),
+					outside: boxes
+						.filter(({ b }) => b.left < box.left - 0.5 || b.right > box.right + 0.5 || b.top < box.top - 0.5 || b.bottom > box.bottom + 0.5)
+						.map((x) => x.text),
 					// labels drawn over each other are as unreadable as clipped ones
-					overlaps: boxes.flatMap((a, i) => boxes.slice(i + 1).filter((b) => a.b.left < b.b.right - 1 && b.b.left < a.b.right - 1 && a.b.top < b.b.bottom - 1 && b.b.top < a.b.bottom - 1).map((b) => `${a.text} / ${b.text}`)),
+					overlaps: boxes.flatMap((a, i) =>
+						boxes
+							.slice(i + 1)
+							.filter((b) => a.b.left < b.b.right - 1 && b.b.left < a.b.right - 1 && a.b.top < b.b.bottom - 1 && b.b.top < a.b.bottom - 1)
+							.map((b) => `${a.text} / ${b.text}`)
+					),
 					all: boxes.map((x) => x.text),
 					right: box.right
 				};

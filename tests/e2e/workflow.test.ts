@@ -24,7 +24,12 @@ const PNG = Buffer.from('iVBORw0KGgoAAAANSUhEUgAAAAEAAAABCAYAAAAfFcSJAAAADUlEQVR
 beforeAll(async () => {
 	browser = await launch();
 	const lead = await signedIn('lead');
-	id = await createViaForm(lead, { first: ACCOUNTS.scorer, second: ACCOUNTS.scorer2, reviewer: ACCOUNTS.reviewer, code: `E2E-${Date.now().toString(36).toUpperCase()}` });
+	id = await createViaForm(lead, {
+		first: ACCOUNTS.scorer,
+		second: ACCOUNTS.scorer2,
+		reviewer: ACCOUNTS.reviewer,
+		code: `E2E-${Date.now().toString(36).toUpperCase()}`
+	});
 	correct = await correctScores(id, { 'speeded-match': 36, 'word-recall': 29, 'word-recall-delayed': 9, 'word-harvest': 21, 'switch-rule': 12 });
 	order = (await protocolTests(id)).flatMap((t) => ['raw', ...t.reported].map((field) => ({ code: t.code, field })));
 	const fd = new FormData();

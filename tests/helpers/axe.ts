@@ -23,4 +23,5 @@ export async function seriousViolations(page: Page): Promise<AxeViolation[]> {
 	return result.violations.filter((v) => v.impact === 'serious' || v.impact === 'critical');
 }
 
-export const describeViolations = (vs: AxeViolation[]) => vs.map((v) => `${v.id} (${v.impact}): ${v.help} at ${v.nodes.map((n) => n.target.join(' ')).join(', ')}`).join('\n');
+export const describeViolations = (vs: AxeViolation[]) =>
+	vs.map((v) => `${v.id} (${v.impact}): ${v.help} at ${v.nodes.map((n) => n.target.join(' ')).join(', ')}`).join('\n');

@@ -17,7 +17,10 @@ export const ACCOUNTS = {
 export class Client {
 	cookies = new Map<string, string>();
 	/** origin: the Origin header to send (defaults to the base URL's origin; differs behind a proxy). */
-	constructor(public base = BASE_URL, public origin = new URL(base).origin) {}
+	constructor(
+		public base = BASE_URL,
+		public origin = new URL(base).origin
+	) {}
 
 	private cookieHeader() {
 		return [...this.cookies].map(([k, v]) => `${k}=${v}`).join('; ');
@@ -78,7 +81,11 @@ export async function signedIn(who: keyof typeof ACCOUNTS | string): Promise<Cli
 
 /** Read the local mail fake's catch. */
 export const MAILFAKE_URL = process.env.MAILFAKE_URL ?? 'http://127.0.0.1:2536';
-export async function caughtMail(to?: string): Promise<{ id: string; subject: string; to: string; cc: string; text: string; html: string | null; headers: Record<string, string>; envelope: { to: string[] } }[]> {
+export async function caughtMail(
+	to?: string
+): Promise<
+	{ id: string; subject: string; to: string; cc: string; text: string; html: string | null; headers: Record<string, string>; envelope: { to: string[] } }[]
+> {
 	const res = await fetch(`${MAILFAKE_URL}/messages${to ? `?to=${encodeURIComponent(to)}` : ''}`);
 	return res.json();
 }

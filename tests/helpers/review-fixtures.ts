@@ -28,9 +28,7 @@ async function catalog(): Promise<{ testId: number; batteryId: number; normSetId
 		`INSERT IGNORE INTO tests (code, version, name, domain, direction, raw_min, raw_max, raw_decimals, reported)
 		 VALUES ('nt-recall', 1, 'Notify Word Recall', 'nt-memory', 'higher_better', 0, 60, 0, 'z,standard,scaled,t,percentile')`
 	);
-	await exec(
-		`INSERT IGNORE INTO norm_sets (code, name, source, version, age_rule) VALUES ('nt-norms', 'Notification test norms', 'invented', '1', '{}')`
-	);
+	await exec(`INSERT IGNORE INTO norm_sets (code, name, source, version, age_rule) VALUES ('nt-norms', 'Notification test norms', 'invented', '1', '{}')`);
 	const normSetId = (await selectOne<{ id: number }>(`SELECT id FROM norm_sets WHERE code = 'nt-norms' AND version = '1'`))!.id;
 	await exec(`INSERT IGNORE INTO batteries (code, name, norm_set_id) VALUES ('nt-battery', 'Notify Battery', :normSetId)`, { normSetId });
 	const batteryId = (await selectOne<{ id: number }>(`SELECT id FROM batteries WHERE code = 'nt-battery'`))!.id;
@@ -129,9 +127,7 @@ export async function cleanupFixtures(): Promise<void> {
 	if (created.examinees.length) await exec(`DELETE FROM examinees WHERE id IN (:ids)`, { ids: created.examinees });
 	created.protocols = [];
 	created.examinees = [];
-	const left = await selectOne<{ n: number }>(
-		`SELECT COUNT(*) AS n FROM protocols WHERE battery_id = (SELECT id FROM batteries WHERE code = 'nt-battery')`
-	);
+	const left = await selectOne<{ n: number }>(`SELECT COUNT(*) AS n FROM protocols WHERE battery_id = (SELECT id FROM batteries WHERE code = 'nt-battery')`);
 	if (left && left.n === 0) {
 		await exec(`DELETE FROM batteries WHERE code = 'nt-battery'`);
 		await exec(`DELETE FROM norm_sets WHERE code = 'nt-norms'`);

@@ -45,7 +45,10 @@ export function alive(pid: number | null): boolean {
 function childrenOf(pid: number): number[] {
 	const out: number[] = [];
 	try {
-		for (const tid of spawnSync('ls', [`/proc/${pid}/task`]).stdout.toString().split(/\s+/).filter(Boolean)) {
+		for (const tid of spawnSync('ls', [`/proc/${pid}/task`])
+			.stdout.toString()
+			.split(/\s+/)
+			.filter(Boolean)) {
 			const f = `/proc/${pid}/task/${tid}/children`;
 			if (existsSync(f)) out.push(...readFileSync(f, 'utf8').split(/\s+/).filter(Boolean).map(Number));
 		}
@@ -90,7 +93,9 @@ export async function stopRedis(): Promise<void> {
 
 /** redis-cli with the generated password (REDISCLI_AUTH, as scripts/lib/setup.sh redis_cli). */
 export function redisCli(...args: string[]) {
-	return spawnSync('redis-cli', ['-h', '127.0.0.1', '-p', redisPort(), '--no-auth-warning', ...args], { env: { ...process.env, REDISCLI_AUTH: env('REDIS_PASSWORD') } });
+	return spawnSync('redis-cli', ['-h', '127.0.0.1', '-p', redisPort(), '--no-auth-warning', ...args], {
+		env: { ...process.env, REDISCLI_AUTH: env('REDIS_PASSWORD') }
+	});
 }
 
 /**
@@ -104,8 +109,25 @@ export async function startRedis(): Promise<void> {
 	const conf = join(runDir(), 'redis.conf');
 	if (!existsSync(conf)) writeFileSync(conf, `requirepass ${env('REDIS_PASSWORD')}\n`, { mode: 0o600 });
 	const r = spawnSync('redis-server', [
-		conf, '--port', redisPort(), '--bind', '127.0.0.1', '--save', '', '--appendonly', 'no', '--dir', dir,
-		'--pidfile', redisPidFile(), '--daemonize', 'yes', '--maxmemory-policy', 'noeviction', '--logfile', join(runDir(), 'redis.log')
+		conf,
+		'--port',
+		redisPort(),
+		'--bind',
+		'127.0.0.1',
+		'--save',
+		'',
+		'--appendonly',
+		'no',
+		'--dir',
+		dir,
+		'--pidfile',
+		redisPidFile(),
+		'--daemonize',
+		'yes',
+		'--maxmemory-policy',
+		'noeviction',
+		'--logfile',
+		join(runDir(), 'redis.log')
 	]);
 	if (r.status !== 0) throw new Error(`redis-server did not start: ${r.stderr}`);
 	const end = Date.now() + 10_000;
@@ -243,10 +265,19 @@ export async function startMariadb(): Promise<number> {
 	const child = spawn(
 		bin,
 		[
-			'--no-defaults', `--datadir=${join(env('CROSSTALLY_DATA_DIR'), 'mariadb')}`, `--socket=${mariadbSocket()}`, `--pid-file=${mariadbPidFile()}`,
-			`--log-error=${join(runDir(), 'mariadb.err')}`, `--port=${dbPort()}`, '--bind-address=127.0.0.1', '--skip-name-resolve',
-			'--user=root', '--character-set-server=utf8mb4', '--collation-server=utf8mb4_unicode_ci',
-			'--innodb-buffer-pool-size=256M', '--max-connections=300'
+			'--no-defaults',
+			`--datadir=${join(env('CROSSTALLY_DATA_DIR'), 'mariadb')}`,
+			`--socket=${mariadbSocket()}`,
+			`--pid-file=${mariadbPidFile()}`,
+			`--log-error=${join(runDir(), 'mariadb.err')}`,
+			`--port=${dbPort()}`,
+			'--bind-address=127.0.0.1',
+			'--skip-name-resolve',
+			'--user=root',
+			'--character-set-server=utf8mb4',
+			'--collation-server=utf8mb4_unicode_ci',
+			'--innodb-buffer-pool-size=256M',
+			'--max-connections=300'
 		],
 		{ stdio: 'ignore', detached: true }
 	);

@@ -57,7 +57,10 @@ export async function tidewaterProtocol(
 	if (!opts.verify) return id;
 	// parts before composites (a composite's cards wait on its parts): open rows in position order, ready ones first
 	for (let guard = 0; guard < 40; guard++) {
-		const open = await select<{ id: number; lock_version: number }>('SELECT id, lock_version FROM discrepancies WHERE protocol_id = :id AND resolved_at IS NULL ORDER BY position', { id });
+		const open = await select<{ id: number; lock_version: number }>(
+			'SELECT id, lock_version FROM discrepancies WHERE protocol_id = :id AND resolved_at IS NULL ORDER BY position',
+			{ id }
+		);
 		if (!open.length) break;
 		let done = false;
 		for (const d of open) {

@@ -9,11 +9,17 @@ const tag = () => `${Date.now().toString(36)}${++n}`.toUpperCase();
 /** A copy of the demo battery brief-screen (5 tests), so a policy set here touches no other test. */
 export async function makeBattery(): Promise<{ id: number; code: string }> {
 	const code = `vt-${tag()}`.toLowerCase();
-	const { insertId } = await exec(`INSERT INTO batteries (code, name, description, norm_set_id) SELECT :code, :name, description, norm_set_id FROM batteries WHERE code = 'brief-screen'`, {
-		code,
-		name: `Verification test battery ${code}`
-	});
-	await exec(`INSERT INTO battery_tests (battery_id, test_code, position) SELECT :id, bt.test_code, bt.position FROM battery_tests bt JOIN batteries b ON b.id = bt.battery_id WHERE b.code = 'brief-screen'`, { id: insertId });
+	const { insertId } = await exec(
+		`INSERT INTO batteries (code, name, description, norm_set_id) SELECT :code, :name, description, norm_set_id FROM batteries WHERE code = 'brief-screen'`,
+		{
+			code,
+			name: `Verification test battery ${code}`
+		}
+	);
+	await exec(
+		`INSERT INTO battery_tests (battery_id, test_code, position) SELECT :id, bt.test_code, bt.position FROM battery_tests bt JOIN batteries b ON b.id = bt.battery_id WHERE b.code = 'brief-screen'`,
+		{ id: insertId }
+	);
 	return { id: insertId, code };
 }
 
@@ -22,7 +28,10 @@ export async function makeScorer(label: string): Promise<{ id: number; email: st
 	const t = tag();
 	const email = `${label.toLowerCase()}.${t.toLowerCase()}@demo.crosstally.test`;
 	const name = `${label} ${t}`;
-	const { insertId } = await exec(`INSERT INTO users (email, name, password_hash, roles) SELECT :email, :name, password_hash, 'scorer' FROM users WHERE email = :sam`, { email, name, sam: ACCOUNTS.scorer });
+	const { insertId } = await exec(
+		`INSERT INTO users (email, name, password_hash, roles) SELECT :email, :name, password_hash, 'scorer' FROM users WHERE email = :sam`,
+		{ email, name, sam: ACCOUNTS.scorer }
+	);
 	return { id: insertId, email, name };
 }
 
@@ -42,7 +51,10 @@ export async function seedCleanRecord(scorerId: number, batteryId: number, proto
 		params[`pass${i}`] = 2_000_000_000 + scorerId * 100_000 + (n % 10) * 10_000 + i;
 		rows.push(`(:pass${i}, '', :p, 1, 'first', :s, :b, '', 30, 0, 0, :at)`, `(:pass${i}, 'seeded', :p, 1, 'first', :s, :b, 'seeded', 30, 5, 25, :at)`);
 	}
-	await exec(`INSERT INTO audit_fields (pass_id, test_code, protocol_id, round, which, scorer_id, battery_id, domain, fields_entered, raw_fields, derived_fields, entered_at) VALUES ${rows.join(',')}`, params);
+	await exec(
+		`INSERT INTO audit_fields (pass_id, test_code, protocol_id, round, which, scorer_id, battery_id, domain, fields_entered, raw_fields, derived_fields, entered_at) VALUES ${rows.join(',')}`,
+		params
+	);
 	await applyToDaily({ protocolId: fake, round: 1 }, 1);
 	return fake;
 }
@@ -54,14 +66,21 @@ export async function unseed(fakeProtocolId: number) {
 }
 
 export async function drawOf(protocolId: number) {
-	return selectOne<{ outcome: string | null; draw_value: number | null; probability: number | null; decided_at: Date | null; raw_fields: number | null; policy: string | null }>(
-		'SELECT outcome, draw_value, probability, decided_at, raw_fields, policy FROM verification_protocols WHERE protocol_id = :p',
-		{ p: protocolId }
-	);
+	return selectOne<{
+		outcome: string | null;
+		draw_value: number | null;
+		probability: number | null;
+		decided_at: Date | null;
+		raw_fields: number | null;
+		policy: string | null;
+	}>('SELECT outcome, draw_value, probability, decided_at, raw_fields, policy FROM verification_protocols WHERE protocol_id = :p', { p: protocolId });
 }
 
 export async function standingOf(scorerId: number, batteryId: number) {
-	return selectOne<{ mode: string; since: Date; reverted_at: Date | null; reason: string | null }>('SELECT mode, since, reverted_at, reason FROM verification_scorers WHERE scorer_id = :s AND battery_id = :b', { s: scorerId, b: batteryId });
+	return selectOne<{ mode: string; since: Date; reverted_at: Date | null; reason: string | null }>(
+		'SELECT mode, since, reverted_at, reason FROM verification_scorers WHERE scorer_id = :s AND battery_id = :b',
+		{ s: scorerId, b: batteryId }
+	);
 }
 
 export async function auditEvents(action: string, entityId: string | number) {

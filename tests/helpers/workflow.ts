@@ -43,7 +43,10 @@ export async function createViaForm(
 export async function correctScores(protocolId: number, raws: Record<string, number>): Promise<Scores> {
 	const p = await selectOne<{ norm_set_id: number }>('SELECT norm_set_id FROM protocols WHERE id = :id', { id: protocolId });
 	const tests = await protocolTests(protocolId);
-	const groups = await normGroups(p!.norm_set_id, tests.map((t) => t.code));
+	const groups = await normGroups(
+		p!.norm_set_id,
+		tests.map((t) => t.code)
+	);
 	const out: Scores = {};
 	for (const t of tests) {
 		const g = groups.find((x) => x.test_code === t.code && x.group_code === t.groupCode)!;
@@ -77,7 +80,18 @@ export async function saveAndSubmit(c: Client, id: number, scores: Scores) {
  */
 export async function throughWorkflow(
 	c: { lead: Client; first: Client; second: Client; reviewer: Client },
-	opts: { first: string; second: string; reviewer: string; battery?: string; code?: string; birthDate?: string; testDate?: string; raws?: Record<string, number>; secondChanges?: Scores; verify?: boolean }
+	opts: {
+		first: string;
+		second: string;
+		reviewer: string;
+		battery?: string;
+		code?: string;
+		birthDate?: string;
+		testDate?: string;
+		raws?: Record<string, number>;
+		secondChanges?: Scores;
+		verify?: boolean;
+	}
 ): Promise<number> {
 	const id = await createViaForm(c.lead, opts);
 	const correct = await correctScores(id, opts.raws ?? {});
@@ -89,7 +103,10 @@ export async function throughWorkflow(
 	const { select } = await import('../../src/lib/server/db');
 	// one at a time: settling a raw score may close its test's derived discrepancies
 	for (let guard = 0; guard < 100; guard++) {
-		const [d] = await select<{ id: number; lock_version: number }>('SELECT id, lock_version FROM discrepancies WHERE protocol_id = :id AND resolved_at IS NULL ORDER BY id LIMIT 1', { id });
+		const [d] = await select<{ id: number; lock_version: number }>(
+			'SELECT id, lock_version FROM discrepancies WHERE protocol_id = :id AND resolved_at IS NULL ORDER BY id LIMIT 1',
+			{ id }
+		);
 		if (!d) break;
 		const r = await c.reviewer.request(`/api/v1/discrepancies/${d.id}`, { method: 'PATCH', json: { choice: 'recomputed', lockVersion: d.lock_version } });
 		expect(r.status, await r.clone().text()).toBe(200);

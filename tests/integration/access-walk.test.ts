@@ -32,14 +32,20 @@ describe('the access table covers the route tree', () => {
 	});
 	it('lists no route that does not exist', () => {
 		const ids = new Set(routes.map((r) => r.id));
-		expect(Object.keys(ACCESS).filter((k) => !ids.has(k)), 'stale entries in src/lib/server/access.ts').toEqual([]);
+		expect(
+			Object.keys(ACCESS).filter((k) => !ids.has(k)),
+			'stale entries in src/lib/server/access.ts'
+		).toEqual([]);
 	});
 	it.each(routes.map((r) => [r.id]))('%s: every method it implements has a rule, and every rule a method', (id) => {
 		const { methods } = routeMethods(id);
 		const rules = ACCESS[id] ?? {};
 		for (const m of methods) expect(ruleFor(id, m), `${m} ${id} has no rule`).toBeDefined();
 		const listed = Object.keys(rules).filter((m) => m !== '*');
-		expect(listed.filter((m) => !methods.includes(m as Method)), `${id}: rules for methods the route does not implement`).toEqual([]);
+		expect(
+			listed.filter((m) => !methods.includes(m as Method)),
+			`${id}: rules for methods the route does not implement`
+		).toEqual([]);
 	});
 });
 

@@ -50,7 +50,10 @@ async function protocol(opts: { first: number; second: number; battery?: number;
 	);
 	const pid = p.insertId;
 	mine.push(pid);
-	for (const [which, scorer, s, day] of [['first', opts.first, opts.s1, opts.day1], ['second', opts.second, opts.s2, opts.day2]] as const) {
+	for (const [which, scorer, s, day] of [
+		['first', opts.first, opts.s1, opts.day1],
+		['second', opts.second, opts.s2, opts.day2]
+	] as const) {
 		await exec(
 			`INSERT INTO passes (protocol_id, round, which, scorer_id, status, scores, fields_entered, submitted_at)
 			 VALUES (:pid, 1, :which, :scorer, 'submitted', :scores, :n, :at)`,
@@ -98,7 +101,14 @@ function expectClose(a: unknown, b: unknown, path = ''): void {
 	expect(a, path).toEqual(b);
 }
 
-const SM = (raw: string, standard: string | null, t: string | null = '60', z: string | null = '1.00') => ({ raw, z, standard, scaled: '13', t, percentile: '84' });
+const SM = (raw: string, standard: string | null, t: string | null = '60', z: string | null = '1.00') => ({
+	raw,
+	z,
+	standard,
+	scaled: '13',
+	t,
+	percentile: '84'
+});
 const WR = (raw: string, standard: string | null, scaled: string | null = '13') => ({ raw, z: '1.07', standard, scaled, t: '61', percentile: '86' });
 
 beforeAll(async () => {
@@ -110,7 +120,9 @@ beforeAll(async () => {
 	ids.battery = b.id;
 	ids.normSet = b.norm_set_id;
 	ids.brief = (await selectOne<{ id: number }>(`SELECT id FROM batteries WHERE code = 'brief-screen'`))!.id;
-	const odd = await exec(`INSERT INTO users (email, name, roles) VALUES (:email, '=HYPERLINK("http://x.test","Odd")', 'scorer')`, { email: `odd.${Date.now()}@audit.test` });
+	const odd = await exec(`INSERT INTO users (email, name, roles) VALUES (:email, '=HYPERLINK("http://x.test","Odd")', 'scorer')`, {
+		email: `odd.${Date.now()}@audit.test`
+	});
 	ids.odd = odd.insertId;
 });
 
@@ -143,7 +155,9 @@ describe('attribution on resolution (recordResolution)', () => {
 
 	it('a single-pass discrepancy counts against that pass when its value was not kept', async () => {
 		await resolve(disc[0], 'recomputed', '115');
-		expect(await eventsOf(disc[0])).toEqual([{ scorer_id: ids.sam, kind: 'transposition', field: 'standard', test_code: 'speeded-match', domain: 'processing-speed' }]);
+		expect(await eventsOf(disc[0])).toEqual([
+			{ scorer_id: ids.sam, kind: 'transposition', field: 'standard', test_code: 'speeded-match', domain: 'processing-speed' }
+		]);
 	});
 
 	it('a raw mismatch (pass both) counts against the pass whose raw score was not kept, only', async () => {
@@ -175,7 +189,9 @@ describe('attribution on resolution (recordResolution)', () => {
 	});
 
 	it('entered_at is the attributed pass’s submission time', async () => {
-		const rows = await select<{ scorer_id: number; entered_at: Date }>('SELECT scorer_id, entered_at FROM error_events WHERE discrepancy_id = :d', { d: disc[2] });
+		const rows = await select<{ scorer_id: number; entered_at: Date }>('SELECT scorer_id, entered_at FROM error_events WHERE discrepancy_id = :d', {
+			d: disc[2]
+		});
 		const bySc = Object.fromEntries(rows.map((r) => [r.scorer_id, new Date(r.entered_at).toISOString().slice(0, 10)]));
 		expect(bySc[ids.sam]).toBe('2001-01-08');
 		expect(bySc[ids.rae]).toBe('2001-01-10');
@@ -282,11 +298,17 @@ describe('aggregates against figures computed from the raw rows', () => {
 		expect(kit.rows[0]).toMatchObject({ errors: errors.get(ids.kit) ?? 0, fields: fields.get(ids.kit) });
 
 		const brief = await runReport('scorers', { ...WINDOW, battery: ids.brief });
-		const briefPasses = await select<{ n: number }>(`SELECT COALESCE(SUM(p.fields_entered), 0) AS n FROM passes p JOIN protocols pr ON pr.id = p.protocol_id WHERE pr.id IN (:mine) AND pr.battery_id = :b`, { mine, b: ids.brief });
+		const briefPasses = await select<{ n: number }>(
+			`SELECT COALESCE(SUM(p.fields_entered), 0) AS n FROM passes p JOIN protocols pr ON pr.id = p.protocol_id WHERE pr.id IN (:mine) AND pr.battery_id = :b`,
+			{ mine, b: ids.brief }
+		);
 		expect(brief.rows.find((r) => r.scorer_id === null)!.fields).toBe(Number(briefPasses[0].n));
 
 		const january = await runReport('scorers', { ...WINDOW, to: '2001-01-31' });
-		const jan = await select<{ n: number }>(`SELECT COALESCE(SUM(fields_entered), 0) AS n FROM passes WHERE protocol_id IN (:mine) AND submitted_at < '2001-02-01'`, { mine });
+		const jan = await select<{ n: number }>(
+			`SELECT COALESCE(SUM(fields_entered), 0) AS n FROM passes WHERE protocol_id IN (:mine) AND submitted_at < '2001-02-01'`,
+			{ mine }
+		);
 		expect(january.rows.find((r) => r.scorer_id === null)!.fields).toBe(Number(jan[0].n));
 		const none = await runReport('scorers', { ...NO_FILTERS, from: '2000-01-01', to: '2000-12-31' });
 		expect(none.rows.find((r) => r.scorer_id === null)).toMatchObject({ errors: 0, fields: 0, rate: null });
@@ -302,7 +324,8 @@ describe('aggregates against figures computed from the raw rows', () => {
 			return x.toISOString().slice(0, 10);
 		};
 		const byWeek = new Map<string, number>();
-		for (const e of evs) byWeek.set(`${e.scorer_id}|${monday(new Date(e.entered_at))}`, (byWeek.get(`${e.scorer_id}|${monday(new Date(e.entered_at))}`) ?? 0) + 1);
+		for (const e of evs)
+			byWeek.set(`${e.scorer_id}|${monday(new Date(e.entered_at))}`, (byWeek.get(`${e.scorer_id}|${monday(new Date(e.entered_at))}`) ?? 0) + 1);
 		for (const [k, n] of byWeek) {
 			const [s, wk] = k.split('|');
 			expect(w.rows.find((r) => r.scorer_id === Number(s) && r.week_start === wk)).toMatchObject({ errors: n });
@@ -311,10 +334,18 @@ describe('aggregates against figures computed from the raw rows', () => {
 	});
 
 	it('agreement: exact %, kappa on AACN labels, six ICCs and Bland–Altman equal the library on the raw pairs', async () => {
-		const passes = await select<{ protocol_id: number; which: string; scores: string; submitted_at: Date }>(`SELECT protocol_id, which, scores, submitted_at FROM passes WHERE protocol_id IN (:mine)`, { mine });
-		const roundDay = (pid: number) => new Date(Math.max(...passes.filter((p) => p.protocol_id === pid).map((p) => new Date(p.submitted_at).getTime()))).toISOString().slice(0, 10);
+		const passes = await select<{ protocol_id: number; which: string; scores: string; submitted_at: Date }>(
+			`SELECT protocol_id, which, scores, submitted_at FROM passes WHERE protocol_id IN (:mine)`,
+			{ mine }
+		);
+		const roundDay = (pid: number) =>
+			new Date(Math.max(...passes.filter((p) => p.protocol_id === pid).map((p) => new Date(p.submitted_at).getTime()))).toISOString().slice(0, 10);
 		// whole weeks come from the weekly sums and edge days from the daily ones: a range on a week boundary and one mid-week
-		for (const [range, field] of [[WINDOW, 'standard'], [WINDOW, 'raw'], [{ ...WINDOW, from: '2001-01-10', to: '2001-02-13' }, 'standard']] as const) {
+		for (const [range, field] of [
+			[WINDOW, 'standard'],
+			[WINDOW, 'raw'],
+			[{ ...WINDOW, from: '2001-01-10', to: '2001-02-13' }, 'standard']
+		] as const) {
 			const pairs: Array<[number, number]> = [];
 			for (const pid of mine.filter((p) => roundDay(p) >= range.from! && roundDay(p) <= range.to!)) {
 				const [a, b] = ['first', 'second'].map((w) => jsonValue<Scores>(passes.find((p) => p.protocol_id === pid && p.which === w)!.scores));
@@ -358,7 +389,7 @@ describe('aggregates against figures computed from the raw rows', () => {
 
 	it('ICC and Bland–Altman from sums equal the matrix forms on random data (sums.ts)', () => {
 		let seed = 7;
-		const r = () => ((seed = (seed * 16807) % 2147483647) / 2147483647);
+		const r = () => (seed = (seed * 16807) % 2147483647) / 2147483647;
 		for (let trial = 0; trial < 25; trial++) {
 			const n = 2 + Math.floor(r() * 60);
 			const pairs = Array.from({ length: n }, () => {
@@ -434,7 +465,16 @@ describe('GET /api/v1/audit/[report]', () => {
 		expect(res.headers.get('content-disposition')).toMatch(/attachment; filename="crosstally-audit-scorers-\d{4}-\d{2}-\d{2}\.csv"/);
 		const text = (await res.text()).replace(/^\ufeff/, '');
 		const parsed = Papa.parse<string[]>(text.trim());
-		expect(parsed.data[0]).toEqual(['Scorer', 'Protocols scored', 'Errors', 'Fields entered', 'Errors per 100 fields', '95% CI lower (Wilson)', '95% CI upper (Wilson)', 'Errors per protocol']);
+		expect(parsed.data[0]).toEqual([
+			'Scorer',
+			'Protocols scored',
+			'Errors',
+			'Fields entered',
+			'Errors per 100 fields',
+			'95% CI lower (Wilson)',
+			'95% CI upper (Wilson)',
+			'Errors per protocol'
+		]);
 		const odd = parsed.data.find((r) => r[0].includes('HYPERLINK'))!;
 		expect(odd[0]).toBe(`'=HYPERLINK("http://x.test","Odd")`);
 		expect(parsed.data.some((r) => r[0] === 'All scorers')).toBe(true);

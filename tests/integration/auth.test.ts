@@ -93,7 +93,7 @@ describe('throttling of failed sign-ins (real Redis)', () => {
 });
 
 describe('deactivation', () => {
-	it("ends an existing session at its next request", async () => {
+	it('ends an existing session at its next request', async () => {
 		const email = `leaver-${Date.now()}@clinic.test`;
 		const id = await createUser({ email, name: 'Leaver', roles: ['scorer'], password: 'a-long-password-123' }, null);
 		const user = new Client();
@@ -135,7 +135,9 @@ describe('invitation by e-mail', () => {
 		expect(reused.body.data).toContain('already been used');
 		expect(await anon.signIn(email, 'a sentence of my own')).toBe(true);
 		expect((await me(anon)).body.roles.sort()).toEqual(['reviewer', 'scorer']);
-		const row = await selectOne<{ n: number }>(`SELECT COUNT(*) AS n FROM mail_log WHERE kind = 'invite' AND recipients = :email AND status = 'sent'`, { email });
+		const row = await selectOne<{ n: number }>(`SELECT COUNT(*) AS n FROM mail_log WHERE kind = 'invite' AND recipients = :email AND status = 'sent'`, {
+			email
+		});
 		expect(row?.n).toBe(1);
 	});
 
@@ -148,7 +150,9 @@ describe('invitation by e-mail', () => {
 			return m.length ? m : null;
 		});
 		const path = new URL(mail.text.match(/https?:\/\/\S+\/set-password\/[\w-]+/)![0]).pathname;
-		await exec(`UPDATE user_tokens ut JOIN users u ON u.id = ut.user_id SET ut.expires_at = UTC_TIMESTAMP(3) - INTERVAL 1 HOUR WHERE u.email = :email`, { email });
+		await exec(`UPDATE user_tokens ut JOIN users u ON u.id = ut.user_id SET ut.expires_at = UTC_TIMESTAMP(3) - INTERVAL 1 HOUR WHERE u.email = :email`, {
+			email
+		});
 		const page = await new Client().get(path);
 		expect(page.status).toBe(200);
 		expect(await page.text()).toContain('This link has expired');

@@ -17,7 +17,10 @@ const SCRATCH = `${config.db.name}_restore`;
 const npm = (args: string[]) => spawnSync('npm', ['run', '--silent', ...args], { encoding: 'utf8', env: process.env, timeout: 120_000 });
 
 async function tableStats(db: string): Promise<Record<string, { rows: number; checksum: number }>> {
-	const tables = await rootQuery<{ t: string }>("SELECT table_name AS t FROM information_schema.tables WHERE table_schema = ? AND table_type = 'BASE TABLE' ORDER BY table_name", [db]);
+	const tables = await rootQuery<{ t: string }>(
+		"SELECT table_name AS t FROM information_schema.tables WHERE table_schema = ? AND table_type = 'BASE TABLE' ORDER BY table_name",
+		[db]
+	);
 	const out: Record<string, { rows: number; checksum: number }> = {};
 	for (const { t } of tables) {
 		const [{ n }] = await rootQuery<{ n: number }>(`SELECT COUNT(*) AS n FROM \`${db}\`.\`${t}\``);
@@ -66,7 +69,13 @@ describe('backup and restore', () => {
 
 	it('the restored database has the app grants again (audit trail append-only), and the live one kept its own', async () => {
 		for (const db of [SCRATCH, config.db.name]) {
-			const conn = await mariadb.createConnection({ host: '127.0.0.1', port: config.db.port, user: config.db.user, password: config.db.password, database: db });
+			const conn = await mariadb.createConnection({
+				host: '127.0.0.1',
+				port: config.db.port,
+				user: config.db.user,
+				password: config.db.password,
+				database: db
+			});
 			try {
 				expect((await conn.query('SELECT COUNT(*) AS n FROM users'))[0].n).toBeGreaterThan(0);
 				await expect(conn.query("UPDATE audit_events SET action = 'x' LIMIT 1")).rejects.toThrow(/UPDATE command denied/);

@@ -15,7 +15,12 @@ import { closeDb, exec, selectOne, transaction } from '../../src/lib/server/db';
 let lead: Client;
 const uniq = () => `${Date.now().toString(36)}${Math.floor(Math.random() * 1e6).toString(36)}`;
 const count = async (table: string) => Number((await selectOne<{ n: number }>(`SELECT COUNT(*) AS n FROM ${table}`))!.n);
-const snapshot = async () => ({ groups: await count('norm_groups'), rows: await count('norm_table_rows'), sets: await count('norm_sets'), composites: await count('composites') });
+const snapshot = async () => ({
+	groups: await count('norm_groups'),
+	rows: await count('norm_table_rows'),
+	sets: await count('norm_sets'),
+	composites: await count('composites')
+});
 const post = (c: Client, path: string, json: unknown) => c.request(path, { method: 'POST', json });
 const put = (c: Client, path: string, json: unknown) => c.request(path, { method: 'PUT', json });
 
@@ -28,17 +33,44 @@ const SLIPS = `slips-${run}`; // error count 0–30, percentile only
 const INDEX = `memidx-${run}`; // composite of WORDS and TILE on scaled
 
 const newTest = (code: string, over: Record<string, unknown>) => ({
-	code, name: `Test ${code}`, domain: 'memory', unit: 'points', direction: 'higher_better',
-	raw: { min: 0, max: 20, decimals: 0 }, reported: ['scaled', 'percentile'], bounds: null, reliability: 0.8, notes: null, ...over
+	code,
+	name: `Test ${code}`,
+	domain: 'memory',
+	unit: 'points',
+	direction: 'higher_better',
+	raw: { min: 0, max: 20, decimals: 0 },
+	reported: ['scaled', 'percentile'],
+	bounds: null,
+	reliability: 0.8,
+	notes: null,
+	...over
 });
 
 /** reconcile.md, tile-build group a30: 0–4 → 3, 5–6 → 4, 7 → 5, … 16 → 14, 17–18 → 15, 19–20 → 17. */
 const TILE_A30: [number, number, number][] = [
-	[0, 4, 3], [5, 6, 4], [7, 7, 5], [8, 8, 6], [9, 9, 7], [10, 10, 8], [11, 11, 9], [12, 12, 10],
-	[13, 13, 11], [14, 14, 12], [15, 15, 13], [16, 16, 14], [17, 18, 15], [19, 20, 17]
+	[0, 4, 3],
+	[5, 6, 4],
+	[7, 7, 5],
+	[8, 8, 6],
+	[9, 9, 7],
+	[10, 10, 8],
+	[11, 11, 9],
+	[12, 12, 10],
+	[13, 13, 11],
+	[14, 14, 12],
+	[15, 15, 13],
+	[16, 16, 14],
+	[17, 18, 15],
+	[19, 20, 17]
 ];
 const rowsOf = (t: [number, number, number][]) => t.map(([lo, hi, score]) => ({ lo, hi, score, percentile: null }));
-const group = (test: string, code: string, min: number, max: number, extra: Record<string, unknown>) => ({ test_code: test, group_code: code, age_min_months: min, age_max_months: max, ...extra });
+const group = (test: string, code: string, min: number, max: number, extra: Record<string, unknown>) => ({
+	test_code: test,
+	group_code: code,
+	age_min_months: min,
+	age_max_months: max,
+	...extra
+});
 
 let setId: number;
 let batteryId: number;
@@ -54,7 +86,13 @@ beforeAll(async () => {
 		const r = await post(lead, '/api/v1/tests', t);
 		expect(r.status, await r.clone().text()).toBe(201);
 	}
-	const s = await post(lead, '/api/v1/norm-sets', { code: `forms-${run}`, name: 'Forms', source: 'Invented for a test', version: '1', covariate_age: 'whole_years' });
+	const s = await post(lead, '/api/v1/norm-sets', {
+		code: `forms-${run}`,
+		name: 'Forms',
+		source: 'Invented for a test',
+		version: '1',
+		covariate_age: 'whole_years'
+	});
 	expect(s.status).toBe(201);
 	setId = (await s.json()).normSet.id;
 });
@@ -62,7 +100,9 @@ afterAll(() => closeDb());
 
 describe('conversion tables', () => {
 	it('stores the tile-build a30 table and gives it back row by row', async () => {
-		const r = await put(lead, `/api/v1/norm-sets/${setId}`, { groups: [group(TILE, 'a30', 360, 479, { form: 'table', scale: 'scaled', rows: rowsOf(TILE_A30) })] });
+		const r = await put(lead, `/api/v1/norm-sets/${setId}`, {
+			groups: [group(TILE, 'a30', 360, 479, { form: 'table', scale: 'scaled', rows: rowsOf(TILE_A30) })]
+		});
 		expect(r.status, await r.clone().text()).toBe(200);
 		const back = await (await lead.get(`/api/v1/norm-sets/${setId}?test=${TILE}`)).json();
 		expect(back.groups).toHaveLength(1);
@@ -110,9 +150,13 @@ describe('conversion tables', () => {
 		expect(r.status, await r.clone().text()).toBe(200);
 		const back = await (await lead.get(`/api/v1/norm-sets/${setId}?test=${SLIPS}`)).json();
 		expect(back.groups[0].rows.map((x: { percentile: string }) => x.percentile)).toEqual(['>=75', '26–74', '10-25', '≤9']);
-		r = await put(lead, `/api/v1/norm-sets/${setId}`, { groups: [group(TILE, 'b', 0, 359, { form: 'table', scale: 'percentile', rows: [{ lo: 0, hi: 20, score: null, percentile: '50' }] })] });
+		r = await put(lead, `/api/v1/norm-sets/${setId}`, {
+			groups: [group(TILE, 'b', 0, 359, { form: 'table', scale: 'percentile', rows: [{ lo: 0, hi: 20, score: null, percentile: '50' }] })]
+		});
 		expect(r.status).toBe(422);
-		expect((await r.json()).message).toContain(`a percentile-only table fits only a test that reports the percentile alone (${TILE} reports scaled, percentile)`);
+		expect((await r.json()).message).toContain(
+			`a percentile-only table fits only a test that reports the percentile alone (${TILE} reports scaled, percentile)`
+		);
 		// a band is no value of a score table's percentile column
 		const banded = rowsOf(TILE_A30).map((x) => ({ ...x, percentile: '5-9' }));
 		r = await put(lead, `/api/v1/norm-sets/${setId}`, { groups: [group(TILE, 'a30', 360, 479, { form: 'table', scale: 'scaled', rows: banded })] });
@@ -148,7 +192,14 @@ describe('regression equations', () => {
 describe('battery composites and their norms', () => {
 	it('defines a composite over two parts on the scaled score; refuses a code a test has, a part outside the battery, a part that does not report the field', async () => {
 		const base = { code: `bat-${run}`, name: 'Forms battery', description: '', norm_set_id: setId, tests: [WORDS, TILE, NAMING, SLIPS] };
-		const composite = { code: INDEX, name: 'Memory index', parts: [WORDS, TILE], part_field: 'scaled', reported: ['standard', 'sum', 'percentile'], reliability: 0.9 };
+		const composite = {
+			code: INDEX,
+			name: 'Memory index',
+			parts: [WORDS, TILE],
+			part_field: 'scaled',
+			reported: ['standard', 'sum', 'percentile'],
+			reliability: 0.9
+		};
 		for (const [c, status, message] of [
 			[{ ...composite, code: TILE }, 400, `Composite ${TILE}: a test has this code; composites and tests need different codes.`],
 			[{ ...composite, parts: [WORDS, 'speeded-match'] }, 400, `Composite ${INDEX}: part speeded-match is not a test of this battery.`],
@@ -163,7 +214,16 @@ describe('battery composites and their norms', () => {
 		const b = (await r.json()).battery;
 		batteryId = b.id;
 		// reported fields kept in field order: sum first
-		expect(b.composites).toEqual([expect.objectContaining({ code: INDEX, parts: [WORDS, TILE], part_field: 'scaled', reported: ['sum', 'standard', 'percentile'], reliability: 0.9, position: 1 })]);
+		expect(b.composites).toEqual([
+			expect.objectContaining({
+				code: INDEX,
+				parts: [WORDS, TILE],
+				part_field: 'scaled',
+				reported: ['sum', 'standard', 'percentile'],
+				reliability: 0.9,
+				position: 1
+			})
+		]);
 		// an update without `composites` keeps them
 		const u = await put(lead, `/api/v1/batteries/${batteryId}`, { ...base, name: 'Forms battery, renamed' });
 		expect((await u.json()).battery.composites).toHaveLength(1);
@@ -178,14 +238,21 @@ describe('battery composites and their norms', () => {
 
 	it('checks a sum table against every possible sum: two scaled parts of 1–19 give sums 2–38', async () => {
 		// 2–38 is 1 + 1 to 19 + 19 (reconcile.md, Composites: from the sum of the parts' lower bounds to the sum of their upper bounds)
-		const ok = [{ lo: 2, hi: 10, score: 60 }, { lo: 11, hi: 20, score: 85 }, { lo: 21, hi: 30, score: 110 }, { lo: 31, hi: 38, score: 140 }].map((x) => ({ ...x, percentile: null }));
+		const ok = [
+			{ lo: 2, hi: 10, score: 60 },
+			{ lo: 11, hi: 20, score: 85 },
+			{ lo: 21, hi: 30, score: 110 },
+			{ lo: 31, hi: 38, score: 140 }
+		].map((x) => ({ ...x, percentile: null }));
 		let r = await put(lead, `/api/v1/norm-sets/${setId}`, { groups: [group(INDEX, 'a40', 480, 599, { form: 'table', scale: 'standard', rows: ok })] });
 		expect(r.status, await r.clone().text()).toBe(200);
 		const short = ok.map((x, i) => (i === 0 ? { ...x, lo: 3 } : x));
 		r = await put(lead, `/api/v1/norm-sets/${setId}`, { groups: [group(INDEX, 'a40', 480, 599, { form: 'table', scale: 'standard', rows: short })] });
 		expect(r.status).toBe(422);
 		expect((await r.json()).problems).toEqual([`groups[0] (${INDEX} a40), row 1: gap — nothing covers sum 2–2 before this row.`]);
-		r = await put(lead, `/api/v1/norm-sets/${setId}`, { groups: [group(INDEX, 'a40', 480, 599, { form: 'regression', intercept: 1, coefficients: { age: 1 }, sd: 1 })] });
+		r = await put(lead, `/api/v1/norm-sets/${setId}`, {
+			groups: [group(INDEX, 'a40', 480, 599, { form: 'regression', intercept: 1, coefficients: { age: 1 }, sd: 1 })]
+		});
 		expect(r.status).toBe(422);
 		expect((await r.json()).problems).toEqual([`groups[0] (${INDEX} a40): a composite is normed by mean/SD of its sum or by a sum table`]);
 	});
@@ -194,7 +261,8 @@ describe('battery composites and their norms', () => {
 const TH = 'test_code,group_code,age_min_months,age_max_months,sex,edu_min,edu_max,scale,raw_lo,raw_hi,score,percentile';
 const EH = 'test_code,group_code,age_min_months,age_max_months,sex,edu_min,edu_max,intercept,b_age,b_education,b_sex,residual_sd,n';
 const newSet = () => ({ mode: 'new', set: { code: `imp-${uniq()}`, name: 'Imported tables', source: 'Invented for a test', version: '1' } });
-const tableLines = (test: string, g: string, min: number, max: number, t: [number, number, number][]) => t.map(([lo, hi, s]) => `${test},${g},${min},${max},,,,scaled,${lo},${hi},${s},`);
+const tableLines = (test: string, g: string, min: number, max: number, t: [number, number, number][]) =>
+	t.map(([lo, hi, s]) => `${test},${g},${min},${max},,,,scaled,${lo},${hi},${s},`);
 
 describe('CSV import and export of tables and equations', () => {
 	it('previews a tables file with row-level errors on the lines of the rows, and a confirm of it writes nothing', async () => {
@@ -217,7 +285,15 @@ describe('CSV import and export of tables and equations', () => {
 	});
 
 	it('imports tables, equations and a sum table into a new norm set, and exports them back unchanged', async () => {
-		const tables = [TH, ...tableLines(TILE, 'a30', 360, 479, TILE_A30), `${INDEX},a30,360,479,,,,standard,2,19,85,16`, `${INDEX},a30,360,479,,,,standard,20,38,115,84`, `${SLIPS},all,0,1500,,,,percentile,0,2,,>=50`, `${SLIPS},all,0,1500,,,,percentile,3,30,,<=49`].join('\r\n') + '\r\n';
+		const tables =
+			[
+				TH,
+				...tableLines(TILE, 'a30', 360, 479, TILE_A30),
+				`${INDEX},a30,360,479,,,,standard,2,19,85,16`,
+				`${INDEX},a30,360,479,,,,standard,20,38,115,84`,
+				`${SLIPS},all,0,1500,,,,percentile,0,2,,>=50`,
+				`${SLIPS},all,0,1500,,,,percentile,3,30,,<=49`
+			].join('\r\n') + '\r\n';
 		const r = await post(lead, '/api/v1/catalog/import/confirm', { kind: 'tables', csv: tables, target: newSet() });
 		expect(r.status, await r.clone().text()).toBe(200);
 		const out = (await r.json()).imported;
@@ -243,13 +319,19 @@ describe('CSV import and export of tables and equations', () => {
 		const lines = tableLines(TILE, 'a30', 360, 479, TILE_A30);
 		lines[5] = lines[5].replace(`${TILE},a30,360,479`, `${TILE},a30,360,480`);
 		const pre2 = await (await post(lead, '/api/v1/catalog/import/preview', { kind: 'tables', csv: [TH, ...lines].join('\n') })).json();
-		expect(pre2.preview.errors[0]).toEqual({ line: 7, column: 'age_min_months', message: `Group a30 of ${TILE} has other ages, keys or scale here than on line 2; every row of one table repeats the same group columns` });
+		expect(pre2.preview.errors[0]).toEqual({
+			line: 7,
+			column: 'age_min_months',
+			message: `Group a30 of ${TILE} has other ages, keys or scale here than on line 2; every row of one table repeats the same group columns`
+		});
 	});
 
 	it('rolls back a tables import into a set whose group a protocol used (409), leaving every row as it was', async () => {
 		const s = await (await post(lead, '/api/v1/norm-sets', { code: `used-${uniq()}`, name: 'Used', source: 'Invented', version: '1' })).json();
 		const id = s.normSet.id;
-		expect((await put(lead, `/api/v1/norm-sets/${id}`, { groups: [group(TILE, 'a30', 0, 1000, { form: 'table', scale: 'scaled', rows: rowsOf(TILE_A30) })] })).status).toBe(200);
+		expect(
+			(await put(lead, `/api/v1/norm-sets/${id}`, { groups: [group(TILE, 'a30', 0, 1000, { form: 'table', scale: 'scaled', rows: rowsOf(TILE_A30) })] })).status
+		).toBe(200);
 		const g = await selectOne<{ id: number }>('SELECT id FROM norm_groups WHERE norm_set_id = :id', { id });
 		await transaction(async (t) => {
 			const uid = async (email: string) => Number((await selectOne<{ id: number }>('SELECT id FROM users WHERE email = :email', { email }, t))!.id);
@@ -257,14 +339,34 @@ describe('CSV import and export of tables and equations', () => {
 			const p = await exec(
 				`INSERT INTO protocols (examinee_id, battery_id, norm_set_id, test_date, age_text, age_months, status, first_scorer_id, second_scorer_id, reviewer_id)
 				 VALUES (:ex, :b, :ns, '2024-05-01', '34;4;0', 412, 'verified', :a, :c, :r)`,
-				{ ex: ex.insertId, b: batteryId, ns: id, a: await uid('sam.scorer@demo.crosstally.test'), c: await uid('rae.scorer@demo.crosstally.test'), r: await uid('rita.reviewer@demo.crosstally.test') },
+				{
+					ex: ex.insertId,
+					b: batteryId,
+					ns: id,
+					a: await uid('sam.scorer@demo.crosstally.test'),
+					c: await uid('rae.scorer@demo.crosstally.test'),
+					r: await uid('rita.reviewer@demo.crosstally.test')
+				},
 				t
 			);
 			const test = await selectOne<{ id: number }>('SELECT id FROM tests WHERE code = :c AND is_current = 1', { c: TILE }, t);
-			await exec('INSERT INTO protocol_tests (protocol_id, position, test_id, norm_group_id) VALUES (:p, 1, :test, :g)', { p: p.insertId, test: test!.id, g: g!.id }, t);
+			await exec(
+				'INSERT INTO protocol_tests (protocol_id, position, test_id, norm_group_id) VALUES (:p, 1, :test, :g)',
+				{ p: p.insertId, test: test!.id, g: g!.id },
+				t
+			);
 		});
 		const before = await snapshot();
-		const csv = [TH, ...tableLines(TILE, 'a30', 0, 1000, TILE_A30.map(([lo, hi, sc]) => [lo, hi, Math.min(19, sc + 1)] as [number, number, number]))].join('\n');
+		const csv = [
+			TH,
+			...tableLines(
+				TILE,
+				'a30',
+				0,
+				1000,
+				TILE_A30.map(([lo, hi, sc]) => [lo, hi, Math.min(19, sc + 1)] as [number, number, number])
+			)
+		].join('\n');
 		const r = await post(lead, '/api/v1/catalog/import/confirm', { kind: 'tables', csv, target: { mode: 'existing', id } });
 		expect(r.status).toBe(409);
 		expect(await snapshot()).toEqual(before);

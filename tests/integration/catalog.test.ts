@@ -11,7 +11,12 @@ let lead: Client;
 let scorer: Client;
 const uniq = () => `${Date.now().toString(36)}${Math.floor(Math.random() * 1e6).toString(36)}`;
 const count = async (table: string) => Number((await selectOne<{ n: number }>(`SELECT COUNT(*) AS n FROM ${table}`))!.n);
-const snapshot = async () => ({ tests: await count('tests'), groups: await count('norm_groups'), sets: await count('norm_sets'), domains: await count('domains') });
+const snapshot = async () => ({
+	tests: await count('tests'),
+	groups: await count('norm_groups'),
+	sets: await count('norm_sets'),
+	domains: await count('domains')
+});
 
 beforeAll(async () => {
 	lead = await signedIn('lead');
@@ -20,8 +25,17 @@ beforeAll(async () => {
 afterAll(() => closeDb());
 
 const newTest = (code: string, over: Record<string, unknown> = {}) => ({
-	code, name: `Test ${code}`, domain: 'memory', unit: 'points', direction: 'higher_better',
-	raw: { min: 0, max: 40, decimals: 0 }, reported: ['standard', 'percentile'], bounds: null, reliability: 0.8, notes: null, ...over
+	code,
+	name: `Test ${code}`,
+	domain: 'memory',
+	unit: 'points',
+	direction: 'higher_better',
+	raw: { min: 0, max: 40, decimals: 0 },
+	reported: ['standard', 'percentile'],
+	bounds: null,
+	reliability: 0.8,
+	notes: null,
+	...over
 });
 const post = (c: Client, path: string, json: unknown) => c.request(path, { method: 'POST', json });
 const put = (c: Client, path: string, json: unknown) => c.request(path, { method: 'PUT', json });
@@ -29,7 +43,11 @@ const put = (c: Client, path: string, json: unknown) => c.request(path, { method
 /** A verified protocol that used the given test version (rows inserted directly). */
 async function verifiedProtocolUsing(testId: number, status = 'verified'): Promise<number> {
 	const ids = async (email: string) => Number((await selectOne<{ id: number }>('SELECT id FROM users WHERE email = :email', { email }))!.id);
-	const [a, b, r] = [await ids('sam.scorer@demo.crosstally.test'), await ids('rae.scorer@demo.crosstally.test'), await ids('rita.reviewer@demo.crosstally.test')];
+	const [a, b, r] = [
+		await ids('sam.scorer@demo.crosstally.test'),
+		await ids('rae.scorer@demo.crosstally.test'),
+		await ids('rita.reviewer@demo.crosstally.test')
+	];
 	const battery = Number((await selectOne<{ id: number }>("SELECT id FROM batteries WHERE code = 'core-adult'"))!.id);
 	const ns = Number((await selectOne<{ id: number }>("SELECT id FROM norm_sets WHERE code = 'harbourview-adult'"))!.id);
 	return transaction(async (t) => {
@@ -50,16 +68,33 @@ describe('JSON API access and validation', () => {
 		const t = await (await scorer.get('/api/v1/tests')).json();
 		expect(t.tests.map((x: { code: string }) => x.code)).toEqual(expect.arrayContaining(['speeded-match', 'word-recall']));
 		const sm = t.tests.find((x: { code: string }) => x.code === 'speeded-match');
-		expect(sm).toMatchObject({ direction: 'lower_better', raw: { min: 0, max: 300, decimals: 1 }, reported: ['z', 'standard', 'scaled', 't', 'percentile'], bounds: { t: [20, 80] } });
+		expect(sm).toMatchObject({
+			direction: 'lower_better',
+			raw: { min: 0, max: 300, decimals: 1 },
+			reported: ['z', 'standard', 'scaled', 't', 'percentile'],
+			bounds: { t: [20, 80] }
+		});
 		const b = await (await scorer.get('/api/v1/batteries')).json();
 		const core = b.batteries.find((x: { code: string }) => x.code === 'core-adult');
 		expect(core.tests).toBeGreaterThanOrEqual(12);
 		const one = await (await scorer.get(`/api/v1/batteries/${core.id}`)).json();
-		expect(one.battery.domains.map((d: { code: string }) => d.code)).toEqual(['attention', 'processing-speed', 'memory', 'language', 'visuospatial', 'executive']);
+		expect(one.battery.domains.map((d: { code: string }) => d.code)).toEqual([
+			'attention',
+			'processing-speed',
+			'memory',
+			'language',
+			'visuospatial',
+			'executive'
+		]);
 		const ns = await (await scorer.get('/api/v1/norm-sets')).json();
 		const h = ns.normSets.find((x: { code: string }) => x.code === 'harbourview-adult');
 		const groups = await (await scorer.get(`/api/v1/norm-sets/${h.id}?test=word-recall`)).json();
-		expect(groups.groups.find((g: { group_code: string }) => g.group_code === 'a30')).toMatchObject({ mean: 24.5, sd: 4.2, age_min_months: 360, age_max_months: 479 });
+		expect(groups.groups.find((g: { group_code: string }) => g.group_code === 'a30')).toMatchObject({
+			mean: 24.5,
+			sd: 4.2,
+			age_min_months: 360,
+			age_max_months: 479
+		});
 		expect(groups.groups.find((g: { group_code: string }) => g.group_code === 'a40')).toMatchObject({ mean: 22.1, sd: 4.6 });
 	});
 	it('refuses writes from a scorer', async () => {
@@ -138,7 +173,15 @@ describe('norm groups: overlapping or gapped age ranges are refused with the row
 		expect(r.status).toBe(201);
 		setId = (await r.json()).normSet.id;
 	});
-	const g = (group: string, min: number, max: number, extra = {}) => ({ test_code: 'word-recall', group_code: group, age_min_months: min, age_max_months: max, mean: 20, sd: 4, ...extra });
+	const g = (group: string, min: number, max: number, extra = {}) => ({
+		test_code: 'word-recall',
+		group_code: group,
+		age_min_months: min,
+		age_max_months: max,
+		mean: 20,
+		sd: 4,
+		...extra
+	});
 
 	it('accepts contiguous bands and refuses an overlap, naming both', async () => {
 		expect((await put(lead, `/api/v1/norm-sets/${setId}`, { groups: [g('a18', 216, 359), g('a30', 360, 479)] })).status).toBe(200);
@@ -147,7 +190,10 @@ describe('norm groups: overlapping or gapped age ranges are refused with the row
 		const body = await r.json();
 		expect(body.message).toMatch(/overlap for word-recall.*a18.*216–359.*a30.*350–479/);
 		const kept = await (await lead.get(`/api/v1/norm-sets/${setId}`)).json();
-		expect(kept.groups.map((x: { group_code: string; age_min_months: number }) => [x.group_code, x.age_min_months])).toEqual([['a18', 216], ['a30', 360]]);
+		expect(kept.groups.map((x: { group_code: string; age_min_months: number }) => [x.group_code, x.age_min_months])).toEqual([
+			['a18', 216],
+			['a30', 360]
+		]);
 	});
 	it('refuses a gap', async () => {
 		const r = await put(lead, `/api/v1/norm-sets/${setId}`, { groups: [g('a18', 216, 359), g('a40', 480, 599)] });
@@ -155,13 +201,29 @@ describe('norm groups: overlapping or gapped age ranges are refused with the row
 		expect((await r.json()).message).toMatch(/gap for word-recall: nothing covers 360–479 months/);
 	});
 	it('checks each set of keys apart (education bands side by side are fine)', async () => {
-		const r = await put(lead, `/api/v1/norm-sets/${setId}`, { groups: [g('lo', 216, 479, { edu_min: 0, edu_max: 12 }), g('hi', 216, 479, { edu_min: 13, edu_max: 30 })] });
+		const r = await put(lead, `/api/v1/norm-sets/${setId}`, {
+			groups: [g('lo', 216, 479, { edu_min: 0, edu_max: 12 }), g('hi', 216, 479, { edu_min: 13, edu_max: 30 })]
+		});
 		expect(r.status).toBe(200);
 	});
 	it('refuses a hand-added group that would overlap (the form action)', async () => {
-		const a = await lead.action(`/catalog/norm-sets/${setId}?/group`, { test_code: 'speeded-match', group_code: 'x1', age_min_months: '216', age_max_months: '359', mean: '40', sd: '6' });
+		const a = await lead.action(`/catalog/norm-sets/${setId}?/group`, {
+			test_code: 'speeded-match',
+			group_code: 'x1',
+			age_min_months: '216',
+			age_max_months: '359',
+			mean: '40',
+			sd: '6'
+		});
 		expect(a.body.type).toBe('success');
-		const b = await lead.action(`/catalog/norm-sets/${setId}?/group`, { test_code: 'speeded-match', group_code: 'x2', age_min_months: '300', age_max_months: '400', mean: '40', sd: '6' });
+		const b = await lead.action(`/catalog/norm-sets/${setId}?/group`, {
+			test_code: 'speeded-match',
+			group_code: 'x2',
+			age_min_months: '300',
+			age_max_months: '400',
+			mean: '40',
+			sd: '6'
+		});
 		expect(b.body.type).toBe('failure');
 		expect(b.body.data).toMatch(/overlap for speeded-match/);
 		const n = await selectOne<{ n: number }>("SELECT COUNT(*) AS n FROM norm_groups WHERE norm_set_id = :setId AND test_code = 'speeded-match'", { setId });
@@ -175,7 +237,10 @@ const newSet = () => ({ mode: 'new', set: { code: `imp-${uniq()}`, name: 'Import
 describe('CSV import: preview writes nothing, confirm is all or nothing', () => {
 	it('previews with row messages and writes nothing', async () => {
 		const before = await snapshot();
-		const r = await post(lead, '/api/v1/catalog/import/preview', { kind: 'norms', csv: `${NH}\nword-recall,a18,216,359,,,,25,4,\nword-recall,a30,360,479,,,,24,0,\n` });
+		const r = await post(lead, '/api/v1/catalog/import/preview', {
+			kind: 'norms',
+			csv: `${NH}\nword-recall,a18,216,359,,,,25,4,\nword-recall,a30,360,479,,,,24,0,\n`
+		});
 		const body = await r.json();
 		expect(body.ok).toBe(false);
 		expect(body.preview.errors).toEqual([{ line: 3, column: 'sd', message: 'sd: 0 — SD must be above 0' }]);
@@ -183,7 +248,11 @@ describe('CSV import: preview writes nothing, confirm is all or nothing', () => 
 	});
 	it('refuses a file with one bad row among 2,000 good ones, writing nothing (not even the new norm set)', async () => {
 		// 2,000 groups with distinct keys: education years and sex, one band each.
-		const lines = Array.from({ length: 2000 }, (_, i) => `${i % 2 ? 'word-recall' : 'speeded-match'},g${i},${Math.floor(i / 82) * 12},${Math.floor(i / 82) * 12 + 11},${['', 'F'][Math.floor(i / 41) % 2]},${i % 41},${i % 41},25,4,10`);
+		const lines = Array.from(
+			{ length: 2000 },
+			(_, i) =>
+				`${i % 2 ? 'word-recall' : 'speeded-match'},g${i},${Math.floor(i / 82) * 12},${Math.floor(i / 82) * 12 + 11},${['', 'F'][Math.floor(i / 41) % 2]},${i % 41},${i % 41},25,4,10`
+		);
 		lines[1500] = lines[1500].replace(',25,4,10', ',25,abc,10');
 		const before = await snapshot();
 		const r = await post(lead, '/api/v1/catalog/import/confirm', { kind: 'norms', csv: [NH, ...lines].join('\n'), target: newSet() });
@@ -200,12 +269,20 @@ describe('CSV import: preview writes nothing, confirm is all or nothing', () => 
 	it('rolls back the whole import when a write fails part-way (groups a protocol used cannot be replaced)', async () => {
 		const set = await (await post(lead, '/api/v1/norm-sets', { code: `used-${uniq()}`, name: 'Used', source: 'Invented', version: '1' })).json();
 		const id = set.normSet.id;
-		await put(lead, `/api/v1/norm-sets/${id}`, { groups: [{ test_code: 'word-recall', group_code: 'a', age_min_months: 0, age_max_months: 1000, mean: 1, sd: 1 }] });
+		await put(lead, `/api/v1/norm-sets/${id}`, {
+			groups: [{ test_code: 'word-recall', group_code: 'a', age_min_months: 0, age_max_months: 1000, mean: 1, sd: 1 }]
+		});
 		const group = await selectOne<{ id: number }>('SELECT id FROM norm_groups WHERE norm_set_id = :id', { id });
-		const protocol = await verifiedProtocolUsing(Number((await selectOne<{ id: number }>("SELECT id FROM tests WHERE code = 'word-recall' AND is_current = 1"))!.id));
+		const protocol = await verifiedProtocolUsing(
+			Number((await selectOne<{ id: number }>("SELECT id FROM tests WHERE code = 'word-recall' AND is_current = 1"))!.id)
+		);
 		await exec('UPDATE protocol_tests SET norm_group_id = :g WHERE protocol_id = :protocol', { g: group!.id, protocol });
 		const before = await snapshot();
-		const r = await post(lead, '/api/v1/catalog/import/confirm', { kind: 'norms', csv: `${NH}\nword-recall,b,0,1000,,,,2,2,\n`, target: { mode: 'existing', id } });
+		const r = await post(lead, '/api/v1/catalog/import/confirm', {
+			kind: 'norms',
+			csv: `${NH}\nword-recall,b,0,1000,,,,2,2,\n`,
+			target: { mode: 'existing', id }
+		});
 		expect(r.status).toBe(409);
 		expect(await snapshot()).toEqual(before);
 	});

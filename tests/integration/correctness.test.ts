@@ -55,7 +55,14 @@ describe('item 1: the norm set’s age rule decides the age and the group', () =
 		];
 		const made: Record<string, { set: number; battery: number }> = {};
 		for (const rounding of ['truncate', 'round_days'] as const) {
-			const r = await post(lead, '/api/v1/norm-sets', { code: `rule-${rounding.replace('_', '-')}-${uniq()}`, name: `Age rule ${rounding}`, source: 'Invented for a test', version: '1', borrow_days: '30', rounding });
+			const r = await post(lead, '/api/v1/norm-sets', {
+				code: `rule-${rounding.replace('_', '-')}-${uniq()}`,
+				name: `Age rule ${rounding}`,
+				source: 'Invented for a test',
+				version: '1',
+				borrow_days: '30',
+				rounding
+			});
 			expect(r.status).toBe(201);
 			const set = (await r.json()).normSet.id as number;
 			// Groups only: this PUT must not touch the age rule (it used to reset it to truncate).
@@ -66,7 +73,10 @@ describe('item 1: the norm set’s age rule decides the age and the group', () =
 		}
 		const got: Record<string, { age_text: string; age_months: number; group_code: string }> = {};
 		for (const rounding of ['truncate', 'round_days'] as const) {
-			const r = await lead.action('/protocols/new', await formFields({ birthDate: '1996-05-10', testDate: '2026-04-30', batteryId: String(made[rounding].battery), normSetId: String(made[rounding].set) }));
+			const r = await lead.action(
+				'/protocols/new',
+				await formFields({ birthDate: '1996-05-10', testDate: '2026-04-30', batteryId: String(made[rounding].battery), normSetId: String(made[rounding].set) })
+			);
 			expect(r.body.type, JSON.stringify(r.body)).toBe('redirect');
 			const id = Number(r.body.location!.match(/\/protocols\/(\d+)/)![1]);
 			got[rounding] = (await selectOne(
@@ -146,7 +156,10 @@ describe('item 3: an empty raw score is not a raw score of 0', () => {
 		first['switch-rule'] = { raw: null, standard: '123.0', t: '65.0', percentile: '94.0' };
 		expect((await saveAndSubmit(s1, id, first)).status).toBe(200);
 		expect((await saveAndSubmit(s2, id, second)).status).toBe(200);
-		const ds = await select<{ id: number; test_code: string; field: string; lock_version: number }>('SELECT id, test_code, field, lock_version FROM discrepancies WHERE protocol_id = :id', { id });
+		const ds = await select<{ id: number; test_code: string; field: string; lock_version: number }>(
+			'SELECT id, test_code, field, lock_version FROM discrepancies WHERE protocol_id = :id',
+			{ id }
+		);
 		expect(ds.map((d) => `${d.test_code}.${d.field}`)).toEqual(['switch-rule.raw']);
 		const r = await reviewer.request(`/api/v1/discrepancies/${ds[0].id}`, { method: 'PATCH', json: { choice: 'second', lockVersion: ds[0].lock_version } });
 		expect(r.status).toBe(200);
@@ -163,11 +176,29 @@ describe('item 3: an empty raw score is not a raw score of 0', () => {
 // ------------------------------------------------------------------------------------------------
 describe('item 4: the norm-set PUT is one transaction', () => {
 	it('a refused group change leaves the name and the age rule as they were', async () => {
-		const r = await post(lead, '/api/v1/norm-sets', { code: `atomic-${uniq()}`, name: 'Before the change', source: 'Invented for a test', version: '1', borrow_days: 'actual', rounding: 'round_days' });
+		const r = await post(lead, '/api/v1/norm-sets', {
+			code: `atomic-${uniq()}`,
+			name: 'Before the change',
+			source: 'Invented for a test',
+			version: '1',
+			borrow_days: 'actual',
+			rounding: 'round_days'
+		});
 		const set = (await r.json()).normSet.id as number;
-		const g = (code: string, min: number, max: number) => ({ test_code: 'word-recall', group_code: code, age_min_months: min, age_max_months: max, mean: 20, sd: 4 });
+		const g = (code: string, min: number, max: number) => ({
+			test_code: 'word-recall',
+			group_code: code,
+			age_min_months: min,
+			age_max_months: max,
+			mean: 20,
+			sd: 4
+		});
 		// 216–359 and 350–479 overlap by 350–359: refused (422)
-		const bad = await put(lead, `/api/v1/norm-sets/${set}`, { name: 'After the change', rounding: 'truncate', groups: [g('a18', 216, 359), g('a30', 350, 479)] });
+		const bad = await put(lead, `/api/v1/norm-sets/${set}`, {
+			name: 'After the change',
+			rounding: 'truncate',
+			groups: [g('a18', 216, 359), g('a30', 350, 479)]
+		});
 		expect(bad.status).toBe(422);
 		const unknown = await put(lead, `/api/v1/norm-sets/${set}`, { name: 'After the change', groups: [{ ...g('a18', 216, 359), test_code: 'no-such-test' }] });
 		expect([400, 422]).toContain(unknown.status); // an unknown test code is refused (the norm-form check answers 422)
@@ -297,7 +328,9 @@ describe('item 6: creating a protocol never guesses', () => {
 		);
 		expect(rows.map((x) => x.group_code)).toEqual(['a18', 'a18', 'a18', 'a18-e13', 'a18']);
 		expect(rows.every((x) => x.override_reason.length >= 5)).toBe(true);
-		expect((await selectOne<{ n: number }>("SELECT COUNT(*) AS n FROM audit_events WHERE protocol_id = :id AND action = 'norm_group_override'", { id }))!.n).toBe(5);
+		expect(
+			(await selectOne<{ n: number }>("SELECT COUNT(*) AS n FROM audit_events WHERE protocol_id = :id AND action = 'norm_group_override'", { id }))!.n
+		).toBe(5);
 	});
 
 	it('an existing examinee code with another birth date is refused; the same date or none reuses the examinee', async () => {

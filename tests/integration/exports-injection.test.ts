@@ -34,7 +34,10 @@ describe('formula injection in CSV exports (item 16)', () => {
 		expect((await saveAndSubmit(rae, id, scores)).status).toBe(200); // identical passes: nothing to resolve
 		const lock = (await selectOne<{ lock_version: number }>('SELECT lock_version FROM protocols WHERE id = :id', { id }))!.lock_version;
 		expect((await rita.request(`/api/v1/protocols/${id}/signoff`, { method: 'POST', json: { lockVersion: lock } })).status).toBe(200);
-		const set = (await selectOne<{ id: number; name: string; source: string }>('SELECT n.id, n.name, n.source FROM norm_sets n JOIN protocols p ON p.norm_set_id = n.id WHERE p.id = :id', { id }))!;
+		const set = (await selectOne<{ id: number; name: string; source: string }>(
+			'SELECT n.id, n.name, n.source FROM norm_sets n JOIN protocols p ON p.norm_set_id = n.id WHERE p.id = :id',
+			{ id }
+		))!;
 		// a name and source as an older import or a careless edit could have left them
 		const name = 'Harbour norms\r\n=HYPERLINK("http://evil.example","x")';
 		const source = 'Invented, =1+1 "quoted"\n@SUM(A1)';
@@ -48,7 +51,9 @@ describe('formula injection in CSV exports (item 16)', () => {
 			expect(rows.flat().filter(runs)).toEqual([]);
 			// the comment lines are one cell each, with the line breaks made spaces
 			const norms = rows.filter((r) => r[0].startsWith('# Norms:'));
-			expect(norms).toEqual([['# Norms: Harbour norms =HYPERLINK("http://evil.example","x") (' + (await version(set.id)) + '). Invented, =1+1 "quoted" @SUM(A1)']]);
+			expect(norms).toEqual([
+				['# Norms: Harbour norms =HYPERLINK("http://evil.example","x") (' + (await version(set.id)) + '). Invented, =1+1 "quoted" @SUM(A1)']
+			]);
 			expect(rows.at(-1)).toEqual(['# Scores support, and never replace, the judgement of a licensed clinician.']);
 			// the file has the header, one row per test (5), and the two comment lines, nothing else
 			expect(rows.length).toBe(1 + 5 + 2);
@@ -88,7 +93,11 @@ describe('bidi controls in file names (item 16)', () => {
 		const fd = new FormData();
 		// shows as "scanexe.png" ... reversed: a file that looks like a PNG but names itself .exe
 		fd.append('file', new File([new Uint8Array([0x89, 0x50, 0x4e, 0x47, 0x0d, 0x0a, 0x1a, 0x0a, 0, 0, 0, 13])], 'scan\u202egnp.exe'));
-		const res = await sam.request(`/protocols/${id}?/upload`, { method: 'POST', body: fd, headers: { 'x-sveltekit-action': 'true', accept: 'application/json' } });
+		const res = await sam.request(`/protocols/${id}?/upload`, {
+			method: 'POST',
+			body: fd,
+			headers: { 'x-sveltekit-action': 'true', accept: 'application/json' }
+		});
 		expect((await res.json()).type).toBe('success');
 		const row = (await selectOne<{ id: number; filename: string }>('SELECT id, filename FROM attachments WHERE protocol_id = :id', { id }))!;
 		expect(row.filename).toBe('scangnp.exe');

@@ -14,7 +14,19 @@ import { closeRedis } from '../../src/lib/server/redis';
 
 const RUNS = Number(process.env.FUZZ_API_RUNS ?? 150);
 // outbox is left out: the worker adds reminder rows for open reviews on its own clock
-const TABLES = ['protocols', 'passes', 'discrepancies', 'audit_events', 'tests', 'batteries', 'battery_tests', 'norm_sets', 'norm_groups', 'attachments', 'examinees'];
+const TABLES = [
+	'protocols',
+	'passes',
+	'discrepancies',
+	'audit_events',
+	'tests',
+	'batteries',
+	'battery_tests',
+	'norm_sets',
+	'norm_groups',
+	'attachments',
+	'examinees'
+];
 let total = 0;
 
 async function counts(): Promise<Record<string, number>> {
@@ -45,7 +57,28 @@ function mutate(doc: unknown, pathPick: number, replacement: unknown, mode: numb
 
 const odd = fc.oneof(
 	fc.jsonValue({ maxDepth: 2 }),
-	fc.constantFrom(null, '', ' ', 'NaN', '1e309', '-0', '٣', '1,5', "1' OR '1'='1", '<script>x</script>', '\u0000', '__proto__', -1, 0, 1e308, 2 ** 53 + 1, 2 ** 31, [], {}, 'x'.repeat(5000)),
+	fc.constantFrom(
+		null,
+		'',
+		' ',
+		'NaN',
+		'1e309',
+		'-0',
+		'٣',
+		'1,5',
+		"1' OR '1'='1",
+		'<script>x</script>',
+		'\u0000',
+		'__proto__',
+		-1,
+		0,
+		1e308,
+		2 ** 53 + 1,
+		2 ** 31,
+		[],
+		{},
+		'x'.repeat(5000)
+	),
 	fc.string({ maxLength: 12 }),
 	fc.double(),
 	fc.integer()
@@ -78,7 +111,10 @@ beforeAll(async () => {
 	await saveAndSubmit(s1, verified, a);
 	await saveAndSubmit(s2, verified, b);
 	const ds = await select<{ id: number; lock_version: number }>('SELECT id, lock_version FROM discrepancies WHERE protocol_id = :id', { id: verified });
-	for (const d of ds) expect((await reviewer.request(`/api/v1/discrepancies/${d.id}`, { method: 'PATCH', json: { choice: 'recomputed', lockVersion: d.lock_version } })).status).toBe(200);
+	for (const d of ds)
+		expect(
+			(await reviewer.request(`/api/v1/discrepancies/${d.id}`, { method: 'PATCH', json: { choice: 'recomputed', lockVersion: d.lock_version } })).status
+		).toBe(200);
 	const lock = (await selectOne<{ lock_version: number }>('SELECT lock_version FROM protocols WHERE id = :id', { id: verified }))!.lock_version;
 	expect((await reviewer.request(`/api/v1/protocols/${verified}/signoff`, { method: 'POST', json: { lockVersion: lock } })).status).toBe(200);
 
@@ -92,16 +128,44 @@ beforeAll(async () => {
 
 	targets.push(
 		{ name: 'PUT pass (draft)', client: () => s1, method: 'PUT', path: `/api/v1/protocols/${draft}/pass`, base: { scores, draftVersion: dv }, mayWrite: true },
-		{ name: 'PUT pass (submitted)', client: () => s1, method: 'PUT', path: `/api/v1/protocols/${locked}/pass`, base: { scores, draftVersion: 2 }, mayWrite: false },
+		{
+			name: 'PUT pass (submitted)',
+			client: () => s1,
+			method: 'PUT',
+			path: `/api/v1/protocols/${locked}/pass`,
+			base: { scores, draftVersion: 2 },
+			mayWrite: false
+		},
 		{ name: 'POST pass (submitted)', client: () => s1, method: 'POST', path: `/api/v1/protocols/${locked}/pass`, base: { draftVersion: 2 }, mayWrite: false },
-		{ name: 'PATCH discrepancy (verified)', client: () => reviewer, method: 'PATCH', path: `/api/v1/discrepancies/${ds[0].id}`, base: { choice: 'other', value: '1.00', note: 'fuzz', lockVersion: ds[0].lock_version + 1 }, mayWrite: false },
-		{ name: 'POST signoff (verified)', client: () => reviewer, method: 'POST', path: `/api/v1/protocols/${verified}/signoff`, base: { lockVersion: lock + 1 }, mayWrite: false },
+		{
+			name: 'PATCH discrepancy (verified)',
+			client: () => reviewer,
+			method: 'PATCH',
+			path: `/api/v1/discrepancies/${ds[0].id}`,
+			base: { choice: 'other', value: '1.00', note: 'fuzz', lockVersion: ds[0].lock_version + 1 },
+			mayWrite: false
+		},
+		{
+			name: 'POST signoff (verified)',
+			client: () => reviewer,
+			method: 'POST',
+			path: `/api/v1/protocols/${verified}/signoff`,
+			base: { lockVersion: lock + 1 },
+			mayWrite: false
+		},
 		{ name: 'POST tests', client: () => lead, method: 'POST', path: '/api/v1/tests', base: { ...test, code: 'word-recall' }, mayWrite: true },
 		{ name: 'PUT tests/[code]', client: () => lead, method: 'PUT', path: '/api/v1/tests/word-recall', base: test, mayWrite: true },
 		{ name: 'POST batteries', client: () => lead, method: 'POST', path: '/api/v1/batteries', base: first(battery), mayWrite: true },
 		{ name: 'POST norm-sets', client: () => lead, method: 'POST', path: '/api/v1/norm-sets', base: first(normSets), mayWrite: true },
 		{ name: 'POST import preview', client: () => lead, method: 'POST', path: '/api/v1/catalog/import/preview', base: { kind: 'norms', csv }, mayWrite: true },
-		{ name: 'POST import confirm', client: () => lead, method: 'POST', path: '/api/v1/catalog/import/confirm', base: { kind: 'norms', csv, target: { mode: 'existing', id: setId } }, mayWrite: true }
+		{
+			name: 'POST import confirm',
+			client: () => lead,
+			method: 'POST',
+			path: '/api/v1/catalog/import/confirm',
+			base: { kind: 'norms', csv, target: { mode: 'existing', id: setId } },
+			mayWrite: true
+		}
 	);
 }, 120_000);
 
@@ -112,43 +176,57 @@ afterAll(async () => {
 });
 
 describe('JSON API routes under generated malformed bodies', () => {
-	it.each(Array.from({ length: 11 }, (_, i) => [i]))('route %i: no 5xx, no stack or SQL, nothing written unless accepted', async (i) => {
-		const t = targets[i];
-		const before = await counts();
-		let accepted = 0;
-		await fc.assert(
-			fc.asyncProperty(bodyFor(t.base), async (body) => {
-				const r = await t.client().request(t.path, { method: t.method, body, headers: { 'content-type': 'application/json' } });
-				const text = await r.text();
-				total++;
-				expect(r.status, `${t.name} ${body.slice(0, 300)} → ${text.slice(0, 300)}`).toBeLessThan(500);
-				expect(text, t.name).not.toMatch(LEAK);
-				if (r.status >= 400) expect(() => JSON.parse(text).message, `${t.name}: a JSON message`).not.toThrow();
-				if (r.status < 300) accepted++;
-			}),
-			{ numRuns: RUNS }
-		);
-		const after = await counts();
-		if (!t.mayWrite) expect(accepted, `${t.name} accepted a malformed body`).toBe(0);
-		const changed = Object.keys(before).filter((k) => before[k] !== after[k]).map((k) => `${k} ${before[k]}→${after[k]}`);
-		if (accepted === 0) expect(changed, `${t.name}: rows written by refused requests`).toEqual([]);
-		else {
-			// accepted bodies write; the protocol tables stay untouched by the catalog routes and vice versa
-			for (const k of ['protocols', 'discrepancies', 'attachments', 'examinees']) expect(after[k], `${t.name}: ${k}`).toBe(before[k]);
-		}
-	}, 120_000);
+	it.each(Array.from({ length: 11 }, (_, i) => [i]))(
+		'route %i: no 5xx, no stack or SQL, nothing written unless accepted',
+		async (i) => {
+			const t = targets[i];
+			const before = await counts();
+			let accepted = 0;
+			await fc.assert(
+				fc.asyncProperty(bodyFor(t.base), async (body) => {
+					const r = await t.client().request(t.path, { method: t.method, body, headers: { 'content-type': 'application/json' } });
+					const text = await r.text();
+					total++;
+					expect(r.status, `${t.name} ${body.slice(0, 300)} → ${text.slice(0, 300)}`).toBeLessThan(500);
+					expect(text, t.name).not.toMatch(LEAK);
+					if (r.status >= 400) expect(() => JSON.parse(text).message, `${t.name}: a JSON message`).not.toThrow();
+					if (r.status < 300) accepted++;
+				}),
+				{ numRuns: RUNS }
+			);
+			const after = await counts();
+			if (!t.mayWrite) expect(accepted, `${t.name} accepted a malformed body`).toBe(0);
+			const changed = Object.keys(before)
+				.filter((k) => before[k] !== after[k])
+				.map((k) => `${k} ${before[k]}→${after[k]}`);
+			if (accepted === 0) expect(changed, `${t.name}: rows written by refused requests`).toEqual([]);
+			else {
+				// accepted bodies write; the protocol tables stay untouched by the catalog routes and vice versa
+				for (const k of ['protocols', 'discrepancies', 'attachments', 'examinees']) expect(after[k], `${t.name}: ${k}`).toBe(before[k]);
+			}
+		},
+		120_000
+	);
 });
 
 describe('uploads: type by content, size limits, empty files, names with path characters', () => {
 	async function upload(c: Client, id: number, bytes: Uint8Array, name: string) {
 		const fd = new FormData();
 		fd.append('file', new File([new Uint8Array(bytes)], name));
-		const res = await c.request(`/protocols/${id}?/upload`, { method: 'POST', body: fd, headers: { 'x-sveltekit-action': 'true', accept: 'application/json' } });
+		const res = await c.request(`/protocols/${id}?/upload`, {
+			method: 'POST',
+			body: fd,
+			headers: { 'x-sveltekit-action': 'true', accept: 'application/json' }
+		});
 		const text = await res.text();
 		expect(text).not.toMatch(LEAK);
 		return { http: res.status, ...(JSON.parse(text) as { type: string; status?: number; data?: string }) };
 	}
-	const pdf = (n: number) => { const b = new Uint8Array(n); b.set(new TextEncoder().encode('%PDF-1.7\n')); return b; };
+	const pdf = (n: number) => {
+		const b = new Uint8Array(n);
+		b.set(new TextEncoder().encode('%PDF-1.7\n'));
+		return b;
+	};
 
 	it('refuses what it must, writes nothing for a refusal, and cleans names', async () => {
 		const id = await createViaForm(lead, { first: ACCOUNTS.scorer, second: ACCOUNTS.scorer2, reviewer: ACCOUNTS.reviewer });

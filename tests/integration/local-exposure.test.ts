@@ -65,7 +65,12 @@ describe('Redis password (item 15)', () => {
 			});
 			sock.on('error', reject);
 		});
-		expect(answer.split('\r\n').slice(0, 2).every((l) => l.startsWith('-NOAUTH'))).toBe(true);
+		expect(
+			answer
+				.split('\r\n')
+				.slice(0, 2)
+				.every((l) => l.startsWith('-NOAUTH'))
+		).toBe(true);
 		const plain = redisCli('ping'); // with the password, as the scripts do
 		expect(plain.stdout.toString().trim()).toBe('PONG');
 		expect(config.redisUrl).toMatch(/^redis:\/\/:[\w-]{20,}@127\.0\.0\.1:/);
@@ -84,7 +89,11 @@ describe('files on disk (item 15)', () => {
 		const id = await createViaForm(lead, { first: ACCOUNTS.scorer, second: ACCOUNTS.scorer2, reviewer: ACCOUNTS.reviewer });
 		const fd = new FormData();
 		fd.append('file', new File([new Uint8Array([0x25, 0x50, 0x44, 0x46, 0x2d, 0x31, 0x2e, 0x34, 0x0a])], 'scan.pdf'));
-		const res = await sam.request(`/protocols/${id}?/upload`, { method: 'POST', body: fd, headers: { 'x-sveltekit-action': 'true', accept: 'application/json' } });
+		const res = await sam.request(`/protocols/${id}?/upload`, {
+			method: 'POST',
+			body: fd,
+			headers: { 'x-sveltekit-action': 'true', accept: 'application/json' }
+		});
 		expect((await res.json()).type).toBe('success');
 		const row = await selectOne<{ storage_name: string }>('SELECT storage_name FROM attachments WHERE protocol_id = :id', { id });
 		const dir = join(config.dataDir, 'uploads');

@@ -33,10 +33,16 @@ async function invite(tag: string) {
 	const admin = await signedIn('admin');
 	const r = await admin.action('/people?/invite', { name: `Mail ${tag}`, email, roles: ['scorer'] });
 	expect(r.body.type).toBe('success');
-	const row = await waitFor(() => selectOne<{ idempotency_key: string }>(`SELECT o.idempotency_key FROM outbox o JOIN users u ON u.id = JSON_VALUE(o.payload, '$.userId') WHERE u.email = :email`, { email }));
+	const row = await waitFor(() =>
+		selectOne<{ idempotency_key: string }>(
+			`SELECT o.idempotency_key FROM outbox o JOIN users u ON u.id = JSON_VALUE(o.payload, '$.userId') WHERE u.email = :email`,
+			{ email }
+		)
+	);
 	return { email, key: row.idempotency_key, jobId: row.idempotency_key.replace(/:/g, '_') };
 }
-const logStatus = async (key: string) => (await selectOne<{ status: string }>('SELECT status FROM mail_log WHERE idempotency_key = :key', { key }))?.status ?? null;
+const logStatus = async (key: string) =>
+	(await selectOne<{ status: string }>('SELECT status FROM mail_log WHERE idempotency_key = :key', { key }))?.status ?? null;
 
 describe('e-mail survives crashes (item 17)', () => {
 	it('an invitation waiting for its retry survives a Redis restart and is delivered once', async () => {
@@ -104,7 +110,11 @@ describe('e-mail survives crashes (item 17)', () => {
 		await refuseNext(100);
 		const m = await invite('refused');
 		const row = await waitFor(
-			() => selectOne<{ failed_at: Date | null; last_error: string | null }>('SELECT failed_at, last_error FROM outbox WHERE idempotency_key = :key AND failed_at IS NOT NULL', { key: m.key }),
+			() =>
+				selectOne<{ failed_at: Date | null; last_error: string | null }>(
+					'SELECT failed_at, last_error FROM outbox WHERE idempotency_key = :key AND failed_at IS NOT NULL',
+					{ key: m.key }
+				),
 			60_000,
 			250
 		);

@@ -90,7 +90,16 @@ describe('review notifications', () => {
 
 		await waitFor(async () => (await listProtocolMail(f.protocolId)).find((e) => e.status === 'sent'));
 		const log = await listProtocolMail(f.protocolId);
-		expect(log[0]).toMatchObject({ kind: 'review_first', label: 'First e-mail', reminderNo: 0, round: 1, reviewerId: f.reviewerId, to: [ACCOUNTS.reviewer], cc: [], status: 'sent' });
+		expect(log[0]).toMatchObject({
+			kind: 'review_first',
+			label: 'First e-mail',
+			reminderNo: 0,
+			round: 1,
+			reviewerId: f.reviewerId,
+			to: [ACCOUNTS.reviewer],
+			cc: [],
+			status: 'sent'
+		});
 		expect(log[0].sentAt).toBeInstanceOf(Date);
 	});
 
@@ -102,7 +111,14 @@ describe('review notifications', () => {
 		// the fixture's four: 2 transpositions (raw 29/92, standard 161/116), 1 sign flip, 1 wrong norm group
 		expect(m.text).toContain('Discrepancies: 4 (2 Digits swapped, 1 Direction wrong way round, 1 Wrong norm group)');
 		expect(m.text).toContain(`${config.origin}/protocols/${f.protocolId}/review`);
-		for (const part of [m.text, m.html!]) for (const v of ['161', '116', '1.07', '-1.07']) expect(part.replaceAll(f.code, '').replace(/#[0-9a-f]{3,6}\b/gi, '').replace(/\d{4}-\d{2}-\d{2}/g, '')).not.toMatch(new RegExp(`(^|[^\\d.])${v.replace('.', '\\.')}($|[^\\d])`));
+		for (const part of [m.text, m.html!])
+			for (const v of ['161', '116', '1.07', '-1.07'])
+				expect(
+					part
+						.replaceAll(f.code, '')
+						.replace(/#[0-9a-f]{3,6}\b/gi, '')
+						.replace(/\d{4}-\d{2}-\d{2}/g, '')
+				).not.toMatch(new RegExp(`(^|[^\\d.])${v.replace('.', '\\.')}($|[^\\d])`));
 	});
 
 	it('calling notifyReviewStarted twice (a retried request) still sends one first e-mail', async () => {

@@ -21,7 +21,6 @@ let file: string;
 let tideCode: string;
 let tideFile: string;
 
-
 beforeAll(async () => {
 	const c = { lead: await signedIn('lead'), first: await signedIn('scorer'), second: await signedIn('scorer2'), reviewer: await signedIn('reviewer') };
 	reviewer = c.reviewer;
@@ -63,7 +62,15 @@ const pandoc = async (to: string, of = file) => (await run('pandoc', ['-f', 'doc
 type Inline = { t: string; c?: unknown };
 const text = (inlines: Inline[]): string =>
 	inlines
-		.map((i) => (i.t === 'Str' ? (i.c as string) : i.t === 'Space' || i.t === 'SoftBreak' || i.t === 'LineBreak' ? ' ' : Array.isArray(i.c) ? text((i.c as unknown[]).flat(2).filter((x): x is Inline => !!x && typeof x === 'object' && 't' in x)) : ''))
+		.map((i) =>
+			i.t === 'Str'
+				? (i.c as string)
+				: i.t === 'Space' || i.t === 'SoftBreak' || i.t === 'LineBreak'
+					? ' '
+					: Array.isArray(i.c)
+						? text((i.c as unknown[]).flat(2).filter((x): x is Inline => !!x && typeof x === 'object' && 't' in x))
+						: ''
+		)
 		.join('');
 
 describe('the report document (.docx)', () => {
@@ -95,11 +102,25 @@ describe('the report document (.docx)', () => {
 		const [, , colspecs, head, bodies] = tables[0].c as [unknown, unknown, unknown[], [unknown, Row[]], [unknown, number, Row[], Row[]][]];
 		type Cell = [unknown, unknown, number, number, { t: string; c: Inline[] }[]];
 		type Row = [unknown, Cell[]];
-		const cellText = (cell: Cell) => cell[4].map((b) => text(b.c)).join(' ').trim();
+		const cellText = (cell: Cell) =>
+			cell[4]
+				.map((b) => text(b.c))
+				.join(' ')
+				.trim();
 		expect(colspecs).toHaveLength(9);
 		const headRows = head[1];
 		expect(headRows).toHaveLength(1);
-		expect(headRows[0][1].map(cellText)).toEqual(['Test', 'Raw score', 'z-score', 'Standard score', 'Scaled score', 'T-score', 'Percentile', 'Descriptive label', '95% CI']);
+		expect(headRows[0][1].map(cellText)).toEqual([
+			'Test',
+			'Raw score',
+			'z-score',
+			'Standard score',
+			'Scaled score',
+			'T-score',
+			'Percentile',
+			'Descriptive label',
+			'95% CI'
+		]);
 		const rows = bodies.flatMap((b) => b[3]);
 		// 4 domain rows + 5 tests
 		expect(rows).toHaveLength(9);
@@ -117,7 +138,17 @@ describe('the report document (.docx)', () => {
 		// Speeded Figure Match, a30 mean 42.0 SD 6.0, lower is better, raw 36.0: z = −(36 − 42) / 6 = +1.00;
 		// standard 115, scaled 13, T 60, percentile Φ(1) = 0.8413 → 84; label "High average" (110–119);
 		// CI: SEM = 15 × √(1 − 0.88) = 5.196, 1.96 × 5.196 = 10.18, 115 ± 10.18 = 104.82 to 125.18 → 105–125.
-		expect(byName.get('Speeded Figure Match')).toEqual(['Speeded Figure Match (seconds, lower is better)', '36.0', '1.00', '115', '13', '60', '84', 'High average (SS)', '105–125']);
+		expect(byName.get('Speeded Figure Match')).toEqual([
+			'Speeded Figure Match (seconds, lower is better)',
+			'36.0',
+			'1.00',
+			'115',
+			'13',
+			'60',
+			'84',
+			'High average (SS)',
+			'105–125'
+		]);
 		// a test that does not report a field leaves its cell empty, never a dash (Delayed recall reports scaled and percentile only)
 		const delayed = byName.get('Harbour Word Recall, Delayed')!;
 		expect([delayed[2], delayed[3], delayed[5]]).toEqual(['', '', '']);
@@ -130,13 +161,27 @@ describe('the report document (.docx)', () => {
 		const [, , , , bodies] = tables[0].c as [unknown, unknown, unknown[], unknown, [unknown, number, Row[], Row[]][]];
 		type Cell = [unknown, unknown, number, number, { t: string; c: Inline[] }[]];
 		type Row = [unknown, Cell[]];
-		const cellText = (cell: Cell) => cell[4].map((b) => text(b.c)).join(' ').trim();
+		const cellText = (cell: Cell) =>
+			cell[4]
+				.map((b) => text(b.c))
+				.join(' ')
+				.trim();
 		const rows = bodies.flatMap((b) => b[3]).map((r) => r[1].map(cellText));
 		// the first row is the Composites heading, then the two composites in the battery's order, then the domains
 		expect(rows[0]).toEqual(['Composites']);
 		// Memory Index: Σ 27, SS 120 (above), %ile 91; label on SS 120–129 "Above average" (AACN 2020, Guilmette et al.; from memory);
 		// 95% CI, reliability .90: SEM = 15·√0.10 = 4.743, 1.96·4.743 = 9.30, 120 ± 9.30 = 110.70–129.30 → 111–129.
-		expect(rows[1]).toEqual(['Memory Index (scaled scores of Harbour Word Recall + Tile Build)', 'Σ 27', '', '120', '', '', '91', 'Above average (SS)', '111–129']);
+		expect(rows[1]).toEqual([
+			'Memory Index (scaled scores of Harbour Word Recall + Tile Build)',
+			'Σ 27',
+			'',
+			'120',
+			'',
+			'',
+			'91',
+			'Above average (SS)',
+			'111–129'
+		]);
 		// Visuomotor Index: Σ 23, SS 106 (table row 22–23), %ile 66; 90–109 "Average";
 		// reliability .88: SEM = 15·√0.12 = 5.196, 1.96·5.196 = 10.18, 106 ± 10.18 = 95.82–116.18 → 96–116.
 		expect(rows[2]).toEqual(['Visuomotor Index (scaled scores of Knot Copy + Cargo Code)', 'Σ 23', '', '106', '', '', '66', 'Average (SS)', '96–116']);

@@ -27,7 +27,8 @@ const made: number[] = [];
 afterAll(async () => {
 	// end the reminder chains of what is still in review here (npm test's interval is a day; a run with a short one set stays quiet too), so they do not
 	// flood the mail fake for the test files that run after this one
-	if (made.length) await exec(`UPDATE protocols SET status = 'verified', verified_at = CURRENT_TIMESTAMP(3) WHERE id IN (:ids) AND status = 'in_review'`, { ids: made });
+	if (made.length)
+		await exec(`UPDATE protocols SET status = 'verified', verified_at = CURRENT_TIMESTAMP(3) WHERE id IN (:ids) AND status = 'in_review'`, { ids: made });
 	await closeRedis();
 	await closeDb();
 });
@@ -98,7 +99,10 @@ describe('the raw decision settles its derived scores', () => {
 	it('one raw card; the derived cards are right for the other raw score and wait on it', async () => {
 		const id = await raw42();
 		const all = await select<{ test_code: string }>('SELECT test_code FROM discrepancies WHERE protocol_id = :id', { id });
-		expect(all.every((d) => d.test_code === 'word-harvest'), JSON.stringify(all)).toBe(true);
+		expect(
+			all.every((d) => d.test_code === 'word-harvest'),
+			JSON.stringify(all)
+		).toBe(true);
 		const list = await rows(id);
 		// raw: 24 vs 42, the two digits swapped; derived: the second pass's values fit raw 24 (rule 5)
 		expect(list.map((d) => [d.field, d.pass, d.kind, d.value, d.expected, d.alternative])).toEqual([
@@ -201,7 +205,10 @@ describe('the raw decision settles its derived scores', () => {
 		const id = await raw42();
 		const list = await rows(id);
 		const before = await rows(id);
-		const res = await reviewer.request(`/api/v1/discrepancies/${list[0].id}`, { method: 'PATCH', json: { lockVersion: list[0].lock_version + 7, choice: 'first' } });
+		const res = await reviewer.request(`/api/v1/discrepancies/${list[0].id}`, {
+			method: 'PATCH',
+			json: { lockVersion: list[0].lock_version + 7, choice: 'first' }
+		});
 		expect(res.status).toBe(409);
 		expect(await rows(id)).toEqual(before);
 	});
@@ -231,7 +238,10 @@ describe('kept values that contradict the recomputation', () => {
 		expect(html).toContain('kept against recomputed 80: examiner wrote 60 on the form');
 		// charges: raw 42 kept → the first pass's 24 (digits swapped); T: the second pass's own 60 was kept →
 		// none; z and percentile: recomputed 4.89 and 99 kept → the second pass's 0.98 and 84 are errors
-		const events = await select<{ scorer_id: number; field: string; judgement: number }>('SELECT scorer_id, field, judgement FROM error_events WHERE protocol_id = :id ORDER BY field, scorer_id', { id });
+		const events = await select<{ scorer_id: number; field: string; judgement: number }>(
+			'SELECT scorer_id, field, judgement FROM error_events WHERE protocol_id = :id ORDER BY field, scorer_id',
+			{ id }
+		);
 		const [sam, sue] = [await userIdOf(ACCOUNTS.scorer), await userIdOf(ACCOUNTS.scorer2)];
 		expect(events).toEqual([
 			{ scorer_id: sam, field: 'raw', judgement: 0 },
@@ -279,7 +289,10 @@ describe('amendment of a verified protocol', () => {
 		expect(jsonValue<Scores>(first[0].scores)['switch-rule']).toMatchObject({ raw: '5', standard: '106', t: '54', percentile: '66' });
 
 		// a reviewer may only request; a lead approves
-		const req = await reviewer.request(`/api/v1/protocols/${id}/amendments`, { method: 'POST', json: { test: 'switch-rule', field: 'raw', value: '3', reason: 'record form shows 3 errors, both passes read 5' } });
+		const req = await reviewer.request(`/api/v1/protocols/${id}/amendments`, {
+			method: 'POST',
+			json: { test: 'switch-rule', field: 'raw', value: '3', reason: 'record form shows 3 errors, both passes read 5' }
+		});
 		const rq = await req.json();
 		expect(req.status, JSON.stringify(rq)).toBe(200);
 		expect(rq.status).toBe('requested');
@@ -291,25 +304,50 @@ describe('amendment of a verified protocol', () => {
 		// the reviewer's round-2 e-mail is written in the same transaction and names the amendment: the
 		// test's name, the field and the reason (read back from its outbox row: the reviewer settles the
 		// round below before the worker would send it)
-		const mailRow = await selectOne<{ payload: unknown }>("SELECT payload FROM outbox WHERE idempotency_key LIKE :k AND kind = 'review_first'", { k: `review:${id}:r2:%` });
-		expect(jsonValue<{ why?: unknown }>(mailRow!.payload).why).toEqual({ action: 'amendment', reason: 'record form shows 3 errors, both passes read 5', field: 'Switching Rule Errors, raw score' });
+		const mailRow = await selectOne<{ payload: unknown }>("SELECT payload FROM outbox WHERE idempotency_key LIKE :k AND kind = 'review_first'", {
+			k: `review:${id}:r2:%`
+		});
+		expect(jsonValue<{ why?: unknown }>(mailRow!.payload).why).toEqual({
+			action: 'amendment',
+			reason: 'record form shows 3 errors, both passes read 5',
+			field: 'Switching Rule Errors, raw score'
+		});
 
 		// round 2: the earlier rows are carried with their decisions, none reopened
-		const round2 = await select<{ position: number; test_code: string; field: string; resolution: string | null; resolved_value: string | null; resolved_by: number | null; value: string | null; other: string | null }>(
+		const round2 = await select<{
+			position: number;
+			test_code: string;
+			field: string;
+			resolution: string | null;
+			resolved_value: string | null;
+			resolved_by: number | null;
+			value: string | null;
+			other: string | null;
+		}>(
 			'SELECT position, test_code, field, resolution, resolved_value, resolved_by, value, other FROM discrepancies WHERE protocol_id = :id AND round = 2 ORDER BY position',
 			{ id }
 		);
-		expect(round2.slice(0, before.length).map((d) => ({ position: d.position, resolution: d.resolution, resolved_value: d.resolved_value, resolved_by: d.resolved_by }))).toEqual(before);
+		expect(
+			round2
+				.slice(0, before.length)
+				.map((d) => ({ position: d.position, resolution: d.resolution, resolved_value: d.resolved_value, resolved_by: d.resolved_by }))
+		).toEqual(before);
 		// the one open card: switch-rule's raw score, both passes' 5 against the amended 3
 		const open = round2.filter((d) => d.resolution === null);
 		expect(open.map((d) => [d.test_code, d.field, d.value, d.other])).toEqual([['switch-rule', 'raw', '5', '5']]);
-		const trail = await selectOne<{ old_value: string; new_value: string; reason: string }>("SELECT old_value, new_value, reason FROM audit_events WHERE protocol_id = :id AND action = 'amend'", { id });
+		const trail = await selectOne<{ old_value: string; new_value: string; reason: string }>(
+			"SELECT old_value, new_value, reason FROM audit_events WHERE protocol_id = :id AND action = 'amend'",
+			{ id }
+		);
 		expect(JSON.parse(trail!.old_value)).toMatchObject({ test: 'switch-rule', field: 'raw', value: '5', round: 1 });
 		expect(JSON.parse(trail!.new_value)).toMatchObject({ test: 'switch-rule', field: 'raw', value: '3', round: 2 });
 		expect(trail!.reason).toBe('record form shows 3 errors, both passes read 5');
 
 		// the reviewer keeps 3: switch-rule's derived scores are judged against raw 3 (none of 106/54/66 fits)
-		const rawCard = await selectOne<{ id: number }>("SELECT id FROM discrepancies WHERE protocol_id = :id AND round = 2 AND test_code = 'switch-rule' AND field = 'raw'", { id });
+		const rawCard = await selectOne<{ id: number }>(
+			"SELECT id FROM discrepancies WHERE protocol_id = :id AND round = 2 AND test_code = 'switch-rule' AND field = 'raw'",
+			{ id }
+		);
 		const kept = await resolve(rawCard!.id, { choice: 'other', value: '3', note: 'record form shows 3 errors, both passes read 5' });
 		expect(kept.status, JSON.stringify(kept.body)).toBe(200);
 		const derived = await select<{ field: string; value: string; expected: string }>(
@@ -322,7 +360,9 @@ describe('amendment of a verified protocol', () => {
 			{ field: 'percentile', value: '66', expected: '81' }
 		]);
 		// nothing of any other test opened
-		expect((await select('SELECT id FROM discrepancies WHERE protocol_id = :id AND round = 2 AND resolved_at IS NULL AND test_code <> \'switch-rule\'', { id })).length).toBe(0);
+		expect(
+			(await select("SELECT id FROM discrepancies WHERE protocol_id = :id AND round = 2 AND resolved_at IS NULL AND test_code <> 'switch-rule'", { id })).length
+		).toBe(0);
 		for (const d of await select<{ id: number }>('SELECT id FROM discrepancies WHERE protocol_id = :id AND round = 2 AND resolved_at IS NULL', { id })) {
 			expect((await resolve(d.id, { choice: 'recomputed' })).status).toBe(200);
 		}
@@ -339,18 +379,30 @@ describe('amendment of a verified protocol', () => {
 
 	it('refuses an amendment of a protocol in review, an unreported field, and a value that is already the verified one', async () => {
 		const id = await raw42();
-		const inReview = await lead.request(`/api/v1/protocols/${id}/amendments`, { method: 'POST', json: { test: 'switch-rule', field: 'raw', value: '3', reason: 'record form shows 3' } });
+		const inReview = await lead.request(`/api/v1/protocols/${id}/amendments`, {
+			method: 'POST',
+			json: { test: 'switch-rule', field: 'raw', value: '3', reason: 'record form shows 3' }
+		});
 		expect(inReview.status).toBe(409);
 		const list = await rows(id);
 		await resolve(list[0].id, { choice: 'first' });
 		const p = await selectOne<{ lock_version: number }>('SELECT lock_version FROM protocols WHERE id = :id', { id });
 		await reviewer.request(`/api/v1/protocols/${id}/signoff`, { method: 'POST', json: { lockVersion: p!.lock_version } });
-		const unreported = await lead.request(`/api/v1/protocols/${id}/amendments`, { method: 'POST', json: { test: 'switch-rule', field: 'z', value: '1', reason: 'a reason here' } });
+		const unreported = await lead.request(`/api/v1/protocols/${id}/amendments`, {
+			method: 'POST',
+			json: { test: 'switch-rule', field: 'z', value: '1', reason: 'a reason here' }
+		});
 		expect(unreported.status).toBe(400);
-		const same = await lead.request(`/api/v1/protocols/${id}/amendments`, { method: 'POST', json: { test: 'switch-rule', field: 'raw', value: '5', reason: 'a reason here' } });
+		const same = await lead.request(`/api/v1/protocols/${id}/amendments`, {
+			method: 'POST',
+			json: { test: 'switch-rule', field: 'raw', value: '5', reason: 'a reason here' }
+		});
 		expect(same.status).toBe(400);
 		expect((await same.json()).message).toContain('already the verified');
-		const scorer = await s1.request(`/api/v1/protocols/${id}/amendments`, { method: 'POST', json: { test: 'switch-rule', field: 'raw', value: '3', reason: 'a reason here' } });
+		const scorer = await s1.request(`/api/v1/protocols/${id}/amendments`, {
+			method: 'POST',
+			json: { test: 'switch-rule', field: 'raw', value: '3', reason: 'a reason here' }
+		});
 		expect(scorer.status).toBe(403);
 	});
 });
@@ -366,7 +418,10 @@ describe('reopen with a reason', () => {
 		const re = await lead.action(`/protocols/${id}?/reopen`, { reason: 'The scan was of another page; check again.' });
 		expect(re.body.type).toBe('success');
 		// round 2: every row open again, each pointing at its round-1 decision
-		const r2 = await select<{ carried_from: number; resolved_at: Date | null }>('SELECT carried_from, resolved_at FROM discrepancies WHERE protocol_id = :id AND round = 2 ORDER BY position', { id });
+		const r2 = await select<{ carried_from: number; resolved_at: Date | null }>(
+			'SELECT carried_from, resolved_at FROM discrepancies WHERE protocol_id = :id AND round = 2 ORDER BY position',
+			{ id }
+		);
 		expect(r2.map((d) => [d.carried_from, d.resolved_at])).toEqual(list.map((d) => [d.id, null]));
 		// the Review page offers the earlier decisions: the raw card's "First pass" is chosen by default
 		const html = await (await reviewer.get(`/protocols/${id}/review`)).text();
@@ -375,8 +430,14 @@ describe('reopen with a reason', () => {
 		reopenedId = id;
 	});
 	it('the reopen e-mail names the round and the reason', { timeout: 150_000 }, async () => {
-		const code = (await selectOne<{ code: string }>('SELECT e.code FROM protocols p JOIN examinees e ON e.id = p.examinee_id WHERE p.id = :id', { id: reopenedId }))!.code;
-		const mail = await waitFor(async () => (await caughtMail(ACCOUNTS.reviewer)).find((m) => m.subject.includes(code) && m.text.includes('round 2')), 90_000, 1_000);
+		const code = (await selectOne<{ code: string }>('SELECT e.code FROM protocols p JOIN examinees e ON e.id = p.examinee_id WHERE p.id = :id', {
+			id: reopenedId
+		}))!.code;
+		const mail = await waitFor(
+			async () => (await caughtMail(ACCOUNTS.reviewer)).find((m) => m.subject.includes(code) && m.text.includes('round 2')),
+			90_000,
+			1_000
+		);
 		expect(mail.text).toContain('It was reopened for review round 2. Reason: The scan was of another page; check again.');
 	});
 });

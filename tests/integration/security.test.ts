@@ -19,7 +19,14 @@ import { config } from '../../src/lib/server/config';
 
 let lead: Client, sam: Client, rae: Client, kit: Client, rita: Client, admin: Client;
 beforeAll(async () => {
-	[lead, sam, rae, kit, rita, admin] = await Promise.all([signedIn('lead'), signedIn('scorer'), signedIn('scorer2'), signedIn('scorer3'), signedIn('reviewer'), signedIn('admin')]);
+	[lead, sam, rae, kit, rita, admin] = await Promise.all([
+		signedIn('lead'),
+		signedIn('scorer'),
+		signedIn('scorer2'),
+		signedIn('scorer3'),
+		signedIn('reviewer'),
+		signedIn('admin')
+	]);
 });
 afterAll(async () => {
 	await closeRedis();
@@ -77,7 +84,9 @@ describe('object-level checks', () => {
 		expect((await kit.get(`/protocols/${A.id}/review`)).status).toBe(403);
 		expect((await kit.get(`/protocols/${A.id}/summary`)).status).toBe(403);
 		expect((await kit.get(`/protocols/${A.id}/summary.csv`)).status).toBe(403);
-		expect((await kit.request(`/api/v1/discrepancies/${A.ds[0].id}`, { method: 'PATCH', json: { choice: 'recomputed', lockVersion: A.ds[0].lock_version } })).status).toBe(403);
+		expect(
+			(await kit.request(`/api/v1/discrepancies/${A.ds[0].id}`, { method: 'PATCH', json: { choice: 'recomputed', lockVersion: A.ds[0].lock_version } })).status
+		).toBe(403);
 		expect((await kit.request(`/api/v1/protocols/${A.id}/signoff`, { method: 'POST', json: { lockVersion: A.lock } })).status).toBe(403);
 	});
 
@@ -110,20 +119,36 @@ describe('object-level checks', () => {
 		expect((await rita.request(`/api/v1/protocols/${B.id}/signoff`, { method: 'POST', json: { lockVersion: B.lock } })).status).toBe(404);
 		// a lead who is not the reviewer of A sees it but may not resolve it
 		expect((await lead.get(`/protocols/${A.id}/review`)).status).toBe(200);
-		expect((await lead.request(`/api/v1/discrepancies/${A.ds[0].id}`, { method: 'PATCH', json: { choice: 'recomputed', lockVersion: A.ds[0].lock_version } })).status).toBe(404);
+		expect(
+			(await lead.request(`/api/v1/discrepancies/${A.ds[0].id}`, { method: 'PATCH', json: { choice: 'recomputed', lockVersion: A.ds[0].lock_version } })).status
+		).toBe(404);
 		const untouched = await select<{ resolved_at: Date | null }>('SELECT resolved_at FROM discrepancies WHERE protocol_id IN (:a, :b)', { a: A.id, b: B.id });
 		expect(untouched.every((d) => d.resolved_at === null)).toBe(true);
 	});
 
 	it('guessing ids: every protocol and discrepancy id answers 404 unless it is assigned', async () => {
 		const max = (await selectOne<{ n: number }>('SELECT MAX(id) AS n FROM protocols'))!.n;
-		const mine = new Set((await select<{ id: number }>('SELECT id FROM protocols WHERE first_scorer_id = (SELECT id FROM users WHERE email = :e) OR second_scorer_id = (SELECT id FROM users WHERE email = :e)', { e: ACCOUNTS.scorer3 })).map((r) => r.id));
+		const mine = new Set(
+			(
+				await select<{ id: number }>(
+					'SELECT id FROM protocols WHERE first_scorer_id = (SELECT id FROM users WHERE email = :e) OR second_scorer_id = (SELECT id FROM users WHERE email = :e)',
+					{ e: ACCOUNTS.scorer3 }
+				)
+			).map((r) => r.id)
+		);
 		for (let id = 1; id <= max + 3; id++) {
 			const r = await kit.get(`/api/v1/protocols/${id}/pass`);
 			expect(r.status, `Kit GET pass ${id}`).toBe(mine.has(id) ? 200 : 404);
 		}
 		const dmax = (await selectOne<{ n: number }>('SELECT MAX(id) AS n FROM discrepancies'))!.n;
-		const ritas = new Set((await select<{ id: number }>('SELECT d.id FROM discrepancies d JOIN protocols p ON p.id = d.protocol_id WHERE p.reviewer_id = (SELECT id FROM users WHERE email = :e)', { e: ACCOUNTS.reviewer })).map((r) => r.id));
+		const ritas = new Set(
+			(
+				await select<{ id: number }>(
+					'SELECT d.id FROM discrepancies d JOIN protocols p ON p.id = d.protocol_id WHERE p.reviewer_id = (SELECT id FROM users WHERE email = :e)',
+					{ e: ACCOUNTS.reviewer }
+				)
+			).map((r) => r.id)
+		);
 		for (let id = Math.max(1, dmax - 40); id <= dmax + 3; id++) {
 			// a lock version that never matches: probing cannot change anything (her own answer 409)
 			const r = await rita.request(`/api/v1/discrepancies/${id}`, { method: 'PATCH', json: { choice: 'recomputed', lockVersion: 999_999 } });
@@ -210,7 +235,10 @@ describe('cookies and the origin check', () => {
 		expect(action.status).toBe(403);
 		const plain = await evil.request('/api/v1/tests', { method: 'POST', body: '{"code":"csrf"}', headers: { 'content-type': 'text/plain' } });
 		expect(plain.status).toBe(403);
-		const pre = await evil.request('/api/v1/tests', { method: 'OPTIONS', headers: { 'access-control-request-method': 'POST', 'access-control-request-headers': 'content-type' } });
+		const pre = await evil.request('/api/v1/tests', {
+			method: 'OPTIONS',
+			headers: { 'access-control-request-method': 'POST', 'access-control-request-headers': 'content-type' }
+		});
 		expect(pre.headers.get('access-control-allow-origin')).toBeNull();
 		expect((await selectOne<{ n: number }>('SELECT COUNT(*) AS n FROM protocols'))!.n).toBe(before);
 	});
@@ -343,10 +371,7 @@ describe('the audit trail is append-only for the app user, from every host', () 
 	});
 
 	it('UPDATE and DELETE are refused over TCP and over the socket', async () => {
-		const targets = [
-			{ host: '127.0.0.1', port: config.db.port },
-			{ socketPath: join(runDir(), 'mariadb.sock') }
-		];
+		const targets = [{ host: '127.0.0.1', port: config.db.port }, { socketPath: join(runDir(), 'mariadb.sock') }];
 		for (const t of targets) {
 			const conn = await mariadb.createConnection({ ...t, user: config.db.user, password: config.db.password, database: config.db.name });
 			try {

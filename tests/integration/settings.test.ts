@@ -39,7 +39,8 @@ describe('Settings (admin)', () => {
 		const page = await admin.get('/settings');
 		expect(page.status).toBe(200);
 		const html = await page.text();
-		for (const label of ['Reminder interval (minutes)', 'Copy the leads in after this many reminders', 'Full list', 'Counts and a link only']) expect(html).toContain(label);
+		for (const label of ['Reminder interval (minutes)', 'Copy the leads in after this many reminders', 'Full list', 'Counts and a link only'])
+			expect(html).toContain(label);
 		const before = await selectOne<{ n: number }>("SELECT COUNT(*) AS n FROM audit_events WHERE entity = 'settings'");
 
 		const r = await admin.action('/settings', form(interval, '5', 'counts'));

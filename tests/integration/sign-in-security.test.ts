@@ -57,7 +57,12 @@ describe('no open redirect after sign-in (item 11)', () => {
 			expect(html.match(/name="redirectTo" value="([^"]*)"/)?.[1], v).toBe('/');
 			// posting the vector straight to the sign-in action (not through our form)
 			const c = new Client();
-			const r = await c.action('/signin', { providerId: 'credentials', email: ACCOUNTS.scorer, password: 'crosstally-demo', redirectTo: decodeURIComponent(v) });
+			const r = await c.action('/signin', {
+				providerId: 'credentials',
+				email: ACCOUNTS.scorer,
+				password: 'crosstally-demo',
+				redirectTo: decodeURIComponent(v)
+			});
 			expect(r.body.type, v).toBe('redirect');
 			const to = resolved(r.body.location ?? null);
 			expect(to.origin, `${v} → ${r.body.location}`).toBe(ORIGIN);

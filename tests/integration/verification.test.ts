@@ -61,8 +61,17 @@ describe('policy per battery', () => {
 
 		const ok = await setPolicy(b.id, { mode: 'sampled', minFields: '2000', windowDays: '180', thresholdPer100: '0.5', probabilityPercent: '25' });
 		expect(ok.body.type).toBe('success');
-		const row = await selectOne<{ mode: string; min_fields: number; window_days: number; threshold_per100: number; probability: number }>('SELECT mode, min_fields, window_days, threshold_per100, probability FROM verification_policies WHERE battery_id = :b', { b: b.id });
-		expect({ ...row, threshold_per100: Number(row!.threshold_per100), probability: Number(row!.probability) }).toEqual({ mode: 'sampled', min_fields: 2000, window_days: 180, threshold_per100: 0.5, probability: 0.25 });
+		const row = await selectOne<{ mode: string; min_fields: number; window_days: number; threshold_per100: number; probability: number }>(
+			'SELECT mode, min_fields, window_days, threshold_per100, probability FROM verification_policies WHERE battery_id = :b',
+			{ b: b.id }
+		);
+		expect({ ...row, threshold_per100: Number(row!.threshold_per100), probability: Number(row!.probability) }).toEqual({
+			mode: 'sampled',
+			min_fields: 2000,
+			window_days: 180,
+			threshold_per100: 0.5,
+			probability: 0.25
+		});
 		const events = await auditEvents('set_policy', b.id);
 		expect(events).toHaveLength(1);
 		expect(JSON.parse(events[0].old_value!)).toMatchObject({ mode: 'every' });
@@ -144,7 +153,10 @@ describe('qualification and the draw', () => {
 				}
 			})
 		);
-		const rows = await select<{ protocol_id: number; outcome: string; draw_value: number }>('SELECT protocol_id, outcome, draw_value FROM verification_protocols WHERE protocol_id IN (:ids)', { ids });
+		const rows = await select<{ protocol_id: number; outcome: string; draw_value: number }>(
+			'SELECT protocol_id, outcome, draw_value FROM verification_protocols WHERE protocol_id IN (:ids)',
+			{ ids }
+		);
 		expect(rows).toHaveLength(200);
 		const drawn = rows.filter((r) => r.outcome === 'drawn').length;
 		expect(rows.filter((r) => r.outcome !== 'drawn' && r.outcome !== 'not_drawn')).toEqual([]);
@@ -162,7 +174,9 @@ describe('qualification and the draw', () => {
 		const corr = (xs: number[], ys: number[]) => {
 			const mx = xs.reduce((s, v) => s + v, 0) / xs.length;
 			const my = ys.reduce((s, v) => s + v, 0) / ys.length;
-			let sxy = 0, sxx = 0, syy = 0;
+			let sxy = 0,
+				sxx = 0,
+				syy = 0;
 			for (let i = 0; i < xs.length; i++) {
 				sxy += (xs[i] - mx) * (ys[i] - my);
 				sxx += (xs[i] - mx) ** 2;
@@ -171,9 +185,30 @@ describe('qualification and the draw', () => {
 			return sxy / Math.sqrt(sxx * syy);
 		};
 		const byId = rows.map((r) => ({ id: Number(r.protocol_id), d: r.outcome === 'drawn' ? 1 : 0 }));
-		expect(Math.abs(corr(byId.map((r) => r.id), byId.map((r) => r.d)))).toBeLessThan(0.1821);
-		expect(Math.abs(corr(byId.map((r) => r.id % 2), byId.map((r) => r.d)))).toBeLessThan(0.1821);
-		expect(Math.abs(corr(outcomes.map((_, i) => i), outcomes.map((o) => (o.drawn ? 1 : 0))))).toBeLessThan(0.1821);
+		expect(
+			Math.abs(
+				corr(
+					byId.map((r) => r.id),
+					byId.map((r) => r.d)
+				)
+			)
+		).toBeLessThan(0.1821);
+		expect(
+			Math.abs(
+				corr(
+					byId.map((r) => r.id % 2),
+					byId.map((r) => r.d)
+				)
+			)
+		).toBeLessThan(0.1821);
+		expect(
+			Math.abs(
+				corr(
+					outcomes.map((_, i) => i),
+					outcomes.map((o) => (o.drawn ? 1 : 0))
+				)
+			)
+		).toBeLessThan(0.1821);
 		// and the stored uniform draw agrees with the outcome (below p × 1,000,000 = 250,000 ⇔ drawn)
 		for (const r of rows) expect(Number(r.draw_value) < 250_000).toBe(r.outcome === 'drawn');
 
@@ -182,7 +217,10 @@ describe('qualification and the draw', () => {
 		const s0 = single[0];
 		const p = await selectOne<{ status: string }>('SELECT status FROM protocols WHERE id = :id', { id: s0 });
 		expect(p?.status).toBe('in_review');
-		const ds = await select<{ pass: string; field: string; test_code: string; value: string; other: string | null; expected: string }>('SELECT pass, field, test_code, value, other, expected FROM discrepancies WHERE protocol_id = :p', { p: s0 });
+		const ds = await select<{ pass: string; field: string; test_code: string; value: string; other: string | null; expected: string }>(
+			'SELECT pass, field, test_code, value, other, expected FROM discrepancies WHERE protocol_id = :p',
+			{ p: s0 }
+		);
 		expect(ds).toEqual([{ pass: 'first', field: 'standard', test_code: firstTest, value: wrongStandard, other: null, expected: template[firstTest].standard }]);
 		const closed = await c2.request(`/api/v1/protocols/${s0}/pass`, { method: 'PUT', json: { scores: {}, draftVersion: 0 } });
 		expect(closed.status).toBe(409);
@@ -217,12 +255,19 @@ describe('back to full double entry', () => {
 		expect(st?.mode).toBe('full');
 		expect(st?.reverted_at).not.toBeNull();
 		expect(st?.reason).toContain('1 raw-score discrepancy in 5 raw fields');
-		const outbox = await select<{ kind: string; idempotency_key: string; dispatched_at: Date | null }>('SELECT kind, idempotency_key, dispatched_at FROM outbox WHERE kind = \'verification_full\' AND idempotency_key LIKE :k', { k: `verification-full:${a.id}:%` });
+		const outbox = await select<{ kind: string; idempotency_key: string; dispatched_at: Date | null }>(
+			"SELECT kind, idempotency_key, dispatched_at FROM outbox WHERE kind = 'verification_full' AND idempotency_key LIKE :k",
+			{ k: `verification-full:${a.id}:%` }
+		);
 		expect(outbox).toHaveLength(1);
-		const mail = await waitFor(async () => (await caughtMail()).find((m) => m.subject.includes(`Back to full double entry: ${a.name}`)), 90_000).catch(async (e) => {
-			const log = await select('SELECT idempotency_key, status, recipients, subject FROM mail_log WHERE kind = \'verification_full\'');
-			throw new Error(`${e.message}; outbox ${JSON.stringify(await select('SELECT * FROM outbox WHERE kind = \'verification_full\''))}; mail_log ${JSON.stringify(log)}`);
-		});
+		const mail = await waitFor(async () => (await caughtMail()).find((m) => m.subject.includes(`Back to full double entry: ${a.name}`)), 90_000).catch(
+			async (e) => {
+				const log = await select("SELECT idempotency_key, status, recipients, subject FROM mail_log WHERE kind = 'verification_full'");
+				throw new Error(
+					`${e.message}; outbox ${JSON.stringify(await select("SELECT * FROM outbox WHERE kind = 'verification_full'"))}; mail_log ${JSON.stringify(log)}`
+				);
+			}
+		);
 		expect(mail.to).toContain(ACCOUNTS.lead);
 		expect(mail.text).toContain('every protocol they enter now gets a second pass');
 		expect(mail.text).toContain('1 raw-score discrepancy in 5 raw fields');
@@ -248,7 +293,10 @@ describe('back to full double entry', () => {
 		const { exec } = await import('../../src/lib/server/db');
 		const fakeIds = Array.from({ length: 10 }, (_, i) => 3_950_000_000 + a.id * 20 + i);
 		for (const d of fakeIds)
-			await exec(`INSERT INTO error_events (discrepancy_id, protocol_id, scorer_id, battery_id, test_code, domain, field, kind, entered_at) VALUES (:d, 0, :s, :b, 'seeded', 'seeded', 'raw', 'transposition', NOW(3) - INTERVAL 1 DAY)`, { d, s: a.id, b: b.id });
+			await exec(
+				`INSERT INTO error_events (discrepancy_id, protocol_id, scorer_id, battery_id, test_code, domain, field, kind, entered_at) VALUES (:d, 0, :s, :b, 'seeded', 'seeded', 'raw', 'transposition', NOW(3) - INTERVAL 1 DAY)`,
+				{ d, s: a.id, b: b.id }
+			);
 		try {
 			// the clean second pass reconciles: no raw discrepancy in this protocol, but the rolling record is
 			// 10 errors in 2,000 + 5 = 2,005 raw fields: centre (10 + 1.920729)/2008.841459 = 0.0059341,
@@ -311,16 +359,26 @@ describe('the Audit numbers', () => {
 		// 36 protocols that got no second pass, 5 raw fields each: U = 180 — written as the draw writes them
 		const { exec } = await import('../../src/lib/server/db');
 		for (let i = 0; i < 36; i++) {
-			await exec(`INSERT INTO verification_protocols (protocol_id, outcome, decided_at, scorer_id, battery_id, probability, draw_value, raw_fields, fields_entered) VALUES (:p, 'not_drawn', NOW(3), :s, :b, 0.25, 900000, 5, 30)`, {
-				p: 3_900_000_000 + a.id * 100 + i,
-				s: a.id,
-				b: b.id
-			});
+			await exec(
+				`INSERT INTO verification_protocols (protocol_id, outcome, decided_at, scorer_id, battery_id, probability, draw_value, raw_fields, fields_entered) VALUES (:p, 'not_drawn', NOW(3), :s, :b, 0.25, 900000, 5, 30)`,
+				{
+					p: 3_900_000_000 + a.id * 100 + i,
+					s: a.id,
+					b: b.id
+				}
+			);
 		}
-		const fieldsPerPass = (await selectOne<{ n: number }>('SELECT fields_entered AS n FROM passes WHERE protocol_id = :p AND which = \'first\'', { p: sampled[0] }))!.n;
+		const fieldsPerPass = (await selectOne<{ n: number }>("SELECT fields_entered AS n FROM passes WHERE protocol_id = :p AND which = 'first'", {
+			p: sampled[0]
+		}))!.n;
 		const html = await (await lead.get('/audit/verification')).text();
 		const row = html.slice(html.indexOf(`data-testid="risk-${a.id}-${b.id}"`));
-		const cell = (id: string) => row.slice(row.indexOf(`data-testid="${id}"`)).split('</td>')[0].replace(/<[^>]+>/g, ' ').replace(/\s+/g, ' ');
+		const cell = (id: string) =>
+			row
+				.slice(row.indexOf(`data-testid="${id}"`))
+				.split('</td>')[0]
+				.replace(/<[^>]+>/g, ' ')
+				.replace(/\s+/g, ' ');
 		expect(cell('status')).toMatch(/sampled since \d{4}-\d{2}-\d{2}/);
 		// with a second pass: 12,000 seeded + 4 × 23 (each pass: 5 raw + the 18 derived fields this battery reports) = 12,092
 		expect(fieldsPerPass).toBe(23);

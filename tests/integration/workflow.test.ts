@@ -69,7 +69,10 @@ describe('creating a protocol', () => {
 		const id = await createViaForm(lead, { ...duties, birthDate: '1990-06-15', testDate: '2026-11-20' });
 		const p = await selectOne<{ age_text: string; age_months: number }>('SELECT age_text, age_months FROM protocols WHERE id = :id', { id });
 		expect(p).toEqual({ age_text: '36;5;5', age_months: 36 * 12 + 5 });
-		const groups = await select<{ group_code: string }>('SELECT ng.group_code FROM protocol_tests pt JOIN norm_groups ng ON ng.id = pt.norm_group_id WHERE pt.protocol_id = :id', { id });
+		const groups = await select<{ group_code: string }>(
+			'SELECT ng.group_code FROM protocol_tests pt JOIN norm_groups ng ON ng.id = pt.norm_group_id WHERE pt.protocol_id = :id',
+			{ id }
+		);
 		expect(groups.length).toBe(5);
 		expect(groups.every((g) => g.group_code.startsWith('a30'))).toBe(true);
 	});
@@ -135,7 +138,10 @@ describe('reconciliation on the second submit', () => {
 		const r = await saveAndSubmit(s2, id, second);
 		expect(r.status).toBe(200);
 		expect(r.body).toMatchObject({ which: 'second', status: 'in_review', discrepancies: 2 });
-		const ds = await select<{ test_code: string; field: string; kind: string; pass: string }>('SELECT test_code, field, kind, pass FROM discrepancies WHERE protocol_id = :id ORDER BY position', { id });
+		const ds = await select<{ test_code: string; field: string; kind: string; pass: string }>(
+			'SELECT test_code, field, kind, pass FROM discrepancies WHERE protocol_id = :id ORDER BY position',
+			{ id }
+		);
 		expect(ds).toEqual([
 			{ test_code: 'speeded-match', field: 'z', kind: 'sign_flip', pass: 'second' },
 			{ test_code: 'word-recall', field: 'standard', kind: 'transposition', pass: 'second' }
@@ -151,19 +157,30 @@ describe('reconciliation on the second submit', () => {
 		const { first, second } = await twoEntries(id);
 		await saveAndSubmit(s1, id, first);
 		const pass = await getPass(s2, id);
-		const put = await (await s2.request(`/api/v1/protocols/${id}/pass`, { method: 'PUT', json: { scores: second, draftVersion: pass.body.draftVersion } })).json();
-		const tabs = await Promise.all([0, 1, 2].map(() => s2.request(`/api/v1/protocols/${id}/pass`, { method: 'POST', json: { draftVersion: put.draftVersion } })));
+		const put = await (
+			await s2.request(`/api/v1/protocols/${id}/pass`, { method: 'PUT', json: { scores: second, draftVersion: pass.body.draftVersion } })
+		).json();
+		const tabs = await Promise.all(
+			[0, 1, 2].map(() => s2.request(`/api/v1/protocols/${id}/pass`, { method: 'POST', json: { draftVersion: put.draftVersion } }))
+		);
 		const statuses = tabs.map((t) => t.status).sort();
 		expect(statuses).toEqual([200, 409, 409]);
 		const loser = await tabs.find((t) => t.status === 409)!.json();
 		expect(loser.code).toBe('already_submitted');
 		expect(loser.message).toContain('already submitted');
 		expect((await selectOne<{ n: number }>('SELECT COUNT(*) AS n FROM discrepancies WHERE protocol_id = :id', { id }))!.n).toBe(2);
-		expect((await selectOne<{ n: number }>(`SELECT COUNT(*) AS n FROM outbox WHERE kind = 'review_first' AND JSON_VALUE(payload, '$.protocolId') = :id`, { id }))!.n).toBe(1);
+		expect(
+			(await selectOne<{ n: number }>(`SELECT COUNT(*) AS n FROM outbox WHERE kind = 'review_first' AND JSON_VALUE(payload, '$.protocolId') = :id`, { id }))!.n
+		).toBe(1);
 	});
 
 	it('a failure inside the transaction rolls everything back and says so', async () => {
-		const root = new Sequelize(config.db.name, 'root', '', { dialect: 'mariadb', dialectModule: mariadb, logging: false, dialectOptions: { socketPath: process.env.MIGRATE_SOCKET } });
+		const root = new Sequelize(config.db.name, 'root', '', {
+			dialect: 'mariadb',
+			dialectModule: mariadb,
+			logging: false,
+			dialectOptions: { socketPath: process.env.MIGRATE_SOCKET }
+		});
 		const id = await createViaForm(lead, duties);
 		const { first, second } = await twoEntries(id);
 		await saveAndSubmit(s1, id, first);
@@ -195,7 +212,10 @@ describe('review, sign-off and reopen', () => {
 		const { first, second } = await twoEntries(id);
 		await saveAndSubmit(s1, id, first);
 		await saveAndSubmit(s2, id, second);
-		const ds = await select<{ id: number; lock_version: number; field: string; expected: string | null }>('SELECT id, lock_version, field, expected FROM discrepancies WHERE protocol_id = :id ORDER BY position', { id });
+		const ds = await select<{ id: number; lock_version: number; field: string; expected: string | null }>(
+			'SELECT id, lock_version, field, expected FROM discrepancies WHERE protocol_id = :id ORDER BY position',
+			{ id }
+		);
 		return { id, ds, first };
 	}
 
@@ -210,7 +230,11 @@ describe('review, sign-off and reopen', () => {
 		expect((await second.json()).message).toContain('differs from the recomputed value');
 		const impossible = await patch({ choice: 'other', value: '9.99', note: 'typo test', lockVersion: ds[0].lock_version });
 		expect(impossible.status).toBe(400);
-		const bad = await reviewer.request(`/api/v1/discrepancies/${ds[0].id}`, { method: 'PATCH', body: 'not json', headers: { 'content-type': 'application/json' } });
+		const bad = await reviewer.request(`/api/v1/discrepancies/${ds[0].id}`, {
+			method: 'PATCH',
+			body: 'not json',
+			headers: { 'content-type': 'application/json' }
+		});
 		expect(bad.status).toBe(400);
 		const ok = await patch({ choice: 'recomputed', lockVersion: ds[0].lock_version });
 		expect(ok.status).toBe(200);
@@ -223,7 +247,10 @@ describe('review, sign-off and reopen', () => {
 		const tabB = await signedIn('reviewer');
 		const [a, b] = await Promise.all([
 			tabA.request(`/api/v1/discrepancies/${ds[1].id}`, { method: 'PATCH', json: { choice: 'recomputed', lockVersion: ds[1].lock_version } }),
-			tabB.request(`/api/v1/discrepancies/${ds[1].id}`, { method: 'PATCH', json: { choice: 'other', value: '117', note: 'from tab B', lockVersion: ds[1].lock_version } })
+			tabB.request(`/api/v1/discrepancies/${ds[1].id}`, {
+				method: 'PATCH',
+				json: { choice: 'other', value: '117', note: 'from tab B', lockVersion: ds[1].lock_version }
+			})
 		]);
 		expect([a.status, b.status].sort()).toEqual([200, 409]);
 		const loser = await (a.status === 409 ? a : b).json();
@@ -238,12 +265,18 @@ describe('review, sign-off and reopen', () => {
 		const early = await reviewer.request(`/api/v1/protocols/${id}/signoff`, { method: 'POST', json: { lockVersion: await lockOf() } });
 		expect(early.status).toBe(409);
 		expect((await early.json()).message).toContain('still open');
-		for (const d of ds) expect((await reviewer.request(`/api/v1/discrepancies/${d.id}`, { method: 'PATCH', json: { choice: 'recomputed', lockVersion: d.lock_version } })).status).toBe(200);
+		for (const d of ds)
+			expect(
+				(await reviewer.request(`/api/v1/discrepancies/${d.id}`, { method: 'PATCH', json: { choice: 'recomputed', lockVersion: d.lock_version } })).status
+			).toBe(200);
 		expect((await s1.request(`/api/v1/protocols/${id}/signoff`, { method: 'POST', json: { lockVersion: await lockOf() } })).status).toBe(403);
 		const ok = await reviewer.request(`/api/v1/protocols/${id}/signoff`, { method: 'POST', json: { lockVersion: await lockOf() } });
 		expect(ok.status).toBe(200);
 		// verified is read-only
-		const late = await reviewer.request(`/api/v1/discrepancies/${ds[0].id}`, { method: 'PATCH', json: { choice: 'first', note: 'late change', lockVersion: ds[0].lock_version + 1 } });
+		const late = await reviewer.request(`/api/v1/discrepancies/${ds[0].id}`, {
+			method: 'PATCH',
+			json: { choice: 'first', note: 'late change', lockVersion: ds[0].lock_version + 1 }
+		});
 		expect(late.status).toBe(409);
 		// the summary shows the corrected values
 		const csv = await (await reviewer.get(`/protocols/${id}/summary.csv`)).text();
@@ -257,7 +290,10 @@ describe('review, sign-off and reopen', () => {
 		expect(re.body.type).toBe('success');
 		const p = await selectOne<{ status: string; round: number }>('SELECT status, round FROM protocols WHERE id = :id', { id });
 		expect(p).toEqual({ status: 'in_review', round: 2 });
-		const rounds = await select<{ round: number; open: number }>('SELECT round, SUM(resolved_at IS NULL) AS open FROM discrepancies WHERE protocol_id = :id GROUP BY round ORDER BY round', { id });
+		const rounds = await select<{ round: number; open: number }>(
+			'SELECT round, SUM(resolved_at IS NULL) AS open FROM discrepancies WHERE protocol_id = :id GROUP BY round ORDER BY round',
+			{ id }
+		);
 		expect(rounds.map((r) => [r.round, Number(r.open)])).toEqual([
 			[1, 0],
 			[2, 2]
@@ -281,7 +317,11 @@ describe('attachments', () => {
 	async function upload(c: Client, id: number, bytes: Uint8Array, name: string) {
 		const fd = new FormData();
 		fd.append('file', new File([new Uint8Array(bytes)], name));
-		const res = await c.request(`/protocols/${id}?/upload`, { method: 'POST', body: fd, headers: { 'x-sveltekit-action': 'true', accept: 'application/json' } });
+		const res = await c.request(`/protocols/${id}?/upload`, {
+			method: 'POST',
+			body: fd,
+			headers: { 'x-sveltekit-action': 'true', accept: 'application/json' }
+		});
 		return (await res.json()) as { type: string; status?: number; data?: string };
 	}
 
@@ -294,7 +334,10 @@ describe('attachments', () => {
 		expect(empty.type).toBe('failure');
 		const ok = await upload(s1, id, png, '../../etc/passwd\u0000.png');
 		expect(ok.type).toBe('success');
-		const row = await selectOne<{ filename: string; mime: string; sha256: string; storage_name: string }>('SELECT filename, mime, sha256, storage_name FROM attachments WHERE protocol_id = :id', { id });
+		const row = await selectOne<{ filename: string; mime: string; sha256: string; storage_name: string }>(
+			'SELECT filename, mime, sha256, storage_name FROM attachments WHERE protocol_id = :id',
+			{ id }
+		);
 		expect(row!.filename).toBe('passwd.png');
 		expect(row!.mime).toBe('image/png');
 		expect(row!.sha256).toMatch(/^[0-9a-f]{64}$/);

@@ -76,10 +76,7 @@ describe('crosstally agreement (child process)', () => {
 		expect(Object.keys(result.kappa).sort()).toEqual(['expected', 'kappa', 'n', 'observed']);
 		expect(result.kappa.n).toBe(100);
 		expect(result.kappa.kappa).toBeCloseTo(0.8921569, 7); // Gwet 2014 via irrCAC docs
-		expect(result.kappa.kappa).toBeCloseTo(
-			(result.kappa.observed - result.kappa.expected) / (1 - result.kappa.expected),
-			12
-		);
+		expect(result.kappa.kappa).toBeCloseTo((result.kappa.observed - result.kappa.expected) / (1 - result.kappa.expected), 12);
 
 		expect(Object.keys(result.icc)).toEqual(['ICC(1,1)', 'ICC(2,1)', 'ICC(3,1)', 'ICC(1,k)', 'ICC(2,k)', 'ICC(3,k)']);
 		const published = [0.17, 0.29, 0.71, 0.44, 0.62, 0.91]; // Shrout & Fleiss 1979
@@ -95,9 +92,40 @@ describe('crosstally agreement (child process)', () => {
 
 	it('answers each key on its own', async () => {
 		const [kappa, icc, ba] = await Promise.all([
-			runAgreement(json({ kappa: { pairs: [['a', 'a'], ['a', 'b'], ['b', 'b'], ['b', 'b']] } })),
-			runAgreement(json({ icc: { ratings: [[1, 2], [2, 3], [3, 5]] } })),
-			runAgreement(json({ bland_altman: { pairs: [[1, 2], [3, 3], [5, 4]] } }))
+			runAgreement(
+				json({
+					kappa: {
+						pairs: [
+							['a', 'a'],
+							['a', 'b'],
+							['b', 'b'],
+							['b', 'b']
+						]
+					}
+				})
+			),
+			runAgreement(
+				json({
+					icc: {
+						ratings: [
+							[1, 2],
+							[2, 3],
+							[3, 5]
+						]
+					}
+				})
+			),
+			runAgreement(
+				json({
+					bland_altman: {
+						pairs: [
+							[1, 2],
+							[3, 3],
+							[5, 4]
+						]
+					}
+				})
+			)
 		]);
 
 		expect(kappa.code).toBe(0);
@@ -117,7 +145,16 @@ describe('crosstally agreement (child process)', () => {
 	it('linear and unweighted kappa with categories; null kappa with a note when pe = 1', async () => {
 		const [linear, degenerate] = await Promise.all([
 			runAgreement(json({ kappa: { pairs: gwetPairs(), weights: 'linear', categories: ['Ectopic', 'AIU', 'NIU'] } })),
-			runAgreement(json({ kappa: { pairs: [['x', 'x'], ['x', 'x']] } }))
+			runAgreement(
+				json({
+					kappa: {
+						pairs: [
+							['x', 'x'],
+							['x', 'x']
+						]
+					}
+				})
+			)
 		]);
 		expect(linear.code).toBe(0);
 		expect(JSON.parse(linear.stdout).kappa.kappa.toFixed(3)).toBe('0.843');
@@ -135,17 +172,65 @@ describe('crosstally agreement (child process)', () => {
 		['an unknown top-level key', json({ kapa: { pairs: [['a', 'b']] } }), /kapa: unknown key/],
 		['an unknown nested key', json({ icc: { ratings: SF, model: 'twoway' } }), /icc\.model: unknown key/],
 		['weights without categories', json({ kappa: { pairs: [['a', 'b']], weights: 'quadratic' } }), /kappa\.categories: required with quadratic weights/],
-		['a label not in categories', json({ kappa: { pairs: [['a', 'b'], ['a', 'q']], weights: 'linear', categories: ['a', 'b'] } }), /kappa\.pairs\[1\]\[1\]: label "q" is not in kappa\.categories/],
+		[
+			'a label not in categories',
+			json({
+				kappa: {
+					pairs: [
+						['a', 'b'],
+						['a', 'q']
+					],
+					weights: 'linear',
+					categories: ['a', 'b']
+				}
+			}),
+			/kappa\.pairs\[1\]\[1\]: label "q" is not in kappa\.categories/
+		],
 		['an unknown weighting', json({ kappa: { pairs: [['a', 'b']], weights: 'cubic' } }), /kappa\.weights: expected one of "none", "linear", "quadratic"/],
 		['a numeric label', json({ kappa: { pairs: [['a', 3]] } }), /kappa\.pairs\[0\]\[1\]: expected a string, got a number/],
 		['a pair of three', json({ kappa: { pairs: [['a', 'b', 'c']] } }), /kappa\.pairs\[0\]: expected a pair of two labels/],
-		['a missing ICC rating', json({ icc: { ratings: [[1, 2], [3, 4], [5, null]] } }), /icc\.ratings\[2\]\[1\]: expected a number, got null/],
-		['ragged ICC rows', json({ icc: { ratings: [[1, 2, 3], [4, 5, 6], [7, 8]] } }), /icc\.ratings\[2\]: expected 3 ratings like row 0, got 2/],
+		[
+			'a missing ICC rating',
+			json({
+				icc: {
+					ratings: [
+						[1, 2],
+						[3, 4],
+						[5, null]
+					]
+				}
+			}),
+			/icc\.ratings\[2\]\[1\]: expected a number, got null/
+		],
+		[
+			'ragged ICC rows',
+			json({
+				icc: {
+					ratings: [
+						[1, 2, 3],
+						[4, 5, 6],
+						[7, 8]
+					]
+				}
+			}),
+			/icc\.ratings\[2\]: expected 3 ratings like row 0, got 2/
+		],
 		['fewer than 2 ICC rows', json({ icc: { ratings: [[1, 2]] } }), /icc\.ratings: expected at least 2 rows/],
 		['a single rater', json({ icc: { ratings: [[1], [2]] } }), /icc\.ratings\[0\]: expected at least 2 ratings/],
 		['ratings not an array', json({ icc: { ratings: 'lots' } }), /icc\.ratings: expected an array, got a string/],
 		['one Bland–Altman pair', json({ bland_altman: { pairs: [[1, 2]] } }), /bland_altman\.pairs: expected at least 2 pairs, got 1/],
-		['a string measurement', json({ bland_altman: { pairs: [[1, 2], ['3', 4]] } }), /bland_altman\.pairs\[1\]\[0\]: expected a number, got a string/]
+		[
+			'a string measurement',
+			json({
+				bland_altman: {
+					pairs: [
+						[1, 2],
+						['3', 4]
+					]
+				}
+			}),
+			/bland_altman\.pairs\[1\]\[0\]: expected a number, got a string/
+		]
 	];
 
 	it.each(bad)('rejects %s: exit 2, the path on stderr, nothing on stdout', async (_name, stdin, message) => {
@@ -156,14 +241,34 @@ describe('crosstally agreement (child process)', () => {
 	});
 
 	it('rejects a bad section even when the other sections are good (all or nothing)', async () => {
-		const out = await runAgreement(json({ icc: { ratings: SF }, bland_altman: { pairs: [[1, 'x'], [2, 3]] } }));
+		const out = await runAgreement(
+			json({
+				icc: { ratings: SF },
+				bland_altman: {
+					pairs: [
+						[1, 'x'],
+						[2, 3]
+					]
+				}
+			})
+		);
 		expect(out.code).toBe(2);
 		expect(out.stdout).toBe('');
 		expect(out.stderr).toMatch(/bland_altman\.pairs\[0\]\[1\]: expected a number/);
 	});
 
 	it('lists every problem, one per line', async () => {
-		const out = await runAgreement(json({ icc: { ratings: [[1, 'a'], [null, 2]] }, extra: true }));
+		const out = await runAgreement(
+			json({
+				icc: {
+					ratings: [
+						[1, 'a'],
+						[null, 2]
+					]
+				},
+				extra: true
+			})
+		);
 		expect(out.code).toBe(2);
 		const lines = out.stderr.trim().split('\n');
 		expect(lines).toEqual(

@@ -55,7 +55,15 @@ describe("Cohen's kappa: published examples", () => {
 		// test_classification.py, test_cohen_kappa), which is where we confirmed it.
 		// By hand: n = 100, pₒ = (20 + 50)/100 = .70; marginals rater 1 (40, 60), rater 2
 		// (30, 70); pₑ = .4·.3 + .6·.7 = .54; κ = (.70 − .54)/(1 − .54) = .16/.46 = .347826…
-		const r = cohenKappa(pairsFromTable([[20, 20], [10, 50]], ['a', 'b']));
+		const r = cohenKappa(
+			pairsFromTable(
+				[
+					[20, 20],
+					[10, 50]
+				],
+				['a', 'b']
+			)
+		);
 		expect(r.n).toBe(100);
 		expect(r.observed).toBeCloseTo(0.7, 12);
 		expect(r.expected).toBeCloseTo(0.54, 12);
@@ -251,9 +259,7 @@ describe("Cohen's kappa: formulas and choices", () => {
 		expect(unknown.path).toBe('pairs[1][0]');
 		expect(unknown.message).toMatch(/"z" is not in categories/);
 		expect(thrown(() => cohenKappa([['a', 'a']], { categories: ['a', 'a'] })).path).toBe('categories[1]');
-		expect(thrown(() => cohenKappa([['a', 'a']], { weights: 'quadratic', categories: ['a'] })).path).toBe(
-			'categories'
-		);
+		expect(thrown(() => cohenKappa([['a', 'a']], { weights: 'quadratic', categories: ['a'] })).path).toBe('categories');
 		expect(thrown(() => cohenKappa([])).path).toBe('pairs');
 		expect(thrown(() => cohenKappa([['a', 1 as unknown as string]])).path).toBe('pairs[0][1]');
 	});
@@ -360,10 +366,22 @@ describe('Intraclass correlation: Shrout & Fleiss (1979)', () => {
 
 	it('rejects ragged rows, missing values, fewer than 2 rows or 2 raters', () => {
 		expect(thrown(() => intraclassCorrelation([[1, 2], [3, 4], [5]])).path).toBe('ratings[2]');
-		expect(thrown(() => intraclassCorrelation([[1, 2], [3, NaN]])).path).toBe('ratings[1][1]');
-		expect(thrown(() => intraclassCorrelation([[1, 2], [3, null as unknown as number]])).path).toBe(
-			'ratings[1][1]'
-		);
+		expect(
+			thrown(() =>
+				intraclassCorrelation([
+					[1, 2],
+					[3, NaN]
+				])
+			).path
+		).toBe('ratings[1][1]');
+		expect(
+			thrown(() =>
+				intraclassCorrelation([
+					[1, 2],
+					[3, null as unknown as number]
+				])
+			).path
+		).toBe('ratings[1][1]');
 		expect(thrown(() => intraclassCorrelation([[1, 2]])).path).toBe('ratings');
 		expect(thrown(() => intraclassCorrelation([[1], [2]])).path).toBe('ratings[0]');
 	});
@@ -425,7 +443,14 @@ describe('Bland–Altman (1986)', () => {
 
 	it('rejects fewer than 2 pairs and non-numbers', () => {
 		expect(thrown(() => blandAltman([[1, 2]])).path).toBe('pairs');
-		expect(thrown(() => blandAltman([[1, 2], [3, Infinity]])).path).toBe('pairs[1][1]');
+		expect(
+			thrown(() =>
+				blandAltman([
+					[1, 2],
+					[3, Infinity]
+				])
+			).path
+		).toBe('pairs[1][1]');
 		expect(thrown(() => blandAltman([[1, 2], [3] as unknown as [number, number]])).path).toBe('pairs[1]');
 	});
 });
@@ -545,9 +570,7 @@ describe('interpretation bands', () => {
 			fc.property(fc.double({ min: -2, max: 2, noNaN: true }), (v) => {
 				for (const scheme of [LANDIS_KOCH_1977, KOO_LI_2016]) {
 					const hits = scheme.bands.filter(
-						(b) =>
-							(b.min === null || (b.minInclusive ? v >= b.min : v > b.min)) &&
-							(b.max === null || (b.maxInclusive ? v <= b.max : v < b.max))
+						(b) => (b.min === null || (b.minInclusive ? v >= b.min : v > b.min)) && (b.max === null || (b.maxInclusive ? v <= b.max : v < b.max))
 					);
 					expect(hits).toHaveLength(1);
 				}
@@ -604,14 +627,12 @@ describe('properties', () => {
 		);
 	});
 
-	const matrix = fc
-		.tuple(fc.integer({ min: 2, max: 8 }), fc.integer({ min: 2, max: 5 }))
-		.chain(([n, k]) =>
-			fc.array(fc.array(fc.integer({ min: -50, max: 50 }), { minLength: k, maxLength: k }), {
-				minLength: n,
-				maxLength: n
-			})
-		);
+	const matrix = fc.tuple(fc.integer({ min: 2, max: 8 }), fc.integer({ min: 2, max: 5 })).chain(([n, k]) =>
+		fc.array(fc.array(fc.integer({ min: -50, max: 50 }), { minLength: k, maxLength: k }), {
+			minLength: n,
+			maxLength: n
+		})
+	);
 
 	it('swapping (permuting) raters leaves every ICC unchanged', () => {
 		fc.assert(

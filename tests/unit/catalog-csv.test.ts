@@ -9,7 +9,15 @@ const ctx = { testCodes: new Set(['word-recall', 'speeded-match']), domains: new
 const H = 'test_code,group_code,age_min_months,age_max_months,sex,edu_min,edu_max,mean,sd,n';
 const norms = (...rows: string[]) => [H, ...rows].join('\n') + '\n';
 const r = (label: string, min: number, max: number, extra: Partial<RangeRow> = {}): RangeRow => ({
-	label, test_code: 't', group_code: label, age_min_months: min, age_max_months: max, sex: null, edu_min: null, edu_max: null, ...extra
+	label,
+	test_code: 't',
+	group_code: label,
+	age_min_months: min,
+	age_max_months: max,
+	sex: null,
+	edu_min: null,
+	edu_max: null,
+	...extra
 });
 
 describe('age ranges', () => {
@@ -30,8 +38,10 @@ describe('age ranges', () => {
 	});
 	it('checks each set of keys on its own', () => {
 		const rows = [
-			r('lo1', 216, 359, { edu_min: 0, edu_max: 12 }), r('hi1', 216, 359, { edu_min: 13, edu_max: 30 }),
-			r('lo2', 360, 479, { edu_min: 0, edu_max: 12 }), r('f', 216, 479, { sex: 'F' })
+			r('lo1', 216, 359, { edu_min: 0, edu_max: 12 }),
+			r('hi1', 216, 359, { edu_min: 13, edu_max: 30 }),
+			r('lo2', 360, 479, { edu_min: 0, edu_max: 12 }),
+			r('f', 216, 479, { sex: 'F' })
 		];
 		expect(rangeProblems(rows)).toEqual([]);
 		expect(rangeProblems([...rows, r('lo3', 470, 599, { edu_min: 0, edu_max: 12 })]).map((p) => p.kind)).toEqual(['overlap']);
@@ -65,7 +75,11 @@ describe('norm table CSV', () => {
 			),
 			ctx
 		);
-		const by = (line: number) => result.errors.filter((e) => e.line === line).map((e) => e.message).join(' | ');
+		const by = (line: number) =>
+			result.errors
+				.filter((e) => e.line === line)
+				.map((e) => e.message)
+				.join(' | ');
 		expect(by(2)).toBe('');
 		expect(by(3)).toMatch(/SD must be above 0/);
 		expect(by(4)).toMatch(/"abc" is not a number/);
@@ -79,7 +93,11 @@ describe('norm table CSV', () => {
 		expect(result.badLines).toBe(7);
 	});
 	it('finds overlaps and gaps across rows', () => {
-		const { result } = validateCsvText('norms', norms('word-recall,a18,216,359,,,,1,1,', 'word-recall,a30,350,479,,,,1,1,', 'word-recall,a50,600,719,,,,1,1,'), ctx);
+		const { result } = validateCsvText(
+			'norms',
+			norms('word-recall,a18,216,359,,,,1,1,', 'word-recall,a30,350,479,,,,1,1,', 'word-recall,a50,600,719,,,,1,1,'),
+			ctx
+		);
 		expect(result.errors.map((e) => [e.line, e.message.split(':')[0]])).toEqual([
 			[3, 'Age ranges overlap for word-recall'],
 			[4, 'Age gap for word-recall']
@@ -146,18 +164,39 @@ describe('norm table CSV', () => {
 describe('test list CSV', () => {
 	const TH = 'code,name,domain,unit,direction,raw_min,raw_max,raw_decimals,reported,bounds,reliability,notes';
 	it('reads reported scores and bounds', () => {
-		const { result, rows } = validateCsvText('tests', `${TH}\nnew-one,New One,memory,points,higher_better,0,30,0,t z percentile,t=25..75 z=-4..4,0.8,"a note, with comma\nand newline"\n`, ctx, true);
+		const { result, rows } = validateCsvText(
+			'tests',
+			`${TH}\nnew-one,New One,memory,points,higher_better,0,30,0,t z percentile,t=25..75 z=-4..4,0.8,"a note, with comma\nand newline"\n`,
+			ctx,
+			true
+		);
 		expect(result.errors).toEqual([]);
-		expect(rows[0]).toMatchObject({ reported: ['z', 't', 'percentile'], bounds: { t: [25, 75], z: [-4, 4] }, reliability: 0.8, notes: 'a note, with comma\nand newline' });
+		expect(rows[0]).toMatchObject({
+			reported: ['z', 't', 'percentile'],
+			bounds: { t: [25, 75], z: [-4, 4] },
+			reliability: 0.8,
+			notes: 'a note, with comma\nand newline'
+		});
 	});
 	it('names bad rows: unknown domain, direction, reported, bounds, duplicates, range', () => {
 		const { result } = validateCsvText(
 			'tests',
-			[TH, 'a,A test,nowhere,points,higher_better,0,10,0,z,,,', 'b,B test,memory,points,sideways,0,10,0,z,,,', 'c,C test,memory,points,lower_better,0,10,0,iq,,,',
-				'd,D test,memory,points,lower_better,0,10,0,t,t=80..20,,', 'd,D again,memory,points,lower_better,0,10,0,t,,,', 'e,E test,memory,points,lower_better,10,5,0,t,,1.5,'].join('\n'),
+			[
+				TH,
+				'a,A test,nowhere,points,higher_better,0,10,0,z,,,',
+				'b,B test,memory,points,sideways,0,10,0,z,,,',
+				'c,C test,memory,points,lower_better,0,10,0,iq,,,',
+				'd,D test,memory,points,lower_better,0,10,0,t,t=80..20,,',
+				'd,D again,memory,points,lower_better,0,10,0,t,,,',
+				'e,E test,memory,points,lower_better,10,5,0,t,,1.5,'
+			].join('\n'),
 			ctx
 		);
-		const by = (line: number) => result.errors.filter((e) => e.line === line).map((e) => e.message).join(' | ');
+		const by = (line: number) =>
+			result.errors
+				.filter((e) => e.line === line)
+				.map((e) => e.message)
+				.join(' | ');
 		expect(by(2)).toMatch(/unknown domain "nowhere"/);
 		expect(by(3)).toMatch(/direction: "sideways"/);
 		expect(by(4)).toMatch(/unknown score "iq"/);
@@ -168,8 +207,16 @@ describe('test list CSV', () => {
 	});
 	it('exports to the layout it reads (round trip), protecting formula-like text', () => {
 		const t = testInputSchema.parse({
-			code: 'rt', name: 'Round, "trip"', domain: 'memory', unit: 'points', direction: 'lower_better', raw: { min: -1.5, max: 30, decimals: 1 },
-			reported: ['z', 'percentile'], bounds: { z: [-4, 4] }, reliability: 0.75, notes: '=not a formula\nsecond line'
+			code: 'rt',
+			name: 'Round, "trip"',
+			domain: 'memory',
+			unit: 'points',
+			direction: 'lower_better',
+			raw: { min: -1.5, max: 30, decimals: 1 },
+			reported: ['z', 'percentile'],
+			bounds: { z: [-4, 4] },
+			reliability: 0.75,
+			notes: '=not a formula\nsecond line'
 		});
 		const csv = testsToCsv([t]);
 		expect(csv).toContain(`"'=not a formula`);
@@ -180,7 +227,20 @@ describe('test list CSV', () => {
 		expect(testsToCsv([back])).toBe(csv);
 	});
 	it('exports norm groups to the layout it reads', () => {
-		const g = [{ test_code: 'word-recall', group_code: 'a30-e0', age_min_months: 360, age_max_months: 479, sex: 'F' as const, edu_min: 0, edu_max: 12, mean: 24.5, sd: 4.2, n: 62 }];
+		const g = [
+			{
+				test_code: 'word-recall',
+				group_code: 'a30-e0',
+				age_min_months: 360,
+				age_max_months: 479,
+				sex: 'F' as const,
+				edu_min: 0,
+				edu_max: 12,
+				mean: 24.5,
+				sd: 4.2,
+				n: 62
+			}
+		];
 		const csv = normGroupsToCsv(g);
 		const { rows } = validateCsvText('norms', csv, ctx, true);
 		expect(rows.map(({ line: _l, ...x }) => x)).toMatchObject(g); // the parser adds the form fields (form: mean_sd …); every exported field must come back as written
@@ -200,13 +260,40 @@ describe('small parsers and the form', () => {
 		expect(parseBounds('t:20-80')).toMatch(/scale=min\.\.max/);
 	});
 	it('converts the flat form to a test and back', () => {
-		const f = testFormSchema.parse({ code: 'x1', name: 'X one', domain: 'memory', unit: 's', direction: 'lower_better', raw_min: 0, raw_max: 300, raw_decimals: 1, reported: ['t', 'z'], t_min: 20, t_max: 80, reliability: 0.9, notes: '' });
+		const f = testFormSchema.parse({
+			code: 'x1',
+			name: 'X one',
+			domain: 'memory',
+			unit: 's',
+			direction: 'lower_better',
+			raw_min: 0,
+			raw_max: 300,
+			raw_decimals: 1,
+			reported: ['t', 'z'],
+			t_min: 20,
+			t_max: 80,
+			reliability: 0.9,
+			notes: ''
+		});
 		const t = formToTestInput(f);
 		expect(t).toMatchObject({ reported: ['z', 't'], bounds: { t: [20, 80] }, notes: null, raw: { min: 0, max: 300, decimals: 1 } });
 		expect(formToTestInput(testInputToForm(t))).toEqual(t);
 	});
 	it('gives field messages for half-given or inverted bounds', () => {
-		const p = testFormSchema.safeParse({ code: 'x1', name: 'X one', domain: 'memory', unit: 's', direction: 'lower_better', raw_min: 5, raw_max: 1, raw_decimals: 0, reported: [], t_min: 20, scaled_min: 10, scaled_max: 5 });
+		const p = testFormSchema.safeParse({
+			code: 'x1',
+			name: 'X one',
+			domain: 'memory',
+			unit: 's',
+			direction: 'lower_better',
+			raw_min: 5,
+			raw_max: 1,
+			raw_decimals: 0,
+			reported: [],
+			t_min: 20,
+			scaled_min: 10,
+			scaled_max: 5
+		});
 		expect(p.success).toBe(false);
 		const paths = p.error!.issues.map((i) => i.path.join('.'));
 		expect(paths).toEqual(expect.arrayContaining(['raw_max', 'reported', 't_max', 'scaled_max']));

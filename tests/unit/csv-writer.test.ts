@@ -23,7 +23,7 @@ const cells = (csv: string) => (Papa.parse<string[]>(csv.replace(/^\ufeff/, ''),
 const MALICIOUS = [
 	'=1+1',
 	'=HYPERLINK("http://evil.example","x")\nsecond line', // papaparse's own pattern misses this (no match across \n)
-	'\n=cmd|\' /C calc\'!A0', // the formula after a leading line break
+	"\n=cmd|' /C calc'!A0", // the formula after a leading line break
 	'\r\n@SUM(A1:A9)',
 	'  +A1', // after spaces
 	'-2+3',
@@ -34,12 +34,22 @@ const MALICIOUS = [
 
 describe('one CSV writer', () => {
 	it('escapes every formula-like value, with or after a line break; leaves numbers and text alone', () => {
-		const csv = writeCsv(['name', 'value'], MALICIOUS.map((m, i) => [m, String(i)]));
+		const csv = writeCsv(
+			['name', 'value'],
+			MALICIOUS.map((m, i) => [m, String(i)])
+		);
 		const read = cells(csv);
 		expect(read.filter(runs)).toEqual([]);
 		// each malicious value comes back with exactly one leading apostrophe, nothing else changed
 		for (const m of MALICIOUS) expect(read).toContain(`'${m}`);
-		const plain = writeCsv(['z', 'text'], [['-1.25', 'a-b'], ['+2', 'x=1'], [-3, null]]);
+		const plain = writeCsv(
+			['z', 'text'],
+			[
+				['-1.25', 'a-b'],
+				['+2', 'x=1'],
+				[-3, null]
+			]
+		);
 		expect(plain).toBe('z,text\r\n-1.25,a-b\r\n+2,x=1\r\n-3,\r\n');
 	});
 
@@ -57,13 +67,27 @@ describe('one CSV writer', () => {
 	});
 
 	it('the catalog export escapes a formula after a line break, and its import reads the value back', () => {
-		const t = { code: 'xq1', name: '\n=cmd', domain: 'memory', unit: '', direction: 'higher_better' as const, raw: { min: 0, max: 10, decimals: 0 }, reported: ['z' as const], bounds: null, reliability: null, notes: '=1+1\nnote' };
+		const t = {
+			code: 'xq1',
+			name: '\n=cmd',
+			domain: 'memory',
+			unit: '',
+			direction: 'higher_better' as const,
+			raw: { min: 0, max: 10, decimals: 0 },
+			reported: ['z' as const],
+			bounds: null,
+			reliability: null,
+			notes: '=1+1\nnote'
+		};
 		const csv = testsToCsv([t]);
 		expect(cells(csv).filter(runs)).toEqual([]);
 		expect(catalogIsFormulaLike('\n=cmd')).toBe(true);
 		expect(catalogIsFormulaLike('-5')).toBe(false);
 		// the import refuses a formula cell (it does not strip the apostrophe of a non-formula)
-		const { result } = validateCsvText('tests', 'code,name,domain,direction,raw_min,raw_max,reported\nxq2,"\n=cmd",memory,higher_better,0,10,z\n', { testCodes: new Set(), domains: new Set(['memory']) });
+		const { result } = validateCsvText('tests', 'code,name,domain,direction,raw_min,raw_max,reported\nxq2,"\n=cmd",memory,higher_better,0,10,z\n', {
+			testCodes: new Set(),
+			domains: new Set(['memory'])
+		});
 		expect(result.errors.map((e) => e.message).join(' ')).toContain('looks like a spreadsheet formula');
 	});
 
@@ -72,8 +96,14 @@ describe('one CSV writer', () => {
 			report: 'kinds',
 			title: 't',
 			filters: {},
-			columns: [{ key: 'scorer', label: 'Scorer' }, { key: 'rate', label: 'Rate', numeric: true }],
-			rows: [{ scorer: '=cmd\nx', rate: 0.5 }, { scorer: '\n@SUM(A1)', rate: -0.25 }],
+			columns: [
+				{ key: 'scorer', label: 'Scorer' },
+				{ key: 'rate', label: 'Rate', numeric: true }
+			],
+			rows: [
+				{ scorer: '=cmd\nx', rate: 0.5 },
+				{ scorer: '\n@SUM(A1)', rate: -0.25 }
+			],
 			notes: []
 		} as unknown as ReportResult;
 		const csv = auditCsv(result);

@@ -29,8 +29,28 @@ function formsBases(): unknown[] {
 	const bands = {
 		tests: [{ id: 'error-count', direction: 'lower_better', raw: { min: 0, max: 30, decimals: 0 }, reported: ['percentile'] }],
 		norms: [
-			{ test: 'error-count', group: 'a30', form: 'table', scale: 'percentile', rows: [{ raw: [0, 0], percentile: '>=75' }, { raw: [1, 2], percentile: '50-74' }, { raw: [3, 5], percentile: '25-49' }, { raw: [6, 30], percentile: '<=9' }] },
-			{ test: 'error-count', group: 'a40', form: 'table', scale: 'percentile', rows: [{ raw: [0, 1], percentile: '>=75' }, { raw: [2, 30], percentile: '<=74' }] }
+			{
+				test: 'error-count',
+				group: 'a30',
+				form: 'table',
+				scale: 'percentile',
+				rows: [
+					{ raw: [0, 0], percentile: '>=75' },
+					{ raw: [1, 2], percentile: '50-74' },
+					{ raw: [3, 5], percentile: '25-49' },
+					{ raw: [6, 30], percentile: '<=9' }
+				]
+			},
+			{
+				test: 'error-count',
+				group: 'a40',
+				form: 'table',
+				scale: 'percentile',
+				rows: [
+					{ raw: [0, 1], percentile: '>=75' },
+					{ raw: [2, 30], percentile: '<=74' }
+				]
+			}
 		],
 		protocol: { group: 'a30' },
 		passes: [
@@ -98,7 +118,30 @@ function mutate(doc: unknown, pathPick: number, replacement: unknown, mode: numb
 
 const oddValue = fc.oneof(
 	fc.jsonValue(),
-	fc.constantFrom(null, '', ' ', 'NaN', 'Infinity', '-0', '1e309', '0x1F', '१२', '٣', '1,5', '74 ', '\u0000', '__proto__', -1, 1e308, -1e-308, 2 ** 53 + 1, [], {}, [[[]]], { __proto__: null }),
+	fc.constantFrom(
+		null,
+		'',
+		' ',
+		'NaN',
+		'Infinity',
+		'-0',
+		'1e309',
+		'0x1F',
+		'१२',
+		'٣',
+		'1,5',
+		'74 ',
+		'\u0000',
+		'__proto__',
+		-1,
+		1e308,
+		-1e-308,
+		2 ** 53 + 1,
+		[],
+		{},
+		[[[]]],
+		{ __proto__: null }
+	),
 	fc.string({ unit: 'grapheme', maxLength: 12 }),
 	fc.double(),
 	fc.integer()
@@ -127,7 +170,12 @@ describe('reconcile batch command: malformed input never crashes it', () => {
 		const bases = [specExample(), wordRecall(), wordRecall({ raw: 92 }, { z: -1.07 }), ...formsBases()];
 		await fc.assert(
 			fc.asyncProperty(
-				fc.nat(bases.length - 1), fc.nat(10_000), oddValue, fc.nat(2), fc.boolean(), fc.integer({ min: 1, max: 64 }),
+				fc.nat(bases.length - 1),
+				fc.nat(10_000),
+				oddValue,
+				fc.nat(2),
+				fc.boolean(),
+				fc.integer({ min: 1, max: 64 }),
 				async (b, pick, value, mode, asArray, chunk) => {
 					const doc = mutate(bases[b], pick, value, mode);
 					const text = JSON.stringify(asArray ? [bases[(b + 1) % bases.length], doc] : doc) ?? '';
@@ -141,15 +189,24 @@ describe('reconcile batch command: malformed input never crashes it', () => {
 	}, 240_000);
 
 	it('tables with rows moved, split, dropped or re-scored; composites with parts and norms shuffled', async () => {
-		const bases = formsBases() as { norms: { rows?: { raw?: number[]; sum?: number[]; score?: number; percentile?: unknown }[] }[]; composites?: { parts: string[] }[] }[];
+		const bases = formsBases() as {
+			norms: { rows?: { raw?: number[]; sum?: number[]; score?: number; percentile?: unknown }[] }[];
+			composites?: { parts: string[] }[];
+		}[];
 		await fc.assert(
 			fc.asyncProperty(
-				fc.nat(bases.length - 1), fc.nat(50), fc.nat(50), fc.integer({ min: -3, max: 3 }), fc.constantFrom('lo', 'hi', 'drop', 'dup', 'score', 'pct', 'swap', 'parts'), oddValue,
+				fc.nat(bases.length - 1),
+				fc.nat(50),
+				fc.nat(50),
+				fc.integer({ min: -3, max: 3 }),
+				fc.constantFrom('lo', 'hi', 'drop', 'dup', 'score', 'pct', 'swap', 'parts'),
+				oddValue,
 				async (b, ni, ri, delta, op, odd) => {
 					const doc = structuredClone(bases[b]);
 					const norm = doc.norms[ni % doc.norms.length];
 					const rows = norm.rows;
-					if (op === 'parts' && doc.composites) doc.composites[0].parts = [...doc.composites[0].parts].reverse().concat(ri % 2 ? [JSON.stringify(odd) ?? 'x'] : []);
+					if (op === 'parts' && doc.composites)
+						doc.composites[0].parts = [...doc.composites[0].parts].reverse().concat(ri % 2 ? [JSON.stringify(odd) ?? 'x'] : []);
 					else if (rows && rows.length) {
 						const i = ri % rows.length;
 						const key = rows[i].raw ? 'raw' : 'sum';
@@ -175,7 +232,7 @@ describe('reconcile batch command: malformed input never crashes it', () => {
 			fc.asyncProperty(fc.nat(good.length), fc.nat(good.length), fc.string({ unit: 'grapheme', maxLength: 8 }), async (a, b, insert) => {
 				const text = good.slice(0, Math.min(a, b)) + insert + good.slice(Math.max(a, b));
 				const bytes = Buffer.from(text);
-				const cut = bytes.length ? (a % bytes.length) : 0;
+				const cut = bytes.length ? a % bytes.length : 0;
 				checkOutcome(await runWith(reconcileRun, [bytes.subarray(0, cut), bytes.subarray(cut)]), text);
 			}),
 			{ numRuns: FUZZ_RUNS }
@@ -185,16 +242,48 @@ describe('reconcile batch command: malformed input never crashes it', () => {
 
 describe('agreement batch command: malformed input never crashes it', () => {
 	const base = {
-		kappa: { pairs: [['a', 'a'], ['a', 'b'], ['b', 'b'], ['b', 'a'], ['a', 'a']], weights: 'quadratic', categories: ['a', 'b'] },
-		icc: { ratings: [[9, 2, 5, 8], [6, 1, 3, 2], [8, 4, 6, 8], [7, 1, 2, 6], [10, 5, 6, 9], [6, 2, 4, 7]] },
-		bland_altman: { pairs: [[100, 102], [98, 97], [110, 108], [95, 99]] }
+		kappa: {
+			pairs: [
+				['a', 'a'],
+				['a', 'b'],
+				['b', 'b'],
+				['b', 'a'],
+				['a', 'a']
+			],
+			weights: 'quadratic',
+			categories: ['a', 'b']
+		},
+		icc: {
+			ratings: [
+				[9, 2, 5, 8],
+				[6, 1, 3, 2],
+				[8, 4, 6, 8],
+				[7, 1, 2, 6],
+				[10, 5, 6, 9],
+				[6, 2, 4, 7]
+			]
+		},
+		bland_altman: {
+			pairs: [
+				[100, 102],
+				[98, 97],
+				[110, 108],
+				[95, 99]
+			]
+		}
 	};
 
 	it('random text and random JSON', async () => {
 		await fc.assert(
-			fc.asyncProperty(fc.oneof(fc.string({ maxLength: 200 }), fc.jsonValue({ maxDepth: 4 }).map((v) => JSON.stringify(v))), async (text) => {
-				checkOutcome(await runWith(agreementRun, [text]), text);
-			}),
+			fc.asyncProperty(
+				fc.oneof(
+					fc.string({ maxLength: 200 }),
+					fc.jsonValue({ maxDepth: 4 }).map((v) => JSON.stringify(v))
+				),
+				async (text) => {
+					checkOutcome(await runWith(agreementRun, [text]), text);
+				}
+			),
 			{ numRuns: FUZZ_RUNS }
 		);
 	});
@@ -213,7 +302,38 @@ describe('agreement batch command: malformed input never crashes it', () => {
 describe('CSV validator: malformed files give row errors, never a throw', () => {
 	const ctx = { testCodes: new Set(['word-recall', 'speeded-match']), domains: new Set(['memory', 'processing-speed']) };
 	const cell = fc.oneof(
-		fc.constantFrom('', 'word-recall', 'speeded-match', 'a30', '360', '479', '-1', '1e9', 'NaN', '24.5', '4.2', '0', 'F', 'M', 'X', '=cmd|calc', '+1', '@SUM(1)', '"', '""', 'a,b', '\r', '\n', '\uFEFF', '\u0000', 'higher', 'lower', 'z;standard', '{"z":[-4,4]}', '{'),
+		fc.constantFrom(
+			'',
+			'word-recall',
+			'speeded-match',
+			'a30',
+			'360',
+			'479',
+			'-1',
+			'1e9',
+			'NaN',
+			'24.5',
+			'4.2',
+			'0',
+			'F',
+			'M',
+			'X',
+			'=cmd|calc',
+			'+1',
+			'@SUM(1)',
+			'"',
+			'""',
+			'a,b',
+			'\r',
+			'\n',
+			'\uFEFF',
+			'\u0000',
+			'higher',
+			'lower',
+			'z;standard',
+			'{"z":[-4,4]}',
+			'{'
+		),
 		fc.string({ maxLength: 10 }),
 		fc.double().map(String)
 	);
@@ -224,7 +344,9 @@ describe('CSV validator: malformed files give row errors, never a throw', () => 
 			fc.assert(
 				fc.property(
 					fc.array(fc.array(cell, { minLength: 0, maxLength: COLUMNS[kind].length + 2 }), { maxLength: 12 }),
-					fc.nat(3), fc.constantFrom(',', ';', '\t', '|'), fc.constantFrom('\n', '\r\n', '\r'),
+					fc.nat(3),
+					fc.constantFrom(',', ';', '\t', '|'),
+					fc.constantFrom('\n', '\r\n', '\r'),
 					(rows, headerMode, delim, eol) => {
 						const cols = [...COLUMNS[kind]];
 						const header = headerMode === 0 ? cols : headerMode === 1 ? [...cols].reverse() : headerMode === 2 ? cols.slice(0, 3) : [];

@@ -44,7 +44,15 @@ describe('batch command end to end (spawned via tsx)', () => {
 		const out = JSON.parse(r.stdout);
 		expect(out.summary).toEqual({ fields_compared: 12, discrepancies: 10 });
 		expect(out.discrepancies[0]).toEqual({
-			test: 'speeded-match', field: 'z', pass: 'first', kind: 'sign_flip', value: '-1.00', other: null, expected: 1, alternative: null, out_of_range: false
+			test: 'speeded-match',
+			field: 'z',
+			pass: 'first',
+			kind: 'sign_flip',
+			value: '-1.00',
+			other: null,
+			expected: 1,
+			alternative: null,
+			out_of_range: false
 		});
 	});
 	it('an array of documents gives an array of results in the same order', async () => {
@@ -113,7 +121,11 @@ describe('array splitter (in process)', () => {
 		const s = new ArraySplitter();
 		s.push('[ {"a": "x,]"}, [1, 2]', (t, i) => seen.push([t.trim(), i]));
 		s.push(' , "s" ]  ', (t, i) => seen.push([t.trim(), i]));
-		expect(seen).toEqual([['{"a": "x,]"}', 0], ['[1, 2]', 1], ['"s"', 2]]);
+		expect(seen).toEqual([
+			['{"a": "x,]"}', 0],
+			['[1, 2]', 1],
+			['"s"', 2]
+		]);
 		expect(s.closed).toBe(true);
 	});
 	it('multi-byte characters split across chunks survive', async () => {

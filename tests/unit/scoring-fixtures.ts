@@ -39,11 +39,7 @@ export function specExample(): ReconcileInput {
 export const WR_REF = { raw: 29, z: 1.07, standard: 116, scaled: 13, t: 61, percentile: 86 } as const;
 
 /** A word-recall protocol; `first`/`second` override the reference values field by field. */
-export function wordRecall(
-	first: FieldValues = {},
-	second: FieldValues = {},
-	opts: { norms?: NormDef[]; test?: Partial<TestDef> } = {}
-): ReconcileInput {
+export function wordRecall(first: FieldValues = {}, second: FieldValues = {}, opts: { norms?: NormDef[]; test?: Partial<TestDef> } = {}): ReconcileInput {
 	const test = { ...WORD_RECALL, ...opts.test };
 	return structuredClone({
 		tests: [test],
@@ -161,7 +157,10 @@ export function memoryIndex(
 	const pass = (o: Record<string, Record<string, unknown>>) =>
 		Object.fromEntries([...new Set([...Object.keys(right), ...Object.keys(o)])].map((k) => [k, { ...(right[k] ?? {}), ...(o[k] ?? {}) }]));
 	return structuredClone({
-		tests: [{ ...WORD_RECALL, reported: ['scaled'] }, { ...TILE_BUILD, reported: ['scaled'] }],
+		tests: [
+			{ ...WORD_RECALL, reported: ['scaled'] },
+			{ ...TILE_BUILD, reported: ['scaled'] }
+		],
 		norms: [...NORMS.filter((n) => n.test === 'word-recall'), ...TILE_NORMS, MEMORY_INDEX_NORM],
 		composites: [MEMORY_INDEX],
 		protocol: { group: 'a30' },

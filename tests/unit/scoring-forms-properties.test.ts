@@ -9,7 +9,16 @@
  */
 import { describe, expect, it } from 'vitest';
 import fc from 'fast-check';
-import { compositeReferences, reconcile, testReferences, type Discrepancy, type Entered, type FieldValues, type ReconcileInput, type TestDef } from '../../src/lib/scoring';
+import {
+	compositeReferences,
+	reconcile,
+	testReferences,
+	type Discrepancy,
+	type Entered,
+	type FieldValues,
+	type ReconcileInput,
+	type TestDef
+} from '../../src/lib/scoring';
 
 const SCALE = { scaled: [10, 3, 1, 19], standard: [100, 15, 40, 160], t: [50, 10, 20, 80] } as const;
 type ScaleName = keyof typeof SCALE;
@@ -49,7 +58,15 @@ describe('a table generated from a mean/SD norm gives the same reference for its
 					// and through reconcile: a pass holding the table's score agrees under either norm
 					for (const norms of [[{ test: 't1', group: 'g', form: 'table' as const, scale: p.scale, rows }], [{ test: 't1', group: 'g', mean, sd }]]) {
 						const vals = { raw, [p.scale]: rows[raw].score };
-						const doc: ReconcileInput = { tests: [test], norms, protocol: { group: 'g' }, passes: [{ scorer: 'a', scores: { t1: vals } }, { scorer: 'b', scores: { t1: vals } }] };
+						const doc: ReconcileInput = {
+							tests: [test],
+							norms,
+							protocol: { group: 'g' },
+							passes: [
+								{ scorer: 'a', scores: { t1: vals } },
+								{ scorer: 'b', scores: { t1: vals } }
+							]
+						};
 						expect(reconcile(doc).discrepancies).toEqual([]);
 					}
 				}
@@ -78,8 +95,14 @@ describe('a composite of one part with a table equal to the part’s is the iden
 						p.partForm === 'mean_sd'
 							? { test: 'p', group: 'g', mean: p.meanTenths / 10, sd: p.sdTenths / 10 }
 							: {
-									test: 'p', group: 'g', form: 'table' as const, scale: p.scale,
-									rows: Array.from({ length: 41 }, (_, r) => ({ raw: [r, r] as [number, number], score: Math.min(hi, Math.max(lo, halfAway(sm + ss * ((r - p.meanTenths / 10) / (p.sdTenths / 10))))) }))
+									test: 'p',
+									group: 'g',
+									form: 'table' as const,
+									scale: p.scale,
+									rows: Array.from({ length: 41 }, (_, r) => ({
+										raw: [r, r] as [number, number],
+										score: Math.min(hi, Math.max(lo, halfAway(sm + ss * ((r - p.meanTenths / 10) / (p.sdTenths / 10)))))
+									}))
 								};
 					const identity = Array.from({ length: hi - lo + 1 }, (_, i) => ({ sum: [lo + i, lo + i] as [number, number], score: lo + i }));
 					const part = testReferences(test, partNorm, p.raw) as Record<string, number>;
@@ -114,12 +137,31 @@ describe('a composite of one part with a table equal to the part’s is the iden
 // ---------------------------------------------------------------- swapping passes, all forms
 
 const TILE_ROWS = [
-	[0, 4, 3], [5, 6, 4], [7, 7, 5], [8, 8, 6], [9, 9, 7], [10, 10, 8], [11, 11, 9], [12, 12, 10],
-	[13, 13, 11], [14, 14, 12], [15, 15, 13], [16, 16, 14], [17, 18, 15], [19, 20, 17]
+	[0, 4, 3],
+	[5, 6, 4],
+	[7, 7, 5],
+	[8, 8, 6],
+	[9, 9, 7],
+	[10, 10, 8],
+	[11, 11, 9],
+	[12, 12, 10],
+	[13, 13, 11],
+	[14, 14, 12],
+	[15, 15, 13],
+	[16, 16, 14],
+	[17, 18, 15],
+	[19, 20, 17]
 ].map(([a, b, s]) => ({ raw: [a, b] as [number, number], score: s }));
 const TILE_ROWS_B = TILE_ROWS.map((r, i) => ({ raw: r.raw, score: Math.max(1, r.score - (i % 2)) }));
 const BANDS = ['>=75', '50-74', '25-49', '10-24', '2-9', '<=1'];
-const EC_ROWS = [[0, 0], [1, 2], [3, 5], [6, 9], [10, 14], [15, 30]].map(([a, b], i) => ({ raw: [a, b] as [number, number], percentile: BANDS[i] }));
+const EC_ROWS = [
+	[0, 0],
+	[1, 2],
+	[3, 5],
+	[6, 9],
+	[10, 14],
+	[15, 30]
+].map(([a, b], i) => ({ raw: [a, b] as [number, number], percentile: BANDS[i] }));
 
 const DOC_BASE = {
 	tests: [
@@ -134,7 +176,17 @@ const DOC_BASE = {
 		{ test: 'reg', group: 'h', mean: 38, sd: 7 },
 		{ test: 'err', group: 'g', form: 'table', scale: 'percentile', rows: EC_ROWS },
 		{ composite: 'idx', group: 'g', mean: 20, sd: 5.2 },
-		{ composite: 'idx', group: 'h', form: 'table', scale: 'standard', rows: [{ sum: [2, 19], score: 85 }, { sum: [20, 24], score: 100 }, { sum: [25, 38], score: 115 }] }
+		{
+			composite: 'idx',
+			group: 'h',
+			form: 'table',
+			scale: 'standard',
+			rows: [
+				{ sum: [2, 19], score: 85 },
+				{ sum: [20, 24], score: 100 },
+				{ sum: [25, 38], score: 115 }
+			]
+		}
 	],
 	composites: [{ id: 'idx', parts: ['tile', 'reg'], part_field: 'scaled', reported: ['sum', 'standard', 'percentile'] }],
 	protocol: { group: 'g', covariates: { age: 46, education: 14 } }
@@ -143,7 +195,12 @@ const DOC_BASE = {
 const num = (lo: number, hi: number) => fc.integer({ min: lo, max: hi });
 const entry = (...arbs: fc.Arbitrary<Entered>[]) => fc.oneof(fc.constant(null), ...arbs);
 const passArb = fc.record({
-	tile: fc.record({ raw: entry(num(0, 22)), z: entry(fc.integer({ min: -300, max: 300 }).map((x) => (x / 100).toFixed(2))), scaled: entry(num(0, 20)), percentile: entry(num(0, 100)) }),
+	tile: fc.record({
+		raw: entry(num(0, 22)),
+		z: entry(fc.integer({ min: -300, max: 300 }).map((x) => (x / 100).toFixed(2))),
+		scaled: entry(num(0, 20)),
+		percentile: entry(num(0, 100))
+	}),
 	reg: fc.record({ raw: entry(num(30, 60), fc.constant('48')), scaled: entry(num(0, 20)), standard: entry(num(60, 140)) }),
 	err: fc.record({ raw: entry(num(0, 31)), percentile: entry(fc.constantFrom(...BANDS, '25 \u2013 49', '\u2265 75'), num(1, 99)) }),
 	idx: fc.record({ sum: entry(num(0, 45)), standard: entry(num(60, 150)), percentile: entry(num(1, 99)) })
@@ -153,11 +210,19 @@ describe('swapping passes swaps first and second only, with tables, regression, 
 	it('same discrepancies, passes swapped; "both" keeps the first pass’s value first', () => {
 		const swap = (d: Discrepancy): Discrepancy =>
 			d.pass === 'both' ? ({ ...d, value: d.other, other: d.value } as Discrepancy) : ({ ...d, pass: d.pass === 'first' ? 'second' : 'first' } as Discrepancy);
-		const key = (d: Discrepancy) => JSON.stringify([d.test ?? null, d.composite ?? null, d.field, d.pass, d.kind, d.value, d.other, d.expected, d.out_of_range]);
+		const key = (d: Discrepancy) =>
+			JSON.stringify([d.test ?? null, d.composite ?? null, d.field, d.pass, d.kind, d.value, d.other, d.expected, d.out_of_range]);
 		fc.assert(
 			fc.property(passArb, passArb, fc.constantFrom('g', 'h'), (a, b, group) => {
 				const doc = (x: typeof a, y: typeof a) =>
-					structuredClone({ ...DOC_BASE, protocol: { ...DOC_BASE.protocol, group, groups: { err: 'g' } }, passes: [{ scorer: 'a', scores: x }, { scorer: 'b', scores: y }] }) as unknown as ReconcileInput;
+					structuredClone({
+						...DOC_BASE,
+						protocol: { ...DOC_BASE.protocol, group, groups: { err: 'g' } },
+						passes: [
+							{ scorer: 'a', scores: x },
+							{ scorer: 'b', scores: y }
+						]
+					}) as unknown as ReconcileInput;
 				const r = reconcile(doc(a, b));
 				const s = reconcile(doc(b, a));
 				expect(s.summary).toEqual(r.summary);
@@ -189,7 +254,13 @@ describe('swapping passes swaps first and second only, with tables, regression, 
 				const z = (sum - 20) / 5.2;
 				// composite references by hand-written arithmetic (not the engine): standard R(100 + 15z) clamped
 				right.idx = { sum, standard: Math.min(160, Math.max(40, halfAway(100 + 15 * z))), percentile: null };
-				const doc = { ...base, passes: [{ scorer: 'a', scores: right }, { scorer: 'b', scores: { ...other, tile: { ...other.tile, raw: tileRaw }, reg: { ...other.reg, raw: regRaw }, err: { ...other.err, raw: errRaw } } }] } as unknown as ReconcileInput;
+				const doc = {
+					...base,
+					passes: [
+						{ scorer: 'a', scores: right },
+						{ scorer: 'b', scores: { ...other, tile: { ...other.tile, raw: tileRaw }, reg: { ...other.reg, raw: regRaw }, err: { ...other.err, raw: errRaw } } }
+					]
+				} as unknown as ReconcileInput;
 				for (const d of reconcile(doc).discrepancies) {
 					if (d.composite && d.field === 'percentile') continue; // left empty on purpose above
 					expect(d.pass, JSON.stringify(d)).not.toBe('first');

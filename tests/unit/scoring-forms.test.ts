@@ -9,7 +9,17 @@
 import { describe, expect, it } from 'vitest';
 import { PassThrough, Readable } from 'node:stream';
 import { run } from '../../scripts/cli/reconcile';
-import { checkCompositeSum, checkField, reconcile, testReferences, compositeReferences, type Discrepancy, type FieldValues, type ReconcileInput, type TestDef } from '../../src/lib/scoring';
+import {
+	checkCompositeSum,
+	checkField,
+	reconcile,
+	testReferences,
+	compositeReferences,
+	type Discrepancy,
+	type FieldValues,
+	type ReconcileInput,
+	type TestDef
+} from '../../src/lib/scoring';
 import {
 	CATEGORY_NAMING,
 	CATEGORY_NAMING_NORM,
@@ -22,7 +32,9 @@ import {
 	wordRecall
 } from './scoring-fixtures';
 
-async function batch(doc: unknown): Promise<{ code: number; out: { discrepancies: Discrepancy[]; summary: { fields_compared: number; discrepancies: number } } | null; stderr: string }> {
+async function batch(
+	doc: unknown
+): Promise<{ code: number; out: { discrepancies: Discrepancy[]; summary: { fields_compared: number; discrepancies: number } } | null; stderr: string }> {
 	const out = new PassThrough();
 	const err = new PassThrough();
 	let stdout = '';
@@ -53,7 +65,10 @@ async function bad(doc: unknown): Promise<string> {
 describe('worked examples through the batch command (in-process run)', () => {
 	it('word-recall raw 23 vs 32: the second pass’s scaled 9 is follows_other_raw, expected 15, alternative 9', async () => {
 		// raw 23 (a30: 24.5, 4.2): z −0.357 → scaled 8.93 → 9; raw 32: z 1.786 → scaled 15.36 → 15
-		const doc = wordRecall({ raw: 23, z: -0.36, standard: 95, scaled: 9, t: 46, percentile: 36 }, { raw: 32, z: 1.79, standard: 127, scaled: 9, t: 68, percentile: 96 });
+		const doc = wordRecall(
+			{ raw: 23, z: -0.36, standard: 95, scaled: 9, t: 46, percentile: 36 },
+			{ raw: 32, z: 1.79, standard: 127, scaled: 9, t: 68, percentile: 96 }
+		);
 		const r = await batch(doc);
 		expect(r.out?.discrepancies).toEqual([
 			{ test: 'word-recall', field: 'raw', pass: 'both', kind: 'transposition', value: 23, other: 32, expected: null, alternative: null, out_of_range: false },
@@ -320,7 +335,13 @@ describe('regression norms', () => {
 		]);
 	});
 	it('testReferences with covariates gives the same as the worked example', () => {
-		expect(testReferences(CATEGORY_NAMING, CATEGORY_NAMING_NORM, 48, { age: 46, education: 14 })).toEqual({ z: 1.01, standard: 115, scaled: 13, t: 60, percentile: 84 });
+		expect(testReferences(CATEGORY_NAMING, CATEGORY_NAMING_NORM, 48, { age: 46, education: 14 })).toEqual({
+			z: 1.01,
+			standard: 115,
+			scaled: 13,
+			t: 60,
+			percentile: 84
+		});
 		// scaled: 10 + 3·1.0125 = 13.04 → 13
 	});
 });
@@ -352,7 +373,9 @@ describe('composites', () => {
 		]);
 	});
 	it('with a part missing in a pass, neither carried nor sum_error: sum 72 is a transposition of 27, sum 26 a wrong digit', () => {
-		const r = reconcile(memoryIndex({ 'tile-build': { scaled: null }, 'memory-index': { sum: 72 } }, { 'tile-build': { scaled: null }, 'memory-index': { sum: 26 } }));
+		const r = reconcile(
+			memoryIndex({ 'tile-build': { scaled: null }, 'memory-index': { sum: 72 } }, { 'tile-build': { scaled: null }, 'memory-index': { sum: 26 } })
+		);
 		expect(r.discrepancies.filter((d) => d.composite).map((d) => [d.field, d.pass, d.kind])).toEqual([
 			['sum', 'first', 'transposition'],
 			['sum', 'second', 'wrong_digit']
@@ -373,7 +396,11 @@ describe('composites', () => {
 			{ sum: [31, 38], score: 130 }
 		];
 		const mk = (first: Record<string, FieldValues & { sum?: number }>) => {
-			const d = memoryIndex(first) as unknown as { norms: unknown[]; protocol: Record<string, unknown>; passes: { scores: Record<string, Record<string, unknown>> }[] };
+			const d = memoryIndex(first) as unknown as {
+				norms: unknown[];
+				protocol: Record<string, unknown>;
+				passes: { scores: Record<string, Record<string, unknown>> }[];
+			};
 			d.norms.push({ composite: 'memory-index', group: 'a30t', form: 'table', scale: 'standard', rows });
 			d.protocol.groups = { 'memory-index': 'a30t' };
 			d.passes[1].scores['memory-index'] = { sum: 27, standard: 112, percentile: 79 };
@@ -382,7 +409,9 @@ describe('composites', () => {
 			return d as unknown as ReconcileInput;
 		};
 		const k = (first: Record<string, FieldValues & { sum?: number }>) =>
-			reconcile(mk(first)).discrepancies.filter((d) => d.composite).map((d) => [d.field, d.kind, d.expected]);
+			reconcile(mk(first))
+				.discrepancies.filter((d) => d.composite)
+				.map((d) => [d.field, d.kind, d.expected]);
 		expect(k({})).toEqual([]);
 		expect(k({ 'memory-index': { standard: 118 } })).toEqual([['standard', 'adjacent_row', 112]]); // row 29–30
 		expect(k({ 'memory-index': { standard: 88 } })).toEqual([['standard', 'sign_flip', 112]]); // 200 − 112
@@ -469,10 +498,27 @@ describe('bad tables, covariates and composites: exit 2, the path names the row,
 			tests: [timed],
 			norms: [{ test: 'block-speed', group: 'a30', form: 'table', scale: 'standard', rows }],
 			protocol: { group: 'a30' },
-			passes: [{ scorer: 'a', scores: {} }, { scorer: 'b', scores: {} }]
+			passes: [
+				{ scorer: 'a', scores: {} },
+				{ scorer: 'b', scores: {} }
+			]
 		});
-		expect(await bad(doc([{ raw: [0, 2.4], score: 110 }, { raw: [2.6, 10], score: 100 }]))).toContain('norms[0].rows[1].raw[0]: gap: raw score 2.5 is in no row (rows[0] ends at 2.4)');
-		expect(await bad(doc([{ raw: [0, 2.45], score: 110 }, { raw: [2.5, 10], score: 100 }]))).toContain("norms[0].rows[0].raw[1]: 2.45 has more decimals than the test's raw scores (1)");
+		expect(
+			await bad(
+				doc([
+					{ raw: [0, 2.4], score: 110 },
+					{ raw: [2.6, 10], score: 100 }
+				])
+			)
+		).toContain('norms[0].rows[1].raw[0]: gap: raw score 2.5 is in no row (rows[0] ends at 2.4)');
+		expect(
+			await bad(
+				doc([
+					{ raw: [0, 2.45], score: 110 },
+					{ raw: [2.5, 10], score: 100 }
+				])
+			)
+		).toContain("norms[0].rows[0].raw[1]: 2.45 has more decimals than the test's raw scores (1)");
 	});
 	it('a score outside its scale (scaled 20 > 19), or not whole, or a test’s own narrower bounds', async () => {
 		const rows = TILE_A30_ROWS.map((r, i) => (i === 13 ? { ...r, score: 20 } : i === 12 ? { ...r, score: 15.5 } : r));
@@ -492,7 +538,9 @@ describe('bad tables, covariates and composites: exit 2, the path names the row,
 	it('a percentile-only test that reports another field', async () => {
 		const d = errorCount({ raw: 4 }, { raw: 4 }) as unknown as { tests: Record<string, unknown>[] };
 		d.tests[0].reported = ['scaled', 'percentile'];
-		expect(await bad(d)).toContain('tests[0].reported[0]: test "error-count" has a percentile-only table (norms[0]), so it may report percentile only, not scaled');
+		expect(await bad(d)).toContain(
+			'tests[0].reported[0]: test "error-count" has a percentile-only table (norms[0]), so it may report percentile only, not scaled'
+		);
 	});
 	it('a percentile table with a score, or a row without its percentile', async () => {
 		const d = errorCount({ raw: 4 }, { raw: 4 }) as unknown as { norms: { rows: Record<string, unknown>[] }[] };
@@ -507,7 +555,10 @@ describe('bad tables, covariates and composites: exit 2, the path names the row,
 			tests: [CATEGORY_NAMING],
 			norms: [CATEGORY_NAMING_NORM, { ...CATEGORY_NAMING_NORM, group: 'other', coefficients: { age: -0.1, sex: 2 } }],
 			protocol: { group: 'all', covariates: { age: 46, education: 14 } },
-			passes: [{ scorer: 'a', scores: {} }, { scorer: 'b', scores: {} }]
+			passes: [
+				{ scorer: 'a', scores: {} },
+				{ scorer: 'b', scores: {} }
+			]
 		};
 		expect(await bad(doc)).toContain('norms[1].coefficients.sex: covariate "sex" is not in protocol.covariates');
 		const noEdu = { ...doc, protocol: { group: 'all', covariates: { age: 46, sex: 1 } } };
@@ -529,7 +580,16 @@ describe('bad tables, covariates and composites: exit 2, the path names the row,
 	});
 	it('a composite table that does not cover every possible sum (2–38); a composite without norms for its group', async () => {
 		const d = memoryIndex() as unknown as { norms: unknown[] };
-		d.norms[d.norms.length - 1] = { composite: 'memory-index', group: 'a30', form: 'table', scale: 'standard', rows: [{ sum: [2, 20], score: 90 }, { sum: [21, 37], score: 110 }] };
+		d.norms[d.norms.length - 1] = {
+			composite: 'memory-index',
+			group: 'a30',
+			form: 'table',
+			scale: 'standard',
+			rows: [
+				{ sum: [2, 20], score: 90 },
+				{ sum: [21, 37], score: 110 }
+			]
+		};
 		expect(await bad(d)).toContain('norms[4].rows[1].sum[1]: the last row must end at the highest sum 38, not 37');
 		const e = memoryIndex() as unknown as { norms: unknown[] };
 		e.norms.pop();

@@ -5,25 +5,68 @@ import { AACN_2020, TRADITIONAL_INTELLIGENCE, labelFor, parseEntered, referenceS
 // seven bands; boundaries checked from both sides for every scale.
 const AACN_BOUNDARIES: Record<LabelledField, [number, string][]> = {
 	standard: [
-		[130, 'exceptionally_high'], [129, 'above_average'], [120, 'above_average'], [119, 'high_average'],
-		[110, 'high_average'], [109, 'average'], [90, 'average'], [89, 'low_average'], [80, 'low_average'],
-		[79, 'below_average'], [70, 'below_average'], [69, 'exceptionally_low'], [40, 'exceptionally_low'], [160, 'exceptionally_high']
+		[130, 'exceptionally_high'],
+		[129, 'above_average'],
+		[120, 'above_average'],
+		[119, 'high_average'],
+		[110, 'high_average'],
+		[109, 'average'],
+		[90, 'average'],
+		[89, 'low_average'],
+		[80, 'low_average'],
+		[79, 'below_average'],
+		[70, 'below_average'],
+		[69, 'exceptionally_low'],
+		[40, 'exceptionally_low'],
+		[160, 'exceptionally_high']
 	],
 	t: [
-		[70, 'exceptionally_high'], [69, 'above_average'], [63, 'above_average'], [62, 'high_average'],
-		[57, 'high_average'], [56, 'average'], [43, 'average'], [42, 'low_average'], [37, 'low_average'],
-		[36, 'below_average'], [30, 'below_average'], [29, 'exceptionally_low'], [20, 'exceptionally_low'], [80, 'exceptionally_high']
+		[70, 'exceptionally_high'],
+		[69, 'above_average'],
+		[63, 'above_average'],
+		[62, 'high_average'],
+		[57, 'high_average'],
+		[56, 'average'],
+		[43, 'average'],
+		[42, 'low_average'],
+		[37, 'low_average'],
+		[36, 'below_average'],
+		[30, 'below_average'],
+		[29, 'exceptionally_low'],
+		[20, 'exceptionally_low'],
+		[80, 'exceptionally_high']
 	],
 	percentile: [
-		[98, 'exceptionally_high'], [97, 'above_average'], [91, 'above_average'], [90, 'high_average'],
-		[75, 'high_average'], [74, 'average'], [25, 'average'], [24, 'low_average'], [9, 'low_average'],
-		[8, 'below_average'], [2, 'below_average'], [1, 'exceptionally_low'], [99, 'exceptionally_high']
+		[98, 'exceptionally_high'],
+		[97, 'above_average'],
+		[91, 'above_average'],
+		[90, 'high_average'],
+		[75, 'high_average'],
+		[74, 'average'],
+		[25, 'average'],
+		[24, 'low_average'],
+		[9, 'low_average'],
+		[8, 'below_average'],
+		[2, 'below_average'],
+		[1, 'exceptionally_low'],
+		[99, 'exceptionally_high']
 	],
 	// derived: scaled s ↔ standard 100 + 5(s − 10) (see labels.ts)
 	scaled: [
-		[16, 'exceptionally_high'], [15, 'above_average'], [14, 'above_average'], [13, 'high_average'],
-		[12, 'high_average'], [11, 'average'], [8, 'average'], [7, 'low_average'], [6, 'low_average'],
-		[5, 'below_average'], [4, 'below_average'], [3, 'exceptionally_low'], [1, 'exceptionally_low'], [19, 'exceptionally_high']
+		[16, 'exceptionally_high'],
+		[15, 'above_average'],
+		[14, 'above_average'],
+		[13, 'high_average'],
+		[12, 'high_average'],
+		[11, 'average'],
+		[8, 'average'],
+		[7, 'low_average'],
+		[6, 'low_average'],
+		[5, 'below_average'],
+		[4, 'below_average'],
+		[3, 'exceptionally_low'],
+		[1, 'exceptionally_low'],
+		[19, 'exceptionally_high']
 	]
 };
 
@@ -37,7 +80,13 @@ describe('AACN 2020 bands at every boundary (Guilmette et al., 2020)', () => {
 	}
 	it('uses the seven AACN names', () => {
 		expect(AACN_2020.bands.standard.map((b) => b.label)).toEqual([
-			'Exceptionally high', 'Above average', 'High average', 'Average', 'Low average', 'Below average', 'Exceptionally low'
+			'Exceptionally high',
+			'Above average',
+			'High average',
+			'Average',
+			'Low average',
+			'Below average',
+			'Exceptionally low'
 		]);
 	});
 });

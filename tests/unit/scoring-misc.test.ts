@@ -134,8 +134,18 @@ describe('character diff of two values (diff package)', () => {
 	it('shows which digits moved: 116 → 161', () => {
 		const segs = charDiff(116, '161');
 		expect(segs.map((s) => s.text).join('')).not.toBe('');
-		expect(segs.filter((s) => s.kind !== 'added').map((s) => s.text).join('')).toBe('116');
-		expect(segs.filter((s) => s.kind !== 'removed').map((s) => s.text).join('')).toBe('161');
+		expect(
+			segs
+				.filter((s) => s.kind !== 'added')
+				.map((s) => s.text)
+				.join('')
+		).toBe('116');
+		expect(
+			segs
+				.filter((s) => s.kind !== 'removed')
+				.map((s) => s.text)
+				.join('')
+		).toBe('161');
 	});
 	it('a transposition marks both swapped digits, position by position (118 / 181, 73.0 / 37.0)', () => {
 		expect(charDiff('118', '181')).toEqual([
@@ -150,7 +160,10 @@ describe('character diff of two values (diff package)', () => {
 		]);
 	});
 	it('a sign added', () => {
-		expect(charDiff('1.00', '-1.00')).toEqual([{ text: '-', kind: 'added' }, { text: '1.00', kind: 'same' }]);
+		expect(charDiff('1.00', '-1.00')).toEqual([
+			{ text: '-', kind: 'added' },
+			{ text: '1.00', kind: 'same' }
+		]);
 	});
 	it('a missing value is empty', () => {
 		expect(charDiff(null, 74)).toEqual([{ text: '74', kind: 'added' }]);
@@ -165,9 +178,23 @@ describe('kind explanations', () => {
 		}
 		// the order of the contract's kind table (shared/spec/reconcile.md, "Kinds"), copied by hand
 		expect(KINDS).toEqual([
-			'missing', 'follows_other_raw', 'carried', 'sum_error', 'sign_flip', 'wrong_norm_group', 'adjacent_row',
-			'wrong_scale', 'raw_as_derived', 'decimal_shift', 'transposition', 'rounding', 'digit_drop', 'digit_extra',
-			'wrong_digit', 'out_of_range', 'mismatch'
+			'missing',
+			'follows_other_raw',
+			'carried',
+			'sum_error',
+			'sign_flip',
+			'wrong_norm_group',
+			'adjacent_row',
+			'wrong_scale',
+			'raw_as_derived',
+			'decimal_shift',
+			'transposition',
+			'rounding',
+			'digit_drop',
+			'digit_extra',
+			'wrong_digit',
+			'out_of_range',
+			'mismatch'
 		]);
 		for (const k of KINDS) expect(KIND_NAMES[k].length).toBeGreaterThan(3);
 	});

@@ -28,7 +28,15 @@ const protocolArb = fc
 		const z = zFromRaw(raw, p.mean, p.sd, p.direction);
 		const refs: FieldValues = { raw };
 		for (const f of DERIVED_FIELDS) refs[f] = referenceScore(f, z);
-		return { test, raw, refs, norms: [{ test: 't1', group: 'g', mean: p.mean, sd: p.sd }, { test: 't1', group: 'h', mean: p.mean2, sd: p.sd }] };
+		return {
+			test,
+			raw,
+			refs,
+			norms: [
+				{ test: 't1', group: 'g', mean: p.mean, sd: p.sd },
+				{ test: 't1', group: 'h', mean: p.mean2, sd: p.sd }
+			]
+		};
 	});
 
 /** Plausible entries: the reference (as number or string), a slip of it, empty, or anything. */

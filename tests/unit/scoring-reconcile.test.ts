@@ -20,7 +20,15 @@ describe('spec worked examples (shared/spec/reconcile.md)', () => {
 		const r = reconcile(specExample());
 		expect(r.summary).toEqual({ fields_compared: 12, discrepancies: 10 });
 		expect(r.discrepancies[0]).toEqual({
-			test: 'speeded-match', field: 'z', pass: 'first', kind: 'sign_flip', value: '-1.00', other: null, expected: 1, alternative: null, out_of_range: false
+			test: 'speeded-match',
+			field: 'z',
+			pass: 'first',
+			kind: 'sign_flip',
+			value: '-1.00',
+			other: null,
+			expected: 1,
+			alternative: null,
+			out_of_range: false
 		});
 	});
 	it('speeded-match: z −1.00 and scaled 7 are sign_flips, standard 151 a transposition, empties missing', () => {
@@ -142,10 +150,18 @@ describe('agreement: equal values are never flagged', () => {
 	it('"<1" equals a percentile reference of 1, ">99" one of 99', () => {
 		const norms: NormDef[] = [{ test: 'word-recall', group: 'a30', mean: 40, sd: 3 }];
 		// raw 29: z −3.67 → percentile R(0.012) → 1, standard 45, scaled 1 (clamped), T 20 (clamped 13.3)
-		const low = wordRecall({ z: '-3.67', standard: 45, scaled: 1, t: 20, percentile: '<1' }, { z: -3.67, standard: 45, scaled: 1, t: 20, percentile: 1 }, { norms });
+		const low = wordRecall(
+			{ z: '-3.67', standard: 45, scaled: 1, t: 20, percentile: '<1' },
+			{ z: -3.67, standard: 45, scaled: 1, t: 20, percentile: 1 },
+			{ norms }
+		);
 		expect(reconcile(low).discrepancies).toEqual([]);
 		const highNorms: NormDef[] = [{ test: 'word-recall', group: 'a30', mean: 10, sd: 5 }];
-		const high = wordRecall({ z: '3.80', standard: 157, scaled: 19, t: 80, percentile: '>99' }, { z: 3.8, standard: 157, scaled: 19, t: 80, percentile: 99 }, { norms: highNorms });
+		const high = wordRecall(
+			{ z: '3.80', standard: 157, scaled: 19, t: 80, percentile: '>99' },
+			{ z: 3.8, standard: 157, scaled: 19, t: 80, percentile: 99 },
+			{ norms: highNorms }
+		);
 		expect(reconcile(high).discrepancies).toEqual([]);
 	});
 	it('only reported fields are compared', () => {
@@ -155,10 +171,11 @@ describe('agreement: equal values are never flagged', () => {
 });
 
 describe('raw pairs (spec: Comparing two passes, rule 1)', () => {
-	const raw = (a: FieldValues['raw'], b: FieldValues['raw']) =>
-		reconcile(wordRecall({ raw: a }, { raw: b })).discrepancies.filter((d) => d.field === 'raw');
+	const raw = (a: FieldValues['raw'], b: FieldValues['raw']) => reconcile(wordRecall({ raw: a }, { raw: b })).discrepancies.filter((d) => d.field === 'raw');
 	it('transposition 29/92 where 92 is out of range: pass second, out_of_range true', () => {
-		expect(raw(29, 92)).toEqual([{ test: 'word-recall', field: 'raw', pass: 'second', kind: 'transposition', value: 92, other: 29, expected: null, alternative: null, out_of_range: true }]);
+		expect(raw(29, 92)).toEqual([
+			{ test: 'word-recall', field: 'raw', pass: 'second', kind: 'transposition', value: 92, other: 29, expected: null, alternative: null, out_of_range: true }
+		]);
 	});
 	it('both in range and different: pass both (nobody knows which is right)', () => {
 		expect(raw(29, 39)[0]).toMatchObject({ pass: 'both', kind: 'wrong_digit', value: 29, other: 39, out_of_range: false });
@@ -179,13 +196,17 @@ describe('raw pairs (spec: Comparing two passes, rule 1)', () => {
 		expect(raw(null, 60)[0]).toMatchObject({ pass: 'both', kind: 'missing', out_of_range: true });
 	});
 	it('the same impossible raw score in both: one discrepancy, pass both, out_of_range', () => {
-		expect(raw(60, '60')).toEqual([{ test: 'word-recall', field: 'raw', pass: 'both', kind: 'out_of_range', value: 60, other: '60', expected: null, alternative: null, out_of_range: true }]);
+		expect(raw(60, '60')).toEqual([
+			{ test: 'word-recall', field: 'raw', pass: 'both', kind: 'out_of_range', value: 60, other: '60', expected: null, alternative: null, out_of_range: true }
+		]);
 	});
 	it('two different impossible raw scores: pass both, out_of_range', () => {
 		expect(raw(50, 73)[0]).toMatchObject({ pass: 'both', kind: 'out_of_range', out_of_range: true });
 	});
 	it('no raw score in either pass: one missing discrepancy, pass both (our choice)', () => {
-		expect(raw(null, null)).toEqual([{ test: 'word-recall', field: 'raw', pass: 'both', kind: 'missing', value: null, other: null, expected: null, alternative: null, out_of_range: false }]);
+		expect(raw(null, null)).toEqual([
+			{ test: 'word-recall', field: 'raw', pass: 'both', kind: 'missing', value: null, other: null, expected: null, alternative: null, out_of_range: false }
+		]);
 	});
 	it('raw kinds are only those the spec lists for raw pairs; 29/299 is digit_drop either way round', () => {
 		expect(raw(29, 290)[0].kind).toBe('decimal_shift');
@@ -208,7 +229,17 @@ describe('derived fields against each pass’s own raw score (rules 2 and 3)', (
 	it('a shared error is one discrepancy with pass both — what double entry alone would miss', () => {
 		const r = reconcile(wordRecall({ standard: 161 }, { standard: '161' }));
 		expect(r.discrepancies).toEqual([
-			{ test: 'word-recall', field: 'standard', pass: 'both', kind: 'transposition', value: 161, other: '161', expected: 116, alternative: null, out_of_range: true }
+			{
+				test: 'word-recall',
+				field: 'standard',
+				pass: 'both',
+				kind: 'transposition',
+				value: 161,
+				other: '161',
+				expected: 116,
+				alternative: null,
+				out_of_range: true
+			}
 		]);
 	});
 	it('both passes empty on a field: two missing discrepancies, not one (spec: speeded-match counts 10)', () => {
@@ -226,7 +257,17 @@ describe('derived fields against each pass’s own raw score (rules 2 and 3)', (
 		const r = reconcile(wordRecall({ raw: 92, standard: 161 }, {}));
 		expect(r.discrepancies).toEqual([
 			{ test: 'word-recall', field: 'raw', pass: 'first', kind: 'transposition', value: 92, other: 29, expected: null, alternative: null, out_of_range: true },
-			{ test: 'word-recall', field: 'standard', pass: 'both', kind: 'transposition', value: 161, other: 116, expected: null, alternative: null, out_of_range: true }
+			{
+				test: 'word-recall',
+				field: 'standard',
+				pass: 'both',
+				kind: 'transposition',
+				value: 161,
+				other: 116,
+				expected: null,
+				alternative: null,
+				out_of_range: true
+			}
 		]);
 	});
 	it('a pass with a missing raw score whose other values agree with the other pass: only the raw discrepancy', () => {

@@ -67,7 +67,17 @@ describe('rule 5: alternative and follows_other_raw', () => {
 		const doc = wordRecall({ raw: 48, standard: 106 }, { raw: 47, standard: 106 }, { test: { reported: ['standard'] } });
 		expect(reconcile(doc).discrepancies).toEqual([
 			{ test: 'word-recall', field: 'raw', pass: 'both', kind: 'wrong_digit', value: 48, other: 47, expected: null, alternative: null, out_of_range: false },
-			{ test: 'word-recall', field: 'standard', pass: 'both', kind: 'transposition', value: 106, other: 106, expected: 160, alternative: 160, out_of_range: false }
+			{
+				test: 'word-recall',
+				field: 'standard',
+				pass: 'both',
+				kind: 'transposition',
+				value: 106,
+				other: 106,
+				expected: 160,
+				alternative: 160,
+				out_of_range: false
+			}
 		]);
 	});
 });

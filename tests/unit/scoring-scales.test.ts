@@ -212,9 +212,14 @@ describe('properties', () => {
 	const zArb = fc.double({ min: -6, max: 6, noNaN: true });
 	it('reversing the direction negates z exactly (fast-check)', () => {
 		fc.assert(
-			fc.property(fc.double({ min: -500, max: 500, noNaN: true }), fc.double({ min: -500, max: 500, noNaN: true }), fc.double({ min: 0.01, max: 100, noNaN: true }), (raw, mean, sd) => {
-				expect(zFromRaw(raw, mean, sd, 'lower_better')).toBe(-zFromRaw(raw, mean, sd, 'higher_better'));
-			})
+			fc.property(
+				fc.double({ min: -500, max: 500, noNaN: true }),
+				fc.double({ min: -500, max: 500, noNaN: true }),
+				fc.double({ min: 0.01, max: 100, noNaN: true }),
+				(raw, mean, sd) => {
+					expect(zFromRaw(raw, mean, sd, 'lower_better')).toBe(-zFromRaw(raw, mean, sd, 'higher_better'));
+				}
+			)
 		);
 	});
 	it('reversing the direction mirrors every scale around its mean before clamping (fast-check)', () => {

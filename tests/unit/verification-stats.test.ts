@@ -3,7 +3,16 @@
  * published values and against values worked out by hand (the arithmetic is written beside each).
  */
 import { describe, it, expect } from 'vitest';
-import { wilson, clopperPearson, qualifies, undetectedErrors, protocolAboveThreshold, policyProblems, DEFAULT_POLICY, Z95 } from '../../src/lib/scoring/verification';
+import {
+	wilson,
+	clopperPearson,
+	qualifies,
+	undetectedErrors,
+	protocolAboveThreshold,
+	policyProblems,
+	DEFAULT_POLICY,
+	Z95
+} from '../../src/lib/scoring/verification';
 
 describe('Wilson score interval', () => {
 	// Newcombe RG (1998). Two-sided confidence intervals for the single proportion: comparison of

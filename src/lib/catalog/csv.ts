@@ -25,22 +25,72 @@ import { isFormulaLike, writeCsv, type CsvCell } from '../csv';
 export type CsvKind = 'norms' | 'tests' | 'tables' | 'equations';
 /** The kinds whose rows become norm groups of a norm set (imported into a new or an existing set). */
 export const NORM_KINDS: readonly CsvKind[] = ['norms', 'tables', 'equations'];
-export const KIND_NAMES: Record<CsvKind, string> = { norms: 'norm table (mean/SD)', tests: 'test list', tables: 'conversion tables', equations: 'regression equations' };
+export const KIND_NAMES: Record<CsvKind, string> = {
+	norms: 'norm table (mean/SD)',
+	tests: 'test list',
+	tables: 'conversion tables',
+	equations: 'regression equations'
+};
 
 export const NORM_COLUMNS = ['test_code', 'group_code', 'age_min_months', 'age_max_months', 'sex', 'edu_min', 'edu_max', 'mean', 'sd', 'n'] as const;
 export const NORM_REQUIRED = ['test_code', 'group_code', 'age_min_months', 'age_max_months', 'mean', 'sd'] as const;
-export const TEST_COLUMNS = ['code', 'name', 'domain', 'unit', 'direction', 'raw_min', 'raw_max', 'raw_decimals', 'reported', 'bounds', 'reliability', 'notes'] as const;
+export const TEST_COLUMNS = [
+	'code',
+	'name',
+	'domain',
+	'unit',
+	'direction',
+	'raw_min',
+	'raw_max',
+	'raw_decimals',
+	'reported',
+	'bounds',
+	'reliability',
+	'notes'
+] as const;
 export const TEST_REQUIRED = ['code', 'name', 'domain', 'direction', 'raw_min', 'raw_max', 'reported'] as const;
 
 /** Conversion tables: one line per table row; the group's columns repeat on every row of its table. */
-export const TABLE_COLUMNS = ['test_code', 'group_code', 'age_min_months', 'age_max_months', 'sex', 'edu_min', 'edu_max', 'scale', 'raw_lo', 'raw_hi', 'score', 'percentile'] as const;
+export const TABLE_COLUMNS = [
+	'test_code',
+	'group_code',
+	'age_min_months',
+	'age_max_months',
+	'sex',
+	'edu_min',
+	'edu_max',
+	'scale',
+	'raw_lo',
+	'raw_hi',
+	'score',
+	'percentile'
+] as const;
 export const TABLE_REQUIRED = ['test_code', 'group_code', 'age_min_months', 'age_max_months', 'scale', 'raw_lo', 'raw_hi'] as const;
 /** Regression equations: one line per group; coefficients b_age, b_education, b_sex (empty = not used). */
-export const EQUATION_COLUMNS = ['test_code', 'group_code', 'age_min_months', 'age_max_months', 'sex', 'edu_min', 'edu_max', 'intercept', 'b_age', 'b_education', 'b_sex', 'residual_sd', 'n'] as const;
+export const EQUATION_COLUMNS = [
+	'test_code',
+	'group_code',
+	'age_min_months',
+	'age_max_months',
+	'sex',
+	'edu_min',
+	'edu_max',
+	'intercept',
+	'b_age',
+	'b_education',
+	'b_sex',
+	'residual_sd',
+	'n'
+] as const;
 export const EQUATION_REQUIRED = ['test_code', 'group_code', 'age_min_months', 'age_max_months', 'intercept', 'residual_sd'] as const;
 
 export const COLUMNS: Record<CsvKind, readonly string[]> = { norms: NORM_COLUMNS, tests: TEST_COLUMNS, tables: TABLE_COLUMNS, equations: EQUATION_COLUMNS };
-export const REQUIRED: Record<CsvKind, readonly string[]> = { norms: NORM_REQUIRED, tests: TEST_REQUIRED, tables: TABLE_REQUIRED, equations: EQUATION_REQUIRED };
+export const REQUIRED: Record<CsvKind, readonly string[]> = {
+	norms: NORM_REQUIRED,
+	tests: TEST_REQUIRED,
+	tables: TABLE_REQUIRED,
+	equations: EQUATION_REQUIRED
+};
 
 /** Other spellings accepted in a header, mapped to our column names. */
 const ALIASES: Record<string, string> = {
@@ -130,11 +180,14 @@ export interface PreviewResult {
 
 export type ParsedRow<K extends CsvKind> = K extends 'tests' ? TestInput & { line: number } : NormGroupInput & { line: number };
 
-
 const NUMBER_RE = /^[+-]?(\d+(\.\d*)?|\.\d+)$/;
 
 function normHeader(h: string): string {
-	return h.replace(/^\uFEFF/, '').trim().toLowerCase().replace(/[\s-]+/g, '_');
+	return h
+		.replace(/^\uFEFF/, '')
+		.trim()
+		.toLowerCase()
+		.replace(/[\s-]+/g, '_');
 }
 
 /** A leading apostrophe protects a formula-like cell on export; strip it back on import. */
@@ -214,14 +267,19 @@ export class CsvValidator<K extends CsvKind> {
 		this.flagged.clear();
 		if (cells.length > this.map.length) {
 			const extra = cells.slice(this.map.length);
-			if (extra.some((c) => c.trim() !== '')) this.err(line, null, `Has ${cells.length} cells but the header has ${this.map.length} columns (an unquoted comma?)`);
+			if (extra.some((c) => c.trim() !== ''))
+				this.err(line, null, `Has ${cells.length} cells but the header has ${this.map.length} columns (an unquoted comma?)`);
 		}
 		for (let i = 0; i < this.map.length; i++) {
 			const f = this.map[i];
 			if (!f) continue;
 			const raw = cells[i] ?? '';
 			if (isFormulaLike(raw)) {
-				this.err(line, f, `${f}: "${clip(raw)}" looks like a spreadsheet formula (starts with "${raw[0] === '\t' ? 'tab' : raw[0] === '\r' ? 'carriage return' : raw.trimStart()[0]}"); type the value itself`);
+				this.err(
+					line,
+					f,
+					`${f}: "${clip(raw)}" looks like a spreadsheet formula (starts with "${raw[0] === '\t' ? 'tab' : raw[0] === '\r' ? 'carriage return' : raw.trimStart()[0]}"); type the value itself`
+				);
 				values[f] = '';
 				this.flagged.add(f);
 				continue;
@@ -266,9 +324,7 @@ export class CsvValidator<K extends CsvKind> {
 		for (const [d, name] of DELIMS) {
 			const parts = joined.split(d).map(normHeader);
 			if (parts.length > 1 && REQUIRED[this.kind].filter((c) => parts.includes(c) || parts.some((p) => ALIASES[p] === c)).length >= 2) {
-				return this.fileError(
-					`This file separates columns with ${name}, not commas. Save it as “CSV (comma delimited)” and upload it again.`
-				);
+				return this.fileError(`This file separates columns with ${name}, not commas. Save it as “CSV (comma delimited)” and upload it again.`);
 			}
 		}
 		for (const other of (['tests', 'norms', 'tables', 'equations'] as CsvKind[]).filter((k) => k !== this.kind)) {
@@ -315,10 +371,14 @@ export class CsvValidator<K extends CsvKind> {
 		if (!test) this.err(line, 'test_code', 'test_code: missing value');
 		else if (!known) this.err(line, 'test_code', `test_code: unknown ${allowComposite ? 'test or composite' : 'test'} code "${clip(test)}"`);
 		if (!group) this.err(line, 'group_code', 'group_code: missing value');
-		else if (!/^[A-Za-z0-9][A-Za-z0-9._-]{0,39}$/.test(group)) this.err(line, 'group_code', `group_code: "${clip(group)}" — use 1–40 letters, digits, dot, hyphen, underscore`);
+		else if (!/^[A-Za-z0-9][A-Za-z0-9._-]{0,39}$/.test(group))
+			this.err(line, 'group_code', `group_code: "${clip(group)}" — use 1–40 letters, digits, dot, hyphen, underscore`);
 		const min = this.num(line, v, 'age_min_months', { required: true, int: true });
 		const max = this.num(line, v, 'age_max_months', { required: true, int: true });
-		for (const [c, x] of [['age_min_months', min], ['age_max_months', max]] as const) {
+		for (const [c, x] of [
+			['age_min_months', min],
+			['age_max_months', max]
+		] as const) {
 			if (typeof x === 'number' && (x < 0 || x > MAX_AGE_MONTHS)) this.err(line, c, `${c}: ${x} is outside 0–${MAX_AGE_MONTHS} months`);
 		}
 		if (typeof min === 'number' && typeof max === 'number' && min > max)
@@ -329,12 +389,21 @@ export class CsvValidator<K extends CsvKind> {
 		else if (sx !== '') this.err(line, 'sex', `sex: "${clip(v.sex)}" — use F, M or leave empty`);
 		const eMin = this.num(line, v, 'edu_min', { int: true });
 		const eMax = this.num(line, v, 'edu_max', { int: true });
-		if ((eMin === null) !== (eMax === null) && eMin !== undefined && eMax !== undefined) this.err(line, eMin === null ? 'edu_min' : 'edu_max', 'Give both edu_min and edu_max, or neither');
+		if ((eMin === null) !== (eMax === null) && eMin !== undefined && eMax !== undefined)
+			this.err(line, eMin === null ? 'edu_min' : 'edu_max', 'Give both edu_min and edu_max, or neither');
 		else if (typeof eMin === 'number' && typeof eMax === 'number') {
 			if (eMin > eMax) this.err(line, 'edu_max', `Education range reversed: ${eMin}–${eMax} years`);
 			if (eMin < 0 || eMax > 40) this.err(line, 'edu_min', 'Education years must lie within 0–40');
 		}
-		const keys = { test_code: test, group_code: group, age_min_months: min as number, age_max_months: max as number, sex, edu_min: (eMin as number | null) ?? null, edu_max: (eMax as number | null) ?? null };
+		const keys = {
+			test_code: test,
+			group_code: group,
+			age_min_months: min as number,
+			age_max_months: max as number,
+			sex,
+			edu_min: (eMin as number | null) ?? null,
+			edu_max: (eMax as number | null) ?? null
+		};
 		return { keys, ok: this.result.errorCount === before };
 	}
 
@@ -353,14 +422,27 @@ export class CsvValidator<K extends CsvKind> {
 		if (ok && keys.test_code && keys.group_code) {
 			if (!t) {
 				const group: NormGroupInput & { line: number } = {
-					line, ...keys, subject: this.ctx.spans?.[keys.test_code]?.subject ?? 'test', form: 'table', scale: TABLE_SCALES.includes(scale) ? scale : null,
-					rows: [], mean: null, sd: null, n: null, intercept: null, coefficients: null
+					line,
+					...keys,
+					subject: this.ctx.spans?.[keys.test_code]?.subject ?? 'test',
+					form: 'table',
+					scale: TABLE_SCALES.includes(scale) ? scale : null,
+					rows: [],
+					mean: null,
+					sd: null,
+					n: null,
+					intercept: null,
+					coefficients: null
 				};
 				t = { group, lines: [], keysText, bad: false };
 				this.tables.set(key, t);
 				this.ranges.push({ label: `line ${line}`, ...keys });
 			} else if (t.keysText !== keysText) {
-				this.err(line, 'age_min_months', `Group ${keys.group_code} of ${keys.test_code} has other ages, keys or scale here than on line ${t.group.line}; every row of one table repeats the same group columns`);
+				this.err(
+					line,
+					'age_min_months',
+					`Group ${keys.group_code} of ${keys.test_code} has other ages, keys or scale here than on line ${t.group.line}; every row of one table repeats the same group columns`
+				);
 			}
 		}
 		if (!t) return;
@@ -368,7 +450,12 @@ export class CsvValidator<K extends CsvKind> {
 			t.bad = true; // its coverage is not checked (a missing row would read as a gap)
 			return;
 		}
-		t.group.rows!.push({ lo: lo as number, hi: hi as number, score: scale === 'percentile' ? null : (score as number | null), percentile: v.percentile ? v.percentile : null });
+		t.group.rows!.push({
+			lo: lo as number,
+			hi: hi as number,
+			score: scale === 'percentile' ? null : (score as number | null),
+			percentile: v.percentile ? v.percentile : null
+		});
 		t.lines.push(line);
 	}
 
@@ -378,19 +465,33 @@ export class CsvValidator<K extends CsvKind> {
 		if (ok) this.ranges.push({ label: `line ${line}`, ...keys });
 		const intercept = this.num(line, v, 'intercept', { required: true });
 		const coefficients: Record<string, number> = {};
-		for (const [col, cov] of [['b_age', 'age'], ['b_education', 'education'], ['b_sex', 'sex']] as const) {
+		for (const [col, cov] of [
+			['b_age', 'age'],
+			['b_education', 'education'],
+			['b_sex', 'sex']
+		] as const) {
 			const x = this.num(line, v, col);
 			if (typeof x === 'number') coefficients[cov] = x;
 		}
-		if (this.result.errorCount === before && Object.keys(coefficients).length === 0) this.err(line, 'b_age', 'Give at least one coefficient (b_age, b_education or b_sex)');
+		if (this.result.errorCount === before && Object.keys(coefficients).length === 0)
+			this.err(line, 'b_age', 'Give at least one coefficient (b_age, b_education or b_sex)');
 		const sd = this.num(line, v, 'residual_sd', { required: true });
 		if (typeof sd === 'number' && sd <= 0) this.err(line, 'residual_sd', `residual_sd: ${v.residual_sd} — must be above 0`);
 		const n = this.num(line, v, 'n', { int: true });
 		if (typeof n === 'number' && (n < 1 || n > 10_000_000)) this.err(line, 'n', `n: ${n} — must be 1 to 10,000,000`);
 		if (this.result.errorCount > before) return;
 		const row: NormGroupInput & { line: number } = {
-			line, ...keys, subject: 'test', form: 'regression', intercept: intercept as number, coefficients, sd: sd as number, n: (n as number | null) ?? null,
-			mean: null, scale: null, rows: null
+			line,
+			...keys,
+			subject: 'test',
+			form: 'regression',
+			intercept: intercept as number,
+			coefficients,
+			sd: sd as number,
+			n: (n as number | null) ?? null,
+			mean: null,
+			scale: null,
+			rows: null
 		};
 		if (this.keepRows) (this.rows as (NormGroupInput & { line: number })[]).push(row);
 	}
@@ -402,8 +503,13 @@ export class CsvValidator<K extends CsvKind> {
 			const span = this.ctx.spans?.[g.test_code];
 			if (!span || !g.scale || t.bad) continue;
 			if (span.subject === 'test' && g.scale === 'percentile' && span.reported.some((f) => f !== 'percentile'))
-				this.err(g.line, 'scale', `Group ${g.group_code} of ${g.test_code}: a percentile-only table fits only a test that reports the percentile alone (it reports ${span.reported.join(', ')})`);
-			if (span.subject === 'composite' && g.scale === 'percentile') this.err(g.line, 'scale', `Group ${g.group_code} of ${g.test_code}: a composite table gives a score, not percentiles only`);
+				this.err(
+					g.line,
+					'scale',
+					`Group ${g.group_code} of ${g.test_code}: a percentile-only table fits only a test that reports the percentile alone (it reports ${span.reported.join(', ')})`
+				);
+			if (span.subject === 'composite' && g.scale === 'percentile')
+				this.err(g.line, 'scale', `Group ${g.group_code} of ${g.test_code}: a composite table gives a score, not percentiles only`);
 			const bounds = g.scale === 'percentile' ? null : (span.bounds?.[g.scale] ?? null);
 			for (const p of tableProblems(g.rows as TableRowInput[], span.span, g.scale, bounds, span.subject === 'composite' ? 'sum' : 'raw')) {
 				const line = t.lines[Math.max(0, p.row - 1)] ?? g.line;
@@ -420,7 +526,10 @@ export class CsvValidator<K extends CsvKind> {
 		const mean = this.num(line, v, 'mean', { required: true });
 		const sd = this.num(line, v, 'sd', { required: true });
 		if (typeof sd === 'number' && sd <= 0) this.err(line, 'sd', `sd: ${v.sd} — SD must be above 0`);
-		for (const [c, x] of [['mean', mean], ['sd', sd]] as const)
+		for (const [c, x] of [
+			['mean', mean],
+			['sd', sd]
+		] as const)
 			if (typeof x === 'number' && Math.abs(x) > 99_999_999) this.err(line, c, `${c}: ${v[c]} is too large`);
 		const n = this.num(line, v, 'n', { int: true });
 		if (typeof n === 'number' && (n < 1 || n > 10_000_000)) this.err(line, 'n', `n: ${n} — must be 1 to 10,000,000`);
@@ -457,7 +566,8 @@ export class CsvValidator<K extends CsvKind> {
 		if (!domain) this.err(line, 'domain', 'domain: missing value');
 		else if (!this.ctx.domains.has(domain)) this.err(line, 'domain', `domain: unknown domain "${clip(domain)}" (known: ${[...this.ctx.domains].join(', ')})`);
 		const direction = v.direction ?? '';
-		if (!DIRECTIONS.includes(direction as never)) this.err(line, 'direction', direction ? `direction: "${clip(direction)}" — use higher_better or lower_better` : 'direction: missing value');
+		if (!DIRECTIONS.includes(direction as never))
+			this.err(line, 'direction', direction ? `direction: "${clip(direction)}" — use higher_better or lower_better` : 'direction: missing value');
 		const min = this.num(line, v, 'raw_min', { required: true });
 		const max = this.num(line, v, 'raw_max', { required: true });
 		const dec = this.num(line, v, 'raw_decimals', { int: true });
@@ -520,7 +630,10 @@ function clip(s: string, n = 40): string {
 
 /** "z standard t" (space, semicolon, comma or bar between). */
 export function parseReported(s: string): Derived[] | string {
-	const parts = s.split(/[\s;,|]+/).filter(Boolean).map((p) => p.toLowerCase());
+	const parts = s
+		.split(/[\s;,|]+/)
+		.filter(Boolean)
+		.map((p) => p.toLowerCase());
 	if (!parts.length) return 'missing value (list the derived scores, e.g. "standard percentile")';
 	const bad = parts.filter((p) => !DERIVED.includes(p as Derived));
 	if (bad.length) return `unknown score "${clip(bad[0])}" (use ${DERIVED.join(', ')})`;
@@ -552,13 +665,28 @@ export function toCsv(columns: readonly string[], rows: CsvCell[][]): string {
 
 export function formatBounds(b: Bounds | null | undefined): string {
 	if (!b) return '';
-	return DERIVED.filter((d) => b[d]).map((d) => `${d}=${b[d]![0]}..${b[d]![1]}`).join(' ');
+	return DERIVED.filter((d) => b[d])
+		.map((d) => `${d}=${b[d]![0]}..${b[d]![1]}`)
+		.join(' ');
 }
 
 export function testsToCsv(tests: readonly TestInput[]): string {
 	return toCsv(
 		TEST_COLUMNS,
-		tests.map((t) => [t.code, t.name, t.domain, t.unit, t.direction, t.raw.min, t.raw.max, t.raw.decimals, t.reported.join(' '), formatBounds(t.bounds), t.reliability, t.notes])
+		tests.map((t) => [
+			t.code,
+			t.name,
+			t.domain,
+			t.unit,
+			t.direction,
+			t.raw.min,
+			t.raw.max,
+			t.raw.decimals,
+			t.reported.join(' '),
+			formatBounds(t.bounds),
+			t.reliability,
+			t.notes
+		])
 	);
 }
 
@@ -573,7 +701,15 @@ export function normGroupsToCsv(groups: readonly (GroupKeys & { mean: number | n
 	);
 }
 
-type GroupRecord = GroupKeys & { form?: string; scale?: string | null; rows?: TableRowInput[] | null; intercept?: number | null; coefficients?: Record<string, number> | null; sd: number | null; n: number | null };
+type GroupRecord = GroupKeys & {
+	form?: string;
+	scale?: string | null;
+	rows?: TableRowInput[] | null;
+	intercept?: number | null;
+	coefficients?: Record<string, number> | null;
+	sd: number | null;
+	n: number | null;
+};
 
 /** Conversion tables as the tables CSV: one line per row, the group's columns repeated. */
 export function normTablesToCsv(groups: readonly GroupRecord[]): string {
@@ -581,7 +717,22 @@ export function normTablesToCsv(groups: readonly GroupRecord[]): string {
 		TABLE_COLUMNS,
 		groups
 			.filter((g) => g.form === 'table')
-			.flatMap((g) => (g.rows ?? []).map((r) => [g.test_code, g.group_code, g.age_min_months, g.age_max_months, g.sex, g.edu_min, g.edu_max, g.scale, r.lo, r.hi, r.score, r.percentile]))
+			.flatMap((g) =>
+				(g.rows ?? []).map((r) => [
+					g.test_code,
+					g.group_code,
+					g.age_min_months,
+					g.age_max_months,
+					g.sex,
+					g.edu_min,
+					g.edu_max,
+					g.scale,
+					r.lo,
+					r.hi,
+					r.score,
+					r.percentile
+				])
+			)
 	);
 }
 
@@ -591,6 +742,20 @@ export function normEquationsToCsv(groups: readonly GroupRecord[]): string {
 		EQUATION_COLUMNS,
 		groups
 			.filter((g) => g.form === 'regression')
-			.map((g) => [g.test_code, g.group_code, g.age_min_months, g.age_max_months, g.sex, g.edu_min, g.edu_max, g.intercept, g.coefficients?.age, g.coefficients?.education, g.coefficients?.sex, g.sd, g.n])
+			.map((g) => [
+				g.test_code,
+				g.group_code,
+				g.age_min_months,
+				g.age_max_months,
+				g.sex,
+				g.edu_min,
+				g.edu_max,
+				g.intercept,
+				g.coefficients?.age,
+				g.coefficients?.education,
+				g.coefficients?.sex,
+				g.sd,
+				g.n
+			])
 	);
 }

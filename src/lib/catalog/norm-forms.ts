@@ -72,9 +72,7 @@ export function normalizePercentile(s: string): string {
 		.replace(/\u2265/g, '>=');
 }
 
-export type PercentileCell =
-	| { kind: 'number'; value: number }
-	| { kind: 'band'; lo: number | null; hi: number | null; text: string };
+export type PercentileCell = { kind: 'number'; value: number } | { kind: 'band'; lo: number | null; hi: number | null; text: string };
 
 /** A percentile cell: a whole number 1–99, "<1", ">99", or a band "a-b", "<=a", ">=b" (1 ≤ a < b ≤ 99). */
 export function parsePercentile(s: string, allowBands: boolean): PercentileCell | string {
@@ -114,7 +112,7 @@ export function isBand(s: string | null | undefined): boolean {
 /** A band in words for the Summary: "5th–9th", "at or below the 2nd", "at or above the 75th". */
 export function bandWords(s: string): string {
 	const p = parsePercentile(s, true);
-	const ord = (n: number) => `${n}${n % 100 >= 11 && n % 100 <= 13 ? 'th' : ['th', 'st', 'nd', 'rd'][n % 10] ?? 'th'}`;
+	const ord = (n: number) => `${n}${n % 100 >= 11 && n % 100 <= 13 ? 'th' : (['th', 'st', 'nd', 'rd'][n % 10] ?? 'th')}`;
 	if (typeof p === 'string') return s;
 	if (p.kind === 'number') return ord(p.value);
 	if (p.lo !== null && p.hi !== null) return `${ord(p.lo)}–${ord(p.hi)}`;
@@ -164,44 +162,86 @@ export function tableProblems(
 		if (!okLo) out.push({ row: n, column: 'lo', kind: 'precision', message: `Row ${n}: the ${what} range has no lower value.` });
 		if (!okHi) out.push({ row: n, column: 'hi', kind: 'precision', message: `Row ${n}: the ${what} range has no upper value.` });
 		if (okLo && okHi) {
-			for (const [col, x] of [['lo', r.lo], ['hi', r.hi]] as const) {
-				if (!onGrid(x, d)) out.push({ row: n, column: col, kind: 'precision', message: `Row ${n}: ${x} has more decimals than the ${what} score allows (${d}).` });
+			for (const [col, x] of [
+				['lo', r.lo],
+				['hi', r.hi]
+			] as const) {
+				if (!onGrid(x, d))
+					out.push({ row: n, column: col, kind: 'precision', message: `Row ${n}: ${x} has more decimals than the ${what} score allows (${d}).` });
 				else if (x < span.min - 1e-9 || x > span.max + 1e-9)
-					out.push({ row: n, column: col, kind: 'out_of_span', message: `Row ${n}: ${what} ${fmtRaw(x, d)} is outside ${fmtRaw(span.min, d)}–${fmtRaw(span.max, d)}.` });
+					out.push({
+						row: n,
+						column: col,
+						kind: 'out_of_span',
+						message: `Row ${n}: ${what} ${fmtRaw(x, d)} is outside ${fmtRaw(span.min, d)}–${fmtRaw(span.max, d)}.`
+					});
 			}
-			if (r.lo > r.hi + 1e-9) out.push({ row: n, column: 'hi', kind: 'order', message: `Row ${n}: the range ${fmtRaw(r.lo, d)}–${fmtRaw(r.hi, d)} is reversed.` });
+			if (r.lo > r.hi + 1e-9)
+				out.push({ row: n, column: 'hi', kind: 'order', message: `Row ${n}: the range ${fmtRaw(r.lo, d)}–${fmtRaw(r.hi, d)} is reversed.` });
 			if (prev === null) {
 				if (ticks(r.lo, d) > ticks(span.min, d))
-					out.push({ row: n, column: 'lo', kind: 'gap', message: `Row ${n}: gap — nothing covers ${what} ${fmtRaw(span.min, d)}–${fmtRaw(r.lo - step, d)} before this row.` });
+					out.push({
+						row: n,
+						column: 'lo',
+						kind: 'gap',
+						message: `Row ${n}: gap — nothing covers ${what} ${fmtRaw(span.min, d)}–${fmtRaw(r.lo - step, d)} before this row.`
+					});
 			} else if (Number.isFinite(prev.hi)) {
 				const expected = ticks(prev.hi, d) + 1;
 				const got = ticks(r.lo, d);
 				if (got > expected)
-					out.push({ row: n, column: 'lo', kind: 'gap', message: `Row ${n}: gap — nothing covers ${what} ${fmtRaw(prev.hi + step, d)}–${fmtRaw(r.lo - step, d)} between rows ${n - 1} and ${n}.` });
+					out.push({
+						row: n,
+						column: 'lo',
+						kind: 'gap',
+						message: `Row ${n}: gap — nothing covers ${what} ${fmtRaw(prev.hi + step, d)}–${fmtRaw(r.lo - step, d)} between rows ${n - 1} and ${n}.`
+					});
 				else if (got < expected)
-					out.push({ row: n, column: 'lo', kind: 'overlap', message: `Row ${n}: overlap — ${what} ${fmtRaw(r.lo, d)}–${fmtRaw(Math.min(prev.hi, r.hi), d)} is also in row ${n - 1}.` });
+					out.push({
+						row: n,
+						column: 'lo',
+						kind: 'overlap',
+						message: `Row ${n}: overlap — ${what} ${fmtRaw(r.lo, d)}–${fmtRaw(Math.min(prev.hi, r.hi), d)} is also in row ${n - 1}.`
+					});
 			}
 			if (i === rows.length - 1 && ticks(r.hi, d) < ticks(span.max, d))
-				out.push({ row: n, column: 'hi', kind: 'gap', message: `Row ${n}: gap — nothing covers ${what} ${fmtRaw(r.hi + step, d)}–${fmtRaw(span.max, d)} after the last row.` });
+				out.push({
+					row: n,
+					column: 'hi',
+					kind: 'gap',
+					message: `Row ${n}: gap — nothing covers ${what} ${fmtRaw(r.hi + step, d)}–${fmtRaw(span.max, d)} after the last row.`
+				});
 		}
 		if (scale !== 'percentile') {
 			if (r.score === null || r.score === undefined || !Number.isFinite(r.score))
 				out.push({ row: n, column: 'score', kind: 'score_missing', message: `Row ${n}: no score.` });
-			else if (!Number.isInteger(r.score)) out.push({ row: n, column: 'score', kind: 'out_of_scale', message: `Row ${n}: score ${r.score} is not a whole number.` });
+			else if (!Number.isInteger(r.score))
+				out.push({ row: n, column: 'score', kind: 'out_of_scale', message: `Row ${n}: score ${r.score} is not a whole number.` });
 			else if (r.score < bLo || r.score > bHi)
-				out.push({ row: n, column: 'score', kind: 'out_of_scale', message: `Row ${n}: score ${r.score} is outside the ${scale === 't' ? 'T' : scale} scale's ${bLo}–${bHi}.` });
+				out.push({
+					row: n,
+					column: 'score',
+					kind: 'out_of_scale',
+					message: `Row ${n}: score ${r.score} is outside the ${scale === 't' ? 'T' : scale} scale's ${bLo}–${bHi}.`
+				});
 		}
 		if (r.percentile !== null && r.percentile !== undefined && r.percentile.trim() !== '') {
 			const p = parsePercentile(r.percentile, scale === 'percentile');
 			if (typeof p === 'string') out.push({ row: n, column: 'percentile', kind: 'percentile', message: `Row ${n}: ${p}.` });
-		} else if (scale === 'percentile') out.push({ row: n, column: 'percentile', kind: 'percentile', message: `Row ${n}: a percentile-only table needs a percentile on every row.` });
+		} else if (scale === 'percentile')
+			out.push({ row: n, column: 'percentile', kind: 'percentile', message: `Row ${n}: a percentile-only table needs a percentile on every row.` });
 		prev = okHi ? r : prev;
 	});
 	if (scale !== 'percentile') {
 		const withP = rows.filter((r) => r.percentile !== null && r.percentile !== undefined && r.percentile.trim() !== '').length;
 		if (withP > 0 && withP < rows.length) {
 			const first = rows.findIndex((r) => !r.percentile || r.percentile.trim() === '') + 1;
-			out.push({ row: first, column: 'percentile', kind: 'percentile_mixed', message: `Row ${first}: give a percentile on every row or on none (${withP} of ${rows.length} rows have one).` });
+			out.push({
+				row: first,
+				column: 'percentile',
+				kind: 'percentile_mixed',
+				message: `Row ${first}: give a percentile on every row or on none (${withP} of ${rows.length} rows have one).`
+			});
 		}
 	}
 	return out.sort((a, b) => a.row - b.row);

@@ -8,9 +8,7 @@ import { CsvValidator, LIMITS, formatBytes, type CsvKind, type PreviewResult, ty
 import { normalizeNewlines, pushRecord } from './parse';
 
 export type WorkerRequest = { file: File; kind: CsvKind; testCodes: string[]; domains: string[]; spans?: Record<string, SubjectSpan> };
-export type WorkerMessage =
-	| { type: 'progress'; done: number; total: number; rows: number }
-	| { type: 'done'; result: PreviewResult; ms: number };
+export type WorkerMessage = { type: 'progress'; done: number; total: number; rows: number } | { type: 'done'; result: PreviewResult; ms: number };
 
 const post = (m: WorkerMessage) => (self as unknown as Worker).postMessage(m);
 

@@ -27,10 +27,7 @@ export type Direction = (typeof DIRECTIONS)[number];
 export const DIRECTION_LABELS: Record<Direction, string> = { higher_better: 'Higher is better', lower_better: 'Lower is better' };
 
 export const CODE_RE = /^[a-z0-9][a-z0-9-]{0,39}$/;
-export const codeField = z
-	.string()
-	.trim()
-	.regex(CODE_RE, 'Use 1–40 lower-case letters, digits and hyphens, starting with a letter or digit');
+export const codeField = z.string().trim().regex(CODE_RE, 'Use 1–40 lower-case letters, digits and hyphens, starting with a letter or digit');
 
 const RAW_LIMIT = 99_999_999; // DECIMAL(12,4)
 
@@ -50,7 +47,10 @@ export const testInputSchema = z
 			decimals: z.number({ message: 'Enter 0–4' }).int('Enter a whole number 0–4').min(0, 'Enter 0–4').max(4, 'Enter 0–4')
 		}),
 		reported: z.array(z.enum(DERIVED)).min(1, 'Choose at least one derived score').max(5),
-		bounds: z.partialRecord(z.enum(DERIVED), z.tuple([z.number().finite(), z.number().finite()])).nullable().default(null),
+		bounds: z
+			.partialRecord(z.enum(DERIVED), z.tuple([z.number().finite(), z.number().finite()]))
+			.nullable()
+			.default(null),
 		reliability: z.number({ message: 'Enter a number between 0 and 1' }).gt(0, 'Above 0').lt(1, 'Below 1').nullable().default(null),
 		notes: z.string().trim().max(2000, 'At most 2000 characters').nullable().default(null)
 	})
@@ -59,7 +59,8 @@ export const testInputSchema = z
 		for (const [f, b] of Object.entries(t.bounds ?? {}) as [Derived, [number, number]][]) {
 			const [lo, hi] = SCALE_LIMITS[f];
 			if (b[0] >= b[1]) ctx.addIssue({ code: 'custom', path: ['bounds', f], message: `${DERIVED_LABELS[f]} bounds: the lower must be below the upper` });
-			else if (b[0] < lo || b[1] > hi) ctx.addIssue({ code: 'custom', path: ['bounds', f], message: `${DERIVED_LABELS[f]} bounds must lie within ${lo}–${hi}` });
+			else if (b[0] < lo || b[1] > hi)
+				ctx.addIssue({ code: 'custom', path: ['bounds', f], message: `${DERIVED_LABELS[f]} bounds must lie within ${lo}–${hi}` });
 		}
 	});
 export type TestInput = z.output<typeof testInputSchema>;
@@ -103,7 +104,8 @@ export const testFormSchema = z
 		for (const d of DERIVED) {
 			const lo = f[`${d}_min`];
 			const hi = f[`${d}_max`];
-			if ((lo === null) !== (hi === null)) ctx.addIssue({ code: 'custom', path: [`${d}_${lo === null ? 'min' : 'max'}`], message: 'Give both bounds or neither' });
+			if ((lo === null) !== (hi === null))
+				ctx.addIssue({ code: 'custom', path: [`${d}_${lo === null ? 'min' : 'max'}`], message: 'Give both bounds or neither' });
 			else if (lo !== null && hi !== null) {
 				const [a, b] = SCALE_LIMITS[d];
 				if (lo >= hi) ctx.addIssue({ code: 'custom', path: [`${d}_max`], message: 'Must be above the lower bound' });
@@ -176,9 +178,16 @@ export const compositeSchema = z
 	.object({
 		code: codeField,
 		name: z.string().trim().min(2, 'Enter the composite’s name').max(120, 'At most 120 characters'),
-		parts: z.array(codeField).min(1, 'Choose at least one part').max(30).refine((a) => new Set(a).size === a.length, 'A part appears twice'),
+		parts: z
+			.array(codeField)
+			.min(1, 'Choose at least one part')
+			.max(30)
+			.refine((a) => new Set(a).size === a.length, 'A part appears twice'),
 		part_field: z.enum(['scaled', 'standard', 't'], { message: 'Choose scaled, standard or t' }),
-		reported: z.array(z.enum(COMPOSITE_FIELDS)).min(1, 'Choose at least one reported field').refine((a) => new Set(a).size === a.length, 'A field appears twice'),
+		reported: z
+			.array(z.enum(COMPOSITE_FIELDS))
+			.min(1, 'Choose at least one reported field')
+			.refine((a) => new Set(a).size === a.length, 'A field appears twice'),
 		reliability: z.number({ message: 'Enter a number between 0 and 1' }).gt(0, 'Above 0').lt(1, 'Below 1').nullable().default(null)
 	})
 	.transform((c) => ({ ...c, reported: COMPOSITE_FIELDS.filter((f) => c.reported.includes(f)) }));
@@ -189,7 +198,10 @@ export const batterySchema = z.object({
 	name: z.string().trim().min(2, 'Enter the battery’s name').max(160, 'At most 160 characters'),
 	description: z.string().trim().max(2000).default(''),
 	norm_set_id: z.number().int().positive().nullable().default(null),
-	tests: z.array(codeField).min(1, 'Choose at least one test').max(100, 'At most 100 tests')
+	tests: z
+		.array(codeField)
+		.min(1, 'Choose at least one test')
+		.max(100, 'At most 100 tests')
 		.refine((a) => new Set(a).size === a.length, 'A test appears twice'),
 	/** Absent: the battery's composites stay as they are; an array replaces them. */
 	composites: z.array(compositeSchema).max(20, 'At most 20 composites').optional()
@@ -203,7 +215,12 @@ export const normSetSchema = z.object({
 	code: codeField,
 	name: z.string().trim().min(2, 'Enter the norm set’s name').max(160, 'At most 160 characters'),
 	source: z.string().trim().min(3, 'Cite the published source (or say it is invented)').max(4000),
-	version: z.string().trim().min(1, 'Enter a version').max(40, 'At most 40 characters').regex(/^[A-Za-z0-9._-]+$/, 'Letters, digits, dot, hyphen, underscore'),
+	version: z
+		.string()
+		.trim()
+		.min(1, 'Enter a version')
+		.max(40, 'At most 40 characters')
+		.regex(/^[A-Za-z0-9._-]+$/, 'Letters, digits, dot, hyphen, underscore'),
 	borrow_days: z.enum(AGE_BORROW, { message: 'Choose 30 or actual' }).default('30'),
 	rounding: z.enum(AGE_ROUNDING, { message: 'Choose truncate or round_days' }).default('truncate'),
 	/** How age enters regression norms. */
@@ -238,7 +255,13 @@ const tableRowSchema = z.object({
 	lo: z.number({ message: 'Enter a number' }).finite().min(-RAW_LIMIT).max(RAW_LIMIT),
 	hi: z.number({ message: 'Enter a number' }).finite().min(-RAW_LIMIT).max(RAW_LIMIT),
 	score: z.number({ message: 'Enter a whole number' }).int('Enter a whole number').min(-1000).max(1000).nullable().default(null),
-	percentile: z.string().trim().max(12).nullable().default(null).transform((v) => (v === '' ? null : v))
+	percentile: z
+		.string()
+		.trim()
+		.max(12)
+		.nullable()
+		.default(null)
+		.transform((v) => (v === '' ? null : v))
 });
 
 const coefficientsSchema = z.strictObject(
@@ -251,7 +274,10 @@ export const normGroupSchema = z
 		test_code: codeField,
 		/** `composite`: the norm of a battery's composite (test_code holds the composite's code). */
 		subject: z.enum(['test', 'composite']).default('test'),
-		group_code: z.string().trim().regex(/^[A-Za-z0-9][A-Za-z0-9._-]{0,39}$/, 'Use 1–40 letters, digits, dot, hyphen, underscore'),
+		group_code: z
+			.string()
+			.trim()
+			.regex(/^[A-Za-z0-9][A-Za-z0-9._-]{0,39}$/, 'Use 1–40 letters, digits, dot, hyphen, underscore'),
 		age_min_months: z.number({ message: 'Enter whole months' }).int('Whole months').min(0).max(MAX_AGE_MONTHS),
 		age_max_months: z.number({ message: 'Enter whole months' }).int('Whole months').min(0).max(MAX_AGE_MONTHS),
 		sex: z.enum(SEXES).nullable().default(null),
@@ -268,9 +294,11 @@ export const normGroupSchema = z
 		coefficients: coefficientsSchema.nullable().default(null)
 	})
 	.superRefine((g, ctx) => {
-		if (g.age_min_months > g.age_max_months) ctx.addIssue({ code: 'custom', path: ['age_max_months'], message: 'Age range reversed: the upper age is below the lower' });
+		if (g.age_min_months > g.age_max_months)
+			ctx.addIssue({ code: 'custom', path: ['age_max_months'], message: 'Age range reversed: the upper age is below the lower' });
 		if ((g.edu_min === null) !== (g.edu_max === null)) ctx.addIssue({ code: 'custom', path: ['edu_max'], message: 'Give both education bounds or neither' });
-		else if (g.edu_min !== null && g.edu_max !== null && g.edu_min > g.edu_max) ctx.addIssue({ code: 'custom', path: ['edu_max'], message: 'Education range reversed' });
+		else if (g.edu_min !== null && g.edu_max !== null && g.edu_min > g.edu_max)
+			ctx.addIssue({ code: 'custom', path: ['edu_max'], message: 'Education range reversed' });
 		if (g.form === 'mean_sd') {
 			if (g.mean === null) ctx.addIssue({ code: 'custom', path: ['mean'], message: 'Enter the mean' });
 			if (g.sd === null) ctx.addIssue({ code: 'custom', path: ['sd'], message: 'Enter the SD' });
@@ -278,11 +306,13 @@ export const normGroupSchema = z
 			if (g.subject === 'composite') ctx.addIssue({ code: 'custom', path: ['form'], message: 'A composite is normed by mean/SD of its sum or by a sum table' });
 			if (g.intercept === null) ctx.addIssue({ code: 'custom', path: ['intercept'], message: 'Enter the intercept' });
 			if (g.sd === null) ctx.addIssue({ code: 'custom', path: ['sd'], message: 'Enter the residual SD' });
-			if (!g.coefficients || Object.keys(g.coefficients).length === 0) ctx.addIssue({ code: 'custom', path: ['coefficients'], message: 'Give at least one coefficient (age, education or sex)' });
+			if (!g.coefficients || Object.keys(g.coefficients).length === 0)
+				ctx.addIssue({ code: 'custom', path: ['coefficients'], message: 'Give at least one coefficient (age, education or sex)' });
 		} else {
 			if (g.scale === null) ctx.addIssue({ code: 'custom', path: ['scale'], message: 'Choose the scale the table gives' });
 			if (!g.rows || g.rows.length === 0) ctx.addIssue({ code: 'custom', path: ['rows'], message: 'The table has no rows' });
-			if (g.subject === 'composite' && g.scale === 'percentile') ctx.addIssue({ code: 'custom', path: ['scale'], message: 'A composite table gives a score, not percentiles only' });
+			if (g.subject === 'composite' && g.scale === 'percentile')
+				ctx.addIssue({ code: 'custom', path: ['scale'], message: 'A composite table gives a score, not percentiles only' });
 		}
 	});
 export type NormGroupInput = z.output<typeof normGroupSchema>;
@@ -305,15 +335,19 @@ export const importPreviewSchema = z.object({
 	csv: z.string({ message: 'Send the CSV text as a string' })
 });
 
-export const importConfirmSchema = z.discriminatedUnion('kind', [
-	z.object({ kind: z.literal('tests'), csv: z.string({ message: 'Send the CSV text as a string' }) }),
-	z.object({
-		kind: z.enum(['norms', 'tables', 'equations']),
-		csv: z.string({ message: 'Send the CSV text as a string' }),
-		target: z.discriminatedUnion('mode', [
-			z.object({ mode: z.literal('new'), set: normSetSchema }),
-			z.object({ mode: z.literal('existing'), id: z.number().int().positive() })
-		])
-	})
-], { message: 'kind must be norms, tests, tables or equations' });
+export const importConfirmSchema = z.discriminatedUnion(
+	'kind',
+	[
+		z.object({ kind: z.literal('tests'), csv: z.string({ message: 'Send the CSV text as a string' }) }),
+		z.object({
+			kind: z.enum(['norms', 'tables', 'equations']),
+			csv: z.string({ message: 'Send the CSV text as a string' }),
+			target: z.discriminatedUnion('mode', [
+				z.object({ mode: z.literal('new'), set: normSetSchema }),
+				z.object({ mode: z.literal('existing'), id: z.number().int().positive() })
+			])
+		})
+	],
+	{ message: 'kind must be norms, tests, tables or equations' }
+);
 export type ImportConfirm = z.output<typeof importConfirmSchema>;

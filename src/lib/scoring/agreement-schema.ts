@@ -17,23 +17,17 @@ const label = z.string();
 const finite = z.number(); // zod 4 rejects NaN and ±Infinity in z.number()
 
 export const kappaInputSchema = z.strictObject({
-	pairs: z
-		.array(z.tuple([label, label], { error: 'expected a pair of two labels ["a", "b"]' }))
-		.min(1, { error: 'expected at least 1 pair' }),
+	pairs: z.array(z.tuple([label, label], { error: 'expected a pair of two labels ["a", "b"]' })).min(1, { error: 'expected at least 1 pair' }),
 	weights: z.enum(KAPPA_WEIGHT_NAMES).optional(),
 	categories: z.array(label).min(1, { error: 'expected at least 1 category' }).optional()
 });
 
 export const iccInputSchema = z.strictObject({
-	ratings: z
-		.array(z.array(finite, { error: 'expected a row: an array of numbers, one per rater' }))
-		.min(2, { error: 'expected at least 2 rows (targets)' })
+	ratings: z.array(z.array(finite, { error: 'expected a row: an array of numbers, one per rater' })).min(2, { error: 'expected at least 2 rows (targets)' })
 });
 
 export const blandAltmanInputSchema = z.strictObject({
-	pairs: z
-		.array(z.tuple([finite, finite], { error: 'expected a pair of two numbers [x, y]' }))
-		.min(2, { error: 'expected at least 2 pairs' })
+	pairs: z.array(z.tuple([finite, finite], { error: 'expected a pair of two numbers [x, y]' })).min(2, { error: 'expected at least 2 pairs' })
 });
 
 /** Types and shapes only. */
@@ -183,10 +177,7 @@ export function formatIssues(issues: ReadonlyArray<z.core.$ZodIssue>, input: unk
 			}
 			case 'unrecognized_keys': {
 				const parent = formatPath(issue.path);
-				const known =
-					issue.path.length === 0
-						? ` (expected ${AGREEMENT_KEYS.join(', ')})`
-						: '';
+				const known = issue.path.length === 0 ? ` (expected ${AGREEMENT_KEYS.join(', ')})` : '';
 				for (const key of issue.keys) {
 					push([...issue.path, key], `unknown key${parent === 'input' ? known : ` in ${parent}`}`);
 				}
@@ -199,7 +190,9 @@ export function formatIssues(issues: ReadonlyArray<z.core.$ZodIssue>, input: unk
 			case 'too_big': {
 				const value = at(input, issue.path);
 				const got = Array.isArray(value) ? `, got ${value.length}` : '';
-				const message = issue.message.startsWith('Too ') ? `expected ${issue.code === 'too_small' ? 'at least' : 'at most'} ${String(issue.code === 'too_small' ? issue.minimum : issue.maximum)} items` : issue.message;
+				const message = issue.message.startsWith('Too ')
+					? `expected ${issue.code === 'too_small' ? 'at least' : 'at most'} ${String(issue.code === 'too_small' ? issue.minimum : issue.maximum)} items`
+					: issue.message;
 				push(issue.path, `${message}${got}`);
 				break;
 			}
@@ -210,9 +203,7 @@ export function formatIssues(issues: ReadonlyArray<z.core.$ZodIssue>, input: unk
 	return lines;
 }
 
-export type ParsedAgreementInput =
-	| { success: true; data: AgreementInput }
-	| { success: false; errors: string[] };
+export type ParsedAgreementInput = { success: true; data: AgreementInput } | { success: false; errors: string[] };
 
 /** Validate already-decoded JSON against {@link agreementInputSchema}. */
 export function parseAgreementInput(raw: unknown): ParsedAgreementInput {

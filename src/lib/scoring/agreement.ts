@@ -38,9 +38,7 @@ export interface PercentAgreement {
 }
 
 /** Exact agreement: the share of pairs whose two values are identical (strict equality). */
-export function percentAgreement(
-	pairs: ReadonlyArray<readonly [string | number, string | number]>
-): PercentAgreement {
+export function percentAgreement(pairs: ReadonlyArray<readonly [string | number, string | number]>): PercentAgreement {
 	if (!Array.isArray(pairs)) throw new AgreementInputError('pairs', 'expected an array');
 	if (pairs.length === 0) throw new AgreementInputError('pairs', 'expected at least 1 pair');
 	let agreements = 0;
@@ -102,9 +100,7 @@ export function kappaWeight(weights: KappaWeights, i: number, j: number, q: numb
 	return weights === 'linear' ? 1 - d : 1 - d * d;
 }
 
-const KAPPA_UNDEFINED =
-	'chance agreement is 1: both raters gave every pair one and the same category, ' +
-	'so kappa is 0/0 and undefined';
+const KAPPA_UNDEFINED = 'chance agreement is 1: both raters gave every pair one and the same category, ' + 'so kappa is 0/0 and undefined';
 
 /**
  * Cohen's kappa for two raters (Cohen 1960), and weighted kappa (Cohen 1968) with linear or
@@ -117,10 +113,7 @@ const KAPPA_UNDEFINED =
  * which equals the disagreement form 1 − Σ vᵢⱼ pᵢⱼ / Σ vᵢⱼ pᵢ. p.ⱼ with vᵢⱼ = 1 − wᵢⱼ.
  * Unweighted kappa is the special case wᵢⱼ = [i = j].
  */
-export function cohenKappa(
-	pairs: ReadonlyArray<readonly [string, string]>,
-	options: KappaOptions = {}
-): KappaResult {
+export function cohenKappa(pairs: ReadonlyArray<readonly [string, string]>, options: KappaOptions = {}): KappaResult {
 	const weights = options.weights ?? 'none';
 	if (!KAPPA_WEIGHTS.includes(weights)) {
 		throw new AgreementInputError('weights', 'expected "none", "linear" or "quadratic"');
@@ -218,14 +211,7 @@ export function cohenKappa(
 // ---------------------------------------------------------------------------------------------
 
 export type IccForm = 'ICC(1,1)' | 'ICC(2,1)' | 'ICC(3,1)' | 'ICC(1,k)' | 'ICC(2,k)' | 'ICC(3,k)';
-export const ICC_FORMS: readonly IccForm[] = [
-	'ICC(1,1)',
-	'ICC(2,1)',
-	'ICC(3,1)',
-	'ICC(1,k)',
-	'ICC(2,k)',
-	'ICC(3,k)'
-];
+export const ICC_FORMS: readonly IccForm[] = ['ICC(1,1)', 'ICC(2,1)', 'ICC(3,1)', 'ICC(1,k)', 'ICC(2,k)', 'ICC(3,k)'];
 
 export interface IccMeanSquares {
 	/** Between-targets mean square, df n − 1. */
@@ -264,10 +250,7 @@ export function validateRatings(ratings: ReadonlyArray<ReadonlyArray<number>>, p
 				throw new AgreementInputError(`${path}[0]`, `expected at least 2 ratings (raters), got ${k}`);
 			}
 		} else if (row.length !== k) {
-			throw new AgreementInputError(
-				`${path}[${i}]`,
-				`expected ${k} ratings like row 0, got ${row.length} (missing values are not allowed)`
-			);
+			throw new AgreementInputError(`${path}[${i}]`, `expected ${k} ratings like row 0, got ${row.length} (missing values are not allowed)`);
 		}
 		row.forEach((v, j) => {
 			if (typeof v !== 'number' || !Number.isFinite(v)) {
@@ -351,8 +334,7 @@ export function iccFromMeanSquares(
 ): { icc: Record<IccForm, number | null>; undefinedReason: string | null } {
 	const { bms, wms, jms, ems } = ms;
 	const scale = bms + wms + jms + ems;
-	const ratio = (num: number, den: number): number | null =>
-		constant || !(Math.abs(den) > 1e-14 * scale) ? null : num / den;
+	const ratio = (num: number, den: number): number | null => (constant || !(Math.abs(den) > 1e-14 * scale) ? null : num / den);
 	const icc: Record<IccForm, number | null> = {
 		'ICC(1,1)': ratio(bms - wms, bms + (k - 1) * wms),
 		'ICC(2,1)': ratio(bms - ems, bms + (k - 1) * ems + (k * (jms - ems)) / n),
@@ -434,9 +416,7 @@ export function blandAltman(pairs: ReadonlyArray<readonly [number, number]>): Bl
 }
 
 /** The points of a Bland–Altman plot: the mean of each pair against its difference x − y. */
-export function blandAltmanPoints(
-	pairs: ReadonlyArray<readonly [number, number]>
-): Array<{ mean: number; difference: number }> {
+export function blandAltmanPoints(pairs: ReadonlyArray<readonly [number, number]>): Array<{ mean: number; difference: number }> {
 	validateNumberPairs(pairs, 0);
 	return pairs.map(([x, y]) => ({ mean: (x + y) / 2, difference: x - y }));
 }
@@ -472,14 +452,14 @@ export interface Interpretation {
 	citation: string;
 }
 
-const band = (
-	label: string,
-	published: string,
-	min: number | null,
-	minInclusive: boolean,
-	max: number | null,
-	maxInclusive: boolean
-): Band => ({ label, published, min, minInclusive, max, maxInclusive });
+const band = (label: string, published: string, min: number | null, minInclusive: boolean, max: number | null, maxInclusive: boolean): Band => ({
+	label,
+	published,
+	min,
+	minInclusive,
+	max,
+	maxInclusive
+});
 
 /**
  * Landis & Koch (1977) benchmarks for kappa. The paper prints two-decimal ranges
@@ -488,9 +468,7 @@ const band = (
  */
 export const LANDIS_KOCH_1977: BandScheme = {
 	source: 'Landis & Koch (1977)',
-	citation:
-		'Landis JR, Koch GG. The measurement of observer agreement for categorical data. ' +
-		'Biometrics. 1977;33(1):159–174.',
+	citation: 'Landis JR, Koch GG. The measurement of observer agreement for categorical data. ' + 'Biometrics. 1977;33(1):159–174.',
 	bands: [
 		band('poor', '< 0.00', null, false, 0, false),
 		band('slight', '0.00–0.20', 0, true, 0.2, true),

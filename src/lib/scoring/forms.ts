@@ -5,14 +5,7 @@
  * unrounded value (for `rounding`), the sign-flipped reference and the neighbouring rows' references.
  * Pure; no validation here beyond what is needed not to crash (the schema checks tables first).
  */
-import {
-	SCALES,
-	referenceScore,
-	unroundedScore,
-	type BoundsOverride,
-	type DerivedField,
-	type Direction
-} from './scales';
+import { SCALES, referenceScore, unroundedScore, type BoundsOverride, type DerivedField, type Direction } from './scales';
 import type { CompositeNormEntry, Covariates, NormEntry, TableScale, TablePercentile } from './norms';
 
 /** A reference: a number, or a percentile band string (percentile-only tables). */
@@ -53,7 +46,11 @@ const BAND_GE = /^>=(\d{1,2})$/;
  */
 export function canonicalBand(v: unknown): string | null {
 	if (typeof v !== 'string') return null;
-	const s = v.replace(/\s+/g, '').replace(/\u2013/g, '-').replace(/\u2264/g, '<=').replace(/\u2265/g, '>=');
+	const s = v
+		.replace(/\s+/g, '')
+		.replace(/\u2013/g, '-')
+		.replace(/\u2264/g, '<=')
+		.replace(/\u2265/g, '>=');
 	let m = BAND_RANGE.exec(s);
 	if (m) {
 		const a = Number(m[1]);

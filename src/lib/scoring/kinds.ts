@@ -27,15 +27,7 @@ export const KINDS = [
 export type Kind = (typeof KINDS)[number];
 
 /** Kinds that can be named for a pair of raw scores (and for derived values with no reference). */
-export const RAW_PAIR_KINDS: readonly Kind[] = [
-	'missing',
-	'decimal_shift',
-	'transposition',
-	'digit_drop',
-	'wrong_digit',
-	'out_of_range',
-	'mismatch'
-];
+export const RAW_PAIR_KINDS: readonly Kind[] = ['missing', 'decimal_shift', 'transposition', 'digit_drop', 'wrong_digit', 'out_of_range', 'mismatch'];
 
 /** Kinds that can be named on a percentile-only test (a percentile read from a percentile table). */
 export const PERCENTILE_ONLY_KINDS: readonly Kind[] = ['missing', 'follows_other_raw', 'wrong_norm_group', 'adjacent_row', 'mismatch'];
@@ -44,10 +36,7 @@ export const PERCENTILE_ONLY_KINDS: readonly Kind[] = ['missing', 'follows_other
 export const COMPOSITE_ONLY_KINDS: readonly Kind[] = ['carried', 'sum_error'];
 
 /** Position of a kind in the order (lower wins). */
-export const KIND_RANK: Readonly<Record<Kind, number>> = Object.fromEntries(KINDS.map((k, i) => [k, i])) as Record<
-	Kind,
-	number
->;
+export const KIND_RANK: Readonly<Record<Kind, number>> = Object.fromEntries(KINDS.map((k, i) => [k, i])) as Record<Kind, number>;
 
 /** Short names for chips, filters and table headings. Our own wording. */
 export const KIND_NAMES: Readonly<Record<Kind, string>> = {
@@ -73,10 +62,12 @@ export const KIND_NAMES: Readonly<Record<Kind, string>> = {
 /** One line per kind for reviewers: what probably happened. Our own wording. */
 export const KIND_EXPLANATIONS: Readonly<Record<Kind, string>> = {
 	missing: 'Left empty: the field should hold a score but nothing was entered.',
-	follows_other_raw: 'Right for the other pass\u2019s raw score: this pass probably mistyped only its raw score, and the score follows once the raw score is settled.',
+	follows_other_raw:
+		'Right for the other pass\u2019s raw score: this pass probably mistyped only its raw score, and the score follows once the raw score is settled.',
 	carried: 'Follows from this pass\u2019s own part scores: right arithmetic on a wrong part (or a wrong sum), so it is settled by fixing the part or the sum.',
 	sum_error: 'The parts were added up wrong: the sum is not the total of the part scores this pass entered.',
-	sign_flip: 'The direction is the wrong way round: this is the score the raw score would get if the test\u2019s direction were reversed (the sign of z not reversed on a lower-is-better test, or reversed on a higher-is-better one).',
+	sign_flip:
+		'The direction is the wrong way round: this is the score the raw score would get if the test\u2019s direction were reversed (the sign of z not reversed on a lower-is-better test, or reversed on a higher-is-better one).',
 	wrong_norm_group: 'Matches the score from another norm group of this test: probably looked up in the wrong age or demographic band.',
 	adjacent_row: 'Matches the row just above or just below the right one in the conversion table: probably read off the neighbouring row.',
 	wrong_scale: 'Matches this score on another scale, e.g. a T-score written in the standard-score field.',

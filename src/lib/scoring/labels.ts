@@ -7,14 +7,7 @@
  */
 import { roundHalfAway, roundTo, type DerivedField } from './scales';
 
-export type BandId =
-	| 'exceptionally_high'
-	| 'above_average'
-	| 'high_average'
-	| 'average'
-	| 'low_average'
-	| 'below_average'
-	| 'exceptionally_low';
+export type BandId = 'exceptionally_high' | 'above_average' | 'high_average' | 'average' | 'low_average' | 'below_average' | 'exceptionally_low';
 
 export interface Band {
 	id: BandId;
@@ -36,15 +29,7 @@ export interface LabelScheme {
 
 function bands(labels: readonly string[], cuts: readonly [number, number][]): Band[] {
 	// cuts[i] = [min, max] of band i, highest band first; first max and last min are open.
-	const ids: BandId[] = [
-		'exceptionally_high',
-		'above_average',
-		'high_average',
-		'average',
-		'low_average',
-		'below_average',
-		'exceptionally_low'
-	];
+	const ids: BandId[] = ['exceptionally_high', 'above_average', 'high_average', 'average', 'low_average', 'below_average', 'exceptionally_low'];
 	return ids.map((id, i) => ({
 		id,
 		label: labels[i],
@@ -53,15 +38,7 @@ function bands(labels: readonly string[], cuts: readonly [number, number][]): Ba
 	}));
 }
 
-const AACN_LABELS = [
-	'Exceptionally high',
-	'Above average',
-	'High average',
-	'Average',
-	'Low average',
-	'Below average',
-	'Exceptionally low'
-];
+const AACN_LABELS = ['Exceptionally high', 'Above average', 'High average', 'Average', 'Low average', 'Below average', 'Exceptionally low'];
 
 /**
  * AACN consensus statement on uniform labeling of performance test scores (Guilmette et al., 2020,
@@ -130,15 +107,7 @@ export const AACN_2020: LabelScheme = {
  * on purpose. T-score, scaled-score and percentile bands are the same derived cuts as in AACN_2020
  * because the standard-score cut points coincide.
  */
-const TRADITIONAL_LABELS = [
-	'Very superior',
-	'Superior',
-	'High average',
-	'Average',
-	'Low average',
-	'Borderline',
-	'Extremely low'
-];
+const TRADITIONAL_LABELS = ['Very superior', 'Superior', 'High average', 'Average', 'Low average', 'Borderline', 'Extremely low'];
 
 export const TRADITIONAL_INTELLIGENCE: LabelScheme = {
 	id: 'traditional-intelligence',

@@ -42,11 +42,7 @@ function assertCount(value: number, name: string): void {
  * counts are not non-negative integers or successes > trials. The limits are clamped to
  * [0, 1] only to remove floating-point noise; mathematically they never leave that range.
  */
-export function wilsonInterval(
-	successes: number,
-	trials: number,
-	options: { z?: number } = {}
-): WilsonInterval | null {
+export function wilsonInterval(successes: number, trials: number, options: { z?: number } = {}): WilsonInterval | null {
 	assertCount(successes, 'successes');
 	assertCount(trials, 'trials');
 	if (successes > trials) {

@@ -393,12 +393,7 @@ function isPercentileOnly(norms: readonly AnyNormEntry[] | undefined): boolean {
  * a number, or outside the test's range (no reference, as in rule 3). Throws ReconcileInputError
  * when a regression covariate is missing. Pure; the same computation `reconcile` uses.
  */
-export function testReferences(
-	test: TestDef,
-	norm: NormEntry,
-	raw: Entered,
-	covariates?: Covariates | null
-): Partial<Record<DerivedField, Reference>> | null {
+export function testReferences(test: TestDef, norm: NormEntry, raw: Entered, covariates?: Covariates | null): Partial<Record<DerivedField, Reference>> | null {
 	const n = parseEntered(raw, 'raw');
 	if (n === null || Number.isNaN(n) || !rawInRange(n, test.raw)) return null;
 	const sc = makeTestScorer(test, norm, covariates, null);
@@ -415,11 +410,7 @@ export function testReferences(
  * The references of a composite for a given sum through its norm: `sum` itself and every derived field
  * the norm yields. Null when the sum is not a whole number within `span` (the possible sums).
  */
-export function compositeReferences(
-	norm: CompositeNormEntry,
-	sum: number,
-	span: readonly [number, number]
-): Partial<Record<CompositeField, Reference>> | null {
+export function compositeReferences(norm: CompositeNormEntry, sum: number, span: readonly [number, number]): Partial<Record<CompositeField, Reference>> | null {
 	if (!Number.isInteger(sum) || sum < span[0] || sum > span[1]) return null;
 	const sc = compositeScorer(norm);
 	const pt = sc.at(sum);
@@ -459,7 +450,17 @@ function rawPair(id: string, v1: Entered, n1: number | null, ok1: boolean, v2: E
 	const pass: PassName = ok1 !== ok2 ? (ok1 ? 'second' : 'first') : 'both';
 	const flaggedOor = pass === 'first' ? oor1 : pass === 'second' ? oor2 : oor1 || oor2;
 	const [fv, fn, ov, on] = pass === 'second' ? [v2, n2, v1, n1] : [v1, n1, v2, n2];
-	return mk({ test: id }, 'raw', pass, classifyPair(fv, fn, ov, on, flaggedOor), fn === null ? null : (fv as number | string), on === null ? null : (ov as number | string), null, null, flaggedOor);
+	return mk(
+		{ test: id },
+		'raw',
+		pass,
+		classifyPair(fv, fn, ov, on, flaggedOor),
+		fn === null ? null : (fv as number | string),
+		on === null ? null : (ov as number | string),
+		null,
+		null,
+		flaggedOor
+	);
 }
 
 /**
@@ -509,8 +510,7 @@ class TestFields {
 		return this.others;
 	}
 
-	private readonly oor = (x: Val): boolean =>
-		x.p !== null && x.band === null && (Number.isNaN(x.p) || !inBounds(this.field, x.p, this.test.bounds));
+	private readonly oor = (x: Val): boolean => x.p !== null && x.band === null && (Number.isNaN(x.p) || !inBounds(this.field, x.p, this.test.bounds));
 
 	private judgement(which: 1 | 2, r: Reference, alt: Reference | null): Judgement {
 		const field = this.field;
@@ -594,8 +594,7 @@ export function reconcile(input: ReconcileInput): ReconcileResult {
 		const n2 = parseEntered(v2, 'raw');
 		const ok1 = n1 !== null && !Number.isNaN(n1) && rawInRange(n1, test.raw);
 		const ok2 = n2 !== null && !Number.isNaN(n2) && rawInRange(n2, test.raw);
-		const rawSame =
-			n1 !== null && n2 !== null && (Number.isNaN(n1) || Number.isNaN(n2) ? writtenForm(v1) === writtenForm(v2) : eq(n1, n2));
+		const rawSame = n1 !== null && n2 !== null && (Number.isNaN(n1) || Number.isNaN(n2) ? writtenForm(v1) === writtenForm(v2) : eq(n1, n2));
 		if (n1 === null && n2 === null) {
 			out.push(mk({ test: test.id }, 'raw', 'both', 'missing', null, null, null, null, false));
 		} else if (rawSame) {
@@ -704,10 +703,22 @@ export function reconcile(input: ReconcileInput): ReconcileResult {
 				if (field === 'sum') {
 					const x1 = readVal(e1.sum, 'sum', false);
 					const x2 = readVal(e2.sum, 'sum', false);
-					const sumJudge = (partsSum: number | null) => (r: Reference): Judgement => ({
-						field: 'sum', r, u: null, alt: null, ownRaw: null, restricted: false, ownPartsSum: partsSum,
-						flipped: () => undefined, otherGroups: () => [], adjacent: () => [], otherScales: () => [], outOfRange: sumOor
-					});
+					const sumJudge =
+						(partsSum: number | null) =>
+						(r: Reference): Judgement => ({
+							field: 'sum',
+							r,
+							u: null,
+							alt: null,
+							ownRaw: null,
+							restricted: false,
+							ownPartsSum: partsSum,
+							flipped: () => undefined,
+							otherGroups: () => [],
+							adjacent: () => [],
+							otherScales: () => [],
+							outOfRange: sumOor
+						});
 					compareField(out, subj, 'sum', x1, x2, S1, S2, null, null, sumJudge(parts1), sumJudge(parts2), sumOor, { restricted: false });
 					continue;
 				}
@@ -717,30 +728,28 @@ export function reconcile(input: ReconcileInput): ReconcileResult {
 				const x2 = readVal(e2[field], field, bands);
 				const r1 = cp1 ? (scorer.ref(cp1, field) ?? null) : null;
 				const r2 = cp2 ? (cp2 === cp1 ? r1 : (scorer.ref(cp2, field) ?? null)) : null;
-				const judge = (pt: Point, S: number, s: number | null) => (r: Reference): Judgement => {
-					const f = field;
-					return {
-						field: f,
-						r,
-						u: scorer.unrounded(pt, f),
-						alt: null,
-						ownRaw: null,
-						restricted: pctOnly,
-						carried: () => (s !== null && Number.isInteger(s) && s >= span[0] && s <= span[1] && s !== S ? scorer.ref(scorer.at(s), f) : undefined),
-						flipped: () => scorer.flipped(pt, f),
-						otherGroups: () => otherScorers().map((o) => o.ref(o.at(S), f)),
-						adjacent: () => scorer.adjacent(pt, f),
-						otherScales: () => DERIVED_FIELDS.filter((g) => g !== f).map((g) => scorer.ref(pt, g)),
-						outOfRange: derivedOor
+				const judge =
+					(pt: Point, S: number, s: number | null) =>
+					(r: Reference): Judgement => {
+						const f = field;
+						return {
+							field: f,
+							r,
+							u: scorer.unrounded(pt, f),
+							alt: null,
+							ownRaw: null,
+							restricted: pctOnly,
+							carried: () => (s !== null && Number.isInteger(s) && s >= span[0] && s <= span[1] && s !== S ? scorer.ref(scorer.at(s), f) : undefined),
+							flipped: () => scorer.flipped(pt, f),
+							otherGroups: () => otherScorers().map((o) => o.ref(o.at(S), f)),
+							adjacent: () => scorer.adjacent(pt, f),
+							otherScales: () => DERIVED_FIELDS.filter((g) => g !== f).map((g) => scorer.ref(pt, g)),
+							outOfRange: derivedOor
+						};
 					};
-				};
-				compareField(
-					out, subj, field, x1, x2, r1, r2, null, null,
-					judge(cp1 as Point, S1 as number, s1),
-					judge(cp2 as Point, S2 as number, s2),
-					derivedOor,
-					{ restricted: pctOnly }
-				);
+				compareField(out, subj, field, x1, x2, r1, r2, null, null, judge(cp1 as Point, S1 as number, s1), judge(cp2 as Point, S2 as number, s2), derivedOor, {
+					restricted: pctOnly
+				});
 			}
 		}
 	}
@@ -762,12 +771,7 @@ export interface FieldProblem {
  * Decimals: raw at most `raw.decimals`, z at most 2, the other scales whole numbers; trailing zeros
  * do not count (36.20 has one decimal).
  */
-export function checkField(
-	test: Pick<TestDef, 'raw' | 'bounds'>,
-	field: Field,
-	value: Entered,
-	opts: { percentileBands?: boolean } = {}
-): FieldProblem[] {
+export function checkField(test: Pick<TestDef, 'raw' | 'bounds'>, field: Field, value: Entered, opts: { percentileBands?: boolean } = {}): FieldProblem[] {
 	const p = parseEntered(value, field);
 	if (p === null) return [];
 	if (Number.isNaN(p)) {
@@ -795,7 +799,8 @@ export function checkField(
 		if (decimals > allowed) {
 			problems.push({
 				code: 'too_many_decimals',
-				message: allowed === 0 ? 'Raw scores on this test are whole numbers.' : `Raw scores on this test have at most ${allowed} decimal${allowed === 1 ? '' : 's'}.`
+				message:
+					allowed === 0 ? 'Raw scores on this test are whole numbers.' : `Raw scores on this test have at most ${allowed} decimal${allowed === 1 ? '' : 's'}.`
 			});
 		}
 		return problems;

@@ -18,73 +18,91 @@ const derivedField = z.enum(['z', 'standard', 'scaled', 't', 'percentile'], {
 	error: 'expected one of z, standard, scaled, t, percentile'
 });
 
-const bound = z
-	.tuple([finite(), finite()], { error: 'expected [low, high]' })
-	.refine(([lo, hi]) => lo < hi, { error: 'low must be below high' });
+const bound = z.tuple([finite(), finite()], { error: 'expected [low, high]' }).refine(([lo, hi]) => lo < hi, { error: 'low must be below high' });
 
-const testSchema = z.strictObject({
-	id: z.string({ error: 'expected string' }).min(1, { error: 'must not be empty' }),
-	direction: z.enum(['higher_better', 'lower_better'], { error: 'expected "higher_better" or "lower_better"' }),
-	raw: z
-		.strictObject({
-			min: finite(),
-			max: finite(),
-			decimals: z.number({ error: 'expected number' }).int({ error: 'expected a whole number' }).min(0, { error: 'must be 0 or more' }).max(6, { error: 'must be at most 6' })
-		}, { error: 'expected object' })
-		.refine((r) => r.min <= r.max, { error: 'min must not be above max', path: ['max'] }),
-	reported: z
-		.array(derivedField, { error: 'expected array' })
-		.refine((a) => new Set(a).size === a.length, { error: 'lists a field twice' }),
-	bounds: z
-		.strictObject({ z: bound, standard: bound, scaled: bound, t: bound, percentile: bound }, { error: 'expected object' })
-		.partial()
-		.nullish()
-}, { error: 'expected object' });
+const testSchema = z.strictObject(
+	{
+		id: z.string({ error: 'expected string' }).min(1, { error: 'must not be empty' }),
+		direction: z.enum(['higher_better', 'lower_better'], { error: 'expected "higher_better" or "lower_better"' }),
+		raw: z
+			.strictObject(
+				{
+					min: finite(),
+					max: finite(),
+					decimals: z
+						.number({ error: 'expected number' })
+						.int({ error: 'expected a whole number' })
+						.min(0, { error: 'must be 0 or more' })
+						.max(6, { error: 'must be at most 6' })
+				},
+				{ error: 'expected object' }
+			)
+			.refine((r) => r.min <= r.max, { error: 'min must not be above max', path: ['max'] }),
+		reported: z.array(derivedField, { error: 'expected array' }).refine((a) => new Set(a).size === a.length, { error: 'lists a field twice' }),
+		bounds: z.strictObject({ z: bound, standard: bound, scaled: bound, t: bound, percentile: bound }, { error: 'expected object' }).partial().nullish()
+	},
+	{ error: 'expected object' }
+);
 
-const normSchema = z.strictObject({
-	test: z.string({ error: 'expected string' }),
-	group: z.string({ error: 'expected string' }),
-	form: z.literal('mean_sd').optional(),
-	mean: finite(),
-	sd: finite().refine((x) => x > 0, { error: 'must be above 0' })
-}, { error: 'expected object' });
+const normSchema = z.strictObject(
+	{
+		test: z.string({ error: 'expected string' }),
+		group: z.string({ error: 'expected string' }),
+		form: z.literal('mean_sd').optional(),
+		mean: finite(),
+		sd: finite().refine((x) => x > 0, { error: 'must be above 0' })
+	},
+	{ error: 'expected object' }
+);
 
-const regressionSchema = z.strictObject({
-	test: z.string({ error: 'expected string' }),
-	group: z.string({ error: 'expected string' }),
-	form: z.literal('regression'),
-	intercept: finite(),
-	coefficients: z.record(z.string(), finite(), { error: 'expected object' }),
-	sd: finite().refine((x) => x > 0, { error: 'must be above 0' })
-}, { error: 'expected object' });
+const regressionSchema = z.strictObject(
+	{
+		test: z.string({ error: 'expected string' }),
+		group: z.string({ error: 'expected string' }),
+		form: z.literal('regression'),
+		intercept: finite(),
+		coefficients: z.record(z.string(), finite(), { error: 'expected object' }),
+		sd: finite().refine((x) => x > 0, { error: 'must be above 0' })
+	},
+	{ error: 'expected object' }
+);
 
 const tableScale = z.enum(['scaled', 'standard', 't', 'percentile'], { error: 'expected one of scaled, standard, t, percentile' });
 const range = z.tuple([finite(), finite()], { error: 'expected [low, high]' });
 const rowFields = { score: finite().optional(), percentile: z.union([z.number(), z.string()], { error: 'expected number or string' }).optional() };
 
-const tableSchema = z.strictObject({
-	test: z.string({ error: 'expected string' }),
-	group: z.string({ error: 'expected string' }),
-	form: z.literal('table'),
-	scale: tableScale,
-	rows: z.array(z.strictObject({ raw: range, ...rowFields }, { error: 'expected object' }), { error: 'expected array' })
-}, { error: 'expected object' });
+const tableSchema = z.strictObject(
+	{
+		test: z.string({ error: 'expected string' }),
+		group: z.string({ error: 'expected string' }),
+		form: z.literal('table'),
+		scale: tableScale,
+		rows: z.array(z.strictObject({ raw: range, ...rowFields }, { error: 'expected object' }), { error: 'expected array' })
+	},
+	{ error: 'expected object' }
+);
 
-const compositeNormSchema = z.strictObject({
-	composite: z.string({ error: 'expected string' }),
-	group: z.string({ error: 'expected string' }),
-	form: z.literal('mean_sd').optional(),
-	mean: finite(),
-	sd: finite().refine((x) => x > 0, { error: 'must be above 0' })
-}, { error: 'expected object' });
+const compositeNormSchema = z.strictObject(
+	{
+		composite: z.string({ error: 'expected string' }),
+		group: z.string({ error: 'expected string' }),
+		form: z.literal('mean_sd').optional(),
+		mean: finite(),
+		sd: finite().refine((x) => x > 0, { error: 'must be above 0' })
+	},
+	{ error: 'expected object' }
+);
 
-const compositeTableSchema = z.strictObject({
-	composite: z.string({ error: 'expected string' }),
-	group: z.string({ error: 'expected string' }),
-	form: z.literal('table'),
-	scale: tableScale,
-	rows: z.array(z.strictObject({ sum: range, ...rowFields }, { error: 'expected object' }), { error: 'expected array' })
-}, { error: 'expected object' });
+const compositeTableSchema = z.strictObject(
+	{
+		composite: z.string({ error: 'expected string' }),
+		group: z.string({ error: 'expected string' }),
+		form: z.literal('table'),
+		scale: tableScale,
+		rows: z.array(z.strictObject({ sum: range, ...rowFields }, { error: 'expected object' }), { error: 'expected array' })
+	},
+	{ error: 'expected object' }
+);
 
 /** A norm entry: the schema is chosen by `composite`/`test` and `form`; its issues keep their paths. */
 const anyNorm = z.any().superRefine((n, ctx) => {
@@ -107,43 +125,59 @@ const anyNorm = z.any().superRefine((n, ctx) => {
 	if (r.success) return;
 	for (const issue of r.error.issues) {
 		if (issue.code === 'unrecognized_keys') {
-			for (const key of issue.keys) ctx.addIssue({ code: 'custom', path: [...issue.path, key] as PropertyKey[] as (string | number)[], message: 'unknown field' });
+			for (const key of issue.keys)
+				ctx.addIssue({ code: 'custom', path: [...issue.path, key] as PropertyKey[] as (string | number)[], message: 'unknown field' });
 		} else ctx.addIssue({ code: 'custom', path: issue.path as (string | number)[], message: issue.message });
 	}
 });
 
-const compositeSchema = z.strictObject({
-	id: z.string({ error: 'expected string' }).min(1, { error: 'must not be empty' }),
-	parts: z.array(z.string({ error: 'expected string' }), { error: 'expected array' }).min(1, { error: 'needs at least one part' })
-		.refine((a) => new Set(a).size === a.length, { error: 'lists a part twice' }),
-	part_field: z.enum(['scaled', 'standard', 't'], { error: 'expected one of scaled, standard, t' }),
-	reported: z
-		.array(z.enum(['sum', 'z', 'standard', 'scaled', 't', 'percentile'], { error: 'expected one of sum, z, standard, scaled, t, percentile' }), { error: 'expected array' })
-		.refine((a) => new Set(a).size === a.length, { error: 'lists a field twice' })
-}, { error: 'expected object' });
-
-const fieldValues = z.strictObject(
-	{ raw: value, sum: value, z: value, standard: value, scaled: value, t: value, percentile: value },
+const compositeSchema = z.strictObject(
+	{
+		id: z.string({ error: 'expected string' }).min(1, { error: 'must not be empty' }),
+		parts: z
+			.array(z.string({ error: 'expected string' }), { error: 'expected array' })
+			.min(1, { error: 'needs at least one part' })
+			.refine((a) => new Set(a).size === a.length, { error: 'lists a part twice' }),
+		part_field: z.enum(['scaled', 'standard', 't'], { error: 'expected one of scaled, standard, t' }),
+		reported: z
+			.array(z.enum(['sum', 'z', 'standard', 'scaled', 't', 'percentile'], { error: 'expected one of sum, z, standard, scaled, t, percentile' }), {
+				error: 'expected array'
+			})
+			.refine((a) => new Set(a).size === a.length, { error: 'lists a field twice' })
+	},
 	{ error: 'expected object' }
-).partial();
+);
 
-const passSchema = z.strictObject({
-	scorer: z.string({ error: 'expected string' }),
-	scores: z.record(z.string(), fieldValues, { error: 'expected object' })
-}, { error: 'expected object' });
+const fieldValues = z
+	.strictObject({ raw: value, sum: value, z: value, standard: value, scaled: value, t: value, percentile: value }, { error: 'expected object' })
+	.partial();
+
+const passSchema = z.strictObject(
+	{
+		scorer: z.string({ error: 'expected string' }),
+		scores: z.record(z.string(), fieldValues, { error: 'expected object' })
+	},
+	{ error: 'expected object' }
+);
 
 export const reconcileInputSchema = z
-	.strictObject({
-		tests: z.array(testSchema, { error: 'expected array' }),
-		norms: z.array(anyNorm, { error: 'expected array' }),
-		composites: z.array(compositeSchema, { error: 'expected array' }).nullish(),
-		protocol: z.strictObject({
-			group: z.string({ error: 'expected string' }),
-			groups: z.record(z.string(), z.string({ error: 'expected string' }), { error: 'expected object' }).nullish(),
-			covariates: z.record(z.string(), finite(), { error: 'expected object' }).nullish()
-		}, { error: 'expected object' }),
-		passes: z.array(passSchema, { error: 'expected array' }).length(2, { error: 'expected exactly two passes' })
-	}, { error: 'expected object' })
+	.strictObject(
+		{
+			tests: z.array(testSchema, { error: 'expected array' }),
+			norms: z.array(anyNorm, { error: 'expected array' }),
+			composites: z.array(compositeSchema, { error: 'expected array' }).nullish(),
+			protocol: z.strictObject(
+				{
+					group: z.string({ error: 'expected string' }),
+					groups: z.record(z.string(), z.string({ error: 'expected string' }), { error: 'expected object' }).nullish(),
+					covariates: z.record(z.string(), finite(), { error: 'expected object' }).nullish()
+				},
+				{ error: 'expected object' }
+			),
+			passes: z.array(passSchema, { error: 'expected array' }).length(2, { error: 'expected exactly two passes' })
+		},
+		{ error: 'expected object' }
+	)
 	.superRefine((doc, ctx) => {
 		// zod runs this refinement after non-fatal issues too (unknown keys, refinements) — and after a norm
 		// entry's own issues, which are custom ones: the norms' shapes are only known good when none was raised
@@ -172,7 +206,8 @@ function crossCheck(doc: Doc, ctx: { addIssue: (i: { code: 'custom'; path: (stri
 	const composites = doc.composites ?? [];
 	const compIds = new Map<string, number>();
 	composites.forEach((c, i) => {
-		if (ids.has(c.id) || compIds.has(c.id)) add({ path: ['composites', i, 'id'], message: `duplicate id ${JSON.stringify(c.id)} (ids are unique across tests and composites)` });
+		if (ids.has(c.id) || compIds.has(c.id))
+			add({ path: ['composites', i, 'id'], message: `duplicate id ${JSON.stringify(c.id)} (ids are unique across tests and composites)` });
 		else compIds.set(c.id, i);
 	});
 	const seen = new Set<string>();
@@ -184,13 +219,15 @@ function crossCheck(doc: Doc, ctx: { addIssue: (i: { code: 'custom'; path: (stri
 			add({ path: ['norms', i, isComp ? 'composite' : 'test'], message: `unknown ${isComp ? 'composite' : 'test'} ${JSON.stringify(owner)}` });
 		}
 		const key = `${isComp ? 'c' : 't'}\u0000${owner}\u0000${String(n.group)}`;
-		if (seen.has(key)) add({ path: ['norms', i], message: `duplicate norms for ${isComp ? 'composite' : 'test'} ${JSON.stringify(owner)} group ${JSON.stringify(n.group)}` });
+		if (seen.has(key))
+			add({ path: ['norms', i], message: `duplicate norms for ${isComp ? 'composite' : 'test'} ${JSON.stringify(owner)} group ${JSON.stringify(n.group)}` });
 		seen.add(key);
 		if (n.form === 'table' && n.scale === 'percentile' && !pctOnlyNorm.has(owner)) pctOnlyNorm.set(owner, i);
 		if (n.form === 'regression') {
 			for (const k of Object.keys((n.coefficients as Record<string, number>) ?? {})) {
 				const x = doc.protocol.covariates?.[k];
-				if (x === undefined || x === null) add({ path: ['norms', i, 'coefficients', k], message: `covariate ${JSON.stringify(k)} is not in protocol.covariates` });
+				if (x === undefined || x === null)
+					add({ path: ['norms', i, 'coefficients', k], message: `covariate ${JSON.stringify(k)} is not in protocol.covariates` });
 			}
 		}
 	});
@@ -215,7 +252,14 @@ function crossCheck(doc: Doc, ctx: { addIssue: (i: { code: 'custom'; path: (stri
 			const t = doc.tests[ids.get(String(n.test)) ?? -1];
 			// a test whose raw spec is itself bad (reported at tests[i].raw) cannot have its table checked
 			if (!t || !Number.isInteger(t.raw.decimals) || t.raw.decimals < 0 || t.raw.decimals > 6 || !(t.raw.min <= t.raw.max)) return;
-			const spec = { key: 'raw' as const, min: t.raw.min, max: t.raw.max, decimals: t.raw.decimals, scale, bounds: scale === 'percentile' ? undefined : boundsFor(scale, t.bounds) };
+			const spec = {
+				key: 'raw' as const,
+				min: t.raw.min,
+				max: t.raw.max,
+				decimals: t.raw.decimals,
+				scale,
+				bounds: scale === 'percentile' ? undefined : boundsFor(scale, t.bounds)
+			};
 			for (const pr of checkTableRows(rows, spec)) add({ path: ['norms', i, ...pr.path], message: pr.message });
 		}
 	});
@@ -224,7 +268,11 @@ function crossCheck(doc: Doc, ctx: { addIssue: (i: { code: 'custom'; path: (stri
 		const j = pctOnlyNorm.get(t.id);
 		if (j === undefined) return;
 		t.reported.forEach((f, k) => {
-			if (f !== 'percentile') add({ path: ['tests', i, 'reported', k], message: `test ${JSON.stringify(t.id)} has a percentile-only table (norms[${j}]), so it may report percentile only, not ${f}` });
+			if (f !== 'percentile')
+				add({
+					path: ['tests', i, 'reported', k],
+					message: `test ${JSON.stringify(t.id)} has a percentile-only table (norms[${j}]), so it may report percentile only, not ${f}`
+				});
 		});
 	});
 	// norms for each test's and composite's group
@@ -232,18 +280,25 @@ function crossCheck(doc: Doc, ctx: { addIssue: (i: { code: 'custom'; path: (stri
 		const own = doc.protocol.groups?.[t.id];
 		const g = own ?? doc.protocol.group;
 		if (!seen.has(`t\u0000${t.id}\u0000${g}`)) {
-			add({ path: own !== undefined ? ['protocol', 'groups', t.id] : ['protocol', 'group'], message: `no norms for test ${JSON.stringify(t.id)} in group ${JSON.stringify(g)}` });
+			add({
+				path: own !== undefined ? ['protocol', 'groups', t.id] : ['protocol', 'group'],
+				message: `no norms for test ${JSON.stringify(t.id)} in group ${JSON.stringify(g)}`
+			});
 		}
 	}
 	composites.forEach((c, ci) => {
 		const own = doc.protocol.groups?.[c.id];
 		const g = own ?? doc.protocol.group;
 		if (!seen.has(`c\u0000${c.id}\u0000${g}`)) {
-			add({ path: own !== undefined ? ['protocol', 'groups', c.id] : ['protocol', 'group'], message: `no norms for composite ${JSON.stringify(c.id)} in group ${JSON.stringify(g)}` });
+			add({
+				path: own !== undefined ? ['protocol', 'groups', c.id] : ['protocol', 'group'],
+				message: `no norms for composite ${JSON.stringify(c.id)} in group ${JSON.stringify(g)}`
+			});
 		}
 		c.parts.forEach((p, k) => {
 			const ti = ids.get(p);
-			if (ti === undefined) add({ path: ['composites', ci, 'parts', k], message: `unknown test ${JSON.stringify(p)}${compIds.has(p) ? ' (a composite cannot be a part)' : ''}` });
+			if (ti === undefined)
+				add({ path: ['composites', ci, 'parts', k], message: `unknown test ${JSON.stringify(p)}${compIds.has(p) ? ' (a composite cannot be a part)' : ''}` });
 			else if (!doc.tests[ti].reported.includes(c.part_field)) {
 				add({ path: ['composites', ci, 'parts', k], message: `test ${JSON.stringify(p)} does not report ${c.part_field}, the composite's part_field` });
 			}
@@ -251,7 +306,11 @@ function crossCheck(doc: Doc, ctx: { addIssue: (i: { code: 'custom'; path: (stri
 		const j = pctOnlyNorm.get(c.id);
 		if (j !== undefined) {
 			c.reported.forEach((f, k) => {
-				if (f !== 'percentile' && f !== 'sum') add({ path: ['composites', ci, 'reported', k], message: `composite ${JSON.stringify(c.id)} has a percentile-only table (norms[${j}]), so it may report sum and percentile only, not ${f}` });
+				if (f !== 'percentile' && f !== 'sum')
+					add({
+						path: ['composites', ci, 'reported', k],
+						message: `composite ${JSON.stringify(c.id)} has a percentile-only table (norms[${j}]), so it may report sum and percentile only, not ${f}`
+					});
 			});
 		}
 	});

@@ -64,7 +64,14 @@ export function checkTableRows(rows: readonly RowLike[], spec: TableSpec): Table
 	let prevHi: number | null = null;
 	rows.forEach((row, i) => {
 		const range = row[key];
-		if (!Array.isArray(range) || range.length !== 2 || typeof range[0] !== 'number' || typeof range[1] !== 'number' || !Number.isFinite(range[0]) || !Number.isFinite(range[1])) {
+		if (
+			!Array.isArray(range) ||
+			range.length !== 2 ||
+			typeof range[0] !== 'number' ||
+			typeof range[1] !== 'number' ||
+			!Number.isFinite(range[0]) ||
+			!Number.isFinite(range[1])
+		) {
 			problems.push({ path: ['rows', i, key], message: `expected [low, high] ${what}s` });
 			prevHi = null;
 			return;
@@ -115,7 +122,10 @@ export function checkTableRows(rows: readonly RowLike[], spec: TableSpec): Table
 			if (row.percentile === undefined || row.percentile === null) {
 				problems.push({ path: ['rows', i, 'percentile'], message: 'required on a percentile table' });
 			} else if (!validTablePercentile(row.percentile, true)) {
-				problems.push({ path: ['rows', i, 'percentile'], message: `expected a whole number 1–99, "<1", ">99" or a band ("10-25", "<=5", ">=75"), got ${JSON.stringify(row.percentile)}` });
+				problems.push({
+					path: ['rows', i, 'percentile'],
+					message: `expected a whole number 1–99, "<1", ">99" or a band ("10-25", "<=5", ">=75"), got ${JSON.stringify(row.percentile)}`
+				});
 			}
 			return;
 		}
@@ -123,10 +133,14 @@ export function checkTableRows(rows: readonly RowLike[], spec: TableSpec): Table
 		const [blo, bhi] = spec.bounds ?? SCALES[spec.scale].bounds;
 		if (row.score === undefined || row.score === null) problems.push({ path: ['rows', i, 'score'], message: `required on a ${label} table` });
 		else if (typeof row.score !== 'number' || !Number.isInteger(row.score)) problems.push({ path: ['rows', i, 'score'], message: 'expected a whole number' });
-		else if (row.score < blo || row.score > bhi) problems.push({ path: ['rows', i, 'score'], message: `${label} ${row.score} is outside the scale's bounds ${blo}–${bhi}` });
+		else if (row.score < blo || row.score > bhi)
+			problems.push({ path: ['rows', i, 'score'], message: `${label} ${row.score} is outside the scale's bounds ${blo}–${bhi}` });
 		const has = row.percentile !== undefined && row.percentile !== null;
 		if (has !== withPct) {
-			problems.push({ path: ['rows', i, 'percentile'], message: `a table gives percentiles on every row or on none (rows[0] ${withPct ? 'has one' : 'has none'})` });
+			problems.push({
+				path: ['rows', i, 'percentile'],
+				message: `a table gives percentiles on every row or on none (rows[0] ${withPct ? 'has one' : 'has none'})`
+			});
 		} else if (has && !validTablePercentile(row.percentile, false)) {
 			problems.push({ path: ['rows', i, 'percentile'], message: `expected a whole number 1–99, "<1" or ">99", got ${JSON.stringify(row.percentile)}` });
 		}

@@ -146,7 +146,8 @@ export function policyProblems(p: SamplingPolicy): string[] {
 	if (p.mode !== 'every' && p.mode !== 'sampled') out.push('mode: choose "every protocol double-entered" or "sampled"');
 	if (!Number.isInteger(p.minFields) || p.minFields < 100 || p.minFields > 1_000_000) out.push('minFields: a whole number from 100 to 1,000,000');
 	if (!Number.isInteger(p.windowDays) || p.windowDays < 7 || p.windowDays > 3650) out.push('windowDays: a whole number of days from 7 to 3,650');
-	if (!Number.isFinite(p.thresholdPer100) || p.thresholdPer100 <= 0 || p.thresholdPer100 > 10) out.push('thresholdPer100: above 0 and at most 10 errors per 100 fields');
+	if (!Number.isFinite(p.thresholdPer100) || p.thresholdPer100 <= 0 || p.thresholdPer100 > 10)
+		out.push('thresholdPer100: above 0 and at most 10 errors per 100 fields');
 	if (!Number.isFinite(p.probability) || p.probability <= 0 || p.probability > 1) out.push('probability: above 0% and at most 100%');
 	return out;
 }

@@ -112,7 +112,7 @@ export function transaction<T>(fn: (t: Transaction) => Promise<T>, retry?: Retry
 /** True when an error means the database cannot be reached (answered with 503, never a 500). */
 export function isDbUnavailable(e: unknown): boolean {
 	const name = (e as { name?: string })?.name ?? '';
-	const code = (e as { original?: { code?: string }; parent?: { code?: string }; code?: string });
+	const code = e as { original?: { code?: string }; parent?: { code?: string }; code?: string };
 	const c = code?.original?.code ?? code?.parent?.code ?? code?.code ?? '';
 	const errno = Number((e as { original?: { errno?: number } })?.original?.errno ?? (e as { errno?: number })?.errno ?? 0);
 	return (

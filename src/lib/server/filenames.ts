@@ -18,7 +18,12 @@ export function stripBidi(s: string): string {
 /** A display name without any path, control, bidi or quoting characters; `fallback` when nothing is left. */
 export function cleanFilename(name: string, fallback: string): string {
 	const base = name.split(/[\\/]/).pop() ?? '';
-	const clean = stripBidi(base).replace(INVISIBLE, '').replace(/["<>|:*?]/g, '').replace(/^\.+/, '').trim().slice(0, 120);
+	const clean = stripBidi(base)
+		.replace(INVISIBLE, '')
+		.replace(/["<>|:*?]/g, '')
+		.replace(/^\.+/, '')
+		.trim()
+		.slice(0, 120);
 	return clean || fallback;
 }
 

@@ -5,7 +5,8 @@ import { isDbUnavailable } from './db';
 
 export function apiError(e: unknown): Response {
 	if (e instanceof WorkflowError) return json({ message: e.message, code: e.code, field: e.field ?? null }, { status: e.status });
-	if (isDbUnavailable(e)) return json({ message: 'The database cannot be reached right now. Nothing was saved; try again in a minute.', code: 'unavailable' }, { status: 503 });
+	if (isDbUnavailable(e))
+		return json({ message: 'The database cannot be reached right now. Nothing was saved; try again in a minute.', code: 'unavailable' }, { status: 503 });
 	throw e;
 }
 

@@ -16,7 +16,9 @@ export async function updateServiceSettings(next: ReviewMailSettings, actorId: n
 	return transaction(async (t) => {
 		const before = await reviewMailSettings(t);
 		const changed =
-			before.reminderIntervalMinutes !== next.reminderIntervalMinutes || before.escalateAfterReminders !== next.escalateAfterReminders || before.detail !== next.detail;
+			before.reminderIntervalMinutes !== next.reminderIntervalMinutes ||
+			before.escalateAfterReminders !== next.escalateAfterReminders ||
+			before.detail !== next.detail;
 		if (!changed) return { changed: false };
 		await saveReviewMailSettings(next, t);
 		await audit({ actorId, entity: 'settings', entityId: REVIEW_MAIL_SETTING, action: 'update', oldValue: before, newValue: next }, t);

@@ -11,7 +11,10 @@ const samples = new Map<string, number[]>();
 
 /** "SELECT passes", "INSERT audit_events", "START TRANSACTION", "COMMIT" … */
 export function statementKey(logged: string): string {
-	const sql = logged.replace(/^Execut(?:ed|ing) \([^)]*\): /, '').replace(/\s+/g, ' ').trim();
+	const sql = logged
+		.replace(/^Execut(?:ed|ing) \([^)]*\): /, '')
+		.replace(/\s+/g, ' ')
+		.trim();
 	const verb = sql.split(' ')[0]?.toUpperCase() ?? '?';
 	const table = (re: RegExp) => re.exec(sql)?.[1]?.replace(/`/g, '') ?? '?';
 	if (verb === 'SELECT') return `SELECT ${table(/\bFROM\s+`?(\w+)/i)}${/FOR UPDATE/i.test(sql) ? ' FOR UPDATE' : ''}`;
@@ -51,7 +54,13 @@ export function takeProfile(): StatementFigures[] {
 	for (const [statement, xs] of samples) {
 		const s = [...xs].sort((a, b) => a - b);
 		const total = s.reduce((n, x) => n + x, 0);
-		out.push({ statement, count: s.length, total_ms: Math.round(total * 10) / 10, mean_ms: Math.round((total / s.length) * 100) / 100, p95_ms: s[Math.min(s.length - 1, Math.floor(0.95 * s.length))] });
+		out.push({
+			statement,
+			count: s.length,
+			total_ms: Math.round(total * 10) / 10,
+			mean_ms: Math.round((total / s.length) * 100) / 100,
+			p95_ms: s[Math.min(s.length - 1, Math.floor(0.95 * s.length))]
+		});
 	}
 	samples.clear();
 	return out.sort((a, b) => b.total_ms - a.total_ms);

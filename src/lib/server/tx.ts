@@ -110,7 +110,9 @@ export async function withRetry<T>(attempt: (n: number, committing: () => void) 
 			// conflict only the other transaction's commit (milliseconds)
 			const slow = errno === 1047 || !isRetryableConflict(e);
 			const delay = Math.random() * Math.min(slow ? 2000 : 1000, (slow ? Math.max(base, 250) : base) * 2 ** n);
-			console.error(`[tx] retry ${n + 1}/${max - 1} after ${key}${atCommit ? ' at commit' : ''}${opts.label ? ` (${opts.label})` : ''}, waiting ${Math.round(delay)} ms`);
+			console.error(
+				`[tx] retry ${n + 1}/${max - 1} after ${key}${atCommit ? ' at commit' : ''}${opts.label ? ` (${opts.label})` : ''}, waiting ${Math.round(delay)} ms`
+			);
 			await sleep(delay);
 		}
 	}

@@ -55,15 +55,23 @@ export async function storeEntry(gen: string | null, user: CachedUser, client: R
 
 /** A change to the account: every cached entry of it stops being used. Throws when Redis is unreachable. */
 export async function invalidateUser(uid: number, client: Redis = redis()): Promise<void> {
-	await client.multi().incr(genKey(uid)).expire(genKey(uid), GEN_TTL).del(stateKey(uid)).exec().then((r) => {
-		const failed = r?.find(([err]) => err);
-		if (!r || failed) throw failed?.[0] ?? new Error('Redis transaction aborted');
-	});
+	await client
+		.multi()
+		.incr(genKey(uid))
+		.expire(genKey(uid), GEN_TTL)
+		.del(stateKey(uid))
+		.exec()
+		.then((r) => {
+			const failed = r?.find(([err]) => err);
+			if (!r || failed) throw failed?.[0] ?? new Error('Redis transaction aborted');
+		});
 }
 
 /** After the commit: the same, but a failure is only logged (the in-transaction one succeeded). */
 export async function invalidateUserAfterCommit(uid: number): Promise<void> {
 	await invalidateUser(uid).catch((e) =>
-		console.warn(`[session] account ${uid}: cached state not invalidated after the change (Redis: ${e instanceof Error ? e.message : e}); it expires within ${STATE_TTL} s`)
+		console.warn(
+			`[session] account ${uid}: cached state not invalidated after the change (Redis: ${e instanceof Error ? e.message : e}); it expires within ${STATE_TTL} s`
+		)
 	);
 }

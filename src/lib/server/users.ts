@@ -74,11 +74,7 @@ export async function listUsers(): Promise<User[]> {
 
 /** Active users holding a role (for assignment pickers and lead escalation). */
 export async function usersWithRole(role: Role, t?: Tx): Promise<User[]> {
-	const rows = await select<UserRow>(
-		`SELECT * FROM users WHERE active = 1 AND FIND_IN_SET(:role, roles) > 0 ORDER BY name`,
-		{ role },
-		t
-	);
+	const rows = await select<UserRow>(`SELECT * FROM users WHERE active = 1 AND FIND_IN_SET(:role, roles) > 0 ORDER BY name`, { role }, t);
 	return rows.map(toUser);
 }
 
@@ -86,11 +82,7 @@ export function hashPassword(password: string): Promise<string> {
 	return bcrypt.hash(password, Math.max(12, config.bcryptCost));
 }
 
-export async function createUser(
-	input: { email: string; name: string; roles: Role[]; password?: string },
-	actorId: number | null,
-	t?: Tx
-): Promise<number> {
+export async function createUser(input: { email: string; name: string; roles: Role[]; password?: string }, actorId: number | null, t?: Tx): Promise<number> {
 	const hash = input.password ? await hashPassword(input.password) : null;
 	const { insertId } = await exec(
 		'INSERT INTO users (email, name, roles, password_hash) VALUES (:email, :name, :roles, :hash)',
@@ -138,7 +130,11 @@ const sha256 = (s: string) => createHash('sha256').update(s).digest('hex');
 /** A one-time token for a set-password link; only its hash is stored. */
 export async function issueToken(userId: number, purpose: 'invite' | 'reset', hours: number, t?: Tx): Promise<string> {
 	const token = randomBytes(32).toString('base64url');
-	await exec('UPDATE user_tokens SET used_at = CURRENT_TIMESTAMP(3) WHERE user_id = :userId AND purpose = :purpose AND used_at IS NULL', { userId, purpose }, t);
+	await exec(
+		'UPDATE user_tokens SET used_at = CURRENT_TIMESTAMP(3) WHERE user_id = :userId AND purpose = :purpose AND used_at IS NULL',
+		{ userId, purpose },
+		t
+	);
 	await exec(
 		'INSERT INTO user_tokens (user_id, purpose, token_hash, expires_at) VALUES (:userId, :purpose, :hash, DATE_ADD(UTC_TIMESTAMP(3), INTERVAL :hours HOUR))',
 		{ userId, purpose, hash: sha256(token), hours },

@@ -1,6 +1,11 @@
 import { z } from 'zod';
 
-export const emailField = z.string().trim().toLowerCase().pipe(z.email({ message: 'Enter a valid e-mail address' })).pipe(z.string().max(254));
+export const emailField = z
+	.string()
+	.trim()
+	.toLowerCase()
+	.pipe(z.email({ message: 'Enter a valid e-mail address' }))
+	.pipe(z.string().max(254));
 
 export const signInSchema = z.object({
 	email: emailField,

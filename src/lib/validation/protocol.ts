@@ -1,10 +1,19 @@
 import { z } from 'zod';
 import { isoDateField as isoDate, optionalIsoDateField } from '../dates';
 
-const id = (what: string) => z.coerce.number({ message: `Choose ${what}` }).int().positive(`Choose ${what}`);
+const id = (what: string) =>
+	z.coerce
+		.number({ message: `Choose ${what}` })
+		.int()
+		.positive(`Choose ${what}`);
 
 export const newProtocolSchema = z.object({
-	code: z.string().trim().min(2, 'Enter the pseudonymous examinee code').max(40).regex(/^[A-Za-z0-9][A-Za-z0-9._-]*$/, 'Letters, digits, dot, dash and underscore only — no names'),
+	code: z
+		.string()
+		.trim()
+		.min(2, 'Enter the pseudonymous examinee code')
+		.max(40)
+		.regex(/^[A-Za-z0-9][A-Za-z0-9._-]*$/, 'Letters, digits, dot, dash and underscore only — no names'),
 	birthDate: optionalIsoDateField.optional(),
 	sex: z.enum(['F', 'M', 'X', '']).optional(),
 	educationYears: z.union([z.coerce.number().int().min(0, 'At least 0').max(30, 'At most 30'), z.literal('')]).optional(),

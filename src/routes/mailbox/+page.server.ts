@@ -11,7 +11,13 @@ export const load: PageServerLoad = async (event) => {
 	if (!Number.isInteger(page) || page < 1) error(400, { message: `page: "${raw}" is not a page number (1, 2, …).`, code: 'bad_request' });
 	try {
 		const { messages, total } = await listCaught(page);
-		return { messages: messages.map(({ id, receivedAt, to, cc, subject, from }) => ({ id, receivedAt, to, cc, subject, from })), total, page, perPage: MAILBOX_PAGE, down: false };
+		return {
+			messages: messages.map(({ id, receivedAt, to, cc, subject, from }) => ({ id, receivedAt, to, cc, subject, from })),
+			total,
+			page,
+			perPage: MAILBOX_PAGE,
+			down: false
+		};
 	} catch {
 		return { messages: [], total: 0, page, perPage: MAILBOX_PAGE, down: true };
 	}

@@ -10,7 +10,10 @@ export const load: PageServerLoad = async (event) => {
 	requireRole(event, 'admin');
 	const s = await serviceSettings();
 	return {
-		form: await superValidate({ reminder_interval_minutes: s.reminderIntervalMinutes, escalate_after_reminders: s.escalateAfterReminders, detail: s.detail }, zod4(serviceSettingsSchema))
+		form: await superValidate(
+			{ reminder_interval_minutes: s.reminderIntervalMinutes, escalate_after_reminders: s.escalateAfterReminders, detail: s.detail },
+			zod4(serviceSettingsSchema)
+		)
 	};
 };
 

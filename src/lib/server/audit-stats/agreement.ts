@@ -137,7 +137,13 @@ export async function agreementByField(f: AuditFilters): Promise<AgreementRow[]>
 		...split.days.map((d) => query('agreement_daily', 'day', d))
 	]);
 	const rows = parts.flat();
-	return FIELDS.map((field) => ({ field, ...statsOf(rows.filter((r) => r.field === field), field) })).filter((r) => r.n + r.one_sided > 0);
+	return FIELDS.map((field) => ({
+		field,
+		...statsOf(
+			rows.filter((r) => r.field === field),
+			field
+		)
+	})).filter((r) => r.n + r.one_sided > 0);
 }
 
 export interface PairRow extends AgreementStats {

@@ -132,7 +132,11 @@ export async function kindRates(f: AuditFilters, names: Names): Promise<KindRow[
 	]);
 	const scorerIds = [...new Set([...[...fields.keys()].map((k) => Number(k.split('|')[0])), ...errs.map((r) => Number(r.scorer_id))])];
 	const count = new Map(errs.map((r) => [`${r.scorer_id}|${r.kind}`, num(r.errors)]));
-	const kinds = f.kind ? [f.kind] : ([...KINDS] as string[]).filter((k) => errs.some((r) => r.kind === k)).concat(errs.map((r) => r.kind).filter((k) => !(KINDS as readonly string[]).includes(k)));
+	const kinds = f.kind
+		? [f.kind]
+		: ([...KINDS] as string[])
+				.filter((k) => errs.some((r) => r.kind === k))
+				.concat(errs.map((r) => r.kind).filter((k) => !(KINDS as readonly string[]).includes(k)));
 	const uniqueKinds = [...new Set(kinds)];
 	const totalFields = scorerIds.reduce((s, id) => s + (fields.get(`${id}|`)?.fields ?? 0), 0);
 	const rows: KindRow[] = [];
@@ -141,7 +145,13 @@ export async function kindRates(f: AuditFilters, names: Names): Promise<KindRow[
 		for (const id of scorerIds) {
 			const e = count.get(`${id}|${kind}`) ?? 0;
 			all += e;
-			rows.push({ scorer_id: id, scorer: names.scorers.get(id) ?? `#${id}`, kind, kind_name: kindName(kind), ...rateCells(e, fields.get(`${id}|`)?.fields ?? 0) });
+			rows.push({
+				scorer_id: id,
+				scorer: names.scorers.get(id) ?? `#${id}`,
+				kind,
+				kind_name: kindName(kind),
+				...rateCells(e, fields.get(`${id}|`)?.fields ?? 0)
+			});
 		}
 		rows.push({ scorer_id: null, scorer: 'All scorers', kind, kind_name: kindName(kind), ...rateCells(all, totalFields) });
 	}
@@ -176,10 +186,7 @@ export async function groupRates(f: AuditFilters, names: Names, by: 'test' | 'do
 		]);
 	} else {
 		const col = by === 'test' ? 'd.test_code' : 'd.domain';
-		denoms = await select(
-			`SELECT d.scorer_id, ${col} AS g, SUM(d.fields_entered) AS fields FROM audit_daily d ${wf.sql} GROUP BY d.scorer_id, g`,
-			wf.params
-		);
+		denoms = await select(`SELECT d.scorer_id, ${col} AS g, SUM(d.fields_entered) AS fields FROM audit_daily d ${wf.sql} GROUP BY d.scorer_id, g`, wf.params);
 	}
 	const fields = new Map(denoms.map((r) => [`${r.scorer_id}|${r.g}`, num(r.fields)]));
 	const count = new Map(errs.map((r) => [`${r.scorer_id}|${r.g}`, num(r.errors)]));
@@ -239,8 +246,19 @@ export async function weekRates(f: AuditFilters, names: Names): Promise<WeekRow[
 		fieldsByScorer(f, true)
 	]);
 	const count = new Map(errs.map((r) => [`${r.scorer_id}|${dayString(r.week)}`, num(r.errors)]));
-	const keys = new Set<string>([...count.keys(), ...[...fields.keys()].map((k) => { const [id, wk] = k.split('|'); return `${id}|${dayString(wk)}`; })]);
-	const fieldMap = new Map([...fields].map(([k, v]) => { const [id, wk] = k.split('|'); return [`${id}|${dayString(wk)}`, v.fields]; }));
+	const keys = new Set<string>([
+		...count.keys(),
+		...[...fields.keys()].map((k) => {
+			const [id, wk] = k.split('|');
+			return `${id}|${dayString(wk)}`;
+		})
+	]);
+	const fieldMap = new Map(
+		[...fields].map(([k, v]) => {
+			const [id, wk] = k.split('|');
+			return [`${id}|${dayString(wk)}`, v.fields];
+		})
+	);
 	const rows: WeekRow[] = [];
 	const totals = new Map<string, { e: number; n: number }>();
 	for (const k of keys) {

@@ -35,7 +35,10 @@ const schema = z
 		to: isoDate.optional(),
 		scorer: id('scorer').optional(),
 		battery: id('battery').optional(),
-		test: z.string().regex(/^[a-z0-9][a-z0-9._-]{0,39}$/, 'Use a test code from the catalog (lower-case letters, digits, - . _).').optional(),
+		test: z
+			.string()
+			.regex(/^[a-z0-9][a-z0-9._-]{0,39}$/, 'Use a test code from the catalog (lower-case letters, digits, - . _).')
+			.optional(),
 		kind: z.enum(KINDS, { error: `Use one of the kinds: ${KINDS.join(', ')}.` }).optional(),
 		field: z.enum(FIELDS as unknown as [Field, ...Field[]], { error: `Use one of the fields: ${FIELDS.join(', ')}.` }).optional(),
 		format: z.enum(['json', 'csv'], { error: 'Use format=json or format=csv.' }).optional()

@@ -156,7 +156,12 @@ const REPORTS = {
 		const rows = await agreementByScorerPair(f, await loadNames());
 		return {
 			title: `Agreement by scorer pair (${f.field})`,
-			columns: [{ key: 'first_scorer', label: 'First pass' }, { key: 'second_scorer', label: 'Second pass' }, { key: 'field', label: 'Field' }, ...AGREEMENT_COLUMNS],
+			columns: [
+				{ key: 'first_scorer', label: 'First pass' },
+				{ key: 'second_scorer', label: 'Second pass' },
+				{ key: 'field', label: 'Field' },
+				...AGREEMENT_COLUMNS
+			],
 			rows: rows.map(flattenIcc),
 			meta: { bands: { kappa: LANDIS_KOCH_1977, icc: KOO_LI_2016 } },
 			notes: agreementNotes(f)
@@ -192,7 +197,9 @@ const REPORTS = {
 				{ key: 'reviewer', label: 'Reviewer' }
 			],
 			rows: rows.map((r) => ({ ...r, field_name: FIELD_LABELS[String(r.field)] ?? r.field, kind_name: kindName(String(r.kind)) })),
-			notes: ['Errors charged where the kept value contradicts the recomputation: the charge rests on the reviewer’s note, not on the arithmetic. A lead can check each against the record form.']
+			notes: [
+				'Errors charged where the kept value contradicts the recomputation: the charge rests on the reviewer’s note, not on the arithmetic. A lead can check each against the record form.'
+			]
 		};
 	},
 	'bland-altman': async (f) => {
@@ -206,7 +213,10 @@ const REPORTS = {
 			],
 			rows: r.points,
 			meta: { field: r.field, n: r.n, bias: r.bias, sd: r.sd, lower: r.lower, upper: r.upper },
-			notes: ['Limits of agreement: bias ± 1.96 SD of the differences (Bland & Altman 1986). Identical pairs are drawn as one point; its size shows how many.', ...agreementNotes(f)]
+			notes: [
+				'Limits of agreement: bias ± 1.96 SD of the differences (Bland & Altman 1986). Identical pairs are drawn as one point; its size shows how many.',
+				...agreementNotes(f)
+			]
 		};
 	}
 } satisfies Record<string, Builder>;

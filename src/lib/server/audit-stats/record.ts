@@ -69,11 +69,7 @@ async function domainsFor(codes: string[], t: Transaction): Promise<Map<string, 
  * scorer entered) and one agreement_pairs row per test × field that either pass entered.
  */
 export async function recordSubmission(protocolId: number, round: number, t: Transaction): Promise<void> {
-	const protocol = await selectOne<{ battery_id: number }>(
-		'SELECT battery_id FROM protocols WHERE id = :protocolId',
-		{ protocolId },
-		t
-	);
+	const protocol = await selectOne<{ battery_id: number }>('SELECT battery_id FROM protocols WHERE id = :protocolId', { protocolId }, t);
 	if (!protocol) throw new Error(`recordSubmission: protocol ${protocolId} does not exist`);
 	const passes = await select<PassRow>(
 		`SELECT id, which, scorer_id, status, scores, fields_entered, submitted_at FROM passes
@@ -111,13 +107,39 @@ export async function recordSubmission(protocolId: number, round: number, t: Tra
 	for (const pass of [first, second]) {
 		const scores = pass === first ? s1 : s2;
 		// the whole pass: the workflow's own count is the denominator of the overall rates
-		fieldRows.push([pass.id, '', protocolId, round, pass.which, pass.scorer_id, protocol.battery_id, '', Number(pass.fields_entered) || 0, 0, 0, enteredAt(pass)]);
+		fieldRows.push([
+			pass.id,
+			'',
+			protocolId,
+			round,
+			pass.which,
+			pass.scorer_id,
+			protocol.battery_id,
+			'',
+			Number(pass.fields_entered) || 0,
+			0,
+			0,
+			enteredAt(pass)
+		]);
 		for (const code of Object.keys(scores)) {
 			const values = scores[code] ?? {};
 			const raw = isEntered(values.raw) ? 1 : 0;
 			const derived = FIELDS.filter((f) => f !== 'raw' && isEntered(values[f])).length;
 			if (raw + derived === 0) continue;
-			fieldRows.push([pass.id, code, protocolId, round, pass.which, pass.scorer_id, protocol.battery_id, domains.get(code) ?? 'unknown', raw + derived, raw, derived, enteredAt(pass)]);
+			fieldRows.push([
+				pass.id,
+				code,
+				protocolId,
+				round,
+				pass.which,
+				pass.scorer_id,
+				protocol.battery_id,
+				domains.get(code) ?? 'unknown',
+				raw + derived,
+				raw,
+				derived,
+				enteredAt(pass)
+			]);
 		}
 	}
 	const pairRows: unknown[][] = [];
@@ -145,23 +167,40 @@ export async function recordSubmission(protocolId: number, round: number, t: Tra
 			]);
 		}
 	}
-	await insertMany(
-		'audit_fields',
-		AUDIT_FIELDS_COLUMNS,
-		fieldRows,
-		t
-	);
-	await insertMany(
-		'agreement_pairs',
-		AGREEMENT_PAIRS_COLUMNS,
-		pairRows,
-		t
-	);
+	await insertMany('audit_fields', AUDIT_FIELDS_COLUMNS, fieldRows, t);
+	await insertMany('agreement_pairs', AGREEMENT_PAIRS_COLUMNS, pairRows, t);
 	await applyToDaily({ protocolId, round }, 1, t);
 }
 
-export const AUDIT_FIELDS_COLUMNS = ['pass_id', 'test_code', 'protocol_id', 'round', 'which', 'scorer_id', 'battery_id', 'domain', 'fields_entered', 'raw_fields', 'derived_fields', 'entered_at'];
-export const AGREEMENT_PAIRS_COLUMNS = ['protocol_id', 'round', 'battery_id', 'test_code', 'domain', 'field', 'first_scorer_id', 'second_scorer_id', 'first_value', 'second_value', 'first_label', 'second_label', 'entered_at'];
+export const AUDIT_FIELDS_COLUMNS = [
+	'pass_id',
+	'test_code',
+	'protocol_id',
+	'round',
+	'which',
+	'scorer_id',
+	'battery_id',
+	'domain',
+	'fields_entered',
+	'raw_fields',
+	'derived_fields',
+	'entered_at'
+];
+export const AGREEMENT_PAIRS_COLUMNS = [
+	'protocol_id',
+	'round',
+	'battery_id',
+	'test_code',
+	'domain',
+	'field',
+	'first_scorer_id',
+	'second_scorer_id',
+	'first_value',
+	'second_value',
+	'first_label',
+	'second_label',
+	'entered_at'
+];
 
 const BOTH = '(g.first_value IS NOT NULL AND g.second_value IS NOT NULL)';
 const MEASURES: Array<[string, string]> = [

@@ -84,7 +84,10 @@ const mondayOf = (iso: string) => addDays(iso, -((new Date(`${iso}T00:00:00Z`).g
  * Split a date range into the whole ISO weeks inside it (week starts, inclusive; null = open) and
  * the edge days outside them, so whole weeks come from the weekly sums.
  */
-export function splitRange(from: string | null, to: string | null): { weeks: { from: string | null; to: string | null } | null; days: Array<{ from: string | null; to: string | null }> } {
+export function splitRange(
+	from: string | null,
+	to: string | null
+): { weeks: { from: string | null; to: string | null } | null; days: Array<{ from: string | null; to: string | null }> } {
 	const firstWeek = from ? (mondayOf(from) === from ? from : addDays(mondayOf(from), 7)) : null;
 	// the last week that ends on or before `to`
 	const lastWeek = to ? (mondayOf(addDays(to, 1)) === addDays(to, 1) ? mondayOf(to) : addDays(mondayOf(to), -7)) : null;

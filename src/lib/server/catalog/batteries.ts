@@ -34,7 +34,10 @@ export interface CompositeRecord extends CompositeInput {
 /** Every battery's composites by code and name (the norm editor's list). */
 export async function listAllComposites(tx?: Tx): Promise<{ code: string; name: string }[]> {
 	const { Composite } = models();
-	return (await Composite.findAll({ attributes: ['code', 'name'], order: [['code', 'ASC']], transaction: tx ?? undefined })).map((c) => ({ code: c.code, name: c.name }));
+	return (await Composite.findAll({ attributes: ['code', 'name'], order: [['code', 'ASC']], transaction: tx ?? undefined })).map((c) => ({
+		code: c.code,
+		name: c.name
+	}));
 }
 
 export async function listComposites(batteryId: number, tx?: Tx): Promise<CompositeRecord[]> {
@@ -75,7 +78,11 @@ export async function listBatteries(tx?: Tx): Promise<BatterySummary[]> {
 export async function getBattery(id: number, tx?: Tx): Promise<BatteryRecord | null> {
 	const r = await selectOne<Record<string, unknown>>(`${SUMMARY} WHERE b.id = :id GROUP BY b.id`, { id }, tx);
 	if (!r) return null;
-	const order = await select<{ test_code: string; position: number }>('SELECT test_code, position FROM battery_tests WHERE battery_id = :id ORDER BY position', { id }, tx);
+	const order = await select<{ test_code: string; position: number }>(
+		'SELECT test_code, position FROM battery_tests WHERE battery_id = :id ORDER BY position',
+		{ id },
+		tx
+	);
 	const tests = new Map((await listTests({}, tx)).map((t) => [t.code, t]));
 	const domainNames = new Map((await select<{ code: string; name: string }>('SELECT code, name FROM domains', {}, tx)).map((d) => [d.code, d.name]));
 	const items = order.flatMap((o) => {
@@ -109,7 +116,9 @@ function parse(input: unknown): BatteryInput {
 async function checkRefs(b: BatteryInput, tr: Tx) {
 	if (b.norm_set_id !== null && !(await selectOne('SELECT id FROM norm_sets WHERE id = :id', { id: b.norm_set_id }, tr)))
 		throw new CatalogError(400, 'Unknown norm set.', { norm_set_id: 'Choose a norm set from the list' });
-	const known = new Set((await select<{ code: string }>('SELECT code FROM tests WHERE is_current = 1 AND code IN (:codes)', { codes: b.tests }, tr)).map((r) => r.code));
+	const known = new Set(
+		(await select<{ code: string }>('SELECT code FROM tests WHERE is_current = 1 AND code IN (:codes)', { codes: b.tests }, tr)).map((r) => r.code)
+	);
 	const unknown = b.tests.filter((c) => !known.has(c));
 	if (unknown.length) throw new CatalogError(400, 'Unknown tests.', { tests: `Unknown test code${unknown.length > 1 ? 's' : ''}: ${unknown.join(', ')}` });
 }
@@ -129,13 +138,20 @@ async function checkComposites(batteryId: number | null, b: BatteryInput, tr: Tx
 		const key = `composites.${i}`;
 		if (codes.has(c.code)) throw new CatalogError(400, `Composite ${c.code} is defined twice.`, { [key]: `The code ${c.code} appears twice` });
 		codes.add(c.code);
-		if (testCodes.has(c.code)) throw new CatalogError(400, `Composite ${c.code}: a test has this code; composites and tests need different codes.`, { [key]: `The code ${c.code} is a test's` });
+		if (testCodes.has(c.code))
+			throw new CatalogError(400, `Composite ${c.code}: a test has this code; composites and tests need different codes.`, {
+				[key]: `The code ${c.code} is a test's`
+			});
 		const other = taken.find((t) => t.code === c.code && t.battery_id !== batteryId);
-		if (other) throw new CatalogError(409, `Composite ${c.code}: another battery has a composite with this code.`, { [key]: `The code ${c.code} is taken` }, 'conflict');
+		if (other)
+			throw new CatalogError(409, `Composite ${c.code}: another battery has a composite with this code.`, { [key]: `The code ${c.code} is taken` }, 'conflict');
 		for (const part of c.parts) {
-			if (!b.tests.includes(part)) throw new CatalogError(400, `Composite ${c.code}: part ${part} is not a test of this battery.`, { [key]: `Part ${part} is not in the battery` });
+			if (!b.tests.includes(part))
+				throw new CatalogError(400, `Composite ${c.code}: part ${part} is not a test of this battery.`, { [key]: `Part ${part} is not in the battery` });
 			if (!testCodes.get(part)?.includes(c.part_field))
-				throw new CatalogError(400, `Composite ${c.code}: part ${part} does not report the ${c.part_field} score the composite sums.`, { [key]: `Part ${part} does not report ${c.part_field}` });
+				throw new CatalogError(400, `Composite ${c.code}: part ${part} does not report the ${c.part_field} score the composite sums.`, {
+					[key]: `Part ${part} does not report ${c.part_field}`
+				});
 		}
 	}
 }
@@ -145,14 +161,24 @@ async function writeComposites(batteryId: number, b: BatteryInput, tr: Tx) {
 	const { Composite } = models();
 	await Composite.destroy({ where: { battery_id: batteryId }, transaction: tr ?? undefined });
 	await Composite.bulkCreate(
-		b.composites.map((c, i) => ({ battery_id: batteryId, code: c.code, name: c.name, position: i + 1, part_field: c.part_field, parts: c.parts, reported: c.reported.join(','), reliability: c.reliability })),
+		b.composites.map((c, i) => ({
+			battery_id: batteryId,
+			code: c.code,
+			name: c.name,
+			position: i + 1,
+			part_field: c.part_field,
+			parts: c.parts,
+			reported: c.reported.join(','),
+			reliability: c.reliability
+		})),
 		{ transaction: tr ?? undefined }
 	);
 }
 
 async function writeTests(id: number, tests: string[], tr: Tx) {
 	await exec('DELETE FROM battery_tests WHERE battery_id = :id', { id }, tr);
-	for (const [i, code] of tests.entries()) await exec('INSERT INTO battery_tests (battery_id, test_code, position) VALUES (:id, :code, :pos)', { id, code, pos: i + 1 }, tr);
+	for (const [i, code] of tests.entries())
+		await exec('INSERT INTO battery_tests (battery_id, test_code, position) VALUES (:id, :code, :pos)', { id, code, pos: i + 1 }, tr);
 }
 
 /** Tests are stored in the order given, grouped by domain (a domain's tests stay together, in the order its first test appears). */
@@ -170,7 +196,11 @@ export async function createBattery(input: unknown, actorId: number | null): Pro
 		await checkRefs(b, tr);
 		await checkComposites(null, b, tr);
 		const domainOf = await domainLookup(tr);
-		const r = await exec('INSERT INTO batteries (code, name, description, norm_set_id) VALUES (:code, :name, :description, :norm_set_id)', { ...b, description: b.description || null }, tr);
+		const r = await exec(
+			'INSERT INTO batteries (code, name, description, norm_set_id) VALUES (:code, :name, :description, :norm_set_id)',
+			{ ...b, description: b.description || null },
+			tr
+		);
 		await writeTests(r.insertId, groupByDomain(b.tests, domainOf), tr);
 		await writeComposites(r.insertId, b, tr);
 		await audit({ actorId, entity: 'battery', entityId: r.insertId, action: 'create', newValue: b }, tr);
@@ -179,7 +209,9 @@ export async function createBattery(input: unknown, actorId: number | null): Pro
 }
 
 async function domainLookup(tr: Tx): Promise<(c: string) => string> {
-	const m = new Map((await select<{ code: string; domain: string }>('SELECT code, domain FROM tests WHERE is_current = 1', {}, tr)).map((r) => [r.code, r.domain]));
+	const m = new Map(
+		(await select<{ code: string; domain: string }>('SELECT code, domain FROM tests WHERE is_current = 1', {}, tr)).map((r) => [r.code, r.domain])
+	);
 	return (c) => m.get(c) ?? '';
 }
 
@@ -194,10 +226,24 @@ export async function updateBattery(id: number, input: unknown, actorId: number 
 		await checkRefs(b, tr);
 		await checkComposites(id, { ...b, composites: b.composites ?? old.composites }, tr);
 		const domainOf = await domainLookup(tr);
-		await exec('UPDATE batteries SET code = :code, name = :name, description = :description, norm_set_id = :norm_set_id WHERE id = :id', { ...b, description: b.description || null, id }, tr);
+		await exec(
+			'UPDATE batteries SET code = :code, name = :name, description = :description, norm_set_id = :norm_set_id WHERE id = :id',
+			{ ...b, description: b.description || null, id },
+			tr
+		);
 		await writeTests(id, groupByDomain(b.tests, domainOf), tr);
 		await writeComposites(id, b, tr);
-		await audit({ actorId, entity: 'battery', entityId: id, action: 'update', oldValue: { ...old, items: old.items.map((i) => i.code), domains: undefined }, newValue: b }, tr);
+		await audit(
+			{
+				actorId,
+				entity: 'battery',
+				entityId: id,
+				action: 'update',
+				oldValue: { ...old, items: old.items.map((i) => i.code), domains: undefined },
+				newValue: b
+			},
+			tr
+		);
 		return (await getBattery(id, tr))!;
 	});
 }

@@ -5,7 +5,16 @@
  */
 import { select, transaction } from '../db';
 import { audit } from '../audit';
-import { normEquationsToCsv, normGroupsToCsv, normTablesToCsv, testsToCsv, type CsvKind, type PreviewResult, type SubjectSpan, type ValidationContext } from '../../catalog/csv';
+import {
+	normEquationsToCsv,
+	normGroupsToCsv,
+	normTablesToCsv,
+	testsToCsv,
+	type CsvKind,
+	type PreviewResult,
+	type SubjectSpan,
+	type ValidationContext
+} from '../../catalog/csv';
 import { validateCsvText } from '../../catalog/parse';
 import type { ImportConfirm, NormGroupInput, TestInput } from '../../catalog/schema';
 import { CatalogError, notFoundError } from './errors';
@@ -45,7 +54,9 @@ function refuse(result: PreviewResult): never {
 	const first = result.fileErrors[0] ?? result.errors[0]?.message ?? 'The file has problems.';
 	throw new CatalogError(
 		422,
-		result.fileErrors.length ? first : `${result.errorCount} problem${result.errorCount === 1 ? '' : 's'} in ${result.badLines} row${result.badLines === 1 ? '' : 's'}; nothing was imported. First: line ${result.errors[0]?.line}: ${first}`,
+		result.fileErrors.length
+			? first
+			: `${result.errorCount} problem${result.errorCount === 1 ? '' : 's'} in ${result.badLines} row${result.badLines === 1 ? '' : 's'}; nothing was imported. First: line ${result.errors[0]?.line}: ${first}`,
 		{ csv: first },
 		'csv_invalid',
 		{ preview: result }
@@ -73,7 +84,8 @@ export async function confirmImport(req: ImportConfirm, actorId: number | null):
 						out.created!++;
 					}
 				} catch (e) {
-					if (e instanceof CatalogError) throw new CatalogError(e.status === 404 ? 422 : e.status, `Line ${line}: ${e.message} Nothing was imported.`, e.fields, e.code);
+					if (e instanceof CatalogError)
+						throw new CatalogError(e.status === 404 ? 422 : e.status, `Line ${line}: ${e.message} Nothing was imported.`, e.fields, e.code);
 					throw e;
 				}
 			}
@@ -90,8 +102,18 @@ export async function confirmImport(req: ImportConfirm, actorId: number | null):
 			if (!(await getNormSet(req.target.id, tr))) throw notFoundError('This norm set');
 			setId = req.target.id;
 		}
-		const r = await replaceNormGroups(setId, groups.map(({ line, ...g }) => ({ ...g, label: `Line ${line} (${what} ${g.group_code} of ${g.test_code})` })), tr);
-		const out: ImportOutcome = { kind: req.kind, rows: req.kind === 'tables' ? groups.reduce((n, g) => n + (g.rows?.length ?? 0), 0) : groups.length, normSetId: setId, created: r.added, removed: r.removed };
+		const r = await replaceNormGroups(
+			setId,
+			groups.map(({ line, ...g }) => ({ ...g, label: `Line ${line} (${what} ${g.group_code} of ${g.test_code})` })),
+			tr
+		);
+		const out: ImportOutcome = {
+			kind: req.kind,
+			rows: req.kind === 'tables' ? groups.reduce((n, g) => n + (g.rows?.length ?? 0), 0) : groups.length,
+			normSetId: setId,
+			created: r.added,
+			removed: r.removed
+		};
 		await audit({ actorId, entity: 'catalog_import', entityId: setId, action: 'import', newValue: out }, tr);
 		return out;
 	});

@@ -77,8 +77,8 @@ export function rowToGroup(r: Record<string, unknown>, rows: TableRowInput[] | n
 		form,
 		scale: (r.scale as NormGroupRecord['scale']) ?? null,
 		intercept: n(r.intercept),
-		coefficients: r.coefficients ? (typeof r.coefficients === 'string' ? JSON.parse(r.coefficients) : r.coefficients) as Coefficients : null,
-		rows: form === 'table' ? rows ?? [] : null,
+		coefficients: r.coefficients ? ((typeof r.coefficients === 'string' ? JSON.parse(r.coefficients) : r.coefficients) as Coefficients) : null,
+		rows: form === 'table' ? (rows ?? []) : null,
 		group_code: String(r.group_code),
 		age_min_months: Number(r.age_min_months),
 		age_max_months: Number(r.age_max_months),
@@ -96,7 +96,14 @@ export async function tableRowsOf(groupIds: number[], tx?: Tx): Promise<Map<numb
 	const out = new Map<number, TableRowInput[]>();
 	if (!groupIds.length) return out;
 	const { NormTableRow } = models();
-	const rows = await NormTableRow.findAll({ where: { norm_group_id: groupIds }, order: [['norm_group_id', 'ASC'], ['position', 'ASC']], transaction: tx ?? undefined });
+	const rows = await NormTableRow.findAll({
+		where: { norm_group_id: groupIds },
+		order: [
+			['norm_group_id', 'ASC'],
+			['position', 'ASC']
+		],
+		transaction: tx ?? undefined
+	});
 	for (const r of rows) {
 		const list = out.get(r.norm_group_id) ?? [];
 		list.push({ lo: Number(r.lo), hi: Number(r.hi), score: r.score, percentile: r.percentile });
@@ -169,7 +176,11 @@ export async function updateNormSet(id: number, input: unknown, actorId: number 
 		if (!old) throw notFoundError('This norm set');
 		const clash = await selectOne('SELECT id FROM norm_sets WHERE code = :code AND version = :version AND id <> :id', { ...s, id }, tr);
 		if (clash) throw new CatalogError(409, 'That norm set version already exists.', { version: `${s.code} version ${s.version} already exists` }, 'conflict');
-		await exec('UPDATE norm_sets SET code = :code, name = :name, source = :source, version = :version, age_rule = :rule, covariate_age = :covariate_age WHERE id = :id', { ...s, rule: JSON.stringify(ageRuleOf(s)), id }, tr);
+		await exec(
+			'UPDATE norm_sets SET code = :code, name = :name, source = :source, version = :version, age_rule = :rule, covariate_age = :covariate_age WHERE id = :id',
+			{ ...s, rule: JSON.stringify(ageRuleOf(s)), id },
+			tr
+		);
 		await audit({ actorId, entity: 'norm_set', entityId: id, action: 'update', oldValue: old, newValue: s }, tr);
 		return (await getNormSet(id, tr))!;
 	};
@@ -194,7 +205,16 @@ export async function updateNormSetWithGroups(
 			const now = (await getNormSet(id, tr))!;
 			await updateNormSet(
 				id,
-				{ code: now.code, name: now.name, source: now.source, version: now.version, borrow_days: String(now.age_rule.borrowDays), rounding: now.age_rule.rounding, covariate_age: now.covariate_age, ...meta },
+				{
+					code: now.code,
+					name: now.name,
+					source: now.source,
+					version: now.version,
+					borrow_days: String(now.age_rule.borrowDays),
+					rounding: now.age_rule.rounding,
+					covariate_age: now.covariate_age,
+					...meta
+				},
 				actorId,
 				tr
 			);
@@ -202,7 +222,11 @@ export async function updateNormSetWithGroups(
 		if (groups) {
 			// unknown test or composite codes and bad norm forms are refused by replaceNormGroups (checkForms)
 			assertRanges(groups.map((g, i) => ({ ...g, label: `groups[${i}] (${g.group_code})` })));
-			const r = await replaceNormGroups(id, groups.map((g, i) => ({ ...g, label: `groups[${i}] (${g.test_code} ${g.group_code})` })), tr);
+			const r = await replaceNormGroups(
+				id,
+				groups.map((g, i) => ({ ...g, label: `groups[${i}] (${g.test_code} ${g.group_code})` })),
+				tr
+			);
 			await audit({ actorId, entity: 'norm_set', entityId: id, action: 'replace_groups', newValue: r }, tr);
 		}
 		return { normSet: (await getNormSet(id, tr))!, groups: await listNormGroups(id, {}, tr) };
@@ -306,13 +330,20 @@ export async function checkForms<G extends NormGroupInput>(groups: readonly (G &
 			if (s.subject === 'test' && g.scale === 'percentile' && s.reported.some((f) => f !== 'percentile'))
 				problems.push(`${name}: a percentile-only table fits only a test that reports the percentile alone (${g.test_code} reports ${s.reported.join(', ')})`);
 			const bounds = g.scale === 'percentile' ? null : (s.bounds?.[g.scale] ?? null);
-			for (const p of tableProblems(g.rows, s.span, g.scale, bounds, s.subject === 'composite' ? 'sum' : 'raw')) problems.push(`${name}, ${p.message.charAt(0).toLowerCase()}${p.message.slice(1)}`);
+			for (const p of tableProblems(g.rows, s.span, g.scale, bounds, s.subject === 'composite' ? 'sum' : 'raw'))
+				problems.push(`${name}, ${p.message.charAt(0).toLowerCase()}${p.message.slice(1)}`);
 		}
 		return { ...g, subject: s.subject };
 	});
 	if (problems.length) {
 		const shown = problems.slice(0, 20);
-		throw new CatalogError(422, shown.join('\n') + (problems.length > shown.length ? `\n… and ${problems.length - shown.length} more` : ''), { rows: shown[0] }, 'norm_form', { problems: shown });
+		throw new CatalogError(
+			422,
+			shown.join('\n') + (problems.length > shown.length ? `\n… and ${problems.length - shown.length} more` : ''),
+			{ rows: shown[0] },
+			'norm_form',
+			{ problems: shown }
+		);
 	}
 	return out as G[];
 }
@@ -333,7 +364,14 @@ async function writeRows(groupId: number, g: NormGroupInput, tr: Tx): Promise<vo
 	if (g.form !== 'table' || !g.rows?.length) return;
 	const { NormTableRow } = models();
 	await NormTableRow.bulkCreate(
-		g.rows.map((row, i) => ({ norm_group_id: groupId, position: i + 1, lo: row.lo, hi: row.hi, score: g.scale === 'percentile' ? null : row.score, percentile: row.percentile })),
+		g.rows.map((row, i) => ({
+			norm_group_id: groupId,
+			position: i + 1,
+			lo: row.lo,
+			hi: row.hi,
+			score: g.scale === 'percentile' ? null : row.score,
+			percentile: row.percentile
+		})),
 		{ transaction: tr ?? undefined }
 	);
 }
@@ -370,10 +408,17 @@ export async function updateNormGroup(groupId: number, input: unknown, actorId: 
 		const row = await selectOne<Record<string, unknown>>('SELECT * FROM norm_groups WHERE id = :id FOR UPDATE', { id: groupId }, tr);
 		if (!row) throw notFoundError('This norm group');
 		const old = (await withRows([row], tr))[0];
-		if (old.test_code !== g.test_code) throw new CatalogError(400, 'A norm group keeps its test.', { test_code: 'A group keeps its test; add a new group instead' });
+		if (old.test_code !== g.test_code)
+			throw new CatalogError(400, 'A norm group keeps its test.', { test_code: 'A group keeps its test; add a new group instead' });
 		const [checked] = await checkForms([g], tr);
 		const used = await groupsInUse([groupId], tr);
-		if (used) throw new CatalogError(409, `The group for ${groupWords(old)} of ${old.test_code} was used by ${used} protocol(s); make a new version of the norm set instead.`, {}, 'in_use');
+		if (used)
+			throw new CatalogError(
+				409,
+				`The group for ${groupWords(old)} of ${old.test_code} was used by ${used} protocol(s); make a new version of the norm set instead.`,
+				{},
+				'in_use'
+			);
 		const others = (await listNormGroups(old.norm_set_id, { test: g.test_code }, tr)).filter((e) => e.id !== groupId);
 		assertRanges([...others.map((e) => ({ ...e, label: label(e) })), { ...g, label: `the changed group (${groupWords(g)})` }]);
 		await exec(
@@ -397,7 +442,8 @@ export async function deleteNormGroup(groupId: number, actorId: number | null): 
 		if (!row) throw notFoundError('This norm group');
 		const old = (await withRows([row], tr))[0];
 		const used = await groupsInUse([groupId], tr);
-		if (used) throw new CatalogError(409, `The group for ${groupWords(old)} of ${old.test_code} was used by ${used} protocol(s) and cannot be removed.`, {}, 'in_use');
+		if (used)
+			throw new CatalogError(409, `The group for ${groupWords(old)} of ${old.test_code} was used by ${used} protocol(s) and cannot be removed.`, {}, 'in_use');
 		const others = (await listNormGroups(old.norm_set_id, { test: old.test_code }, tr)).filter((e) => e.id !== groupId);
 		assertRanges(others.map((e) => ({ ...e, label: label(e) })));
 		await exec('DELETE FROM norm_groups WHERE id = :id', { id: groupId }, tr);
@@ -409,7 +455,11 @@ export async function deleteNormGroup(groupId: number, actorId: number | null): 
  * Replace the groups of the given tests in a norm set by `groups` (already validated), in the
  * caller's transaction. Refused when a protocol used any group being replaced.
  */
-export async function replaceNormGroups(normSetId: number, input: readonly (NormGroupInput & { label?: string })[], tr: Tx): Promise<{ removed: number; added: number }> {
+export async function replaceNormGroups(
+	normSetId: number,
+	input: readonly (NormGroupInput & { label?: string })[],
+	tr: Tx
+): Promise<{ removed: number; added: number }> {
 	const groups = (await checkForms(input, tr)).map((g) => {
 		const { label: _l, ...rest } = g as NormGroupInput & { label?: string };
 		return rest as NormGroupInput;
@@ -418,8 +468,17 @@ export async function replaceNormGroups(normSetId: number, input: readonly (Norm
 	let removed = 0;
 	if (tests.length) {
 		const old = await select<{ id: number }>('SELECT id FROM norm_groups WHERE norm_set_id = :ns AND test_code IN (:tests)', { ns: normSetId, tests }, tr);
-		const used = await groupsInUse(old.map((o) => o.id), tr);
-		if (used) throw new CatalogError(409, `This norm set's groups for these tests were used by ${used} protocol(s); import into a new version of the norm set instead.`, {}, 'in_use');
+		const used = await groupsInUse(
+			old.map((o) => o.id),
+			tr
+		);
+		if (used)
+			throw new CatalogError(
+				409,
+				`This norm set's groups for these tests were used by ${used} protocol(s); import into a new version of the norm set instead.`,
+				{},
+				'in_use'
+			);
 		if (old.length) removed = (await exec('DELETE FROM norm_groups WHERE norm_set_id = :ns AND test_code IN (:tests)', { ns: normSetId, tests }, tr)).affected;
 	}
 	const esc = (v: unknown) => db().escape(v as string);
@@ -428,7 +487,10 @@ export async function replaceNormGroups(normSetId: number, input: readonly (Norm
 	for (let i = 0; i < plain.length; i += 1000) {
 		const values = plain
 			.slice(i, i + 1000)
-			.map((g) => `(${normSetId},${esc(g.subject ?? 'test')},${esc(g.test_code)},${esc(g.group_code)},${g.age_min_months},${g.age_max_months},${esc(g.sex)},${esc(g.edu_min)},${esc(g.edu_max)},${esc(g.mean)},${esc(g.sd)},${esc(g.n)})`)
+			.map(
+				(g) =>
+					`(${normSetId},${esc(g.subject ?? 'test')},${esc(g.test_code)},${esc(g.group_code)},${g.age_min_months},${g.age_max_months},${esc(g.sex)},${esc(g.edu_min)},${esc(g.edu_max)},${esc(g.mean)},${esc(g.sd)},${esc(g.n)})`
+			)
 			.join(',');
 		await db().query(
 			`INSERT INTO norm_groups (norm_set_id, subject, test_code, group_code, age_min_months, age_max_months, sex, edu_min, edu_max, mean, sd, n) VALUES ${values}`,
@@ -446,6 +508,10 @@ export async function replaceNormGroups(normSetId: number, input: readonly (Norm
  */
 export async function saveNormGroup(normSetId: number, input: unknown, actorId: number | null): Promise<NormGroupRecord> {
 	const g = parseGroup(input);
-	const existing = await selectOne<{ id: number }>('SELECT id FROM norm_groups WHERE norm_set_id = :ns AND test_code = :test AND group_code = :group', { ns: normSetId, test: g.test_code, group: g.group_code });
+	const existing = await selectOne<{ id: number }>('SELECT id FROM norm_groups WHERE norm_set_id = :ns AND test_code = :test AND group_code = :group', {
+		ns: normSetId,
+		test: g.test_code,
+		group: g.group_code
+	});
 	return existing ? updateNormGroup(existing.id, g, actorId) : addNormGroup(normSetId, g, actorId);
 }

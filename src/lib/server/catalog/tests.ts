@@ -109,7 +109,8 @@ export async function listDomains(tx?: Tx): Promise<DomainRecord[]> {
 }
 
 export async function createDomain(input: { code: string; name: string }, actorId: number | null): Promise<void> {
-	if (await domainExists(input.code)) throw new CatalogError(409, 'That domain already exists.', { code: `The domain ${input.code} already exists` }, 'conflict');
+	if (await domainExists(input.code))
+		throw new CatalogError(409, 'That domain already exists.', { code: `The domain ${input.code} already exists` }, 'conflict');
 	const pos = await selectOne<{ p: number | null }>('SELECT MAX(position) AS p FROM domains');
 	await exec('INSERT INTO domains (code, name, position) VALUES (:code, :name, :pos)', { ...input, pos: Number(pos?.p ?? 0) + 10 });
 	await audit({ actorId, entity: 'domain', entityId: input.code, action: 'create', newValue: input });
@@ -117,7 +118,10 @@ export async function createDomain(input: { code: string; name: string }, actorI
 
 function boundsKey(b: Bounds | null | undefined): string {
 	if (!b) return '';
-	return (['z', 'standard', 'scaled', 't', 'percentile'] as Derived[]).filter((d) => b[d]).map((d) => `${d}:${b[d]![0]},${b[d]![1]}`).join(';');
+	return (['z', 'standard', 'scaled', 't', 'percentile'] as Derived[])
+		.filter((d) => b[d])
+		.map((d) => `${d}:${b[d]![0]},${b[d]![1]}`)
+		.join(';');
 }
 
 /** Which score-altering properties differ (empty: none). */
@@ -216,7 +220,18 @@ export async function updateTest(code: string, input: unknown, actorId: number |
 		if (used) {
 			await exec('UPDATE tests SET is_current = 0 WHERE id = :id', { id: old.id }, tr);
 			const id = await insertVersion(t, old.version + 1, tr);
-			await audit({ actorId, entity: 'test', entityId: code, action: 'version', oldValue: old, newValue: { ...t, version: old.version + 1 }, reason: `changed ${changed.join(', ')} of a version used by verified protocols` }, tr);
+			await audit(
+				{
+					actorId,
+					entity: 'test',
+					entityId: code,
+					action: 'version',
+					oldValue: old,
+					newValue: { ...t, version: old.version + 1 },
+					reason: `changed ${changed.join(', ')} of a version used by verified protocols`
+				},
+				tr
+			);
 			return { test: (await getTestVersion(id, tr))!, outcome: 'version', changed: [...changed, ...other] };
 		}
 		const p = params(t);

@@ -113,7 +113,9 @@ async function deliverOnce(job: MailJob): Promise<DeliveryResult> {
 	if (claim.affected !== 1) throw new Error(`${job.key} was claimed by another worker first; retrying later`);
 	if (pauseBeforeSend > 0) await new Promise((r) => setTimeout(r, pauseBeforeSend));
 	// the hand-over to SMTP: only if the claim is still ours (the sweep may have taken a stale one back)
-	const handOver = await exec(`UPDATE mail_log SET status = 'sending', sending_at = CURRENT_TIMESTAMP(3) WHERE idempotency_key = :key AND status = 'claimed'`, { key: job.key });
+	const handOver = await exec(`UPDATE mail_log SET status = 'sending', sending_at = CURRENT_TIMESTAMP(3) WHERE idempotency_key = :key AND status = 'claimed'`, {
+		key: job.key
+	});
 	if (handOver.affected !== 1) throw new Error(`${job.key}: the claim was taken back before sending; retrying`);
 	let messageId: string | null;
 	try {
@@ -124,9 +126,12 @@ async function deliverOnce(job: MailJob): Promise<DeliveryResult> {
 	}
 	if (pauseAfterSend > 0) await new Promise((r) => setTimeout(r, pauseAfterSend));
 	// 'uncertain' too: a slow send marked by the sweep that did finish is sent after all
-	await exec(`UPDATE mail_log SET status = 'sent', sent_at = CURRENT_TIMESTAMP(3), message_id = :messageId WHERE idempotency_key = :key AND status IN ('sending','uncertain')`, {
-		key: job.key,
-		messageId
-	});
+	await exec(
+		`UPDATE mail_log SET status = 'sent', sent_at = CURRENT_TIMESTAMP(3), message_id = :messageId WHERE idempotency_key = :key AND status IN ('sending','uncertain')`,
+		{
+			key: job.key,
+			messageId
+		}
+	);
 	return 'sent';
 }

@@ -25,10 +25,7 @@ export async function enqueueMail(kind: MailKind, idempotencyKey: string, payloa
 }
 
 export async function pendingOutbox(limit = 200): Promise<OutboxRow[]> {
-	return select<OutboxRow>(
-		`SELECT id, kind, idempotency_key, payload, created_at FROM outbox WHERE dispatched_at IS NULL ORDER BY id LIMIT :limit`,
-		{ limit }
-	);
+	return select<OutboxRow>(`SELECT id, kind, idempotency_key, payload, created_at FROM outbox WHERE dispatched_at IS NULL ORDER BY id LIMIT :limit`, { limit });
 }
 
 export async function markDispatched(ids: number[]): Promise<void> {

@@ -45,7 +45,10 @@ export async function dispatchOutbox(limit = 200): Promise<number> {
 			}))
 		);
 	} catch (e) {
-		await markDispatchFailed(rows.map((r) => r.id), e instanceof Error ? e.message : String(e)).catch(() => undefined);
+		await markDispatchFailed(
+			rows.map((r) => r.id),
+			e instanceof Error ? e.message : String(e)
+		).catch(() => undefined);
 		throw e;
 	}
 	await markDispatched(rows.map((r) => r.id));

@@ -33,9 +33,14 @@ export async function sweepMail(graceMs = Number(process.env.MAIL_SWEEP_GRACE_MS
 	const r: SweepResult = { claimsTakenBack: 0, markedUncertain: 0, redispatched: 0, failed: 0 };
 
 	// 1. abandoned claims: give the rows back to the dispatcher
-	const claims = await select<{ idempotency_key: string }>(`SELECT idempotency_key FROM mail_log WHERE status = 'claimed' AND created_at < :before`, { before });
+	const claims = await select<{ idempotency_key: string }>(`SELECT idempotency_key FROM mail_log WHERE status = 'claimed' AND created_at < :before`, {
+		before
+	});
 	for (const c of claims) {
-		const { affected } = await exec(`DELETE FROM mail_log WHERE idempotency_key = :key AND status = 'claimed' AND created_at < :before`, { key: c.idempotency_key, before });
+		const { affected } = await exec(`DELETE FROM mail_log WHERE idempotency_key = :key AND status = 'claimed' AND created_at < :before`, {
+			key: c.idempotency_key,
+			before
+		});
 		if (affected === 1) {
 			await exec(`UPDATE outbox SET dispatched_at = NULL WHERE idempotency_key = :key AND failed_at IS NULL`, { key: c.idempotency_key });
 			r.claimsTakenBack++;
@@ -62,7 +67,10 @@ export async function sweepMail(graceMs = Number(process.env.MAIL_SWEEP_GRACE_MS
 		}
 		const state = await job.getState();
 		if (state === 'failed') {
-			await exec(`UPDATE outbox SET failed_at = CURRENT_TIMESTAMP(3), last_error = :e WHERE id = :id AND failed_at IS NULL`, { id: row.id, e: (job.failedReason ?? 'failed').slice(0, 500) });
+			await exec(`UPDATE outbox SET failed_at = CURRENT_TIMESTAMP(3), last_error = :e WHERE id = :id AND failed_at IS NULL`, {
+				id: row.id,
+				e: (job.failedReason ?? 'failed').slice(0, 500)
+			});
 			r.failed++;
 		}
 		// waiting, delayed, active: BullMQ has it; completed ('skipped': nothing to send): done
@@ -74,5 +82,8 @@ export async function sweepMail(graceMs = Number(process.env.MAIL_SWEEP_GRACE_MS
 
 /** A job that failed for good (every retry refused): its outbox row is marked failed, with the reason. */
 export async function markMailFailed(key: string, reason: string): Promise<void> {
-	await exec(`UPDATE outbox SET failed_at = CURRENT_TIMESTAMP(3), last_error = :reason WHERE idempotency_key = :key AND failed_at IS NULL`, { key, reason: reason.slice(0, 500) });
+	await exec(`UPDATE outbox SET failed_at = CURRENT_TIMESTAMP(3), last_error = :reason WHERE idempotency_key = :key AND failed_at IS NULL`, {
+		key,
+		reason: reason.slice(0, 500)
+	});
 }

@@ -240,14 +240,15 @@ export function passValues(d: Pick<DiscrepancyRow, 'pass' | 'value' | 'other'>):
 export function markedValues(first: string | null, second: string | null): { text: [string, string]; html: [string, string] } {
 	const segs: DiffSegment[] = charDiff(first ?? '', second ?? '');
 	const side = (drop: DiffSegment['kind']) => segs.filter((s) => s.kind !== drop);
-	const txt = (list: DiffSegment[], empty: boolean) =>
-		empty ? '(empty)' : list.map((s) => (s.kind === 'same' ? s.text : `[${s.text}]`)).join('');
+	const txt = (list: DiffSegment[], empty: boolean) => (empty ? '(empty)' : list.map((s) => (s.kind === 'same' ? s.text : `[${s.text}]`)).join(''));
 	const htm = (list: DiffSegment[], empty: boolean) =>
 		empty
 			? '<em style="color:#4a5563">empty</em>'
 			: list
 					.map((s) =>
-						s.kind === 'same' ? esc(s.text) : `<mark style="background:#f6d776;color:#1d2733;font-weight:700;padding:0 1px;border:1px solid #9a4a06;text-decoration:underline">${esc(s.text)}</mark>`
+						s.kind === 'same'
+							? esc(s.text)
+							: `<mark style="background:#f6d776;color:#1d2733;font-weight:700;padding:0 1px;border:1px solid #9a4a06;text-decoration:underline">${esc(s.text)}</mark>`
 					)
 					.join('');
 	const e1 = first === null || first === '';
@@ -291,7 +292,9 @@ function everyWords(minutes: number): string {
 export function subjectOf(c: Pick<ReviewMailContent, 'reminderNo' | 'code' | 'discrepancies' | 'escalated'>): string {
 	const n = c.discrepancies.length;
 	if (c.reminderNo === 0)
-		return n === 0 ? `Sign-off needed: protocol ${c.code} (no discrepancies)` : `Review needed: protocol ${c.code} (${plural(n, 'discrepancy', 'discrepancies')})`;
+		return n === 0
+			? `Sign-off needed: protocol ${c.code} (no discrepancies)`
+			: `Review needed: protocol ${c.code} (${plural(n, 'discrepancy', 'discrepancies')})`;
 	return `${c.escalated ? 'Escalated reminder' : 'Reminder'} ${c.reminderNo}: protocol ${c.code} has ${plural(n, 'open discrepancy', 'open discrepancies')}`;
 }
 
@@ -313,11 +316,8 @@ export function reviewMailBody(c: ReviewMailContent): { subject: string; text: s
 				: `Protocol ${c.code} is ready for review: ${plural(n, 'discrepancy needs', 'discrepancies need')} your decision.`
 			: `Reminder ${c.reminderNo}: protocol ${c.code} still has ${plural(n, 'open discrepancy', 'open discrepancies')}.`;
 	const counts = n > 0 ? countsByKind(c.discrepancies) : '';
-	const escalation = c.escalated
-		? `The leads are copied in because this protocol has had ${plural(c.reminderNo - 1, 'reminder')} without being resolved.`
-		: '';
-	const schedule =
-		n > 0 ? `Until every discrepancy is resolved, a reminder goes out ${everyWords(c.intervalMinutes)}.` : '';
+	const escalation = c.escalated ? `The leads are copied in because this protocol has had ${plural(c.reminderNo - 1, 'reminder')} without being resolved.` : '';
+	const schedule = n > 0 ? `Until every discrepancy is resolved, a reminder goes out ${everyWords(c.intervalMinutes)}.` : '';
 	const facts = [`Protocol: ${c.code}`, c.battery ? `Battery: ${c.battery}` : null, date ? `Test date: ${date}` : null].filter(Boolean) as string[];
 
 	const rows = c.discrepancies.map((d, i) => {
@@ -370,11 +370,11 @@ export function reviewMailBody(c: ReviewMailContent): { subject: string; text: s
 			? ''
 			: c.detail === 'counts'
 				? `<p>${esc(c.reminderNo === 0 ? 'Discrepancies' : 'Still open')}: ${esc(counts)}. The values are on the Review screen (this site keeps scores out of e-mail).</p>`
-			: `<table role="presentation" cellpadding="0" cellspacing="0" width="100%" style="border-collapse:collapse;margin:12px 0;font-size:13px">
+				: `<table role="presentation" cellpadding="0" cellspacing="0" width="100%" style="border-collapse:collapse;margin:12px 0;font-size:13px">
 <thead><tr><th style="${head}">#</th><th style="${head}">Test · field</th><th style="${head}">First pass</th><th style="${head}">Second pass</th><th style="${head}">Recomputed</th><th style="${head}">Kind</th></tr></thead>
 <tbody>${rows
-					.map(
-						({ d, i, m, test, field, expected }) => `<tr>
+						.map(
+							({ d, i, m, test, field, expected }) => `<tr>
 <td style="${cell}">${i + 1}</td>
 <td style="${cell}">${esc(test)}<br><span style="color:#4a5563">${esc(field)} · ${esc(PASS_WORDS[d.pass])}</span></td>
 <td style="${cell};font-family:monospace;font-size:14px">${m.html[0]}</td>
@@ -382,8 +382,8 @@ export function reviewMailBody(c: ReviewMailContent): { subject: string; text: s
 <td style="${cell};font-family:monospace;font-size:14px">${d.expected === null ? `<span style="color:#4a5563;font-family:'IBM Plex Sans',Arial,sans-serif;font-size:12px">${esc(expected)}</span>` : esc(expected)}</td>
 <td style="${cell}"><strong>${esc(kindName(d.kind))}</strong>${d.out_of_range ? ' <span style="color:#9a3412">(out of range)</span>' : ''}<br><span style="color:#4a5563;font-size:12px">${esc(kindWords(d.kind))}</span></td>
 </tr>`
-					)
-					.join('\n')}</tbody></table>
+						)
+						.join('\n')}</tbody></table>
 <p style="color:#4a5563;font-size:12px">Highlighted: the characters that differ between the two passes.</p>`;
 
 	const html = layout(
@@ -402,9 +402,7 @@ async function renderReview(raw: Record<string, unknown>): Promise<RenderedMail 
 	const settings = await reviewMailSettings();
 	const escalated = p.reminderNo > settings.escalateAfterReminders;
 	const reviewerEmail = state.reviewer.email.toLowerCase();
-	const cc = escalated
-		? [...new Set((await usersWithRole('lead')).map((u) => u.email.toLowerCase()))].filter((e) => e !== reviewerEmail)
-		: [];
+	const cc = escalated ? [...new Set((await usersWithRole('lead')).map((u) => u.email.toLowerCase()))].filter((e) => e !== reviewerEmail) : [];
 	const testDate = state.protocol.test_date instanceof Date ? state.protocol.test_date.toISOString().slice(0, 10) : String(state.protocol.test_date);
 	const body = reviewMailBody({
 		reminderNo: p.reminderNo,
@@ -518,13 +516,15 @@ export async function listProtocolMail(protocolId: number): Promise<ProtocolMail
 		{ id: protocolId }
 	);
 	return rows.map((r) => {
-		const parts = r.recipients.split(',').map((s) => s.trim()).filter(Boolean);
+		const parts = r.recipients
+			.split(',')
+			.map((s) => s.trim())
+			.filter(Boolean);
 		const cc = parts.filter((s) => s.startsWith('cc:')).map((s) => s.slice(3));
 		const to = parts.filter((s) => !s.startsWith('cc:'));
 		const k = parseReviewKey(r.idempotency_key);
 		const n = r.reminder_no ?? k?.reminderNo ?? null;
-		const label =
-			r.kind === 'review_first' ? 'First e-mail' : r.kind === 'review_reminder' ? `Reminder ${n}${cc.length ? ' (leads copied in)' : ''}` : r.kind;
+		const label = r.kind === 'review_first' ? 'First e-mail' : r.kind === 'review_reminder' ? `Reminder ${n}${cc.length ? ' (leads copied in)' : ''}` : r.kind;
 		const stale = r.status === 'sending' && Date.now() - new Date(r.created_at).getTime() > 60_000;
 		return {
 			id: r.id,

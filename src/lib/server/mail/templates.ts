@@ -4,8 +4,7 @@
  */
 import type { OutgoingMail } from './transport';
 
-export const esc = (s: unknown) =>
-	String(s ?? '').replace(/[&<>"']/g, (c) => ({ '&': '&amp;', '<': '&lt;', '>': '&gt;', '"': '&quot;', "'": '&#39;' })[c]!);
+export const esc = (s: unknown) => String(s ?? '').replace(/[&<>"']/g, (c) => ({ '&': '&amp;', '<': '&lt;', '>': '&gt;', '"': '&quot;', "'": '&#39;' })[c]!);
 
 /** Wrap an HTML body in the common message layout. */
 export function layout(title: string, bodyHtml: string): string {

@@ -3,13 +3,7 @@
  * composites). Older tables are read with the SQL helpers in ../db; new tables are born on models.
  * `models()` initialises them once against the shared connection (lazy, so importing is free).
  */
-import {
-	DataTypes,
-	Model,
-	type CreationOptional,
-	type InferAttributes,
-	type InferCreationAttributes
-} from 'sequelize';
+import { DataTypes, Model, type CreationOptional, type InferAttributes, type InferCreationAttributes } from 'sequelize';
 import { db } from '../db';
 
 /** One row of a conversion table: a raw (or sum) range and what the manual gives for it. */

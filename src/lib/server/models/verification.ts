@@ -64,8 +64,20 @@ export function verificationModels() {
 				mode: { type: DataTypes.ENUM('every', 'sampled'), allowNull: false },
 				min_fields: { type: DataTypes.INTEGER.UNSIGNED, allowNull: false },
 				window_days: { type: DataTypes.INTEGER.UNSIGNED, allowNull: false },
-				threshold_per100: { type: DataTypes.DECIMAL(6, 3), allowNull: false, get() { return Number(this.getDataValue('threshold_per100')); } },
-				probability: { type: DataTypes.DECIMAL(5, 4), allowNull: false, get() { return Number(this.getDataValue('probability')); } },
+				threshold_per100: {
+					type: DataTypes.DECIMAL(6, 3),
+					allowNull: false,
+					get() {
+						return Number(this.getDataValue('threshold_per100'));
+					}
+				},
+				probability: {
+					type: DataTypes.DECIMAL(5, 4),
+					allowNull: false,
+					get() {
+						return Number(this.getDataValue('probability'));
+					}
+				},
 				updated_by: { type: DataTypes.INTEGER.UNSIGNED, allowNull: true },
 				updated_at: { type: DataTypes.DATE(3), allowNull: false, defaultValue: DataTypes.NOW }
 			},

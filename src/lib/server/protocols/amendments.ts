@@ -29,7 +29,10 @@ import { notifyReviewStarted } from '../mail/review';
 const amendSchema = z.object({
 	test: z.string().trim().min(1, 'Choose the test').max(40),
 	field: z.enum(FIELDS as unknown as [Field, ...Field[]], { error: 'field: one of raw, z, standard, scaled, t, percentile' }),
-	value: z.union([z.string(), z.number()]).transform((v) => String(v).trim()).pipe(z.string().min(1, 'Enter the corrected value').max(12, 'at most 12 characters')),
+	value: z
+		.union([z.string(), z.number()])
+		.transform((v) => String(v).trim())
+		.pipe(z.string().min(1, 'Enter the corrected value').max(12, 'at most 12 characters')),
 	reason: z.string().trim().min(5, 'Give a reason for the amendment (at least a few words)').max(2000)
 });
 
@@ -64,11 +67,13 @@ export async function proposeAmendment(protocolId: number, user: Actor, body: un
 		const tests = await protocolTests(p.id, t);
 		const test = tests.find((x) => x.code === input.test);
 		if (!test) throw invalid(`test: this protocol has no test ${input.test}`, 'test');
-		if (input.field !== 'raw' && !test.reported.includes(input.field as DerivedField)) throw invalid(`field: ${test.name} does not report the ${FIELD_LABELS[input.field]}`, 'field');
+		if (input.field !== 'raw' && !test.reported.includes(input.field as DerivedField))
+			throw invalid(`field: ${test.name} does not report the ${FIELD_LABELS[input.field]}`, 'field');
 		const problems = checkField(test, input.field, input.value);
 		if (problems.length) throw invalid(`value: ${problems[0].message}`, 'value');
 		const old = (await finalScores(p.id, p.round, t))[test.code]?.[input.field] ?? null;
-		if (same(old, input.value, input.field)) throw invalid(`value: ${input.value} is already the verified ${FIELD_LABELS[input.field]} of ${test.name}`, 'value');
+		if (same(old, input.value, input.field))
+			throw invalid(`value: ${input.value} is already the verified ${FIELD_LABELS[input.field]} of ${test.name}`, 'value');
 		const pending = await amendments().findOne({ where: { protocol_id: p.id, status: 'requested' }, transaction: t });
 		if (pending && !isLead) throw conflict('An amendment of this protocol is already waiting for a lead’s approval.');
 		const a = await amendments().create(
@@ -86,7 +91,16 @@ export async function proposeAmendment(protocolId: number, user: Actor, body: un
 			{ transaction: t }
 		);
 		await audit(
-			{ actorId: user.id, entity: 'amendment', entityId: a.id, protocolId: p.id, action: 'amendment_requested', oldValue: { test: test.code, field: input.field, value: old }, newValue: { test: test.code, field: input.field, value: input.value }, reason: input.reason },
+			{
+				actorId: user.id,
+				entity: 'amendment',
+				entityId: a.id,
+				protocolId: p.id,
+				action: 'amendment_requested',
+				oldValue: { test: test.code, field: input.field, value: old },
+				newValue: { test: test.code, field: input.field, value: input.value },
+				reason: input.reason
+			},
 			t
 		);
 		if (!isLead) return { id: a.id, status: 'requested' as const, round: null };
@@ -103,12 +117,26 @@ export async function decideAmendment(amendmentId: number, user: Actor, body: un
 		if (!a) throw notFound('This amendment');
 		const { p, duties } = await protocolFor(a.protocol_id, user, t, true);
 		if (!duties.includes('lead')) throw notFound('This amendment');
-		if (a.status !== 'requested') throw new WorkflowError(409, `This amendment was already ${a.status === 'applied' ? 'approved' : 'refused'}.`, undefined, 'decided');
-		if (p.status !== 'verified' || p.round !== a.from_round) throw conflict('The protocol changed since this amendment was requested (reopened or amended). Refuse it and ask for a new one.');
+		if (a.status !== 'requested')
+			throw new WorkflowError(409, `This amendment was already ${a.status === 'applied' ? 'approved' : 'refused'}.`, undefined, 'decided');
+		if (p.status !== 'verified' || p.round !== a.from_round)
+			throw conflict('The protocol changed since this amendment was requested (reopened or amended). Refuse it and ask for a new one.');
 		if (input.decision === 'refuse') {
 			if (!input.note || input.note.length < 3) throw invalid('note: say why the amendment is refused', 'note');
 			await a.update({ status: 'refused', decided_by: user.id, decided_at: new Date(), decision_note: input.note }, { transaction: t });
-			await audit({ actorId: user.id, entity: 'amendment', entityId: a.id, protocolId: p.id, action: 'amendment_refused', oldValue: { status: 'requested' }, newValue: { status: 'refused' }, reason: input.note }, t);
+			await audit(
+				{
+					actorId: user.id,
+					entity: 'amendment',
+					entityId: a.id,
+					protocolId: p.id,
+					action: 'amendment_refused',
+					oldValue: { status: 'requested' },
+					newValue: { status: 'refused' },
+					reason: input.note
+				},
+				t
+			);
 			return { id: a.id, status: 'refused' as const, round: null };
 		}
 		const round = await apply(p, a, user, t, input.note ?? null);
@@ -145,10 +173,18 @@ async function apply(p: ProtocolRow, a: Amendment, actor: Actor, t: Transaction,
 		{ p: p.id, next, test: a.test_code, field: a.field },
 		t
 	);
-	const existing = await selectOne<{ id: number }>('SELECT id FROM discrepancies WHERE protocol_id = :p AND round = :next AND test_code = :test AND field = :field', { p: p.id, next, test: a.test_code, field: a.field }, t);
+	const existing = await selectOne<{ id: number }>(
+		'SELECT id FROM discrepancies WHERE protocol_id = :p AND round = :next AND test_code = :test AND field = :field',
+		{ p: p.id, next, test: a.test_code, field: a.field },
+		t
+	);
 	if (!existing) {
 		// Both passes agreed on the field: a card of its own, both passes' values against the amended one.
-		const passes = await select<{ which: 'first' | 'second'; scores: unknown }>('SELECT which, scores FROM passes WHERE protocol_id = :p AND round = :r', { p: p.id, r: next }, t);
+		const passes = await select<{ which: 'first' | 'second'; scores: unknown }>(
+			'SELECT which, scores FROM passes WHERE protocol_id = :p AND round = :r',
+			{ p: p.id, r: next },
+			t
+		);
 		const val = (w: 'first' | 'second') => {
 			const s = passes.find((x) => x.which === w)?.scores;
 			const obj = (typeof s === 'string' ? JSON.parse(s) : s) as Record<string, Partial<Record<Field, string | null>>>;
@@ -166,10 +202,20 @@ async function apply(p: ProtocolRow, a: Amendment, actor: Actor, t: Transaction,
 				expected = formatReference(a.field as DerivedField, r);
 				const pv = parseEntered(a.old_value, a.field);
 				void pv;
-				if (!same(a.old_value, expected, a.field)) kind = kindAgainst(info.test, info.groups, info.norm.group_code, rawKept!, null, a.field as DerivedField, a.old_value);
+				if (!same(a.old_value, expected, a.field))
+					kind = kindAgainst(info.test, info.groups, info.norm.group_code, rawKept!, null, a.field as DerivedField, a.old_value);
 			}
 		}
-		const pos = Number((await selectOne<{ n: number }>('SELECT COALESCE(MAX(position), 0) AS n FROM discrepancies WHERE protocol_id = :p AND round = :next', { p: p.id, next }, t))?.n ?? 0) + 1;
+		const pos =
+			Number(
+				(
+					await selectOne<{ n: number }>(
+						'SELECT COALESCE(MAX(position), 0) AS n FROM discrepancies WHERE protocol_id = :p AND round = :next',
+						{ p: p.id, next },
+						t
+					)
+				)?.n ?? 0
+			) + 1;
 		await exec(
 			`INSERT INTO discrepancies (protocol_id, round, position, test_code, field, pass, kind, value, other, expected, out_of_range)
 			 VALUES (:p, :next, :pos, :test, :field, 'both', :kind, :first, :second, :expected, 0)`,

@@ -53,7 +53,17 @@ export async function addAttachment(protocolId: number, user: Actor, file: File 
 				{ p: p.id, filename, mime: type.mime, size: bytes.length, sha: sha256, storage, uid: user.id },
 				t
 			);
-			await audit({ actorId: user.id, entity: 'attachment', entityId: insertId, protocolId: p.id, action: 'upload', newValue: { filename, mime: type.mime, size: bytes.length, sha256 } }, t);
+			await audit(
+				{
+					actorId: user.id,
+					entity: 'attachment',
+					entityId: insertId,
+					protocolId: p.id,
+					action: 'upload',
+					newValue: { filename, mime: type.mime, size: bytes.length, sha256 }
+				},
+				t
+			);
 			return { id: insertId, filename, mime: type.mime, size: bytes.length, sha256 };
 		});
 	} catch (e) {

@@ -43,7 +43,10 @@ export interface CatalogTest {
 const ORDER: DerivedField[] = ['z', 'standard', 'scaled', 't', 'percentile'];
 
 export function toCatalogTest(r: TestRow): CatalogTest {
-	const reported = r.reported.split(',').map((s) => s.trim()).filter((s): s is DerivedField => (ORDER as string[]).includes(s));
+	const reported = r.reported
+		.split(',')
+		.map((s) => s.trim())
+		.filter((s): s is DerivedField => (ORDER as string[]).includes(s));
 	return {
 		id: r.id,
 		code: r.code,
@@ -79,8 +82,30 @@ export async function batteryTests(batteryId: number, t?: Tx): Promise<CatalogTe
 }
 
 /** The tests a protocol was created with (frozen versions), in order, with the norm group chosen. */
-export async function protocolTests(protocolId: number, t?: Tx): Promise<(CatalogTest & { position: number; groupId: number | null; groupCode: string | null; groupText: string; overrideReason: string | null; normForm: string; normScale: string | null })[]> {
-	const rows = await select<TestRow & { position: number; norm_group_id: number | null; group_code: string | null; override_reason: string | null; norm_form: string | null; norm_scale: string | null } & Pick<NormGroupRow, 'age_min_months' | 'age_max_months' | 'sex' | 'edu_min' | 'edu_max'>>(
+export async function protocolTests(
+	protocolId: number,
+	t?: Tx
+): Promise<
+	(CatalogTest & {
+		position: number;
+		groupId: number | null;
+		groupCode: string | null;
+		groupText: string;
+		overrideReason: string | null;
+		normForm: string;
+		normScale: string | null;
+	})[]
+> {
+	const rows = await select<
+		TestRow & {
+			position: number;
+			norm_group_id: number | null;
+			group_code: string | null;
+			override_reason: string | null;
+			norm_form: string | null;
+			norm_scale: string | null;
+		} & Pick<NormGroupRow, 'age_min_months' | 'age_max_months' | 'sex' | 'edu_min' | 'edu_max'>
+	>(
 		`SELECT ${TEST_COLUMNS}, pt.position, pt.norm_group_id, ng.group_code, pt.override_reason,
 		        ng.age_min_months, ng.age_max_months, ng.sex, ng.edu_min, ng.edu_max, ng.form AS norm_form, ng.scale AS norm_scale
 		   FROM protocol_tests pt
@@ -97,7 +122,8 @@ export async function protocolTests(protocolId: number, t?: Tx): Promise<(Catalo
 		groupId: r.norm_group_id,
 		groupCode: r.group_code,
 		// what the group covers, for people ("ages 30;0–39;11, 13+ years of education")
-		groupText: r.group_code === null ? '—' : groupCoverage(groupDef({ ...r, test_code: r.code, id: r.norm_group_id ?? 0, mean: 0, sd: 1, n: null } as NormGroupRow)),
+		groupText:
+			r.group_code === null ? '—' : groupCoverage(groupDef({ ...r, test_code: r.code, id: r.norm_group_id ?? 0, mean: 0, sd: 1, n: null } as NormGroupRow)),
 		overrideReason: r.override_reason,
 		normForm: r.norm_form ?? 'mean_sd',
 		normScale: r.norm_scale
@@ -134,8 +160,11 @@ export async function normGroups(normSetId: number, testCodes: string[], t?: Tx)
 		{ normSetId, testCodes },
 		t
 	);
-	const tables = await tableRowsOf(rows.filter((r) => r.form === 'table').map((r) => r.id), t);
-	return rows.map((r) => ({ ...r, coefficients: jsonValue(r.coefficients) ?? null, rows: r.form === 'table' ? tables.get(r.id) ?? [] : null }));
+	const tables = await tableRowsOf(
+		rows.filter((r) => r.form === 'table').map((r) => r.id),
+		t
+	);
+	return rows.map((r) => ({ ...r, coefficients: jsonValue(r.coefficients) ?? null, rows: r.form === 'table' ? (tables.get(r.id) ?? []) : null }));
 }
 
 export const groupDef = (g: NormGroupRow): NormGroupDef => ({
@@ -156,11 +185,24 @@ export function normDef(g: NormGroupRow): AnyNormEntry {
 	const pct = (p: string | null | undefined) => (p !== null && p !== undefined && p !== '' ? { percentile: /^\d+$/.test(p) ? Number(p) : p } : {});
 	if (g.subject === 'composite') {
 		if (form === 'table')
-			return { composite: g.test_code, group: g.group_code, form: 'table', scale: g.scale!, rows: (g.rows ?? []).map((r) => ({ sum: [r.lo, r.hi] as const, score: r.score ?? undefined, ...pct(r.percentile) })) };
+			return {
+				composite: g.test_code,
+				group: g.group_code,
+				form: 'table',
+				scale: g.scale!,
+				rows: (g.rows ?? []).map((r) => ({ sum: [r.lo, r.hi] as const, score: r.score ?? undefined, ...pct(r.percentile) }))
+			};
 		return { composite: g.test_code, group: g.group_code, mean: Number(g.mean), sd: Number(g.sd) };
 	}
 	if (form === 'regression')
-		return { test: g.test_code, group: g.group_code, form: 'regression', intercept: Number(g.intercept), coefficients: (g.coefficients ?? {}) as Record<string, number>, sd: Number(g.sd) };
+		return {
+			test: g.test_code,
+			group: g.group_code,
+			form: 'regression',
+			intercept: Number(g.intercept),
+			coefficients: (g.coefficients ?? {}) as Record<string, number>,
+			sd: Number(g.sd)
+		};
 	if (form === 'table') {
 		const percentileOnly = g.scale === 'percentile';
 		return {
@@ -174,7 +216,6 @@ export function normDef(g: NormGroupRow): AnyNormEntry {
 	return { test: g.test_code, group: g.group_code, mean: Number(g.mean), sd: Number(g.sd) };
 }
 
-
 export interface CatalogComposite extends FrozenComposite {
 	position: number;
 	groupId: number | null;
@@ -186,7 +227,14 @@ export interface CatalogComposite extends FrozenComposite {
 export async function batteryComposites(batteryId: number, t?: Tx): Promise<FrozenComposite[]> {
 	const { Composite } = models();
 	const rows = await Composite.findAll({ where: { battery_id: batteryId }, order: [['position', 'ASC']], transaction: t ?? undefined });
-	return rows.map((c) => ({ code: c.code, name: c.name, parts: c.parts, part_field: c.part_field, reported: c.reported.split(',').filter(Boolean), reliability: c.reliability }));
+	return rows.map((c) => ({
+		code: c.code,
+		name: c.name,
+		parts: c.parts,
+		part_field: c.part_field,
+		reported: c.reported.split(',').filter(Boolean),
+		reliability: c.reliability
+	}));
 }
 
 /** The composites a protocol froze at creation, in report order, with their norm group. */
@@ -196,7 +244,15 @@ export async function protocolComposites(protocolId: number, t?: Tx): Promise<Ca
 	const ids = rows.map((r) => r.norm_group_id).filter((x): x is number => x !== null);
 	type G = Pick<NormGroupRow, 'id' | 'group_code' | 'test_code' | 'age_min_months' | 'age_max_months' | 'sex' | 'edu_min' | 'edu_max'>;
 	const groups = ids.length
-		? new Map((await select<G>('SELECT id, group_code, test_code, age_min_months, age_max_months, sex, edu_min, edu_max FROM norm_groups WHERE id IN (:ids)', { ids }, t)).map((g) => [g.id, g]))
+		? new Map(
+				(
+					await select<G>(
+						'SELECT id, group_code, test_code, age_min_months, age_max_months, sex, edu_min, edu_max FROM norm_groups WHERE id IN (:ids)',
+						{ ids },
+						t
+					)
+				).map((g) => [g.id, g])
+			)
 		: new Map<number, G>();
 	return rows.map((r) => {
 		const g = r.norm_group_id ? groups.get(r.norm_group_id) : undefined;
@@ -211,7 +267,12 @@ export async function protocolComposites(protocolId: number, t?: Tx): Promise<Ca
 	});
 }
 
-export const engineComposite = (c: FrozenComposite): CompositeDef => ({ id: c.code, parts: c.parts, part_field: c.part_field, reported: c.reported as CompositeField[] });
+export const engineComposite = (c: FrozenComposite): CompositeDef => ({
+	id: c.code,
+	parts: c.parts,
+	part_field: c.part_field,
+	reported: c.reported as CompositeField[]
+});
 
 export interface NormSetRow {
 	id: number;
@@ -227,5 +288,12 @@ export async function normSet(id: number, t?: Tx): Promise<(NormSetRow & { rule:
 	const row = await selectOne<NormSetRow>('SELECT id, code, name, source, version, age_rule, covariate_age FROM norm_sets WHERE id = :id', { id }, t);
 	if (!row) return null;
 	const rule = jsonValue<Partial<AgeRule>>(row.age_rule) ?? {};
-	return { ...row, rule: { borrowDays: rule.borrowDays === 'actual' ? 'actual' : 30, rounding: rule.rounding === 'round_days' ? 'round_days' : 'truncate', ...(rule.roundUpFromDay ? { roundUpFromDay: rule.roundUpFromDay } : {}) } };
+	return {
+		...row,
+		rule: {
+			borrowDays: rule.borrowDays === 'actual' ? 'actual' : 30,
+			rounding: rule.rounding === 'round_days' ? 'round_days' : 'truncate',
+			...(rule.roundUpFromDay ? { roundUpFromDay: rule.roundUpFromDay } : {})
+		}
+	};
 }

@@ -12,7 +12,6 @@ export class WorkflowError extends Error {
 	}
 }
 
-export const notFound = (what = 'This protocol') =>
-	new WorkflowError(404, `${what} does not exist or is not assigned to you.`, undefined, 'not_found');
+export const notFound = (what = 'This protocol') => new WorkflowError(404, `${what} does not exist or is not assigned to you.`, undefined, 'not_found');
 export const conflict = (message: string) => new WorkflowError(409, message, undefined, 'conflict');
 export const invalid = (message: string, field?: string) => new WorkflowError(400, message, field, 'invalid');

@@ -135,7 +135,11 @@ export async function rejudgeDerived(
 	const { test, refs, z } = info;
 	void z;
 
-	const passes = await select<{ which: 'first' | 'second'; scores: unknown }>('SELECT which, scores FROM passes WHERE protocol_id = :p AND round = :r', { p: p.id, r: p.round }, t);
+	const passes = await select<{ which: 'first' | 'second'; scores: unknown }>(
+		'SELECT which, scores FROM passes WHERE protocol_id = :p AND round = :r',
+		{ p: p.id, r: p.round },
+		t
+	);
 	const scoresOf = (w: 'first' | 'second') => (jsonValue<Scores>(passes.find((x) => x.which === w)?.scores) ?? {})[testCode] ?? {};
 	const first = scoresOf('first');
 	const second = scoresOf('second');
@@ -148,8 +152,10 @@ export async function rejudgeDerived(
 	void refsSecond;
 	// the other pass's raw score (rule 5): a value right for it is still named so after the decision
 	const altRawFor = (pass: 'first' | 'second' | 'both') => (pass === 'first' ? (second.raw ?? null) : pass === 'second' ? (first.raw ?? null) : null);
-	const kindOf = (field: DerivedField, pass: 'first' | 'second' | 'both', v: string | null) => kindAgainst(test, info.groups, info.norm!.group_code, keptRaw, altRawFor(pass), field, v);
-	const base: 'first' | 'second' = keptN !== null && num(first.raw, 'raw') === keptN ? 'first' : keptN !== null && num(second.raw, 'raw') === keptN ? 'second' : 'first';
+	const kindOf = (field: DerivedField, pass: 'first' | 'second' | 'both', v: string | null) =>
+		kindAgainst(test, info.groups, info.norm!.group_code, keptRaw, altRawFor(pass), field, v);
+	const base: 'first' | 'second' =
+		keptN !== null && num(first.raw, 'raw') === keptN ? 'first' : keptN !== null && num(second.raw, 'raw') === keptN ? 'second' : 'first';
 
 	const rows = await select<Row>(
 		`SELECT id, position, field, pass, kind, value, other, expected, resolution, resolved_at, settled_by, lock_version
@@ -221,7 +227,15 @@ export async function rejudgeDerived(
 	const flagged = new Set(rows.filter((d) => d.pass === base || d.pass === 'both').map((d) => d.field));
 	const baseScores = base === 'first' ? first : second;
 	const otherScores = base === 'first' ? second : first;
-	let position = Number((await selectOne<{ n: number }>('SELECT COALESCE(MAX(position), 0) AS n FROM discrepancies WHERE protocol_id = :p AND round = :r', { p: p.id, r: p.round }, t))?.n ?? 0);
+	let position = Number(
+		(
+			await selectOne<{ n: number }>(
+				'SELECT COALESCE(MAX(position), 0) AS n FROM discrepancies WHERE protocol_id = :p AND round = :r',
+				{ p: p.id, r: p.round },
+				t
+			)
+		)?.n ?? 0
+	);
 	for (const field of DERIVED_FIELDS) {
 		const r = refs[field];
 		if (r === undefined || flagged.has(field)) continue;
@@ -236,7 +250,15 @@ export async function rejudgeDerived(
 			t
 		);
 		await audit(
-			{ actorId: cause.actorId, entity: 'discrepancy', entityId: insertId, protocolId: p.id, action: 'rejudged', oldValue: { test: testCode, field, value: v }, newValue: { expected: rs, kind, keptRaw, added: true } },
+			{
+				actorId: cause.actorId,
+				entity: 'discrepancy',
+				entityId: insertId,
+				protocolId: p.id,
+				action: 'rejudged',
+				oldValue: { test: testCode, field, value: v },
+				newValue: { expected: rs, kind, keptRaw, added: true }
+			},
 			t
 		);
 		out.added.push(insertId);

@@ -113,7 +113,12 @@ export async function saveDraft(protocolId: number, user: Actor, body: unknown) 
 		if (pass.status === 'submitted') throw conflict('This pass is submitted and locked; the draft was not changed.');
 		if (which === 'second') await guardSecondPass(p, t);
 		if (pass.draft_version !== parsed.data.draftVersion) {
-			throw new WorkflowError(409, 'This pass was saved from another tab or device since you opened it. Reload to see the latest draft.', 'draftVersion', 'stale_draft');
+			throw new WorkflowError(
+				409,
+				'This pass was saved from another tab or device since you opened it. Reload to see the latest draft.',
+				'draftVersion',
+				'stale_draft'
+			);
 		}
 		const tests = await protocolTests(p.id, t);
 		const { scores, entered } = cleanScores(parsed.data.scores, tests, await protocolComposites(p.id, t));
@@ -202,7 +207,13 @@ async function moveProtocol(p: ProtocolRow, to: ProtocolRow['status'], t: Tx) {
 		{ to, id: p.id, from: p.status, round: p.round, lock: p.lock_version },
 		t
 	);
-	if (moved.affected !== 1) throw new WorkflowError(409, 'This protocol changed while the pass was being submitted (another submission got there first). Nothing was changed; reload to see its state.', undefined, 'already_submitted');
+	if (moved.affected !== 1)
+		throw new WorkflowError(
+			409,
+			'This protocol changed while the pass was being submitted (another submission got there first). Nothing was changed; reload to see its state.',
+			undefined,
+			'already_submitted'
+		);
 }
 
 export type SubmitResult = { which: Which; status: ProtocolRow['status']; discrepancies: number | null; singlePass?: boolean };
@@ -216,9 +227,20 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 		const which = myDuty(duties);
 		const pass = await passRow(p, which, t, true);
 		if (pass.scorer_id !== user.id) throw notFound('This pass');
-		if (pass.status === 'submitted') throw new WorkflowError(409, 'This pass was already submitted (from another tab or an earlier try). Nothing was changed.', undefined, 'already_submitted');
+		if (pass.status === 'submitted')
+			throw new WorkflowError(
+				409,
+				'This pass was already submitted (from another tab or an earlier try). Nothing was changed.',
+				undefined,
+				'already_submitted'
+			);
 		if (pass.draft_version !== version.data.draftVersion) {
-			throw new WorkflowError(409, 'This pass changed in another tab since you opened it. Reload, check the values and submit again.', 'draftVersion', 'stale_draft');
+			throw new WorkflowError(
+				409,
+				'This pass changed in another tab since you opened it. Reload, check the values and submit again.',
+				'draftVersion',
+				'stale_draft'
+			);
 		}
 		if (which === 'second') await guardSecondPass(p, t);
 		if (which === 'second' && p.status === 'draft') {
@@ -233,8 +255,24 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 			{ id: pass.id, v: pass.draft_version },
 			t
 		);
-		if (marked.affected !== 1) throw new WorkflowError(409, 'This pass was already submitted (from another tab or an earlier try). Nothing was changed.', undefined, 'already_submitted');
-		await audit({ actorId: user.id, entity: 'pass', entityId: pass.id, protocolId: p.id, action: `submit_${which}`, newValue: { round: p.round, fields: pass.fields_entered, scores: jsonValue(pass.scores) } }, t);
+		if (marked.affected !== 1)
+			throw new WorkflowError(
+				409,
+				'This pass was already submitted (from another tab or an earlier try). Nothing was changed.',
+				undefined,
+				'already_submitted'
+			);
+		await audit(
+			{
+				actorId: user.id,
+				entity: 'pass',
+				entityId: pass.id,
+				protocolId: p.id,
+				action: `submit_${which}`,
+				newValue: { round: p.round, fields: pass.fields_entered, scores: jsonValue(pass.scores) }
+			},
+			t
+		);
 
 		if (which === 'first') {
 			// Risk-based verification: the draw is made here, at the submission, never before.
@@ -243,12 +281,26 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 			if (outcome === 'not_drawn') {
 				const single = await reconcileSinglePass(p, { id: pass.id, scorer_id: pass.scorer_id, fields_entered: pass.fields_entered, scores }, user, t);
 				await moveProtocol(p, 'in_review', t);
-				await audit({ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'reconcile', oldValue: p.status, newValue: { status: 'in_review', round: p.round, single_pass: true, ...single.summary } }, t);
+				await audit(
+					{
+						actorId: user.id,
+						entity: 'protocol',
+						entityId: p.id,
+						protocolId: p.id,
+						action: 'reconcile',
+						oldValue: p.status,
+						newValue: { status: 'in_review', round: p.round, single_pass: true, ...single.summary }
+					},
+					t
+				);
 				await notifyReviewStarted(p.id, p.round, p.reviewer_id, t);
 				return { which, status: 'in_review' as const, discrepancies: single.discrepancies.length, singlePass: true };
 			}
 			await moveProtocol(p, 'awaiting_second', t);
-			await audit({ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'status', oldValue: p.status, newValue: 'awaiting_second' }, t);
+			await audit(
+				{ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'status', oldValue: p.status, newValue: 'awaiting_second' },
+				t
+			);
 			return { which, status: 'awaiting_second' as const, discrepancies: null };
 		}
 
@@ -259,13 +311,27 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 		try {
 			result = reconcile(input);
 		} catch (e) {
-			if (e instanceof ReconcileInputError) throw new WorkflowError(422, `The protocol cannot be reconciled: ${e.message}. Nothing was changed; ask a lead to check the catalog.`, undefined, 'catalog');
+			if (e instanceof ReconcileInputError)
+				throw new WorkflowError(
+					422,
+					`The protocol cannot be reconciled: ${e.message}. Nothing was changed; ask a lead to check the catalog.`,
+					undefined,
+					'catalog'
+				);
 			throw e;
 		}
 		await storeDiscrepancies(p, result, t);
 		await moveProtocol(p, 'in_review', t);
 		await audit(
-			{ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'reconcile', oldValue: p.status, newValue: { status: 'in_review', round: p.round, ...result.summary } },
+			{
+				actorId: user.id,
+				entity: 'protocol',
+				entityId: p.id,
+				protocolId: p.id,
+				action: 'reconcile',
+				oldValue: p.status,
+				newValue: { status: 'in_review', round: p.round, ...result.summary }
+			},
 			t
 		);
 		await recordSubmission(p.id, p.round, t);

@@ -56,7 +56,15 @@ export const REPORT_COLUMNS = [
 ] as const;
 
 const run = (text: string, opts: { bold?: boolean; size?: number; color?: string; superScript?: boolean; italics?: boolean } = {}) =>
-	new TextRun({ text, font: REPORT_FONT, size: opts.size ?? 18, bold: opts.bold, color: opts.color ?? INK, superScript: opts.superScript, italics: opts.italics });
+	new TextRun({
+		text,
+		font: REPORT_FONT,
+		size: opts.size ?? 18,
+		bold: opts.bold,
+		color: opts.color ?? INK,
+		superScript: opts.superScript,
+		italics: opts.italics
+	});
 
 const border = { style: BorderStyle.SINGLE, size: 4, color: LINE };
 const none = { style: BorderStyle.NONE, size: 0, color: 'FFFFFF' };
@@ -162,12 +170,28 @@ export function reportDocument(s: Summary): Document {
 	const anyInconsistent = s.rows.some((r) => r.inconsistent);
 	const notes: Paragraph[] = [];
 	const note = (children: ParagraphChild[]) => notes.push(new Paragraph({ children, spacing: { before: 40, after: 40 } }));
-	note([run('Note. ', { italics: true, size: 16 }), run(`Descriptive labels: ${s.labelScheme.name}, on the score named after each label (SS standard score, T T-score, ScS scaled score, %ile percentile; the first of these the test reports).`, { size: 16 })]);
-	note([run('95% CI = score ± 1.96 · SEM, SEM = SD · √(1 − reliability), on the labelled scale; shown where the test has a reliability coefficient.', { size: 16 })]);
-	if (s.composites.length) note([run('Σ: a composite’s sum of its parts’ scores, from which the composite’s scores are looked up (its CI from the composite’s own reliability).', { size: 16 })]);
-	if (s.rows.some((r) => r.band)) note([run(`Percentile bands (${s.offCurve.join(', ')}): the norms give bands only, as the manual prints them.`, { size: 16 })]);
-	if (anyRecomputed) note([run('†', { superScript: true, size: 16 }), run(' Percentile recomputed from the verified raw score (the test does not report one).', { size: 16 })]);
-	if (anyInconsistent) note([run('‡ A verified derived score differs from what the verified raw score gives with these norms; see the protocol\'s review record.', { size: 16 })]);
+	note([
+		run('Note. ', { italics: true, size: 16 }),
+		run(
+			`Descriptive labels: ${s.labelScheme.name}, on the score named after each label (SS standard score, T T-score, ScS scaled score, %ile percentile; the first of these the test reports).`,
+			{ size: 16 }
+		)
+	]);
+	note([
+		run('95% CI = score ± 1.96 · SEM, SEM = SD · √(1 − reliability), on the labelled scale; shown where the test has a reliability coefficient.', { size: 16 })
+	]);
+	if (s.composites.length)
+		note([
+			run('Σ: a composite’s sum of its parts’ scores, from which the composite’s scores are looked up (its CI from the composite’s own reliability).', {
+				size: 16
+			})
+		]);
+	if (s.rows.some((r) => r.band))
+		note([run(`Percentile bands (${s.offCurve.join(', ')}): the norms give bands only, as the manual prints them.`, { size: 16 })]);
+	if (anyRecomputed)
+		note([run('†', { superScript: true, size: 16 }), run(' Percentile recomputed from the verified raw score (the test does not report one).', { size: 16 })]);
+	if (anyInconsistent)
+		note([run("‡ A verified derived score differs from what the verified raw score gives with these norms; see the protocol's review record.", { size: 16 })]);
 	note([run(`Norms: ${s.normSet ? `${s.normSet.name} (${s.normSet.version}). ${s.normSet.source}` : 'unknown'}`, { size: 16 })]);
 	note([run(`Label scheme: ${s.labelScheme.source}`, { size: 16 })]);
 	note([run(CAUTION, { size: 16, italics: true })]);

@@ -65,7 +65,11 @@ const same = (a: string | null, b: string | null) =>
  * Rule 5 in words: a single pass's derived value that is right for the other pass's raw score
  * ("fits the first pass's raw score 24"), or null.
  */
-function fitsOther(d: Pick<DiscrepancyRow, 'field' | 'pass' | 'value' | 'alternative' | 'kind'>, otherRaw: string | null, ownRaw: string | null): string | null {
+function fitsOther(
+	d: Pick<DiscrepancyRow, 'field' | 'pass' | 'value' | 'alternative' | 'kind'>,
+	otherRaw: string | null,
+	ownRaw: string | null
+): string | null {
 	if (d.field === 'raw' || d.pass === 'both' || d.alternative === null || d.value === null || otherRaw === null) return null;
 	if ((d.kind as string) !== 'follows_other_raw' && !same(d.value, d.alternative)) return null;
 	const other = d.pass === 'first' ? 'second' : 'first';
@@ -91,11 +95,15 @@ function requireReviewer(duties: string[]) {
 export async function reviewView(protocolId: number, user: Actor) {
 	const { p, duties } = await protocolFor(protocolId, user);
 	if (!duties.includes('reviewer') && !duties.includes('lead')) throw notFound();
-	if (p.status !== 'in_review' && p.status !== 'verified') throw new WorkflowError(409, 'This protocol is not in review yet: both passes must be submitted first.', undefined, 'not_in_review');
+	if (p.status !== 'in_review' && p.status !== 'verified')
+		throw new WorkflowError(409, 'This protocol is not in review yet: both passes must be submitted first.', undefined, 'not_in_review');
 	const tests = await protocolTests(p.id);
 	// Both passes' raw scores: after the second submit they are no longer blind, and a reviewer
 	// needs them to see what each recomputed value was computed from.
-	const passRows = await select<{ which: 'first' | 'second'; scores: unknown }>('SELECT which, scores FROM passes WHERE protocol_id = :p AND round = :r', { p: p.id, r: p.round });
+	const passRows = await select<{ which: 'first' | 'second'; scores: unknown }>('SELECT which, scores FROM passes WHERE protocol_id = :p AND round = :r', {
+		p: p.id,
+		r: p.round
+	});
 	const rawOf = (which: 'first' | 'second', code: string) => (jsonValue<Scores>(passRows.find((x) => x.which === which)?.scores) ?? {})[code]?.raw ?? null;
 	const rows = await select<DiscrepancyRow & { resolver: string | null }>(
 		`SELECT d.*, u.name AS resolver FROM discrepancies d LEFT JOIN users u ON u.id = d.resolved_by
@@ -105,10 +113,24 @@ export async function reviewView(protocolId: number, user: Actor) {
 	const composites = await protocolComposites(p.id);
 	// a composite's cards wait on its parts' open cards, as a derived card waits on its raw score
 	const isComposite = (code: string) => composites.some((c) => c.code === code);
-	const items = rows.map((d) => ({ id: d.id, test: isComposite(d.test_code) ? null : d.test_code, composite: isComposite(d.test_code) ? d.test_code : null, field: d.field, open: d.resolved_at === null }));
+	const items = rows.map((d) => ({
+		id: d.id,
+		test: isComposite(d.test_code) ? null : d.test_code,
+		composite: isComposite(d.test_code) ? d.test_code : null,
+		field: d.field,
+		open: d.resolved_at === null
+	}));
 	const partsOf = (code: string) => composites.find((c) => c.code === code)?.parts ?? [];
 	// an amendment that opened this round: its field's card offers the amended value and the reason
-	const amended = await select<{ test_code: string; field: string; new_value: string; old_value: string | null; reason: string; name: string; decided_at: Date }>(
+	const amended = await select<{
+		test_code: string;
+		field: string;
+		new_value: string;
+		old_value: string | null;
+		reason: string;
+		name: string;
+		decided_at: Date;
+	}>(
 		`SELECT a.test_code, a.field, a.new_value, a.old_value, a.reason, u.name, a.decided_at FROM amendments a JOIN users u ON u.id = a.requested_by
 		  WHERE a.protocol_id = :p AND a.round = :r AND a.status = 'applied'`,
 		{ p: p.id, r: p.round }
@@ -119,14 +141,16 @@ export async function reviewView(protocolId: number, user: Actor) {
 	// adjacent_row: which row of the table was read, beside the one that holds the raw score
 	const tableCodes = [...new Set(rows.filter((d) => d.kind === 'adjacent_row').map((d) => d.test_code))];
 	const tables = tableCodes.length ? await normGroups(p.norm_set_id, tableCodes) : [];
-	const rowText = (r: TableRowInput, field: string) => `${r.lo === r.hi ? r.lo : `${r.lo}–${r.hi}`} (${field === 'percentile' && r.percentile !== null ? `percentile ${r.percentile}` : `score ${r.score}`})`;
+	const rowText = (r: TableRowInput, field: string) =>
+		`${r.lo === r.hi ? r.lo : `${r.lo}–${r.hi}`} (${field === 'percentile' && r.percentile !== null ? `percentile ${r.percentile}` : `score ${r.score}`})`;
 	/** Words under a card that the kind alone does not say: composites' parts, the waiting, the row read. */
 	const contextOf = (d: DiscrepancyRow): string | null => {
 		const c = composites.find((x) => x.code === d.test_code);
 		if (c) {
 			const partsOf = (which: 'first' | 'second') => c.parts.map((part) => passScores(which)[part]?.[c.part_field] ?? '—').join(' + ');
 			let text = `Parts (${c.part_field} scores): first pass ${partsOf('first')}, second pass ${partsOf('second')} · norm group ${c.groupText}.`;
-			if (d.kind === 'carried') text += ` Waits on its parts: this value follows from the pass's own ${(d.field as string) === 'sum' ? 'part scores' : 'sum'}; settle the parts first, then keep the value their decision gives.`;
+			if (d.kind === 'carried')
+				text += ` Waits on its parts: this value follows from the pass's own ${(d.field as string) === 'sum' ? 'part scores' : 'sum'}; settle the parts first, then keep the value their decision gives.`;
 			if (d.kind === 'adjacent_row') text += ' Read from the row next to the one that holds the sum.';
 			return text;
 		}
@@ -136,7 +160,10 @@ export async function reviewView(protocolId: number, user: Actor) {
 		const raw = Number(rawOf(d.pass === 'second' ? 'second' : 'first', d.test_code));
 		const i = table.findIndex((r) => raw >= r.lo - 1e-9 && raw <= r.hi + 1e-9);
 		if (i < 0) return null;
-		const matches = (r: TableRowInput | undefined) => r && d.value !== null && (d.field === 'percentile' ? String(r.percentile) === d.value || Number(r.percentile) === Number(d.value) : Number(r.score) === Number(d.value));
+		const matches = (r: TableRowInput | undefined) =>
+			r &&
+			d.value !== null &&
+			(d.field === 'percentile' ? String(r.percentile) === d.value || Number(r.percentile) === Number(d.value) : Number(r.score) === Number(d.value));
 		const read = [table[i - 1], table[i + 1]].find(matches);
 		return `Raw ${raw} is in the row ${rowText(table[i], d.field)}${read ? `; the value entered is the row ${table[i - 1] === read ? 'above' : 'below'}, ${rowText(read, d.field)}` : ''}.`;
 	};
@@ -168,9 +195,13 @@ export async function reviewView(protocolId: number, user: Actor) {
 				alternative: d.alternative,
 				fits: fitsOther(d, rawOf(d.pass === 'second' ? 'first' : 'second', d.test_code), d.pass === 'both' ? null : rawOf(d.pass, d.test_code)),
 				slip: d.field === 'raw' ? slipOf(d, rows, rawOf) : null,
-				waitsOn: waitsOn(items.find((x) => x.id === d.id)!, items, partsOf).map((w) => ({ id: w.id, field: w.field })),
+				waitsOn: waitsOn(
+					items.find((x) => x.id === d.id)!,
+					items,
+					partsOf
+				).map((w) => ({ id: w.id, field: w.field })),
 				settledBy: d.settled_by,
-				settledByRaw: d.settled_by === 'raw_decision' && d.settled_by_id ? byId.get(d.settled_by_id)?.resolved_value ?? null : null,
+				settledByRaw: d.settled_by === 'raw_decision' && d.settled_by_id ? (byId.get(d.settled_by_id)?.resolved_value ?? null) : null,
 				carried: d.carried_from !== null && d.resolved_at !== null,
 				amendment: (() => {
 					const a = amended.find((x) => x.test_code === d.test_code && x.field === d.field);
@@ -200,7 +231,6 @@ export const resolutionSchema = z.object({
 	lockVersion: z.number().int().min(1)
 });
 
-
 export async function resolveDiscrepancy(discrepancyId: number, user: Actor, body: unknown) {
 	const parsed = resolutionSchema.safeParse(body);
 	if (!parsed.success) {
@@ -225,7 +255,13 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 				{ p: p.id, r: p.round, test: d.test_code },
 				t
 			);
-			if (raw) throw new WorkflowError(409, 'Settle this test’s raw score first: its derived scores are judged again against the raw score you keep.', 'choice', 'waits_on_raw');
+			if (raw)
+				throw new WorkflowError(
+					409,
+					'Settle this test’s raw score first: its derived scores are judged again against the raw score you keep.',
+					'choice',
+					'waits_on_raw'
+				);
 			// a composite's value waits on its parts, as a derived score waits on its raw score
 			const composite = (await protocolComposites(p.id, t)).find((c) => c.code === d.test_code);
 			const part = composite
@@ -235,7 +271,13 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 						t
 					)
 				: null;
-			if (composite && part) throw new WorkflowError(409, `Settle the parts of ${composite.name} first (${part.test_code} is still open): the composite follows from the part scores you keep.`, 'choice', 'waits_on_parts');
+			if (composite && part)
+				throw new WorkflowError(
+					409,
+					`Settle the parts of ${composite.name} first (${part.test_code} is still open): the composite follows from the part scores you keep.`,
+					'choice',
+					'waits_on_parts'
+				);
 		}
 		const v = passValues(d);
 		let kept: string | null;
@@ -244,7 +286,11 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 		else if (choice === 'recomputed') kept = d.expected;
 		else kept = parsed.data.value ?? null;
 		if (choice === 'recomputed' && d.expected === null) throw invalid('There is no recomputed value for this field (a raw score has no reference).', 'choice');
-		if (kept === null || kept === '') throw invalid(choice === 'other' ? 'Enter the value to keep.' : 'That pass left this field empty; choose another value or enter one.', choice === 'other' ? 'value' : 'choice');
+		if (kept === null || kept === '')
+			throw invalid(
+				choice === 'other' ? 'Enter the value to keep.' : 'That pass left this field empty; choose another value or enter one.',
+				choice === 'other' ? 'value' : 'choice'
+			);
 		const tests = await protocolTests(p.id, t);
 		const test = tests.find((x) => x.code === d.test_code);
 		// The recomputed value is the engine's own (z is never clamped); anything a person chose is checked.
@@ -260,7 +306,10 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 		}
 		const needsNote = choice === 'other' || (d.expected !== null && !same(kept, d.expected));
 		if (needsNote && (!note || note.length < 3)) {
-			throw invalid(choice === 'other' ? 'Say why you keep another value (a short note).' : 'The kept value differs from the recomputed value: add a note saying why.', 'note');
+			throw invalid(
+				choice === 'other' ? 'Say why you keep another value (a short note).' : 'The kept value differs from the recomputed value: add a note saying why.',
+				'note'
+			);
 		}
 		const { affected } = await exec(
 			`UPDATE discrepancies SET resolution = :choice, resolved_value = :kept, note = :note, resolved_by = :uid, resolved_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1
@@ -284,7 +333,9 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 				entityId: d.id,
 				protocolId: p.id,
 				action: d.resolved_at ? 'change_resolution' : 'resolve',
-				oldValue: d.resolved_at ? { choice: d.resolution, value: d.resolved_value } : { test: d.test_code, field: d.field, first: v.first, second: v.second, expected: d.expected, kind: d.kind },
+				oldValue: d.resolved_at
+					? { choice: d.resolution, value: d.resolved_value }
+					: { test: d.test_code, field: d.field, first: v.first, second: v.second, expected: d.expected, kind: d.kind },
 				newValue: { choice, value: kept },
 				reason: note || null
 			},
@@ -294,7 +345,11 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 		await afterResolution(d.id, t);
 		// The raw score is settled: the test's derived discrepancies are judged again, in this transaction.
 		const rejudged = d.field === 'raw' ? await rejudgeDerived(p, d.test_code, kept, { by: 'raw_decision', id: d.id, actorId: user.id }, t) : null;
-		const open = await selectOne<{ n: number }>('SELECT COUNT(*) AS n FROM discrepancies WHERE protocol_id = :p AND round = :r AND resolved_at IS NULL', { p: p.id, r: p.round }, t);
+		const open = await selectOne<{ n: number }>(
+			'SELECT COUNT(*) AS n FROM discrepancies WHERE protocol_id = :p AND round = :r AND resolved_at IS NULL',
+			{ p: p.id, r: p.round },
+			t
+		);
 		return { id: d.id, resolution: choice, resolvedValue: kept, note: note || null, lockVersion: d.lock_version + 1, open: Number(open?.n ?? 0), rejudged };
 	});
 }
@@ -306,7 +361,12 @@ async function staleResolution(id: number, t: Transaction): Promise<WorkflowErro
 		{ id },
 		t
 	);
-	return new WorkflowError(409, `Someone else changed this discrepancy first${now?.name ? ` (${now.name} kept ${now.resolved_value ?? 'no value'})` : ''}. Reload to see it; your choice was not saved.`, undefined, 'stale');
+	return new WorkflowError(
+		409,
+		`Someone else changed this discrepancy first${now?.name ? ` (${now.name} kept ${now.resolved_value ?? 'no value'})` : ''}. Reload to see it; your choice was not saved.`,
+		undefined,
+		'stale'
+	);
 }
 
 /** Kept values that differ from the recomputation (each with its note): sign-off lists them for one confirmation. */
@@ -317,7 +377,9 @@ export async function keptAgainstRecomputation(protocolId: number, round: number
 		{ p: protocolId, r: round },
 		t
 	);
-	return rows.filter((d) => !same(d.resolved_value, d.expected)).map((d) => ({ id: d.id, test: d.test_code, field: d.field, kept: d.resolved_value, recomputed: d.expected, note: d.note }));
+	return rows
+		.filter((d) => !same(d.resolved_value, d.expected))
+		.map((d) => ({ id: d.id, test: d.test_code, field: d.field, kept: d.resolved_value, recomputed: d.expected, note: d.note }));
 }
 
 export async function signOff(protocolId: number, user: Actor, body: unknown) {
@@ -328,13 +390,29 @@ export async function signOff(protocolId: number, user: Actor, body: unknown) {
 		requireReviewer(duties);
 		if (p.status === 'verified') throw new WorkflowError(409, 'This protocol is already signed off.', undefined, 'already_verified');
 		if (p.status !== 'in_review') throw conflict('Only a protocol in review can be signed off.');
-		if (p.lock_version !== parsed.data.lockVersion) throw new WorkflowError(409, 'The protocol changed since you opened it (a decision was changed, or it was reassigned or reopened). Reload and check before signing off.', undefined, 'stale');
-		const open = await selectOne<{ n: number }>('SELECT COUNT(*) AS n FROM discrepancies WHERE protocol_id = :p AND round = :r AND resolved_at IS NULL', { p: p.id, r: p.round }, t);
-		if (Number(open?.n) > 0) throw conflict(`${open?.n} discrepanc${Number(open?.n) === 1 ? 'y is' : 'ies are'} still open. Resolve every one before signing off.`);
+		if (p.lock_version !== parsed.data.lockVersion)
+			throw new WorkflowError(
+				409,
+				'The protocol changed since you opened it (a decision was changed, or it was reassigned or reopened). Reload and check before signing off.',
+				undefined,
+				'stale'
+			);
+		const open = await selectOne<{ n: number }>(
+			'SELECT COUNT(*) AS n FROM discrepancies WHERE protocol_id = :p AND round = :r AND resolved_at IS NULL',
+			{ p: p.id, r: p.round },
+			t
+		);
+		if (Number(open?.n) > 0)
+			throw conflict(`${open?.n} discrepanc${Number(open?.n) === 1 ? 'y is' : 'ies are'} still open. Resolve every one before signing off.`);
 		const against = await keptAgainstRecomputation(p.id, p.round, t);
 		if (against.length > 0 && parsed.data.confirmKept !== true) {
 			const list = against.map((x) => `${x.test} ${FIELD_LABELS[x.field] ?? x.field}: kept ${x.kept}, recomputed ${x.recomputed}`).join('; ');
-			throw new WorkflowError(409, `Confirm the ${against.length} kept value${against.length === 1 ? '' : 's'} that differ${against.length === 1 ? 's' : ''} from the recomputation before signing off (${list}).`, 'confirmKept', 'confirm_kept');
+			throw new WorkflowError(
+				409,
+				`Confirm the ${against.length} kept value${against.length === 1 ? '' : 's'} that differ${against.length === 1 ? 's' : ''} from the recomputation before signing off (${list}).`,
+				'confirmKept',
+				'confirm_kept'
+			);
 		}
 		// compare-and-set: on a Galera cluster the FOR UPDATE above locks only on this node
 		const moved = await exec(
@@ -343,8 +421,20 @@ export async function signOff(protocolId: number, user: Actor, body: unknown) {
 			{ uid: user.id, id: p.id, lock: p.lock_version },
 			t
 		);
-		if (moved.affected !== 1) throw new WorkflowError(409, 'This protocol was signed off or changed at the same moment elsewhere. Reload to see its state.', undefined, 'stale');
-		await audit({ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'sign_off', oldValue: 'in_review', newValue: { status: 'verified', round: p.round, ...(against.length ? { keptAgainstRecomputation: against } : {}) } }, t);
+		if (moved.affected !== 1)
+			throw new WorkflowError(409, 'This protocol was signed off or changed at the same moment elsewhere. Reload to see its state.', undefined, 'stale');
+		await audit(
+			{
+				actorId: user.id,
+				entity: 'protocol',
+				entityId: p.id,
+				protocolId: p.id,
+				action: 'sign_off',
+				oldValue: 'in_review',
+				newValue: { status: 'verified', round: p.round, ...(against.length ? { keptAgainstRecomputation: against } : {}) }
+			},
+			t
+		);
 		return { status: 'verified' as const };
 	});
 }
@@ -386,7 +476,19 @@ export async function reopen(protocolId: number, user: Actor, reason: string) {
 			t
 		);
 		if (moved.affected !== 1) throw conflict('This protocol was reopened at the same moment elsewhere.');
-		await audit({ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'reopen', oldValue: { status: 'verified', round: p.round }, newValue: { status: 'in_review', round: next }, reason: reason.trim() }, t);
+		await audit(
+			{
+				actorId: user.id,
+				entity: 'protocol',
+				entityId: p.id,
+				protocolId: p.id,
+				action: 'reopen',
+				oldValue: { status: 'verified', round: p.round },
+				newValue: { status: 'in_review', round: next },
+				reason: reason.trim()
+			},
+			t
+		);
 		await notifyReviewStarted(p.id, next, p.reviewer_id, t, { action: 'reopen', reason: reason.trim() });
 		return { round: next };
 	});
@@ -411,8 +513,16 @@ function sameNumber(x: string | null | undefined, y: string | null | undefined):
 
 /** The verified value of every field: the pass value where both agreed, else the resolution. */
 export async function finalScores(protocolId: number, round: number, t?: Transaction): Promise<Scores> {
-	const first = await selectOne<{ scores: unknown }>('SELECT scores FROM passes WHERE protocol_id = :p AND round = :r AND which = \'first\'', { p: protocolId, r: round }, t);
-	const second = await selectOne<{ scores: unknown }>('SELECT scores FROM passes WHERE protocol_id = :p AND round = :r AND which = \'second\'', { p: protocolId, r: round }, t);
+	const first = await selectOne<{ scores: unknown }>(
+		"SELECT scores FROM passes WHERE protocol_id = :p AND round = :r AND which = 'first'",
+		{ p: protocolId, r: round },
+		t
+	);
+	const second = await selectOne<{ scores: unknown }>(
+		"SELECT scores FROM passes WHERE protocol_id = :p AND round = :r AND which = 'second'",
+		{ p: protocolId, r: round },
+		t
+	);
 	const a = jsonValue<Scores>(first?.scores) ?? {};
 	const b = jsonValue<Scores>(second?.scores) ?? {};
 	const rows = await select<{ test_code: string; field: Field; resolved_value: string | null }>(

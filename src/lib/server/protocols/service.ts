@@ -146,10 +146,23 @@ export async function planGroups(
 	const planOne = (code: string, name: string, composite: boolean): GroupPlan => {
 		const mine = groups.filter((g) => g.test_code === code);
 		// The norm set's own age rule (borrowing, rounding): instruments differ in how age is computed.
-		const sel = selectNormGroup(ex.birthDate, testDate, mine.map(groupDef), { sex: ex.sex === 'X' ? null : ex.sex, educationYears: ex.educationYears }, { rule: set.rule, today: clinicToday() });
+		const sel = selectNormGroup(
+			ex.birthDate,
+			testDate,
+			mine.map(groupDef),
+			{ sex: ex.sex === 'X' ? null : ex.sex, educationYears: ex.educationYears },
+			{ rule: set.rule, today: clinicToday() }
+		);
 		age = sel.age;
 		const row = sel.group ? mine.find((g) => g.group_code === sel.group!.id) : undefined;
-		return { ...(composite ? { composite: true } : {}), testCode: code, testName: name, groupCode: row?.group_code ?? null, groupId: row?.id ?? null, warnings: sel.warnings };
+		return {
+			...(composite ? { composite: true } : {}),
+			testCode: code,
+			testName: name,
+			groupCode: row?.group_code ?? null,
+			groupId: row?.id ?? null,
+			warnings: sel.warnings
+		};
 	};
 	const plan: GroupPlan[] = [...tests.map((test) => planOne(test.code, test.name, false)), ...composites.map((c) => planOne(c.code, c.name, true))];
 	return { set, tests, composites, groups, plan, age: age! };
@@ -213,7 +226,12 @@ export async function createProtocol(input: NewProtocol, actor: Actor): Promise<
 		// Two leads creating the first protocol of one new examinee code at the same moment: the unique
 		// key (or InnoDB's deadlock check on the gap lock) refuses the second; nothing of it was written.
 		if (isUniqueViolation(e) || isLockConflict(e))
-			throw new WorkflowError(409, `Examinee code ${input.examinee.code} was being created by someone else at the same moment; nothing was saved. Submit again to use it.`, 'code', 'conflict');
+			throw new WorkflowError(
+				409,
+				`Examinee code ${input.examinee.code} was being created by someone else at the same moment; nothing was saved. Submit again to use it.`,
+				'code',
+				'conflict'
+			);
 		throw e;
 	}
 }
@@ -221,7 +239,11 @@ export async function createProtocol(input: NewProtocol, actor: Actor): Promise<
 async function insertProtocol(input: NewProtocol, actor: Actor): Promise<number> {
 	return transaction(async (t) => {
 		await checkDuties(input.firstScorerId, input.secondScorerId, input.reviewerId, t);
-		const battery = await selectOne<{ id: number; norm_set_id: number | null }>('SELECT id, norm_set_id FROM batteries WHERE id = :id', { id: input.batteryId }, t);
+		const battery = await selectOne<{ id: number; norm_set_id: number | null }>(
+			'SELECT id, norm_set_id FROM batteries WHERE id = :id',
+			{ id: input.batteryId },
+			t
+		);
 		if (!battery) throw invalid('Choose a battery.', 'batteryId');
 		const normSetId = input.normSetId ?? battery.norm_set_id;
 		if (!normSetId) throw invalid('Choose a norm set.', 'normSetId');
@@ -235,13 +257,19 @@ async function insertProtocol(input: NewProtocol, actor: Actor): Promise<number>
 			if (!input.examinee.birthDate) throw invalid('A new examinee needs a birth date.', 'birthDate');
 			const { insertId } = await exec(
 				`INSERT INTO examinees (code, name, birth_date, sex, education_years, created_by) VALUES (:code, :name, :birth, :sex, :edu, :by)`,
-				{ code: input.examinee.code, name: input.examinee.name || null, birth: input.examinee.birthDate, sex: input.examinee.sex ?? null, edu: input.examinee.educationYears ?? null, by: actor.id },
+				{
+					code: input.examinee.code,
+					name: input.examinee.name || null,
+					birth: input.examinee.birthDate,
+					sex: input.examinee.sex ?? null,
+					edu: input.examinee.educationYears ?? null,
+					by: actor.id
+				},
 				t
 			);
 			await audit({ actorId: actor.id, entity: 'examinee', entityId: insertId, action: 'create', newValue: { code: input.examinee.code } }, t);
 			ex = { id: insertId, birth_date: input.examinee.birthDate, sex: input.examinee.sex ?? null, education_years: input.examinee.educationYears ?? null };
-		}
-		else if (input.examinee.birthDate && input.examinee.birthDate !== ex.birth_date) {
+		} else if (input.examinee.birthDate && input.examinee.birthDate !== ex.birth_date) {
 			// Never guess which is right: a mistyped code would attach this protocol to someone else.
 			throw invalid(
 				`Examinee ${input.examinee.code} is on record with birth date ${ex.birth_date}, not ${input.examinee.birthDate}. Check the code; if it is the same person, leave the birth date empty (the recorded one is used) or correct the record first.`,
@@ -321,21 +349,41 @@ async function insertProtocol(input: NewProtocol, actor: Actor): Promise<number>
 				t
 			);
 			if (reason) {
-				await audit({ actorId: actor.id, entity: 'protocol', entityId: protocolId, protocolId, action: 'norm_group_override', oldValue: { test: test.code, group: plan[i].groupCode }, newValue: { test: test.code, group: o!.groupCode }, reason }, t);
+				await audit(
+					{
+						actorId: actor.id,
+						entity: 'protocol',
+						entityId: protocolId,
+						protocolId,
+						action: 'norm_group_override',
+						oldValue: { test: test.code, group: plan[i].groupCode },
+						newValue: { test: test.code, group: o!.groupCode },
+						reason
+					},
+					t
+				);
 			}
 		}
 		// Composites are frozen as defined now, with the norm group that covers the examinee.
 		const { ProtocolComposite } = models();
 		for (const [i, c] of composites.entries()) {
 			const entry = plan[tests.length + i];
-			if (!entry.groupId) throw invalid(`No norm group of this norm set covers this examinee for the composite ${c.name}; add one to the norm set first.`, 'normSetId');
-			await ProtocolComposite.create({ protocol_id: protocolId, position: i + 1, code: c.code, definition: c, norm_group_id: entry.groupId }, { transaction: t });
+			if (!entry.groupId)
+				throw invalid(`No norm group of this norm set covers this examinee for the composite ${c.name}; add one to the norm set first.`, 'normSetId');
+			await ProtocolComposite.create(
+				{ protocol_id: protocolId, position: i + 1, code: c.code, definition: c, norm_group_id: entry.groupId },
+				{ transaction: t }
+			);
 		}
 		for (const [which, scorer] of [
 			['first', input.firstScorerId],
 			['second', input.secondScorerId]
 		] as const) {
-			await exec(`INSERT INTO passes (protocol_id, round, which, scorer_id, scores) VALUES (:p, 1, :which, :scorer, '{}')`, { p: protocolId, which, scorer }, t);
+			await exec(
+				`INSERT INTO passes (protocol_id, round, which, scorer_id, scores) VALUES (:p, 1, :which, :scorer, '{}')`,
+				{ p: protocolId, which, scorer },
+				t
+			);
 		}
 		await audit(
 			{
@@ -344,7 +392,16 @@ async function insertProtocol(input: NewProtocol, actor: Actor): Promise<number>
 				entityId: protocolId,
 				protocolId,
 				action: 'create',
-				newValue: { examinee: input.examinee.code, battery: input.batteryId, normSet: normSetId, testDate: input.testDate, age: age.text, first: input.firstScorerId, second: input.secondScorerId, reviewer: input.reviewerId }
+				newValue: {
+					examinee: input.examinee.code,
+					battery: input.batteryId,
+					normSet: normSetId,
+					testDate: input.testDate,
+					age: age.text,
+					first: input.firstScorerId,
+					second: input.secondScorerId,
+					reviewer: input.reviewerId
+				}
 			},
 			t
 		);
@@ -355,7 +412,14 @@ async function insertProtocol(input: NewProtocol, actor: Actor): Promise<number>
 // ---------------------------------------------------------------- assignments
 
 /** A lead changes an assignment; never two duties on one protocol; a submitted pass keeps its scorer. */
-export async function reassign(protocolId: number, duty: 'first' | 'second' | 'reviewer', userId: number, reason: string, actor: Actor, onReviewerChange?: (p: ProtocolRow, t: Transaction) => Promise<void>) {
+export async function reassign(
+	protocolId: number,
+	duty: 'first' | 'second' | 'reviewer',
+	userId: number,
+	reason: string,
+	actor: Actor,
+	onReviewerChange?: (p: ProtocolRow, t: Transaction) => Promise<void>
+) {
 	if (!reason || reason.trim().length < 5) throw invalid('Give a reason for the change.', 'reason');
 	return transaction(async (t) => {
 		const { p } = await protocolFor(protocolId, actor, t, true);
@@ -363,13 +427,33 @@ export async function reassign(protocolId: number, duty: 'first' | 'second' | 'r
 		const next = { first: p.first_scorer_id, second: p.second_scorer_id, reviewer: p.reviewer_id, [duty]: userId };
 		await checkDuties(next.first, next.second, next.reviewer, t);
 		if (duty !== 'reviewer') {
-			const pass = await selectOne<{ status: string }>('SELECT status FROM passes WHERE protocol_id = :p AND round = :r AND which = :w', { p: p.id, r: p.round, w: duty }, t);
+			const pass = await selectOne<{ status: string }>(
+				'SELECT status FROM passes WHERE protocol_id = :p AND round = :r AND which = :w',
+				{ p: p.id, r: p.round, w: duty },
+				t
+			);
 			if (pass?.status === 'submitted') throw conflict('That pass is already submitted; its scorer can no longer change.');
-			await exec('UPDATE passes SET scorer_id = :u, scores = \'{}\', fields_entered = 0, draft_version = draft_version + 1 WHERE protocol_id = :p AND round = :r AND which = :w', { u: userId, p: p.id, r: p.round, w: duty }, t);
+			await exec(
+				"UPDATE passes SET scorer_id = :u, scores = '{}', fields_entered = 0, draft_version = draft_version + 1 WHERE protocol_id = :p AND round = :r AND which = :w",
+				{ u: userId, p: p.id, r: p.round, w: duty },
+				t
+			);
 		}
 		const column = duty === 'first' ? 'first_scorer_id' : duty === 'second' ? 'second_scorer_id' : 'reviewer_id';
 		await exec(`UPDATE protocols SET ${column} = :u, lock_version = lock_version + 1 WHERE id = :id`, { u: userId, id: p.id }, t);
-		await audit({ actorId: actor.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: `assign_${duty}`, oldValue: p[column], newValue: userId, reason: reason.trim() }, t);
+		await audit(
+			{
+				actorId: actor.id,
+				entity: 'protocol',
+				entityId: p.id,
+				protocolId: p.id,
+				action: `assign_${duty}`,
+				oldValue: p[column],
+				newValue: userId,
+				reason: reason.trim()
+			},
+			t
+		);
 		if (duty === 'reviewer' && p.status === 'in_review' && onReviewerChange) await onReviewerChange({ ...p, reviewer_id: userId }, t);
 	});
 }
@@ -460,7 +544,17 @@ export async function worklist(user: Actor, limit = WORKLIST_LIMIT): Promise<Wor
 			  ORDER BY p.created_at, p.id LIMIT :limit`,
 			{ uid: user.id, limit }
 		);
-		for (const r of rows) items.push({ kind: r.which === 'first' ? 'enter_first' : 'enter_second', protocolId: r.id, code: r.code, battery: r.battery, since: r.since, status: r.status, open: 0, draftStarted: r.draft_version > 0 });
+		for (const r of rows)
+			items.push({
+				kind: r.which === 'first' ? 'enter_first' : 'enter_second',
+				protocolId: r.id,
+				code: r.code,
+				battery: r.battery,
+				since: r.since,
+				status: r.status,
+				open: 0,
+				draftStarted: r.draft_version > 0
+			});
 	}
 	if (user.roles.includes('reviewer')) {
 		const rows = await select<{ id: number; code: string; battery: string; since: Date; status: Status; open: number }>(
@@ -473,7 +567,17 @@ export async function worklist(user: Actor, limit = WORKLIST_LIMIT): Promise<Wor
 			  ORDER BY p.status_changed_at, p.id LIMIT :limit`,
 			{ uid: user.id, limit }
 		);
-		for (const r of rows) items.push({ kind: Number(r.open) > 0 ? 'review' : 'sign_off', protocolId: r.id, code: r.code, battery: r.battery, since: r.since, status: r.status, open: Number(r.open), draftStarted: false });
+		for (const r of rows)
+			items.push({
+				kind: Number(r.open) > 0 ? 'review' : 'sign_off',
+				protocolId: r.id,
+				code: r.code,
+				battery: r.battery,
+				since: r.since,
+				status: r.status,
+				open: Number(r.open),
+				draftStarted: false
+			});
 	}
 	const single = await singlePassIds(items.filter((i) => i.kind === 'review' || i.kind === 'sign_off').map((i) => i.protocolId));
 	for (const i of items) if (single.has(i.protocolId)) i.singlePass = true;
@@ -492,12 +596,21 @@ export async function protocolView(id: number, user: Actor) {
 	const battery = await selectOne<{ code: string; name: string }>('SELECT code, name FROM batteries WHERE id = :id', { id: p.battery_id });
 	const set = await normSet(p.norm_set_id);
 	const tests = await protocolTests(p.id);
-	const people = await select<{ id: number; name: string }>('SELECT id, name FROM users WHERE id IN (:ids)', { ids: [p.first_scorer_id, p.second_scorer_id, p.reviewer_id] });
+	const people = await select<{ id: number; name: string }>('SELECT id, name FROM users WHERE id IN (:ids)', {
+		ids: [p.first_scorer_id, p.second_scorer_id, p.reviewer_id]
+	});
 	const nameOf = (uid: number) => people.find((x) => x.id === uid)?.name ?? '—';
-	const passes = await select<{ which: 'first' | 'second'; status: string; submitted_at: Date | null; fields_entered: number; updated_at: Date; draft_version: number }>(
-		'SELECT which, status, submitted_at, fields_entered, updated_at, draft_version FROM passes WHERE protocol_id = :p AND round = :r ORDER BY which',
-		{ p: p.id, r: p.round }
-	);
+	const passes = await select<{
+		which: 'first' | 'second';
+		status: string;
+		submitted_at: Date | null;
+		fields_entered: number;
+		updated_at: Date;
+		draft_version: number;
+	}>('SELECT which, status, submitted_at, fields_entered, updated_at, draft_version FROM passes WHERE protocol_id = :p AND round = :r ORDER BY which', {
+		p: p.id,
+		r: p.round
+	});
 	const open = await selectOne<{ open: number; total: number }>(
 		'SELECT SUM(resolved_at IS NULL) AS open, COUNT(*) AS total FROM discrepancies WHERE protocol_id = :p AND round = :r',
 		{ p: p.id, r: p.round }
@@ -523,9 +636,23 @@ export async function protocolView(id: number, user: Actor) {
 		},
 		battery: battery!,
 		normSet: set ? { name: set.name, version: set.version, source: set.source } : null,
-		tests: tests.map((x) => ({ code: x.code, name: x.name, domain: x.domainName, group: x.groupText, overrideReason: x.overrideReason, version: x.version, reported: x.reported as string[] })),
+		tests: tests.map((x) => ({
+			code: x.code,
+			name: x.name,
+			domain: x.domainName,
+			group: x.groupText,
+			overrideReason: x.overrideReason,
+			version: x.version,
+			reported: x.reported as string[]
+		})),
 		assignments: { first: nameOf(p.first_scorer_id), second: nameOf(p.second_scorer_id), reviewer: nameOf(p.reviewer_id) },
-		passes: passes.map((x) => ({ which: x.which, status: x.status, submittedAt: x.submitted_at, fieldsEntered: x.fields_entered, started: x.draft_version > 0 })),
+		passes: passes.map((x) => ({
+			which: x.which,
+			status: x.status,
+			submittedAt: x.submitted_at,
+			fieldsEntered: x.fields_entered,
+			started: x.draft_version > 0
+		})),
 		discrepancies: { open: Number(open?.open ?? 0), total: Number(open?.total ?? 0) },
 		attachments,
 		verification: await protocolVerification(p, duties)
@@ -535,15 +662,23 @@ export async function protocolView(id: number, user: Actor) {
 /** Status history for the protocol page. Before both passes are in, values of passes are hidden. */
 export async function protocolHistoryFor(id: number, user: Actor) {
 	const { p } = await protocolFor(id, user);
-	const all = await select<{ id: number; at: Date; actor_id: number | null; actor_name: string | null; action: string; old_value: string | null; new_value: string | null; reason: string | null; entity: string }>(
+	const all = await select<{
+		id: number;
+		at: Date;
+		actor_id: number | null;
+		actor_name: string | null;
+		action: string;
+		old_value: string | null;
+		new_value: string | null;
+		reason: string | null;
+		entity: string;
+	}>(
 		`SELECT a.id, a.at, a.actor_id, u.name AS actor_name, a.action, a.old_value, a.new_value, a.reason, a.entity
 		   FROM audit_events a LEFT JOIN users u ON u.id = a.actor_id WHERE a.protocol_id = :p ORDER BY a.id`,
 		{ p: p.id }
 	);
 	// uploads the other scorer made are not there for a blind scorer (nor their file: attachmentHidden)
-	const rows = all
-		.filter((r) => !(r.entity === 'attachment' && attachmentHidden(p, user, r.actor_id)))
-		.map(({ actor_id: _a, ...r }) => r);
+	const rows = all.filter((r) => !(r.entity === 'attachment' && attachmentHidden(p, user, r.actor_id))).map(({ actor_id: _a, ...r }) => r);
 	// Pass values: for everyone once revealed; before that for leads who are not its scorers (an
 	// assigned scorer never, whatever roles they hold now: isBlind).
 	const reveal = passesRevealed(p.status) || (user.roles.includes('lead') && !isBlind(p, user));

@@ -75,7 +75,10 @@ export async function protocolSummary(protocolId: number, user: Actor) {
 	const set = await normSet(p.norm_set_id);
 	const tests = await protocolTests(p.id);
 	const composites = await protocolComposites(p.id);
-	const groups = await normGroups(p.norm_set_id, tests.map((t) => t.code));
+	const groups = await normGroups(
+		p.norm_set_id,
+		tests.map((t) => t.code)
+	);
 	const scores = await finalScores(p.id, p.round);
 	const against = await keptAgainstRecomputation(p.id, p.round);
 	const amendments = (await protocolAmendments(p.id)).filter((a) => a.status === 'applied');
@@ -127,8 +130,27 @@ export async function protocolSummary(protocolId: number, user: Actor) {
 		// percentile bands say where a score lies only roughly, on a skewed count: no point on the curve
 		const z = percentileOnly ? null : basis && basisValue !== null && !Number.isNaN(basisValue) ? toZ(basis, basisValue) : zRef;
 		const kept: SummaryRow['kept'] = {};
-		for (const k of against) if (k.test === t.code && (s[k.field] ?? null) !== null && (Number(s[k.field]) === Number(k.kept) || s[k.field] === k.kept)) kept[k.field] = { recomputed: k.recomputed, note: k.note };
-		return { code: t.code, name: t.name, domain: t.domainName, unit: t.unit, direction: t.direction, group: t.groupText, raw: s.raw ?? null, values, reported: t.reported, percentile, label, ci, z, inconsistent, kept, band };
+		for (const k of against)
+			if (k.test === t.code && (s[k.field] ?? null) !== null && (Number(s[k.field]) === Number(k.kept) || s[k.field] === k.kept))
+				kept[k.field] = { recomputed: k.recomputed, note: k.note };
+		return {
+			code: t.code,
+			name: t.name,
+			domain: t.domainName,
+			unit: t.unit,
+			direction: t.direction,
+			group: t.groupText,
+			raw: s.raw ?? null,
+			values,
+			reported: t.reported,
+			percentile,
+			label,
+			ci,
+			z,
+			inconsistent,
+			kept,
+			band
+		};
 	});
 	// Composites first: their verified values, label from the index score, CI from the composite's reliability.
 	const compositeRows: CompositeSummaryRow[] = composites.map((c) => {
@@ -165,11 +187,32 @@ export async function protocolSummary(protocolId: number, user: Actor) {
 	const placed = rows.filter((r) => r.z !== null);
 	const offCurve = rows.filter((r) => r.band !== null).map((r) => r.name);
 	return {
-		protocol: { id: p.id, code: ex!.code, testDate: p.test_date, age: p.age_text, battery: battery!.name, round: p.round, verifiedAt: p.verified_at, verifiedBy: signer?.name ?? null, singlePass: await isSinglePass(p.id) },
+		protocol: {
+			id: p.id,
+			code: ex!.code,
+			testDate: p.test_date,
+			age: p.age_text,
+			battery: battery!.name,
+			round: p.round,
+			verifiedAt: p.verified_at,
+			verifiedBy: signer?.name ?? null,
+			singlePass: await isSinglePass(p.id)
+		},
 		normSet: set ? { name: set.name, version: set.version, source: set.source } : null,
 		composites: compositeRows,
 		rows,
-		amendments: amendments.map((a) => ({ id: a.id, test: a.test_name ?? a.test_code, field: a.field, before: a.old_value, after: a.new_value, reason: a.reason, by: a.requested_by_name, approvedBy: a.decided_by_name, at: a.decided_at, round: a.round })),
+		amendments: amendments.map((a) => ({
+			id: a.id,
+			test: a.test_name ?? a.test_code,
+			field: a.field,
+			before: a.old_value,
+			after: a.new_value,
+			reason: a.reason,
+			by: a.requested_by_name,
+			approvedBy: a.decided_by_name,
+			at: a.decided_at,
+			round: a.round
+		})),
 		offCurve,
 		lowScores: { below: placed.filter((r) => (r.z as number) < -1).length, given: placed.length },
 		labelScheme: { name: AACN_2020.name, source: AACN_2020.source }
@@ -178,7 +221,28 @@ export async function protocolSummary(protocolId: number, user: Actor) {
 
 /** The summary as CSV (one row per test) through the one CSV writer (src/lib/csv.ts), norms and caution as comment lines. */
 export function summaryCsv(s: Awaited<ReturnType<typeof protocolSummary>>): string {
-	const head = ['examinee_code', 'test_date', 'age', 'domain', 'test', 'norm_group', 'raw', 'z', 'standard', 'scaled', 't', 'percentile', 'percentile_recomputed', 'label', 'ci95_lower', 'ci95_upper', 'ci_scale', 'entry', 'kept_against_recomputation', 'sum'];
+	const head = [
+		'examinee_code',
+		'test_date',
+		'age',
+		'domain',
+		'test',
+		'norm_group',
+		'raw',
+		'z',
+		'standard',
+		'scaled',
+		't',
+		'percentile',
+		'percentile_recomputed',
+		'label',
+		'ci95_lower',
+		'ci95_upper',
+		'ci_scale',
+		'entry',
+		'kept_against_recomputation',
+		'sum'
+	];
 	const entry = s.protocol.singlePass ? 'single pass' : 'double entry';
 	// composites first (raw is empty; the sum of the parts is in the last column)
 	const composites = s.composites.map((c) => [
@@ -222,7 +286,9 @@ export function summaryCsv(s: Awaited<ReturnType<typeof protocolSummary>>): stri
 		r.ci?.upper,
 		r.ci?.field,
 		entry,
-		Object.entries(r.kept).map(([f, k]) => `${f} (recomputed ${k?.recomputed})`).join('; '),
+		Object.entries(r.kept)
+			.map(([f, k]) => `${f} (recomputed ${k?.recomputed})`)
+			.join('; '),
 		null
 	]);
 	return writeCsv(head, [...composites, ...rows], {

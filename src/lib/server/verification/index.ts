@@ -16,7 +16,16 @@ import type { Transaction } from 'sequelize';
 import { select, selectOne, exec, transaction, type Tx } from '../db';
 import { audit } from '../audit';
 import { verificationModels, type DrawOutcome } from '../models/verification';
-import { DEFAULT_POLICY, policyProblems, qualifies, protocolAboveThreshold, singlePassFindings, undetectedErrors, type SamplingPolicy, type Qualification } from '../../scoring/verification';
+import {
+	DEFAULT_POLICY,
+	policyProblems,
+	qualifies,
+	protocolAboveThreshold,
+	singlePassFindings,
+	undetectedErrors,
+	type SamplingPolicy,
+	type Qualification
+} from '../../scoring/verification';
 import { reconcile, ReconcileInputError } from '../../scoring/reconcile';
 import { protocolFor, type Actor, type ProtocolRow, type Duty } from '../protocols/service';
 import { engineInput, storeDiscrepancies, type Scores } from '../protocols/passes';
@@ -95,8 +104,17 @@ export async function setPolicy(batteryId: number, body: unknown, actor: Actor):
 			},
 			{ transaction: t }
 		);
-		const plain = (p: SamplingPolicy) => ({ mode: p.mode, minFields: p.minFields, windowDays: p.windowDays, thresholdPer100: p.thresholdPer100, probability: p.probability });
-		await audit({ actorId: actor.id, entity: 'verification_policy', entityId: batteryId, action: 'set_policy', oldValue: plain(before), newValue: plain(next) }, t);
+		const plain = (p: SamplingPolicy) => ({
+			mode: p.mode,
+			minFields: p.minFields,
+			windowDays: p.windowDays,
+			thresholdPer100: p.thresholdPer100,
+			probability: p.probability
+		});
+		await audit(
+			{ actorId: actor.id, entity: 'verification_policy', entityId: batteryId, action: 'set_policy', oldValue: plain(before), newValue: plain(next) },
+			t
+		);
 		return getPolicy(batteryId, t);
 	});
 }
@@ -166,13 +184,28 @@ async function setStanding(scorerId: number, batteryId: number, mode: 'full' | '
 		{ scorer_id: scorerId, battery_id: batteryId, mode, since: now, reverted_at: reverted ? now : before.revertedAt, reason: reason.slice(0, 300) },
 		{ transaction: t }
 	);
-	await audit({ actorId: null, entity: 'verification_scorer', entityId: `${scorerId}:${batteryId}`, action: mode === 'sampled' ? 'sampling_on' : 'sampling_off', oldValue: { mode: before.mode, since: before.since }, newValue: { mode, scorer: scorerId, battery: batteryId }, reason }, t);
+	await audit(
+		{
+			actorId: null,
+			entity: 'verification_scorer',
+			entityId: `${scorerId}:${batteryId}`,
+			action: mode === 'sampled' ? 'sampling_on' : 'sampling_off',
+			oldValue: { mode: before.mode, since: before.since },
+			newValue: { mode, scorer: scorerId, battery: batteryId },
+			reason
+		},
+		t
+	);
 }
 
 /** Put a scorer back on full double entry at once and e-mail the leads (through the outbox). */
 async function backToFull(scorerId: number, batteryId: number, reason: string, t: Transaction) {
 	await setStanding(scorerId, batteryId, 'full', reason, true, t);
-	const n = await selectOne<{ n: number }>('SELECT COUNT(*) AS n FROM audit_events WHERE entity = \'verification_scorer\' AND entity_id = :e', { e: `${scorerId}:${batteryId}` }, t);
+	const n = await selectOne<{ n: number }>(
+		"SELECT COUNT(*) AS n FROM audit_events WHERE entity = 'verification_scorer' AND entity_id = :e",
+		{ e: `${scorerId}:${batteryId}` },
+		t
+	);
 	await enqueueMail('verification_full', `verification-full:${scorerId}:${batteryId}:${n?.n ?? 0}`, { scorerId, batteryId, reason }, t);
 }
 
@@ -180,15 +213,32 @@ async function backToFull(scorerId: number, batteryId: number, reason: string, t
  * Re-read a scorer's record under the battery's policy and move their standing: full → sampled when
  * they qualify; sampled → full when they no longer do (e-mailing the leads when it is the error rate).
  */
-export async function reassess(scorerId: number, batteryId: number, t: Transaction): Promise<{ standing: Standing; qualification: Qualification | null; policy: SamplingPolicy }> {
+export async function reassess(
+	scorerId: number,
+	batteryId: number,
+	t: Transaction
+): Promise<{ standing: Standing; qualification: Qualification | null; policy: SamplingPolicy }> {
 	const policy = await getPolicy(batteryId, t);
 	let s = await standing(scorerId, batteryId, t);
 	if (policy.mode !== 'sampled') return { standing: s, qualification: null, policy };
 	const q = await qualification(scorerId, batteryId, policy, s, t);
 	if (s.mode === 'full' && q.qualifies) {
-		await setStanding(scorerId, batteryId, 'sampled', `qualified: ${q.errors} raw-score errors in ${q.fields} raw fields, 95% upper bound ${q.upperPer100.toFixed(3)} per 100 < ${policy.thresholdPer100}`, false, t);
+		await setStanding(
+			scorerId,
+			batteryId,
+			'sampled',
+			`qualified: ${q.errors} raw-score errors in ${q.fields} raw fields, 95% upper bound ${q.upperPer100.toFixed(3)} per 100 < ${policy.thresholdPer100}`,
+			false,
+			t
+		);
 	} else if (s.mode === 'sampled' && !q.qualifies) {
-		if (q.fields >= policy.minFields) await backToFull(scorerId, batteryId, `rolling raw-score error rate: ${q.errors} in ${q.fields} raw fields, 95% upper bound ${q.upperPer100.toFixed(3)} per 100 is not below ${policy.thresholdPer100}`, t);
+		if (q.fields >= policy.minFields)
+			await backToFull(
+				scorerId,
+				batteryId,
+				`rolling raw-score error rate: ${q.errors} in ${q.fields} raw fields, 95% upper bound ${q.upperPer100.toFixed(3)} per 100 is not below ${policy.thresholdPer100}`,
+				t
+			);
 		else await setStanding(scorerId, batteryId, 'full', `fewer than ${policy.minFields} raw fields in the window (${q.fields})`, false, t);
 	}
 	s = await standing(scorerId, batteryId, t);
@@ -222,7 +272,13 @@ export async function decideAtFirstSubmit(p: ProtocolRow, scores: Scores, fields
 			outcome = drawValue < Math.round(policy.probability * DRAW_SCALE) ? 'drawn' : 'not_drawn';
 		}
 	}
-	const plainPolicy = { mode: policy.mode, minFields: policy.minFields, windowDays: policy.windowDays, thresholdPer100: policy.thresholdPer100, probability: policy.probability };
+	const plainPolicy = {
+		mode: policy.mode,
+		minFields: policy.minFields,
+		windowDays: policy.windowDays,
+		thresholdPer100: policy.thresholdPer100,
+		probability: policy.probability
+	};
 	await VerificationProtocol.upsert(
 		{
 			protocol_id: p.id,
@@ -250,7 +306,13 @@ export async function decideAtFirstSubmit(p: ProtocolRow, scores: Scores, fields
 				entityId: p.id,
 				protocolId: p.id,
 				action: 'verification_draw',
-				newValue: { outcome, drawValue, scale: DRAW_SCALE, policy: plainPolicy, qualification: qual ? { fields: qual.fields, errors: qual.errors, upperPer100: qual.upperPer100 } : null }
+				newValue: {
+					outcome,
+					drawValue,
+					scale: DRAW_SCALE,
+					policy: plainPolicy,
+					qualification: qual ? { fields: qual.fields, errors: qual.errors, upperPer100: qual.upperPer100 } : null
+				}
 			},
 			t
 		);
@@ -262,10 +324,18 @@ export async function decideAtFirstSubmit(p: ProtocolRow, scores: Scores, fields
 async function recordSinglePass(p: ProtocolRow, pass: { id: number; scorer_id: number; fields_entered: number; scores: Scores }, t: Transaction) {
 	const codes = Object.keys(pass.scores);
 	const domains = new Map<string, string>();
-	if (codes.length) for (const r of await select<{ code: string; domain: string }>('SELECT code, domain FROM tests WHERE code IN (:codes) ORDER BY is_current ASC, version ASC', { codes }, t)) domains.set(r.code, r.domain);
+	if (codes.length)
+		for (const r of await select<{ code: string; domain: string }>(
+			'SELECT code, domain FROM tests WHERE code IN (:codes) ORDER BY is_current ASC, version ASC',
+			{ codes },
+			t
+		))
+			domains.set(r.code, r.domain);
 	const at = new Date();
 	const rawCount = rawFieldsOf(pass.scores);
-	const rows: unknown[][] = [[pass.id, '', p.id, p.round, 'first', pass.scorer_id, p.battery_id, '', Math.max(0, Number(pass.fields_entered) - rawCount), 0, 0, at]];
+	const rows: unknown[][] = [
+		[pass.id, '', p.id, p.round, 'first', pass.scorer_id, p.battery_id, '', Math.max(0, Number(pass.fields_entered) - rawCount), 0, 0, at]
+	];
 	for (const code of codes) {
 		const derived = FIELDS.filter((f) => f !== 'raw' && entered(pass.scores[code]?.[f])).length;
 		if (derived) rows.push([pass.id, code, p.id, p.round, 'first', pass.scorer_id, p.battery_id, domains.get(code) ?? 'unknown', derived, 0, derived, at]);
@@ -280,13 +350,19 @@ async function recordSinglePass(p: ProtocolRow, pass: { id: number; scorer_id: n
  * Not drawn: check the single pass against the recomputation from its own raw scores, store the
  * findings as the round's discrepancies (all the first pass's) and move the protocol to review.
  */
-export async function reconcileSinglePass(p: ProtocolRow, pass: { id: number; scorer_id: number; fields_entered: number; scores: Scores }, actor: Actor, t: Transaction) {
+export async function reconcileSinglePass(
+	p: ProtocolRow,
+	pass: { id: number; scorer_id: number; fields_entered: number; scores: Scores },
+	actor: Actor,
+	t: Transaction
+) {
 	const { input } = await engineInput(p, { first: pass.scores, second: pass.scores }, t);
 	let result;
 	try {
 		result = singlePassFindings(reconcile(input));
 	} catch (e) {
-		if (e instanceof ReconcileInputError) throw new WorkflowError(422, `The protocol cannot be checked: ${e.message}. Nothing was changed; ask a lead to check the catalog.`, undefined, 'catalog');
+		if (e instanceof ReconcileInputError)
+			throw new WorkflowError(422, `The protocol cannot be checked: ${e.message}. Nothing was changed; ask a lead to check the catalog.`, undefined, 'catalog');
 		throw e;
 	}
 	await storeDiscrepancies(p, result as Parameters<typeof storeDiscrepancies>[1], t);
@@ -317,7 +393,12 @@ export async function afterReconcile(p: ProtocolRow, t: Transaction) {
 		const s = await standing(p.first_scorer_id, p.battery_id, t);
 		if (s.mode === 'sampled' && protocolAboveThreshold(x, n, Number(row.policy?.thresholdPer100 ?? policy.thresholdPer100))) {
 			const code = await selectOne<{ code: string }>('SELECT e.code FROM examinees e WHERE e.id = :id', { id: p.examinee_id }, t);
-			await backToFull(p.first_scorer_id, p.battery_id, `sampled protocol ${code?.code ?? p.id}: ${x} raw-score discrepanc${x === 1 ? 'y' : 'ies'} in ${n} raw fields (${((x / Math.max(1, n)) * 100).toFixed(2)} per 100, above ${row.policy?.thresholdPer100 ?? policy.thresholdPer100})`, t);
+			await backToFull(
+				p.first_scorer_id,
+				p.battery_id,
+				`sampled protocol ${code?.code ?? p.id}: ${x} raw-score discrepanc${x === 1 ? 'y' : 'ies'} in ${n} raw fields (${((x / Math.max(1, n)) * 100).toFixed(2)} per 100, above ${row.policy?.thresholdPer100 ?? policy.thresholdPer100})`,
+				t
+			);
 		}
 	}
 	if (policy.mode === 'sampled') {
@@ -330,7 +411,11 @@ export async function afterReconcile(p: ProtocolRow, t: Transaction) {
 export async function afterResolution(discrepancyId: number, t: Transaction) {
 	const d = await selectOne<{ field: string; protocol_id: number }>('SELECT field, protocol_id FROM discrepancies WHERE id = :id', { id: discrepancyId }, t);
 	if (!d || d.field !== 'raw') return;
-	const p = await selectOne<{ battery_id: number; first_scorer_id: number; second_scorer_id: number }>('SELECT battery_id, first_scorer_id, second_scorer_id FROM protocols WHERE id = :id', { id: d.protocol_id }, t);
+	const p = await selectOne<{ battery_id: number; first_scorer_id: number; second_scorer_id: number }>(
+		'SELECT battery_id, first_scorer_id, second_scorer_id FROM protocols WHERE id = :id',
+		{ id: d.protocol_id },
+		t
+	);
 	if (!p) return;
 	const policy = await getPolicy(p.battery_id, t);
 	if (policy.mode !== 'sampled') return;
@@ -341,22 +426,34 @@ export async function afterResolution(discrepancyId: number, t: Transaction) {
 // ---------------------------------------------------------------- single pass: reading and guarding
 
 export async function isSinglePass(protocolId: number, t?: Tx): Promise<boolean> {
-	const r = await selectOne<{ n: number }>(`SELECT COUNT(*) AS n FROM verification_protocols WHERE protocol_id = :p AND outcome = 'not_drawn'`, { p: protocolId }, t);
+	const r = await selectOne<{ n: number }>(
+		`SELECT COUNT(*) AS n FROM verification_protocols WHERE protocol_id = :p AND outcome = 'not_drawn'`,
+		{ p: protocolId },
+		t
+	);
 	return Number(r?.n ?? 0) > 0;
 }
 
 export async function singlePassIds(ids: number[], t?: Tx): Promise<Set<number>> {
 	if (ids.length === 0) return new Set();
-	const rows = await select<{ protocol_id: number }>(`SELECT protocol_id FROM verification_protocols WHERE protocol_id IN (:ids) AND outcome = 'not_drawn'`, { ids }, t);
+	const rows = await select<{ protocol_id: number }>(
+		`SELECT protocol_id FROM verification_protocols WHERE protocol_id IN (:ids) AND outcome = 'not_drawn'`,
+		{ ids },
+		t
+	);
 	return new Set(rows.map((r) => Number(r.protocol_id)));
 }
 
 /** The second pass of a single-pass protocol is closed. */
 export async function guardSecondPass(p: ProtocolRow, t?: Tx) {
-	if (await isSinglePass(p.id, t)) throw conflict('This protocol was not drawn for a second pass: it goes to review as a single pass, and your second pass is no longer needed. Nothing was saved.');
+	if (await isSinglePass(p.id, t))
+		throw conflict(
+			'This protocol was not drawn for a second pass: it goes to review as a single pass, and your second pass is no longer needed. Nothing was saved.'
+		);
 }
 
-export const SINGLE_PASS_NOTE = 'Single pass: entered once; derived scores checked against the recomputation from its raw scores; raw scores not double-entered.';
+export const SINGLE_PASS_NOTE =
+	'Single pass: entered once; derived scores checked against the recomputation from its raw scores; raw scores not double-entered.';
 
 /**
  * What the protocol page shows. A scorer learns nothing before the first pass is submitted; leads
@@ -399,9 +496,15 @@ export async function requireSecondPass(protocolId: number, actor: Actor, reason
 			await audit({ actorId: actor.id, entity: 'verification_protocol', entityId: p.id, action: 'require_second_pass', reason }, t);
 			return { status: p.status };
 		}
-		if (row?.outcome !== 'not_drawn' || p.status !== 'in_review') throw conflict('This protocol already gets a second pass (or is signed off: reopen it first).');
-		const resolved = await selectOne<{ n: number }>('SELECT COUNT(*) AS n FROM discrepancies WHERE protocol_id = :p AND round = :r AND resolved_at IS NOT NULL', { p: p.id, r: p.round }, t);
-		if (Number(resolved?.n) > 0) throw conflict('The reviewer has already resolved findings of this single pass; a second pass can be required only before any decision.');
+		if (row?.outcome !== 'not_drawn' || p.status !== 'in_review')
+			throw conflict('This protocol already gets a second pass (or is signed off: reopen it first).');
+		const resolved = await selectOne<{ n: number }>(
+			'SELECT COUNT(*) AS n FROM discrepancies WHERE protocol_id = :p AND round = :r AND resolved_at IS NOT NULL',
+			{ p: p.id, r: p.round },
+			t
+		);
+		if (Number(resolved?.n) > 0)
+			throw conflict('The reviewer has already resolved findings of this single pass; a second pass can be required only before any decision.');
 		await exec('DELETE FROM discrepancies WHERE protocol_id = :p AND round = :r', { p: p.id, r: p.round }, t);
 		await applyToDaily({ protocolId: p.id, round: p.round }, -1, t);
 		await exec('DELETE FROM audit_fields WHERE protocol_id = :p AND round = :r', { p: p.id, r: p.round }, t);
@@ -411,8 +514,23 @@ export async function requireSecondPass(protocolId: number, actor: Actor, reason
 			t
 		);
 		if (moved.affected !== 1) throw conflict('This protocol changed at the same moment elsewhere. Reload to see its state.');
-		await VerificationProtocol.update({ outcome: 'required', required_by: actor.id, required_at: new Date(), required_reason: reason }, { where: { protocol_id: p.id }, transaction: t });
-		await audit({ actorId: actor.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'require_second_pass', oldValue: { status: 'in_review', outcome: 'not_drawn' }, newValue: { status: 'awaiting_second', outcome: 'required' }, reason }, t);
+		await VerificationProtocol.update(
+			{ outcome: 'required', required_by: actor.id, required_at: new Date(), required_reason: reason },
+			{ where: { protocol_id: p.id }, transaction: t }
+		);
+		await audit(
+			{
+				actorId: actor.id,
+				entity: 'protocol',
+				entityId: p.id,
+				protocolId: p.id,
+				action: 'require_second_pass',
+				oldValue: { status: 'in_review', outcome: 'not_drawn' },
+				newValue: { status: 'awaiting_second', outcome: 'required' },
+				reason
+			},
+			t
+		);
 		return { status: 'awaiting_second' as const };
 	});
 }
@@ -492,4 +610,3 @@ export async function verificationAudit(): Promise<{ rows: ScorerRisk[]; policie
 	rows.sort((a, b) => a.scorer.localeCompare(b.scorer) || a.battery.localeCompare(b.battery));
 	return { rows, policies };
 }
-

@@ -22,12 +22,23 @@ export const load: PageServerLoad = async (event) => {
 		const mail = view.protocol.status === 'in_review' || view.protocol.status === 'verified' ? await listProtocolMail(id) : [];
 		let warnings: string[] = [];
 		if (isLead || view.duties.includes('reviewer')) {
-			const ex = await selectOne<{ birth_date: string; sex: string | null; education_years: number | null }>('SELECT birth_date, sex, education_years FROM examinees WHERE id = :id', { id: view.protocol.examinee_id });
-			const plan = await planGroups(view.protocol.battery_id, view.protocol.norm_set_id, { birthDate: ex!.birth_date, sex: ex!.sex, educationYears: ex!.education_years }, view.protocol.test_date).catch(() => null);
+			const ex = await selectOne<{ birth_date: string; sex: string | null; education_years: number | null }>(
+				'SELECT birth_date, sex, education_years FROM examinees WHERE id = :id',
+				{ id: view.protocol.examinee_id }
+			);
+			const plan = await planGroups(
+				view.protocol.battery_id,
+				view.protocol.norm_set_id,
+				{ birthDate: ex!.birth_date, sex: ex!.sex, educationYears: ex!.education_years },
+				view.protocol.test_date
+			).catch(() => null);
 			warnings = [...new Set((plan?.plan ?? []).flatMap((x) => x.warnings.map((w) => w.message)))];
 		}
 		const people = isLead
-			? { scorers: (await usersWithRole('scorer')).map((u) => ({ id: u.id, name: u.name })), reviewers: (await usersWithRole('reviewer')).map((u) => ({ id: u.id, name: u.name })) }
+			? {
+					scorers: (await usersWithRole('scorer')).map((u) => ({ id: u.id, name: u.name })),
+					reviewers: (await usersWithRole('reviewer')).map((u) => ({ id: u.id, name: u.name }))
+				}
 			: null;
 		const amendments = isLead || view.duties.includes('reviewer') ? await protocolAmendments(id) : [];
 		return {
@@ -67,7 +78,9 @@ export const actions: Actions = {
 		const parsed = reassignSchema.safeParse(Object.fromEntries(await event.request.formData()));
 		if (!parsed.success) return fail(400, { action: 'reassign', message: parsed.error.issues[0].message, field: String(parsed.error.issues[0].path[0]) });
 		try {
-			await reassign(idParam(event.params.id), parsed.data.duty, parsed.data.userId, parsed.data.reason, user, (p, t) => notifyReviewerChanged(p.id, p.round, p.reviewer_id, t));
+			await reassign(idParam(event.params.id), parsed.data.duty, parsed.data.userId, parsed.data.reason, user, (p, t) =>
+				notifyReviewerChanged(p.id, p.round, p.reviewer_id, t)
+			);
 			return { action: 'reassign', ok: true };
 		} catch (e) {
 			return actionError(e, 'reassign');

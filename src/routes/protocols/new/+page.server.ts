@@ -59,7 +59,8 @@ export const actions: Actions = {
 			);
 			redirect(303, `/protocols/${id}?created=1`);
 		} catch (e) {
-			if (e instanceof WorkflowError) return fail(e.status, { values, errors: { [e.field ?? 'form']: e.message }, uncovered: (e.detail?.uncovered as UncoveredTest[] | undefined) ?? null });
+			if (e instanceof WorkflowError)
+				return fail(e.status, { values, errors: { [e.field ?? 'form']: e.message }, uncovered: (e.detail?.uncovered as UncoveredTest[] | undefined) ?? null });
 			throw e;
 		}
 	}

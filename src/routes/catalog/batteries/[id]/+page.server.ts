@@ -17,7 +17,13 @@ export const load: PageServerLoad = async (event) => {
 		domains,
 		normSets: normSets.map((n) => ({ id: n.id, name: n.name, version: n.version })),
 		form: await superValidate(
-			{ code: battery.code, name: battery.name, description: battery.description ?? '', norm_set_id: battery.norm_set_id, tests: battery.items.map((i) => i.code) },
+			{
+				code: battery.code,
+				name: battery.name,
+				description: battery.description ?? '',
+				norm_set_id: battery.norm_set_id,
+				tests: battery.items.map((i) => i.code)
+			},
 			zod4(batterySchema)
 		),
 		canEdit: event.locals.user!.roles.includes('lead')

@@ -8,7 +8,9 @@ import { exportNormGroupsCsv, exportTestsCsv, CatalogError } from '$lib/server/c
 export const GET: RequestHandler = async (event) => {
 	requireRole(event, 'lead', 'admin');
 	const csvResponse = (csv: string, filename: string) =>
-		new Response(csv, { headers: { 'content-type': 'text/csv; charset=utf-8', 'content-disposition': contentDisposition('attachment', filename, 'export.csv') } });
+		new Response(csv, {
+			headers: { 'content-type': 'text/csv; charset=utf-8', 'content-disposition': contentDisposition('attachment', filename, 'export.csv') }
+		});
 	if (event.params.kind === 'tests') return csvResponse(await exportTestsCsv(), 'crosstally-tests.csv');
 	const kind = event.params.kind;
 	if (kind === 'norms' || kind === 'tables' || kind === 'equations') {

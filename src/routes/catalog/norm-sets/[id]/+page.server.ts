@@ -20,11 +20,22 @@ export const load: PageServerLoad = async (event) => {
 		set,
 		groups,
 		tests: tests.map((t) => ({ code: t.code, name: t.name })),
-		subjects: [...tests.map((t) => ({ code: t.code, name: t.name, composite: false })), ...composites.map((c) => ({ code: c.code, name: c.name, composite: true }))],
+		subjects: [
+			...tests.map((t) => ({ code: t.code, name: t.name, composite: false })),
+			...composites.map((c) => ({ code: c.code, name: c.name, composite: true }))
+		],
 		spans,
 		test: event.url.searchParams.get('test') ?? '',
 		metaForm: await superValidate(
-			{ code: set.code, name: set.name, source: set.source, version: set.version, borrow_days: set.age_rule.borrowDays === 'actual' ? 'actual' : '30', rounding: set.age_rule.rounding, covariate_age: set.covariate_age },
+			{
+				code: set.code,
+				name: set.name,
+				source: set.source,
+				version: set.version,
+				borrow_days: set.age_rule.borrowDays === 'actual' ? 'actual' : '30',
+				rounding: set.age_rule.rounding,
+				covariate_age: set.covariate_age
+			},
 			zod4(normSetSchema),
 			{ id: 'meta' }
 		),

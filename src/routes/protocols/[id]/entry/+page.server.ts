@@ -13,15 +13,40 @@ export const load: PageServerLoad = async (event) => {
 		const battery = await selectOne<{ name: string }>('SELECT name FROM batteries WHERE id = :id', { id: pass.protocol.battery_id });
 		// Only what the scorer needs to look scores up: never norms, references or the other pass.
 		return {
-			protocol: { id: pass.protocol.id, code: ex!.code, testDate: pass.protocol.test_date, age: pass.protocol.age_text, status: pass.protocol.status, battery: battery!.name },
+			protocol: {
+				id: pass.protocol.id,
+				code: ex!.code,
+				testDate: pass.protocol.test_date,
+				age: pass.protocol.age_text,
+				status: pass.protocol.status,
+				battery: battery!.name
+			},
 			which: pass.which,
 			status: pass.status,
 			scores: pass.scores,
 			draftVersion: pass.draftVersion,
 			submittedAt: pass.submittedAt,
 			// percentileOnly: the norm gives percentile bands (typed as the manual writes them), not a reference
-			tests: pass.tests.map((t) => ({ code: t.code, name: t.name, domain: t.domainName, unit: t.unit, direction: t.direction, group: t.groupText, raw: t.raw, bounds: t.bounds, reported: t.reported, percentileOnly: t.normScale === 'percentile' })),
-			composites: pass.composites.map((c) => ({ code: c.code, name: c.name, parts: c.parts, partField: c.part_field, reported: c.reported, group: c.groupText }))
+			tests: pass.tests.map((t) => ({
+				code: t.code,
+				name: t.name,
+				domain: t.domainName,
+				unit: t.unit,
+				direction: t.direction,
+				group: t.groupText,
+				raw: t.raw,
+				bounds: t.bounds,
+				reported: t.reported,
+				percentileOnly: t.normScale === 'percentile'
+			})),
+			composites: pass.composites.map((c) => ({
+				code: c.code,
+				name: c.name,
+				parts: c.parts,
+				partField: c.part_field,
+				reported: c.reported,
+				group: c.groupText
+			}))
 		};
 	} catch (e) {
 		pageError(e);

@@ -12,7 +12,16 @@ export const load: PageServerLoad = async (event) => {
 		const view = await protocolView(id, user);
 		const previous = await previousDecisions(id, review.protocol.round);
 		return {
-			protocol: { id, code: view.examinee.code, status: review.protocol.status, round: review.protocol.round, lockVersion: review.protocol.lock_version, battery: view.battery.name, testDate: review.protocol.test_date, age: review.protocol.age_text },
+			protocol: {
+				id,
+				code: view.examinee.code,
+				status: review.protocol.status,
+				round: review.protocol.round,
+				lockVersion: review.protocol.lock_version,
+				battery: view.battery.name,
+				testDate: review.protocol.test_date,
+				age: review.protocol.age_text
+			},
 			assignments: view.assignments,
 			canResolve: review.canResolve,
 			singlePass: review.singlePass,

@@ -37,7 +37,11 @@ export const POST: RequestHandler = async (event) => {
 		// The transaction rolled back: say so plainly (the detail is logged, never sent).
 		console.error(`[submit] protocol ${event.params.id}:`, e instanceof Error ? e.stack : e);
 		return json(
-			{ message: 'Submitting failed and nothing was changed: your pass is still a saved draft. The error is logged; try again, or tell your lead if it keeps happening.', code: 'submit_failed' },
+			{
+				message:
+					'Submitting failed and nothing was changed: your pass is still a saved draft. The error is logged; try again, or tell your lead if it keeps happening.',
+				code: 'submit_failed'
+			},
 			{ status: 500 }
 		);
 	}
