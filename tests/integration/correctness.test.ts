@@ -305,7 +305,9 @@ describe('item 6: creating a protocol never guesses', () => {
 		expect(r.body.status).toBe(422);
 		for (const code of ['speeded-match', 'word-recall', 'word-recall-delayed', 'word-harvest', 'switch-rule']) expect(r.body.data).toContain(code);
 		expect(r.body.data).toContain('No norm group covers age 14;8;19 for 5 tests');
-		expect(r.body.data).toContain('a18: 18;0–29;11');
+		// the groups offered are named by what they cover: a18 is 216–359 months = 18×12 → 18;0 to 29×12 + 11 → 29;11
+		expect(r.body.data).toContain('ages 18;0–29;11');
+		expect(r.body.data).not.toContain('a18: ');
 		expect((await selectOne<{ n: number }>('SELECT COUNT(*) AS n FROM examinees WHERE code = :code', { code: fields.code }))!.n).toBe(0);
 		// A group for every test but a reason too short for one: still refused, naming that test.
 		const overrides: Record<string, string> = {};
@@ -317,7 +319,8 @@ describe('item 6: creating a protocol never guesses', () => {
 		overrides['reason.word-harvest'] = 'no';
 		const short = await lead.action('/protocols/new', { ...fields, ...overrides });
 		expect(short.body.status).toBe(422);
-		expect(short.body.data).toContain('Give a reason for using group a18-e13 for Word Harvest');
+		// a18-e13: the same ages, 13–30 years of education (the demo catalog's upper band)
+		expect(short.body.data).toContain('Give a reason for using the norm group for ages 18;0–29;11, 13–30 years of education for Word Harvest');
 		overrides['reason.word-harvest'] = 'Youngest band, 13+ years of education split.';
 		const ok = await lead.action('/protocols/new', { ...fields, ...overrides });
 		expect(ok.body.type, JSON.stringify(ok.body)).toBe('redirect');

@@ -9,6 +9,7 @@ import { getUser } from '../users';
 import { batteryTests, batteryComposites, normGroups, normSet, groupDef, protocolTests } from './catalog-read';
 import { selectNormGroup, dayNumber, parseIsoDate, type AgeWarning } from '../../scoring/age';
 import { ageCovariate, COVARIATE_LABELS, type Covariate } from '../../catalog/norm-forms';
+import { groupWords } from '../../catalog/ranges';
 import { models } from '../models';
 import { WorkflowError, notFound, invalid, conflict } from './errors';
 import { clinicToday } from '../clock';
@@ -175,7 +176,7 @@ export async function planGroups(
  * used or not), so a missing one refuses the protocol, naming the test and the covariate.
  */
 export function covariatesFor(
-	groups: { test_code: string; group_code: string; form?: string; coefficients?: unknown }[],
+	groups: ({ test_code: string; group_code: string; form?: string; coefficients?: unknown } & Parameters<typeof groupWords>[0])[],
 	rule: 'whole_years' | 'decimal_years',
 	ex: { birthDate: string; sex?: string | null; educationYears?: number | null },
 	age: { years: number },
@@ -193,7 +194,7 @@ export function covariatesFor(
 		for (const k of Object.keys((g.coefficients ?? {}) as object) as Covariate[]) {
 			if (have[k] === undefined)
 				throw invalid(
-					`${testName(g.test_code)} is normed by a regression equation (group ${g.group_code}) that needs ${COVARIATE_LABELS[k].toLowerCase()}; the examinee's record has none.`,
+					`${testName(g.test_code)} is normed by a regression equation (norm group for ${groupWords(g)}) that needs ${COVARIATE_LABELS[k].toLowerCase()}; the examinee's record has none.`,
 					k === 'education' ? 'educationYears' : k === 'sex' ? 'sex' : 'birthDate'
 				);
 		}
@@ -208,8 +209,6 @@ export interface UncoveredTest {
 	message: string;
 	groups: { code: string; label: string }[];
 }
-
-const monthsText = (m: number) => `${Math.floor(m / 12)};${m % 12}`;
 
 export async function createProtocol(input: NewProtocol, actor: Actor): Promise<number> {
 	if (input.examinee.birthDate) {
@@ -311,14 +310,15 @@ async function insertProtocol(input: NewProtocol, actor: Actor): Promise<number>
 			let message: string | null = null;
 			if (!o?.groupCode) message = `No norm group of this norm set covers age ${age.text} for ${test.name}; choose one with a reason.`;
 			else if (!mine.some((g) => g.group_code === o.groupCode)) message = `Norm group ${o.groupCode} does not exist for ${test.name}.`;
-			else if (!o.reason || o.reason.trim().length < 5) message = `Give a reason for using group ${o.groupCode} for ${test.name} (at least a few words).`;
+			else if (!o.reason || o.reason.trim().length < 5)
+				message = `Give a reason for using the norm group for ${groupWords(mine.find((g) => g.group_code === o.groupCode)!)} for ${test.name} (at least a few words).`;
 			uncovered.push({
 				testCode: test.code,
 				testName: test.name,
 				message: message ?? '',
 				groups: mine.map((g) => ({
 					code: g.group_code,
-					label: `${g.group_code}: ${monthsText(g.age_min_months)}–${monthsText(g.age_max_months)}${g.sex ? `, ${g.sex}` : ''}${g.edu_min !== null || g.edu_max !== null ? `, education ${g.edu_min ?? 0}–${g.edu_max ?? 99} years` : ''}`
+					label: groupWords(g)
 				}))
 			});
 		}
