@@ -51,9 +51,10 @@ const authorize: Handle = async ({ event, resolve }) => {
 	try {
 		// Most requests: the cookie is checked here with one Redis round trip and not re-issued; Auth.js's
 		// full session path runs only when the token is due for re-issue or must be refused (session.ts).
-		const quick = await quickSession(event.cookies, event.url.protocol === 'https:');
+		const write = event.request.method !== 'GET' && event.request.method !== 'HEAD';
+		const quick = await quickSession(event.cookies, event.url.protocol === 'https:', write);
 		if (quick.kind === 'user') event.locals.user = quick.user;
-		else if (quick.kind === 'full') event.locals.user = await sessionUser(await event.locals.auth());
+		else if (quick.kind === 'full') event.locals.user = await sessionUser(await event.locals.auth(), write);
 	} catch (e) {
 		if (e instanceof SessionUnchecked) unchecked = true;
 		else {

@@ -9,6 +9,8 @@
  * every request. Trade-off: the idle logoff counts from the last *re-issue*, so a session can end up to
  * that much earlier than SESSION_IDLE_MINUTES after its last request (at most 60 s with the default 30 min).
  * Redis unreachable: SessionUnchecked, which the hook answers 503 (fail closed, like sign-in).
+ * Writes (any method but GET and HEAD) read the account from the database all the same (`fresh`):
+ * they use the database anyway, and a database outage then answers 503 before a form is validated.
  */
 import type { Session } from '@auth/sveltekit';
 import type { Cookies } from '@sveltejs/kit';
@@ -35,7 +37,7 @@ export const refreshAfterMs = () => Math.min(60_000, (config.sessionIdleMinutes 
  * The account's state: from Redis when the cached entry is current, else from the database (and
  * then stored). `pre` is the generation and entry already read in the session check's round trip.
  */
-export async function accountState(uid: number, pre?: { gen: string | null; entry: string | null }): Promise<CachedUser | null> {
+export async function accountState(uid: number, pre?: { gen: string | null; entry: string | null }, fresh = false): Promise<CachedUser | null> {
 	let gen: string | null, entry: string | null;
 	if (pre) ({ gen, entry } = pre);
 	else {
@@ -45,7 +47,7 @@ export async function accountState(uid: number, pre?: { gen: string | null; entr
 			throw new SessionUnchecked();
 		}
 	}
-	const hit = currentEntry(gen, entry);
+	const hit = fresh ? null : currentEntry(gen, entry);
 	if (hit) return hit;
 	const u = await getUser(uid);
 	if (!u) return null;
@@ -61,11 +63,11 @@ function toLocals(state: CachedUser | null, sv: unknown): LocalsUser {
 }
 
 /** After Auth.js's full session path (`event.locals.auth()`). */
-export async function sessionUser(session: Session | null): Promise<LocalsUser> {
+export async function sessionUser(session: Session | null, fresh = false): Promise<LocalsUser> {
 	const uid = session?.user?.uid;
 	if (!uid) return null;
 	if (session.user.checked === false) throw new SessionUnchecked();
-	return toLocals(await accountState(uid), session.user.sv);
+	return toLocals(await accountState(uid, undefined, fresh), session.user.sv);
 }
 
 export type QuickSession = { kind: 'none' } | { kind: 'full' } | { kind: 'user'; user: LocalsUser };
@@ -75,7 +77,7 @@ export type QuickSession = { kind: 'none' } | { kind: 'full' } | { kind: 'user';
  * when Auth.js must run (token due for re-issue, revoked, unreadable, chunked, expired), else the
  * user (null when deactivated or the session version moved on).
  */
-export async function quickSession(cookies: Cookies, secure: boolean): Promise<QuickSession> {
+export async function quickSession(cookies: Cookies, secure: boolean, fresh = false): Promise<QuickSession> {
 	const name = `${secure ? '__Secure-' : ''}authjs.session-token`;
 	const raw = cookies.get(name);
 	if (!raw) return cookies.getAll().some((c) => c.name.startsWith(name)) ? { kind: 'full' } : { kind: 'none' };
@@ -91,5 +93,5 @@ export async function quickSession(cookies: Cookies, secure: boolean): Promise<Q
 	const check = await sessionCheck(sid, ep, uid);
 	if (check.state === 'unknown') throw new SessionUnchecked();
 	if (check.state === 'revoked') return { kind: 'full' }; // Auth.js's jwt callback refuses it and clears the cookie
-	return { kind: 'user', user: toLocals(await accountState(uid, check), sv) };
+	return { kind: 'user', user: toLocals(await accountState(uid, check, fresh), sv) };
 }
