@@ -334,6 +334,11 @@ describe('item 6: creating a protocol never guesses', () => {
 		expect(
 			(await selectOne<{ n: number }>("SELECT COUNT(*) AS n FROM audit_events WHERE protocol_id = :id AND action = 'norm_group_override'", { id }))!.n
 		).toBe(5);
+		// the history names the groups by what they cover: none covered 14;8;19, then a18-e13 (216–359
+		// months = 18;0–29;11, 13–30 years of education)
+		const page = await (await lead.get(`/protocols/${id}`)).text();
+		expect(page).toContain('Word Harvest: no group covers the age → ages 18;0–29;11, 13–30 years of education');
+		expect(page).not.toContain('group a18');
 	});
 
 	it('an existing examinee code with another birth date is refused; the same date or none reuses the examinee', async () => {

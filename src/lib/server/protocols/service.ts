@@ -596,6 +596,13 @@ export async function protocolView(id: number, user: Actor) {
 	const battery = await selectOne<{ code: string; name: string }>('SELECT code, name FROM batteries WHERE id = :id', { id: p.battery_id });
 	const set = await normSet(p.norm_set_id);
 	const tests = await protocolTests(p.id);
+	// every group of the protocol's tests in words, for history lines that name a group by its code
+	const groupText: Record<string, Record<string, string>> = {};
+	for (const g of await normGroups(
+		p.norm_set_id,
+		tests.map((x) => x.code)
+	))
+		(groupText[g.test_code] ??= {})[g.group_code] = groupWords(g);
 	const people = await select<{ id: number; name: string }>('SELECT id, name FROM users WHERE id IN (:ids)', {
 		ids: [p.first_scorer_id, p.second_scorer_id, p.reviewer_id]
 	});
@@ -645,6 +652,7 @@ export async function protocolView(id: number, user: Actor) {
 			version: x.version,
 			reported: x.reported as string[]
 		})),
+		groupText,
 		assignments: { first: nameOf(p.first_scorer_id), second: nameOf(p.second_scorer_id), reviewer: nameOf(p.reviewer_id) },
 		passes: passes.map((x) => ({
 			which: x.which,
