@@ -344,7 +344,24 @@ describe('Summary at every width', () => {
 				expect(right, `at ${w}`).toBeLessThanOrEqual(w);
 			}
 		}
+		// a summary with composites: on a phone every shown value of every row, composites' too, names its column
+		await page.goto(`${BASE_URL}/protocols/${ids.twVerified}/summary`, { waitUntil: 'load' });
+		await page.setViewportSize({ width: 390, height: 900 });
+		await settle(page);
+		const unlabelled = await page
+			.getByTestId('summary-table')
+			.locator('tbody tr[data-test], tbody tr[data-composite]')
+			.evaluateAll((rows) =>
+				rows.flatMap((r) =>
+					[...r.querySelectorAll(':scope > td:not(.test-col)')]
+						.filter((td) => getComputedStyle(td).display !== 'none' && ['none', 'normal', ''].includes(getComputedStyle(td, '::before').content))
+						.map((td) => `${r.getAttribute('data-test') ?? r.getAttribute('data-composite')}: ${td.textContent?.trim()}`)
+				)
+			);
+		expect(unlabelled).toEqual([]);
+		expect(await page.getByTestId('summary-table').locator('tbody tr[data-composite]').count()).toBeGreaterThan(0);
 		// print keeps the table whatever the window's width (the stacking is for the screen only)
+		await page.goto(`${BASE_URL}/protocols/${ids.verified}/summary`, { waitUntil: 'load' });
 		await page.setViewportSize({ width: 390, height: 900 });
 		await page.emulateMedia({ media: 'print' });
 		expect(
