@@ -37,13 +37,17 @@ ensure_build() {
 		return 0
 	fi
 	log "building the app"
+	# the stamp takes the time the build starts: a source saved during the build is newer, so the
+	# next run builds again instead of serving the build that missed it
+	local started="$CROSSTALLY_DATA_DIR/.build-started"
+	mkdir -p "$CROSSTALLY_DATA_DIR" && touch "$started"
 	# tsconfig.json extends ./.svelte-kit/tsconfig.json; a build into another kit dir (the bench's
 	# CROSSTALLY_KIT_DIR) does not write that file, so a never-built checkout needs one sync first.
 	if [ ! -f .svelte-kit/tsconfig.json ]; then
 		env -u CROSSTALLY_KIT_DIR node_modules/.bin/svelte-kit sync >"$CROSSTALLY_DATA_DIR/sync.log" 2>&1 || { cat "$CROSSTALLY_DATA_DIR/sync.log" >&2; die "svelte-kit sync failed"; }
 	fi
 	npx vite build --logLevel warn >"$CROSSTALLY_DATA_DIR/build.log" 2>&1 || { tail -40 "$CROSSTALLY_DATA_DIR/build.log" >&2; die "build failed (log: $CROSSTALLY_DATA_DIR/build.log)"; }
-	touch "$stamp"
+	mv -f "$started" "$stamp"
 }
 
 mariadb_bin() { command -v "$1" 2>/dev/null || echo "/usr/sbin/$1"; }
