@@ -473,5 +473,9 @@ describe('a composite waits on its parts (Tidewater battery)', () => {
 		const later = await resolve(index[1].id, { choice: 'recomputed' });
 		expect(later.status, JSON.stringify(later.body)).toBe(200);
 		expect(later.body.resolvedValue).toBe('120');
+		// the protocol's history names the composite as the screens do, not by its code
+		const page = await (await lead.get(`/protocols/${id}`)).text();
+		expect(page).toContain('Memory Index, ');
+		expect(page).not.toContain('memory-index, ');
 	});
 });

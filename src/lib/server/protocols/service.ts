@@ -653,6 +653,8 @@ export async function protocolView(id: number, user: Actor) {
 			reported: x.reported as string[]
 		})),
 		groupText,
+		/** composites' names too, for history lines about a composite's cards */
+		compositeNames: Object.fromEntries((await batteryComposites(p.battery_id)).map((c) => [c.code, c.name])),
 		assignments: { first: nameOf(p.first_scorer_id), second: nameOf(p.second_scorer_id), reviewer: nameOf(p.reviewer_id) },
 		passes: passes.map((x) => ({
 			which: x.which,
