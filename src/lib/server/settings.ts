@@ -4,7 +4,7 @@
  * with its audit event (before and after) in one transaction.
  */
 import { transaction } from './db';
-import { audit } from './audit';
+import { recordEvent } from './trail';
 import { reviewMailSettings, saveReviewMailSettings, REVIEW_MAIL_SETTING, type ReviewMailSettings } from './mail/review';
 
 export async function serviceSettings(): Promise<ReviewMailSettings> {
@@ -21,7 +21,7 @@ export async function updateServiceSettings(next: ReviewMailSettings, actorId: n
 			before.detail !== next.detail;
 		if (!changed) return { changed: false };
 		await saveReviewMailSettings(next, t);
-		await audit({ actorId, entity: 'settings', entityId: REVIEW_MAIL_SETTING, action: 'update', oldValue: before, newValue: next }, t);
+		await recordEvent({ actorId, entity: 'settings', entityId: REVIEW_MAIL_SETTING, action: 'update', oldValue: before, newValue: next }, t);
 		return { changed: true };
 	});
 }

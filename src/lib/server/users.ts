@@ -4,7 +4,7 @@ import { createHash, randomBytes } from 'node:crypto';
 import { select, selectOne, exec, transaction, type Tx } from './db';
 import { config } from './config';
 import { parseRoles, type Role } from '../roles';
-import { audit } from './audit';
+import { recordEvent } from './trail';
 import { signInThrottle } from './throttle';
 import { invalidateUser, invalidateUserAfterCommit } from './user-cache';
 
@@ -89,7 +89,10 @@ export async function createUser(input: { email: string; name: string; roles: Ro
 		{ email: input.email.toLowerCase(), name: input.name, roles: input.roles.join(','), hash },
 		t
 	);
-	await audit({ actorId, entity: 'user', entityId: insertId, action: 'create', newValue: { email: input.email, name: input.name, roles: input.roles } }, t);
+	await recordEvent(
+		{ actorId, entity: 'user', entityId: insertId, action: 'create', newValue: { email: input.email, name: input.name, roles: input.roles } },
+		t
+	);
 	return insertId;
 }
 
@@ -101,7 +104,7 @@ export async function setRoles(id: number, roles: Role[], actorId: number): Prom
 		const before = await getUser(id, t);
 		if (!before) throw new Error('no such user');
 		await exec('UPDATE users SET roles = :roles WHERE id = :id', { id, roles: roles.join(',') }, t);
-		await audit({ actorId, entity: 'user', entityId: id, action: 'roles', oldValue: before.roles, newValue: roles }, t);
+		await recordEvent({ actorId, entity: 'user', entityId: id, action: 'roles', oldValue: before.roles, newValue: roles }, t);
 		await invalidateUser(id);
 	});
 	await invalidateUserAfterCommit(id);
@@ -111,7 +114,7 @@ export async function setRoles(id: number, roles: Role[], actorId: number): Prom
 export async function setActive(id: number, active: boolean, actorId: number): Promise<void> {
 	await transaction(async (t) => {
 		await exec('UPDATE users SET active = :active, session_version = session_version + 1 WHERE id = :id', { id, active: active ? 1 : 0 }, t);
-		await audit({ actorId, entity: 'user', entityId: id, action: active ? 'reactivate' : 'deactivate' }, t);
+		await recordEvent({ actorId, entity: 'user', entityId: id, action: active ? 'reactivate' : 'deactivate' }, t);
 		await invalidateUser(id);
 	});
 	await invalidateUserAfterCommit(id);
@@ -181,7 +184,10 @@ function setPasswordWithToken(token: string, hash: string): Promise<TokenCheck> 
 		const { affected } = await exec('UPDATE user_tokens SET used_at = CURRENT_TIMESTAMP(3) WHERE token_hash = :h AND used_at IS NULL', { h: sha256(token) }, t);
 		if (affected !== 1) return { ok: false, reason: 'This link has already been used.' };
 		await exec('UPDATE users SET password_hash = :hash, session_version = session_version + 1 WHERE id = :id', { hash, id: check.userId }, t);
-		await audit({ actorId: check.userId, entity: 'user', entityId: check.userId, action: check.purpose === 'invite' ? 'accept_invite' : 'reset_password' }, t);
+		await recordEvent(
+			{ actorId: check.userId, entity: 'user', entityId: check.userId, action: check.purpose === 'invite' ? 'accept_invite' : 'reset_password' },
+			t
+		);
 		await invalidateUser(check.userId);
 		return check;
 	}).then(async (check: TokenCheck) => {

@@ -1,6 +1,6 @@
 /** Batteries: ordered lists of tests grouped by domain, as a protocol is administered. */
 import { exec, select, selectOne, transaction, type Tx } from '../db';
-import { audit } from '../audit';
+import { recordEvent } from '../trail';
 import { batterySchema, type BatteryInput, type CompositeInput, type CompositeField } from '../../catalog/schema';
 import { models } from '../models';
 import { CatalogError, notFoundError } from './errors';
@@ -203,7 +203,7 @@ export async function createBattery(input: unknown, actorId: number | null): Pro
 		);
 		await writeTests(r.insertId, groupByDomain(b.tests, domainOf), tr);
 		await writeComposites(r.insertId, b, tr);
-		await audit({ actorId, entity: 'battery', entityId: r.insertId, action: 'create', newValue: b }, tr);
+		await recordEvent({ actorId, entity: 'battery', entityId: r.insertId, action: 'create', newValue: b }, tr);
 		return (await getBattery(r.insertId, tr))!;
 	});
 }
@@ -233,7 +233,7 @@ export async function updateBattery(id: number, input: unknown, actorId: number 
 		);
 		await writeTests(id, groupByDomain(b.tests, domainOf), tr);
 		await writeComposites(id, b, tr);
-		await audit(
+		await recordEvent(
 			{
 				actorId,
 				entity: 'battery',

@@ -4,7 +4,7 @@
  * transaction, or none does.
  */
 import { select, transaction } from '../db';
-import { audit } from '../audit';
+import { recordEvent } from '../trail';
 import {
 	normEquationsToCsv,
 	normGroupsToCsv,
@@ -89,7 +89,7 @@ export async function confirmImport(req: ImportConfirm, actorId: number | null):
 					throw e;
 				}
 			}
-			await audit({ actorId, entity: 'catalog_import', entityId: 'tests', action: 'import', newValue: out }, tr);
+			await recordEvent({ actorId, entity: 'catalog_import', entityId: 'tests', action: 'import', newValue: out }, tr);
 			return out;
 		});
 	}
@@ -114,7 +114,7 @@ export async function confirmImport(req: ImportConfirm, actorId: number | null):
 			created: r.added,
 			removed: r.removed
 		};
-		await audit({ actorId, entity: 'catalog_import', entityId: setId, action: 'import', newValue: out }, tr);
+		await recordEvent({ actorId, entity: 'catalog_import', entityId: setId, action: 'import', newValue: out }, tr);
 		return out;
 	});
 }

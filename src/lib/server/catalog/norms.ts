@@ -5,7 +5,7 @@
  * version of the norm set instead.
  */
 import { db, exec, select, selectOne, transaction, type Tx } from '../db';
-import { audit } from '../audit';
+import { recordEvent } from '../trail';
 import { ageRuleOf, normGroupSchema, normSetSchema, type NormGroupInput, type NormSetInput } from '../../catalog/schema';
 import { rangeProblems, groupWords, type RangeRow } from '../../catalog/ranges';
 import { SCALE_BOUNDS, sumSpan, tableProblems, type Coefficients, type CovariateAge, type RawSpan, type TableRowInput } from '../../catalog/norm-forms';
@@ -163,7 +163,7 @@ export async function createNormSet(input: unknown, actorId: number | null, tx?:
 			{ ...s, rule: JSON.stringify(ageRuleOf(s)) },
 			tr
 		);
-		await audit({ actorId, entity: 'norm_set', entityId: r.insertId, action: 'create', newValue: s }, tr);
+		await recordEvent({ actorId, entity: 'norm_set', entityId: r.insertId, action: 'create', newValue: s }, tr);
 		return (await getNormSet(r.insertId, tr))!;
 	};
 	return tx ? run(tx) : transaction(run);
@@ -181,7 +181,7 @@ export async function updateNormSet(id: number, input: unknown, actorId: number 
 			{ ...s, rule: JSON.stringify(ageRuleOf(s)), id },
 			tr
 		);
-		await audit({ actorId, entity: 'norm_set', entityId: id, action: 'update', oldValue: old, newValue: s }, tr);
+		await recordEvent({ actorId, entity: 'norm_set', entityId: id, action: 'update', oldValue: old, newValue: s }, tr);
 		return (await getNormSet(id, tr))!;
 	};
 	return tx ? run(tx) : transaction(run);
@@ -227,7 +227,7 @@ export async function updateNormSetWithGroups(
 				groups.map((g, i) => ({ ...g, label: `groups[${i}] (${g.test_code} ${g.group_code})` })),
 				tr
 			);
-			await audit({ actorId, entity: 'norm_set', entityId: id, action: 'replace_groups', newValue: r }, tr);
+			await recordEvent({ actorId, entity: 'norm_set', entityId: id, action: 'replace_groups', newValue: r }, tr);
 		}
 		return { normSet: (await getNormSet(id, tr))!, groups: await listNormGroups(id, {}, tr) };
 	});
@@ -397,7 +397,7 @@ export async function addNormGroup(normSetId: number, input: unknown, actorId: n
 		const existing = await listNormGroups(normSetId, { test: g.test_code }, tr);
 		assertRanges([...existing.map((e) => ({ ...e, label: label(e) })), { ...checked, label: `the new group (${groupWords(checked)})` }]);
 		const id = await insertGroup(normSetId, checked, tr);
-		await audit({ actorId, entity: 'norm_group', entityId: id, action: 'create', newValue: { norm_set_id: normSetId, ...checked } }, tr);
+		await recordEvent({ actorId, entity: 'norm_group', entityId: id, action: 'create', newValue: { norm_set_id: normSetId, ...checked } }, tr);
 		return { id, norm_set_id: normSetId, ...checked };
 	});
 }
@@ -430,7 +430,7 @@ export async function updateNormGroup(groupId: number, input: unknown, actorId: 
 		);
 		await exec('DELETE FROM norm_table_rows WHERE norm_group_id = :id', { id: groupId }, tr);
 		await writeRows(groupId, checked, tr);
-		await audit({ actorId, entity: 'norm_group', entityId: groupId, action: 'update', oldValue: old, newValue: checked }, tr);
+		await recordEvent({ actorId, entity: 'norm_group', entityId: groupId, action: 'update', oldValue: old, newValue: checked }, tr);
 		return { id: groupId, norm_set_id: old.norm_set_id, ...checked };
 	});
 }
@@ -447,7 +447,7 @@ export async function deleteNormGroup(groupId: number, actorId: number | null): 
 		const others = (await listNormGroups(old.norm_set_id, { test: old.test_code }, tr)).filter((e) => e.id !== groupId);
 		assertRanges(others.map((e) => ({ ...e, label: label(e) })));
 		await exec('DELETE FROM norm_groups WHERE id = :id', { id: groupId }, tr);
-		await audit({ actorId, entity: 'norm_group', entityId: groupId, action: 'delete', oldValue: old }, tr);
+		await recordEvent({ actorId, entity: 'norm_group', entityId: groupId, action: 'delete', oldValue: old }, tr);
 	});
 }
 

@@ -4,7 +4,7 @@
  * in place. Name, unit, domain and notes never make a version.
  */
 import { exec, select, selectOne, transaction, type Tx } from '../db';
-import { audit } from '../audit';
+import { recordEvent } from '../trail';
 import { canonicalReported, testInputSchema, type Bounds, type Derived, type TestInput } from '../../catalog/schema';
 import { CatalogError, notFoundError } from './errors';
 
@@ -113,7 +113,7 @@ export async function createDomain(input: { code: string; name: string }, actorI
 		throw new CatalogError(409, 'That domain already exists.', { code: `The domain ${input.code} already exists` }, 'conflict');
 	const pos = await selectOne<{ p: number | null }>('SELECT MAX(position) AS p FROM domains');
 	await exec('INSERT INTO domains (code, name, position) VALUES (:code, :name, :pos)', { ...input, pos: Number(pos?.p ?? 0) + 10 });
-	await audit({ actorId, entity: 'domain', entityId: input.code, action: 'create', newValue: input });
+	await recordEvent({ actorId, entity: 'domain', entityId: input.code, action: 'create', newValue: input });
 }
 
 function boundsKey(b: Bounds | null | undefined): string {
@@ -180,7 +180,7 @@ export async function createTest(input: unknown, actorId: number | null, tx?: Tx
 		if (await selectOne('SELECT id FROM tests WHERE code = :code LIMIT 1', { code: t.code }, tr))
 			throw new CatalogError(409, 'A test with this code already exists.', { code: `The code ${t.code} is taken` }, 'conflict');
 		const id = await insertVersion(t, 1, tr);
-		await audit({ actorId, entity: 'test', entityId: t.code, action: 'create', newValue: { ...t, version: 1 } }, tr);
+		await recordEvent({ actorId, entity: 'test', entityId: t.code, action: 'create', newValue: { ...t, version: 1 } }, tr);
 		return (await getTestVersion(id, tr))!;
 	};
 	return tx ? run(tx) : transaction(run);
@@ -220,7 +220,7 @@ export async function updateTest(code: string, input: unknown, actorId: number |
 		if (used) {
 			await exec('UPDATE tests SET is_current = 0 WHERE id = :id', { id: old.id }, tr);
 			const id = await insertVersion(t, old.version + 1, tr);
-			await audit(
+			await recordEvent(
 				{
 					actorId,
 					entity: 'test',
@@ -242,7 +242,7 @@ export async function updateTest(code: string, input: unknown, actorId: number |
 			{ ...p, id: old.id },
 			tr
 		);
-		await audit({ actorId, entity: 'test', entityId: code, action: 'update', oldValue: old, newValue: t }, tr);
+		await recordEvent({ actorId, entity: 'test', entityId: code, action: 'update', oldValue: old, newValue: t }, tr);
 		return { test: (await getTestVersion(old.id, tr))!, outcome: 'updated', changed: [...changed, ...other] };
 	};
 	return tx ? run(tx) : transaction(run);

@@ -11,7 +11,7 @@
 import { z } from 'zod';
 import type { Transaction } from 'sequelize';
 import { select, selectOne, exec, transaction } from '../db';
-import { audit } from '../audit';
+import { recordEvent } from '../trail';
 import { protocolFor, type Actor, type ProtocolRow } from './service';
 import { protocolTests } from './catalog-read';
 import { carryPasses, finalScores } from './review';
@@ -90,7 +90,7 @@ export async function proposeAmendment(protocolId: number, user: Actor, body: un
 			},
 			{ transaction: t }
 		);
-		await audit(
+		await recordEvent(
 			{
 				actorId: user.id,
 				entity: 'amendment',
@@ -124,7 +124,7 @@ export async function decideAmendment(amendmentId: number, user: Actor, body: un
 		if (input.decision === 'refuse') {
 			if (!input.note || input.note.length < 3) throw invalid('note: say why the amendment is refused', 'note');
 			await a.update({ status: 'refused', decided_by: user.id, decided_at: new Date(), decision_note: input.note }, { transaction: t });
-			await audit(
+			await recordEvent(
 				{
 					actorId: user.id,
 					entity: 'amendment',
@@ -229,7 +229,7 @@ async function apply(p: ProtocolRow, a: Amendment, actor: Actor, t: Transaction,
 		t
 	);
 	await a.update({ status: 'applied', round: next, decided_by: actor.id, decided_at: new Date(), decision_note: note }, { transaction: t });
-	await audit(
+	await recordEvent(
 		{
 			actorId: actor.id,
 			entity: 'protocol',

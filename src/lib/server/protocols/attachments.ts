@@ -7,7 +7,7 @@ import { chmod, mkdir, writeFile, readFile, unlink } from 'node:fs/promises';
 import { join } from 'node:path';
 import { config } from '../config';
 import { exec, selectOne, transaction } from '../db';
-import { audit } from '../audit';
+import { recordEvent } from '../trail';
 import { protocolFor, attachmentHidden, type Actor } from './service';
 import { WorkflowError, notFound } from './errors';
 import { cleanFilename } from '../filenames';
@@ -53,7 +53,7 @@ export async function addAttachment(protocolId: number, user: Actor, file: File 
 				{ p: p.id, filename, mime: type.mime, size: bytes.length, sha: sha256, storage, uid: user.id },
 				t
 			);
-			await audit(
+			await recordEvent(
 				{
 					actorId: user.id,
 					entity: 'attachment',

@@ -17,7 +17,7 @@
  */
 import type { Transaction } from 'sequelize';
 import { select, selectOne, exec, jsonValue, type Tx } from '../db';
-import { audit } from '../audit';
+import { recordEvent } from '../trail';
 import { protocolTests, normGroups, normDef, engineTest } from './catalog-read';
 import { reconcile, testReferences, type Kind } from '../../scoring/reconcile';
 import type { NormEntry } from '../../scoring/norms';
@@ -180,7 +180,7 @@ export async function rejudgeDerived(
 				{ rs, uid: cause.actorId, by: cause.by, cid: cause.id, id: d.id },
 				t
 			);
-			await audit(
+			await recordEvent(
 				{
 					actorId: cause.actorId,
 					entity: 'discrepancy',
@@ -206,7 +206,7 @@ export async function rejudgeDerived(
 			{ rs, kind, id: d.id },
 			t
 		);
-		await audit(
+		await recordEvent(
 			{
 				actorId: cause.actorId,
 				entity: 'discrepancy',
@@ -249,7 +249,7 @@ export async function rejudgeDerived(
 			{ p: p.id, r: p.round, pos: ++position, test: testCode, field, pass: base, kind, value: v, other: otherScores[field] ?? null, expected: rs },
 			t
 		);
-		await audit(
+		await recordEvent(
 			{
 				actorId: cause.actorId,
 				entity: 'discrepancy',

@@ -5,7 +5,7 @@
  */
 import { z } from 'zod';
 import { selectOne, exec, transaction, jsonValue, type Tx } from '../db';
-import { audit } from '../audit';
+import { recordEvent } from '../trail';
 import { protocolFor, type Actor, type ProtocolRow } from './service';
 import { protocolTests, protocolComposites, normGroups, normDef, engineTest, engineComposite, type CatalogTest, type CatalogComposite } from './catalog-read';
 import { reconcile, ReconcileInputError, type FieldValues, type ReconcileResult } from '../../scoring/reconcile';
@@ -262,7 +262,7 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 				undefined,
 				'already_submitted'
 			);
-		await audit(
+		await recordEvent(
 			{
 				actorId: user.id,
 				entity: 'pass',
@@ -281,7 +281,7 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 			if (outcome === 'not_drawn') {
 				const single = await reconcileSinglePass(p, { id: pass.id, scorer_id: pass.scorer_id, fields_entered: pass.fields_entered, scores }, user, t);
 				await moveProtocol(p, 'in_review', t);
-				await audit(
+				await recordEvent(
 					{
 						actorId: user.id,
 						entity: 'protocol',
@@ -297,7 +297,7 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 				return { which, status: 'in_review' as const, discrepancies: single.discrepancies.length, singlePass: true };
 			}
 			await moveProtocol(p, 'awaiting_second', t);
-			await audit(
+			await recordEvent(
 				{ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'status', oldValue: p.status, newValue: 'awaiting_second' },
 				t
 			);
@@ -322,7 +322,7 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 		}
 		await storeDiscrepancies(p, result, t);
 		await moveProtocol(p, 'in_review', t);
-		await audit(
+		await recordEvent(
 			{
 				actorId: user.id,
 				entity: 'protocol',

@@ -5,7 +5,7 @@ import type { Transaction } from 'sequelize';
  */
 import { z } from 'zod';
 import { select, selectOne, exec, transaction, jsonValue } from '../db';
-import { audit } from '../audit';
+import { recordEvent } from '../trail';
 import { protocolFor, type Actor } from './service';
 import { protocolTests, protocolComposites, normGroups } from './catalog-read';
 import type { TableRowInput } from '../catalog/norms';
@@ -326,7 +326,7 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 			t
 		);
 		if (moved.affected !== 1) throw conflict('This protocol was signed off or changed at the same moment; your choice was not saved. Reload to see its state.');
-		await audit(
+		await recordEvent(
 			{
 				actorId: user.id,
 				entity: 'discrepancy',
@@ -423,7 +423,7 @@ export async function signOff(protocolId: number, user: Actor, body: unknown) {
 		);
 		if (moved.affected !== 1)
 			throw new WorkflowError(409, 'This protocol was signed off or changed at the same moment elsewhere. Reload to see its state.', undefined, 'stale');
-		await audit(
+		await recordEvent(
 			{
 				actorId: user.id,
 				entity: 'protocol',
@@ -476,7 +476,7 @@ export async function reopen(protocolId: number, user: Actor, reason: string) {
 			t
 		);
 		if (moved.affected !== 1) throw conflict('This protocol was reopened at the same moment elsewhere.');
-		await audit(
+		await recordEvent(
 			{
 				actorId: user.id,
 				entity: 'protocol',

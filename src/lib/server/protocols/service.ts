@@ -4,7 +4,7 @@
  */
 import type { Transaction } from 'sequelize';
 import { select, selectOne, exec, transaction, isUniqueViolation, isLockConflict, type Tx } from '../db';
-import { audit } from '../audit';
+import { recordEvent } from '../trail';
 import { getUser } from '../users';
 import { batteryTests, batteryComposites, normGroups, normSet, groupDef, protocolTests } from './catalog-read';
 import { selectNormGroup, dayNumber, parseIsoDate, type AgeWarning } from '../../scoring/age';
@@ -266,7 +266,7 @@ async function insertProtocol(input: NewProtocol, actor: Actor): Promise<number>
 				},
 				t
 			);
-			await audit({ actorId: actor.id, entity: 'examinee', entityId: insertId, action: 'create', newValue: { code: input.examinee.code } }, t);
+			await recordEvent({ actorId: actor.id, entity: 'examinee', entityId: insertId, action: 'create', newValue: { code: input.examinee.code } }, t);
 			ex = { id: insertId, birth_date: input.examinee.birthDate, sex: input.examinee.sex ?? null, education_years: input.examinee.educationYears ?? null };
 		} else if (input.examinee.birthDate && input.examinee.birthDate !== ex.birth_date) {
 			// Never guess which is right: a mistyped code would attach this protocol to someone else.
@@ -349,7 +349,7 @@ async function insertProtocol(input: NewProtocol, actor: Actor): Promise<number>
 				t
 			);
 			if (reason) {
-				await audit(
+				await recordEvent(
 					{
 						actorId: actor.id,
 						entity: 'protocol',
@@ -385,7 +385,7 @@ async function insertProtocol(input: NewProtocol, actor: Actor): Promise<number>
 				t
 			);
 		}
-		await audit(
+		await recordEvent(
 			{
 				actorId: actor.id,
 				entity: 'protocol',
@@ -441,7 +441,7 @@ export async function reassign(
 		}
 		const column = duty === 'first' ? 'first_scorer_id' : duty === 'second' ? 'second_scorer_id' : 'reviewer_id';
 		await exec(`UPDATE protocols SET ${column} = :u, lock_version = lock_version + 1 WHERE id = :id`, { u: userId, id: p.id }, t);
-		await audit(
+		await recordEvent(
 			{
 				actorId: actor.id,
 				entity: 'protocol',

@@ -14,7 +14,7 @@ import { randomInt } from 'node:crypto';
 import { z } from 'zod';
 import type { Transaction } from 'sequelize';
 import { select, selectOne, exec, transaction, type Tx } from '../db';
-import { audit } from '../audit';
+import { recordEvent } from '../trail';
 import { verificationModels, type DrawOutcome } from '../models/verification';
 import {
 	DEFAULT_POLICY,
@@ -111,7 +111,7 @@ export async function setPolicy(batteryId: number, body: unknown, actor: Actor):
 			thresholdPer100: p.thresholdPer100,
 			probability: p.probability
 		});
-		await audit(
+		await recordEvent(
 			{ actorId: actor.id, entity: 'verification_policy', entityId: batteryId, action: 'set_policy', oldValue: plain(before), newValue: plain(next) },
 			t
 		);
@@ -184,7 +184,7 @@ async function setStanding(scorerId: number, batteryId: number, mode: 'full' | '
 		{ scorer_id: scorerId, battery_id: batteryId, mode, since: now, reverted_at: reverted ? now : before.revertedAt, reason: reason.slice(0, 300) },
 		{ transaction: t }
 	);
-	await audit(
+	await recordEvent(
 		{
 			actorId: null,
 			entity: 'verification_scorer',
@@ -299,7 +299,7 @@ export async function decideAtFirstSubmit(p: ProtocolRow, scores: Scores, fields
 		{ transaction: t }
 	);
 	if (outcome !== 'policy_full') {
-		await audit(
+		await recordEvent(
 			{
 				actorId: actor.id,
 				entity: 'protocol',
@@ -493,7 +493,7 @@ export async function requireSecondPass(protocolId: number, actor: Actor, reason
 			if (row?.required_by) throw conflict('A second pass is already required for this protocol.');
 			await VerificationProtocol.upsert({ protocol_id: p.id, required_by: actor.id, required_at: new Date(), required_reason: reason }, { transaction: t });
 			// not in the protocol's own history, which its scorers can read before they submit
-			await audit({ actorId: actor.id, entity: 'verification_protocol', entityId: p.id, action: 'require_second_pass', reason }, t);
+			await recordEvent({ actorId: actor.id, entity: 'verification_protocol', entityId: p.id, action: 'require_second_pass', reason }, t);
 			return { status: p.status };
 		}
 		if (row?.outcome !== 'not_drawn' || p.status !== 'in_review')
@@ -518,7 +518,7 @@ export async function requireSecondPass(protocolId: number, actor: Actor, reason
 			{ outcome: 'required', required_by: actor.id, required_at: new Date(), required_reason: reason },
 			{ where: { protocol_id: p.id }, transaction: t }
 		);
-		await audit(
+		await recordEvent(
 			{
 				actorId: actor.id,
 				entity: 'protocol',

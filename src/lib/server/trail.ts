@@ -1,7 +1,7 @@
-/** The append-only audit trail (the app's database user may only SELECT and INSERT here). */
+/** The append-only trail of every change (table audit_events; the app's database user may only SELECT and INSERT there). */
 import { exec, type Tx } from './db';
 
-export interface AuditInput {
+export interface TrailEvent {
 	actorId: number | null;
 	entity: string;
 	entityId: number | string;
@@ -12,7 +12,7 @@ export interface AuditInput {
 	reason?: string | null;
 }
 
-export async function audit(e: AuditInput, t?: Tx): Promise<void> {
+export async function recordEvent(e: TrailEvent, t?: Tx): Promise<void> {
 	await exec(
 		`INSERT INTO audit_events (actor_id, entity, entity_id, action, protocol_id, old_value, new_value, reason)
 		 VALUES (:actor, :entity, :entityId, :action, :protocolId, :oldValue, :newValue, :reason)`,
