@@ -317,16 +317,6 @@ export const normGroupSchema = z
 	});
 export type NormGroupInput = z.output<typeof normGroupSchema>;
 
-/** Field messages from a zod error, keyed by the dotted path. */
-export function issuesByPath(error: z.ZodError): Record<string, string> {
-	const out: Record<string, string> = {};
-	for (const i of error.issues) {
-		const key = i.path.length ? i.path.map(String).join('.') : 'form';
-		out[key] ??= i.message;
-	}
-	return out;
-}
-
 // ---------------------------------------------------------------------------------------------
 // CSV import requests (the JSON API)
 

@@ -1,21 +1,13 @@
 /** The People service: invitations, role changes and deactivation, with their e-mails. */
 import { transaction, isUniqueViolation } from './db';
+import { ServiceError } from './errors';
 import { createUser, getUserByEmail, setActive, setRoles, getUser } from './users';
 import { enqueueMail } from './mail/outbox';
 import type { Role } from '../roles';
 import { randomUUID } from 'node:crypto';
 
-export class PeopleError extends Error {
-	constructor(
-		public field: string,
-		message: string
-	) {
-		super(message);
-	}
-}
-
 export async function invite(input: { email: string; name: string; roles: Role[] }, actor: { id: number; name: string }): Promise<number> {
-	const taken = () => new PeopleError('email', 'An account with this e-mail already exists.');
+	const taken = () => new ServiceError(400, 'An account with this e-mail already exists.', 'email');
 	if (await getUserByEmail(input.email)) throw taken();
 	try {
 		return await transaction(async (t) => {
@@ -33,24 +25,24 @@ export async function invite(input: { email: string; name: string; roles: Role[]
 /** The account an action names, or a refusal naming the id (a stale page, or a tampered form). */
 async function existing(id: number) {
 	const user = await getUser(id);
-	if (!user) throw new PeopleError('form', `No account has id ${id}. Reload the page; it may be out of date.`);
+	if (!user) throw new ServiceError(400, `No account has id ${id}. Reload the page; it may be out of date.`, 'form');
 	return user;
 }
 
 export async function resendInvite(id: number, actor: { id: number; name: string }): Promise<void> {
 	const user = await existing(id);
-	if (!user.invited) throw new PeopleError('form', 'That person has already set a password.');
+	if (!user.invited) throw new ServiceError(400, 'That person has already set a password.', 'form');
 	await enqueueMail('invite', `invite:${id}:${randomUUID()}`, { userId: id, invitedBy: actor.name });
 }
 
 export async function changeRoles(id: number, roles: Role[], actor: { id: number }): Promise<void> {
-	if (id === actor.id && !roles.includes('admin')) throw new PeopleError('roles', 'You cannot remove your own administrator role.');
+	if (id === actor.id && !roles.includes('admin')) throw new ServiceError(400, 'You cannot remove your own administrator role.', 'roles');
 	await existing(id);
 	await setRoles(id, roles, actor.id);
 }
 
 export async function changeActive(id: number, active: boolean, actor: { id: number }): Promise<void> {
-	if (id === actor.id && !active) throw new PeopleError('form', 'You cannot deactivate your own account. Another administrator can.');
+	if (id === actor.id && !active) throw new ServiceError(400, 'You cannot deactivate your own account. Another administrator can.', 'form');
 	await existing(id);
 	await setActive(id, active, actor.id);
 }

@@ -12,13 +12,3 @@ export const inviteSchema = z.object({
 
 export const rolesSchema = z.object({ id: z.coerce.number().int().positive(), roles: rolesField });
 export const activeSchema = z.object({ id: z.coerce.number().int().positive(), active: z.enum(['0', '1']) });
-
-/** Field messages from a zod error, keyed by the first path element. */
-export function fieldErrors(error: z.ZodError): Record<string, string> {
-	const out: Record<string, string> = {};
-	for (const issue of error.issues) {
-		const key = String(issue.path[0] ?? 'form');
-		out[key] ??= issue.message;
-	}
-	return out;
-}

@@ -2,8 +2,10 @@ import type { Actions, PageServerLoad } from './$types';
 import { fail } from '@sveltejs/kit';
 import { requireRole } from '$lib/server/guard';
 import { listUsers } from '$lib/server/users';
-import { invite, resendInvite, changeRoles, changeActive, PeopleError } from '$lib/server/people';
-import { inviteSchema, rolesSchema, activeSchema, fieldErrors } from '$lib/validation/people';
+import { invite, resendInvite, changeRoles, changeActive } from '$lib/server/people';
+import { ServiceError } from '$lib/server/errors';
+import { inviteSchema, rolesSchema, activeSchema } from '$lib/validation/people';
+import { fieldMessages } from '$lib/validation/issues';
 
 export const load: PageServerLoad = async (event) => {
 	requireRole(event, 'admin');
@@ -30,7 +32,7 @@ async function run(action: string, fn: () => Promise<unknown>, values: Record<st
 		await fn();
 		return { action, ok: true as const };
 	} catch (e) {
-		if (e instanceof PeopleError) return fail(400, { action, values, errors: { [e.field]: e.message } });
+		if (e instanceof ServiceError) return fail(e.status, { action, values, errors: e.fields });
 		throw e;
 	}
 }
@@ -40,7 +42,7 @@ export const actions: Actions = {
 		const actor = requireRole(event, 'admin');
 		const values = form(await event.request.formData());
 		const parsed = inviteSchema.safeParse(values);
-		if (!parsed.success) return fail(400, { action: 'invite', values, errors: fieldErrors(parsed.error) });
+		if (!parsed.success) return fail(400, { action: 'invite', values, errors: fieldMessages(parsed.error) });
 		return run('invite', () => invite(parsed.data, actor), values);
 	},
 	resend: async (event) => {
@@ -54,14 +56,14 @@ export const actions: Actions = {
 		const actor = requireRole(event, 'admin');
 		const values = form(await event.request.formData());
 		const parsed = rolesSchema.safeParse(values);
-		if (!parsed.success) return fail(400, { action: 'roles', values, errors: fieldErrors(parsed.error) });
+		if (!parsed.success) return fail(400, { action: 'roles', values, errors: fieldMessages(parsed.error) });
 		return run('roles', () => changeRoles(parsed.data.id, parsed.data.roles, actor), values);
 	},
 	active: async (event) => {
 		const actor = requireRole(event, 'admin');
 		const values = form(await event.request.formData());
 		const parsed = activeSchema.safeParse(values);
-		if (!parsed.success) return fail(400, { action: 'active', values, errors: fieldErrors(parsed.error) });
+		if (!parsed.success) return fail(400, { action: 'active', values, errors: fieldMessages(parsed.error) });
 		return run('active', () => changeActive(parsed.data.id, parsed.data.active === '1', actor), values);
 	}
 };

@@ -6,6 +6,7 @@ import { z } from 'zod';
 import { KINDS } from '../../scoring/kinds';
 import { FIELDS, type Field } from '../../scoring/scales';
 import { isoDateField as isoDate } from '../../dates';
+import { fieldMessages } from '../../validation/issues';
 
 export interface AuditFilters {
 	/** Inclusive first day, YYYY-MM-DD (UTC). */
@@ -64,12 +65,7 @@ export function parseFilters(params: URLSearchParams): FilterResult {
 		if (values[0].trim() !== '') raw[key] = values[0].trim();
 	}
 	const parsed = schema.safeParse(raw);
-	if (!parsed.success) {
-		for (const issue of parsed.error.issues) {
-			const key = String(issue.path[0] ?? 'query');
-			errors[key] ??= issue.message;
-		}
-	}
+	if (!parsed.success) for (const [key, message] of Object.entries(fieldMessages(parsed.error))) errors[key === 'form' ? 'query' : key] ??= message;
 	if (Object.keys(errors).length > 0 || !parsed.success) return { ok: false, errors };
 	const f = parsed.data;
 	return {

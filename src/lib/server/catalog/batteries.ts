@@ -3,7 +3,7 @@ import { exec, select, selectOne, transaction, type Tx } from '../db';
 import { recordEvent } from '../trail';
 import { batterySchema, type BatteryInput, type CompositeInput, type CompositeField } from '../../catalog/schema';
 import { models } from '../models';
-import { CatalogError, notFoundError } from './errors';
+import { ServiceError, notFoundError, parseWith } from '../errors';
 import { listTests, type TestRecord } from './tests';
 
 export interface BatterySummary {
@@ -104,23 +104,17 @@ export async function getBatteryByCode(code: string, tx?: Tx): Promise<BatteryRe
 }
 
 function parse(input: unknown): BatteryInput {
-	const p = batterySchema.safeParse(input);
-	if (!p.success) {
-		const fields: Record<string, string> = {};
-		for (const i of p.error.issues) fields[String(i.path[0] ?? 'form')] ??= i.message;
-		throw new CatalogError(400, 'Some fields need correcting.', fields);
-	}
-	return p.data;
+	return parseWith(batterySchema, input, 'field');
 }
 
 async function checkRefs(b: BatteryInput, tr: Tx) {
 	if (b.norm_set_id !== null && !(await selectOne('SELECT id FROM norm_sets WHERE id = :id', { id: b.norm_set_id }, tr)))
-		throw new CatalogError(400, 'Unknown norm set.', { norm_set_id: 'Choose a norm set from the list' });
+		throw new ServiceError(400, 'Unknown norm set.', { norm_set_id: 'Choose a norm set from the list' });
 	const known = new Set(
 		(await select<{ code: string }>('SELECT code FROM tests WHERE is_current = 1 AND code IN (:codes)', { codes: b.tests }, tr)).map((r) => r.code)
 	);
 	const unknown = b.tests.filter((c) => !known.has(c));
-	if (unknown.length) throw new CatalogError(400, 'Unknown tests.', { tests: `Unknown test code${unknown.length > 1 ? 's' : ''}: ${unknown.join(', ')}` });
+	if (unknown.length) throw new ServiceError(400, 'Unknown tests.', { tests: `Unknown test code${unknown.length > 1 ? 's' : ''}: ${unknown.join(', ')}` });
 }
 
 /**
@@ -136,20 +130,20 @@ async function checkComposites(batteryId: number | null, b: BatteryInput, tr: Tx
 	const taken = await Composite.findAll({ where: { code: b.composites.map((c) => c.code) }, transaction: tr ?? undefined });
 	for (const [i, c] of b.composites.entries()) {
 		const key = `composites.${i}`;
-		if (codes.has(c.code)) throw new CatalogError(400, `Composite ${c.code} is defined twice.`, { [key]: `The code ${c.code} appears twice` });
+		if (codes.has(c.code)) throw new ServiceError(400, `Composite ${c.code} is defined twice.`, { [key]: `The code ${c.code} appears twice` });
 		codes.add(c.code);
 		if (testCodes.has(c.code))
-			throw new CatalogError(400, `Composite ${c.code}: a test has this code; composites and tests need different codes.`, {
+			throw new ServiceError(400, `Composite ${c.code}: a test has this code; composites and tests need different codes.`, {
 				[key]: `The code ${c.code} is a test's`
 			});
 		const other = taken.find((t) => t.code === c.code && t.battery_id !== batteryId);
 		if (other)
-			throw new CatalogError(409, `Composite ${c.code}: another battery has a composite with this code.`, { [key]: `The code ${c.code} is taken` }, 'conflict');
+			throw new ServiceError(409, `Composite ${c.code}: another battery has a composite with this code.`, { [key]: `The code ${c.code} is taken` }, 'conflict');
 		for (const part of c.parts) {
 			if (!b.tests.includes(part))
-				throw new CatalogError(400, `Composite ${c.code}: part ${part} is not a test of this battery.`, { [key]: `Part ${part} is not in the battery` });
+				throw new ServiceError(400, `Composite ${c.code}: part ${part} is not a test of this battery.`, { [key]: `Part ${part} is not in the battery` });
 			if (!testCodes.get(part)?.includes(c.part_field))
-				throw new CatalogError(400, `Composite ${c.code}: part ${part} does not report the ${c.part_field} score the composite sums.`, {
+				throw new ServiceError(400, `Composite ${c.code}: part ${part} does not report the ${c.part_field} score the composite sums.`, {
 					[key]: `Part ${part} does not report ${c.part_field}`
 				});
 		}
@@ -192,7 +186,7 @@ export async function createBattery(input: unknown, actorId: number | null): Pro
 	const b = parse(input);
 	return transaction(async (tr) => {
 		if (await selectOne('SELECT id FROM batteries WHERE code = :code', { code: b.code }, tr))
-			throw new CatalogError(409, 'A battery with this code already exists.', { code: `The code ${b.code} is taken` }, 'conflict');
+			throw new ServiceError(409, 'A battery with this code already exists.', { code: `The code ${b.code} is taken` }, 'conflict');
 		await checkRefs(b, tr);
 		await checkComposites(null, b, tr);
 		const domainOf = await domainLookup(tr);
@@ -222,7 +216,7 @@ export async function updateBattery(id: number, input: unknown, actorId: number 
 		const old = await getBattery(id, tr);
 		if (!old) throw notFoundError('This battery');
 		if (await selectOne('SELECT id FROM batteries WHERE code = :code AND id <> :id', { code: b.code, id }, tr))
-			throw new CatalogError(409, 'A battery with this code already exists.', { code: `The code ${b.code} is taken` }, 'conflict');
+			throw new ServiceError(409, 'A battery with this code already exists.', { code: `The code ${b.code} is taken` }, 'conflict');
 		await checkRefs(b, tr);
 		await checkComposites(id, { ...b, composites: b.composites ?? old.composites }, tr);
 		const domainOf = await domainLookup(tr);

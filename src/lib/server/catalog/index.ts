@@ -1,5 +1,5 @@
 /** The catalog services: tests (versioned), batteries, norm sets and groups, CSV import/export. */
-export * from './errors';
+export { ServiceError, notFoundError } from '../errors';
 export * from './tests';
 export * from './batteries';
 export * from './norms';

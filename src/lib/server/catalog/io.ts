@@ -17,7 +17,7 @@ import {
 } from '../../catalog/csv';
 import { validateCsvText } from '../../catalog/parse';
 import type { ImportConfirm, NormGroupInput, TestInput } from '../../catalog/schema';
-import { CatalogError, notFoundError } from './errors';
+import { ServiceError, notFoundError } from '../errors';
 import { createTest, listTests, updateTest } from './tests';
 import { createNormSet, getNormSet, listNormGroups, replaceNormGroups, subjectsOf } from './norms';
 import { models } from '../models';
@@ -52,7 +52,7 @@ export interface ImportOutcome {
 
 function refuse(result: PreviewResult): never {
 	const first = result.fileErrors[0] ?? result.errors[0]?.message ?? 'The file has problems.';
-	throw new CatalogError(
+	throw new ServiceError(
 		422,
 		result.fileErrors.length
 			? first
@@ -84,8 +84,8 @@ export async function confirmImport(req: ImportConfirm, actorId: number | null):
 						out.created!++;
 					}
 				} catch (e) {
-					if (e instanceof CatalogError)
-						throw new CatalogError(e.status === 404 ? 422 : e.status, `Line ${line}: ${e.message} Nothing was imported.`, e.fields, e.code);
+					if (e instanceof ServiceError)
+						throw new ServiceError(e.status === 404 ? 422 : e.status, `Line ${line}: ${e.message} Nothing was imported.`, e.fields, e.code);
 					throw e;
 				}
 			}

@@ -10,7 +10,7 @@ import { ageRuleOf, normGroupSchema, normSetSchema, type NormGroupInput, type No
 import { rangeProblems, groupWords, type RangeRow } from '../../catalog/ranges';
 import { SCALE_BOUNDS, sumSpan, tableProblems, type Coefficients, type CovariateAge, type RawSpan, type TableRowInput } from '../../catalog/norm-forms';
 import { models } from '../models';
-import { CatalogError, notFoundError } from './errors';
+import { ServiceError, notFoundError, parseWith } from '../errors';
 
 export interface AgeRuleJson {
 	borrowDays: 30 | 'actual';
@@ -144,20 +144,14 @@ export async function listNormGroups(normSetId: number, opts: { test?: string } 
 }
 
 function parseSet(input: unknown): NormSetInput {
-	const p = normSetSchema.safeParse(input);
-	if (!p.success) {
-		const fields: Record<string, string> = {};
-		for (const i of p.error.issues) fields[i.path.join('.') || 'form'] ??= i.message;
-		throw new CatalogError(400, 'Some fields need correcting.', fields);
-	}
-	return p.data;
+	return parseWith(normSetSchema, input);
 }
 
 export async function createNormSet(input: unknown, actorId: number | null, tx?: Tx): Promise<NormSetRecord> {
 	const s = parseSet(input);
 	const run = async (tr: Tx) => {
 		if (await selectOne('SELECT id FROM norm_sets WHERE code = :code AND version = :version', s, tr))
-			throw new CatalogError(409, 'That norm set version already exists.', { version: `${s.code} version ${s.version} already exists` }, 'conflict');
+			throw new ServiceError(409, 'That norm set version already exists.', { version: `${s.code} version ${s.version} already exists` }, 'conflict');
 		const r = await exec(
 			'INSERT INTO norm_sets (code, name, source, version, age_rule, covariate_age) VALUES (:code, :name, :source, :version, :rule, :covariate_age)',
 			{ ...s, rule: JSON.stringify(ageRuleOf(s)) },
@@ -175,7 +169,7 @@ export async function updateNormSet(id: number, input: unknown, actorId: number 
 		const old = await getNormSet(id, tr);
 		if (!old) throw notFoundError('This norm set');
 		const clash = await selectOne('SELECT id FROM norm_sets WHERE code = :code AND version = :version AND id <> :id', { ...s, id }, tr);
-		if (clash) throw new CatalogError(409, 'That norm set version already exists.', { version: `${s.code} version ${s.version} already exists` }, 'conflict');
+		if (clash) throw new ServiceError(409, 'That norm set version already exists.', { version: `${s.code} version ${s.version} already exists` }, 'conflict');
 		await exec(
 			'UPDATE norm_sets SET code = :code, name = :name, source = :source, version = :version, age_rule = :rule, covariate_age = :covariate_age WHERE id = :id',
 			{ ...s, rule: JSON.stringify(ageRuleOf(s)), id },
@@ -234,20 +228,14 @@ export async function updateNormSetWithGroups(
 }
 
 function parseGroup(input: unknown): NormGroupInput {
-	const p = normGroupSchema.safeParse(input);
-	if (!p.success) {
-		const fields: Record<string, string> = {};
-		for (const i of p.error.issues) fields[i.path.join('.') || 'form'] ??= i.message;
-		throw new CatalogError(400, 'Some fields need correcting.', fields);
-	}
-	return p.data;
+	return parseWith(normGroupSchema, input);
 }
 
 /** Refuse with the rows named when the groups of the given tests would overlap or leave gaps. */
 export function assertRanges(rows: RangeRow[]): void {
 	const problems = rangeProblems(rows);
 	if (problems.length) {
-		throw new CatalogError(422, problems.map((p) => p.message).join('\n'), { age_min_months: problems[0].message }, 'age_ranges');
+		throw new ServiceError(422, problems.map((p) => p.message).join('\n'), { age_min_months: problems[0].message }, 'age_ranges');
 	}
 }
 
@@ -337,7 +325,7 @@ export async function checkForms<G extends NormGroupInput>(groups: readonly (G &
 	});
 	if (problems.length) {
 		const shown = problems.slice(0, 20);
-		throw new CatalogError(
+		throw new ServiceError(
 			422,
 			shown.join('\n') + (problems.length > shown.length ? `\n… and ${problems.length - shown.length} more` : ''),
 			{ rows: shown[0] },
@@ -409,11 +397,11 @@ export async function updateNormGroup(groupId: number, input: unknown, actorId: 
 		if (!row) throw notFoundError('This norm group');
 		const old = (await withRows([row], tr))[0];
 		if (old.test_code !== g.test_code)
-			throw new CatalogError(400, 'A norm group keeps its test.', { test_code: 'A group keeps its test; add a new group instead' });
+			throw new ServiceError(400, 'A norm group keeps its test.', { test_code: 'A group keeps its test; add a new group instead' });
 		const [checked] = await checkForms([g], tr);
 		const used = await groupsInUse([groupId], tr);
 		if (used)
-			throw new CatalogError(
+			throw new ServiceError(
 				409,
 				`The group for ${groupWords(old)} of ${old.test_code} was used by ${used} protocol(s); make a new version of the norm set instead.`,
 				{},
@@ -443,7 +431,7 @@ export async function deleteNormGroup(groupId: number, actorId: number | null): 
 		const old = (await withRows([row], tr))[0];
 		const used = await groupsInUse([groupId], tr);
 		if (used)
-			throw new CatalogError(409, `The group for ${groupWords(old)} of ${old.test_code} was used by ${used} protocol(s) and cannot be removed.`, {}, 'in_use');
+			throw new ServiceError(409, `The group for ${groupWords(old)} of ${old.test_code} was used by ${used} protocol(s) and cannot be removed.`, {}, 'in_use');
 		const others = (await listNormGroups(old.norm_set_id, { test: old.test_code }, tr)).filter((e) => e.id !== groupId);
 		assertRanges(others.map((e) => ({ ...e, label: label(e) })));
 		await exec('DELETE FROM norm_groups WHERE id = :id', { id: groupId }, tr);
@@ -473,7 +461,7 @@ export async function replaceNormGroups(
 			tr
 		);
 		if (used)
-			throw new CatalogError(
+			throw new ServiceError(
 				409,
 				`This norm set's groups for these tests were used by ${used} protocol(s); import into a new version of the norm set instead.`,
 				{},

@@ -6,7 +6,7 @@
 import { exec, select, selectOne, transaction, type Tx } from '../db';
 import { recordEvent } from '../trail';
 import { canonicalReported, testInputSchema, type Bounds, type Derived, type TestInput } from '../../catalog/schema';
-import { CatalogError, notFoundError } from './errors';
+import { ServiceError, notFoundError, parseWith } from '../errors';
 
 export interface TestRecord extends TestInput {
 	id: number;
@@ -110,7 +110,7 @@ export async function listDomains(tx?: Tx): Promise<DomainRecord[]> {
 
 export async function createDomain(input: { code: string; name: string }, actorId: number | null): Promise<void> {
 	if (await domainExists(input.code))
-		throw new CatalogError(409, 'That domain already exists.', { code: `The domain ${input.code} already exists` }, 'conflict');
+		throw new ServiceError(409, 'That domain already exists.', { code: `The domain ${input.code} already exists` }, 'conflict');
 	const pos = await selectOne<{ p: number | null }>('SELECT MAX(position) AS p FROM domains');
 	await exec('INSERT INTO domains (code, name, position) VALUES (:code, :name, :pos)', { ...input, pos: Number(pos?.p ?? 0) + 10 });
 	await recordEvent({ actorId, entity: 'domain', entityId: input.code, action: 'create', newValue: input });
@@ -164,21 +164,15 @@ async function insertVersion(t: TestInput, version: number, tx: Tx): Promise<num
 }
 
 function parseInput(input: unknown): TestInput {
-	const p = testInputSchema.safeParse(input);
-	if (!p.success) {
-		const fields: Record<string, string> = {};
-		for (const i of p.error.issues) fields[i.path.join('.') || 'form'] ??= i.message;
-		throw new CatalogError(400, 'Some fields need correcting.', fields);
-	}
-	return p.data;
+	return parseWith(testInputSchema, input);
 }
 
 export async function createTest(input: unknown, actorId: number | null, tx?: Tx): Promise<TestRecord> {
 	const t = parseInput(input);
 	const run = async (tr: Tx) => {
-		if (!(await domainExists(t.domain, tr))) throw new CatalogError(400, 'Unknown domain.', { domain: `Unknown domain ${t.domain}` });
+		if (!(await domainExists(t.domain, tr))) throw new ServiceError(400, 'Unknown domain.', { domain: `Unknown domain ${t.domain}` });
 		if (await selectOne('SELECT id FROM tests WHERE code = :code LIMIT 1', { code: t.code }, tr))
-			throw new CatalogError(409, 'A test with this code already exists.', { code: `The code ${t.code} is taken` }, 'conflict');
+			throw new ServiceError(409, 'A test with this code already exists.', { code: `The code ${t.code} is taken` }, 'conflict');
 		const id = await insertVersion(t, 1, tr);
 		await recordEvent({ actorId, entity: 'test', entityId: t.code, action: 'create', newValue: { ...t, version: 1 } }, tr);
 		return (await getTestVersion(id, tr))!;
@@ -200,12 +194,12 @@ export interface UpdateOutcome {
  */
 export async function updateTest(code: string, input: unknown, actorId: number | null, tx?: Tx): Promise<UpdateOutcome> {
 	const t = parseInput(input);
-	if (t.code !== code) throw new CatalogError(400, 'The code of a test cannot change.', { code: 'A test keeps its code; create a new test instead' });
+	if (t.code !== code) throw new ServiceError(400, 'The code of a test cannot change.', { code: 'A test keeps its code; create a new test instead' });
 	const run = async (tr: Tx): Promise<UpdateOutcome> => {
 		const row = await selectOne<TestRow>('SELECT * FROM tests WHERE code = :code AND is_current = 1 FOR UPDATE', { code }, tr);
 		if (!row) throw notFoundError(`The test ${code}`);
 		const old = rowToTest(row);
-		if (!(await domainExists(t.domain, tr))) throw new CatalogError(400, 'Unknown domain.', { domain: `Unknown domain ${t.domain}` });
+		if (!(await domainExists(t.domain, tr))) throw new ServiceError(400, 'Unknown domain.', { domain: `Unknown domain ${t.domain}` });
 		const changed = scoreChanges(old, t);
 		const other = (['name', 'domain', 'unit', 'notes'] as const).filter((k) => (old[k] ?? null) !== (t[k] ?? null));
 		if (!changed.length && !other.length) return { test: old, outcome: 'unchanged', changed: [] };

@@ -16,7 +16,7 @@ import { protocolFor, type Actor, type ProtocolRow } from './service';
 import { protocolTests } from './catalog-read';
 import { carryPasses, finalScores } from './review';
 import { referencesForRaw, kindAgainst } from './evidence';
-import { conflict, invalid, notFound, WorkflowError } from './errors';
+import { conflict, invalid, notFound, parseFirst, ServiceError } from '../errors';
 import { amendments, type Amendment } from '../models/amendment';
 import { checkField, classifyPair } from '../../scoring/reconcile';
 import { parseEntered, formatReference, FIELDS, type DerivedField, type Field } from '../../scoring/scales';
@@ -42,12 +42,7 @@ const decisionSchema = z.object({
 });
 
 function parse<T>(schema: z.ZodType<T>, body: unknown): T {
-	const r = schema.safeParse(body);
-	if (!r.success) {
-		const issue = r.error.issues[0];
-		throw invalid(`${issue.path.join('.') || 'body'}: ${issue.message}`, String(issue.path[0] ?? 'body'));
-	}
-	return r.data;
+	return parseFirst(schema, body);
 }
 
 const same = (a: string | null | undefined, b: string | null | undefined, f: Field) => {
@@ -118,7 +113,7 @@ export async function decideAmendment(amendmentId: number, user: Actor, body: un
 		const { p, duties } = await protocolFor(a.protocol_id, user, t, true);
 		if (!duties.includes('lead')) throw notFound('This amendment');
 		if (a.status !== 'requested')
-			throw new WorkflowError(409, `This amendment was already ${a.status === 'applied' ? 'approved' : 'refused'}.`, undefined, 'decided');
+			throw new ServiceError(409, `This amendment was already ${a.status === 'applied' ? 'approved' : 'refused'}.`, undefined, 'decided');
 		if (p.status !== 'verified' || p.round !== a.from_round)
 			throw conflict('The protocol changed since this amendment was requested (reopened or amended). Refuse it and ask for a new one.');
 		if (input.decision === 'refuse') {

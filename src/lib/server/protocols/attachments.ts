@@ -9,7 +9,7 @@ import { config } from '../config';
 import { exec, selectOne, transaction } from '../db';
 import { recordEvent } from '../trail';
 import { protocolFor, attachmentHidden, type Actor } from './service';
-import { WorkflowError, notFound } from './errors';
+import { ServiceError, notFound } from '../errors';
 import { cleanFilename } from '../filenames';
 
 const TYPES: { mime: string; ext: string; test: (b: Uint8Array) => boolean }[] = [
@@ -31,12 +31,12 @@ export function safeFilename(name: string, ext: string): string {
 const dir = () => join(config.dataDir, 'uploads');
 
 export async function addAttachment(protocolId: number, user: Actor, file: File | null) {
-	if (!file || typeof file === 'string') throw new WorkflowError(400, 'Choose a file to upload.', 'file');
-	if (file.size === 0) throw new WorkflowError(400, 'The file is empty (0 bytes).', 'file');
-	if (file.size > config.uploadMaxBytes) throw new WorkflowError(413, `The file is larger than ${Math.round(config.uploadMaxBytes / 1024 / 1024)} MB.`, 'file');
+	if (!file || typeof file === 'string') throw new ServiceError(400, 'Choose a file to upload.', 'file');
+	if (file.size === 0) throw new ServiceError(400, 'The file is empty (0 bytes).', 'file');
+	if (file.size > config.uploadMaxBytes) throw new ServiceError(413, `The file is larger than ${Math.round(config.uploadMaxBytes / 1024 / 1024)} MB.`, 'file');
 	const bytes = new Uint8Array(await file.arrayBuffer());
 	const type = sniffType(bytes);
-	if (!type) throw new WorkflowError(415, 'Only PDF, PNG and JPEG scans can be attached (checked by content, not by the name).', 'file');
+	if (!type) throw new ServiceError(415, 'Only PDF, PNG and JPEG scans can be attached (checked by content, not by the name).', 'file');
 	const sha256 = createHash('sha256').update(bytes).digest('hex');
 	const storage = `${randomUUID()}.${type.ext}`;
 	// Scans are health records: a folder only the service's user can open, files only it can read.
@@ -46,7 +46,7 @@ export async function addAttachment(protocolId: number, user: Actor, file: File 
 	try {
 		return await transaction(async (t) => {
 			const { p } = await protocolFor(protocolId, user, t);
-			if (p.status === 'verified') throw new WorkflowError(409, 'A verified protocol is locked.', 'file', 'conflict');
+			if (p.status === 'verified') throw new ServiceError(409, 'A verified protocol is locked.', 'file', 'conflict');
 			const filename = safeFilename(file.name, type.ext);
 			const { insertId } = await exec(
 				`INSERT INTO attachments (protocol_id, filename, mime, size, sha256, storage_name, uploaded_by) VALUES (:p, :filename, :mime, :size, :sha, :storage, :uid)`,

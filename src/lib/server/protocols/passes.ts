@@ -10,7 +10,7 @@ import { protocolFor, type Actor, type ProtocolRow } from './service';
 import { protocolTests, protocolComposites, normGroups, normDef, engineTest, engineComposite, type CatalogTest, type CatalogComposite } from './catalog-read';
 import { reconcile, ReconcileInputError, type FieldValues, type ReconcileResult } from '../../scoring/reconcile';
 import { formatReference, type Field } from '../../scoring/scales';
-import { conflict, invalid, notFound, WorkflowError } from './errors';
+import { conflict, invalid, notFound, parseFirst, ServiceError } from '../errors';
 import { notifyReviewStarted } from '../mail/review';
 import { recordSubmission } from '../audit-stats/record';
 import { decideAtFirstSubmit, reconcileSinglePass, afterReconcile, guardSecondPass } from '../verification';
@@ -38,14 +38,10 @@ export const draftSchema = z.object({ scores: scoresSchema, draftVersion: z.numb
 
 /** Keep only the test's raw score and the derived fields it reports (a composite: its reported fields, sum included); count what was entered. */
 export function cleanScores(raw: unknown, tests: CatalogTest[], composites: CatalogComposite[] = []): { scores: Scores; entered: number } {
-	const parsed = scoresSchema.safeParse(raw);
-	if (!parsed.success) {
-		const issue = parsed.error.issues[0];
-		throw invalid(`scores.${issue.path.join('.')}: ${issue.message}`, 'scores');
-	}
+	const scores = parseFirst(scoresSchema, raw, { prefix: 'scores', field: 'scores' });
 	const out: Scores = {};
 	let entered = 0;
-	for (const [code, fields] of Object.entries(parsed.data)) {
+	for (const [code, fields] of Object.entries(scores)) {
 		const test = tests.find((t) => t.code === code);
 		const composite = test ? undefined : composites.find((c) => c.code === code);
 		if (!test && !composite) throw invalid(`scores.${code}: this protocol has no such test or composite`, 'scores');
@@ -100,11 +96,7 @@ export async function myPass(protocolId: number, user: Actor) {
 }
 
 export async function saveDraft(protocolId: number, user: Actor, body: unknown) {
-	const parsed = draftSchema.safeParse(body);
-	if (!parsed.success) {
-		const issue = parsed.error.issues[0];
-		throw invalid(`${issue.path.join('.') || 'body'}: ${issue.message}`, String(issue.path[0] ?? 'body'));
-	}
+	const draft = parseFirst(draftSchema, body);
 	return transaction(async (t) => {
 		const { p, duties } = await protocolFor(protocolId, user, t);
 		const which = myDuty(duties);
@@ -112,8 +104,8 @@ export async function saveDraft(protocolId: number, user: Actor, body: unknown) 
 		if (pass.scorer_id !== user.id) throw notFound('This pass');
 		if (pass.status === 'submitted') throw conflict('This pass is submitted and locked; the draft was not changed.');
 		if (which === 'second') await guardSecondPass(p, t);
-		if (pass.draft_version !== parsed.data.draftVersion) {
-			throw new WorkflowError(
+		if (pass.draft_version !== draft.draftVersion) {
+			throw new ServiceError(
 				409,
 				'This pass was saved from another tab or device since you opened it. Reload to see the latest draft.',
 				'draftVersion',
@@ -121,7 +113,7 @@ export async function saveDraft(protocolId: number, user: Actor, body: unknown) 
 			);
 		}
 		const tests = await protocolTests(p.id, t);
-		const { scores, entered } = cleanScores(parsed.data.scores, tests, await protocolComposites(p.id, t));
+		const { scores, entered } = cleanScores(draft.scores, tests, await protocolComposites(p.id, t));
 		await exec(
 			'UPDATE passes SET scores = :scores, fields_entered = :entered, draft_version = draft_version + 1 WHERE id = :id',
 			{ scores: JSON.stringify(scores), entered, id: pass.id },
@@ -208,7 +200,7 @@ async function moveProtocol(p: ProtocolRow, to: ProtocolRow['status'], t: Tx) {
 		t
 	);
 	if (moved.affected !== 1)
-		throw new WorkflowError(
+		throw new ServiceError(
 			409,
 			'This protocol changed while the pass was being submitted (another submission got there first). Nothing was changed; reload to see its state.',
 			undefined,
@@ -228,14 +220,9 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 		const pass = await passRow(p, which, t, true);
 		if (pass.scorer_id !== user.id) throw notFound('This pass');
 		if (pass.status === 'submitted')
-			throw new WorkflowError(
-				409,
-				'This pass was already submitted (from another tab or an earlier try). Nothing was changed.',
-				undefined,
-				'already_submitted'
-			);
+			throw new ServiceError(409, 'This pass was already submitted (from another tab or an earlier try). Nothing was changed.', undefined, 'already_submitted');
 		if (pass.draft_version !== version.data.draftVersion) {
-			throw new WorkflowError(
+			throw new ServiceError(
 				409,
 				'This pass changed in another tab since you opened it. Reload, check the values and submit again.',
 				'draftVersion',
@@ -256,12 +243,7 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 			t
 		);
 		if (marked.affected !== 1)
-			throw new WorkflowError(
-				409,
-				'This pass was already submitted (from another tab or an earlier try). Nothing was changed.',
-				undefined,
-				'already_submitted'
-			);
+			throw new ServiceError(409, 'This pass was already submitted (from another tab or an earlier try). Nothing was changed.', undefined, 'already_submitted');
 		await recordEvent(
 			{
 				actorId: user.id,
@@ -312,7 +294,7 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 			result = reconcile(input);
 		} catch (e) {
 			if (e instanceof ReconcileInputError)
-				throw new WorkflowError(
+				throw new ServiceError(
 					422,
 					`The protocol cannot be reconciled: ${e.message}. Nothing was changed; ask a lead to check the catalog.`,
 					undefined,

@@ -10,7 +10,7 @@ import { protocolFor, type Actor } from './service';
 import { protocolTests, protocolComposites, normGroups } from './catalog-read';
 import type { TableRowInput } from '../catalog/norms';
 import { isBand, normalizePercentile, parsePercentile } from '../../catalog/norm-forms';
-import { conflict, invalid, notFound, WorkflowError } from './errors';
+import { conflict, invalid, notFound, parseFirst, ServiceError } from '../errors';
 import { charDiff } from '../../scoring/diff';
 import { explainKind, type Kind } from '../../scoring/kinds';
 import { checkField } from '../../scoring/reconcile';
@@ -96,7 +96,7 @@ export async function reviewView(protocolId: number, user: Actor) {
 	const { p, duties } = await protocolFor(protocolId, user);
 	if (!duties.includes('reviewer') && !duties.includes('lead')) throw notFound();
 	if (p.status !== 'in_review' && p.status !== 'verified')
-		throw new WorkflowError(409, 'This protocol is not in review yet: both passes must be submitted first.', undefined, 'not_in_review');
+		throw new ServiceError(409, 'This protocol is not in review yet: both passes must be submitted first.', undefined, 'not_in_review');
 	const tests = await protocolTests(p.id);
 	// Both passes' raw scores: after the second submit they are no longer blind, and a reviewer
 	// needs them to see what each recomputed value was computed from.
@@ -232,12 +232,8 @@ export const resolutionSchema = z.object({
 });
 
 export async function resolveDiscrepancy(discrepancyId: number, user: Actor, body: unknown) {
-	const parsed = resolutionSchema.safeParse(body);
-	if (!parsed.success) {
-		const issue = parsed.error.issues[0];
-		throw invalid(`${issue.path.join('.') || 'body'}: ${issue.message}`, String(issue.path[0] ?? 'body'));
-	}
-	const { choice, note } = parsed.data;
+	const input = parseFirst(resolutionSchema, body);
+	const { choice, note } = input;
 	return transaction(async (t) => {
 		const found = await selectOne<{ protocol_id: number }>('SELECT protocol_id FROM discrepancies WHERE id = :id', { id: discrepancyId }, t);
 		if (!found) throw notFound('This discrepancy');
@@ -248,7 +244,7 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 		if (!d) throw notFound('This discrepancy');
 		requireReviewer(duties);
 		if (p.status !== 'in_review' || d.round !== p.round) throw conflict('This protocol is not open for review (signed off, or a newer round exists).');
-		if (parsed.data.lockVersion !== d.lock_version) throw await staleResolution(d.id, t);
+		if (input.lockVersion !== d.lock_version) throw await staleResolution(d.id, t);
 		if (d.field !== 'raw') {
 			const raw = await selectOne<{ id: number }>(
 				`SELECT id FROM discrepancies WHERE protocol_id = :p AND round = :r AND test_code = :test AND field = 'raw' AND resolved_at IS NULL`,
@@ -256,7 +252,7 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 				t
 			);
 			if (raw)
-				throw new WorkflowError(
+				throw new ServiceError(
 					409,
 					'Settle this test’s raw score first: its derived scores are judged again against the raw score you keep.',
 					'choice',
@@ -272,7 +268,7 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 					)
 				: null;
 			if (composite && part)
-				throw new WorkflowError(
+				throw new ServiceError(
 					409,
 					`Settle the parts of ${composite.name} first (${part.test_code} is still open): the composite follows from the part scores you keep.`,
 					'choice',
@@ -284,7 +280,7 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 		if (choice === 'first') kept = v.first;
 		else if (choice === 'second') kept = v.second;
 		else if (choice === 'recomputed') kept = d.expected;
-		else kept = parsed.data.value ?? null;
+		else kept = input.value ?? null;
 		if (choice === 'recomputed' && d.expected === null) throw invalid('There is no recomputed value for this field (a raw score has no reference).', 'choice');
 		if (kept === null || kept === '')
 			throw invalid(
@@ -314,7 +310,7 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 		const { affected } = await exec(
 			`UPDATE discrepancies SET resolution = :choice, resolved_value = :kept, note = :note, resolved_by = :uid, resolved_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1
 			  WHERE id = :id AND lock_version = :lock`,
-			{ choice, kept, note: note || null, uid: user.id, id: d.id, lock: parsed.data.lockVersion },
+			{ choice, kept, note: note || null, uid: user.id, id: d.id, lock: input.lockVersion },
 			t
 		);
 		if (affected !== 1) throw await staleResolution(d.id, t);
@@ -355,13 +351,13 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 }
 
 /** The conflict answer for a resolution made on a stale view: who changed it, and to what. */
-async function staleResolution(id: number, t: Transaction): Promise<WorkflowError> {
+async function staleResolution(id: number, t: Transaction): Promise<ServiceError> {
 	const now = await selectOne<{ resolved_value: string | null; name: string | null }>(
 		'SELECT d.resolved_value, u.name FROM discrepancies d LEFT JOIN users u ON u.id = d.resolved_by WHERE d.id = :id',
 		{ id },
 		t
 	);
-	return new WorkflowError(
+	return new ServiceError(
 		409,
 		`Someone else changed this discrepancy first${now?.name ? ` (${now.name} kept ${now.resolved_value ?? 'no value'})` : ''}. Reload to see it; your choice was not saved.`,
 		undefined,
@@ -388,10 +384,10 @@ export async function signOff(protocolId: number, user: Actor, body: unknown) {
 	return transaction(async (t) => {
 		const { p, duties } = await protocolFor(protocolId, user, t, true);
 		requireReviewer(duties);
-		if (p.status === 'verified') throw new WorkflowError(409, 'This protocol is already signed off.', undefined, 'already_verified');
+		if (p.status === 'verified') throw new ServiceError(409, 'This protocol is already signed off.', undefined, 'already_verified');
 		if (p.status !== 'in_review') throw conflict('Only a protocol in review can be signed off.');
 		if (p.lock_version !== parsed.data.lockVersion)
-			throw new WorkflowError(
+			throw new ServiceError(
 				409,
 				'The protocol changed since you opened it (a decision was changed, or it was reassigned or reopened). Reload and check before signing off.',
 				undefined,
@@ -407,7 +403,7 @@ export async function signOff(protocolId: number, user: Actor, body: unknown) {
 		const against = await keptAgainstRecomputation(p.id, p.round, t);
 		if (against.length > 0 && parsed.data.confirmKept !== true) {
 			const list = against.map((x) => `${x.test} ${FIELD_LABELS[x.field] ?? x.field}: kept ${x.kept}, recomputed ${x.recomputed}`).join('; ');
-			throw new WorkflowError(
+			throw new ServiceError(
 				409,
 				`Confirm the ${against.length} kept value${against.length === 1 ? '' : 's'} that differ${against.length === 1 ? 's' : ''} from the recomputation before signing off (${list}).`,
 				'confirmKept',
@@ -422,7 +418,7 @@ export async function signOff(protocolId: number, user: Actor, body: unknown) {
 			t
 		);
 		if (moved.affected !== 1)
-			throw new WorkflowError(409, 'This protocol was signed off or changed at the same moment elsewhere. Reload to see its state.', undefined, 'stale');
+			throw new ServiceError(409, 'This protocol was signed off or changed at the same moment elsewhere. Reload to see its state.', undefined, 'stale');
 		await recordEvent(
 			{
 				actorId: user.id,

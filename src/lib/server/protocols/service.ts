@@ -11,7 +11,7 @@ import { selectNormGroup, dayNumber, parseIsoDate, type AgeWarning } from '../..
 import { ageCovariate, COVARIATE_LABELS, type Covariate } from '../../catalog/norm-forms';
 import { groupWords } from '../../catalog/ranges';
 import { models } from '../models';
-import { WorkflowError, notFound, invalid, conflict } from './errors';
+import { ServiceError, notFound, invalid, conflict } from '../errors';
 import { clinicToday } from '../clock';
 import { dateProblem } from '../../dates';
 import { cleanFilename } from '../filenames';
@@ -225,7 +225,7 @@ export async function createProtocol(input: NewProtocol, actor: Actor): Promise<
 		// Two leads creating the first protocol of one new examinee code at the same moment: the unique
 		// key (or InnoDB's deadlock check on the gap lock) refuses the second; nothing of it was written.
 		if (isUniqueViolation(e) || isLockConflict(e))
-			throw new WorkflowError(
+			throw new ServiceError(
 				409,
 				`Examinee code ${input.examinee.code} was being created by someone else at the same moment; nothing was saved. Submit again to use it.`,
 				'code',
@@ -324,7 +324,7 @@ async function insertProtocol(input: NewProtocol, actor: Actor): Promise<number>
 		}
 		const problems = uncovered.filter((u) => u.message);
 		if (problems.length)
-			throw new WorkflowError(
+			throw new ServiceError(
 				422,
 				problems.length === 1 ? problems[0].message : `No norm group covers age ${age.text} for ${problems.length} tests; choose one for each, with a reason.`,
 				`overrides.${problems[0].testCode}`,
@@ -699,4 +699,4 @@ export async function protocolHistoryFor(id: number, user: Actor) {
 	}));
 }
 
-export { WorkflowError };
+export { ServiceError };

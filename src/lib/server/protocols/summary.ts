@@ -14,7 +14,7 @@ import { isBand, bandWords, normalizePercentile } from '../../catalog/norm-forms
 import { finalScores, keptAgainstRecomputation } from './review';
 import { protocolAmendments } from './amendments';
 import { isSinglePass, SINGLE_PASS_NOTE } from '../verification';
-import { notFound, WorkflowError } from './errors';
+import { notFound, ServiceError } from '../errors';
 import { labelFor, AACN_2020 } from '../../scoring/labels';
 import { confidenceInterval } from '../../scoring/reliability';
 import { SCALES, parseEntered, normalInv, type DerivedField } from '../../scoring/scales';
@@ -68,7 +68,7 @@ function toZ(field: DerivedField, v: number): number {
 export async function protocolSummary(protocolId: number, user: Actor) {
 	const { p, duties } = await protocolFor(protocolId, user);
 	if (!duties.includes('reviewer') && !duties.includes('lead')) throw notFound();
-	if (p.status !== 'verified') throw new WorkflowError(409, 'The summary is available once the protocol is verified (signed off).', undefined, 'not_verified');
+	if (p.status !== 'verified') throw new ServiceError(409, 'The summary is available once the protocol is verified (signed off).', undefined, 'not_verified');
 	const ex = await selectOne<{ code: string }>('SELECT code FROM examinees WHERE id = :id', { id: p.examinee_id });
 	const battery = await selectOne<{ name: string }>('SELECT name FROM batteries WHERE id = :id', { id: p.battery_id });
 	const signer = await selectOne<{ name: string }>('SELECT name FROM users WHERE id = :id', { id: p.verified_by });

@@ -29,7 +29,7 @@ import {
 import { reconcile, ReconcileInputError } from '../../scoring/reconcile';
 import { protocolFor, type Actor, type ProtocolRow, type Duty } from '../protocols/service';
 import { engineInput, storeDiscrepancies, type Scores } from '../protocols/passes';
-import { conflict, invalid, notFound, WorkflowError } from '../protocols/errors';
+import { conflict, invalid, notFound, ServiceError } from '../errors';
 import { enqueueMail } from '../mail/outbox';
 import { insertMany, applyToDaily, AUDIT_FIELDS_COLUMNS } from '../audit-stats/record';
 import { FIELDS } from '../../scoring/scales';
@@ -362,7 +362,7 @@ export async function reconcileSinglePass(
 		result = singlePassFindings(reconcile(input));
 	} catch (e) {
 		if (e instanceof ReconcileInputError)
-			throw new WorkflowError(422, `The protocol cannot be checked: ${e.message}. Nothing was changed; ask a lead to check the catalog.`, undefined, 'catalog');
+			throw new ServiceError(422, `The protocol cannot be checked: ${e.message}. Nothing was changed; ask a lead to check the catalog.`, undefined, 'catalog');
 		throw e;
 	}
 	await storeDiscrepancies(p, result as Parameters<typeof storeDiscrepancies>[1], t);

@@ -2,7 +2,7 @@ import type { Actions, PageServerLoad } from './$types';
 import { requireRole } from '$lib/server/guard';
 import { verificationAudit, setPolicy } from '$lib/server/verification';
 import { actionError } from '$lib/server/http';
-import { invalid } from '$lib/server/protocols/errors';
+import { invalid } from '$lib/server/errors';
 
 /** Risk-based verification: each battery's second-pass policy and each scorer's standing and risk. */
 export const load: PageServerLoad = async (event) => {

@@ -1,9 +1,10 @@
 import type { Actions, PageServerLoad } from './$types';
 import { fail, redirect } from '@sveltejs/kit';
-import { superValidate, message, setError } from 'sveltekit-superforms';
+import { formError } from '$lib/server/http';
+import { superValidate } from 'sveltekit-superforms';
 import { zod4 } from 'sveltekit-superforms/adapters';
 import { requireRole } from '$lib/server/guard';
-import { listBatteries, listTests, listDomains, listNormSets, createBattery, CatalogError } from '$lib/server/catalog';
+import { listBatteries, listTests, listDomains, listNormSets, createBattery } from '$lib/server/catalog';
 import { batterySchema } from '$lib/catalog/schema';
 
 export const load: PageServerLoad = async (event) => {
@@ -28,11 +29,7 @@ export const actions: Actions = {
 		try {
 			id = (await createBattery(form.data, user.id)).id;
 		} catch (e) {
-			if (e instanceof CatalogError) {
-				for (const [k, m] of Object.entries(e.fields)) if (k in form.data) setError(form, k as 'code', m);
-				return message(form, `Not saved: ${e.message}`, { status: 400 });
-			}
-			throw e;
+			return formError(form, e);
 		}
 		redirect(303, `/catalog/batteries/${id}`);
 	}

@@ -1,9 +1,10 @@
 import type { Actions, PageServerLoad } from './$types';
 import { fail } from '@sveltejs/kit';
+import { formError } from '$lib/server/http';
 import { superValidate, message, setError } from 'sveltekit-superforms';
 import { zod4 } from 'sveltekit-superforms/adapters';
 import { requireRole } from '$lib/server/guard';
-import { listTests, listDomains, createTest, createDomain, CatalogError } from '$lib/server/catalog';
+import { listTests, listDomains, createTest, createDomain, ServiceError } from '$lib/server/catalog';
 import { testFormSchema, formToTestInput, domainSchema } from '$lib/catalog/schema';
 
 export const load: PageServerLoad = async (event) => {
@@ -27,11 +28,7 @@ export const actions: Actions = {
 			const t = await createTest(formToTestInput(form.data), user.id);
 			return message(form, `Added ${t.name} (${t.code}).`);
 		} catch (e) {
-			if (e instanceof CatalogError) {
-				for (const [k, m] of Object.entries(e.fields)) if (k in form.data) setError(form, k as 'code', m);
-				return message(form, `Not saved: ${e.message}`, { status: e.status === 409 ? 409 : 400 });
-			}
-			throw e;
+			return formError(form, e);
 		}
 	},
 	domain: async (event) => {
@@ -42,7 +39,7 @@ export const actions: Actions = {
 			await createDomain(domainForm.data, user.id);
 			return message(domainForm, `Added the domain ${domainForm.data.name}.`);
 		} catch (e) {
-			if (e instanceof CatalogError) return setError(domainForm, 'code', e.fields.code ?? e.message);
+			if (e instanceof ServiceError) return setError(domainForm, 'code', e.fields.code ?? e.message);
 			throw e;
 		}
 	}

@@ -4,10 +4,10 @@ import { requireRole } from '$lib/server/guard';
 import { select } from '$lib/server/db';
 import { usersWithRole } from '$lib/server/users';
 import { createProtocol, type UncoveredTest } from '$lib/server/protocols/service';
-import { WorkflowError } from '$lib/server/protocols/errors';
+import { ServiceError } from '$lib/server/errors';
 import { newProtocolSchema, overridesFrom } from '$lib/validation/protocol';
 import { clinicToday, clinicTimeZone } from '$lib/server/clock';
-import { fieldErrors } from '$lib/validation/people';
+import { fieldMessages } from '$lib/validation/issues';
 
 export const load: PageServerLoad = async (event) => {
 	requireRole(event, 'lead');
@@ -35,7 +35,7 @@ export const actions: Actions = {
 		const actor = requireRole(event, 'lead');
 		const values = Object.fromEntries(await event.request.formData()) as Record<string, string>;
 		const parsed = newProtocolSchema.safeParse(values);
-		if (!parsed.success) return fail(400, { values, errors: fieldErrors(parsed.error) });
+		if (!parsed.success) return fail(400, { values, errors: fieldMessages(parsed.error) });
 		const v = parsed.data;
 		try {
 			const id = await createProtocol(
@@ -59,7 +59,7 @@ export const actions: Actions = {
 			);
 			redirect(303, `/protocols/${id}?created=1`);
 		} catch (e) {
-			if (e instanceof WorkflowError)
+			if (e instanceof ServiceError)
 				return fail(e.status, { values, errors: { [e.field ?? 'form']: e.message }, uncovered: (e.detail?.uncovered as UncoveredTest[] | undefined) ?? null });
 			throw e;
 		}

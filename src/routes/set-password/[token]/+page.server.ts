@@ -2,7 +2,7 @@ import type { Actions, PageServerLoad } from './$types';
 import { fail, redirect } from '@sveltejs/kit';
 import { checkToken, useToken } from '$lib/server/users';
 import { passwordSchema } from '$lib/validation/auth';
-import { fieldErrors } from '$lib/validation/people';
+import { fieldMessages } from '$lib/validation/issues';
 
 export const load: PageServerLoad = async ({ params }) => {
 	const check = await checkToken(params.token);
@@ -12,7 +12,7 @@ export const load: PageServerLoad = async ({ params }) => {
 export const actions: Actions = {
 	default: async ({ params, request }) => {
 		const parsed = passwordSchema.safeParse(Object.fromEntries(await request.formData()));
-		if (!parsed.success) return fail(400, { errors: fieldErrors(parsed.error) });
+		if (!parsed.success) return fail(400, { errors: fieldMessages(parsed.error) });
 		const result = await useToken(params.token, parsed.data.password);
 		if (!result.ok) return fail(400, { errors: { form: result.reason } });
 		redirect(303, '/signin?notice=password-set');

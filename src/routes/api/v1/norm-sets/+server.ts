@@ -2,7 +2,7 @@ import type { RequestHandler } from './$types';
 import { json } from '@sveltejs/kit';
 import { requireRole, requireUser } from '$lib/server/guard';
 import { createNormSet, listNormSets } from '$lib/server/catalog';
-import { api, readJson } from '$lib/server/catalog/api';
+import { api, readJson } from '$lib/server/http';
 
 export const GET: RequestHandler = async (event) => {
 	requireUser(event);

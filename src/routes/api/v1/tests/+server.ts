@@ -2,7 +2,7 @@ import type { RequestHandler } from './$types';
 import { json } from '@sveltejs/kit';
 import { requireRole, requireUser } from '$lib/server/guard';
 import { createTest, listTests } from '$lib/server/catalog';
-import { api, readJson } from '$lib/server/catalog/api';
+import { api, readJson } from '$lib/server/http';
 
 /** Current versions of all tests (optionally of one domain), in domain order. */
 export const GET: RequestHandler = async (event) => {

@@ -1,9 +1,10 @@
 import type { Actions, PageServerLoad } from './$types';
 import { fail } from '@sveltejs/kit';
-import { superValidate, message, setError } from 'sveltekit-superforms';
+import { formError } from '$lib/server/http';
+import { superValidate, message } from 'sveltekit-superforms';
 import { zod4 } from 'sveltekit-superforms/adapters';
 import { requireRole, idParam, notFound } from '$lib/server/guard';
-import { getBattery, listTests, listDomains, listNormSets, updateBattery, CatalogError } from '$lib/server/catalog';
+import { getBattery, listTests, listDomains, listNormSets, updateBattery } from '$lib/server/catalog';
 import { batterySchema } from '$lib/catalog/schema';
 
 export const load: PageServerLoad = async (event) => {
@@ -39,11 +40,7 @@ export const actions: Actions = {
 			await updateBattery(idParam(event.params.id, 'This battery'), form.data, user.id);
 			return message(form, 'Saved.');
 		} catch (e) {
-			if (e instanceof CatalogError) {
-				for (const [k, m] of Object.entries(e.fields)) if (k in form.data) setError(form, k as 'code', m);
-				return message(form, `Not saved: ${e.message}`, { status: 400 });
-			}
-			throw e;
+			return formError(form, e);
 		}
 	}
 };

@@ -2,7 +2,7 @@ import type { RequestHandler } from './$types';
 import { error } from '@sveltejs/kit';
 import { requireRole } from '$lib/server/guard';
 import { contentDisposition } from '$lib/server/filenames';
-import { exportNormGroupsCsv, exportTestsCsv, CatalogError } from '$lib/server/catalog';
+import { exportNormGroupsCsv, exportTestsCsv, ServiceError } from '$lib/server/catalog';
 
 /** /catalog/export/tests and /catalog/export/{norms,tables,equations}?set=<id>: the same CSV layouts the import reads. */
 export const GET: RequestHandler = async (event) => {
@@ -20,7 +20,7 @@ export const GET: RequestHandler = async (event) => {
 			const { filename, csv } = await exportNormGroupsCsv(id, kind);
 			return csvResponse(csv, filename);
 		} catch (e) {
-			if (e instanceof CatalogError) error(404, { message: e.message, code: 'not_found' });
+			if (e instanceof ServiceError) error(404, { message: e.message, code: 'not_found' });
 			throw e;
 		}
 	}

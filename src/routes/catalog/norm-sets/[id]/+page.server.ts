@@ -1,9 +1,10 @@
 import type { Actions, PageServerLoad } from './$types';
 import { fail } from '@sveltejs/kit';
-import { superValidate, message, setError } from 'sveltekit-superforms';
+import { formError } from '$lib/server/http';
+import { superValidate, message } from 'sveltekit-superforms';
 import { zod4 } from 'sveltekit-superforms/adapters';
 import { requireRole, idParam, notFound } from '$lib/server/guard';
-import { getNormSet, listNormGroups, listTests, updateNormSet, addNormGroup, deleteNormGroup, listAllComposites, CatalogError } from '$lib/server/catalog';
+import { getNormSet, listNormGroups, listTests, updateNormSet, addNormGroup, deleteNormGroup, listAllComposites, ServiceError } from '$lib/server/catalog';
 import { validationContext } from '$lib/server/catalog/io';
 import { normGroupSchema, normSetSchema } from '$lib/catalog/schema';
 import { groupWords } from '$lib/catalog/ranges';
@@ -44,12 +45,6 @@ export const load: PageServerLoad = async (event) => {
 	};
 };
 
-function refusal<T extends Record<string, unknown>>(form: import('sveltekit-superforms').SuperValidated<T>, e: unknown) {
-	if (!(e instanceof CatalogError)) throw e;
-	for (const [k, m] of Object.entries(e.fields)) if (k in form.data) setError(form, k as never, m);
-	return message(form, `Not saved: ${e.message}`, { status: e.status === 409 ? 409 : 400 });
-}
-
 export const actions: Actions = {
 	meta: async (event) => {
 		const user = requireRole(event, 'lead');
@@ -59,7 +54,7 @@ export const actions: Actions = {
 			await updateNormSet(idParam(event.params.id), form.data, user.id);
 			return message(form, 'Saved.');
 		} catch (e) {
-			return refusal(form, e);
+			return formError(form, e);
 		}
 	},
 	group: async (event) => {
@@ -70,7 +65,7 @@ export const actions: Actions = {
 			const g = await addNormGroup(idParam(event.params.id), form.data, user.id);
 			return message(form, `Added the group for ${groupWords(g)} of ${g.test_code}.`);
 		} catch (e) {
-			return refusal(form, e);
+			return formError(form, e);
 		}
 	},
 	delete: async (event) => {
@@ -81,7 +76,7 @@ export const actions: Actions = {
 			await deleteNormGroup(groupId, user.id);
 			return { deleted: groupId };
 		} catch (e) {
-			if (e instanceof CatalogError) return fail(e.status === 409 ? 409 : 400, { deleteError: e.message });
+			if (e instanceof ServiceError) return fail(e.status === 409 ? 409 : 400, { deleteError: e.message });
 			throw e;
 		}
 	}

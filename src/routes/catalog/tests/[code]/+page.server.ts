@@ -1,10 +1,11 @@
 import type { Actions, PageServerLoad } from './$types';
 import { fail } from '@sveltejs/kit';
-import { superValidate, message, setError } from 'sveltekit-superforms';
+import { formError } from '$lib/server/http';
+import { superValidate, message } from 'sveltekit-superforms';
 import { zod4 } from 'sveltekit-superforms/adapters';
 import { requireRole, notFound } from '$lib/server/guard';
 import { select } from '$lib/server/db';
-import { getTest, testVersions, listDomains, updateTest, CatalogError } from '$lib/server/catalog';
+import { getTest, testVersions, listDomains, updateTest } from '$lib/server/catalog';
 import { testFormSchema, formToTestInput, testInputToForm } from '$lib/catalog/schema';
 
 export const load: PageServerLoad = async (event) => {
@@ -45,11 +46,7 @@ export const actions: Actions = {
 						: 'Nothing changed.';
 			return message(form, text);
 		} catch (e) {
-			if (e instanceof CatalogError) {
-				for (const [k, m] of Object.entries(e.fields)) if (k in form.data) setError(form, k as 'code', m);
-				return message(form, `Not saved: ${e.message}`, { status: 400 });
-			}
-			throw e;
+			return formError(form, e);
 		}
 	}
 };

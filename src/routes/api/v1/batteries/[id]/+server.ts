@@ -1,14 +1,14 @@
 import type { RequestHandler } from './$types';
 import { json } from '@sveltejs/kit';
-import { requireRole, requireUser } from '$lib/server/guard';
+import { requireRole, requireUser, idParam } from '$lib/server/guard';
 import { getBattery, updateBattery, notFoundError } from '$lib/server/catalog';
-import { api, idOf, readJson } from '$lib/server/catalog/api';
+import { api, readJson } from '$lib/server/http';
 
 /** The battery with its tests in order and grouped by domain. */
 export const GET: RequestHandler = (event) =>
 	api(async () => {
 		requireUser(event);
-		const battery = await getBattery(idOf(event.params.id));
+		const battery = await getBattery(idParam(event.params.id));
 		if (!battery) throw notFoundError('This battery');
 		return json({ battery });
 	});
@@ -16,5 +16,5 @@ export const GET: RequestHandler = (event) =>
 export const PUT: RequestHandler = (event) =>
 	api(async () => {
 		const user = requireRole(event, 'lead');
-		return json({ battery: await updateBattery(idOf(event.params.id), await readJson(event.request), user.id) });
+		return json({ battery: await updateBattery(idParam(event.params.id), await readJson(event.request), user.id) });
 	});

@@ -1,16 +1,16 @@
 import type { RequestHandler } from './$types';
 import { json } from '@sveltejs/kit';
 import { z } from 'zod';
-import { requireRole, requireUser } from '$lib/server/guard';
+import { requireRole, requireUser, idParam } from '$lib/server/guard';
 import { getNormSet, listNormGroups, updateNormSetWithGroups, notFoundError } from '$lib/server/catalog';
-import { api, idOf, parseWith, readJson } from '$lib/server/catalog/api';
+import { api, parseWith, readJson } from '$lib/server/http';
 import { normGroupSchema, normSetPatchSchema } from '$lib/catalog/schema';
 
 /** The norm set and its groups (optionally of one test: ?test=code). */
 export const GET: RequestHandler = (event) =>
 	api(async () => {
 		requireUser(event);
-		const id = idOf(event.params.id);
+		const id = idParam(event.params.id);
 		const normSet = await getNormSet(id);
 		if (!normSet) throw notFoundError('This norm set');
 		return json({ normSet, groups: await listNormGroups(id, { test: event.url.searchParams.get('test') ?? undefined }) });
@@ -25,7 +25,7 @@ const putSchema = normSetPatchSchema.extend({ groups: z.array(normGroupSchema).m
 export const PUT: RequestHandler = (event) =>
 	api(async () => {
 		const user = requireRole(event, 'lead');
-		const id = idOf(event.params.id);
+		const id = idParam(event.params.id);
 		const { groups, ...meta } = parseWith(putSchema, await readJson(event.request));
 		return json(await updateNormSetWithGroups(id, meta, groups, user.id));
 	});

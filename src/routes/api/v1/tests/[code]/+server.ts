@@ -2,7 +2,7 @@ import type { RequestHandler } from './$types';
 import { json } from '@sveltejs/kit';
 import { requireRole, requireUser } from '$lib/server/guard';
 import { getTest, testVersions, updateTest, notFoundError } from '$lib/server/catalog';
-import { api, readJson } from '$lib/server/catalog/api';
+import { api, readJson } from '$lib/server/http';
 
 /** The current version and the history of versions (with how many protocols use each). */
 export const GET: RequestHandler = (event) =>

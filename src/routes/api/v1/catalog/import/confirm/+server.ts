@@ -2,7 +2,7 @@ import type { RequestHandler } from './$types';
 import { json } from '@sveltejs/kit';
 import { requireRole } from '$lib/server/guard';
 import { confirmImport } from '$lib/server/catalog';
-import { api, parseWith, readJson } from '$lib/server/catalog/api';
+import { api, parseWith, readJson } from '$lib/server/http';
 import { importConfirmSchema } from '$lib/catalog/schema';
 
 /**

@@ -2,7 +2,7 @@ import type { RequestHandler } from './$types';
 import { json } from '@sveltejs/kit';
 import { requireRole } from '$lib/server/guard';
 import { previewImport } from '$lib/server/catalog';
-import { api, parseWith, readJson } from '$lib/server/catalog/api';
+import { api, parseWith, readJson } from '$lib/server/http';
 import { importPreviewSchema } from '$lib/catalog/schema';
 
 /** Body { kind: "norms"|"tests", csv }: the preview (column mapping, first rows, every bad row). Writes nothing. */

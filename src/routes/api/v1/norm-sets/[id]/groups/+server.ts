@@ -1,8 +1,8 @@
 import type { RequestHandler } from './$types';
 import { json } from '@sveltejs/kit';
-import { requireRole } from '$lib/server/guard';
+import { requireRole, idParam } from '$lib/server/guard';
 import { saveNormGroup } from '$lib/server/catalog';
-import { api, idOf, readJson } from '$lib/server/catalog/api';
+import { api, readJson } from '$lib/server/http';
 
 /**
  * Body: one norm group in any form (mean/SD, table with rows, regression with coefficients): it
@@ -11,5 +11,5 @@ import { api, idOf, readJson } from '$lib/server/catalog/api';
 export const POST: RequestHandler = (event) =>
 	api(async () => {
 		const user = requireRole(event, 'lead');
-		return json({ group: await saveNormGroup(idOf(event.params.id), await readJson(event.request), user.id) });
+		return json({ group: await saveNormGroup(idParam(event.params.id), await readJson(event.request), user.id) });
 	});

@@ -1,6 +1,6 @@
 import type { RequestHandler } from './$types';
 import { json, isHttpError } from '@sveltejs/kit';
-import { WorkflowError } from '$lib/server/protocols/errors';
+import { ServiceError } from '$lib/server/errors';
 import { isDbUnavailable } from '$lib/server/db';
 import { requireRole, idParam } from '$lib/server/guard';
 import { myPass, saveDraft, submitPass } from '$lib/server/protocols/passes';
@@ -33,7 +33,7 @@ export const POST: RequestHandler = async (event) => {
 	try {
 		return json(await submitPass(idParam(event.params.id, 'This protocol'), user, await readJson(event.request)));
 	} catch (e) {
-		if (e instanceof WorkflowError || isHttpError(e) || isDbUnavailable(e)) return apiError(e);
+		if (e instanceof ServiceError || isHttpError(e) || isDbUnavailable(e)) return apiError(e);
 		// The transaction rolled back: say so plainly (the detail is logged, never sent).
 		console.error(`[submit] protocol ${event.params.id}:`, e instanceof Error ? e.stack : e);
 		return json(
