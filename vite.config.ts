@@ -9,7 +9,8 @@ export default defineConfig({
 		environment: 'node',
 		testTimeout: 30_000,
 		hookTimeout: 60_000,
-		// Integration and e2e tests share one database and one set of servers.
+		// Integration and e2e tests share one database and one set of servers; scripts/test.sh runs the
+		// unit tests (no services) with --fileParallelism.
 		fileParallelism: false,
 		reporters: ['default']
 	}

@@ -7,7 +7,13 @@ export CROSSTALLY_MODE=test CROSSTALLY_NEED_BROWSER=1
 . "$(dirname "$0")/lib/setup.sh"
 cd "$ROOT_DIR" || exit 1
 
-ensure_packages
+# Unit tests need no service: `npm test -- tests/unit` (only unit paths given) starts none, and a
+# full run takes them first, in parallel, before MariaDB, Redis and the app are started.
+only_unit=1
+[ $# -eq 0 ] && only_unit=0
+for a in "$@"; do case "$a" in tests/unit | tests/unit/* | ./tests/unit | ./tests/unit/*) ;; *) only_unit=0 ;; esac done
+
+[ $only_unit = 1 ] || ensure_packages
 ensure_node_modules
 mkdir -p "$RUN_DIR"
 # Types first (svelte-check over the app, the scripts and the tests), then ESLint and Prettier: an
@@ -32,6 +38,18 @@ if [ "${CROSSTALLY_SKIP_CHECK:-0}" != 1 ]; then
 		die "files not formatted (npm run format writes them); no tests were run"
 	fi
 fi
+unit_status=0
+if [ $only_unit = 1 ] || [ $# -eq 0 ]; then
+	log "unit tests (no services, files in parallel)"
+	node_modules/.bin/vitest run --fileParallelism "${@:-tests/unit}"
+	unit_status=$?
+	if [ $only_unit = 1 ]; then
+		[ $unit_status -eq 0 ] && log "all tests passed" || log "tests failed (exit $unit_status)"
+		exit $unit_status
+	fi
+	set -- tests/integration tests/e2e
+fi
+
 # a day between reminders: the protocols the suite leaves in review stay quiet (hundreds of chains
 # every 3 s flooded the worker and delayed every other e-mail); the notification tests save a
 # 3-second interval as the site setting while they run
@@ -60,5 +78,6 @@ export MIGRATE_SOCKET="$RUN_DIR/mariadb.sock" RUN_DIR
 log "running tests"
 node_modules/.bin/vitest run "$@"
 status=$?
+[ $status -eq 0 ] && [ $unit_status -ne 0 ] && { log "the unit tests failed (above)"; status=$unit_status; }
 [ $status -eq 0 ] && log "all tests passed" || log "tests failed (exit $status); logs in $RUN_DIR"
 exit $status

@@ -1,22 +1,59 @@
 /**
- * Calendar dates and clock times for the screens, client-safe. One strict date parser for the whole
- * app: `parseIsoDate` of the scoring module (YYYY-MM-DD, impossible dates such as 2023-02-30
- * refused); every form and query that takes a date checks it through `isoDateField` below.
+ * The one date module, client-safe: calendar dates (strict YYYY-MM-DD parsing, day arithmetic, ISO
+ * weeks — through date-fns) and clock times for the screens. Every form and query that takes a date
+ * checks it through `isoDateField` below (impossible dates such as 2023-02-30 refused). The age at
+ * testing is the scoring module's own (`src/lib/scoring/age.ts`: the record-form borrowing of days
+ * and months, which no date library does).
  *
  * Times are shown in the clinic's time zone (CLINIC_TIME_ZONE, passed to every page by the root
  * layout), never in the browser's or the server's by accident, and always with the zone named.
  */
 import { z } from 'zod';
-import { parseIsoDate } from './scoring/age';
+import { addDays as addCalendarDays, format, isValid, parse, startOfISOWeek } from 'date-fns';
+
+const ISO_DAY = 'yyyy-MM-dd';
+/** A fixed reference for date-fns's parse (only the fields the pattern lacks come from it). */
+const REFERENCE = new Date(2000, 0, 1);
+
+/**
+ * A calendar date written YYYY-MM-DD as a date-fns date (local midnight: only its calendar fields are
+ * used, so the machine's zone never shifts the day). Strict: `2023-02-30` and `2023-1-5` are refused.
+ */
+function calendarDay(s: string): Date | null {
+	if (!/^\d{4}-\d{2}-\d{2}$/.test(s)) return null;
+	const d = parse(s, ISO_DAY, REFERENCE);
+	return isValid(d) ? d : null;
+}
+
+function day(s: string): Date {
+	const d = calendarDay(s);
+	if (!d) throw new RangeError(`not a calendar date written YYYY-MM-DD: ${JSON.stringify(s)}`);
+	return d;
+}
 
 /** True for a real calendar date written YYYY-MM-DD. */
 export function isIsoDate(s: string): boolean {
-	try {
-		parseIsoDate(s);
-		return true;
-	} catch {
-		return false;
-	}
+	return calendarDay(s) !== null;
+}
+
+/** The calendar date `n` days after (or before, n < 0) a YYYY-MM-DD date. */
+export function addDays(iso: string, n: number): string {
+	return format(addCalendarDays(day(iso), n), ISO_DAY);
+}
+
+/** The Monday of the ISO 8601 week holding a YYYY-MM-DD date. */
+export function mondayOf(iso: string): string {
+	return format(startOfISOWeek(day(iso)), ISO_DAY);
+}
+
+/** The ISO 8601 week of a YYYY-MM-DD date, written `2020-W53` (week-numbering year, two-digit week). */
+export function isoWeek(iso: string): string {
+	return format(day(iso), "RRRR-'W'II");
+}
+
+/** The UTC calendar day of an instant (a DATETIME read from the database), or a DATE column's text. */
+export function utcDay(v: Date | string): string {
+	return v instanceof Date ? v.toISOString().slice(0, 10) : String(v).slice(0, 10);
 }
 
 /** What is wrong with a date as typed, or null when it is a real calendar date. */

@@ -1,36 +1,11 @@
 /**
- * The `agreement` batch command end to end: `tsx scripts/crosstally.ts agreement` in a child
- * process, JSON on stdin, JSON on stdout, exit codes and stderr messages.
+ * The `agreement` batch command, called in process as scripts/crosstally.ts calls it: JSON on
+ * stdin, JSON on stdout, exit codes and stderr messages (the real command line: scoring-cli.test.ts).
  */
-import { spawn } from 'node:child_process';
-import { fileURLToPath } from 'node:url';
-import path from 'node:path';
 import { describe, expect, it } from 'vitest';
+import { runCommand } from '../helpers/cli';
 
-const root = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '../..');
-const tsx = path.join(root, 'node_modules/.bin/tsx');
-
-interface Outcome {
-	code: number | null;
-	stdout: string;
-	stderr: string;
-}
-
-function runAgreement(stdin: string): Promise<Outcome> {
-	return new Promise((resolve, reject) => {
-		const child = spawn(tsx, ['scripts/crosstally.ts', 'agreement'], {
-			cwd: root,
-			stdio: ['pipe', 'pipe', 'pipe']
-		});
-		let stdout = '';
-		let stderr = '';
-		child.stdout.setEncoding('utf8').on('data', (chunk: string) => (stdout += chunk));
-		child.stderr.setEncoding('utf8').on('data', (chunk: string) => (stderr += chunk));
-		child.on('error', reject);
-		child.on('close', (code) => resolve({ code, stdout, stderr }));
-		child.stdin.end(stdin);
-	});
-}
+const runAgreement = (stdin: string) => runCommand('agreement', stdin);
 
 const json = (value: unknown) => JSON.stringify(value);
 

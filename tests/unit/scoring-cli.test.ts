@@ -1,42 +1,30 @@
 import { describe, expect, it } from 'vitest';
-import { spawn } from 'node:child_process';
-import { PassThrough, Readable } from 'node:stream';
-import { run, ArraySplitter } from '../../scripts/cli/reconcile';
+import { ArraySplitter } from '../../scripts/cli/reconcile';
+import { commandLine, runCommand } from '../helpers/cli';
 import { specExample, wordRecall } from './scoring-fixtures';
 
-interface Outcome {
-	code: number | null;
-	stdout: string;
-	stderr: string;
-}
+/** The reconcile command, called in process as scripts/crosstally.ts calls it. */
+const cli = (input: string, env: Record<string, string> = {}) => runCommand('reconcile', input, env);
+const inProcess = (chunks: string[]) => runCommand('reconcile', chunks);
 
-/** The batch command as users run it: tsx scripts/crosstally.ts reconcile < input. */
-function cli(input: string, env: Record<string, string> = {}): Promise<Outcome> {
-	return new Promise((resolve, reject) => {
-		const child = spawn('node_modules/.bin/tsx', ['scripts/crosstally.ts', 'reconcile'], { env: { ...process.env, ...env } });
-		let stdout = '';
-		let stderr = '';
-		child.stdout.setEncoding('utf8').on('data', (d: string) => (stdout += d));
-		child.stderr.setEncoding('utf8').on('data', (d: string) => (stderr += d));
-		child.on('error', reject);
-		child.on('close', (code) => resolve({ code, stdout, stderr }));
-		child.stdin.on('error', () => {}); // the command may stop reading at the first bad element
-		child.stdin.end(input);
+describe('the real command line (smoke test: tsx scripts/crosstally.ts reconcile)', () => {
+	it('good input answers JSON with exit 0; malformed input exit 2 with a message and no stack', async () => {
+		const good = await commandLine('reconcile', JSON.stringify(specExample()));
+		expect(good.stderr).toBe('');
+		expect(good.code).toBe(0);
+		expect(JSON.parse(good.stdout).summary).toEqual({ fields_compared: 12, discrepancies: 10 });
+		const bad = await commandLine('reconcile', '{"tests": [');
+		expect(bad.code).toBe(2);
+		expect(bad.stdout).toBe('');
+		expect(bad.stderr).toMatch(/^reconcile: input: /);
+		expect(bad.stderr).not.toMatch(/\n\s+at /);
+		const unknown = await commandLine('no-such-command', '');
+		expect(unknown.code).toBe(2);
+		expect(unknown.stderr).toContain('usage: npm run --silent crosstally -- <reconcile|agreement|kinds>');
 	});
-}
+});
 
-async function inProcess(chunks: string[]): Promise<Outcome> {
-	const out = new PassThrough();
-	const err = new PassThrough();
-	let stdout = '';
-	let stderr = '';
-	out.setEncoding('utf8').on('data', (d: string) => (stdout += d));
-	err.setEncoding('utf8').on('data', (d: string) => (stderr += d));
-	const code = await run(Readable.from(chunks.map((c) => Buffer.from(c))), out, err);
-	return { code, stdout, stderr };
-}
-
-describe('batch command end to end (spawned via tsx)', () => {
+describe('batch command end to end (in process)', () => {
 	it('good input: the spec example gives 10 discrepancies, fields_compared 12, exit 0', async () => {
 		const r = await cli(JSON.stringify(specExample()));
 		expect(r.stderr).toBe('');
@@ -132,11 +120,10 @@ describe('array splitter (in process)', () => {
 		const doc = specExample();
 		doc.passes[0].scorer = 'Zoë Ångström 测试';
 		const bytes = Buffer.from(JSON.stringify([doc]));
-		const out = new PassThrough();
-		let stdout = '';
-		out.setEncoding('utf8').on('data', (d: string) => (stdout += d));
-		const parts = Array.from({ length: bytes.length }, (_, i) => bytes.subarray(i, i + 1));
-		const code = await run(Readable.from(parts), out, new PassThrough());
+		const { code, stdout } = await runCommand(
+			'reconcile',
+			Array.from({ length: bytes.length }, (_, i) => bytes.subarray(i, i + 1))
+		);
 		expect(code).toBe(0);
 		expect(JSON.parse(stdout)[0].summary.discrepancies).toBe(10);
 	});
