@@ -32,8 +32,12 @@ export const KIND_NAMES: Record<CsvKind, string> = {
 	equations: 'regression equations'
 };
 
-export const NORM_COLUMNS = ['test_code', 'group_code', 'age_min_months', 'age_max_months', 'sex', 'edu_min', 'edu_max', 'mean', 'sd', 'n'] as const;
-export const NORM_REQUIRED = ['test_code', 'group_code', 'age_min_months', 'age_max_months', 'mean', 'sd'] as const;
+/** The columns that say which group a norm-group row belongs to, in every kind of norms file. */
+const GROUP_COLUMNS = ['test_code', 'group_code', 'age_min_months', 'age_max_months', 'sex', 'edu_min', 'edu_max'] as const;
+const GROUP_REQUIRED = ['test_code', 'group_code', 'age_min_months', 'age_max_months'] as const;
+
+export const NORM_COLUMNS = [...GROUP_COLUMNS, 'mean', 'sd', 'n'] as const;
+export const NORM_REQUIRED = [...GROUP_REQUIRED, 'mean', 'sd'] as const;
 export const TEST_COLUMNS = [
 	'code',
 	'name',
@@ -51,38 +55,11 @@ export const TEST_COLUMNS = [
 export const TEST_REQUIRED = ['code', 'name', 'domain', 'direction', 'raw_min', 'raw_max', 'reported'] as const;
 
 /** Conversion tables: one line per table row; the group's columns repeat on every row of its table. */
-export const TABLE_COLUMNS = [
-	'test_code',
-	'group_code',
-	'age_min_months',
-	'age_max_months',
-	'sex',
-	'edu_min',
-	'edu_max',
-	'scale',
-	'raw_lo',
-	'raw_hi',
-	'score',
-	'percentile'
-] as const;
-export const TABLE_REQUIRED = ['test_code', 'group_code', 'age_min_months', 'age_max_months', 'scale', 'raw_lo', 'raw_hi'] as const;
+export const TABLE_COLUMNS = [...GROUP_COLUMNS, 'scale', 'raw_lo', 'raw_hi', 'score', 'percentile'] as const;
+export const TABLE_REQUIRED = [...GROUP_REQUIRED, 'scale', 'raw_lo', 'raw_hi'] as const;
 /** Regression equations: one line per group; coefficients b_age, b_education, b_sex (empty = not used). */
-export const EQUATION_COLUMNS = [
-	'test_code',
-	'group_code',
-	'age_min_months',
-	'age_max_months',
-	'sex',
-	'edu_min',
-	'edu_max',
-	'intercept',
-	'b_age',
-	'b_education',
-	'b_sex',
-	'residual_sd',
-	'n'
-] as const;
-export const EQUATION_REQUIRED = ['test_code', 'group_code', 'age_min_months', 'age_max_months', 'intercept', 'residual_sd'] as const;
+export const EQUATION_COLUMNS = [...GROUP_COLUMNS, 'intercept', 'b_age', 'b_education', 'b_sex', 'residual_sd', 'n'] as const;
+export const EQUATION_REQUIRED = [...GROUP_REQUIRED, 'intercept', 'residual_sd'] as const;
 
 export const COLUMNS: Record<CsvKind, readonly string[]> = { norms: NORM_COLUMNS, tests: TEST_COLUMNS, tables: TABLE_COLUMNS, equations: EQUATION_COLUMNS };
 export const REQUIRED: Record<CsvKind, readonly string[]> = {
