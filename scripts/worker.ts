@@ -14,6 +14,7 @@ import '../src/lib/server/mail/review'; // registers the review renderers
 import '../src/lib/server/mail/verification'; // registers the back-to-full-double-entry e-mail
 import { sweepMail, markMailFailed } from '../src/lib/server/mail/recover';
 import { sweepMarkers } from '../src/lib/server/models/commit-marker';
+import { foldDeltas } from '../src/lib/server/audit-stats/record';
 
 const interval = Number(process.env.DISPATCH_INTERVAL_MS ?? 500);
 const sweepMs = Number(process.env.MAIL_SWEEP_MS ?? 30_000);
@@ -63,6 +64,7 @@ async function loop() {
 						`[worker] mail sweep: ${s.redispatched} re-dispatched, ${s.claimsTakenBack} abandoned claim(s) retried, ${s.markedUncertain} marked uncertain, ${s.failed} failed`
 					);
 				await sweepMarkers(); // commit markers older than an hour (see src/lib/server/db.ts)
+				await foldDeltas(); // the audit's delta rows into its daily summaries (audit-stats/record.ts)
 			}
 			const n = await dispatchOutbox();
 			if (lastError) console.error('[worker] dispatch recovered');

@@ -5,13 +5,16 @@
  * field, grouping identical (first, second) entries, and runs `blandAltman` on them.
  */
 import { select } from '../db';
-import { blandAltman, cohenKappa, interpretIcc, interpretKappa, ICC_FORMS, type IccForm } from '../../scoring/agreement';
+import { blandAltman, cohenKappa, interpretIcc, interpretKappa, ICC_FORMS } from '../../scoring/agreement';
 import { AACN_2020 } from '../../scoring/labels';
 import { FIELDS, type Field } from '../../scoring/scales';
 import type { AuditFilters } from './filters';
-import { agreementDailyWhere, pairDailyWhere, pairsWhere, splitRange } from './sql';
+import { agreementDailyWhere, pairDailyWhere, pairsWhere, splitRange, withDeltas } from './sql';
 import { addSums, blandAltmanFromSums, iccFromSums, ZERO_SUMS, type PairSums } from './sums';
 import type { Names } from './errors';
+import type { AgreementStats, AgreementRow, PairRow, BlandAltmanReport } from '../../audit/types';
+
+export type { AgreementStats, AgreementRow, PairRow, BlandAltmanReport };
 
 /** Band ids in the scheme's order (highest first): the kappa categories. */
 export const BAND_ORDER: string[] = AACN_2020.bands.standard.map((b) => b.id);
@@ -23,28 +26,6 @@ interface Cell extends Partial<PairSums> {
 	ly: string;
 	one_sided: number;
 	exact: number;
-}
-
-export interface AgreementStats {
-	/** Pairs where both passes entered a number. */
-	n: number;
-	/** Entered by one pass only (the other left it empty or wrote something that is not a number). */
-	one_sided: number;
-	exact_agreements: number | null;
-	exact_percent: number | null;
-	label_agreement_percent: number | null;
-	kappa: number | null;
-	kappa_label: string | null;
-	kappa_quadratic: number | null;
-	kappa_quadratic_label: string | null;
-	kappa_note: string | null;
-	icc: Record<IccForm, number | null> | null;
-	icc_label: string | null;
-	icc_note: string | null;
-	bias: number | null;
-	sd: number | null;
-	loa_lower: number | null;
-	loa_upper: number | null;
 }
 
 /**
@@ -116,18 +97,14 @@ export function statsOf(cells: Cell[], field: Field): AgreementStats {
 const SUM_COLUMNS = `SUM(s.pairs) AS pairs, SUM(s.one_sided) AS one_sided, SUM(s.exact) AS exact, SUM(s.sx) AS sx, SUM(s.sy) AS sy,
 	SUM(s.sxx) AS sxx, SUM(s.syy) AS syy, SUM(s.sxy) AS sxy, SUM(s.sd) AS sd, SUM(s.sdd) AS sdd`;
 
-export interface AgreementRow extends AgreementStats {
-	field: Field;
-}
-
 /** One row per field (raw, z, standard, scaled, t, percentile): whole weeks from agreement_weekly, edge days from agreement_daily. */
 export async function agreementByField(f: AuditFilters): Promise<AgreementRow[]> {
 	const split = splitRange(f.from, f.to);
-	const query = (table: string, col: string, range: { from: string | null; to: string | null }) => {
+	const query = (table: 'agreement_weekly' | 'agreement_daily', col: string, range: { from: string | null; to: string | null }) => {
 		const w = agreementDailyWhere(f, range, col);
 		return select<Cell & { field: Field }>(
 			`SELECT s.field, s.first_label AS lx, s.second_label AS ly, ${SUM_COLUMNS}
-			   FROM ${table} s ${w.sql}
+			   FROM ${withDeltas(table, w, 's')} s
 			  GROUP BY s.field, s.first_label, s.second_label`,
 			w.params
 		);
@@ -146,20 +123,12 @@ export async function agreementByField(f: AuditFilters): Promise<AgreementRow[]>
 	})).filter((r) => r.n + r.one_sided > 0);
 }
 
-export interface PairRow extends AgreementStats {
-	first_scorer_id: number;
-	first_scorer: string;
-	second_scorer_id: number;
-	second_scorer: string;
-	field: Field;
-}
-
 /** One row per (first scorer, second scorer) on the chosen field. */
 export async function agreementByScorerPair(f: AuditFilters, names: Names): Promise<PairRow[]> {
 	const w = pairDailyWhere(f);
 	const rows = await select<Cell & { a: number; b: number }>(
 		`SELECT s.first_scorer_id AS a, s.second_scorer_id AS b, s.first_label AS lx, s.second_label AS ly, ${SUM_COLUMNS}
-		   FROM agreement_pair_daily s ${w.sql}
+		   FROM ${withDeltas('agreement_pair_daily', w, 's')} s
 		  GROUP BY s.first_scorer_id, s.second_scorer_id, s.first_label, s.second_label`,
 		w.params
 	);
@@ -186,17 +155,6 @@ export async function agreementByScorerPair(f: AuditFilters, names: Names): Prom
 	}
 	out.sort((p, q) => q.n - p.n || p.first_scorer.localeCompare(q.first_scorer));
 	return out;
-}
-
-export interface BlandAltmanReport {
-	field: Field;
-	n: number;
-	bias: number | null;
-	sd: number | null;
-	lower: number | null;
-	upper: number | null;
-	/** Identical points merged: mean of the two entries, difference first − second, how many pairs. */
-	points: Array<{ mean: number; difference: number; count: number }>;
 }
 
 export async function blandAltmanReport(f: AuditFilters): Promise<BlandAltmanReport> {

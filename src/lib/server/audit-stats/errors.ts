@@ -13,17 +13,10 @@ import { select } from '../db';
 import { errorRatePer100 } from '../../scoring/rates';
 import { KINDS, kindName } from '../../scoring/kinds';
 import type { AuditFilters } from './filters';
-import { dailyWhere, errorWhere } from './sql';
+import { dailyWhere, errorWhere, withDeltas } from './sql';
+import type { RateCells, ScorerRow, KindRow, GroupRow, WeekRow } from '../../audit/types';
 
-export interface RateCells {
-	errors: number;
-	fields: number;
-	/** Errors per 100 fields entered; null when no fields were entered. */
-	rate: number | null;
-	/** Wilson 95% interval, per 100 fields. */
-	ci_lower: number | null;
-	ci_upper: number | null;
-}
+export type { RateCells, ScorerRow, KindRow, GroupRow, WeekRow };
 
 export function rateCells(errors: number, fields: number): RateCells {
 	const e = Number(errors) || 0;
@@ -62,7 +55,7 @@ async function fieldsByScorer(f: AuditFilters, byWeek: boolean): Promise<Map<Key
 	const week = byWeek ? 'DATE_SUB(d.day, INTERVAL WEEKDAY(d.day) DAY)' : 'NULL';
 	const rows = await select<{ scorer_id: number; week: string | null; fields: number; passes: number }>(
 		`SELECT d.scorer_id, ${week} AS week, SUM(d.fields_entered) AS fields, SUM(d.passes) AS passes
-		   FROM audit_daily d ${w.sql} GROUP BY d.scorer_id, week`,
+		   FROM ${withDeltas('audit_daily', w, 'd')} d GROUP BY d.scorer_id, week`,
 		w.params
 	);
 	for (const r of rows) out.set(`${r.scorer_id}|${r.week ?? ''}`, { fields: num(r.fields), passes: num(r.passes) });
@@ -70,15 +63,6 @@ async function fieldsByScorer(f: AuditFilters, byWeek: boolean): Promise<Map<Key
 }
 
 // ---------------------------------------------------------------------------------------------
-
-export interface ScorerRow extends RateCells {
-	scorer_id: number | null;
-	scorer: string;
-	/** Protocol passes entered (one per protocol and round the scorer scored). */
-	passes: number;
-	/** Errors per protocol pass (errors ÷ passes entered). */
-	errors_per_protocol: number | null;
-}
 
 /** Error rate per scorer, plus an "All scorers" row last. */
 export async function scorerRates(f: AuditFilters, names: Names): Promise<ScorerRow[]> {
@@ -110,14 +94,6 @@ export async function scorerRates(f: AuditFilters, names: Names): Promise<Scorer
 		...rateCells(tot.e, tot.n)
 	});
 	return rows;
-}
-
-export interface KindRow extends RateCells {
-	scorer_id: number | null;
-	scorer: string;
-	kind: string;
-	/** The kind's name in words, the same as on Review (src/lib/scoring/kinds.ts). */
-	kind_name: string;
 }
 
 /** Errors of each kind per scorer per 100 fields that scorer entered; "All scorers" rows too. */
@@ -158,13 +134,6 @@ export async function kindRates(f: AuditFilters, names: Names): Promise<KindRow[
 	return rows;
 }
 
-export interface GroupRow extends RateCells {
-	scorer_id: number | null;
-	scorer: string;
-	group: string;
-	group_name: string;
-}
-
 /** Per scorer × test, × domain or × field class (raw / derived), denominators from audit_daily's per-test rows. */
 export async function groupRates(f: AuditFilters, names: Names, by: 'test' | 'domain' | 'class'): Promise<GroupRow[]> {
 	const we = errorWhere(f);
@@ -177,7 +146,7 @@ export async function groupRates(f: AuditFilters, names: Names, by: 'test' | 'do
 	let denoms: Array<{ scorer_id: number; g: string; fields: number }>;
 	if (by === 'class') {
 		const rows = await select<{ scorer_id: number; raw: number; derived: number }>(
-			`SELECT d.scorer_id, SUM(d.raw_fields) AS raw, SUM(d.derived_fields) AS derived FROM audit_daily d ${wf.sql} GROUP BY d.scorer_id`,
+			`SELECT d.scorer_id, SUM(d.raw_fields) AS raw, SUM(d.derived_fields) AS derived FROM ${withDeltas('audit_daily', wf, 'd')} d GROUP BY d.scorer_id`,
 			wf.params
 		);
 		denoms = rows.flatMap((r) => [
@@ -186,7 +155,10 @@ export async function groupRates(f: AuditFilters, names: Names, by: 'test' | 'do
 		]);
 	} else {
 		const col = by === 'test' ? 'd.test_code' : 'd.domain';
-		denoms = await select(`SELECT d.scorer_id, ${col} AS g, SUM(d.fields_entered) AS fields FROM audit_daily d ${wf.sql} GROUP BY d.scorer_id, g`, wf.params);
+		denoms = await select(
+			`SELECT d.scorer_id, ${col} AS g, SUM(d.fields_entered) AS fields FROM ${withDeltas('audit_daily', wf, 'd')} d GROUP BY d.scorer_id, g`,
+			wf.params
+		);
 	}
 	const fields = new Map(denoms.map((r) => [`${r.scorer_id}|${r.g}`, num(r.fields)]));
 	const count = new Map(errs.map((r) => [`${r.scorer_id}|${r.g}`, num(r.errors)]));
@@ -210,15 +182,6 @@ export async function groupRates(f: AuditFilters, names: Names, by: 'test' | 'do
 	}
 	rows.sort((a, b) => a.group_name.localeCompare(b.group_name) || (a.scorer_id === null ? 1 : b.scorer_id === null ? -1 : a.scorer.localeCompare(b.scorer)));
 	return rows;
-}
-
-export interface WeekRow extends RateCells {
-	scorer_id: number | null;
-	scorer: string;
-	/** Monday of the ISO week, YYYY-MM-DD. */
-	week_start: string;
-	/** ISO 8601 week, e.g. 2025-W07. */
-	week: string;
 }
 
 /** ISO 8601 week label of a date (YYYY-MM-DD). */

@@ -5,21 +5,32 @@
  *   recordSubmission(protocolId, round, t)  once both passes of the round are submitted
  *                                           → audit_fields, agreement_pairs (row level) and the
  *                                             daily sums audit_daily, agreement_daily,
- *                                             agreement_pair_daily
+ *                                             agreement_weekly, agreement_pair_daily
  *   recordResolution(discrepancyId, t)      after a discrepancy row was resolved (or re-resolved)
  *                                           → error_events
  *
  * Both are idempotent: they delete what they wrote before for the same round / discrepancy (and
  * subtract it from the daily sums) and write it again from the current rows.
+ *
+ * The daily sums are append-only on this path (issue 18): a round's sums (or, recorded again, its
+ * old sums negated) are appended to the `_delta` table beside each summary, never added to the
+ * summary row in place, so concurrent submits of one day do not wait on one hot row until the
+ * other commits. The reports add summary and delta rows (sql.ts, `withDeltas`); `foldDeltas()`,
+ * run by the worker, moves delta rows into the summaries without changing any sum.
  */
-import type { Transaction } from 'sequelize';
-import { exec, select, selectOne, jsonValue } from '../db';
+import type { InferCreationAttributes, Transaction } from 'sequelize';
+import { exec, select, selectOne, jsonValue, transaction } from '../db';
 import { labelFor } from '../../scoring/labels';
 import { parseEntered, FIELDS, type Field, type DerivedField } from '../../scoring/scales';
+import { models } from '../models';
+import { AgreementPair, AuditField, ErrorEvent } from '../models/audit-stats';
+import type { StatField } from '../models/audit-stats';
+import { SUMMARIES, SUMMARY_TABLES, type SummaryTable } from './sql';
 
 type PassScores = Record<string, Partial<Record<Field, string | number | null>>>;
 
-interface PassRow {
+/** What recordSubmission reads of a pass (columns of `passes`). */
+type PassRead = {
 	id: number;
 	fields_entered: number;
 	which: 'first' | 'second';
@@ -27,7 +38,7 @@ interface PassRow {
 	status: string;
 	scores: unknown;
 	submitted_at: Date | string | null;
-}
+};
 
 /** Fields that carry a descriptive label (z is labelled through its standard-score equivalent). */
 export const LABELLED_FIELDS: readonly DerivedField[] = ['z', 'standard', 'scaled', 't', 'percentile'];
@@ -69,11 +80,11 @@ async function domainsFor(codes: string[], t: Transaction): Promise<Map<string, 
  * scorer entered) and one agreement_pairs row per test × field that either pass entered.
  */
 export async function recordSubmission(protocolId: number, round: number, t: Transaction): Promise<void> {
-	const protocol = await selectOne<{ battery_id: number }>('SELECT battery_id FROM protocols WHERE id = :protocolId', { protocolId }, t);
-	if (!protocol) throw new Error(`recordSubmission: protocol ${protocolId} does not exist`);
-	const passes = await select<PassRow>(
-		`SELECT id, which, scorer_id, status, scores, fields_entered, submitted_at FROM passes
-		  WHERE protocol_id = :protocolId AND round = :round`,
+	models();
+	const passes = await select<PassRead & { battery_id: number }>(
+		`SELECT s.id, s.which, s.scorer_id, s.status, s.scores, s.fields_entered, s.submitted_at, p.battery_id
+		   FROM passes s JOIN protocols p ON p.id = s.protocol_id
+		  WHERE s.protocol_id = :protocolId AND s.round = :round`,
 		{ protocolId, round },
 		t
 	);
@@ -82,67 +93,51 @@ export async function recordSubmission(protocolId: number, round: number, t: Tra
 	if (!first || !second || first.status !== 'submitted' || second.status !== 'submitted') {
 		throw new Error(`recordSubmission: protocol ${protocolId} round ${round} does not have two submitted passes`);
 	}
+	const batteryId = Number(first.battery_id);
 	const s1 = jsonValue<PassScores>(first.scores) ?? {};
 	const s2 = jsonValue<PassScores>(second.scores) ?? {};
 	const codes = [...new Set([...Object.keys(s1), ...Object.keys(s2)])];
 	const domains = await domainsFor(codes, t);
-	const enteredAt = (p: PassRow) => (p.submitted_at ? new Date(p.submitted_at) : new Date());
+	const enteredAt = (p: PassRead) => (p.submitted_at ? new Date(p.submitted_at) : new Date());
 	const roundAt = new Date(Math.max(enteredAt(first).getTime(), enteredAt(second).getTime()));
 
-	const where = 'protocol_id = :protocolId AND round = :round';
+	const round_ = { protocol_id: protocolId, round };
 	// A round recorded before (recorded again): take its rows out of the sums first. The usual case,
-	// a round's first recording, has none, and one look-up replaces the subtraction's statements.
+	// a round's first recording, has none. Raw SQL: one look-up answers for both tables.
 	const earlier = await selectOne<{ n: number }>(
-		`SELECT EXISTS (SELECT 1 FROM audit_fields WHERE ${where}) + EXISTS (SELECT 1 FROM agreement_pairs WHERE ${where}) AS n`,
+		`SELECT EXISTS (SELECT 1 FROM audit_fields WHERE protocol_id = :protocolId AND round = :round)
+		      + EXISTS (SELECT 1 FROM agreement_pairs WHERE protocol_id = :protocolId AND round = :round) AS n`,
 		{ protocolId, round },
 		t
 	);
 	if (Number(earlier?.n ?? 1) > 0) {
 		await applyToDaily({ protocolId, round }, -1, t);
-		await exec(`DELETE FROM audit_fields WHERE ${where}`, { protocolId, round }, t);
-		await exec(`DELETE FROM agreement_pairs WHERE ${where}`, { protocolId, round }, t);
+		await AuditField.destroy({ where: round_, transaction: t });
+		await AgreementPair.destroy({ where: round_, transaction: t });
 	}
 
-	const fieldRows: unknown[][] = [];
+	const fieldRows: Array<InferCreationAttributes<AuditField>> = [];
 	for (const pass of [first, second]) {
 		const scores = pass === first ? s1 : s2;
+		const common = { pass_id: pass.id, ...round_, which: pass.which, scorer_id: pass.scorer_id, battery_id: batteryId, entered_at: enteredAt(pass) };
 		// the whole pass: the workflow's own count is the denominator of the overall rates
-		fieldRows.push([
-			pass.id,
-			'',
-			protocolId,
-			round,
-			pass.which,
-			pass.scorer_id,
-			protocol.battery_id,
-			'',
-			Number(pass.fields_entered) || 0,
-			0,
-			0,
-			enteredAt(pass)
-		]);
+		fieldRows.push({ ...common, test_code: '', domain: '', fields_entered: Number(pass.fields_entered) || 0, raw_fields: 0, derived_fields: 0 });
 		for (const code of Object.keys(scores)) {
 			const values = scores[code] ?? {};
 			const raw = isEntered(values.raw) ? 1 : 0;
 			const derived = FIELDS.filter((f) => f !== 'raw' && isEntered(values[f])).length;
 			if (raw + derived === 0) continue;
-			fieldRows.push([
-				pass.id,
-				code,
-				protocolId,
-				round,
-				pass.which,
-				pass.scorer_id,
-				protocol.battery_id,
-				domains.get(code) ?? 'unknown',
-				raw + derived,
-				raw,
-				derived,
-				enteredAt(pass)
-			]);
+			fieldRows.push({
+				...common,
+				test_code: code,
+				domain: domains.get(code) ?? 'unknown',
+				fields_entered: raw + derived,
+				raw_fields: raw,
+				derived_fields: derived
+			});
 		}
 	}
-	const pairRows: unknown[][] = [];
+	const pairRows: Array<Omit<InferCreationAttributes<AgreementPair>, 'id'>> = [];
 	for (const code of codes) {
 		for (const field of FIELDS) {
 			const a = s1[code]?.[field];
@@ -150,25 +145,25 @@ export async function recordSubmission(protocolId: number, round: number, t: Tra
 			if (!isEntered(a) && !isEntered(b)) continue;
 			const x = numeric(a, field);
 			const y = numeric(b, field);
-			pairRows.push([
-				protocolId,
-				round,
-				protocol.battery_id,
-				code,
-				domains.get(code) ?? 'unknown',
+			pairRows.push({
+				...round_,
+				battery_id: batteryId,
+				test_code: code,
+				domain: domains.get(code) ?? 'unknown',
 				field,
-				first.scorer_id,
-				second.scorer_id,
-				x,
-				y,
-				bandOf(field, x),
-				bandOf(field, y),
-				roundAt
-			]);
+				first_scorer_id: first.scorer_id,
+				second_scorer_id: second.scorer_id,
+				first_value: x,
+				second_value: y,
+				first_label: bandOf(field, x),
+				second_label: bandOf(field, y),
+				entered_at: roundAt
+			});
 		}
 	}
-	await insertMany('audit_fields', AUDIT_FIELDS_COLUMNS, fieldRows, t);
-	await insertMany('agreement_pairs', AGREEMENT_PAIRS_COLUMNS, pairRows, t);
+	// one multi-row INSERT per table
+	await AuditField.bulkCreate(fieldRows, { transaction: t });
+	if (pairRows.length) await AgreementPair.bulkCreate(pairRows, { transaction: t });
 	await applyToDaily({ protocolId, round }, 1, t);
 }
 
@@ -218,27 +213,36 @@ const MEASURES: Array<[string, string]> = [
 
 /**
  * Add (sign 1) or subtract (sign −1) the row-level rows of one protocol round (or of everything)
- * in audit_fields / agreement_pairs to the daily sums.
+ * in audit_fields / agreement_pairs to the daily sums: appended to the `_delta` tables (the default,
+ * on the workflow's transactions: plain INSERTs, no hot row), or straight into the summaries
+ * (`into: 'summary'`, for a rebuild). Raw SQL: INSERT … SELECT … GROUP BY adds up a round in the
+ * database in one statement per table.
  */
-export async function applyToDaily(scope: { protocolId: number; round: number } | 'all', sign: 1 | -1, t?: Transaction | null): Promise<void> {
+export async function applyToDaily(
+	scope: { protocolId: number; round: number } | 'all',
+	sign: 1 | -1,
+	t?: Transaction | null,
+	into: 'delta' | 'summary' = 'delta'
+): Promise<void> {
 	const p = scope === 'all' ? { sign } : { ...scope, sign };
 	const whereOf = (alias: string) => (scope === 'all' ? '1 = 1' : `${alias}.protocol_id = :protocolId AND ${alias}.round = :round`);
+	const target = (table: SummaryTable) => (into === 'delta' ? `${table}_delta` : table);
+	const upsert = (table: SummaryTable) =>
+		into === 'delta' ? '' : `ON DUPLICATE KEY UPDATE ${SUMMARIES[table].measures.map((c) => `${c} = ${c} + VALUES(${c})`).join(', ')}`;
 	await exec(
-		`INSERT INTO audit_daily (day, scorer_id, battery_id, test_code, domain, passes, fields_entered, raw_fields, derived_fields)
+		`INSERT INTO ${target('audit_daily')} (day, scorer_id, battery_id, test_code, domain, passes, fields_entered, raw_fields, derived_fields)
 		 SELECT DATE(a.entered_at), a.scorer_id, a.battery_id, a.test_code, MAX(a.domain), :sign * COUNT(*), :sign * SUM(a.fields_entered),
 		        :sign * SUM(a.raw_fields), :sign * SUM(a.derived_fields)
 		   FROM audit_fields a WHERE ${whereOf('a')}
 		  GROUP BY DATE(a.entered_at), a.scorer_id, a.battery_id, a.test_code
-		 ON DUPLICATE KEY UPDATE passes = passes + VALUES(passes), fields_entered = fields_entered + VALUES(fields_entered),
-		        raw_fields = raw_fields + VALUES(raw_fields), derived_fields = derived_fields + VALUES(derived_fields)`,
+		 ${upsert('audit_daily')}`,
 		p,
 		t
 	);
 	const gWhere = whereOf('g');
 	const cols = MEASURES.map(([c]) => c).join(', ');
 	const sums = MEASURES.map(([, e]) => `:sign * ${e}`).join(', ');
-	const update = MEASURES.map(([c]) => `${c} = ${c} + VALUES(${c})`).join(', ');
-	const buckets: Array<[string, string, string]> = [
+	const buckets: Array<[SummaryTable, string, string]> = [
 		['agreement_daily', 'day', 'DATE(g.entered_at)'],
 		['agreement_weekly', 'week', 'DATE_SUB(DATE(g.entered_at), INTERVAL WEEKDAY(g.entered_at) DAY)']
 	];
@@ -249,30 +253,70 @@ export async function applyToDaily(scope: { protocolId: number; round: number } 
 		.join(' UNION ALL ');
 	for (const [table, col, bucket] of buckets) {
 		await exec(
-			`INSERT INTO ${table} (scorer_id, ${col}, battery_id, test_code, field, first_label, second_label, ${cols})
+			`INSERT INTO ${target(table)} (scorer_id, ${col}, battery_id, test_code, field, first_label, second_label, ${cols})
 			 SELECT g.as_scorer, ${bucket}, g.battery_id, g.test_code, g.field, COALESCE(g.first_label, ''), COALESCE(g.second_label, ''), ${sums}
 			   FROM (${asScorers}) g
 			  GROUP BY 1, 2, 3, 4, 5, 6, 7
-			 ON DUPLICATE KEY UPDATE ${update}`,
+			 ${upsert(table)}`,
 			p,
 			t
 		);
 	}
 	await exec(
-		`INSERT INTO agreement_pair_daily (field, day, first_scorer_id, second_scorer_id, battery_id, test_code, first_label, second_label, ${cols})
+		`INSERT INTO ${target('agreement_pair_daily')} (field, day, first_scorer_id, second_scorer_id, battery_id, test_code, first_label, second_label, ${cols})
 		 SELECT g.field, DATE(g.entered_at), g.first_scorer_id, g.second_scorer_id, g.battery_id, g.test_code, COALESCE(g.first_label, ''), COALESCE(g.second_label, ''), ${sums}
 		   FROM agreement_pairs g WHERE ${gWhere}
 		  GROUP BY 1, 2, 3, 4, 5, 6, 7, 8
-		 ON DUPLICATE KEY UPDATE ${update}`,
+		 ${upsert('agreement_pair_daily')}`,
 		p,
 		t
 	);
 }
 
-/** Rebuild the daily sums from the row-level tables (after a bulk load, or to repair). */
+/** Rebuild the daily sums from the row-level tables (after a bulk load, or to repair); no delta rows remain. */
 export async function rebuildDailySums(t?: Transaction | null): Promise<void> {
-	for (const table of ['audit_daily', 'agreement_daily', 'agreement_weekly', 'agreement_pair_daily']) await exec(`DELETE FROM ${table}`, {}, t);
-	await applyToDaily('all', 1, t);
+	for (const table of SUMMARY_TABLES) {
+		await exec(`DELETE FROM ${table}`, {}, t);
+		await exec(`DELETE FROM ${table}_delta`, {}, t);
+	}
+	await applyToDaily('all', 1, t, 'summary');
+}
+
+/**
+ * Move delta rows into their summaries, at most `limit` per table per transaction, until none are
+ * left; returns how many were moved. The delta rows are locked first (a locking read waits for a
+ * submit still writing one), then added to the summary rows and deleted by id in the same
+ * transaction, so every reader sees each row exactly once, in the delta table or in the summary.
+ * Raw SQL: an INSERT … SELECT … GROUP BY … ON DUPLICATE KEY UPDATE folds many rows in one statement.
+ */
+export async function foldDeltas(limit = 5000): Promise<number> {
+	let moved = 0;
+	for (const table of SUMMARY_TABLES) {
+		const { keys, extra, measures } = SUMMARIES[table];
+		for (;;) {
+			const n = await transaction(async (t) => {
+				const ids = (await select<{ id: number }>(`SELECT id FROM ${table}_delta ORDER BY id LIMIT ${Number(limit)} FOR UPDATE`, {}, t)).map((r) =>
+					Number(r.id)
+				);
+				if (ids.length === 0) return 0;
+				const list = ids.join(',');
+				await exec(
+					`INSERT INTO ${table} (${[...keys, ...extra, ...measures].join(', ')})
+					 SELECT ${[...keys, ...extra.map((c) => `MAX(${c})`), ...measures.map((c) => `SUM(${c})`)].join(', ')}
+					   FROM ${table}_delta WHERE id IN (${list})
+					  GROUP BY ${keys.join(', ')}
+					 ON DUPLICATE KEY UPDATE ${measures.map((c) => `${c} = ${c} + VALUES(${c})`).join(', ')}`,
+					{},
+					t
+				);
+				await exec(`DELETE FROM ${table}_delta WHERE id IN (${list})`, {}, t);
+				return ids.length;
+			});
+			moved += n;
+			if (n < limit) break;
+		}
+	}
+	return moved;
 }
 
 /** Multi-row INSERT with positional replacements, in chunks. */
@@ -292,7 +336,8 @@ export async function insertMany(table: string, columns: string[], rows: unknown
 	}
 }
 
-interface DiscrepancyRow {
+/** What recordResolution reads of a discrepancy (columns of `discrepancies`, and its protocol's battery). */
+type DiscrepancyRead = {
 	id: number;
 	protocol_id: number;
 	round: number;
@@ -307,7 +352,7 @@ interface DiscrepancyRow {
 	expected: string | null;
 	carried_from: number | null;
 	battery_id: number;
-}
+};
 
 /** Whether an entered value is the kept one: numerically equal when both are numbers, else as written. */
 export function sameValue(v: string | null | undefined, kept: string | null | undefined, field: Field): boolean {
@@ -327,7 +372,7 @@ export function sameValue(v: string | null | undefined, kept: string | null | un
  * For `both`, `value` is the first pass's entry and `other` the second's; for a single pass,
  * `value` is that pass's entry.
  */
-export function attributedPasses(d: Pick<DiscrepancyRow, 'pass' | 'value' | 'other' | 'resolution' | 'resolved_value' | 'field'>): Array<'first' | 'second'> {
+export function attributedPasses(d: Pick<DiscrepancyRead, 'pass' | 'value' | 'other' | 'resolution' | 'resolved_value' | 'field'>): Array<'first' | 'second'> {
 	if (d.resolution === null || d.resolution === undefined) return [];
 	const kept = d.resolved_value;
 	if (d.pass === 'both') {
@@ -344,7 +389,7 @@ export function attributedPasses(d: Pick<DiscrepancyRow, 'pass' | 'value' | 'oth
  * scorer whose value was not kept. An unresolved discrepancy ends with no rows.
  */
 export async function recordResolution(discrepancyId: number, t: Transaction): Promise<void> {
-	const d = await selectOne<DiscrepancyRow>(
+	const d = await selectOne<DiscrepancyRead>(
 		`SELECT d.id, d.protocol_id, d.round, d.test_code, d.field, d.pass, d.kind, d.value, d.other,
 		        d.resolution, d.resolved_value, d.expected, d.carried_from, p.battery_id
 		   FROM discrepancies d JOIN protocols p ON p.id = d.protocol_id
@@ -353,10 +398,11 @@ export async function recordResolution(discrepancyId: number, t: Transaction): P
 		t
 	);
 	if (!d) throw new Error(`recordResolution: discrepancy ${discrepancyId} does not exist`);
-	await exec('DELETE FROM error_events WHERE discrepancy_id = :discrepancyId', { discrepancyId }, t);
+	models();
 	// A later round decided this field again (reopen, amendment): its decision replaces the earlier
 	// round's, so the earlier round's charges for it go (an error is counted once).
-	if (d.carried_from !== null && d.resolution !== null) await exec('DELETE FROM error_events WHERE discrepancy_id = :c', { c: d.carried_from }, t);
+	const replaced = d.carried_from !== null && d.resolution !== null ? [discrepancyId, d.carried_from] : [discrepancyId];
+	await ErrorEvent.destroy({ where: { discrepancy_id: replaced }, transaction: t });
 	const against = attributedPasses(d);
 	if (against.length === 0) return;
 	// The kept value contradicts the recomputation: the charge rests on the reviewer's judgement.
@@ -368,26 +414,24 @@ export async function recordResolution(discrepancyId: number, t: Transaction): P
 		t
 	);
 	const domain = (await domainsFor([d.test_code], t)).get(d.test_code) ?? 'unknown';
-	for (const which of against) {
+	const events = against.flatMap((which) => {
 		const pass = passes.find((p) => p.which === which);
-		if (!pass) continue;
-		await exec(
-			`INSERT INTO error_events (discrepancy_id, protocol_id, scorer_id, battery_id, test_code, domain, field, kind, entered_at, judgement)
-			 VALUES (:discrepancyId, :protocolId, :scorerId, :batteryId, :testCode, :domain, :field, :kind, :enteredAt, :judgement)
-			 ON DUPLICATE KEY UPDATE kind = VALUES(kind), field = VALUES(field), entered_at = VALUES(entered_at), judgement = VALUES(judgement)`,
+		if (!pass) return [];
+		return [
 			{
-				discrepancyId,
-				protocolId: d.protocol_id,
-				scorerId: pass.scorer_id,
-				batteryId: d.battery_id,
-				testCode: d.test_code,
+				discrepancy_id: discrepancyId,
+				protocol_id: d.protocol_id,
+				scorer_id: pass.scorer_id,
+				battery_id: d.battery_id,
+				test_code: d.test_code,
 				domain,
-				field: d.field,
+				field: d.field as StatField,
 				kind: d.kind,
-				enteredAt: pass.submitted_at ? new Date(pass.submitted_at) : new Date(),
-				judgement
-			},
-			t
-		);
-	}
+				entered_at: pass.submitted_at ? new Date(pass.submitted_at) : new Date(),
+				judgement: judgement as 0 | 1
+			}
+		];
+	});
+	// the same scorer on both passes would be one row (UNIQUE discrepancy_id, scorer_id): the later one wins
+	if (events.length) await ErrorEvent.bulkCreate(events, { transaction: t, updateOnDuplicate: ['kind', 'field', 'entered_at', 'judgement'] });
 }

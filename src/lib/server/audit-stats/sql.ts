@@ -4,6 +4,39 @@
  */
 import { dayAfter, type AuditFilters } from './filters';
 
+/** The sums kept per agreement cell (agreement_daily, agreement_weekly, agreement_pair_daily). */
+const AGREEMENT_MEASURES = ['pairs', 'one_sided', 'exact', 'sx', 'sy', 'sxx', 'syy', 'sxy', 'sd', 'sdd'] as const;
+
+/** The four daily summaries (00006) and their `_delta` tables (00026): key, other and measure columns. */
+export const SUMMARIES = {
+	audit_daily: {
+		keys: ['day', 'scorer_id', 'battery_id', 'test_code'],
+		extra: ['domain'],
+		measures: ['passes', 'fields_entered', 'raw_fields', 'derived_fields']
+	},
+	agreement_daily: { keys: ['scorer_id', 'day', 'battery_id', 'test_code', 'field', 'first_label', 'second_label'], extra: [], measures: AGREEMENT_MEASURES },
+	agreement_weekly: { keys: ['scorer_id', 'week', 'battery_id', 'test_code', 'field', 'first_label', 'second_label'], extra: [], measures: AGREEMENT_MEASURES },
+	agreement_pair_daily: {
+		keys: ['field', 'day', 'first_scorer_id', 'second_scorer_id', 'battery_id', 'test_code', 'first_label', 'second_label'],
+		extra: [],
+		measures: AGREEMENT_MEASURES
+	}
+} as const satisfies Record<string, { keys: readonly string[]; extra: readonly string[]; measures: readonly string[] }>;
+export type SummaryTable = keyof typeof SUMMARIES;
+export const SUMMARY_TABLES = Object.keys(SUMMARIES) as SummaryTable[];
+
+/**
+ * A summary and its delta rows not yet folded, filtered alike, as one derived table to read
+ * `FROM ${withDeltas(…)} alias`: every sum the reports take is over both (record.ts appends to the
+ * delta tables; the worker's fold moves rows across in one transaction, and one statement sees
+ * either side of it).
+ */
+export function withDeltas(table: SummaryTable, where: Where, alias: string): string {
+	const { keys, extra, measures } = SUMMARIES[table];
+	const cols = [...keys, ...extra, ...measures].map((c) => `${alias}.${c}`).join(', ');
+	return `(SELECT ${cols} FROM ${table} ${alias} ${where.sql} UNION ALL SELECT ${cols} FROM ${table}_delta ${alias} ${where.sql})`;
+}
+
 export interface Where {
 	sql: string;
 	params: Record<string, unknown>;

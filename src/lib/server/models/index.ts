@@ -5,6 +5,7 @@
  */
 import { DataTypes, Model, type CreationOptional, type InferAttributes, type InferCreationAttributes } from 'sequelize';
 import { db } from '../db';
+import { initAuditStatsModels } from './audit-stats';
 
 /** One row of a conversion table: a raw (or sum) range and what the manual gives for it. */
 export class NormTableRow extends Model<InferAttributes<NormTableRow>, InferCreationAttributes<NormTableRow>> {
@@ -120,6 +121,7 @@ export function models() {
 			},
 			{ sequelize, tableName: 'protocol_composites', timestamps: false }
 		);
+		initAuditStatsModels(sequelize);
 		bound = sequelize;
 	}
 	return { NormTableRow, Composite, ProtocolComposite };
