@@ -9,8 +9,8 @@
 import { describe, it, expect, beforeAll, afterAll } from 'vitest';
 import Papa from 'papaparse';
 import { closeDb, exec, jsonValue, select, selectOne, transaction } from '../../src/lib/server/db';
-import { recordResolution, recordSubmission } from '../../src/lib/server/audit-stats/record';
-import { NO_FILTERS, runReport, type AuditFilters } from '../../src/lib/server/audit-stats';
+import { foldDeltas, recordResolution, recordSubmission } from '../../src/lib/server/audit-stats/record';
+import { NO_FILTERS, REPORT_NAMES, runReport, type AuditFilters } from '../../src/lib/server/audit-stats';
 import { iccFromSums, sumsOf, blandAltmanFromSums } from '../../src/lib/server/audit-stats/sums';
 import { blandAltman, cohenKappa, intraclassCorrelation, wilsonInterval } from '../../src/lib/scoring/agreement';
 import { AACN_2020, labelFor } from '../../src/lib/scoring/labels';
@@ -387,6 +387,41 @@ describe('aggregates against figures computed from the raw rows', () => {
 		expectClose((await runReport('scorers', WINDOW)).rows, beforeScorers.rows);
 	});
 
+	it('a submit appends to the delta tables and locks no summary row; folding the deltas changes no report (issue 18)', async () => {
+		// every summary row of the window exists (the worker folds too, at any moment: fold here first)
+		await foldDeltas();
+		const DAYS = "BETWEEN '2001-01-01' AND '2001-03-31'";
+		const before = await Promise.all(REPORT_NAMES.map((r) => runReport(r, WINDOW)));
+		await transaction(async (t) => {
+			await recordSubmission(mine[1], 1, t);
+			// the round's sums were appended (its old sums negated, its new ones added) …
+			const mineInDelta = await selectOne<{ n: number }>(`SELECT COUNT(*) AS n FROM audit_daily_delta WHERE day ${DAYS}`, {}, t);
+			expect(Number(mineInDelta!.n)).toBeGreaterThan(0);
+			// … and another connection can still lock every summary row of those days at once: the submit
+			// holds none of them (before, its upsert held them until it committed)
+			for (const [table, col] of [
+				['audit_daily', 'day'],
+				['agreement_daily', 'day'],
+				['agreement_weekly', 'week'],
+				['agreement_pair_daily', 'day']
+			])
+				await expect(select(`SELECT * FROM ${table} WHERE ${col} ${DAYS} FOR UPDATE NOWAIT`), table).resolves.not.toHaveLength(0);
+		});
+		const unfolded = await Promise.all(REPORT_NAMES.map((r) => runReport(r, WINDOW)));
+		expectClose(
+			unfolded.map((r) => r.rows),
+			before.map((r) => r.rows)
+		);
+		await foldDeltas();
+		for (const table of ['audit_daily_delta', 'agreement_daily_delta', 'agreement_pair_daily_delta'])
+			expect(Number((await selectOne<{ n: number }>(`SELECT COUNT(*) AS n FROM ${table} WHERE day ${DAYS}`))!.n), table).toBe(0);
+		const folded = await Promise.all(REPORT_NAMES.map((r) => runReport(r, WINDOW)));
+		expectClose(
+			folded.map((r) => r.rows),
+			before.map((r) => r.rows)
+		);
+	});
+
 	it('ICC and Bland–Altman from sums equal the matrix forms on random data (sums.ts)', () => {
 		let seed = 7;
 		const r = () => (seed = (seed * 16807) % 2147483647) / 2147483647;
@@ -498,5 +533,45 @@ describe('GET /api/v1/audit/[report]', () => {
 		const html = await res.text();
 		expect(html).toContain('Audit');
 		expect(html).toContain('Landis');
+	});
+
+	it('the Audit page is drawn on the server from the filters in its address; bad values are named, never a 500', async () => {
+		const c = await signedIn('lead');
+		// the window's figures, counted here from the raw rows (everything in the window is this file's)
+		const raw = (await selectOne<{ passes: number; fields: number }>(
+			`SELECT COUNT(*) AS passes, SUM(fields_entered) AS fields FROM passes WHERE protocol_id IN (:mine) AND status = 'submitted'`,
+			{ mine }
+		))!;
+		const errorCount = (await selectOne<{ n: number }>('SELECT COUNT(*) AS n FROM error_events WHERE protocol_id IN (:mine)', { mine }))!.n;
+		const res = await c.get(`/audit?${Q}&scorer=${ids.sam}&kind=transposition&field=scaled`);
+		expect(res.status).toBe(200);
+		const html = await res.text();
+		// the tables are in the first answer (no request from the browser needed), and the form shows the address
+		expect(html).toContain('data-testid="table-scorers"');
+		expect(html).toMatch(/id="f-from"[^>]*value="2001-01-01"/);
+		expect(html).toMatch(new RegExp(`<option value="${ids.sam}"[^>]*selected`));
+		expect(html).toMatch(/<option value="transposition"[^>]*selected/);
+		expect(html).toMatch(/<option value="scaled"[^>]*selected/);
+		expect(html).toContain(`/api/v1/audit/scorers?from=2001-01-01&amp;to=2001-03-31&amp;scorer=${ids.sam}&amp;kind=transposition&amp;format=csv`);
+		const all = await (await c.get(`/audit?${Q}`)).text();
+		expect(all).toContain(
+			`${Number(raw.passes).toLocaleString('en-GB')} protocol passes · ${Number(raw.fields).toLocaleString('en-GB')} fields entered · ${Number(errorCount).toLocaleString('en-GB')} errors`
+		);
+
+		for (const [q, key, message] of [
+			['from=2023-02-30', 'From', /2023-02-30 does not exist/],
+			['kind=nonsense', 'Kind of error', /Use one of the kinds/],
+			['scorer=abc', 'Scorer', /Choose a scorer from the list/],
+			['from=2001-03-01&to=2001-01-01', 'To', /The end date is before the start date/],
+			['colour=red', 'colour', /Unknown filter/]
+		] as const) {
+			const bad = await c.get(`/audit?${q}`);
+			expect(bad.status, q).toBe(200);
+			const text = await bad.text();
+			expect(text, q).toContain('Some filters in the address are not valid');
+			expect(text, q).toContain(`<strong>${key}</strong>`);
+			expect(text, q).toMatch(message);
+			expect(text, q).not.toContain('data-testid="table-scorers"');
+		}
 	});
 });

@@ -1,25 +1,12 @@
 import type { PageServerLoad } from './$types';
-import { select } from '$lib/server/db';
-import { kindList } from '$lib/scoring/kinds';
-import { LANDIS_KOCH_1977, KOO_LI_2016 } from '$lib/scoring/agreement';
+import { auditScreen, parseFilters } from '$lib/server/audit-stats';
 
-/** The filter choices; the tables and charts themselves come from /api/v1/audit/[report]. */
-export const load: PageServerLoad = async () => {
-	const [scorers, batteries, tests] = await Promise.all([
-		select<{ id: number; name: string }>(
-			`SELECT id, name FROM users WHERE FIND_IN_SET('scorer', roles) > 0
-			    OR id IN (SELECT DISTINCT scorer_id FROM audit_daily) ORDER BY name`
-		),
-		select<{ id: number; name: string }>('SELECT id, name FROM batteries ORDER BY name'),
-		select<{ code: string; name: string; domain: string }>('SELECT code, name, domain FROM tests WHERE is_current = 1 ORDER BY name')
-	]);
-	return {
-		options: {
-			scorers: scorers.map((s) => ({ id: Number(s.id), name: s.name })),
-			batteries: batteries.map((b) => ({ id: Number(b.id), name: b.name })),
-			tests,
-			kinds: kindList().map((k) => ({ id: k.id, label: k.name, explanation: k.explanation }))
-		},
-		bands: { kappa: LANDIS_KOCH_1977, icc: KOO_LI_2016 }
-	};
+/**
+ * The Audit screen, driven by the URL: the filters are query parameters (a link or a reload shows
+ * the same tables). Bad values are named beside their filter and nothing is counted.
+ */
+export const load: PageServerLoad = async ({ url }) => {
+	const parsed = parseFilters(url.searchParams);
+	const screen = await auditScreen(parsed.ok ? parsed.filters : null);
+	return { ...screen, filters: parsed.ok ? parsed.filters : null, errors: parsed.ok ? {} : parsed.errors };
 };

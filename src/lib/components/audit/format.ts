@@ -30,3 +30,31 @@ export const SERIES_STYLES = [
 	{ colour: '#4a5563', dash: '1 2', shape: 'star' },
 	{ colour: '#7a6a1e', dash: '10 4', shape: 'circle' }
 ] as const;
+
+/** Score fields in words, and the unit of a difference on each. */
+export const FIELD_NAMES: Record<string, string> = {
+	raw: 'Raw score',
+	z: 'z-score',
+	standard: 'Standard score (100/15)',
+	scaled: 'Scaled score (10/3)',
+	t: 'T-score (50/10)',
+	percentile: 'Percentile'
+};
+export const UNITS: Record<string, string> = {
+	raw: 'raw-score units',
+	z: 'z units',
+	standard: 'standard-score points',
+	scaled: 'scaled-score points',
+	t: 'T-score points',
+	percentile: 'percentile points'
+};
+
+/** The chip colours of an interpretation band (kappa or ICC). */
+export const bandChip = (label: string | null) =>
+	!label
+		? 'border-line-strong text-ink-soft'
+		: ['excellent', 'almost perfect', 'good', 'substantial'].includes(label)
+			? 'border-verified-line bg-verified-soft text-verified'
+			: ['moderate'].includes(label)
+				? 'border-line-strong bg-paper-sunk text-ink'
+				: 'border-attention-line bg-attention-soft text-attention';

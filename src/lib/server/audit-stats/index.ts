@@ -3,10 +3,8 @@
  * every table on the Audit screen exports to CSV the same way.
  */
 import { writeCsv } from '../../csv';
-import { select } from '../db';
-import { KINDS, kindName } from '../../scoring/kinds';
-import { FIELD_LABELS } from '../../status';
-import { errorWhere } from './sql';
+import { KINDS } from '../../scoring/kinds';
+import { agreementNotes, DENOMINATOR_NOTE, judgementRows, openCount } from './screen';
 import { KOO_LI_2016, LANDIS_KOCH_1977, ICC_FORMS } from '../../scoring/agreement';
 import type { AuditFilters } from './filters';
 import { groupRates, kindRates, loadNames, scorerRates, weekRates } from './errors';
@@ -14,6 +12,7 @@ import { agreementByField, agreementByScorerPair, blandAltmanReport, BAND_LABELS
 
 export { parseFilters, NO_FILTERS, type AuditFilters } from './filters';
 export { recordSubmission, recordResolution } from './record';
+export { auditScreen, type AuditScreen } from './screen';
 
 export interface Column {
 	key: string;
@@ -62,20 +61,6 @@ const flattenIcc = <T extends { icc: Record<string, number | null> | null }>(r: 
 	const { icc, ...rest } = r;
 	return { ...rest, ...Object.fromEntries(ICC_FORMS.map((f) => [f, icc?.[f] ?? null])) };
 };
-
-const DENOMINATOR_NOTE =
-	'Errors are resolved discrepancies counted against each pass whose value was not kept (a shared error counts against both scorers). ' +
-	'Fields entered: the fields in each scorer’s submitted passes. 95% intervals: Wilson score interval.';
-
-async function openCount(f: AuditFilters): Promise<number> {
-	const row = await select<{ n: number }>(
-		`SELECT COUNT(*) AS n FROM discrepancies d JOIN protocols p ON p.id = d.protocol_id
-		  WHERE d.resolved_at IS NULL ${f.battery !== null ? 'AND p.battery_id = :battery' : ''} ${f.test !== null ? 'AND d.test_code = :test' : ''}
-		  ${f.kind !== null ? 'AND d.kind = :kind' : ''}`,
-		{ battery: f.battery, test: f.test, kind: f.kind }
-	);
-	return Number(row[0]?.n ?? 0);
-}
 
 type Builder = (f: AuditFilters) => Promise<Omit<ReportResult, 'report' | 'filters'>>;
 
@@ -168,21 +153,7 @@ const REPORTS = {
 		};
 	},
 	judgements: async (f) => {
-		const w = errorWhere(f, 'e');
-		const rows = await select<Record<string, unknown>>(
-			`SELECT e.id, e.entered_at, x.code AS protocol, e.protocol_id, e.test_code, COALESCE(t.name, e.test_code) AS test, e.field, e.kind,
-			        u.name AS scorer, d.resolved_value AS kept, d.expected AS recomputed, d.note, r.name AS reviewer, d.resolved_at
-			   FROM error_events e
-			   JOIN discrepancies d ON d.id = e.discrepancy_id
-			   JOIN protocols p ON p.id = e.protocol_id
-			   JOIN examinees x ON x.id = p.examinee_id
-			   LEFT JOIN users u ON u.id = e.scorer_id
-			   LEFT JOIN users r ON r.id = d.resolved_by
-			   LEFT JOIN (SELECT code, MAX(name) AS name FROM tests GROUP BY code) t ON t.code = e.test_code
-			   ${w.sql ? `${w.sql} AND e.judgement = 1` : 'WHERE e.judgement = 1'}
-			  ORDER BY e.entered_at DESC, e.id DESC LIMIT 500`,
-			w.params
-		);
+		const rows = await judgementRows(f);
 		return {
 			title: 'Charges resting on the reviewer’s judgement',
 			columns: [
@@ -196,7 +167,7 @@ const REPORTS = {
 				{ key: 'note', label: 'Reviewer’s note' },
 				{ key: 'reviewer', label: 'Reviewer' }
 			],
-			rows: rows.map((r) => ({ ...r, field_name: FIELD_LABELS[String(r.field)] ?? r.field, kind_name: kindName(String(r.kind)) })),
+			rows: rows as unknown as Record<string, unknown>[],
 			notes: [
 				'Errors charged where the kept value contradicts the recomputation: the charge rests on the reviewer’s note, not on the arithmetic. A lead can check each against the record form.'
 			]
@@ -220,15 +191,6 @@ const REPORTS = {
 		};
 	}
 } satisfies Record<string, Builder>;
-
-function agreementNotes(f: AuditFilters): string[] {
-	const out = [
-		'Entries as the two scorers typed them, before review. Kappa on AACN (2020) descriptive labels, categories in the scheme’s order; ICC per Shrout & Fleiss (1979), raters = first vs second pass.'
-	];
-	if (f.kind) out.push('The kind filter does not apply to agreement (it describes discrepancies, not entries).');
-	if (f.scorer !== null) out.push('Scorer filter: protocols where the scorer entered either pass.');
-	return out;
-}
 
 export type ReportName = keyof typeof REPORTS;
 export const REPORT_NAMES = Object.keys(REPORTS) as ReportName[];
