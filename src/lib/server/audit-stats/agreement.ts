@@ -9,7 +9,7 @@ import { blandAltman, cohenKappa, interpretIcc, interpretKappa, ICC_FORMS } from
 import { AACN_2020 } from '../../scoring/labels';
 import { FIELDS, type Field } from '../../scoring/scales';
 import type { AuditFilters } from './filters';
-import { agreementDailyWhere, pairDailyWhere, pairsWhere, splitRange, withDeltas } from './sql';
+import { agreementDailyWhere, pairDailyWhere, pairsWhere, splitRange, sumWithDeltas } from './sql';
 import { addSums, blandAltmanFromSums, iccFromSums, ZERO_SUMS, type PairSums } from './sums';
 import type { Names } from './errors';
 import type { AgreementStats, AgreementRow, PairRow, BlandAltmanReport } from '../../audit/types';
@@ -94,20 +94,20 @@ export function statsOf(cells: Cell[], field: Field): AgreementStats {
 	return out;
 }
 
-const SUM_COLUMNS = `SUM(s.pairs) AS pairs, SUM(s.one_sided) AS one_sided, SUM(s.exact) AS exact, SUM(s.sx) AS sx, SUM(s.sy) AS sy,
-	SUM(s.sxx) AS sxx, SUM(s.syy) AS syy, SUM(s.sxy) AS sxy, SUM(s.sd) AS sd, SUM(s.sdd) AS sdd`;
+/** The sums of a set of summary cells (agreement_daily, agreement_weekly, agreement_pair_daily). */
+const SUMS: Array<[string, string]> = ['pairs', 'one_sided', 'exact', 'sx', 'sy', 'sxx', 'syy', 'sxy', 'sd', 'sdd'].map((c) => [c, `SUM(s.${c})`]);
 
 /** One row per field (raw, z, standard, scaled, t, percentile): whole weeks from agreement_weekly, edge days from agreement_daily. */
 export async function agreementByField(f: AuditFilters): Promise<AgreementRow[]> {
 	const split = splitRange(f.from, f.to);
 	const query = (table: 'agreement_weekly' | 'agreement_daily', col: string, range: { from: string | null; to: string | null }) => {
 		const w = agreementDailyWhere(f, range, col);
-		return select<Cell & { field: Field }>(
-			`SELECT s.field, s.first_label AS lx, s.second_label AS ly, ${SUM_COLUMNS}
-			   FROM ${withDeltas(table, w, 's')} s
-			  GROUP BY s.field, s.first_label, s.second_label`,
-			w.params
-		);
+		const groups: Array<[string, string]> = [
+			['field', 's.field'],
+			['lx', 's.first_label'],
+			['ly', 's.second_label']
+		];
+		return select<Cell & { field: Field }>(sumWithDeltas(table, w, 's', groups, SUMS), w.params);
 	};
 	const parts = await Promise.all([
 		...(split.weeks ? [query('agreement_weekly', 'week', split.weeks)] : []),
@@ -126,12 +126,13 @@ export async function agreementByField(f: AuditFilters): Promise<AgreementRow[]>
 /** One row per (first scorer, second scorer) on the chosen field. */
 export async function agreementByScorerPair(f: AuditFilters, names: Names): Promise<PairRow[]> {
 	const w = pairDailyWhere(f);
-	const rows = await select<Cell & { a: number; b: number }>(
-		`SELECT s.first_scorer_id AS a, s.second_scorer_id AS b, s.first_label AS lx, s.second_label AS ly, ${SUM_COLUMNS}
-		   FROM ${withDeltas('agreement_pair_daily', w, 's')} s
-		  GROUP BY s.first_scorer_id, s.second_scorer_id, s.first_label, s.second_label`,
-		w.params
-	);
+	const groups: Array<[string, string]> = [
+		['a', 's.first_scorer_id'],
+		['b', 's.second_scorer_id'],
+		['lx', 's.first_label'],
+		['ly', 's.second_label']
+	];
+	const rows = await select<Cell & { a: number; b: number }>(sumWithDeltas('agreement_pair_daily', w, 's', groups, SUMS), w.params);
 	const byPair = new Map<string, Cell[]>();
 	for (const r of rows) {
 		const k = `${r.a}|${r.b}`;

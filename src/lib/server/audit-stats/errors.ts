@@ -13,7 +13,7 @@ import { select } from '../db';
 import { errorRatePer100 } from '../../scoring/rates';
 import { KINDS, kindName } from '../../scoring/kinds';
 import type { AuditFilters } from './filters';
-import { dailyWhere, errorWhere, withDeltas } from './sql';
+import { dailyWhere, errorWhere, sumWithDeltas } from './sql';
 import type { RateCells, ScorerRow, KindRow, GroupRow, WeekRow } from '../../audit/types';
 
 export type { RateCells, ScorerRow, KindRow, GroupRow, WeekRow };
@@ -54,8 +54,19 @@ async function fieldsByScorer(f: AuditFilters, byWeek: boolean): Promise<Map<Key
 	const w = dailyWhere(f, 'pass');
 	const week = byWeek ? 'DATE_SUB(d.day, INTERVAL WEEKDAY(d.day) DAY)' : 'NULL';
 	const rows = await select<{ scorer_id: number; week: string | null; fields: number; passes: number }>(
-		`SELECT d.scorer_id, ${week} AS week, SUM(d.fields_entered) AS fields, SUM(d.passes) AS passes
-		   FROM ${withDeltas('audit_daily', w, 'd')} d GROUP BY d.scorer_id, week`,
+		sumWithDeltas(
+			'audit_daily',
+			w,
+			'd',
+			[
+				['scorer_id', 'd.scorer_id'],
+				['week', week]
+			],
+			[
+				['fields', 'SUM(d.fields_entered)'],
+				['passes', 'SUM(d.passes)']
+			]
+		),
 		w.params
 	);
 	for (const r of rows) out.set(`${r.scorer_id}|${r.week ?? ''}`, { fields: num(r.fields), passes: num(r.passes) });
@@ -146,7 +157,16 @@ export async function groupRates(f: AuditFilters, names: Names, by: 'test' | 'do
 	let denoms: Array<{ scorer_id: number; g: string; fields: number }>;
 	if (by === 'class') {
 		const rows = await select<{ scorer_id: number; raw: number; derived: number }>(
-			`SELECT d.scorer_id, SUM(d.raw_fields) AS raw, SUM(d.derived_fields) AS derived FROM ${withDeltas('audit_daily', wf, 'd')} d GROUP BY d.scorer_id`,
+			sumWithDeltas(
+				'audit_daily',
+				wf,
+				'd',
+				[['scorer_id', 'd.scorer_id']],
+				[
+					['raw', 'SUM(d.raw_fields)'],
+					['derived', 'SUM(d.derived_fields)']
+				]
+			),
 			wf.params
 		);
 		denoms = rows.flatMap((r) => [
@@ -156,7 +176,16 @@ export async function groupRates(f: AuditFilters, names: Names, by: 'test' | 'do
 	} else {
 		const col = by === 'test' ? 'd.test_code' : 'd.domain';
 		denoms = await select(
-			`SELECT d.scorer_id, ${col} AS g, SUM(d.fields_entered) AS fields FROM ${withDeltas('audit_daily', wf, 'd')} d GROUP BY d.scorer_id, g`,
+			sumWithDeltas(
+				'audit_daily',
+				wf,
+				'd',
+				[
+					['scorer_id', 'd.scorer_id'],
+					['g', col]
+				],
+				[['fields', 'SUM(d.fields_entered)']]
+			),
 			wf.params
 		);
 	}

@@ -15,7 +15,7 @@
  * The daily sums are append-only on this path (issue 18): a round's sums (or, recorded again, its
  * old sums negated) are appended to the `_delta` table beside each summary, never added to the
  * summary row in place, so concurrent submits of one day do not wait on one hot row until the
- * other commits. The reports add summary and delta rows (sql.ts, `withDeltas`); `foldDeltas()`,
+ * other commits. The reports add summary and delta rows (sql.ts, `sumWithDeltas`); `foldDeltas()`,
  * run by the worker, moves delta rows into the summaries without changing any sum.
  */
 import type { InferCreationAttributes, Transaction } from 'sequelize';

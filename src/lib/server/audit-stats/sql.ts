@@ -26,15 +26,16 @@ export type SummaryTable = keyof typeof SUMMARIES;
 export const SUMMARY_TABLES = Object.keys(SUMMARIES) as SummaryTable[];
 
 /**
- * A summary and its delta rows not yet folded, filtered alike, as one derived table to read
- * `FROM ${withDeltas(…)} alias`: every sum the reports take is over both (record.ts appends to the
- * delta tables; the worker's fold moves rows across in one transaction, and one statement sees
- * either side of it).
+ * Sums over a summary and its delta rows not yet folded, filtered alike: each table is grouped on
+ * its own (the summary through its indexes, as before the deltas), then the two results are added.
+ * record.ts appends to the delta tables; the worker's fold moves rows across in one transaction, and
+ * one statement sees either side of it. `groups` and `sums` are [name, expression on `alias`].
  */
-export function withDeltas(table: SummaryTable, where: Where, alias: string): string {
-	const { keys, extra, measures } = SUMMARIES[table];
-	const cols = [...keys, ...extra, ...measures].map((c) => `${alias}.${c}`).join(', ');
-	return `(SELECT ${cols} FROM ${table} ${alias} ${where.sql} UNION ALL SELECT ${cols} FROM ${table}_delta ${alias} ${where.sql})`;
+export function sumWithDeltas(table: SummaryTable, where: Where, alias: string, groups: Array<[string, string]>, sums: Array<[string, string]>): string {
+	const names = groups.map(([n]) => n).join(', ');
+	const branch = (t: string) => `SELECT ${[...groups, ...sums].map(([n, e]) => `${e} AS ${n}`).join(', ')} FROM ${t} ${alias} ${where.sql} GROUP BY ${names}`;
+	return `SELECT ${[...groups.map(([n]) => n), ...sums.map(([n]) => `SUM(${n}) AS ${n}`)].join(', ')}
+	  FROM (${branch(table)} UNION ALL ${branch(`${table}_delta`)}) u GROUP BY ${names}`;
 }
 
 export interface Where {
