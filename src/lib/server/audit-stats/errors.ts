@@ -15,6 +15,7 @@ import { KINDS, kindName } from '../../scoring/kinds';
 import type { AuditFilters } from './filters';
 import { dailyWhere, errorWhere, sumWithDeltas } from './sql';
 import type { RateCells, ScorerRow, KindRow, GroupRow, WeekRow } from '../../audit/types';
+import { isoWeek, utcDay } from '../../dates';
 
 export type { RateCells, ScorerRow, KindRow, GroupRow, WeekRow };
 
@@ -213,19 +214,6 @@ export async function groupRates(f: AuditFilters, names: Names, by: 'test' | 'do
 	return rows;
 }
 
-/** ISO 8601 week label of a date (YYYY-MM-DD). */
-export function isoWeek(day: string): string {
-	const d = new Date(`${day}T00:00:00Z`);
-	const dow = (d.getUTCDay() + 6) % 7; // Monday 0
-	d.setUTCDate(d.getUTCDate() - dow + 3); // Thursday of this week decides the year
-	const year = d.getUTCFullYear();
-	const jan4 = new Date(Date.UTC(year, 0, 4));
-	const week = 1 + Math.round(((d.getTime() - jan4.getTime()) / 86_400_000 - 3 + ((jan4.getUTCDay() + 6) % 7)) / 7);
-	return `${year}-W${String(week).padStart(2, '0')}`;
-}
-
-const dayString = (v: unknown): string => (v instanceof Date ? v.toISOString().slice(0, 10) : String(v).slice(0, 10));
-
 /** Weekly error rate per scorer (week of entering) and for all scorers. */
 export async function weekRates(f: AuditFilters, names: Names): Promise<WeekRow[]> {
 	const w = errorWhere(f);
@@ -237,18 +225,18 @@ export async function weekRates(f: AuditFilters, names: Names): Promise<WeekRow[
 		),
 		fieldsByScorer(f, true)
 	]);
-	const count = new Map(errs.map((r) => [`${r.scorer_id}|${dayString(r.week)}`, num(r.errors)]));
+	const count = new Map(errs.map((r) => [`${r.scorer_id}|${utcDay(r.week)}`, num(r.errors)]));
 	const keys = new Set<string>([
 		...count.keys(),
 		...[...fields.keys()].map((k) => {
 			const [id, wk] = k.split('|');
-			return `${id}|${dayString(wk)}`;
+			return `${id}|${utcDay(wk)}`;
 		})
 	]);
 	const fieldMap = new Map(
 		[...fields].map(([k, v]) => {
 			const [id, wk] = k.split('|');
-			return [`${id}|${dayString(wk)}`, v.fields];
+			return [`${id}|${utcDay(wk)}`, v.fields];
 		})
 	);
 	const rows: WeekRow[] = [];

@@ -7,6 +7,7 @@ import { KINDS } from '../../scoring/kinds';
 import { FIELDS, type Field } from '../../scoring/scales';
 import { isoDateField as isoDate } from '../../dates';
 import { fieldMessages } from '../../validation/issues';
+import { addDays } from '../../dates';
 
 export interface AuditFilters {
 	/** Inclusive first day, YYYY-MM-DD (UTC). */
@@ -87,7 +88,5 @@ export const NO_FILTERS: AuditFilters = { from: null, to: null, scorer: null, ba
 
 /** The day after an ISO date (exclusive upper bound of a range). */
 export function dayAfter(iso: string): string {
-	const d = new Date(`${iso}T00:00:00Z`);
-	d.setUTCDate(d.getUTCDate() + 1);
-	return d.toISOString().slice(0, 10);
+	return addDays(iso, 1);
 }

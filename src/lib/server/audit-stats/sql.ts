@@ -3,6 +3,7 @@
  * names are fixed here; only values go through replacements.
  */
 import { dayAfter, type AuditFilters } from './filters';
+import { addDays, mondayOf } from '../../dates';
 
 /** The sums kept per agreement cell (agreement_daily, agreement_weekly, agreement_pair_daily). */
 const AGREEMENT_MEASURES = ['pairs', 'one_sided', 'exact', 'sx', 'sy', 'sxx', 'syy', 'sxy', 'sd', 'sdd'] as const;
@@ -106,13 +107,6 @@ export function agreementDailyWhere(f: AuditFilters, range: { from: string | nul
 		{ ...common(f), from: range.from, to: range.to, scorerKey: f.scorer ?? 0 }
 	);
 }
-
-const addDays = (iso: string, n: number) => {
-	const d = new Date(`${iso}T00:00:00Z`);
-	d.setUTCDate(d.getUTCDate() + n);
-	return d.toISOString().slice(0, 10);
-};
-const mondayOf = (iso: string) => addDays(iso, -((new Date(`${iso}T00:00:00Z`).getUTCDay() + 6) % 7));
 
 /**
  * Split a date range into the whole ISO weeks inside it (week starts, inclusive; null = open) and
