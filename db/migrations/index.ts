@@ -9,6 +9,7 @@ import * as m00017 from './00017-commit-markers';
 import * as m00019 from './00019-verification';
 import * as m00022 from './00022-mail-claims';
 import * as m00023 from './00023-review-evidence';
+import * as m00024 from './00024-discrepancy-checks';
 import * as m00026 from './00026-audit-deltas';
 
 export const migrations = [
@@ -22,6 +23,7 @@ export const migrations = [
 	{ name: '00019-verification', ...m00019 },
 	{ name: '00022-mail-claims', ...m00022 },
 	{ name: '00023-review-evidence', ...m00023 },
+	{ name: '00024-discrepancy-checks', ...m00024 },
 	{ name: '00026-audit-deltas', ...m00026 }
 ];
 

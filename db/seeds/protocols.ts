@@ -11,7 +11,7 @@
 import { db, select, selectOne } from '../../src/lib/server/db';
 import { createProtocol, type Actor } from '../../src/lib/server/protocols/service';
 import { myPass, saveDraft, submitPass, type Scores } from '../../src/lib/server/protocols/passes';
-import { reviewView, resolveDiscrepancy, signOff, reopen } from '../../src/lib/server/protocols/review';
+import { reviewView, resolveDiscrepancy, signOff, reopen } from '../../src/lib/server/protocols/decisions';
 import { addAttachment } from '../../src/lib/server/protocols/attachments';
 import { normGroups } from '../../src/lib/server/protocols/catalog-read';
 import { getUserByEmail } from '../../src/lib/server/users';

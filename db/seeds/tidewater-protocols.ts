@@ -16,7 +16,7 @@
 import { db, selectOne, jsonValue } from '../../src/lib/server/db';
 import { createProtocol, type Actor } from '../../src/lib/server/protocols/service';
 import { myPass, saveDraft, submitPass, type Scores } from '../../src/lib/server/protocols/passes';
-import { reviewView, resolveDiscrepancy, signOff } from '../../src/lib/server/protocols/review';
+import { reviewView, resolveDiscrepancy, signOff } from '../../src/lib/server/protocols/decisions';
 import { addAttachment } from '../../src/lib/server/protocols/attachments';
 import { protocolTests, protocolComposites, normGroups, normDef, engineTest, engineComposite } from '../../src/lib/server/protocols/catalog-read';
 import { testReferences, compositeReferences, compositeSpan } from '../../src/lib/scoring/reconcile';

@@ -103,9 +103,13 @@ export async function protocolReachesReview(opts: Parameters<typeof createReview
 }
 
 export async function resolveAll(protocolId: number): Promise<void> {
-	await exec(`UPDATE discrepancies SET resolved_at = CURRENT_TIMESTAMP(3), resolution = 'recomputed' WHERE protocol_id = :id AND resolved_at IS NULL`, {
-		id: protocolId
-	});
+	// a whole decision (migration 00024 refuses a part of one): the reviewer keeps the first pass's value
+	await exec(
+		`UPDATE discrepancies d JOIN protocols p ON p.id = d.protocol_id
+		    SET d.resolution = 'other', d.resolved_value = COALESCE(d.value, d.other, d.expected, '0'), d.resolved_by = p.reviewer_id, d.resolved_at = CURRENT_TIMESTAMP(3)
+		  WHERE d.protocol_id = :id AND d.resolved_at IS NULL`,
+		{ id: protocolId }
+	);
 }
 
 /** End every chain of the fixtures made so far (their reminders then send and schedule nothing). */

@@ -76,7 +76,7 @@ async function protocol(opts: { first: number; second: number; battery?: number;
 async function resolve(id: number, resolution: 'first' | 'second' | 'recomputed' | 'other' | null, value: string | null) {
 	await transaction(async (t) => {
 		await exec(
-			`UPDATE discrepancies SET resolution = :resolution, resolved_value = :value, resolved_by = :rita, resolved_at = IF(:resolution IS NULL, NULL, NOW(3)) WHERE id = :id`,
+			`UPDATE discrepancies SET resolution = :resolution, resolved_value = :value, resolved_by = IF(:resolution IS NULL, NULL, :rita), resolved_at = IF(:resolution IS NULL, NULL, NOW(3)) WHERE id = :id`,
 			{ id, resolution, value, rita: ids.rita },
 			t
 		);

@@ -133,7 +133,10 @@ describe('review notifications', () => {
 		const f = await protocolReachesReview();
 		const first = await waitForKey(f, keyFor(f.protocolId, f.reviewerId, 0));
 		// one discrepancy resolved before the reminder goes out
-		await exec(`UPDATE discrepancies SET resolved_at = CURRENT_TIMESTAMP(3) WHERE protocol_id = :id AND position = 0`, { id: f.protocolId });
+		await exec(
+			`UPDATE discrepancies SET resolution = 'other', resolved_value = '1', resolved_by = :by, resolved_at = CURRENT_TIMESTAMP(3) WHERE protocol_id = :id AND position = 0`,
+			{ id: f.protocolId, by: f.reviewerId }
+		);
 		const due = await waitFor(() => nextReviewReminder(f.protocolId));
 		expect(due.reminderNo).toBe(1);
 		const r1 = await waitForKey(f, keyFor(f.protocolId, f.reviewerId, 1), INTERVAL_MS + 15_000);

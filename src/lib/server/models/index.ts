@@ -6,6 +6,8 @@
 import { DataTypes, Model, type CreationOptional, type InferAttributes, type InferCreationAttributes } from 'sequelize';
 import { db } from '../db';
 import { initAuditStatsModels } from './audit-stats';
+import { amendments } from './amendment';
+import { initProtocolModels, PROTOCOL_MODELS } from './protocol';
 
 /** One row of a conversion table: a raw (or sum) range and what the manual gives for it. */
 export class NormTableRow extends Model<InferAttributes<NormTableRow>, InferCreationAttributes<NormTableRow>> {
@@ -122,7 +124,8 @@ export function models() {
 			{ sequelize, tableName: 'protocol_composites', timestamps: false }
 		);
 		initAuditStatsModels(sequelize);
+		initProtocolModels(sequelize, { ProtocolComposite, Amendment: amendments() });
 		bound = sequelize;
 	}
-	return { NormTableRow, Composite, ProtocolComposite };
+	return { NormTableRow, Composite, ProtocolComposite, ...PROTOCOL_MODELS };
 }

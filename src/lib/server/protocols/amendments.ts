@@ -10,17 +10,20 @@
  */
 import { z } from 'zod';
 import type { Transaction } from 'sequelize';
-import { select, selectOne, exec, transaction } from '../db';
+import { select, exec, transaction } from '../db';
 import { recordEvent } from '../trail';
-import { protocolFor, type Actor, type ProtocolRow } from './service';
+import { models } from '../models';
+import { dbNow, saveLocked, type Protocol } from '../models/protocol';
+import { protocolFor, type Actor } from './service';
 import { protocolTests } from './catalog-read';
-import { carryPasses, finalScores } from './review';
+import { carryPasses, finalScores } from './decisions';
 import { referencesForRaw, kindAgainst } from './evidence';
 import { conflict, invalid, notFound, parseFirst, ServiceError } from '../errors';
 import { amendments, type Amendment } from '../models/amendment';
 import { checkField, classifyPair } from '../../scoring/reconcile';
 import { parseEntered, formatReference, FIELDS, type DerivedField, type Field } from '../../scoring/scales';
 import { FIELD_LABELS } from '../../status';
+import type { Kind } from '../../scoring/kinds';
 // A static import on purpose: the production bundler (Rolldown in Vite 8.3.8) dropped the `why` argument
 // of this call when it was reached through a dynamic import(), so reopen and amendment e-mails lost
 // their round and reason (tests/integration/review-evidence.test.ts, against the built app).
@@ -139,10 +142,13 @@ export async function decideAmendment(amendmentId: number, user: Actor, body: un
 	});
 }
 
-async function apply(p: ProtocolRow, a: Amendment, actor: Actor, t: Transaction, note: string | null): Promise<number> {
-	const next = p.round + 1;
+async function apply(p: Protocol, a: Amendment, actor: Actor, t: Transaction, note: string | null): Promise<number> {
+	const { Discrepancy, Pass } = models();
+	const from = p.round;
+	const next = from + 1;
 	await carryPasses(p.id, p.round, next, t);
-	// Every decision stands: the rows are copied with their resolutions.
+	// Every decision stands: the rows are copied with their resolutions (INSERT … SELECT: the whole
+	// round in one statement, inside the database).
 	await exec(
 		`INSERT INTO discrepancies (protocol_id, round, position, test_code, field, pass, kind, value, other, expected, alternative, out_of_range,
 		                            resolution, resolved_value, note, resolved_by, resolved_at, settled_by, settled_by_id, carried_from)
@@ -152,14 +158,15 @@ async function apply(p: ProtocolRow, a: Amendment, actor: Actor, t: Transaction,
 		{ next, p: p.id, r: p.round },
 		t
 	);
-	// Rows settled by a raw decision point at the raw row of the new round.
+	// Rows settled by a raw decision point at the raw row of the new round (an UPDATE … JOIN over the round).
 	await exec(
 		`UPDATE discrepancies d JOIN discrepancies raw ON raw.protocol_id = d.protocol_id AND raw.round = d.round AND raw.carried_from = d.settled_by_id
 		    SET d.settled_by_id = raw.id WHERE d.protocol_id = :p AND d.round = :next AND d.settled_by = 'raw_decision'`,
 		{ p: p.id, next },
 		t
 	);
-	// Only the amended field, and for a raw score its test's derived scores, are reviewed again.
+	// Only the amended field, and for a raw score its test's derived scores, are reviewed again (one
+	// UPDATE for the rows of the round it concerns).
 	const reopen = a.field === 'raw' ? `test_code = :test` : `test_code = :test AND field = :field`;
 	await exec(
 		`UPDATE discrepancies SET resolution = NULL, resolved_value = NULL, note = NULL, resolved_by = NULL, resolved_at = NULL, settled_by = NULL, settled_by_id = NULL,
@@ -168,23 +175,15 @@ async function apply(p: ProtocolRow, a: Amendment, actor: Actor, t: Transaction,
 		{ p: p.id, next, test: a.test_code, field: a.field },
 		t
 	);
-	const existing = await selectOne<{ id: number }>(
-		'SELECT id FROM discrepancies WHERE protocol_id = :p AND round = :next AND test_code = :test AND field = :field',
-		{ p: p.id, next, test: a.test_code, field: a.field },
-		t
-	);
+	const existing = await Discrepancy.findOne({
+		attributes: ['id'],
+		where: { protocol_id: p.id, round: next, test_code: a.test_code, field: a.field },
+		transaction: t
+	});
 	if (!existing) {
 		// Both passes agreed on the field: a card of its own, both passes' values against the amended one.
-		const passes = await select<{ which: 'first' | 'second'; scores: unknown }>(
-			'SELECT which, scores FROM passes WHERE protocol_id = :p AND round = :r',
-			{ p: p.id, r: next },
-			t
-		);
-		const val = (w: 'first' | 'second') => {
-			const s = passes.find((x) => x.which === w)?.scores;
-			const obj = (typeof s === 'string' ? JSON.parse(s) : s) as Record<string, Partial<Record<Field, string | null>>>;
-			return obj?.[a.test_code]?.[a.field] ?? null;
-		};
+		const passes = await Pass.findAll({ attributes: ['which', 'scores'], where: { protocol_id: p.id, round: next }, transaction: t });
+		const val = (w: 'first' | 'second') => passes.find((x) => x.which === w)?.scores?.[a.test_code]?.[a.field] ?? null;
 		const first = val('first');
 		const second = val('second');
 		let expected: string | null = null;
@@ -201,28 +200,25 @@ async function apply(p: ProtocolRow, a: Amendment, actor: Actor, t: Transaction,
 					kind = kindAgainst(info.test, info.groups, info.norm.group_code, rawKept!, null, a.field as DerivedField, a.old_value);
 			}
 		}
-		const pos =
-			Number(
-				(
-					await selectOne<{ n: number }>(
-						'SELECT COALESCE(MAX(position), 0) AS n FROM discrepancies WHERE protocol_id = :p AND round = :next',
-						{ p: p.id, next },
-						t
-					)
-				)?.n ?? 0
-			) + 1;
-		await exec(
-			`INSERT INTO discrepancies (protocol_id, round, position, test_code, field, pass, kind, value, other, expected, out_of_range)
-			 VALUES (:p, :next, :pos, :test, :field, 'both', :kind, :first, :second, :expected, 0)`,
-			{ p: p.id, next, pos, test: a.test_code, field: a.field, kind, first, second, expected },
-			t
+		const pos = Number(((await Discrepancy.max('position', { where: { protocol_id: p.id, round: next }, transaction: t })) as number | null) ?? 0) + 1;
+		await Discrepancy.create(
+			{
+				protocol_id: p.id,
+				round: next,
+				position: pos,
+				test_code: a.test_code,
+				field: a.field,
+				pass: 'both',
+				kind: kind as Kind,
+				value: first,
+				other: second,
+				expected
+			},
+			{ transaction: t }
 		);
 	}
-	await exec(
-		`UPDATE protocols SET status = 'in_review', round = :next, verified_at = NULL, verified_by = NULL, status_changed_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1 WHERE id = :id`,
-		{ next, id: p.id },
-		t
-	);
+	p.set({ status: 'in_review', round: next, verified_at: null, verified_by: null, status_changed_at: dbNow() });
+	await saveLocked(p, t, () => conflict('This protocol changed at the same moment elsewhere; nothing was amended. Reload to see its state.'));
 	await a.update({ status: 'applied', round: next, decided_by: actor.id, decided_at: new Date(), decision_note: note }, { transaction: t });
 	await recordEvent(
 		{
@@ -231,7 +227,7 @@ async function apply(p: ProtocolRow, a: Amendment, actor: Actor, t: Transaction,
 			entityId: p.id,
 			protocolId: p.id,
 			action: 'amend',
-			oldValue: { status: 'verified', round: p.round, test: a.test_code, field: a.field, value: a.old_value },
+			oldValue: { status: 'verified', round: from, test: a.test_code, field: a.field, value: a.old_value },
 			newValue: { status: 'in_review', round: next, test: a.test_code, field: a.field, value: a.new_value, amendment: a.id },
 			reason: a.reason
 		},
@@ -245,6 +241,7 @@ async function apply(p: ProtocolRow, a: Amendment, actor: Actor, t: Transaction,
 
 /** Amendments of a protocol, newest first, with who asked and who decided (for the Summary and the protocol page). */
 export async function protocolAmendments(protocolId: number) {
+	// joined with the test's name and who asked and decided (catalog tables): one statement for the list
 	return select<{
 		id: number;
 		test_code: string;

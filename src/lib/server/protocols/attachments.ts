@@ -6,7 +6,9 @@ import { createHash, randomUUID } from 'node:crypto';
 import { chmod, mkdir, writeFile, readFile, unlink } from 'node:fs/promises';
 import { join } from 'node:path';
 import { config } from '../config';
-import { exec, selectOne, transaction } from '../db';
+import { transaction } from '../db';
+import { models } from '../models';
+import { reading } from '../models/protocol';
 import { recordEvent } from '../trail';
 import { protocolFor, attachmentHidden, type Actor } from './service';
 import { ServiceError, notFound } from '../errors';
@@ -48,10 +50,9 @@ export async function addAttachment(protocolId: number, user: Actor, file: File 
 			const { p } = await protocolFor(protocolId, user, t);
 			if (p.status === 'verified') throw new ServiceError(409, 'A verified protocol is locked.', 'file', 'conflict');
 			const filename = safeFilename(file.name, type.ext);
-			const { insertId } = await exec(
-				`INSERT INTO attachments (protocol_id, filename, mime, size, sha256, storage_name, uploaded_by) VALUES (:p, :filename, :mime, :size, :sha, :storage, :uid)`,
-				{ p: p.id, filename, mime: type.mime, size: bytes.length, sha: sha256, storage, uid: user.id },
-				t
+			const { id: insertId } = await models().Attachment.create(
+				{ protocol_id: p.id, filename, mime: type.mime, size: bytes.length, sha256, storage_name: storage, uploaded_by: user.id },
+				{ transaction: t }
 			);
 			await recordEvent(
 				{
@@ -74,12 +75,22 @@ export async function addAttachment(protocolId: number, user: Actor, file: File 
 
 export async function readAttachment(protocolId: number, attachmentId: number, user: Actor) {
 	const { p } = await protocolFor(protocolId, user);
-	const row = await selectOne<{ filename: string; mime: string; storage_name: string; sha256: string; uploaded_by: number | null }>(
-		'SELECT filename, mime, storage_name, sha256, uploaded_by FROM attachments WHERE id = :id AND protocol_id = :p',
-		{ id: attachmentId, p: protocolId }
+	// through its own protocol only: an attachment of another protocol is not found
+	const row = await reading(null, () =>
+		models().Attachment.findOne({
+			attributes: ['filename', 'mime', 'storage_name', 'sha256', 'uploaded_by'],
+			where: { id: attachmentId, protocol_id: protocolId }
+		})
 	);
 	// the blind rule: the other scorer's upload is not there for an assigned scorer until both passes are in
 	if (!row || attachmentHidden(p, user, row.uploaded_by)) throw notFound('This attachment');
 	const bytes = await readFile(join(dir(), row.storage_name));
-	return { ...row, filename: cleanFilename(row.filename, 'record-form'), bytes };
+	return {
+		mime: row.mime,
+		storage_name: row.storage_name,
+		sha256: row.sha256,
+		uploaded_by: row.uploaded_by,
+		filename: cleanFilename(row.filename, 'record-form'),
+		bytes
+	};
 }

@@ -15,8 +15,11 @@
  *   agreed on.
  * Decisions a reviewer made by hand on a derived field are left as they are.
  */
-import type { Transaction } from 'sequelize';
-import { select, selectOne, exec, jsonValue, type Tx } from '../db';
+import { Op, type Transaction } from 'sequelize';
+import { ServiceError } from '../errors';
+import { jsonValue, type Tx } from '../db';
+import { models } from '../models';
+import { dbNow, inTx, saveLocked, type DiscrepancyRow, type SettledBy } from '../models/protocol';
 import { recordEvent } from '../trail';
 import { protocolTests, normGroups, normDef, engineTest } from './catalog-read';
 import { reconcile, testReferences, type Kind } from '../../scoring/reconcile';
@@ -25,22 +28,7 @@ import { parseEntered, zFromRaw, formatReference, DERIVED_FIELDS, type DerivedFi
 import { recordResolution } from '../audit-stats/record';
 import type { Scores } from './passes';
 
-export type SettledBy = 'raw_decision' | 'amendment';
-
-interface Row {
-	id: number;
-	position: number;
-	field: Field;
-	pass: 'first' | 'second' | 'both';
-	kind: string;
-	value: string | null;
-	other: string | null;
-	expected: string | null;
-	resolution: string | null;
-	resolved_at: Date | null;
-	settled_by: SettledBy | null;
-	lock_version: number;
-}
+export type { SettledBy };
 
 const EPS = 1e-6;
 const num = (v: string | null | undefined, f: Field) => {
@@ -135,11 +123,8 @@ export async function rejudgeDerived(
 	const { test, refs, z } = info;
 	void z;
 
-	const passes = await select<{ which: 'first' | 'second'; scores: unknown }>(
-		'SELECT which, scores FROM passes WHERE protocol_id = :p AND round = :r',
-		{ p: p.id, r: p.round },
-		t
-	);
+	const { Pass, Discrepancy } = models();
+	const passes = await Pass.findAll({ attributes: ['which', 'scores'], where: { protocol_id: p.id, round: p.round }, transaction: t });
 	const scoresOf = (w: 'first' | 'second') => (jsonValue<Scores>(passes.find((x) => x.which === w)?.scores) ?? {})[testCode] ?? {};
 	const first = scoresOf('first');
 	const second = scoresOf('second');
@@ -157,13 +142,16 @@ export async function rejudgeDerived(
 	const base: 'first' | 'second' =
 		keptN !== null && num(first.raw, 'raw') === keptN ? 'first' : keptN !== null && num(second.raw, 'raw') === keptN ? 'second' : 'first';
 
-	const rows = await select<Row>(
-		`SELECT id, position, field, pass, kind, value, other, expected, resolution, resolved_at, settled_by, lock_version
-		   FROM discrepancies WHERE protocol_id = :p AND round = :r AND test_code = :test AND field <> 'raw' ORDER BY position FOR UPDATE`,
-		{ p: p.id, r: p.round, test: testCode },
-		t
-	);
-	for (const d of rows) {
+	const found = await Discrepancy.findAll({
+		where: { protocol_id: p.id, round: p.round, test_code: testCode, field: { [Op.ne]: 'raw' } },
+		order: [['position', 'ASC']],
+		...inTx(t, true)
+	});
+	const rows = found.map((x) => x.get({ plain: true }) as DiscrepancyRow);
+	// rows are locked FOR UPDATE: a version moved under us would be a bug, answered as a conflict
+	const stale = () => new ServiceError(409, 'This protocol changed at the same moment; nothing was saved. Reload and try again.', undefined, 'stale');
+	for (const [i, d] of rows.entries()) {
+		const row = found[i];
 		const field = d.field as DerivedField;
 		const r = refs[field];
 		if (r === undefined) continue;
@@ -174,12 +162,17 @@ export async function rejudgeDerived(
 		const candidate = d.pass === 'both' ? (base === 'second' ? d.other : d.value) : d.value;
 		if (eq(candidate, r, field)) {
 			if (!open && d.expected === rs) continue; // already settled against this very reference
-			await exec(
-				`UPDATE discrepancies SET expected = :rs, resolution = 'recomputed', resolved_value = :rs, note = NULL, resolved_by = :uid,
-				        resolved_at = CURRENT_TIMESTAMP(3), settled_by = :by, settled_by_id = :cid, lock_version = lock_version + 1 WHERE id = :id`,
-				{ rs, uid: cause.actorId, by: cause.by, cid: cause.id, id: d.id },
-				t
-			);
+			row.set({
+				expected: rs,
+				resolution: 'recomputed',
+				resolved_value: rs,
+				note: null,
+				resolved_by: cause.actorId,
+				resolved_at: dbNow(),
+				settled_by: cause.by,
+				settled_by_id: cause.id
+			});
+			await saveLocked(row, t, stale);
 			await recordEvent(
 				{
 					actorId: cause.actorId,
@@ -200,12 +193,8 @@ export async function rejudgeDerived(
 		const v = d.pass === 'both' ? candidate : d.value;
 		const kind = kindOf(field, d.pass, v ?? null);
 		if (open && d.expected === rs && d.kind === kind) continue;
-		await exec(
-			`UPDATE discrepancies SET expected = :rs, kind = :kind, resolution = NULL, resolved_value = NULL, resolved_by = NULL, resolved_at = NULL,
-			        settled_by = NULL, settled_by_id = NULL, lock_version = lock_version + 1 WHERE id = :id`,
-			{ rs, kind, id: d.id },
-			t
-		);
+		row.set({ expected: rs, kind, resolution: null, resolved_value: null, resolved_by: null, resolved_at: null, settled_by: null, settled_by_id: null });
+		await saveLocked(row, t, stale);
 		await recordEvent(
 			{
 				actorId: cause.actorId,
@@ -227,15 +216,7 @@ export async function rejudgeDerived(
 	const flagged = new Set(rows.filter((d) => d.pass === base || d.pass === 'both').map((d) => d.field));
 	const baseScores = base === 'first' ? first : second;
 	const otherScores = base === 'first' ? second : first;
-	let position = Number(
-		(
-			await selectOne<{ n: number }>(
-				'SELECT COALESCE(MAX(position), 0) AS n FROM discrepancies WHERE protocol_id = :p AND round = :r',
-				{ p: p.id, r: p.round },
-				t
-			)
-		)?.n ?? 0
-	);
+	let position = Number(((await Discrepancy.max('position', { where: { protocol_id: p.id, round: p.round }, transaction: t })) as number | null) ?? 0);
 	for (const field of DERIVED_FIELDS) {
 		const r = refs[field];
 		if (r === undefined || flagged.has(field)) continue;
@@ -243,11 +224,20 @@ export async function rejudgeDerived(
 		if (eq(v, r, field)) continue;
 		const kind = kindOf(field, base, v);
 		const rs = formatReference(field, r);
-		const { insertId } = await exec(
-			`INSERT INTO discrepancies (protocol_id, round, position, test_code, field, pass, kind, value, other, expected, out_of_range)
-			 VALUES (:p, :r, :pos, :test, :field, :pass, :kind, :value, :other, :expected, 0)`,
-			{ p: p.id, r: p.round, pos: ++position, test: testCode, field, pass: base, kind, value: v, other: otherScores[field] ?? null, expected: rs },
-			t
+		const { id: insertId } = await Discrepancy.create(
+			{
+				protocol_id: p.id,
+				round: p.round,
+				position: ++position,
+				test_code: testCode,
+				field,
+				pass: base,
+				kind,
+				value: v,
+				other: otherScores[field] ?? null,
+				expected: rs
+			},
+			{ transaction: t }
 		);
 		await recordEvent(
 			{

@@ -3,10 +3,13 @@
  * submit it. The second submission reconciles both passes in the same transaction that stores the
  * discrepancies, moves the protocol to in_review and writes the reviewer's outbox e-mail.
  */
+import type { Transaction } from 'sequelize';
 import { z } from 'zod';
-import { selectOne, exec, transaction, jsonValue, type Tx } from '../db';
+import { exec, selectOne, transaction, jsonValue, type Tx } from '../db';
 import { recordEvent } from '../trail';
-import { protocolFor, type Actor, type ProtocolRow } from './service';
+import { models } from '../models';
+import { dbNow, inTx, reading, saveLocked, type Pass, type Protocol, type ProtocolRow, type Which } from '../models/protocol';
+import { protocolFor, type Actor } from './service';
 import { protocolTests, protocolComposites, normGroups, normDef, engineTest, engineComposite, type CatalogTest, type CatalogComposite } from './catalog-read';
 import { reconcile, ReconcileInputError, type FieldValues, type ReconcileResult } from '../../scoring/reconcile';
 import { formatReference, type Field } from '../../scoring/scales';
@@ -15,22 +18,8 @@ import { notifyReviewStarted } from '../mail/review';
 import { recordSubmission } from '../audit-stats/record';
 import { decideAtFirstSubmit, reconcileSinglePass, afterReconcile, guardSecondPass } from '../verification';
 
-export type Which = 'first' | 'second';
+export type { Which };
 export type Scores = Record<string, Partial<Record<Field, string | null>>>;
-
-interface PassRow {
-	id: number;
-	protocol_id: number;
-	round: number;
-	which: Which;
-	scorer_id: number;
-	status: 'draft' | 'submitted';
-	scores: unknown;
-	fields_entered: number;
-	draft_version: number;
-	submitted_at: Date | null;
-	updated_at: Date;
-}
 
 const value = z.union([z.string().max(12, 'at most 12 characters'), z.number(), z.null()]).transform((v) => (v === null ? null : String(v).trim() || null));
 const scoresSchema = z.record(z.string().max(40), z.record(z.string(), value));
@@ -64,12 +53,9 @@ function myDuty(duties: string[]): Which {
 	throw notFound();
 }
 
-async function passRow(p: ProtocolRow, which: Which, t?: Tx, forUpdate = false): Promise<PassRow> {
-	const row = await selectOne<PassRow>(
-		`SELECT * FROM passes WHERE protocol_id = :p AND round = :r AND which = :w${forUpdate ? ' FOR UPDATE' : ''}`,
-		{ p: p.id, r: p.round, w: which },
-		t
-	);
+async function passRow(p: Pick<ProtocolRow, 'id' | 'round'>, which: Which, t?: Tx, forUpdate = false): Promise<Pass> {
+	const { Pass } = models();
+	const row = await reading(t, () => Pass.findOne({ where: { protocol_id: p.id, round: p.round, which }, ...inTx(t, forUpdate) }));
 	if (!row) throw notFound('This pass');
 	return row;
 }
@@ -83,7 +69,7 @@ export async function myPass(protocolId: number, user: Actor) {
 	const tests = await protocolTests(p.id);
 	const composites = await protocolComposites(p.id);
 	return {
-		protocol: p,
+		protocol: p.get({ plain: true }) as ProtocolRow,
 		which,
 		composites,
 		status: pass.status,
@@ -92,6 +78,50 @@ export async function myPass(protocolId: number, user: Actor) {
 		submittedAt: pass.submitted_at,
 		updatedAt: pass.updated_at,
 		tests
+	};
+}
+
+/** The Entry page: the caller's own pass and only what a scorer needs to look scores up (never norms, references or the other pass). */
+export async function entryView(protocolId: number, user: Actor) {
+	const pass = await myPass(protocolId, user);
+	const ex = await reading(null, () => models().Examinee.findByPk(pass.protocol.examinee_id, { attributes: ['code'] }));
+	// batteries is a catalog table (its model belongs to the catalog services)
+	const battery = await selectOne<{ name: string }>('SELECT name FROM batteries WHERE id = :id', { id: pass.protocol.battery_id });
+	return {
+		protocol: {
+			id: pass.protocol.id,
+			code: ex!.code,
+			testDate: pass.protocol.test_date,
+			age: pass.protocol.age_text,
+			status: pass.protocol.status,
+			battery: battery!.name
+		},
+		which: pass.which,
+		status: pass.status,
+		scores: pass.scores,
+		draftVersion: pass.draftVersion,
+		submittedAt: pass.submittedAt,
+		// percentileOnly: the norm gives percentile bands (typed as the manual writes them), not a reference
+		tests: pass.tests.map((t) => ({
+			code: t.code,
+			name: t.name,
+			domain: t.domainName,
+			unit: t.unit,
+			direction: t.direction,
+			group: t.groupText,
+			raw: t.raw,
+			bounds: t.bounds,
+			reported: t.reported,
+			percentileOnly: t.normScale === 'percentile'
+		})),
+		composites: pass.composites.map((c) => ({
+			code: c.code,
+			name: c.name,
+			parts: c.parts,
+			partField: c.part_field,
+			reported: c.reported,
+			group: c.groupText
+		}))
 	};
 }
 
@@ -114,17 +144,15 @@ export async function saveDraft(protocolId: number, user: Actor, body: unknown) 
 		}
 		const tests = await protocolTests(p.id, t);
 		const { scores, entered } = cleanScores(draft.scores, tests, await protocolComposites(p.id, t));
-		await exec(
-			'UPDATE passes SET scores = :scores, fields_entered = :entered, draft_version = draft_version + 1 WHERE id = :id',
-			{ scores: JSON.stringify(scores), entered, id: pass.id },
-			t
-		);
-		return { draftVersion: pass.draft_version + 1, fieldsEntered: entered };
+		// the pass row is locked FOR UPDATE and its draft_version was compared above
+		const next = pass.draft_version + 1;
+		await pass.update({ scores, fields_entered: entered, draft_version: next }, { transaction: t });
+		return { draftVersion: next, fieldsEntered: entered };
 	});
 }
 
 /** Build the engine's input from the stored protocol and passes. */
-export async function engineInput(p: ProtocolRow, passes: { first: Scores; second: Scores }, t?: Tx) {
+export async function engineInput(p: Pick<ProtocolRow, 'id' | 'norm_set_id' | 'covariates'>, passes: { first: Scores; second: Scores }, t?: Tx) {
 	const tests = await protocolTests(p.id, t);
 	const composites = await protocolComposites(p.id, t);
 	// every group of each test and composite, so a value from another band is named wrong_norm_group
@@ -160,8 +188,12 @@ function altOf(d: ReconcileResult['discrepancies'][number]): string | null {
 	return formatReference(d.field, a);
 }
 
-/** Store a reconciliation result as the round's discrepancy list: one multi-row INSERT (not one per row). */
-export async function storeDiscrepancies(p: ProtocolRow, result: ReconcileResult, t: Tx) {
+/**
+ * Store a reconciliation result as the round's discrepancy list: one multi-row INSERT (not one per row)
+ * through the SQL helper — the hot path of the second submit, where bulkCreate's per-row instances and
+ * validation cost more than the statement (the kind list and the empty decision are CHECKed by the table).
+ */
+export async function storeDiscrepancies(p: Pick<ProtocolRow, 'id' | 'round'>, result: ReconcileResult, t: Tx) {
 	const CHUNK = 500;
 	for (let from = 0; from < result.discrepancies.length; from += CHUNK) {
 		const params: Record<string, unknown> = { p: p.id, round: p.round };
@@ -192,20 +224,26 @@ export async function storeDiscrepancies(p: ProtocolRow, result: ReconcileResult
 	}
 }
 
-/** Compare-and-set of the protocol's status: moves only from the state and version this transaction read. */
-async function moveProtocol(p: ProtocolRow, to: ProtocolRow['status'], t: Tx) {
-	const moved = await exec(
-		`UPDATE protocols SET status = :to, status_changed_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1 WHERE id = :id AND status = :from AND round = :round AND lock_version = :lock`,
-		{ to, id: p.id, from: p.status, round: p.round, lock: p.lock_version },
-		t
+/**
+ * Compare-and-set of the protocol's status: saved under the lock_version this transaction read (every
+ * change of status or round moves it), so it moves only from the state it was read in. Returns the
+ * status it moved from.
+ */
+async function moveProtocol(p: Protocol, to: ProtocolRow['status'], t: Transaction): Promise<ProtocolRow['status']> {
+	const from = p.status;
+	p.set({ status: to, status_changed_at: dbNow() });
+	await saveLocked(
+		p,
+		t,
+		() =>
+			new ServiceError(
+				409,
+				'This protocol changed while the pass was being submitted (another submission got there first). Nothing was changed; reload to see its state.',
+				undefined,
+				'already_submitted'
+			)
 	);
-	if (moved.affected !== 1)
-		throw new ServiceError(
-			409,
-			'This protocol changed while the pass was being submitted (another submission got there first). Nothing was changed; reload to see its state.',
-			undefined,
-			'already_submitted'
-		);
+	return from;
 }
 
 export type SubmitResult = { which: Which; status: ProtocolRow['status']; discrepancies: number | null; singlePass?: boolean };
@@ -237,12 +275,11 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 		// this node, so a submission of the same pass through another node is stopped here (the row is
 		// no longer a draft of this version) or by the certification conflict at commit (1213, retried
 		// by transaction(): the rerun reads 'submitted' and answers 409).
-		const marked = await exec(
-			`UPDATE passes SET status = 'submitted', submitted_at = CURRENT_TIMESTAMP(3) WHERE id = :id AND status = 'draft' AND draft_version = :v`,
-			{ id: pass.id, v: pass.draft_version },
-			t
+		const [marked] = await models().Pass.update(
+			{ status: 'submitted', submitted_at: dbNow() },
+			{ where: { id: pass.id, status: 'draft', draft_version: pass.draft_version }, transaction: t }
 		);
-		if (marked.affected !== 1)
+		if (marked !== 1)
 			throw new ServiceError(409, 'This pass was already submitted (from another tab or an earlier try). Nothing was changed.', undefined, 'already_submitted');
 		await recordEvent(
 			{
@@ -262,7 +299,7 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 			const outcome = await decideAtFirstSubmit(p, scores, pass.fields_entered, user, t);
 			if (outcome === 'not_drawn') {
 				const single = await reconcileSinglePass(p, { id: pass.id, scorer_id: pass.scorer_id, fields_entered: pass.fields_entered, scores }, user, t);
-				await moveProtocol(p, 'in_review', t);
+				const from = await moveProtocol(p, 'in_review', t);
 				await recordEvent(
 					{
 						actorId: user.id,
@@ -270,7 +307,7 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 						entityId: p.id,
 						protocolId: p.id,
 						action: 'reconcile',
-						oldValue: p.status,
+						oldValue: from,
 						newValue: { status: 'in_review', round: p.round, single_pass: true, ...single.summary }
 					},
 					t
@@ -278,9 +315,9 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 				await notifyReviewStarted(p.id, p.round, p.reviewer_id, t);
 				return { which, status: 'in_review' as const, discrepancies: single.discrepancies.length, singlePass: true };
 			}
-			await moveProtocol(p, 'awaiting_second', t);
+			const from = await moveProtocol(p, 'awaiting_second', t);
 			await recordEvent(
-				{ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'status', oldValue: p.status, newValue: 'awaiting_second' },
+				{ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'status', oldValue: from, newValue: 'awaiting_second' },
 				t
 			);
 			return { which, status: 'awaiting_second' as const, discrepancies: null };
@@ -303,7 +340,7 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 			throw e;
 		}
 		await storeDiscrepancies(p, result, t);
-		await moveProtocol(p, 'in_review', t);
+		const from = await moveProtocol(p, 'in_review', t);
 		await recordEvent(
 			{
 				actorId: user.id,
@@ -311,7 +348,7 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 				entityId: p.id,
 				protocolId: p.id,
 				action: 'reconcile',
-				oldValue: p.status,
+				oldValue: from,
 				newValue: { status: 'in_review', round: p.round, ...result.summary }
 			},
 			t

@@ -2,8 +2,7 @@
  * Protocols: creation (with separation of duties and automatic norm groups), who may see what
  * (object-level access and the blind rule), and the protocol view.
  */
-import type { Transaction } from 'sequelize';
-import { select, selectOne, exec, transaction, isUniqueViolation, isLockConflict, type Tx } from '../db';
+import { select, selectOne, transaction, isUniqueViolation, isLockConflict, type Tx } from '../db';
 import { recordEvent } from '../trail';
 import { getUser } from '../users';
 import { batteryTests, batteryComposites, normGroups, normSet, groupDef, protocolTests } from './catalog-read';
@@ -12,36 +11,16 @@ import { ageCovariate, COVARIATE_LABELS, type Covariate } from '../../catalog/no
 import { groupWords } from '../../catalog/ranges';
 import { models } from '../models';
 import { ServiceError, notFound, invalid, conflict } from '../errors';
+import { inTx, reading, saveLocked, type Protocol, type ProtocolRow, type Status } from '../models/protocol';
+import { notifyReviewerChanged } from '../mail/review';
 import { clinicToday } from '../clock';
 import { dateProblem } from '../../dates';
 import { cleanFilename } from '../filenames';
 import type { Role } from '../../roles';
 import { protocolVerification, singlePassIds } from '../verification';
 
-export type Status = 'draft' | 'awaiting_second' | 'in_review' | 'verified';
+export type { ProtocolRow, Status };
 export type Duty = 'first' | 'second' | 'reviewer' | 'lead';
-
-export interface ProtocolRow {
-	id: number;
-	examinee_id: number;
-	battery_id: number;
-	norm_set_id: number;
-	test_date: string;
-	age_text: string;
-	age_months: number;
-	/** The covariates regression norms used (age, education, sex), frozen at creation. */
-	covariates?: unknown;
-	status: Status;
-	round: number;
-	first_scorer_id: number;
-	second_scorer_id: number;
-	reviewer_id: number;
-	lock_version: number;
-	status_changed_at: Date;
-	verified_at: Date | null;
-	verified_by: number | null;
-	created_at: Date;
-}
 
 export interface Actor {
 	id: number;
@@ -58,12 +37,14 @@ export function dutiesOf(p: Pick<ProtocolRow, 'first_scorer_id' | 'second_scorer
 	return d;
 }
 
-export async function getProtocolRow(id: number, t?: Tx, forUpdate = false): Promise<ProtocolRow | null> {
-	return selectOne<ProtocolRow>(`SELECT * FROM protocols WHERE id = :id${forUpdate ? ' FOR UPDATE' : ''}`, { id }, t);
+/** The protocol by its id (locked FOR UPDATE inside `t` when asked): the model instance, so a service can save it under its lock_version. */
+export async function getProtocolRow(id: number, t?: Tx, forUpdate = false): Promise<Protocol | null> {
+	const { Protocol } = models();
+	return reading(t, () => Protocol.findByPk(id, inTx(t, forUpdate)));
 }
 
 /** The protocol if this user has a duty on it (leads see all); otherwise 404, so ids cannot be probed. */
-export async function protocolFor(id: number, user: Actor, t?: Tx, forUpdate = false): Promise<{ p: ProtocolRow; duties: Duty[] }> {
+export async function protocolFor(id: number, user: Actor, t?: Tx, forUpdate = false): Promise<{ p: Protocol; duties: Duty[] }> {
 	const p = await getProtocolRow(id, t, forUpdate);
 	if (!p) throw notFound();
 	const duties = dutiesOf(p, user);
@@ -247,27 +228,22 @@ async function insertProtocol(input: NewProtocol, actor: Actor): Promise<number>
 		const normSetId = input.normSetId ?? battery.norm_set_id;
 		if (!normSetId) throw invalid('Choose a norm set.', 'normSetId');
 
-		let ex = await selectOne<{ id: number; birth_date: string; sex: 'F' | 'M' | 'X' | null; education_years: number | null }>(
-			'SELECT id, birth_date, sex, education_years FROM examinees WHERE code = :code FOR UPDATE',
-			{ code: input.examinee.code },
-			t
-		);
+		const { Examinee, Protocol, ProtocolTest, Pass, ProtocolComposite } = models();
+		let ex = await Examinee.findOne({ where: { code: input.examinee.code }, ...inTx(t, true) });
 		if (!ex) {
 			if (!input.examinee.birthDate) throw invalid('A new examinee needs a birth date.', 'birthDate');
-			const { insertId } = await exec(
-				`INSERT INTO examinees (code, name, birth_date, sex, education_years, created_by) VALUES (:code, :name, :birth, :sex, :edu, :by)`,
+			ex = await Examinee.create(
 				{
 					code: input.examinee.code,
 					name: input.examinee.name || null,
-					birth: input.examinee.birthDate,
+					birth_date: input.examinee.birthDate,
 					sex: input.examinee.sex ?? null,
-					edu: input.examinee.educationYears ?? null,
-					by: actor.id
+					education_years: input.examinee.educationYears ?? null,
+					created_by: actor.id
 				},
-				t
+				{ transaction: t }
 			);
-			await recordEvent({ actorId: actor.id, entity: 'examinee', entityId: insertId, action: 'create', newValue: { code: input.examinee.code } }, t);
-			ex = { id: insertId, birth_date: input.examinee.birthDate, sex: input.examinee.sex ?? null, education_years: input.examinee.educationYears ?? null };
+			await recordEvent({ actorId: actor.id, entity: 'examinee', entityId: ex.id, action: 'create', newValue: { code: input.examinee.code } }, t);
 		} else if (input.examinee.birthDate && input.examinee.birthDate !== ex.birth_date) {
 			// Never guess which is right: a mistyped code would attach this protocol to someone else.
 			throw invalid(
@@ -282,23 +258,21 @@ async function insertProtocol(input: NewProtocol, actor: Actor): Promise<number>
 		const tests = await batteryTests(input.batteryId, t);
 		const names = new Map([...tests.map((x) => [x.code, x.name] as const), ...composites.map((c) => [c.code, c.name] as const)]);
 		const covariates = covariatesFor(groups, set.covariate_age ?? 'whole_years', exInfo, age, input.testDate, (c) => names.get(c) ?? c);
-		const { insertId: protocolId } = await exec(
-			`INSERT INTO protocols (examinee_id, battery_id, norm_set_id, test_date, age_text, age_months, covariates, status, first_scorer_id, second_scorer_id, reviewer_id, created_by)
-			 VALUES (:ex, :battery, :normSet, :testDate, :ageText, :ageMonths, :covariates, 'draft', :first, :second, :reviewer, :by)`,
+		const { id: protocolId } = await Protocol.create(
 			{
-				covariates: covariates ? JSON.stringify(covariates) : null,
-				ex: ex.id,
-				battery: input.batteryId,
-				normSet: normSetId,
-				testDate: input.testDate,
-				ageText: age.text,
-				ageMonths: age.totalMonths,
-				first: input.firstScorerId,
-				second: input.secondScorerId,
-				reviewer: input.reviewerId,
-				by: actor.id
+				examinee_id: ex.id,
+				battery_id: input.batteryId,
+				norm_set_id: normSetId,
+				test_date: input.testDate,
+				age_text: age.text,
+				age_months: age.totalMonths,
+				covariates,
+				first_scorer_id: input.firstScorerId,
+				second_scorer_id: input.secondScorerId,
+				reviewer_id: input.reviewerId,
+				created_by: actor.id
 			},
-			t
+			{ transaction: t }
 		);
 		// Tests no group covers: each needs a group chosen by the lead, with a reason. When one is missing
 		// or unusable, the answer lists every such test with the groups to choose from (the form shows them).
@@ -343,10 +317,9 @@ async function insertProtocol(input: NewProtocol, actor: Actor): Promise<number>
 				reason = o.reason.trim();
 			}
 			if (!groupId) throw invalid(`No norm group of this norm set covers this examinee for ${test.name}; choose one with a reason.`, `overrides.${test.code}`);
-			await exec(
-				`INSERT INTO protocol_tests (protocol_id, position, test_id, norm_group_id, override_reason) VALUES (:p, :pos, :test, :g, :reason)`,
-				{ p: protocolId, pos: i + 1, test: test.id, g: groupId, reason },
-				t
+			await ProtocolTest.create(
+				{ protocol_id: protocolId, position: i + 1, test_id: test.id, norm_group_id: groupId, override_reason: reason },
+				{ transaction: t }
 			);
 			if (reason) {
 				await recordEvent(
@@ -365,7 +338,6 @@ async function insertProtocol(input: NewProtocol, actor: Actor): Promise<number>
 			}
 		}
 		// Composites are frozen as defined now, with the norm group that covers the examinee.
-		const { ProtocolComposite } = models();
 		for (const [i, c] of composites.entries()) {
 			const entry = plan[tests.length + i];
 			if (!entry.groupId)
@@ -375,16 +347,13 @@ async function insertProtocol(input: NewProtocol, actor: Actor): Promise<number>
 				{ transaction: t }
 			);
 		}
-		for (const [which, scorer] of [
-			['first', input.firstScorerId],
-			['second', input.secondScorerId]
-		] as const) {
-			await exec(
-				`INSERT INTO passes (protocol_id, round, which, scorer_id, scores) VALUES (:p, 1, :which, :scorer, '{}')`,
-				{ p: protocolId, which, scorer },
-				t
-			);
-		}
+		await Pass.bulkCreate(
+			[
+				{ protocol_id: protocolId, round: 1, which: 'first', scorer_id: input.firstScorerId, scores: {} },
+				{ protocol_id: protocolId, round: 1, which: 'second', scorer_id: input.secondScorerId, scores: {} }
+			],
+			{ transaction: t }
+		);
 		await recordEvent(
 			{
 				actorId: actor.id,
@@ -411,15 +380,12 @@ async function insertProtocol(input: NewProtocol, actor: Actor): Promise<number>
 
 // ---------------------------------------------------------------- assignments
 
-/** A lead changes an assignment; never two duties on one protocol; a submitted pass keeps its scorer. */
-export async function reassign(
-	protocolId: number,
-	duty: 'first' | 'second' | 'reviewer',
-	userId: number,
-	reason: string,
-	actor: Actor,
-	onReviewerChange?: (p: ProtocolRow, t: Transaction) => Promise<void>
-) {
+/**
+ * A lead changes an assignment; never two duties on one protocol; a submitted pass keeps its scorer.
+ * A new reviewer of a protocol in review is told in the same transaction (the e-mail is in the outbox
+ * only if the change commits).
+ */
+export async function reassign(protocolId: number, duty: 'first' | 'second' | 'reviewer', userId: number, reason: string, actor: Actor) {
 	if (!reason || reason.trim().length < 5) throw invalid('Give a reason for the change.', 'reason');
 	return transaction(async (t) => {
 		const { p } = await protocolFor(protocolId, actor, t, true);
@@ -427,20 +393,15 @@ export async function reassign(
 		const next = { first: p.first_scorer_id, second: p.second_scorer_id, reviewer: p.reviewer_id, [duty]: userId };
 		await checkDuties(next.first, next.second, next.reviewer, t);
 		if (duty !== 'reviewer') {
-			const pass = await selectOne<{ status: string }>(
-				'SELECT status FROM passes WHERE protocol_id = :p AND round = :r AND which = :w',
-				{ p: p.id, r: p.round, w: duty },
-				t
-			);
+			const pass = await models().Pass.findOne({ where: { protocol_id: p.id, round: p.round, which: duty }, ...inTx(t, true) });
 			if (pass?.status === 'submitted') throw conflict('That pass is already submitted; its scorer can no longer change.');
-			await exec(
-				"UPDATE passes SET scorer_id = :u, scores = '{}', fields_entered = 0, draft_version = draft_version + 1 WHERE protocol_id = :p AND round = :r AND which = :w",
-				{ u: userId, p: p.id, r: p.round, w: duty },
-				t
-			);
+			// the new scorer starts from an empty draft; a tab of the old one holds a stale draft_version
+			await pass?.update({ scorer_id: userId, scores: {}, fields_entered: 0, draft_version: pass.draft_version + 1 }, { transaction: t });
 		}
 		const column = duty === 'first' ? 'first_scorer_id' : duty === 'second' ? 'second_scorer_id' : 'reviewer_id';
-		await exec(`UPDATE protocols SET ${column} = :u, lock_version = lock_version + 1 WHERE id = :id`, { u: userId, id: p.id }, t);
+		const before = p[column];
+		p.set(column, userId);
+		await saveLocked(p, t, () => conflict('This protocol changed at the same moment; reload and try again.'));
 		await recordEvent(
 			{
 				actorId: actor.id,
@@ -448,13 +409,13 @@ export async function reassign(
 				entityId: p.id,
 				protocolId: p.id,
 				action: `assign_${duty}`,
-				oldValue: p[column],
+				oldValue: before,
 				newValue: userId,
 				reason: reason.trim()
 			},
 			t
 		);
-		if (duty === 'reviewer' && p.status === 'in_review' && onReviewerChange) await onReviewerChange({ ...p, reviewer_id: userId }, t);
+		if (duty === 'reviewer' && p.status === 'in_review') await notifyReviewerChanged(p.id, p.round, userId, t);
 	});
 }
 
@@ -497,6 +458,7 @@ export async function listProtocols(user: Actor, opts: { status?: Status | null;
 		params.q = `%${opts.q.replace(/[%_\\]/g, '\\$&')}%`;
 	}
 	const w = where.length ? `WHERE ${where.join(' AND ')}` : '';
+	// joins over catalog tables, a count per row and pagination: one statement is what the list needs
 	const rows = await select<ProtocolListItem>(
 		`SELECT p.id, e.code, b.name AS battery, p.test_date, p.status, p.round, f.name AS first_name, s.name AS second_name, r.name AS reviewer_name,
 		        p.status_changed_at,
@@ -534,6 +496,7 @@ export const WORKLIST_LIMIT = 50;
 export async function worklist(user: Actor, limit = WORKLIST_LIMIT): Promise<WorkItem[]> {
 	const items: WorkItem[] = [];
 	if (user.roles.includes('scorer')) {
+		// one joined statement per kind of work (the worklist is read on every page load)
 		const rows = await select<{ id: number; code: string; battery: string; which: 'first' | 'second'; since: Date; status: Status; draft_version: number }>(
 			`SELECT p.id, e.code, b.name AS battery, pa.which, p.created_at AS since, p.status, pa.draft_version
 			   FROM passes pa
@@ -589,10 +552,9 @@ export async function worklist(user: Actor, limit = WORKLIST_LIMIT): Promise<Wor
 export async function protocolView(id: number, user: Actor) {
 	const { p, duties } = await protocolFor(id, user);
 	const staffView = duties.includes('lead') || duties.includes('reviewer');
-	const ex = await selectOne<{ code: string; name: string | null; birth_date: string; sex: string | null; education_years: number | null }>(
-		'SELECT code, name, birth_date, sex, education_years FROM examinees WHERE id = :id',
-		{ id: p.examinee_id }
-	);
+	const { Examinee, Pass, Attachment } = models();
+	const ex = await reading(null, () => Examinee.findByPk(p.examinee_id));
+	// batteries and users are catalog tables (their models belong to the catalog services)
 	const battery = await selectOne<{ code: string; name: string }>('SELECT code, name FROM batteries WHERE id = :id', { id: p.battery_id });
 	const set = await normSet(p.norm_set_id);
 	const tests = await protocolTests(p.id);
@@ -607,31 +569,31 @@ export async function protocolView(id: number, user: Actor) {
 		ids: [p.first_scorer_id, p.second_scorer_id, p.reviewer_id]
 	});
 	const nameOf = (uid: number) => people.find((x) => x.id === uid)?.name ?? '—';
-	const passes = await select<{
-		which: 'first' | 'second';
-		status: string;
-		submitted_at: Date | null;
-		fields_entered: number;
-		updated_at: Date;
-		draft_version: number;
-	}>('SELECT which, status, submitted_at, fields_entered, updated_at, draft_version FROM passes WHERE protocol_id = :p AND round = :r ORDER BY which', {
-		p: p.id,
-		r: p.round
-	});
+	const passes = await reading(null, () =>
+		Pass.findAll({
+			attributes: ['which', 'status', 'submitted_at', 'fields_entered', 'updated_at', 'draft_version'],
+			where: { protocol_id: p.id, round: p.round },
+			order: [['which', 'ASC']]
+		})
+	);
+	// an aggregate: both counts in one statement
 	const open = await selectOne<{ open: number; total: number }>(
 		'SELECT SUM(resolved_at IS NULL) AS open, COUNT(*) AS total FROM discrepancies WHERE protocol_id = :p AND round = :r',
 		{ p: p.id, r: p.round }
 	);
 	const attachments = (
-		await select<{ id: number; filename: string; mime: string; size: number; sha256: string; created_at: Date; uploaded_by: number | null }>(
-			'SELECT id, filename, mime, size, sha256, created_at, uploaded_by FROM attachments WHERE protocol_id = :p ORDER BY id',
-			{ p: p.id }
+		await reading(null, () =>
+			Attachment.findAll({
+				attributes: ['id', 'filename', 'mime', 'size', 'sha256', 'created_at', 'uploaded_by'],
+				where: { protocol_id: p.id },
+				order: [['id', 'ASC']]
+			})
 		)
 	)
 		.filter((a) => !attachmentHidden(p, user, a.uploaded_by))
-		.map(({ uploaded_by: _by, ...a }) => ({ ...a, filename: cleanFilename(a.filename, 'record-form') }));
+		.map((a) => ({ id: a.id, filename: cleanFilename(a.filename, 'record-form'), mime: a.mime, size: a.size, sha256: a.sha256, created_at: a.created_at }));
 	return {
-		protocol: p,
+		protocol: p.get({ plain: true }) as ProtocolRow,
 		duties,
 		examinee: {
 			code: ex!.code,
@@ -672,6 +634,7 @@ export async function protocolView(id: number, user: Actor) {
 /** Status history for the protocol page. Before both passes are in, values of passes are hidden. */
 export async function protocolHistoryFor(id: number, user: Actor) {
 	const { p } = await protocolFor(id, user);
+	// the trail joined with who acted (audit_events has no model: it is append-only, written by recordEvent)
 	const all = await select<{
 		id: number;
 		at: Date;

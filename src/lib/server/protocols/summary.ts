@@ -4,6 +4,8 @@
  * one common z axis for the bell curve.
  */
 import { selectOne } from '../db';
+import { models } from '../models';
+import { reading } from '../models/protocol';
 import { writeCsv } from '../../csv';
 import { protocolFor, type Actor } from './service';
 import { protocolTests, protocolComposites, normGroups, normSet, normDef, engineTest } from './catalog-read';
@@ -11,7 +13,7 @@ import { jsonValue } from '../db';
 import { testReferences } from '../../scoring/reconcile';
 import type { NormEntry, CompositeField } from '../../scoring/norms';
 import { isBand, bandWords, normalizePercentile } from '../../catalog/norm-forms';
-import { finalScores, keptAgainstRecomputation } from './review';
+import { finalScores, keptAgainstRecomputation } from './decisions';
 import { protocolAmendments } from './amendments';
 import { isSinglePass, SINGLE_PASS_NOTE } from '../verification';
 import { notFound, ServiceError } from '../errors';
@@ -69,7 +71,8 @@ export async function protocolSummary(protocolId: number, user: Actor) {
 	const { p, duties } = await protocolFor(protocolId, user);
 	if (!duties.includes('reviewer') && !duties.includes('lead')) throw notFound();
 	if (p.status !== 'verified') throw new ServiceError(409, 'The summary is available once the protocol is verified (signed off).', undefined, 'not_verified');
-	const ex = await selectOne<{ code: string }>('SELECT code FROM examinees WHERE id = :id', { id: p.examinee_id });
+	const ex = await reading(null, () => models().Examinee.findByPk(p.examinee_id, { attributes: ['code'] }));
+	// batteries and users are catalog tables (their models belong to the catalog services)
 	const battery = await selectOne<{ name: string }>('SELECT name FROM batteries WHERE id = :id', { id: p.battery_id });
 	const signer = await selectOne<{ name: string }>('SELECT name FROM users WHERE id = :id', { id: p.verified_by });
 	const set = await normSet(p.norm_set_id);

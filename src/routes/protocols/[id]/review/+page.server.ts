@@ -1,6 +1,6 @@
 import type { PageServerLoad } from './$types';
 import { requireUser, idParam } from '$lib/server/guard';
-import { reviewView, previousDecisions } from '$lib/server/protocols/review';
+import { reviewView, previousDecisions } from '$lib/server/protocols/decisions';
 import { protocolView } from '$lib/server/protocols/service';
 import { pageError } from '$lib/server/http';
 

@@ -1,7 +1,7 @@
 import type { RequestHandler } from './$types';
 import { json } from '@sveltejs/kit';
 import { requireRole, idParam } from '$lib/server/guard';
-import { resolveDiscrepancy } from '$lib/server/protocols/review';
+import { resolveDiscrepancy } from '$lib/server/protocols/decisions';
 import { apiError, readJson } from '$lib/server/http';
 
 /** Resolve: { choice: first|second|recomputed|other, value?, note?, lockVersion }. 409 when someone else was first. */

@@ -1,7 +1,7 @@
 import type { RequestHandler } from './$types';
 import { json } from '@sveltejs/kit';
 import { requireRole, idParam } from '$lib/server/guard';
-import { signOff } from '$lib/server/protocols/review';
+import { signOff } from '$lib/server/protocols/decisions';
 import { apiError, readJson } from '$lib/server/http';
 
 export const POST: RequestHandler = async (event) => {

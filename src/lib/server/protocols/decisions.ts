@@ -1,10 +1,13 @@
-import type { Transaction } from 'sequelize';
 /**
- * Review: the discrepancy list of the current round, resolutions with optimistic locking,
- * sign-off (verified, locked) and reopening by a lead (a new round; history kept).
+ * Decisions on a protocol in review: the discrepancy list of the current round (the review view),
+ * resolutions under the discrepancy's optimistic lock, sign-off (verified, locked), reopening by a
+ * lead (a new round; history kept), and the verified values that follow from the decisions.
  */
+import { Op, type Transaction } from 'sequelize';
 import { z } from 'zod';
 import { select, selectOne, exec, transaction, jsonValue } from '../db';
+import { models } from '../models';
+import { dbNow, inTx, reading, saveLocked, type DiscrepancyRow } from '../models/protocol';
 import { recordEvent } from '../trail';
 import { protocolFor, type Actor } from './service';
 import { protocolTests, protocolComposites, normGroups } from './catalog-read';
@@ -12,7 +15,7 @@ import type { TableRowInput } from '../catalog/norms';
 import { isBand, normalizePercentile, parsePercentile } from '../../catalog/norm-forms';
 import { conflict, invalid, notFound, parseFirst, ServiceError } from '../errors';
 import { charDiff } from '../../scoring/diff';
-import { explainKind, type Kind } from '../../scoring/kinds';
+import { explainKind } from '../../scoring/kinds';
 import { checkField } from '../../scoring/reconcile';
 import type { Field } from '../../scoring/scales';
 import { recordResolution } from '../audit-stats/record';
@@ -27,30 +30,7 @@ import { FIELD_LABELS } from '../../status';
 // their round and reason (tests/integration/review-evidence.test.ts, against the built app).
 import { notifyReviewStarted } from '../mail/review';
 
-export interface DiscrepancyRow {
-	id: number;
-	protocol_id: number;
-	round: number;
-	position: number;
-	test_code: string;
-	field: Field;
-	pass: 'first' | 'second' | 'both';
-	kind: Kind;
-	value: string | null;
-	other: string | null;
-	expected: string | null;
-	alternative: string | null;
-	out_of_range: number;
-	resolution: 'first' | 'second' | 'recomputed' | 'other' | null;
-	resolved_value: string | null;
-	note: string | null;
-	resolved_by: number | null;
-	resolved_at: Date | null;
-	lock_version: number;
-	settled_by: 'raw_decision' | 'amendment' | null;
-	settled_by_id: number | null;
-	carried_from: number | null;
-}
+export type { DiscrepancyRow };
 
 /** First and second pass's values of a discrepancy (value/other are stored relative to the flagged pass). */
 export function passValues(d: Pick<DiscrepancyRow, 'pass' | 'value' | 'other'>): { first: string | null; second: string | null } {
@@ -77,7 +57,7 @@ function fitsOther(
 }
 
 /** On a raw card: which pass's derived values fit the other pass's raw score (rule 5's evidence). */
-function slipOf(d: DiscrepancyRow, rows: DiscrepancyRow[], rawOf: (w: 'first' | 'second', code: string) => string | null): string | null {
+function slipOf(d: DiscrepancyRow, rows: readonly DiscrepancyRow[], rawOf: (w: 'first' | 'second', code: string) => string | null): string | null {
 	for (const which of ['first', 'second'] as const) {
 		const other = which === 'first' ? 'second' : 'first';
 		const fit = rows.filter((x) => x.test_code === d.test_code && x.field !== 'raw' && x.pass === which && fitsOther(x, rawOf(other, d.test_code), null));
@@ -100,16 +80,16 @@ export async function reviewView(protocolId: number, user: Actor) {
 	const tests = await protocolTests(p.id);
 	// Both passes' raw scores: after the second submit they are no longer blind, and a reviewer
 	// needs them to see what each recomputed value was computed from.
-	const passRows = await select<{ which: 'first' | 'second'; scores: unknown }>('SELECT which, scores FROM passes WHERE protocol_id = :p AND round = :r', {
-		p: p.id,
-		r: p.round
-	});
+	const { Pass, Discrepancy } = models();
+	const passRows = await reading(null, () => Pass.findAll({ attributes: ['which', 'scores'], where: { protocol_id: p.id, round: p.round } }));
 	const rawOf = (which: 'first' | 'second', code: string) => (jsonValue<Scores>(passRows.find((x) => x.which === which)?.scores) ?? {})[code]?.raw ?? null;
-	const rows = await select<DiscrepancyRow & { resolver: string | null }>(
-		`SELECT d.*, u.name AS resolver FROM discrepancies d LEFT JOIN users u ON u.id = d.resolved_by
-		  WHERE d.protocol_id = :p AND d.round = :r ORDER BY d.position`,
-		{ p: p.id, r: p.round }
+	const rows = (await reading(null, () => Discrepancy.findAll({ where: { protocol_id: p.id, round: p.round }, order: [['position', 'ASC']] }))).map(
+		(d) => d.get({ plain: true }) as DiscrepancyRow
 	);
+	// users is a catalog table (no model on this side): the resolvers' names in one read
+	const resolverIds = [...new Set(rows.map((d) => d.resolved_by).filter((x): x is number => x !== null))];
+	const resolvers = resolverIds.length ? await select<{ id: number; name: string }>('SELECT id, name FROM users WHERE id IN (:ids)', { ids: resolverIds }) : [];
+	const resolverOf = (d: DiscrepancyRow) => resolvers.find((u) => u.id === d.resolved_by)?.name ?? null;
 	const composites = await protocolComposites(p.id);
 	// a composite's cards wait on its parts' open cards, as a derived card waits on its raw score
 	const isComposite = (code: string) => composites.some((c) => c.code === code);
@@ -122,6 +102,7 @@ export async function reviewView(protocolId: number, user: Actor) {
 	}));
 	const partsOf = (code: string) => composites.find((c) => c.code === code)?.parts ?? [];
 	// an amendment that opened this round: its field's card offers the amended value and the reason
+	// the amendment joined with who asked for it (users: a catalog table)
 	const amended = await select<{
 		test_code: string;
 		field: string;
@@ -168,7 +149,7 @@ export async function reviewView(protocolId: number, user: Actor) {
 		return `Raw ${raw} is in the row ${rowText(table[i], d.field)}${read ? `; the value entered is the row ${table[i - 1] === read ? 'above' : 'below'}, ${rowText(read, d.field)}` : ''}.`;
 	};
 	return {
-		protocol: p,
+		protocol: p.get({ plain: true }),
 		canResolve: duties.includes('reviewer') && p.status === 'in_review',
 		singlePass: await isSinglePass(p.id),
 		tests: tests.map((x) => ({ code: x.code, name: x.name, domain: x.domainName, group: x.groupText, raw: x.raw, bounds: x.bounds, reported: x.reported })),
@@ -216,7 +197,7 @@ export async function reviewView(protocolId: number, user: Actor) {
 				resolution: d.resolution,
 				resolvedValue: d.resolved_value,
 				note: d.note,
-				resolver: d.resolver,
+				resolver: resolverOf(d),
 				resolvedAt: d.resolved_at,
 				lockVersion: d.lock_version
 			};
@@ -235,22 +216,23 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 	const input = parseFirst(resolutionSchema, body);
 	const { choice, note } = input;
 	return transaction(async (t) => {
-		const found = await selectOne<{ protocol_id: number }>('SELECT protocol_id FROM discrepancies WHERE id = :id', { id: discrepancyId }, t);
+		const { Discrepancy, Protocol } = models();
+		const found = await Discrepancy.findByPk(discrepancyId, { attributes: ['protocol_id'], transaction: t });
 		if (!found) throw notFound('This discrepancy');
 		// Serialize with sign-off and reopen on the protocol row (both lock it too): the status is read
 		// under the lock, so a resolution can never land on a protocol signed off a moment earlier.
 		const { p, duties } = await protocolFor(found.protocol_id, user, t, true);
-		const d = await selectOne<DiscrepancyRow>('SELECT * FROM discrepancies WHERE id = :id FOR UPDATE', { id: discrepancyId }, t);
+		const d = await Discrepancy.findByPk(discrepancyId, inTx(t, true));
 		if (!d) throw notFound('This discrepancy');
 		requireReviewer(duties);
 		if (p.status !== 'in_review' || d.round !== p.round) throw conflict('This protocol is not open for review (signed off, or a newer round exists).');
 		if (input.lockVersion !== d.lock_version) throw await staleResolution(d.id, t);
 		if (d.field !== 'raw') {
-			const raw = await selectOne<{ id: number }>(
-				`SELECT id FROM discrepancies WHERE protocol_id = :p AND round = :r AND test_code = :test AND field = 'raw' AND resolved_at IS NULL`,
-				{ p: p.id, r: p.round, test: d.test_code },
-				t
-			);
+			const raw = await Discrepancy.findOne({
+				attributes: ['id'],
+				where: { protocol_id: p.id, round: p.round, test_code: d.test_code, field: 'raw', resolved_at: null },
+				transaction: t
+			});
 			if (raw)
 				throw new ServiceError(
 					409,
@@ -261,11 +243,11 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 			// a composite's value waits on its parts, as a derived score waits on its raw score
 			const composite = (await protocolComposites(p.id, t)).find((c) => c.code === d.test_code);
 			const part = composite
-				? await selectOne<{ test_code: string }>(
-						`SELECT test_code FROM discrepancies WHERE protocol_id = :p AND round = :r AND test_code IN (:parts) AND resolved_at IS NULL LIMIT 1`,
-						{ p: p.id, r: p.round, parts: composite.parts },
-						t
-					)
+				? await Discrepancy.findOne({
+						attributes: ['test_code'],
+						where: { protocol_id: p.id, round: p.round, test_code: composite.parts, resolved_at: null },
+						transaction: t
+					})
 				: null;
 			if (composite && part)
 				throw new ServiceError(
@@ -307,30 +289,26 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 				'note'
 			);
 		}
-		const { affected } = await exec(
-			`UPDATE discrepancies SET resolution = :choice, resolved_value = :kept, note = :note, resolved_by = :uid, resolved_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1
-			  WHERE id = :id AND lock_version = :lock`,
-			{ choice, kept, note: note || null, uid: user.id, id: d.id, lock: input.lockVersion },
-			t
-		);
-		if (affected !== 1) throw await staleResolution(d.id, t);
+		const before = { resolution: d.resolution, resolved_value: d.resolved_value, resolved_at: d.resolved_at, lock_version: d.lock_version };
+		// saved under the row's lock_version (the version the reviewer's view showed, checked above)
+		d.set({ resolution: choice, resolved_value: kept, note: note || null, resolved_by: user.id, resolved_at: dbNow() });
+		await saveLocked(d, t, () => staleResolution(d.id, t));
 		// A sign-off made on a view older than this decision is refused as stale (it did not see it).
 		// Compare-and-set, as the sign-off does: the protocol must still be in review as read above.
-		const moved = await exec(
-			"UPDATE protocols SET lock_version = lock_version + 1 WHERE id = :id AND status = 'in_review' AND round = :round AND lock_version = :lock",
-			{ id: p.id, round: p.round, lock: p.lock_version },
-			t
+		const [moved] = await Protocol.update(
+			{ lock_version: p.lock_version + 1 },
+			{ where: { id: p.id, status: 'in_review', round: p.round, lock_version: p.lock_version }, transaction: t }
 		);
-		if (moved.affected !== 1) throw conflict('This protocol was signed off or changed at the same moment; your choice was not saved. Reload to see its state.');
+		if (moved !== 1) throw conflict('This protocol was signed off or changed at the same moment; your choice was not saved. Reload to see its state.');
 		await recordEvent(
 			{
 				actorId: user.id,
 				entity: 'discrepancy',
 				entityId: d.id,
 				protocolId: p.id,
-				action: d.resolved_at ? 'change_resolution' : 'resolve',
-				oldValue: d.resolved_at
-					? { choice: d.resolution, value: d.resolved_value }
+				action: before.resolved_at ? 'change_resolution' : 'resolve',
+				oldValue: before.resolved_at
+					? { choice: before.resolution, value: before.resolved_value }
 					: { test: d.test_code, field: d.field, first: v.first, second: v.second, expected: d.expected, kind: d.kind },
 				newValue: { choice, value: kept },
 				reason: note || null
@@ -341,17 +319,14 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 		await afterResolution(d.id, t);
 		// The raw score is settled: the test's derived discrepancies are judged again, in this transaction.
 		const rejudged = d.field === 'raw' ? await rejudgeDerived(p, d.test_code, kept, { by: 'raw_decision', id: d.id, actorId: user.id }, t) : null;
-		const open = await selectOne<{ n: number }>(
-			'SELECT COUNT(*) AS n FROM discrepancies WHERE protocol_id = :p AND round = :r AND resolved_at IS NULL',
-			{ p: p.id, r: p.round },
-			t
-		);
-		return { id: d.id, resolution: choice, resolvedValue: kept, note: note || null, lockVersion: d.lock_version + 1, open: Number(open?.n ?? 0), rejudged };
+		const open = await Discrepancy.count({ where: { protocol_id: p.id, round: p.round, resolved_at: null }, transaction: t });
+		return { id: d.id, resolution: choice, resolvedValue: kept, note: note || null, lockVersion: before.lock_version + 1, open, rejudged };
 	});
 }
 
 /** The conflict answer for a resolution made on a stale view: who changed it, and to what. */
 async function staleResolution(id: number, t: Transaction): Promise<ServiceError> {
+	// the row as it is now, with its resolver's name (users: a catalog table)
 	const now = await selectOne<{ resolved_value: string | null; name: string | null }>(
 		'SELECT d.resolved_value, u.name FROM discrepancies d LEFT JOIN users u ON u.id = d.resolved_by WHERE d.id = :id',
 		{ id },
@@ -367,11 +342,13 @@ async function staleResolution(id: number, t: Transaction): Promise<ServiceError
 
 /** Kept values that differ from the recomputation (each with its note): sign-off lists them for one confirmation. */
 export async function keptAgainstRecomputation(protocolId: number, round: number, t?: Transaction) {
-	const rows = await select<{ id: number; test_code: string; field: Field; resolved_value: string | null; expected: string | null; note: string | null }>(
-		`SELECT id, test_code, field, resolved_value, expected, note FROM discrepancies
-		  WHERE protocol_id = :p AND round = :r AND resolved_at IS NOT NULL AND expected IS NOT NULL ORDER BY position`,
-		{ p: protocolId, r: round },
-		t
+	const rows = await reading(t, () =>
+		models().Discrepancy.findAll({
+			attributes: ['id', 'test_code', 'field', 'resolved_value', 'expected', 'note'],
+			where: { protocol_id: protocolId, round, resolved_at: { [Op.ne]: null }, expected: { [Op.ne]: null } },
+			order: [['position', 'ASC']],
+			transaction: t ?? undefined
+		})
 	);
 	return rows
 		.filter((d) => !same(d.resolved_value, d.expected))
@@ -393,13 +370,8 @@ export async function signOff(protocolId: number, user: Actor, body: unknown) {
 				undefined,
 				'stale'
 			);
-		const open = await selectOne<{ n: number }>(
-			'SELECT COUNT(*) AS n FROM discrepancies WHERE protocol_id = :p AND round = :r AND resolved_at IS NULL',
-			{ p: p.id, r: p.round },
-			t
-		);
-		if (Number(open?.n) > 0)
-			throw conflict(`${open?.n} discrepanc${Number(open?.n) === 1 ? 'y is' : 'ies are'} still open. Resolve every one before signing off.`);
+		const open = await models().Discrepancy.count({ where: { protocol_id: p.id, round: p.round, resolved_at: null }, transaction: t });
+		if (open > 0) throw conflict(`${open} discrepanc${open === 1 ? 'y is' : 'ies are'} still open. Resolve every one before signing off.`);
 		const against = await keptAgainstRecomputation(p.id, p.round, t);
 		if (against.length > 0 && parsed.data.confirmKept !== true) {
 			const list = against.map((x) => `${x.test} ${FIELD_LABELS[x.field] ?? x.field}: kept ${x.kept}, recomputed ${x.recomputed}`).join('; ');
@@ -410,15 +382,13 @@ export async function signOff(protocolId: number, user: Actor, body: unknown) {
 				'confirm_kept'
 			);
 		}
-		// compare-and-set: on a Galera cluster the FOR UPDATE above locks only on this node
-		const moved = await exec(
-			`UPDATE protocols SET status = 'verified', verified_at = CURRENT_TIMESTAMP(3), verified_by = :uid, status_changed_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1
-			  WHERE id = :id AND status = 'in_review' AND lock_version = :lock`,
-			{ uid: user.id, id: p.id, lock: p.lock_version },
-			t
+		// compare-and-set on lock_version (the model's version): on a Galera cluster the FOR UPDATE above locks only on this node
+		p.set({ status: 'verified', verified_at: dbNow(), verified_by: user.id, status_changed_at: dbNow() });
+		await saveLocked(
+			p,
+			t,
+			() => new ServiceError(409, 'This protocol was signed off or changed at the same moment elsewhere. Reload to see its state.', undefined, 'stale')
 		);
-		if (moved.affected !== 1)
-			throw new ServiceError(409, 'This protocol was signed off or changed at the same moment elsewhere. Reload to see its state.', undefined, 'stale');
 		await recordEvent(
 			{
 				actorId: user.id,
@@ -437,6 +407,7 @@ export async function signOff(protocolId: number, user: Actor, body: unknown) {
 
 /** A new review round starts from the same two passes: both are copied from `from` to `to` (reopen, amendment). */
 export async function carryPasses(protocolId: number, from: number, to: number, t: Transaction): Promise<void> {
+	// INSERT … SELECT: the passes are copied inside the database, never read into the app
 	await exec(
 		`INSERT INTO passes (protocol_id, round, which, scorer_id, status, scores, fields_entered, draft_version, submitted_at)
 		 SELECT protocol_id, :to, which, scorer_id, status, scores, fields_entered, draft_version, submitted_at FROM passes WHERE protocol_id = :p AND round = :from ORDER BY which`,
@@ -458,20 +429,17 @@ export async function reopen(protocolId: number, user: Actor, reason: string) {
 		if (p.status !== 'verified') throw conflict('Only a verified protocol can be reopened.');
 		const next = p.round + 1;
 		await carryPasses(p.id, p.round, next, t);
-		// unresolved, each pointing at its previous decision (shown and offered as the default)
+		// unresolved, each pointing at its previous decision (shown and offered as the default);
+		// INSERT … SELECT copies the whole round in one statement
 		await exec(
 			`INSERT INTO discrepancies (protocol_id, round, position, test_code, field, pass, kind, value, other, expected, alternative, out_of_range, carried_from)
 			 SELECT protocol_id, :next, position, test_code, field, pass, kind, value, other, expected, alternative, out_of_range, id FROM discrepancies WHERE protocol_id = :p AND round = :r`,
 			{ next, p: p.id, r: p.round },
 			t
 		);
-		const moved = await exec(
-			`UPDATE protocols SET status = 'in_review', round = :next, verified_at = NULL, verified_by = NULL, status_changed_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1
-			  WHERE id = :id AND status = 'verified' AND round = :r`,
-			{ next, id: p.id, r: p.round },
-			t
-		);
-		if (moved.affected !== 1) throw conflict('This protocol was reopened at the same moment elsewhere.');
+		const round = p.round;
+		p.set({ status: 'in_review', round: next, verified_at: null, verified_by: null, status_changed_at: dbNow() });
+		await saveLocked(p, t, () => conflict('This protocol was reopened at the same moment elsewhere.'));
 		await recordEvent(
 			{
 				actorId: user.id,
@@ -479,7 +447,7 @@ export async function reopen(protocolId: number, user: Actor, reason: string) {
 				entityId: p.id,
 				protocolId: p.id,
 				action: 'reopen',
-				oldValue: { status: 'verified', round: p.round },
+				oldValue: { status: 'verified', round },
 				newValue: { status: 'in_review', round: next },
 				reason: reason.trim()
 			},
@@ -493,10 +461,20 @@ export async function reopen(protocolId: number, user: Actor, reason: string) {
 /** Earlier rounds' decisions for the same fields (shown as "previous decision" after a reopen). */
 export async function previousDecisions(protocolId: number, round: number) {
 	if (round <= 1) return [];
-	return select<{ test_code: string; field: string; resolution: string; resolved_value: string; note: string | null; round: number }>(
-		`SELECT test_code, field, resolution, resolved_value, note, round FROM discrepancies WHERE protocol_id = :p AND round = :r AND resolved_at IS NOT NULL`,
-		{ p: protocolId, r: round - 1 }
+	const rows = await reading(null, () =>
+		models().Discrepancy.findAll({
+			attributes: ['test_code', 'field', 'resolution', 'resolved_value', 'note', 'round'],
+			where: { protocol_id: protocolId, round: round - 1, resolved_at: { [Op.ne]: null } }
+		})
 	);
+	return rows.map((d) => ({
+		test_code: d.test_code,
+		field: d.field as string,
+		resolution: d.resolution!,
+		resolved_value: d.resolved_value!,
+		note: d.note,
+		round: d.round
+	}));
 }
 
 /** Two entered values are the same number; an empty or non-numeric value equals nothing. */
@@ -509,22 +487,19 @@ function sameNumber(x: string | null | undefined, y: string | null | undefined):
 
 /** The verified value of every field: the pass value where both agreed, else the resolution. */
 export async function finalScores(protocolId: number, round: number, t?: Transaction): Promise<Scores> {
-	const first = await selectOne<{ scores: unknown }>(
-		"SELECT scores FROM passes WHERE protocol_id = :p AND round = :r AND which = 'first'",
-		{ p: protocolId, r: round },
-		t
+	const { Pass, Discrepancy } = models();
+	const passes = await reading(t, () =>
+		Pass.findAll({ attributes: ['which', 'scores'], where: { protocol_id: protocolId, round }, transaction: t ?? undefined })
 	);
-	const second = await selectOne<{ scores: unknown }>(
-		"SELECT scores FROM passes WHERE protocol_id = :p AND round = :r AND which = 'second'",
-		{ p: protocolId, r: round },
-		t
-	);
-	const a = jsonValue<Scores>(first?.scores) ?? {};
-	const b = jsonValue<Scores>(second?.scores) ?? {};
-	const rows = await select<{ test_code: string; field: Field; resolved_value: string | null }>(
-		'SELECT test_code, field, resolved_value FROM discrepancies WHERE protocol_id = :p AND round = :r AND resolved_at IS NOT NULL ORDER BY position',
-		{ p: protocolId, r: round },
-		t
+	const a = jsonValue<Scores>(passes.find((x) => x.which === 'first')?.scores) ?? {};
+	const b = jsonValue<Scores>(passes.find((x) => x.which === 'second')?.scores) ?? {};
+	const rows = await reading(t, () =>
+		Discrepancy.findAll({
+			attributes: ['test_code', 'field', 'resolved_value'],
+			where: { protocol_id: protocolId, round, resolved_at: { [Op.ne]: null } },
+			order: [['position', 'ASC']],
+			transaction: t ?? undefined
+		})
 	);
 	const out: Scores = {};
 	for (const code of new Set([...Object.keys(a), ...Object.keys(b)])) {
