@@ -12,7 +12,7 @@ import { arg, emit, loadBenchEnv, machine } from './lib';
 loadBenchEnv('db');
 const { db, select, selectOne, closeDb } = await import('../../src/lib/server/db');
 const S = await import('../../src/lib/server/protocols/service');
-const R = await import('../../src/lib/server/protocols/review');
+const R = await import('../../src/lib/server/protocols/decisions');
 const { listUsers } = await import('../../src/lib/server/users');
 const { listTests, listBatteries, listNormGroups } = await import('../../src/lib/server/catalog');
 const { listProtocolMail } = await import('../../src/lib/server/mail/review');

@@ -27,7 +27,7 @@ const { Client } = await import('../../tests/helpers/http');
 const { closeDb } = await import('../../src/lib/server/db');
 const F = await import('./fixtures');
 const { submitPass } = await import('../../src/lib/server/protocols/passes');
-const { resolveDiscrepancy } = await import('../../src/lib/server/protocols/review');
+const { resolveDiscrepancy } = await import('../../src/lib/server/protocols/decisions');
 const { startProfile, takeProfile } = await import('../../src/lib/server/sql-profile');
 
 const BASE = baseUrl();
