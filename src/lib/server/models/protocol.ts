@@ -267,7 +267,7 @@ export function initProtocolModels(sequelize: Sequelize, others: { ProtocolCompo
 			validate: {
 				// CHECK discrepancies_resolution (00024): a decision is all four columns or none
 				wholeDecision(this: Discrepancy) {
-					const four = [this.resolution, this.resolved_value, this.resolved_at, this.resolved_by];
+					const four: unknown[] = [this.resolution, this.resolved_value, this.resolved_at, this.resolved_by];
 					if (four.includes(undefined)) return; // a partial update: the table's CHECK still holds the line
 					const set = four.filter((v) => v !== null).length;
 					if (set !== 0 && set !== 4) throw new Error('A resolution needs its choice, value, time and resolver together (or none of them).');
