@@ -13,7 +13,7 @@ import { createProtocol, type Actor } from '../../src/lib/server/protocols/servi
 import { myPass, saveDraft, submitPass, type Scores } from '../../src/lib/server/protocols/passes';
 import { reviewView, resolveDiscrepancy, signOff, reopen } from '../../src/lib/server/protocols/decisions';
 import { addAttachment } from '../../src/lib/server/protocols/attachments';
-import { normGroups } from '../../src/lib/server/protocols/catalog-read';
+import { normGroups } from '../../src/lib/server/catalog';
 import { getUserByEmail } from '../../src/lib/server/users';
 import { referenceScore, zFromRaw, roundTo, type DerivedField, type Field } from '../../src/lib/scoring/scales';
 import { recordFormPdf } from './record-form';

@@ -18,7 +18,7 @@ import { createProtocol, type Actor } from '../../src/lib/server/protocols/servi
 import { myPass, saveDraft, submitPass, type Scores } from '../../src/lib/server/protocols/passes';
 import { reviewView, resolveDiscrepancy, signOff } from '../../src/lib/server/protocols/decisions';
 import { addAttachment } from '../../src/lib/server/protocols/attachments';
-import { protocolTests, protocolComposites, normGroups, normDef, engineTest, engineComposite } from '../../src/lib/server/protocols/catalog-read';
+import { protocolTests, protocolComposites, normGroups, normDef, engineTest, engineComposite } from '../../src/lib/server/catalog';
 import { testReferences, compositeReferences, compositeSpan } from '../../src/lib/scoring/reconcile';
 import type { NormEntry, CompositeNormEntry } from '../../src/lib/scoring/norms';
 import { formatReference, type DerivedField } from '../../src/lib/scoring/scales';

@@ -7,7 +7,7 @@
 import { select, selectOne, exec } from '../../src/lib/server/db';
 import { createProtocol, type Actor } from '../../src/lib/server/protocols/service';
 import { saveDraft, submitPass, type Scores } from '../../src/lib/server/protocols/passes';
-import { protocolTests, normGroups } from '../../src/lib/server/protocols/catalog-read';
+import { protocolTests, normGroups } from '../../src/lib/server/catalog';
 import { createTest, getTest, createBattery, getBatteryByCode } from '../../src/lib/server/catalog';
 import { referenceScore, zFromRaw, formatReference } from '../../src/lib/scoring/scales';
 import type { Role } from '../../src/lib/roles';

@@ -11,7 +11,7 @@ import { ACCOUNTS, DEMO_PASSWORD, signedIn } from '../helpers/http';
 import { createViaForm, correctScores, type Scores } from '../helpers/workflow';
 import { seriousViolations, describeViolations } from '../helpers/axe';
 import { closeDb, selectOne } from '../../src/lib/server/db';
-import { protocolTests } from '../../src/lib/server/protocols/catalog-read';
+import { protocolTests } from '../../src/lib/server/catalog';
 
 let browser: Browser;
 let id: number;

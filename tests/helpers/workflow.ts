@@ -2,7 +2,7 @@
 import { expect } from 'vitest';
 import type { Client } from './http';
 import { selectOne } from '../../src/lib/server/db';
-import { protocolTests, normGroups } from '../../src/lib/server/protocols/catalog-read';
+import { protocolTests, normGroups } from '../../src/lib/server/catalog';
 import { referenceScore, zFromRaw, formatReference, type Field } from '../../src/lib/scoring/scales';
 
 export type Scores = Record<string, Partial<Record<Field, string | null>>>;

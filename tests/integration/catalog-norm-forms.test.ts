@@ -128,6 +128,30 @@ describe('conversion tables', () => {
 		expect(await snapshot()).toEqual(before);
 	});
 
+	it("a PUT of the set's details with a bad group changes nothing: the name, source and age rule stay as they were (one transaction)", async () => {
+		const before = await (await lead.get(`/api/v1/norm-sets/${setId}`)).json();
+		const groupsBefore = await snapshot();
+		// the details are valid on their own; the group's table stops at raw 18 while the test's maximum is 20
+		const r = await put(lead, `/api/v1/norm-sets/${setId}`, {
+			name: 'Renamed in the same request',
+			source: 'Changed source',
+			borrow_days: 'actual',
+			groups: [group(TILE, 'a30', 360, 479, { form: 'table', scale: 'scaled', rows: rowsOf(TILE_A30).slice(0, 13) })]
+		});
+		expect(r.status).toBe(422);
+		const after = await (await lead.get(`/api/v1/norm-sets/${setId}`)).json();
+		expect(after.normSet.name).toBe('Forms');
+		expect(after.normSet.source).toBe('Invented for a test');
+		expect(after.normSet.age_rule).toEqual(before.normSet.age_rule);
+		expect(after.normSet.age_rule.borrowDays).toBe(30);
+		expect(await snapshot()).toEqual(groupsBefore);
+		// the same details without the bad group are taken (so the refusal above was the group's)
+		const ok = await put(lead, `/api/v1/norm-sets/${setId}`, { source: 'Invented for a test (checked)' });
+		expect(ok.status, await ok.clone().text()).toBe(200);
+		expect((await ok.json()).normSet.source).toBe('Invented for a test (checked)');
+		expect((await put(lead, `/api/v1/norm-sets/${setId}`, { source: 'Invented for a test' })).status).toBe(200);
+	});
+
 	it('refuses a table that stops short of the raw maximum, and one with percentiles on some rows only', async () => {
 		const short = rowsOf(TILE_A30).slice(0, 13); // ends at 18; the test's raw maximum is 20
 		let r = await put(lead, `/api/v1/norm-sets/${setId}`, { groups: [group(TILE, 'a30', 360, 479, { form: 'table', scale: 'scaled', rows: short })] });

@@ -1,10 +1,16 @@
 /** Batteries: ordered lists of tests grouped by domain, as a protocol is administered. */
-import { exec, select, selectOne, transaction, type Tx } from '../db';
+import { Op } from 'sequelize';
+import { transaction, type Tx } from '../db';
 import { recordEvent } from '../trail';
 import { batterySchema, type BatteryInput, type CompositeInput, type CompositeField } from '../../catalog/schema';
-import { models } from '../models';
+import { models, type Composite, type FrozenComposite } from '../models';
+import type { Battery } from '../models/catalog';
+import type { CompositeDef, CompositeField as EngineCompositeField } from '../../scoring/norms';
+import { groupCoverage } from '../../scoring/age';
 import { ServiceError, notFoundError, parseWith } from '../errors';
-import { listTests, type TestRecord } from './tests';
+import { toCatalogTest, type TestRecord } from './tests';
+import { groupDef } from './norms';
+import { usersWithRole } from '../users';
 
 export interface BatterySummary {
 	id: number;
@@ -31,19 +37,11 @@ export interface CompositeRecord extends CompositeInput {
 	position: number;
 }
 
-/** Every battery's composites by code and name (the norm editor's list). */
-export async function listAllComposites(tx?: Tx): Promise<{ code: string; name: string }[]> {
-	const { Composite } = models();
-	return (await Composite.findAll({ attributes: ['code', 'name'], order: [['code', 'ASC']], transaction: tx ?? undefined })).map((c) => ({
-		code: c.code,
-		name: c.name
-	}));
-}
+const tx_ = (tx?: Tx) => tx ?? undefined;
 
-export async function listComposites(batteryId: number, tx?: Tx): Promise<CompositeRecord[]> {
-	const { Composite } = models();
-	const rows = await Composite.findAll({ where: { battery_id: batteryId }, order: [['position', 'ASC']], transaction: tx ?? undefined });
-	return rows.map((c) => ({
+/** The one mapper of a `composites` row. */
+function toComposite(c: Composite): CompositeRecord {
+	return {
 		id: c.id,
 		position: c.position,
 		code: c.code,
@@ -52,55 +50,149 @@ export async function listComposites(batteryId: number, tx?: Tx): Promise<Compos
 		part_field: c.part_field,
 		reported: c.reported.split(',').filter(Boolean) as CompositeField[],
 		reliability: c.reliability
-	}));
-}
-
-const SUMMARY = `SELECT b.*, s.name AS norm_set_name, COUNT(bt.test_code) AS tests FROM batteries b
-	LEFT JOIN norm_sets s ON s.id = b.norm_set_id LEFT JOIN battery_tests bt ON bt.battery_id = b.id`;
-
-function rowToSummary(r: Record<string, unknown>): BatterySummary {
-	return {
-		id: Number(r.id),
-		code: String(r.code),
-		name: String(r.name),
-		description: (r.description as string | null) ?? null,
-		norm_set_id: r.norm_set_id === null ? null : Number(r.norm_set_id),
-		norm_set_name: (r.norm_set_name as string | null) ?? null,
-		tests: Number(r.tests ?? 0),
-		created_at: new Date(r.created_at as Date).toISOString()
 	};
 }
 
-export async function listBatteries(tx?: Tx): Promise<BatterySummary[]> {
-	return (await select<Record<string, unknown>>(`${SUMMARY} GROUP BY b.id ORDER BY b.name`, {}, tx)).map(rowToSummary);
+/** Every battery's composites by code and name (the norm editor's list). */
+export async function listAllComposites(tx?: Tx): Promise<{ code: string; name: string }[]> {
+	const { Composite } = models();
+	return (await Composite.findAll({ attributes: ['code', 'name'], order: [['code', 'ASC']], transaction: tx_(tx) })).map((c) => ({
+		code: c.code,
+		name: c.name
+	}));
 }
 
-export async function getBattery(id: number, tx?: Tx): Promise<BatteryRecord | null> {
-	const r = await selectOne<Record<string, unknown>>(`${SUMMARY} WHERE b.id = :id GROUP BY b.id`, { id }, tx);
-	if (!r) return null;
-	const order = await select<{ test_code: string; position: number }>(
-		'SELECT test_code, position FROM battery_tests WHERE battery_id = :id ORDER BY position',
-		{ id },
-		tx
-	);
-	const tests = new Map((await listTests({}, tx)).map((t) => [t.code, t]));
-	const domainNames = new Map((await select<{ code: string; name: string }>('SELECT code, name FROM domains', {}, tx)).map((d) => [d.code, d.name]));
-	const items = order.flatMap((o) => {
-		const t = tests.get(o.test_code);
-		return t ? [{ ...t, position: Number(o.position) }] : [];
+export async function listComposites(batteryId: number, tx?: Tx): Promise<CompositeRecord[]> {
+	const { Composite } = models();
+	const rows = await Composite.findAll({ where: { battery_id: batteryId }, order: [['position', 'ASC']], transaction: tx_(tx) });
+	return rows.map(toComposite);
+}
+
+/** The battery's composites as defined now (what a new protocol freezes). */
+export async function batteryComposites(batteryId: number, tx?: Tx): Promise<FrozenComposite[]> {
+	return (await listComposites(batteryId, tx)).map(({ id: _id, position: _position, ...definition }) => definition);
+}
+
+export interface CatalogComposite extends FrozenComposite {
+	position: number;
+	groupId: number | null;
+	groupCode: string | null;
+	groupText: string;
+}
+
+/** The composites a protocol froze at creation, in report order, with their norm group. */
+export async function protocolComposites(protocolId: number, tx?: Tx): Promise<CatalogComposite[]> {
+	const { ProtocolComposite, NormGroup } = models();
+	const rows = await ProtocolComposite.findAll({ where: { protocol_id: protocolId }, order: [['position', 'ASC']], transaction: tx_(tx) });
+	const ids = rows.map((r) => r.norm_group_id).filter((x): x is number => x !== null);
+	const groups = new Map((ids.length ? await NormGroup.findAll({ where: { id: { [Op.in]: ids } }, transaction: tx_(tx) }) : []).map((g) => [g.id, g]));
+	return rows.map((r) => {
+		const g = r.norm_group_id ? groups.get(r.norm_group_id) : undefined;
+		return {
+			...r.definition,
+			position: r.position,
+			groupId: r.norm_group_id,
+			groupCode: g?.group_code ?? null,
+			// what the group covers, in words, as for tests ("ages 30;0–39;11")
+			groupText: g ? groupCoverage(groupDef(g)) : '—'
+		};
 	});
+}
+
+export const engineComposite = (c: FrozenComposite): CompositeDef => ({
+	id: c.code,
+	parts: c.parts,
+	part_field: c.part_field,
+	reported: c.reported as EngineCompositeField[]
+});
+
+/** The one mapper of a `batteries` row (with its norm set's name and its number of tests). */
+function toSummary(b: Battery, tests: number): BatterySummary {
+	return {
+		id: b.id,
+		code: b.code,
+		name: b.name,
+		description: b.description ?? null,
+		norm_set_id: b.norm_set_id,
+		norm_set_name: b.normSet?.name ?? null,
+		tests,
+		created_at: new Date(b.created_at).toISOString()
+	};
+}
+
+const normSetName = { association: 'normSet', attributes: ['id', 'name'] };
+
+export async function listBatteries(tx?: Tx): Promise<BatterySummary[]> {
+	const { Battery, BatteryTest } = models();
+	const [batteries, counts] = await Promise.all([
+		Battery.findAll({ include: [normSetName], order: [['name', 'ASC']], transaction: tx_(tx) }),
+		// tests per battery (COUNT … GROUP BY)
+		BatteryTest.count({ group: ['battery_id'], transaction: tx_(tx) })
+	]);
+	const n = new Map(counts.map((c) => [Number(c.battery_id), Number(c.count)]));
+	return batteries.map((b) => toSummary(b, n.get(b.id) ?? 0));
+}
+
+/** A battery with its tests (battery → battery_tests → current tests, with their domains) and composites. */
+export async function getBattery(id: number, tx?: Tx): Promise<BatteryRecord | null> {
+	const { Battery } = models();
+	const b = await Battery.findByPk(id, {
+		include: [
+			normSetName,
+			{
+				association: 'items',
+				separate: true,
+				order: [['position', 'ASC']],
+				include: [{ association: 'test', required: false, where: { is_current: true }, include: [{ association: 'domainInfo' }] }]
+			},
+			{ association: 'composites', separate: true, order: [['position', 'ASC']] }
+		],
+		transaction: tx_(tx)
+	});
+	if (!b) return null;
+	const all = b.items ?? [];
+	const items = all.flatMap((o) => (o.test ? [{ ...toCatalogTest(o.test), position: Number(o.position) }] : []));
 	const domains: BatteryRecord['domains'] = [];
 	for (const it of items) {
 		let d = domains.find((x) => x.code === it.domain);
-		if (!d) domains.push((d = { code: it.domain, name: domainNames.get(it.domain) ?? it.domain, tests: [] }));
-		d.tests.push(it);
+		if (!d) domains.push((d = { code: it.domain, name: it.domainName, tests: [] }));
+		const { domainName: _name, ...test } = it;
+		d.tests.push(test);
 	}
-	return { ...rowToSummary(r), items, domains, composites: await listComposites(id, tx) };
+	return {
+		...toSummary(b, all.length),
+		items: items.map(({ domainName: _name, ...test }) => test),
+		domains,
+		composites: (b.composites ?? []).map(toComposite)
+	};
 }
 
 export async function getBatteryByCode(code: string, tx?: Tx): Promise<BatteryRecord | null> {
-	const r = await selectOne<{ id: number }>('SELECT id FROM batteries WHERE code = :code', { code }, tx);
+	const r = await models().Battery.findOne({ attributes: ['id'], where: { code }, transaction: tx_(tx) });
 	return r ? getBattery(r.id, tx) : null;
+}
+
+/** What the new-protocol form offers: batteries (default norm set, number of tests), norm sets, scorers and reviewers. */
+export async function protocolFormChoices() {
+	const { NormSet } = models();
+	const [batteries, normSets, scorers, reviewers] = await Promise.all([
+		listBatteries(),
+		NormSet.findAll({
+			attributes: ['id', 'name', 'version'],
+			order: [
+				['name', 'ASC'],
+				['version', 'ASC']
+			]
+		}),
+		usersWithRole('scorer'),
+		usersWithRole('reviewer')
+	]);
+	return {
+		batteries: batteries.map((b) => ({ id: b.id, name: b.name, norm_set_id: b.norm_set_id, tests: b.tests })),
+		normSets: normSets.map((s) => ({ id: s.id, name: s.name, version: s.version })),
+		scorers: scorers.map((u) => ({ id: u.id, name: u.name })),
+		reviewers: reviewers.map((u) => ({ id: u.id, name: u.name }))
+	};
 }
 
 function parse(input: unknown): BatteryInput {
@@ -108,10 +200,11 @@ function parse(input: unknown): BatteryInput {
 }
 
 async function checkRefs(b: BatteryInput, tr: Tx) {
-	if (b.norm_set_id !== null && !(await selectOne('SELECT id FROM norm_sets WHERE id = :id', { id: b.norm_set_id }, tr)))
+	const { NormSet, Test } = models();
+	if (b.norm_set_id !== null && !(await NormSet.findByPk(b.norm_set_id, { attributes: ['id'], transaction: tx_(tr) })))
 		throw new ServiceError(400, 'Unknown norm set.', { norm_set_id: 'Choose a norm set from the list' });
 	const known = new Set(
-		(await select<{ code: string }>('SELECT code FROM tests WHERE is_current = 1 AND code IN (:codes)', { codes: b.tests }, tr)).map((r) => r.code)
+		(await Test.findAll({ attributes: ['code'], where: { is_current: true, code: { [Op.in]: b.tests } }, transaction: tx_(tr) })).map((r) => r.code)
 	);
 	const unknown = b.tests.filter((c) => !known.has(c));
 	if (unknown.length) throw new ServiceError(400, 'Unknown tests.', { tests: `Unknown test code${unknown.length > 1 ? 's' : ''}: ${unknown.join(', ')}` });
@@ -124,10 +217,10 @@ async function checkRefs(b: BatteryInput, tr: Tx) {
 async function checkComposites(batteryId: number | null, b: BatteryInput, tr: Tx) {
 	if (!b.composites) return;
 	const codes = new Set<string>();
-	const tests = await select<{ code: string; reported: string }>('SELECT code, reported FROM tests WHERE is_current = 1', {}, tr);
+	const { Composite, Test } = models();
+	const tests = await Test.findAll({ attributes: ['code', 'reported'], where: { is_current: true }, transaction: tx_(tr) });
 	const testCodes = new Map(tests.map((t) => [t.code, t.reported.split(',')]));
-	const { Composite } = models();
-	const taken = await Composite.findAll({ where: { code: b.composites.map((c) => c.code) }, transaction: tr ?? undefined });
+	const taken = await Composite.findAll({ where: { code: b.composites.map((c) => c.code) }, transaction: tx_(tr) });
 	for (const [i, c] of b.composites.entries()) {
 		const key = `composites.${i}`;
 		if (codes.has(c.code)) throw new ServiceError(400, `Composite ${c.code} is defined twice.`, { [key]: `The code ${c.code} appears twice` });
@@ -153,7 +246,7 @@ async function checkComposites(batteryId: number | null, b: BatteryInput, tr: Tx
 async function writeComposites(batteryId: number, b: BatteryInput, tr: Tx) {
 	if (!b.composites) return;
 	const { Composite } = models();
-	await Composite.destroy({ where: { battery_id: batteryId }, transaction: tr ?? undefined });
+	await Composite.destroy({ where: { battery_id: batteryId }, transaction: tx_(tr) });
 	await Composite.bulkCreate(
 		b.composites.map((c, i) => ({
 			battery_id: batteryId,
@@ -165,14 +258,17 @@ async function writeComposites(batteryId: number, b: BatteryInput, tr: Tx) {
 			reported: c.reported.join(','),
 			reliability: c.reliability
 		})),
-		{ transaction: tr ?? undefined }
+		{ transaction: tx_(tr) }
 	);
 }
 
 async function writeTests(id: number, tests: string[], tr: Tx) {
-	await exec('DELETE FROM battery_tests WHERE battery_id = :id', { id }, tr);
-	for (const [i, code] of tests.entries())
-		await exec('INSERT INTO battery_tests (battery_id, test_code, position) VALUES (:id, :code, :pos)', { id, code, pos: i + 1 }, tr);
+	const { BatteryTest } = models();
+	await BatteryTest.destroy({ where: { battery_id: id }, transaction: tx_(tr) });
+	await BatteryTest.bulkCreate(
+		tests.map((code, i) => ({ battery_id: id, test_code: code, position: i + 1 })),
+		{ transaction: tx_(tr) }
+	);
 }
 
 /** Tests are stored in the order given, grouped by domain (a domain's tests stay together, in the order its first test appears). */
@@ -185,27 +281,23 @@ export function groupByDomain(tests: string[], domainOf: (code: string) => strin
 export async function createBattery(input: unknown, actorId: number | null): Promise<BatteryRecord> {
 	const b = parse(input);
 	return transaction(async (tr) => {
-		if (await selectOne('SELECT id FROM batteries WHERE code = :code', { code: b.code }, tr))
+		const { Battery } = models();
+		if (await Battery.findOne({ attributes: ['id'], where: { code: b.code }, transaction: tr }))
 			throw new ServiceError(409, 'A battery with this code already exists.', { code: `The code ${b.code} is taken` }, 'conflict');
 		await checkRefs(b, tr);
 		await checkComposites(null, b, tr);
 		const domainOf = await domainLookup(tr);
-		const r = await exec(
-			'INSERT INTO batteries (code, name, description, norm_set_id) VALUES (:code, :name, :description, :norm_set_id)',
-			{ ...b, description: b.description || null },
-			tr
-		);
-		await writeTests(r.insertId, groupByDomain(b.tests, domainOf), tr);
-		await writeComposites(r.insertId, b, tr);
-		await recordEvent({ actorId, entity: 'battery', entityId: r.insertId, action: 'create', newValue: b }, tr);
-		return (await getBattery(r.insertId, tr))!;
+		const { id } = await Battery.create({ code: b.code, name: b.name, description: b.description || null, norm_set_id: b.norm_set_id }, { transaction: tr });
+		await writeTests(id, groupByDomain(b.tests, domainOf), tr);
+		await writeComposites(id, b, tr);
+		await recordEvent({ actorId, entity: 'battery', entityId: id, action: 'create', newValue: b }, tr);
+		return (await getBattery(id, tr))!;
 	});
 }
 
 async function domainLookup(tr: Tx): Promise<(c: string) => string> {
-	const m = new Map(
-		(await select<{ code: string; domain: string }>('SELECT code, domain FROM tests WHERE is_current = 1', {}, tr)).map((r) => [r.code, r.domain])
-	);
+	const tests = await models().Test.findAll({ attributes: ['code', 'domain'], where: { is_current: true }, transaction: tx_(tr) });
+	const m = new Map(tests.map((r) => [r.code, r.domain]));
 	return (c) => m.get(c) ?? '';
 }
 
@@ -215,16 +307,13 @@ export async function updateBattery(id: number, input: unknown, actorId: number 
 	return transaction(async (tr) => {
 		const old = await getBattery(id, tr);
 		if (!old) throw notFoundError('This battery');
-		if (await selectOne('SELECT id FROM batteries WHERE code = :code AND id <> :id', { code: b.code, id }, tr))
+		const { Battery } = models();
+		if (await Battery.findOne({ attributes: ['id'], where: { code: b.code, id: { [Op.ne]: id } }, transaction: tr }))
 			throw new ServiceError(409, 'A battery with this code already exists.', { code: `The code ${b.code} is taken` }, 'conflict');
 		await checkRefs(b, tr);
 		await checkComposites(id, { ...b, composites: b.composites ?? old.composites }, tr);
 		const domainOf = await domainLookup(tr);
-		await exec(
-			'UPDATE batteries SET code = :code, name = :name, description = :description, norm_set_id = :norm_set_id WHERE id = :id',
-			{ ...b, description: b.description || null, id },
-			tr
-		);
+		await Battery.update({ code: b.code, name: b.name, description: b.description || null, norm_set_id: b.norm_set_id }, { where: { id }, transaction: tr });
 		await writeTests(id, groupByDomain(b.tests, domainOf), tr);
 		await writeComposites(id, b, tr);
 		await recordEvent(

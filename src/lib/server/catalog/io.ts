@@ -3,7 +3,7 @@
  * confirm (the browser's preview is a convenience, never trusted); then every row goes in one
  * transaction, or none does.
  */
-import { select, transaction } from '../db';
+import { transaction } from '../db';
 import { recordEvent } from '../trail';
 import {
 	normEquationsToCsv,
@@ -23,10 +23,10 @@ import { createNormSet, getNormSet, listNormGroups, replaceNormGroups, subjectsO
 import { models } from '../models';
 
 export async function validationContext(): Promise<ValidationContext> {
-	const { Composite } = models();
+	const { Composite, Test, Domain } = models();
 	const [tests, domains, composites] = await Promise.all([
-		select<{ code: string }>('SELECT code FROM tests WHERE is_current = 1'),
-		select<{ code: string }>('SELECT code FROM domains ORDER BY position'),
+		Test.findAll({ attributes: ['code'], where: { is_current: true } }),
+		Domain.findAll({ attributes: ['code'], order: [['position', 'ASC']] }),
 		Composite.findAll({ attributes: ['code'] })
 	]);
 	const subjects = await subjectsOf([...tests.map((t) => t.code), ...composites.map((c) => c.code)], null);
@@ -71,7 +71,7 @@ export async function confirmImport(req: ImportConfirm, actorId: number | null):
 		const tests = rows as (TestInput & { line: number })[];
 		return transaction(async (tr) => {
 			const out: ImportOutcome = { kind: 'tests', rows: tests.length, created: 0, updated: 0, versioned: 0, unchanged: 0 };
-			const existing = new Set((await select<{ code: string }>('SELECT DISTINCT code FROM tests', {}, tr)).map((r) => r.code));
+			const existing = new Set((await models().Test.findAll({ attributes: ['code'], transaction: tr })).map((r) => r.code));
 			for (const { line, ...t } of tests) {
 				try {
 					if (existing.has(t.code)) {

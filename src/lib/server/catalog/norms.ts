@@ -4,12 +4,16 @@
  * the rows named. Groups a protocol was scored with cannot be changed or removed: make a new
  * version of the norm set instead.
  */
-import { db, exec, select, selectOne, transaction, type Tx } from '../db';
+import { Op, fn, col } from 'sequelize';
+import { db, select, transaction, type Tx } from '../db';
 import { recordEvent } from '../trail';
 import { ageRuleOf, normGroupSchema, normSetSchema, type NormGroupInput, type NormSetInput } from '../../catalog/schema';
 import { rangeProblems, groupWords, type RangeRow } from '../../catalog/ranges';
-import { SCALE_BOUNDS, sumSpan, tableProblems, type Coefficients, type CovariateAge, type RawSpan, type TableRowInput } from '../../catalog/norm-forms';
+import { SCALE_BOUNDS, sumSpan, tableProblems, type CovariateAge, type RawSpan, type TableRowInput } from '../../catalog/norm-forms';
+import type { AnyNormEntry } from '../../scoring/norms';
+import type { NormGroupDef, AgeRule } from '../../scoring/age';
 import { models } from '../models';
+import type { NormGroup, NormSet } from '../models/catalog';
 import { ServiceError, notFoundError, parseWith } from '../errors';
 
 export interface AgeRuleJson {
@@ -18,7 +22,8 @@ export interface AgeRuleJson {
 	roundUpFromDay?: number;
 }
 
-export interface NormSetRecord {
+/** A norm set as stored. */
+export interface NormSetBase {
 	id: number;
 	code: string;
 	name: string;
@@ -28,6 +33,10 @@ export interface NormSetRecord {
 	/** How age enters regression norms. */
 	covariate_age: CovariateAge;
 	created_at: string;
+}
+
+/** A norm set with how many groups and tests it has (the catalog screens). */
+export interface NormSetRecord extends NormSetBase {
 	groups: number;
 	tests: number;
 }
@@ -38,51 +47,45 @@ export interface NormGroupRecord extends NormGroupInput {
 }
 export type { TableRowInput };
 
-interface SetRow {
-	id: number;
-	code: string;
-	name: string;
-	source: string;
-	version: string;
-	age_rule: string | AgeRuleJson;
-	covariate_age?: CovariateAge;
-	created_at: Date;
-	groups?: number;
-	tests?: number;
-}
+const tx_ = (tx?: Tx) => tx ?? undefined;
 
-function rowToSet(r: SetRow): NormSetRecord {
+/** The one mapper of a `norm_sets` row. */
+function toNormSet(r: NormSet): NormSetBase {
+	const rule = r.age_rule ?? {};
 	return {
 		id: r.id,
 		code: r.code,
 		name: r.name,
 		source: r.source,
 		version: r.version,
-		age_rule: (typeof r.age_rule === 'string' ? JSON.parse(r.age_rule) : r.age_rule) as AgeRuleJson,
+		age_rule: {
+			borrowDays: rule.borrowDays === 'actual' ? 'actual' : 30,
+			rounding: rule.rounding === 'round_days' ? 'round_days' : 'truncate',
+			...(rule.roundUpFromDay ? { roundUpFromDay: rule.roundUpFromDay } : {})
+		},
 		covariate_age: r.covariate_age ?? 'whole_years',
-		created_at: new Date(r.created_at).toISOString(),
-		groups: Number(r.groups ?? 0),
-		tests: Number(r.tests ?? 0)
+		created_at: new Date(r.created_at).toISOString()
 	};
 }
 
-export function rowToGroup(r: Record<string, unknown>, rows: TableRowInput[] | null = null): NormGroupRecord {
+/** The one mapper of a `norm_groups` row (with its table rows when its form is `table`). */
+export function toGroup(r: NormGroup, rows: TableRowInput[] | null = null): NormGroupRecord {
 	const n = (v: unknown) => (v === null || v === undefined ? null : Number(v));
-	const form = (r.form as NormGroupRecord['form']) ?? 'mean_sd';
+	const form = r.form ?? 'mean_sd';
 	return {
-		id: Number(r.id),
-		norm_set_id: Number(r.norm_set_id),
-		test_code: String(r.test_code),
-		subject: (r.subject as 'test' | 'composite') ?? 'test',
+		id: r.id,
+		norm_set_id: r.norm_set_id,
+		test_code: r.test_code,
+		subject: r.subject ?? 'test',
 		form,
-		scale: (r.scale as NormGroupRecord['scale']) ?? null,
+		scale: r.scale ?? null,
 		intercept: n(r.intercept),
-		coefficients: r.coefficients ? ((typeof r.coefficients === 'string' ? JSON.parse(r.coefficients) : r.coefficients) as Coefficients) : null,
+		coefficients: r.coefficients ?? null,
 		rows: form === 'table' ? (rows ?? []) : null,
-		group_code: String(r.group_code),
+		group_code: r.group_code,
 		age_min_months: Number(r.age_min_months),
 		age_max_months: Number(r.age_max_months),
-		sex: (r.sex as 'F' | 'M' | null) ?? null,
+		sex: r.sex ?? null,
 		edu_min: n(r.edu_min),
 		edu_max: n(r.edu_max),
 		mean: n(r.mean),
@@ -91,7 +94,7 @@ export function rowToGroup(r: Record<string, unknown>, rows: TableRowInput[] | n
 	};
 }
 
-/** The table rows of these groups, by group id, in order. */
+/** The table rows of these groups, by group id, in order (norm group → table rows). */
 export async function tableRowsOf(groupIds: number[], tx?: Tx): Promise<Map<number, TableRowInput[]>> {
 	const out = new Map<number, TableRowInput[]>();
 	if (!groupIds.length) return out;
@@ -102,7 +105,7 @@ export async function tableRowsOf(groupIds: number[], tx?: Tx): Promise<Map<numb
 			['norm_group_id', 'ASC'],
 			['position', 'ASC']
 		],
-		transaction: tx ?? undefined
+		transaction: tx_(tx)
 	});
 	for (const r of rows) {
 		const list = out.get(r.norm_group_id) ?? [];
@@ -112,35 +115,167 @@ export async function tableRowsOf(groupIds: number[], tx?: Tx): Promise<Map<numb
 	return out;
 }
 
-async function withRows(raw: Record<string, unknown>[], tx?: Tx): Promise<NormGroupRecord[]> {
-	const ids = raw.filter((r) => r.form === 'table').map((r) => Number(r.id));
-	const rows = await tableRowsOf(ids, tx);
-	return raw.map((r) => rowToGroup(r, rows.get(Number(r.id)) ?? null));
+/** Map groups with their table rows (read only for the groups whose form is `table`). */
+async function withRows(groups: NormGroup[], tx?: Tx): Promise<NormGroupRecord[]> {
+	const rows = await tableRowsOf(
+		groups.filter((g) => g.form === 'table').map((g) => g.id),
+		tx
+	);
+	return groups.map((g) => toGroup(g, rows.get(g.id) ?? null));
 }
 
-const SET_SELECT = `SELECT s.*, COUNT(g.id) AS \`groups\`, COUNT(DISTINCT g.test_code) AS tests
-	FROM norm_sets s LEFT JOIN norm_groups g ON g.norm_set_id = s.id`;
+/** Groups and tests per norm set (COUNT … GROUP BY). */
+async function setCounts(ids: number[] | null, tx?: Tx): Promise<Map<number, { groups: number; tests: number }>> {
+	const { NormGroup } = models();
+	const rows = (await NormGroup.findAll({
+		attributes: ['norm_set_id', [fn('COUNT', col('id')), 'groups'], [fn('COUNT', fn('DISTINCT', col('test_code'))), 'tests']],
+		where: ids ? { norm_set_id: ids } : {},
+		group: ['norm_set_id'],
+		raw: true,
+		transaction: tx_(tx)
+	})) as unknown as { norm_set_id: number; groups: number; tests: number }[];
+	return new Map(rows.map((r) => [Number(r.norm_set_id), { groups: Number(r.groups), tests: Number(r.tests) }]));
+}
 
 export async function listNormSets(tx?: Tx): Promise<NormSetRecord[]> {
-	return (await select<SetRow>(`${SET_SELECT} GROUP BY s.id ORDER BY s.name, s.version`, {}, tx)).map(rowToSet);
+	const { NormSet } = models();
+	const [sets, counts] = await Promise.all([
+		NormSet.findAll({
+			order: [
+				['name', 'ASC'],
+				['version', 'ASC']
+			],
+			transaction: tx_(tx)
+		}),
+		setCounts(null, tx)
+	]);
+	return sets.map((s) => ({ ...toNormSet(s), groups: counts.get(s.id)?.groups ?? 0, tests: counts.get(s.id)?.tests ?? 0 }));
 }
 
 export async function getNormSet(id: number, tx?: Tx): Promise<NormSetRecord | null> {
-	const r = await selectOne<SetRow>(`${SET_SELECT} WHERE s.id = :id GROUP BY s.id`, { id }, tx);
-	return r ? rowToSet(r) : null;
+	const s = await models().NormSet.findByPk(id, { transaction: tx_(tx) });
+	if (!s) return null;
+	const c = (await setCounts([id], tx)).get(id);
+	return { ...toNormSet(s), groups: c?.groups ?? 0, tests: c?.tests ?? 0 };
+}
+
+/** A norm set as the workflow takes it: the stored set and its age rule for the engine. */
+export async function normSet(id: number, tx?: Tx): Promise<(NormSetBase & { rule: AgeRule }) | null> {
+	const s = await models().NormSet.findByPk(id, { transaction: tx_(tx) });
+	if (!s) return null;
+	const base = toNormSet(s);
+	return { ...base, rule: base.age_rule };
+}
+
+/** The norm sets that norm a test: how many groups each has for it and the ages they cover. */
+export async function normSetsOfTest(code: string): Promise<{ id: number; name: string; version: string; groups: number; min: number; max: number }[]> {
+	const { NormGroup, NormSet } = models();
+	// per norm set: COUNT, MIN, MAX … GROUP BY
+	const spans = (await NormGroup.findAll({
+		attributes: ['norm_set_id', [fn('COUNT', col('id')), 'groups'], [fn('MIN', col('age_min_months')), 'min'], [fn('MAX', col('age_max_months')), 'max']],
+		where: { test_code: code },
+		group: ['norm_set_id'],
+		raw: true
+	})) as unknown as { norm_set_id: number; groups: number; min: number; max: number }[];
+	if (!spans.length) return [];
+	const sets = new Map(
+		(await NormSet.findAll({ attributes: ['id', 'name', 'version'], where: { id: spans.map((x) => x.norm_set_id) } })).map((x) => [x.id, x])
+	);
+	return spans
+		.flatMap((x) => {
+			const set = sets.get(Number(x.norm_set_id));
+			return set ? [{ id: set.id, name: set.name, version: set.version, groups: Number(x.groups), min: Number(x.min), max: Number(x.max) }] : [];
+		})
+		.sort((a, b) => (a.name < b.name ? -1 : a.name > b.name ? 1 : a.id - b.id));
 }
 
 /** Groups of a norm set in test (domain) order, then keys, then age. */
 export async function listNormGroups(normSetId: number, opts: { test?: string } = {}, tx?: Tx): Promise<NormGroupRecord[]> {
-	const rows = await select<Record<string, unknown>>(
-		`SELECT g.* FROM norm_groups g
-		   LEFT JOIN tests t ON t.code = g.test_code AND t.is_current = 1 LEFT JOIN domains d ON d.code = t.domain
-		  WHERE g.norm_set_id = :id ${opts.test ? 'AND g.test_code = :test' : ''}
-		  ORDER BY d.position IS NULL, d.position, g.test_code, g.sex IS NOT NULL, g.sex, g.edu_min IS NOT NULL, g.edu_min, g.age_min_months, g.id`,
-		{ id: normSetId, test: opts.test ?? null },
-		tx
+	const { NormGroup, Test } = models();
+	const groups = await NormGroup.findAll({ where: { norm_set_id: normSetId, ...(opts.test ? { test_code: opts.test } : {}) }, transaction: tx_(tx) });
+	// the domain's position of each group's test (composites and unknown codes last)
+	const tests = await Test.findAll({
+		attributes: ['code', 'domain'],
+		where: { is_current: true, code: [...new Set(groups.map((g) => g.test_code))] },
+		include: [{ association: 'domainInfo', attributes: ['position'] }],
+		transaction: tx_(tx)
+	});
+	const position = new Map(tests.map((t) => [t.code, t.domainInfo?.position ?? null]));
+	const cmp = (a: string | number | null, b: string | number | null) => (a === b ? 0 : a === null ? 1 : b === null ? -1 : a < b ? -1 : 1);
+	groups.sort(
+		(a, b) =>
+			cmp(position.get(a.test_code) ?? null, position.get(b.test_code) ?? null) ||
+			cmp(a.test_code, b.test_code) ||
+			cmp(a.sex, b.sex) ||
+			cmp(a.edu_min === null ? null : Number(a.edu_min), b.edu_min === null ? null : Number(b.edu_min)) ||
+			a.age_min_months - b.age_min_months ||
+			a.id - b.id
 	);
-	return withRows(rows, tx);
+	return withRows(groups, tx);
+}
+
+/** The groups of these tests (or composites) in a norm set, with their form and table rows (the workflow's read). */
+export async function normGroups(normSetId: number, testCodes: string[], tx?: Tx): Promise<NormGroupRecord[]> {
+	if (testCodes.length === 0) return [];
+	const groups = await models().NormGroup.findAll({
+		where: { norm_set_id: normSetId, test_code: { [Op.in]: testCodes } },
+		order: [
+			['test_code', 'ASC'],
+			['age_min_months', 'ASC']
+		],
+		transaction: tx_(tx)
+	});
+	return withRows(groups, tx);
+}
+
+/** A group as the age rules take it (what it covers). */
+export const groupDef = (g: Pick<NormGroupRecord, 'group_code' | 'age_min_months' | 'age_max_months' | 'sex' | 'edu_min' | 'edu_max'>): NormGroupDef => ({
+	id: g.group_code,
+	minMonths: g.age_min_months,
+	maxMonths: g.age_max_months,
+	...(g.sex ? { sex: g.sex } : {}),
+	...(g.edu_min !== null || g.edu_max !== null ? { education: [g.edu_min ?? 0, g.edu_max ?? 99] as const } : {})
+});
+
+/**
+ * A norm entry as the engine takes it (shared/spec/reconcile.md, "Norm forms"; types in
+ * src/lib/scoring/norms.ts): mean/SD, a regression equation or a conversion table; a composite's
+ * entries are keyed by `composite`, its table rows by `sum`.
+ */
+export function normDef(g: NormGroupRecord): AnyNormEntry {
+	const form = g.form ?? 'mean_sd';
+	const pct = (p: string | null | undefined) => (p !== null && p !== undefined && p !== '' ? { percentile: /^\d+$/.test(p) ? Number(p) : p } : {});
+	if (g.subject === 'composite') {
+		if (form === 'table')
+			return {
+				composite: g.test_code,
+				group: g.group_code,
+				form: 'table',
+				scale: g.scale!,
+				rows: (g.rows ?? []).map((r) => ({ sum: [r.lo, r.hi] as const, score: r.score ?? undefined, ...pct(r.percentile) }))
+			};
+		return { composite: g.test_code, group: g.group_code, mean: Number(g.mean), sd: Number(g.sd) };
+	}
+	if (form === 'regression')
+		return {
+			test: g.test_code,
+			group: g.group_code,
+			form: 'regression',
+			intercept: Number(g.intercept),
+			coefficients: (g.coefficients ?? {}) as Record<string, number>,
+			sd: Number(g.sd)
+		};
+	if (form === 'table') {
+		const percentileOnly = g.scale === 'percentile';
+		return {
+			test: g.test_code,
+			group: g.group_code,
+			form: 'table',
+			scale: g.scale!,
+			rows: (g.rows ?? []).map((r) => ({ raw: [r.lo, r.hi] as const, ...(percentileOnly || r.score === null ? {} : { score: r.score }), ...pct(r.percentile) }))
+		};
+	}
+	return { test: g.test_code, group: g.group_code, mean: Number(g.mean), sd: Number(g.sd) };
 }
 
 function parseSet(input: unknown): NormSetInput {
@@ -150,15 +285,15 @@ function parseSet(input: unknown): NormSetInput {
 export async function createNormSet(input: unknown, actorId: number | null, tx?: Tx): Promise<NormSetRecord> {
 	const s = parseSet(input);
 	const run = async (tr: Tx) => {
-		if (await selectOne('SELECT id FROM norm_sets WHERE code = :code AND version = :version', s, tr))
+		const { NormSet } = models();
+		if (await NormSet.findOne({ attributes: ['id'], where: { code: s.code, version: s.version }, transaction: tx_(tr) }))
 			throw new ServiceError(409, 'That norm set version already exists.', { version: `${s.code} version ${s.version} already exists` }, 'conflict');
-		const r = await exec(
-			'INSERT INTO norm_sets (code, name, source, version, age_rule, covariate_age) VALUES (:code, :name, :source, :version, :rule, :covariate_age)',
-			{ ...s, rule: JSON.stringify(ageRuleOf(s)) },
-			tr
+		const r = await NormSet.create(
+			{ code: s.code, name: s.name, source: s.source, version: s.version, age_rule: ageRuleOf(s), covariate_age: s.covariate_age },
+			{ transaction: tx_(tr) }
 		);
-		await recordEvent({ actorId, entity: 'norm_set', entityId: r.insertId, action: 'create', newValue: s }, tr);
-		return (await getNormSet(r.insertId, tr))!;
+		await recordEvent({ actorId, entity: 'norm_set', entityId: r.id, action: 'create', newValue: s }, tr);
+		return (await getNormSet(r.id, tr))!;
 	};
 	return tx ? run(tx) : transaction(run);
 }
@@ -168,12 +303,12 @@ export async function updateNormSet(id: number, input: unknown, actorId: number 
 	const run = async (tr: Tx) => {
 		const old = await getNormSet(id, tr);
 		if (!old) throw notFoundError('This norm set');
-		const clash = await selectOne('SELECT id FROM norm_sets WHERE code = :code AND version = :version AND id <> :id', { ...s, id }, tr);
+		const { NormSet } = models();
+		const clash = await NormSet.findOne({ attributes: ['id'], where: { code: s.code, version: s.version, id: { [Op.ne]: id } }, transaction: tx_(tr) });
 		if (clash) throw new ServiceError(409, 'That norm set version already exists.', { version: `${s.code} version ${s.version} already exists` }, 'conflict');
-		await exec(
-			'UPDATE norm_sets SET code = :code, name = :name, source = :source, version = :version, age_rule = :rule, covariate_age = :covariate_age WHERE id = :id',
-			{ ...s, rule: JSON.stringify(ageRuleOf(s)), id },
-			tr
+		await NormSet.update(
+			{ code: s.code, name: s.name, source: s.source, version: s.version, age_rule: ageRuleOf(s), covariate_age: s.covariate_age },
+			{ where: { id }, transaction: tx_(tr) }
 		);
 		await recordEvent({ actorId, entity: 'norm_set', entityId: id, action: 'update', oldValue: old, newValue: s }, tr);
 		return (await getNormSet(id, tr))!;
@@ -193,7 +328,7 @@ export async function updateNormSetWithGroups(
 	actorId: number | null
 ): Promise<{ normSet: NormSetRecord; groups: NormGroupRecord[] }> {
 	return transaction(async (tr) => {
-		const current = await selectOne<{ id: number }>('SELECT id FROM norm_sets WHERE id = :id FOR UPDATE', { id }, tr);
+		const current = await models().NormSet.findByPk(id, { attributes: ['id'], lock: true, transaction: tr });
 		if (!current) throw notFoundError('This norm set');
 		if (Object.keys(meta).length) {
 			const now = (await getNormSet(id, tr))!;
@@ -241,7 +376,8 @@ export function assertRanges(rows: RangeRow[]): void {
 
 async function groupsInUse(ids: number[], tr: Tx): Promise<number> {
 	if (!ids.length) return 0;
-	const r = await selectOne<{ n: number }>(
+	// an aggregate over the protocol side's tables
+	const [r] = await select<{ n: number }>(
 		`SELECT COUNT(DISTINCT protocol_id) AS n FROM (SELECT protocol_id FROM protocol_tests WHERE norm_group_id IN (:ids)
 		   UNION SELECT protocol_id FROM protocol_composites WHERE norm_group_id IN (:ids)) u`,
 		{ ids },
@@ -267,13 +403,13 @@ const DEFAULT_BOUNDS: Record<string, [number, number]> = { ...SCALE_BOUNDS, perc
 export async function subjectsOf(codes: string[], tr: Tx): Promise<Map<string, Subject>> {
 	const out = new Map<string, Subject>();
 	if (!codes.length) return out;
-	const tests = await select<{ code: string; raw_min: number; raw_max: number; raw_decimals: number; bounds: unknown; reported: string }>(
-		'SELECT code, raw_min, raw_max, raw_decimals, bounds, reported FROM tests WHERE is_current = 1',
-		{},
-		tr
-	);
+	const tests = await models().Test.findAll({
+		attributes: ['code', 'raw_min', 'raw_max', 'raw_decimals', 'bounds', 'reported'],
+		where: { is_current: true },
+		transaction: tx_(tr)
+	});
 	const byCode = new Map(tests.map((t) => [t.code, t]));
-	const boundsOf = (b: unknown) => (b ? (typeof b === 'string' ? JSON.parse(b) : b) : null) as Record<string, [number, number]> | null;
+	const boundsOf = (b: unknown) => (b ?? null) as Record<string, [number, number]> | null;
 	for (const t of tests) {
 		if (!codes.includes(t.code)) continue;
 		out.set(t.code, {
@@ -342,7 +478,7 @@ function formColumns(g: NormGroupInput) {
 		...g,
 		scale: g.form === 'table' ? g.scale : null,
 		intercept: g.form === 'regression' ? g.intercept : null,
-		coefficients: g.form === 'regression' && g.coefficients ? JSON.stringify(g.coefficients) : null,
+		coefficients: g.form === 'regression' && g.coefficients ? g.coefficients : null,
 		mean: g.form === 'mean_sd' ? g.mean : null,
 		sd: g.form === 'table' ? null : g.sd
 	};
@@ -366,21 +502,17 @@ async function writeRows(groupId: number, g: NormGroupInput, tr: Tx): Promise<vo
 
 /** Insert one group and its table rows. */
 async function insertGroup(normSetId: number, g: NormGroupInput, tr: Tx): Promise<number> {
-	const r = await exec(
-		`INSERT INTO norm_groups (norm_set_id, subject, test_code, group_code, age_min_months, age_max_months, sex, edu_min, edu_max, form, scale, intercept, coefficients, mean, sd, n)
-		 VALUES (:ns, :subject, :test_code, :group_code, :age_min_months, :age_max_months, :sex, :edu_min, :edu_max, :form, :scale, :intercept, :coefficients, :mean, :sd, :n)`,
-		{ ns: normSetId, ...formColumns(g) },
-		tr
-	);
-	await writeRows(r.insertId, g, tr);
-	return r.insertId;
+	const { rows: _rows, ...columns } = formColumns(g);
+	const r = await models().NormGroup.create({ norm_set_id: normSetId, ...columns }, { transaction: tx_(tr) });
+	await writeRows(r.id, g, tr);
+	return r.id;
 }
 
 /** Add one group; the test's groups with the same keys must stay contiguous. */
 export async function addNormGroup(normSetId: number, input: unknown, actorId: number | null): Promise<NormGroupRecord> {
 	const g = parseGroup(input);
 	return transaction(async (tr) => {
-		if (!(await selectOne('SELECT id FROM norm_sets WHERE id = :id FOR UPDATE', { id: normSetId }, tr))) throw notFoundError('This norm set');
+		if (!(await models().NormSet.findByPk(normSetId, { attributes: ['id'], lock: true, transaction: tr }))) throw notFoundError('This norm set');
 		const [checked] = await checkForms([g], tr);
 		const existing = await listNormGroups(normSetId, { test: g.test_code }, tr);
 		assertRanges([...existing.map((e) => ({ ...e, label: label(e) })), { ...checked, label: `the new group (${groupWords(checked)})` }]);
@@ -390,10 +522,10 @@ export async function addNormGroup(normSetId: number, input: unknown, actorId: n
 	});
 }
 
-export async function updateNormGroup(groupId: number, input: unknown, actorId: number | null): Promise<NormGroupRecord> {
-	const g = parseGroup(input);
+/** Change one group (saveNormGroup's path for a group that exists). */
+async function updateNormGroup(groupId: number, g: NormGroupInput, actorId: number | null): Promise<NormGroupRecord> {
 	return transaction(async (tr) => {
-		const row = await selectOne<Record<string, unknown>>('SELECT * FROM norm_groups WHERE id = :id FOR UPDATE', { id: groupId }, tr);
+		const row = await models().NormGroup.findByPk(groupId, { lock: true, transaction: tr });
 		if (!row) throw notFoundError('This norm group');
 		const old = (await withRows([row], tr))[0];
 		if (old.test_code !== g.test_code)
@@ -409,14 +541,9 @@ export async function updateNormGroup(groupId: number, input: unknown, actorId: 
 			);
 		const others = (await listNormGroups(old.norm_set_id, { test: g.test_code }, tr)).filter((e) => e.id !== groupId);
 		assertRanges([...others.map((e) => ({ ...e, label: label(e) })), { ...g, label: `the changed group (${groupWords(g)})` }]);
-		await exec(
-			`UPDATE norm_groups SET group_code = :group_code, age_min_months = :age_min_months, age_max_months = :age_max_months, sex = :sex,
-			        edu_min = :edu_min, edu_max = :edu_max, form = :form, scale = :scale, intercept = :intercept, coefficients = :coefficients,
-			        mean = :mean, sd = :sd, n = :n WHERE id = :id`,
-			{ ...formColumns(checked), id: groupId },
-			tr
-		);
-		await exec('DELETE FROM norm_table_rows WHERE norm_group_id = :id', { id: groupId }, tr);
+		const { rows: _rows, subject: _subject, test_code: _test, ...columns } = formColumns(checked);
+		await row.update(columns, { transaction: tr });
+		await models().NormTableRow.destroy({ where: { norm_group_id: groupId }, transaction: tr });
 		await writeRows(groupId, checked, tr);
 		await recordEvent({ actorId, entity: 'norm_group', entityId: groupId, action: 'update', oldValue: old, newValue: checked }, tr);
 		return { id: groupId, norm_set_id: old.norm_set_id, ...checked };
@@ -426,7 +553,7 @@ export async function updateNormGroup(groupId: number, input: unknown, actorId: 
 /** Remove a group. Only the youngest or oldest of a run may go (removing one inside would leave a gap). */
 export async function deleteNormGroup(groupId: number, actorId: number | null): Promise<void> {
 	await transaction(async (tr) => {
-		const row = await selectOne<Record<string, unknown>>('SELECT * FROM norm_groups WHERE id = :id FOR UPDATE', { id: groupId }, tr);
+		const row = await models().NormGroup.findByPk(groupId, { lock: true, transaction: tr });
 		if (!row) throw notFoundError('This norm group');
 		const old = (await withRows([row], tr))[0];
 		const used = await groupsInUse([groupId], tr);
@@ -434,7 +561,7 @@ export async function deleteNormGroup(groupId: number, actorId: number | null): 
 			throw new ServiceError(409, `The group for ${groupWords(old)} of ${old.test_code} was used by ${used} protocol(s) and cannot be removed.`, {}, 'in_use');
 		const others = (await listNormGroups(old.norm_set_id, { test: old.test_code }, tr)).filter((e) => e.id !== groupId);
 		assertRanges(others.map((e) => ({ ...e, label: label(e) })));
-		await exec('DELETE FROM norm_groups WHERE id = :id', { id: groupId }, tr);
+		await row.destroy({ transaction: tr });
 		await recordEvent({ actorId, entity: 'norm_group', entityId: groupId, action: 'delete', oldValue: old }, tr);
 	});
 }
@@ -455,7 +582,9 @@ export async function replaceNormGroups(
 	const tests = [...new Set(groups.map((g) => g.test_code))];
 	let removed = 0;
 	if (tests.length) {
-		const old = await select<{ id: number }>('SELECT id FROM norm_groups WHERE norm_set_id = :ns AND test_code IN (:tests)', { ns: normSetId, tests }, tr);
+		const { NormGroup } = models();
+		const where = { norm_set_id: normSetId, test_code: { [Op.in]: tests } };
+		const old = await NormGroup.findAll({ attributes: ['id'], where, transaction: tx_(tr) });
 		const used = await groupsInUse(
 			old.map((o) => o.id),
 			tr
@@ -467,10 +596,11 @@ export async function replaceNormGroups(
 				{},
 				'in_use'
 			);
-		if (old.length) removed = (await exec('DELETE FROM norm_groups WHERE norm_set_id = :ns AND test_code IN (:tests)', { ns: normSetId, tests }, tr)).affected;
+		if (old.length) removed = await NormGroup.destroy({ where, transaction: tx_(tr) });
 	}
 	const esc = (v: unknown) => db().escape(v as string);
-	// Plain mean/SD groups go in as multi-row INSERTs (large imports); tables and equations one by one with their rows.
+	// Plain mean/SD groups go in as hand-built multi-row INSERTs (imports of up to 200,000 groups, several
+	// times faster than bulkCreate's instances); tables and equations one by one with their rows.
 	const plain = groups.filter((g) => (g.form ?? 'mean_sd') === 'mean_sd');
 	for (let i = 0; i < plain.length; i += 1000) {
 		const values = plain
@@ -496,10 +626,9 @@ export async function replaceNormGroups(
  */
 export async function saveNormGroup(normSetId: number, input: unknown, actorId: number | null): Promise<NormGroupRecord> {
 	const g = parseGroup(input);
-	const existing = await selectOne<{ id: number }>('SELECT id FROM norm_groups WHERE norm_set_id = :ns AND test_code = :test AND group_code = :group', {
-		ns: normSetId,
-		test: g.test_code,
-		group: g.group_code
+	const existing = await models().NormGroup.findOne({
+		attributes: ['id'],
+		where: { norm_set_id: normSetId, test_code: g.test_code, group_code: g.group_code }
 	});
 	return existing ? updateNormGroup(existing.id, g, actorId) : addNormGroup(normSetId, g, actorId);
 }

@@ -3,9 +3,15 @@
  * scored with makes a new version (the old one stays, no longer current); any other change is made
  * in place. Name, unit, domain and notes never make a version.
  */
-import { exec, select, selectOne, transaction, type Tx } from '../db';
+import { Op } from 'sequelize';
+import { select, transaction, type Tx } from '../db';
 import { recordEvent } from '../trail';
 import { canonicalReported, testInputSchema, type Bounds, type Derived, type TestInput } from '../../catalog/schema';
+import { models } from '../models';
+import type { Test } from '../models/catalog';
+import type { TestDef } from '../../scoring/reconcile';
+import { groupCoverage } from '../../scoring/age';
+import { groupDef, normSetsOfTest } from './norms';
 import { ServiceError, notFoundError, parseWith } from '../errors';
 
 export interface TestRecord extends TestInput {
@@ -15,26 +21,13 @@ export interface TestRecord extends TestInput {
 	created_at: string;
 }
 
-interface TestRow {
-	id: number;
-	code: string;
-	version: number;
-	is_current: number;
-	name: string;
-	domain: string;
-	unit: string;
-	direction: 'higher_better' | 'lower_better';
-	raw_min: number;
-	raw_max: number;
-	raw_decimals: number;
-	reported: string;
-	bounds: string | Bounds | null;
-	reliability: number | null;
-	notes: string | null;
-	created_at: Date;
+/** A test as the workflow takes it: the record and its domain's name. */
+export interface CatalogTest extends TestRecord {
+	domainName: string;
 }
 
-export function rowToTest(r: TestRow): TestRecord {
+/** The one mapper of a `tests` row, for the catalog screens and the protocol workflow alike. */
+export function toTest(r: Test): TestRecord {
 	return {
 		id: r.id,
 		code: r.code,
@@ -45,50 +38,129 @@ export function rowToTest(r: TestRow): TestRecord {
 		unit: r.unit,
 		direction: r.direction,
 		raw: { min: Number(r.raw_min), max: Number(r.raw_max), decimals: Number(r.raw_decimals) },
-		reported: canonicalReported(r.reported.split(',')),
-		bounds: r.bounds ? ((typeof r.bounds === 'string' ? JSON.parse(r.bounds) : r.bounds) as Bounds) : null,
+		reported: canonicalReported(r.reported.split(',').map((f) => f.trim())),
+		bounds: (r.bounds as Bounds | null) ?? null,
 		reliability: r.reliability === null ? null : Number(r.reliability),
 		notes: r.notes,
 		created_at: new Date(r.created_at).toISOString()
 	};
 }
 
-const ORDER = 'ORDER BY d.position, t.domain, t.code';
+export const toCatalogTest = (r: Test): CatalogTest => ({ ...toTest(r), domainName: r.domainInfo?.name ?? r.domain });
+
+/** What the engine takes of a test (shared/spec/reconcile.md). */
+export const engineTest = (t: CatalogTest): TestDef => ({ id: t.code, direction: t.direction, raw: t.raw, reported: t.reported, bounds: t.bounds });
+
+const tx_ = (tx?: Tx) => tx ?? undefined;
+/** Tests in domain order (the domain's position, then its code), then by code. */
+const withDomain = () => ({ association: 'domainInfo', required: true });
+const DOMAIN_ORDER = [['domainInfo', 'position', 'ASC'] as const, ['domain', 'ASC'] as const, ['code', 'ASC'] as const];
 
 /** Current versions of all tests, in domain order. */
 export async function listTests(opts: { domain?: string } = {}, tx?: Tx): Promise<TestRecord[]> {
-	const rows = await select<TestRow>(
-		`SELECT t.* FROM tests t JOIN domains d ON d.code = t.domain WHERE t.is_current = 1 ${opts.domain ? 'AND t.domain = :domain' : ''} ${ORDER}`,
-		{ domain: opts.domain ?? null },
-		tx
-	);
-	return rows.map(rowToTest);
+	const { Test } = models();
+	const rows = await Test.findAll({
+		where: { is_current: true, ...(opts.domain ? { domain: opts.domain } : {}) },
+		include: [withDomain()],
+		order: DOMAIN_ORDER as never,
+		transaction: tx_(tx)
+	});
+	return rows.map(toTest);
 }
 
 export async function getTest(code: string, tx?: Tx): Promise<TestRecord | null> {
-	const r = await selectOne<TestRow>('SELECT * FROM tests WHERE code = :code AND is_current = 1', { code }, tx);
-	return r ? rowToTest(r) : null;
+	const r = await models().Test.findOne({ where: { code, is_current: true }, transaction: tx_(tx) });
+	return r ? toTest(r) : null;
 }
 
 export async function getTestVersion(id: number, tx?: Tx): Promise<TestRecord | null> {
-	const r = await selectOne<TestRow>('SELECT * FROM tests WHERE id = :id', { id }, tx);
-	return r ? rowToTest(r) : null;
+	const r = await models().Test.findByPk(id, { transaction: tx_(tx) });
+	return r ? toTest(r) : null;
 }
 
 /** Every version of a test, newest first, with how many protocols use each. */
 export async function testVersions(code: string): Promise<(TestRecord & { protocols: number; verified: number })[]> {
-	const rows = await select<TestRow & { protocols: number; verified: number }>(
-		`SELECT t.*, COUNT(DISTINCT pt.protocol_id) AS protocols,
-		        COUNT(DISTINCT CASE WHEN p.status = 'verified' THEN p.id END) AS verified
-		   FROM tests t LEFT JOIN protocol_tests pt ON pt.test_id = t.id LEFT JOIN protocols p ON p.id = pt.protocol_id
-		  WHERE t.code = :code GROUP BY t.id ORDER BY t.version DESC`,
-		{ code }
+	const versions = await models().Test.findAll({ where: { code }, order: [['version', 'DESC']] });
+	if (!versions.length) return [];
+	// an aggregate over the protocol side's tables: counted by the database
+	const counts = await select<{ test_id: number; protocols: number; verified: number }>(
+		`SELECT pt.test_id, COUNT(DISTINCT pt.protocol_id) AS protocols, COUNT(DISTINCT CASE WHEN p.status = 'verified' THEN p.id END) AS verified
+		   FROM protocol_tests pt JOIN protocols p ON p.id = pt.protocol_id WHERE pt.test_id IN (:ids) GROUP BY pt.test_id`,
+		{ ids: versions.map((v) => v.id) }
 	);
-	return rows.map((r) => ({ ...rowToTest(r), protocols: Number(r.protocols), verified: Number(r.verified) }));
+	const byId = new Map(counts.map((c) => [Number(c.test_id), c]));
+	return versions.map((v) => ({ ...toTest(v), protocols: Number(byId.get(v.id)?.protocols ?? 0), verified: Number(byId.get(v.id)?.verified ?? 0) }));
+}
+
+/** The battery's tests at their current versions, in administration order (battery → battery_tests → tests). */
+export async function batteryTests(batteryId: number, tx?: Tx): Promise<CatalogTest[]> {
+	const { BatteryTest } = models();
+	const items = await BatteryTest.findAll({
+		where: { battery_id: batteryId },
+		include: [{ association: 'test', required: true, where: { is_current: true }, include: [withDomain()] }],
+		order: [['position', 'ASC']],
+		transaction: tx_(tx)
+	});
+	return items.map((i) => toCatalogTest(i.test!));
+}
+
+export interface ProtocolTest extends CatalogTest {
+	position: number;
+	groupId: number | null;
+	groupCode: string | null;
+	/** What the group covers, for people ("ages 30;0–39;11, 13+ years of education"). */
+	groupText: string;
+	overrideReason: string | null;
+	normForm: string;
+	normScale: string | null;
+}
+
+/** The tests a protocol was created with (frozen versions), in order, with the norm group chosen. */
+export async function protocolTests(protocolId: number, tx?: Tx): Promise<ProtocolTest[]> {
+	// protocol_tests is the protocol side's table (its model comes with the protocol models)
+	const frozen = await select<{ test_id: number; position: number; norm_group_id: number | null; override_reason: string | null }>(
+		'SELECT test_id, position, norm_group_id, override_reason FROM protocol_tests WHERE protocol_id = :protocolId ORDER BY position',
+		{ protocolId },
+		tx
+	);
+	if (!frozen.length) return [];
+	const { Test, NormGroup } = models();
+	const groupIds = frozen.map((f) => f.norm_group_id).filter((x): x is number => x !== null);
+	const [tests, groups] = await Promise.all([
+		Test.findAll({ where: { id: { [Op.in]: frozen.map((f) => f.test_id) } }, include: [withDomain()], transaction: tx_(tx) }),
+		groupIds.length ? NormGroup.findAll({ where: { id: { [Op.in]: groupIds } }, transaction: tx_(tx) }) : Promise.resolve([])
+	]);
+	const testById = new Map(tests.map((t) => [t.id, t]));
+	const groupById = new Map(groups.map((g) => [g.id, g]));
+	return frozen.flatMap((f) => {
+		const t = testById.get(f.test_id);
+		if (!t) return [];
+		const g = f.norm_group_id === null ? undefined : groupById.get(f.norm_group_id);
+		return [
+			{
+				...toCatalogTest(t),
+				position: f.position,
+				groupId: f.norm_group_id,
+				groupCode: g?.group_code ?? null,
+				groupText: g ? groupCoverage(groupDef(g)) : '—',
+				overrideReason: f.override_reason,
+				normForm: g?.form ?? 'mean_sd',
+				normScale: g?.scale ?? null
+			}
+		];
+	});
+}
+
+/** The test's page: its current version, every version with its use, the domains, the norm sets that norm it. */
+export async function testDetail(code: string) {
+	const test = await getTest(code);
+	if (!test) return null;
+	const [versions, domains, norms] = await Promise.all([testVersions(test.code), listDomains(), normSetsOfTest(test.code)]);
+	return { test, versions, domains, norms };
 }
 
 export async function domainExists(code: string, tx?: Tx): Promise<boolean> {
-	return !!(await selectOne('SELECT code FROM domains WHERE code = :code', { code }, tx));
+	return !!(await models().Domain.findByPk(code, { attributes: ['code'], transaction: tx_(tx) }));
 }
 
 export interface DomainRecord {
@@ -99,20 +171,28 @@ export interface DomainRecord {
 }
 
 export async function listDomains(tx?: Tx): Promise<DomainRecord[]> {
-	const rows = await select<DomainRecord>(
-		`SELECT d.code, d.name, d.position, COUNT(t.id) AS tests FROM domains d
-		   LEFT JOIN tests t ON t.domain = d.code AND t.is_current = 1 GROUP BY d.code ORDER BY d.position, d.code`,
-		{},
-		tx
-	);
-	return rows.map((r) => ({ ...r, tests: Number(r.tests) }));
+	const { Domain, Test } = models();
+	const [domains, counts] = await Promise.all([
+		Domain.findAll({
+			order: [
+				['position', 'ASC'],
+				['code', 'ASC']
+			],
+			transaction: tx_(tx)
+		}),
+		// current tests per domain (COUNT … GROUP BY)
+		Test.count({ where: { is_current: true }, group: ['domain'], transaction: tx_(tx) })
+	]);
+	const n = new Map(counts.map((c) => [String(c.domain), Number(c.count)]));
+	return domains.map((d) => ({ code: d.code, name: d.name, position: d.position, tests: n.get(d.code) ?? 0 }));
 }
 
 export async function createDomain(input: { code: string; name: string }, actorId: number | null): Promise<void> {
 	if (await domainExists(input.code))
 		throw new ServiceError(409, 'That domain already exists.', { code: `The domain ${input.code} already exists` }, 'conflict');
-	const pos = await selectOne<{ p: number | null }>('SELECT MAX(position) AS p FROM domains');
-	await exec('INSERT INTO domains (code, name, position) VALUES (:code, :name, :pos)', { ...input, pos: Number(pos?.p ?? 0) + 10 });
+	const { Domain } = models();
+	const last = Number((await Domain.max('position')) ?? 0);
+	await Domain.create({ code: input.code, name: input.name, position: last + 10 });
 	await recordEvent({ actorId, entity: 'domain', entityId: input.code, action: 'create', newValue: input });
 }
 
@@ -136,31 +216,26 @@ export function scoreChanges(a: TestInput, b: TestInput): string[] {
 	return out;
 }
 
-function params(t: TestInput) {
+/** The columns of a test as stored. */
+function columns(t: TestInput) {
 	return {
 		code: t.code,
 		name: t.name,
 		domain: t.domain,
 		unit: t.unit,
 		direction: t.direction,
-		min: t.raw.min,
-		max: t.raw.max,
-		dec: t.raw.decimals,
+		raw_min: t.raw.min,
+		raw_max: t.raw.max,
+		raw_decimals: t.raw.decimals,
 		reported: canonicalReported(t.reported).join(','),
-		bounds: t.bounds && Object.keys(t.bounds).length ? JSON.stringify(t.bounds) : null,
+		bounds: t.bounds && Object.keys(t.bounds).length ? t.bounds : null,
 		reliability: t.reliability ?? null,
 		notes: t.notes ?? null
 	};
 }
 
 async function insertVersion(t: TestInput, version: number, tx: Tx): Promise<number> {
-	const r = await exec(
-		`INSERT INTO tests (code, version, is_current, name, domain, unit, direction, raw_min, raw_max, raw_decimals, reported, bounds, reliability, notes)
-		 VALUES (:code, :version, 1, :name, :domain, :unit, :direction, :min, :max, :dec, :reported, :bounds, :reliability, :notes)`,
-		{ ...params(t), version },
-		tx
-	);
-	return r.insertId;
+	return (await models().Test.create({ ...columns(t), version, is_current: true }, { transaction: tx_(tx) })).id;
 }
 
 function parseInput(input: unknown): TestInput {
@@ -171,7 +246,7 @@ export async function createTest(input: unknown, actorId: number | null, tx?: Tx
 	const t = parseInput(input);
 	const run = async (tr: Tx) => {
 		if (!(await domainExists(t.domain, tr))) throw new ServiceError(400, 'Unknown domain.', { domain: `Unknown domain ${t.domain}` });
-		if (await selectOne('SELECT id FROM tests WHERE code = :code LIMIT 1', { code: t.code }, tr))
+		if (await models().Test.findOne({ attributes: ['id'], where: { code: t.code }, transaction: tx_(tr) }))
 			throw new ServiceError(409, 'A test with this code already exists.', { code: `The code ${t.code} is taken` }, 'conflict');
 		const id = await insertVersion(t, 1, tr);
 		await recordEvent({ actorId, entity: 'test', entityId: t.code, action: 'create', newValue: { ...t, version: 1 } }, tr);
@@ -196,23 +271,27 @@ export async function updateTest(code: string, input: unknown, actorId: number |
 	const t = parseInput(input);
 	if (t.code !== code) throw new ServiceError(400, 'The code of a test cannot change.', { code: 'A test keeps its code; create a new test instead' });
 	const run = async (tr: Tx): Promise<UpdateOutcome> => {
-		const row = await selectOne<TestRow>('SELECT * FROM tests WHERE code = :code AND is_current = 1 FOR UPDATE', { code }, tr);
+		const { Test } = models();
+		const row = await Test.findOne({ where: { code, is_current: true }, lock: true, transaction: tx_(tr) });
 		if (!row) throw notFoundError(`The test ${code}`);
-		const old = rowToTest(row);
+		const old = toTest(row);
 		if (!(await domainExists(t.domain, tr))) throw new ServiceError(400, 'Unknown domain.', { domain: `Unknown domain ${t.domain}` });
 		const changed = scoreChanges(old, t);
 		const other = (['name', 'domain', 'unit', 'notes'] as const).filter((k) => (old[k] ?? null) !== (t[k] ?? null));
 		if (!changed.length && !other.length) return { test: old, outcome: 'unchanged', changed: [] };
+		// an existence check on the protocol side's tables
 		const used = changed.length
-			? await selectOne(
-					`SELECT 1 AS x FROM protocol_tests pt JOIN protocols p ON p.id = pt.protocol_id
-					  WHERE pt.test_id = :id AND p.status = 'verified' LIMIT 1`,
-					{ id: old.id },
-					tr
-				)
-			: null;
+			? (
+					await select(
+						`SELECT 1 AS x FROM protocol_tests pt JOIN protocols p ON p.id = pt.protocol_id
+						  WHERE pt.test_id = :id AND p.status = 'verified' LIMIT 1`,
+						{ id: old.id },
+						tr
+					)
+				).length > 0
+			: false;
 		if (used) {
-			await exec('UPDATE tests SET is_current = 0 WHERE id = :id', { id: old.id }, tr);
+			await row.update({ is_current: false }, { transaction: tx_(tr) });
 			const id = await insertVersion(t, old.version + 1, tr);
 			await recordEvent(
 				{
@@ -228,14 +307,7 @@ export async function updateTest(code: string, input: unknown, actorId: number |
 			);
 			return { test: (await getTestVersion(id, tr))!, outcome: 'version', changed: [...changed, ...other] };
 		}
-		const p = params(t);
-		await exec(
-			`UPDATE tests SET name = :name, domain = :domain, unit = :unit, direction = :direction, raw_min = :min, raw_max = :max,
-			        raw_decimals = :dec, reported = :reported, bounds = :bounds, reliability = :reliability, notes = :notes
-			  WHERE id = :id`,
-			{ ...p, id: old.id },
-			tr
-		);
+		await row.update(columns(t), { transaction: tx_(tr) });
 		await recordEvent({ actorId, entity: 'test', entityId: code, action: 'update', oldValue: old, newValue: t }, tr);
 		return { test: (await getTestVersion(old.id, tr))!, outcome: 'updated', changed: [...changed, ...other] };
 	};

@@ -22,6 +22,7 @@
  */
 import { exec, select, selectOne, type Tx } from '../db';
 import { config } from '../config';
+import { models } from '../models';
 import { enqueueMail } from './outbox';
 import { afterDelivery, renderers, type DeliveryResult, type MailJob, type RenderedMail } from './deliver';
 import { esc, layout, button } from './templates';
@@ -57,7 +58,7 @@ export async function reviewMailSettings(t?: Tx): Promise<ReviewMailSettings> {
 		escalateAfterReminders: config.escalateAfterReminders,
 		detail: validDetail(config.mailDetail) ? config.mailDetail : 'full'
 	};
-	const row = await selectOne<{ value: unknown }>('SELECT value FROM settings WHERE name = :name', { name: REVIEW_MAIL_SETTING }, t);
+	const row = await models().Setting.findByPk(REVIEW_MAIL_SETTING, { transaction: t ?? undefined });
 	if (!row) return defaults;
 	try {
 		const v = json<Partial<ReviewMailSettings>>(row.value);
@@ -85,11 +86,7 @@ export async function saveReviewMailSettings(input: Omit<ReviewMailSettings, 'de
 	if (!validInterval(s.reminderIntervalMinutes)) throw new Error('reminderIntervalMinutes must be above 0 and at most 90 days');
 	if (!validCount(s.escalateAfterReminders)) throw new Error('escalateAfterReminders must be a whole number from 0 to 1000');
 	if (!validDetail(s.detail)) throw new Error('detail must be "full" or "counts"');
-	await exec(
-		`INSERT INTO settings (name, value) VALUES (:name, :value) ON DUPLICATE KEY UPDATE value = VALUES(value)`,
-		{ name: REVIEW_MAIL_SETTING, value: JSON.stringify(s) },
-		t
-	);
+	await models().Setting.upsert({ name: REVIEW_MAIL_SETTING, value: s }, { transaction: t ?? undefined });
 }
 
 // ---------------------------------------------------------------------------------------------

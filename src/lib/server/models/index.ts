@@ -1,13 +1,15 @@
 /**
  * Sequelize models of the tables born with issue 14 (norm tables, composites, a protocol's frozen
- * composites). Older tables are read with the SQL helpers in ../db; new tables are born on models.
- * `models()` initialises them once against the shared connection (lazy, so importing is free).
+ * composites); the catalog's (./catalog.ts) and the accounts' and settings' (./people.ts) are bound
+ * here too. `models()` initialises them once against the shared connection (lazy, so importing is free).
  */
 import { DataTypes, Model, type CreationOptional, type InferAttributes, type InferCreationAttributes } from 'sequelize';
 import { db } from '../db';
 import { initAuditStatsModels } from './audit-stats';
 import { amendments } from './amendment';
 import { initProtocolModels, PROTOCOL_MODELS } from './protocol';
+import { catalogModels, initCatalogModels } from './catalog';
+import { peopleModels, initPeopleModels } from './people';
 
 /** One row of a conversion table: a raw (or sum) range and what the manual gives for it. */
 export class NormTableRow extends Model<InferAttributes<NormTableRow>, InferCreationAttributes<NormTableRow>> {
@@ -125,7 +127,9 @@ export function models() {
 		);
 		initAuditStatsModels(sequelize);
 		initProtocolModels(sequelize, { ProtocolComposite, Amendment: amendments() });
+		initCatalogModels(sequelize, { NormTableRow, Composite });
+		initPeopleModels(sequelize);
 		bound = sequelize;
 	}
-	return { NormTableRow, Composite, ProtocolComposite, ...PROTOCOL_MODELS };
+	return { NormTableRow, Composite, ProtocolComposite, ...PROTOCOL_MODELS, ...catalogModels, ...peopleModels };
 }

@@ -53,11 +53,12 @@ export class VerificationProtocol extends Model<InferAttributes<VerificationProt
 	declare policy: CreationOptional<Record<string, unknown> | null>;
 }
 
-let ready = false;
+/** The connection the models were last initialised on (closeDb() makes a new one). */
+let bound: ReturnType<typeof db> | null = null;
 
 export function verificationModels() {
-	if (!ready) {
-		const sequelize = db();
+	const sequelize = db();
+	if (bound !== sequelize) {
 		VerificationPolicy.init(
 			{
 				battery_id: { type: DataTypes.INTEGER.UNSIGNED, primaryKey: true },
@@ -130,7 +131,7 @@ export function verificationModels() {
 			},
 			{ sequelize, tableName: 'verification_protocols', timestamps: false }
 		);
-		ready = true;
+		bound = sequelize;
 	}
 	return { VerificationPolicy, VerificationScorer, VerificationProtocol };
 }

@@ -15,7 +15,7 @@ import { recordEvent } from '../trail';
 import { models } from '../models';
 import { dbNow, saveLocked, type Protocol } from '../models/protocol';
 import { protocolFor, type Actor } from './service';
-import { protocolTests } from './catalog-read';
+import { protocolTests } from '../catalog';
 import { carryPasses, finalScores } from './decisions';
 import { referencesForRaw, kindAgainst } from './evidence';
 import { conflict, invalid, notFound, parseFirst, ServiceError } from '../errors';

@@ -10,7 +10,7 @@ import { models } from '../models';
 import { dbNow, inTx, reading, saveLocked, type DiscrepancyRow } from '../models/protocol';
 import { recordEvent } from '../trail';
 import { protocolFor, type Actor } from './service';
-import { protocolTests, protocolComposites, normGroups } from './catalog-read';
+import { protocolTests, protocolComposites, normGroups } from '../catalog';
 import type { TableRowInput } from '../catalog/norms';
 import { isBand, normalizePercentile, parsePercentile } from '../../catalog/norm-forms';
 import { conflict, invalid, notFound, parseFirst, ServiceError } from '../errors';

@@ -21,7 +21,7 @@ import { jsonValue, type Tx } from '../db';
 import { models } from '../models';
 import { dbNow, inTx, saveLocked, type DiscrepancyRow, type SettledBy } from '../models/protocol';
 import { recordEvent } from '../trail';
-import { protocolTests, normGroups, normDef, engineTest } from './catalog-read';
+import { protocolTests, normGroups, normDef, engineTest } from '../catalog';
 import { reconcile, testReferences, type Kind } from '../../scoring/reconcile';
 import type { NormEntry } from '../../scoring/norms';
 import { parseEntered, zFromRaw, formatReference, DERIVED_FIELDS, type DerivedField, type Field } from '../../scoring/scales';

@@ -10,7 +10,7 @@ import { recordEvent } from '../trail';
 import { models } from '../models';
 import { dbNow, inTx, reading, saveLocked, type Pass, type Protocol, type ProtocolRow, type Which } from '../models/protocol';
 import { protocolFor, type Actor } from './service';
-import { protocolTests, protocolComposites, normGroups, normDef, engineTest, engineComposite, type CatalogTest, type CatalogComposite } from './catalog-read';
+import { protocolTests, protocolComposites, normGroups, normDef, engineTest, engineComposite, type CatalogTest, type CatalogComposite } from '../catalog';
 import { reconcile, ReconcileInputError, type FieldValues, type ReconcileResult } from '../../scoring/reconcile';
 import { formatReference, type Field } from '../../scoring/scales';
 import { conflict, invalid, notFound, parseFirst, ServiceError } from '../errors';

@@ -5,7 +5,7 @@
 import { select, selectOne, transaction, isUniqueViolation, isLockConflict, type Tx } from '../db';
 import { recordEvent } from '../trail';
 import { getUser } from '../users';
-import { batteryTests, batteryComposites, normGroups, normSet, groupDef, protocolTests } from './catalog-read';
+import { batteryTests, batteryComposites, normGroups, normSet, groupDef, protocolTests } from '../catalog';
 import { selectNormGroup, dayNumber, parseIsoDate, type AgeWarning } from '../../scoring/age';
 import { ageCovariate, COVARIATE_LABELS, type Covariate } from '../../catalog/norm-forms';
 import { groupWords } from '../../catalog/ranges';

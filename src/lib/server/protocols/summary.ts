@@ -8,7 +8,7 @@ import { models } from '../models';
 import { reading } from '../models/protocol';
 import { writeCsv } from '../../csv';
 import { protocolFor, type Actor } from './service';
-import { protocolTests, protocolComposites, normGroups, normSet, normDef, engineTest } from './catalog-read';
+import { protocolTests, protocolComposites, normGroups, normSet, normDef, engineTest } from '../catalog';
 import { jsonValue } from '../db';
 import { testReferences } from '../../scoring/reconcile';
 import type { NormEntry, CompositeField } from '../../scoring/norms';

@@ -16,6 +16,7 @@ import type { Transaction } from 'sequelize';
 import { select, selectOne, exec, transaction, type Tx } from '../db';
 import { recordEvent } from '../trail';
 import { verificationModels, type DrawOutcome } from '../models/verification';
+import { models } from '../models';
 import {
 	DEFAULT_POLICY,
 	policyProblems,
@@ -87,7 +88,7 @@ export async function setPolicy(batteryId: number, body: unknown, actor: Actor):
 	const problems = policyProblems(next);
 	if (problems.length) throw invalid(problems[0], problems[0].split(':')[0]);
 	return transaction(async (t) => {
-		const battery = await selectOne<{ id: number }>('SELECT id FROM batteries WHERE id = :id FOR UPDATE', { id: batteryId }, t);
+		const battery = await models().Battery.findByPk(batteryId, { attributes: ['id'], lock: true, transaction: t });
 		if (!battery) throw notFound('This battery');
 		const before = await getPolicy(batteryId, t);
 		const { VerificationPolicy } = verificationModels();
@@ -141,6 +142,7 @@ export async function standing(scorerId: number, batteryId: number, t?: Tx): Pro
  * (error_events), plus unresolved raw discrepancies involving their pass (cautious until resolved).
  */
 export async function rawRecord(scorerId: number, batteryId: number, from: Date, t?: Tx): Promise<{ fields: number; errors: number }> {
+	// aggregates over the audit's and the protocol side's tables
 	const f = await selectOne<{ n: number | null }>(
 		`SELECT SUM(raw_fields) AS n FROM audit_fields WHERE scorer_id = :s AND battery_id = :b AND test_code <> '' AND entered_at >= :from`,
 		{ s: scorerId, b: batteryId, from },
@@ -201,6 +203,7 @@ async function setStanding(scorerId: number, batteryId: number, mode: 'full' | '
 /** Put a scorer back on full double entry at once and e-mail the leads (through the outbox). */
 async function backToFull(scorerId: number, batteryId: number, reason: string, t: Transaction) {
 	await setStanding(scorerId, batteryId, 'full', reason, true, t);
+	// how many times the standing moved (an aggregate over the trail): makes the e-mail's key unique
 	const n = await selectOne<{ n: number }>(
 		"SELECT COUNT(*) AS n FROM audit_events WHERE entity = 'verification_scorer' AND entity_id = :e",
 		{ e: `${scorerId}:${batteryId}` },
@@ -325,11 +328,15 @@ async function recordSinglePass(p: ProtocolRow, pass: { id: number; scorer_id: n
 	const codes = Object.keys(pass.scores);
 	const domains = new Map<string, string>();
 	if (codes.length)
-		for (const r of await select<{ code: string; domain: string }>(
-			'SELECT code, domain FROM tests WHERE code IN (:codes) ORDER BY is_current ASC, version ASC',
-			{ codes },
-			t
-		))
+		for (const r of await models().Test.findAll({
+			attributes: ['code', 'domain'],
+			where: { code: codes },
+			order: [
+				['is_current', 'ASC'],
+				['version', 'ASC']
+			],
+			transaction: t
+		}))
 			domains.set(r.code, r.domain);
 	const at = new Date();
 	const rawCount = rawFieldsOf(pass.scores);
@@ -341,6 +348,7 @@ async function recordSinglePass(p: ProtocolRow, pass: { id: number; scorer_id: n
 		if (derived) rows.push([pass.id, code, p.id, p.round, 'first', pass.scorer_id, p.battery_id, domains.get(code) ?? 'unknown', derived, 0, derived, at]);
 	}
 	await applyToDaily({ protocolId: p.id, round: p.round }, -1, t);
+	// the audit's summary rows of the round are replaced in bulk
 	await exec('DELETE FROM audit_fields WHERE protocol_id = :p AND round = :r', { p: p.id, r: p.round }, t);
 	await insertMany('audit_fields', AUDIT_FIELDS_COLUMNS, rows, t);
 	await applyToDaily({ protocolId: p.id, round: p.round }, 1, t);
@@ -383,6 +391,7 @@ export async function afterReconcile(p: ProtocolRow, t: Transaction) {
 	const policy = await getPolicy(p.battery_id, t);
 	if (row?.outcome === 'drawn') {
 		await VerificationProtocol.update({ checked_at: new Date() }, { where: { protocol_id: p.id }, transaction: t });
+		// COUNT over the protocol side's discrepancies
 		const errors = await selectOne<{ n: number }>(
 			`SELECT COUNT(*) AS n FROM discrepancies WHERE protocol_id = :p AND round = :r AND field = 'raw' AND pass IN ('first', 'both')`,
 			{ p: p.id, r: p.round },
@@ -392,6 +401,7 @@ export async function afterReconcile(p: ProtocolRow, t: Transaction) {
 		const n = Number(row.raw_fields ?? 0);
 		const s = await standing(p.first_scorer_id, p.battery_id, t);
 		if (s.mode === 'sampled' && protocolAboveThreshold(x, n, Number(row.policy?.thresholdPer100 ?? policy.thresholdPer100))) {
+			// examinees, discrepancies and protocols are the protocol side's tables (models of their own, with the protocol models)
 			const code = await selectOne<{ code: string }>('SELECT e.code FROM examinees e WHERE e.id = :id', { id: p.examinee_id }, t);
 			await backToFull(
 				p.first_scorer_id,
@@ -409,6 +419,7 @@ export async function afterReconcile(p: ProtocolRow, t: Transaction) {
 
 /** A raw-score discrepancy was resolved: the scorers' rolling records changed. */
 export async function afterResolution(discrepancyId: number, t: Transaction) {
+	// the protocol side's tables (see afterReconcile)
 	const d = await selectOne<{ field: string; protocol_id: number }>('SELECT field, protocol_id FROM discrepancies WHERE id = :id', { id: discrepancyId }, t);
 	if (!d || d.field !== 'raw') return;
 	const p = await selectOne<{ battery_id: number; first_scorer_id: number; second_scorer_id: number }>(
@@ -426,21 +437,18 @@ export async function afterResolution(discrepancyId: number, t: Transaction) {
 // ---------------------------------------------------------------- single pass: reading and guarding
 
 export async function isSinglePass(protocolId: number, t?: Tx): Promise<boolean> {
-	const r = await selectOne<{ n: number }>(
-		`SELECT COUNT(*) AS n FROM verification_protocols WHERE protocol_id = :p AND outcome = 'not_drawn'`,
-		{ p: protocolId },
-		t
-	);
-	return Number(r?.n ?? 0) > 0;
+	const { VerificationProtocol } = verificationModels();
+	return (await VerificationProtocol.count({ where: { protocol_id: protocolId, outcome: 'not_drawn' }, transaction: t ?? undefined })) > 0;
 }
 
 export async function singlePassIds(ids: number[], t?: Tx): Promise<Set<number>> {
 	if (ids.length === 0) return new Set();
-	const rows = await select<{ protocol_id: number }>(
-		`SELECT protocol_id FROM verification_protocols WHERE protocol_id IN (:ids) AND outcome = 'not_drawn'`,
-		{ ids },
-		t
-	);
+	const { VerificationProtocol } = verificationModels();
+	const rows = await VerificationProtocol.findAll({
+		attributes: ['protocol_id'],
+		where: { protocol_id: ids, outcome: 'not_drawn' },
+		transaction: t ?? undefined
+	});
 	return new Set(rows.map((r) => Number(r.protocol_id)));
 }
 
@@ -498,6 +506,7 @@ export async function requireSecondPass(protocolId: number, actor: Actor, reason
 		}
 		if (row?.outcome !== 'not_drawn' || p.status !== 'in_review')
 			throw conflict('This protocol already gets a second pass (or is signed off: reopen it first).');
+		// the protocol side's tables: a COUNT, then the round's findings and summaries go (bulk deletes) and the status moves under its lock
 		const resolved = await selectOne<{ n: number }>(
 			'SELECT COUNT(*) AS n FROM discrepancies WHERE protocol_id = :p AND round = :r AND resolved_at IS NOT NULL',
 			{ p: p.id, r: p.round },
@@ -554,20 +563,22 @@ export interface ScorerRisk {
 
 /** Per scorer × battery under a sampled policy (or with any standing or draw on record). */
 export async function verificationAudit(): Promise<{ rows: ScorerRisk[]; policies: Array<BatteryPolicy & { name: string }> }> {
-	const batteries = await select<{ id: number; name: string }>('SELECT id, name FROM batteries ORDER BY name');
+	const { Battery, User } = models();
+	const batteries = await Battery.findAll({ attributes: ['id', 'name'], order: [['name', 'ASC']] });
 	const policies = await Promise.all(batteries.map(async (b) => ({ ...(await getPolicy(b.id)), name: b.name })));
+	// every scorer × battery on record: a UNION over two tables
 	const pairs = await select<{ scorer_id: number; battery_id: number }>(
 		`SELECT scorer_id, battery_id FROM verification_scorers
 		 UNION SELECT scorer_id, battery_id FROM verification_protocols WHERE scorer_id IS NOT NULL AND outcome IN ('drawn', 'not_drawn', 'scorer_full')`
 	);
-	const names = new Map((await select<{ id: number; name: string }>('SELECT id, name FROM users')).map((u) => [Number(u.id), u.name]));
+	const names = new Map((await User.findAll({ attributes: ['id', 'name'] })).map((u) => [u.id, u.name]));
 	const rows: ScorerRisk[] = [];
 	for (const { scorer_id: s, battery_id: b } of pairs) {
 		const policy = policies.find((x) => x.batteryId === Number(b));
 		if (!policy) continue;
 		const st = await standing(s, b);
 		const q = await qualification(s, b, policy, st);
-		// fields of double-entered rounds from the audit's own per-pass rows; single passes from their draw rows
+		// aggregates (SUM, COUNT): fields of double-entered rounds from the audit's own per-pass rows; single passes from their draw rows
 		const withSecond = await selectOne<{ n: number | null }>(
 			`SELECT SUM(a.fields_entered) AS n FROM audit_fields a WHERE a.scorer_id = :s AND a.battery_id = :b AND a.test_code = ''
 			    AND NOT EXISTS (SELECT 1 FROM verification_protocols v WHERE v.protocol_id = a.protocol_id AND v.outcome = 'not_drawn')`,

@@ -1,8 +1,7 @@
 import type { Actions, PageServerLoad } from './$types';
 import { fail, redirect } from '@sveltejs/kit';
 import { requireRole } from '$lib/server/guard';
-import { select } from '$lib/server/db';
-import { usersWithRole } from '$lib/server/users';
+import { protocolFormChoices } from '$lib/server/catalog';
 import { createProtocol, type UncoveredTest } from '$lib/server/protocols/service';
 import { ServiceError } from '$lib/server/errors';
 import { newProtocolSchema, overridesFrom } from '$lib/validation/protocol';
@@ -11,19 +10,8 @@ import { fieldMessages } from '$lib/validation/issues';
 
 export const load: PageServerLoad = async (event) => {
 	requireRole(event, 'lead');
-	const [batteries, normSets, scorers, reviewers] = await Promise.all([
-		select<{ id: number; name: string; norm_set_id: number | null; tests: number }>(
-			'SELECT b.id, b.name, b.norm_set_id, COUNT(bt.test_code) AS tests FROM batteries b LEFT JOIN battery_tests bt ON bt.battery_id = b.id GROUP BY b.id ORDER BY b.name'
-		),
-		select<{ id: number; name: string; version: string }>('SELECT id, name, version FROM norm_sets ORDER BY name, version'),
-		usersWithRole('scorer'),
-		usersWithRole('reviewer')
-	]);
 	return {
-		batteries,
-		normSets,
-		scorers: scorers.map((u) => ({ id: u.id, name: u.name })),
-		reviewers: reviewers.map((u) => ({ id: u.id, name: u.name })),
+		...(await protocolFormChoices()),
 		// The clinic's calendar day, not the UTC one: the default and the latest test date.
 		today: clinicToday(),
 		timeZone: clinicTimeZone()
