@@ -120,12 +120,12 @@ function toSummary(b: Battery, tests: number): BatterySummary {
 	};
 }
 
-const normSetName = { association: 'normSet', attributes: ['id', 'name'] };
+const normSetName = () => ({ association: 'normSet', attributes: ['id', 'name'] });
 
 export async function listBatteries(tx?: Tx): Promise<BatterySummary[]> {
 	const { Battery, BatteryTest } = models();
 	const [batteries, counts] = await Promise.all([
-		Battery.findAll({ include: [normSetName], order: [['name', 'ASC']], transaction: tx_(tx) }),
+		Battery.findAll({ include: [normSetName()], order: [['name', 'ASC']], transaction: tx_(tx) }),
 		// tests per battery (COUNT … GROUP BY)
 		BatteryTest.count({ group: ['battery_id'], transaction: tx_(tx) })
 	]);
@@ -138,7 +138,7 @@ export async function getBattery(id: number, tx?: Tx): Promise<BatteryRecord | n
 	const { Battery } = models();
 	const b = await Battery.findByPk(id, {
 		include: [
-			normSetName,
+			normSetName(),
 			{
 				association: 'items',
 				separate: true,

@@ -201,13 +201,15 @@ export async function listNormGroups(normSetId: number, opts: { test?: string } 
 		transaction: tx_(tx)
 	});
 	const position = new Map(tests.map((t) => [t.code, t.domainInfo?.position ?? null]));
-	const cmp = (a: string | number | null, b: string | number | null) => (a === b ? 0 : a === null ? 1 : b === null ? -1 : a < b ? -1 : 1);
+	// null last (a test without a domain) or first (a group for either sex, any education), as the screens list them
+	const cmp = (a: string | number | null, b: string | number | null, nullFirst = false) =>
+		a === b ? 0 : a === null ? (nullFirst ? -1 : 1) : b === null ? (nullFirst ? 1 : -1) : a < b ? -1 : 1;
 	groups.sort(
 		(a, b) =>
 			cmp(position.get(a.test_code) ?? null, position.get(b.test_code) ?? null) ||
 			cmp(a.test_code, b.test_code) ||
-			cmp(a.sex, b.sex) ||
-			cmp(a.edu_min === null ? null : Number(a.edu_min), b.edu_min === null ? null : Number(b.edu_min)) ||
+			cmp(a.sex, b.sex, true) ||
+			cmp(a.edu_min === null ? null : Number(a.edu_min), b.edu_min === null ? null : Number(b.edu_min), true) ||
 			a.age_min_months - b.age_min_months ||
 			a.id - b.id
 	);
