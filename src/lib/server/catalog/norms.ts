@@ -601,8 +601,8 @@ export async function replaceNormGroups(
 		if (old.length) removed = await NormGroup.destroy({ where, transaction: tx_(tr) });
 	}
 	const esc = (v: unknown) => db().escape(v as string);
-	// Plain mean/SD groups go in as hand-built multi-row INSERTs (imports of up to 200,000 groups, several
-	// times faster than bulkCreate's instances); tables and equations one by one with their rows.
+	// Plain mean/SD groups go in as hand-built multi-row INSERTs (a bulk insert: imports of up to 200,000
+	// groups, no model instance per row); tables and equations one by one with their rows.
 	const plain = groups.filter((g) => (g.form ?? 'mean_sd') === 'mean_sd');
 	for (let i = 0; i < plain.length; i += 1000) {
 		const values = plain
