@@ -30,11 +30,12 @@ export class Amendment extends Model<InferAttributes<Amendment>, InferCreationAt
 	declare decision_note: CreationOptional<string | null>;
 }
 
-let ready = false;
+/** The connection the model was last bound to (closeDb() makes a new one). */
+let bound: ReturnType<typeof db> | null = null;
 
-/** The model, bound to the app's connection on first use. */
+/** The model, bound to the app's current connection. */
 export function amendments(): typeof Amendment {
-	if (!ready) {
+	if (bound !== db()) {
 		Amendment.init(
 			{
 				id: { type: DataTypes.INTEGER.UNSIGNED, autoIncrement: true, primaryKey: true },
@@ -55,7 +56,7 @@ export function amendments(): typeof Amendment {
 			},
 			{ sequelize: db(), tableName: 'amendments', timestamps: false }
 		);
-		ready = true;
+		bound = db();
 	}
 	return Amendment;
 }
