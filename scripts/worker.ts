@@ -10,11 +10,17 @@ import { MAIL_QUEUE, dispatchOutbox, closeMailQueue } from '../src/lib/server/ma
 import { deliver, type MailJob } from '../src/lib/server/mail/deliver';
 import { closeDb } from '../src/lib/server/db';
 import { closeMailTransport } from '../src/lib/server/mail/transport';
-import '../src/lib/server/mail/review'; // registers the review renderers
 import '../src/lib/server/mail/verification'; // registers the back-to-full-double-entry e-mail
 import { sweepMail, markMailFailed } from '../src/lib/server/mail/recover';
 import { sweepMarkers } from '../src/lib/server/models/commit-marker';
 import { foldDeltas } from '../src/lib/server/audit-stats/record';
+import { registerSvelteHooks } from './lib/svelte-register';
+
+// The review e-mail bodies are Svelte components, which tsx cannot import: compile .svelte with
+// svelte/compiler from here on (scripts/lib/svelte-hooks.js), then load the review renderers. A
+// dynamic import on purpose: static imports are all loaded before the hook could be registered.
+registerSvelteHooks();
+await import('../src/lib/server/mail/reminders/delivery'); // registers the review renderers and reminders
 
 const interval = Number(process.env.DISPATCH_INTERVAL_MS ?? 500);
 const sweepMs = Number(process.env.MAIL_SWEEP_MS ?? 30_000);

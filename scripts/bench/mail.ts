@@ -41,7 +41,8 @@ process.loadEnvFile(ENV_FILE);
 
 // config.ts reads the environment when first imported: import the app modules after loading it.
 const { exec, select, selectOne, transaction, closeDb } = await import('../../src/lib/server/db');
-const { notifyReviewStarted, saveReviewMailSettings, REVIEW_MAIL_SETTING } = await import('../../src/lib/server/mail/review');
+const { notifyReviewStarted } = await import('../../src/lib/server/mail/reminders/scheduling');
+const { saveReviewMailSettings, REVIEW_MAIL_SETTING } = await import('../../src/lib/server/mail/reminders/settings');
 const { Queue } = await import('bullmq');
 const { bullConnection } = await import('../../src/lib/server/redis');
 const { MAIL_QUEUE } = await import('../../src/lib/server/mail/queue');

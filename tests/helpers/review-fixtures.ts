@@ -6,7 +6,7 @@
  */
 import { randomBytes } from 'node:crypto';
 import { exec, select, selectOne, transaction } from '../../src/lib/server/db';
-import { notifyReviewStarted } from '../../src/lib/server/mail/review';
+import { notifyReviewStarted } from '../../src/lib/server/mail/reminders/scheduling';
 import { ACCOUNTS, MAILFAKE_URL } from './http';
 
 export const EXAMINEE_NAME = 'Zenobia Quillfeather';

@@ -8,7 +8,9 @@ import { Queue } from 'bullmq';
 import { exec, selectOne } from '../../src/lib/server/db';
 import { bullConnection } from '../../src/lib/server/redis';
 import { MAIL_QUEUE } from '../../src/lib/server/mail/queue';
-import { listProtocolMail, recoverLostReviewMail, saveReviewMailSettings, REVIEW_MAIL_SETTING } from '../../src/lib/server/mail/review';
+import { listProtocolMail } from '../../src/lib/server/mail/reminders/history';
+import { recoverLostReviewMail } from '../../src/lib/server/mail/reminders/scheduling';
+import { saveReviewMailSettings, REVIEW_MAIL_SETTING } from '../../src/lib/server/mail/reminders/settings';
 import { config } from '../../src/lib/server/config';
 import { ACCOUNTS, waitFor } from '../helpers/http';
 import {

@@ -7,14 +7,9 @@
 import { afterAll, afterEach, beforeEach, describe, expect, it } from 'vitest';
 import { exec, transaction } from '../../src/lib/server/db';
 import { config } from '../../src/lib/server/config';
-import {
-	listProtocolMail,
-	nextReviewReminder,
-	notifyReviewStarted,
-	notifyReviewerChanged,
-	saveReviewMailSettings,
-	REVIEW_MAIL_SETTING
-} from '../../src/lib/server/mail/review';
+import { listProtocolMail } from '../../src/lib/server/mail/reminders/history';
+import { nextReviewReminder, notifyReviewStarted, notifyReviewerChanged } from '../../src/lib/server/mail/reminders/scheduling';
+import { saveReviewMailSettings, REVIEW_MAIL_SETTING } from '../../src/lib/server/mail/reminders/settings';
 import { ACCOUNTS, waitFor } from '../helpers/http';
 import {
 	BIRTH_DATE_FORMS,

@@ -7,7 +7,7 @@
 import { afterAll, afterEach, describe, expect, it } from 'vitest';
 import { exec, selectOne } from '../../src/lib/server/db';
 import { config } from '../../src/lib/server/config';
-import { REVIEW_MAIL_SETTING } from '../../src/lib/server/mail/review';
+import { REVIEW_MAIL_SETTING } from '../../src/lib/server/mail/reminders/settings';
 import { ACCOUNTS, signedIn, waitFor } from '../helpers/http';
 import { caughtFor, cleanupFixtures, endAllChains, keyOf, protocolReachesReview, type FakeMessage, type Fixture } from '../helpers/review-fixtures';
 

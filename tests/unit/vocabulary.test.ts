@@ -6,7 +6,7 @@ import { describe, expect, it } from 'vitest';
 import { PassThrough } from 'node:stream';
 import { KINDS, KIND_NAMES, kindName, kindList, explainKind } from '../../src/lib/scoring/kinds';
 import { KIND_LABELS, FIELD_LABELS, fieldWords, statusWords } from '../../src/lib/status';
-import { kindName as mailKindName, FIELD_WORDS } from '../../src/lib/server/mail/review';
+import { kindName as mailKindName, FIELD_WORDS } from '../../src/lib/server/mail/reminders/render';
 import { run } from '../../scripts/cli/kinds';
 
 describe('one vocabulary', () => {

@@ -5,7 +5,7 @@
  */
 import { transaction } from './db';
 import { recordEvent } from './trail';
-import { reviewMailSettings, saveReviewMailSettings, REVIEW_MAIL_SETTING, type ReviewMailSettings } from './mail/review';
+import { reviewMailSettings, saveReviewMailSettings, REVIEW_MAIL_SETTING, type ReviewMailSettings } from './mail/reminders/settings';
 
 export async function serviceSettings(): Promise<ReviewMailSettings> {
 	return reviewMailSettings();

@@ -33,7 +33,7 @@ export type Renderer = (payload: Record<string, unknown>) => Promise<RenderedMai
 
 const TOKEN_HOURS = { invite: 72, reset: 2 };
 
-/** Renderers by kind; the review notifications register theirs in ./review.ts. */
+/** Renderers by kind; review mail registers its own in ./reminders/delivery.ts (the worker imports it). */
 export const renderers: Partial<Record<MailKind, Renderer>> = {
 	async invite(p) {
 		const user = await getUser(Number(p.userId));

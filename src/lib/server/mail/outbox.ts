@@ -4,36 +4,47 @@
  * is down, rows wait here and nothing is lost. The idempotency key is unique: writing the same
  * message twice (a retried request) is a no-op.
  */
-import { exec, select, type Tx } from '../db';
+import { fn, literal } from 'sequelize';
+import type { Tx } from '../db';
+import { withRetry } from '../tx';
+import { models } from '../models';
+import type { MailKind, Outbox } from '../models/mail';
 
-export type MailKind = 'invite' | 'reset' | 'review_first' | 'review_reminder' | 'verification_full';
-
-export interface OutboxRow {
-	id: number;
-	kind: MailKind;
-	idempotency_key: string;
-	payload: unknown;
-	created_at: Date;
-}
+export type { MailKind } from '../models/mail';
 
 export async function enqueueMail(kind: MailKind, idempotencyKey: string, payload: Record<string, unknown>, t?: Tx): Promise<void> {
-	await exec(
-		`INSERT IGNORE INTO outbox (kind, idempotency_key, payload) VALUES (:kind, :key, :payload)`,
-		{ kind, key: idempotencyKey, payload: JSON.stringify(payload) },
-		t
-	);
+	// INSERT IGNORE: the unique idempotency key makes a second write of the same message a no-op
+	const insert = () => models().Outbox.create({ kind, idempotency_key: idempotencyKey, payload }, { transaction: t ?? undefined, ignoreDuplicates: true });
+	await (t ? insert() : write(insert));
 }
 
-export async function pendingOutbox(limit = 200): Promise<OutboxRow[]> {
-	return select<OutboxRow>(`SELECT id, kind, idempotency_key, payload, created_at FROM outbox WHERE dispatched_at IS NULL ORDER BY id LIMIT :limit`, { limit });
+/** A model read outside a transaction, retried as `select` is (../db.ts): safe to run again. */
+export const read = <T>(run: () => Promise<T>): Promise<T> => withRetry(() => run());
+/** A single model write outside a transaction, retried as `exec` is: on 1213 only, never after a lost connection. */
+export const write = <T>(run: () => Promise<T>): Promise<T> =>
+	withRetry((_n, committing) => {
+		committing();
+		return run();
+	});
+
+/** Rows the dispatcher has not handed to the queue yet, oldest first. */
+export async function pendingOutbox(limit = 200): Promise<Pick<Outbox, 'id' | 'kind' | 'idempotency_key' | 'payload' | 'created_at'>[]> {
+	return read(() =>
+		models().Outbox.findAll({
+			attributes: ['id', 'kind', 'idempotency_key', 'payload', 'created_at'],
+			where: { dispatched_at: null },
+			order: [['id', 'ASC']],
+			limit
+		})
+	);
 }
 
 export async function markDispatched(ids: number[]): Promise<void> {
 	if (ids.length === 0) return;
-	await exec(`UPDATE outbox SET dispatched_at = CURRENT_TIMESTAMP(3), attempts = attempts + 1 WHERE id IN (:ids)`, { ids });
+	await write(() => models().Outbox.update({ dispatched_at: fn('CURRENT_TIMESTAMP', 3), attempts: literal('attempts + 1') }, { where: { id: ids } }));
 }
 
 export async function markDispatchFailed(ids: number[], message: string): Promise<void> {
 	if (ids.length === 0) return;
-	await exec(`UPDATE outbox SET attempts = attempts + 1, last_error = :message WHERE id IN (:ids)`, { ids, message: message.slice(0, 500) });
+	await write(() => models().Outbox.update({ attempts: literal('attempts + 1'), last_error: message.slice(0, 500) }, { where: { id: ids } }));
 }

@@ -16,7 +16,7 @@
 import { exec, select } from '../db';
 import { mailQueue } from './queue';
 import { claimLeaseMs } from './deliver';
-import { recoverLostReviewMail } from './review';
+import { recoverLostReviewMail } from './reminders/scheduling';
 
 const REVIEW_KINDS = new Set(['review_first', 'review_reminder']);
 const jobIdOf = (key: string) => key.replace(/:/g, '_');

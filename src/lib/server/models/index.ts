@@ -10,6 +10,7 @@ import { amendments } from './amendment';
 import { initProtocolModels, PROTOCOL_MODELS } from './protocol';
 import { catalogModels, initCatalogModels } from './catalog';
 import { peopleModels, initPeopleModels } from './people';
+import { initMailModels, Outbox, MailLog } from './mail';
 
 /** One row of a conversion table: a raw (or sum) range and what the manual gives for it. */
 export class NormTableRow extends Model<InferAttributes<NormTableRow>, InferCreationAttributes<NormTableRow>> {
@@ -129,7 +130,8 @@ export function models() {
 		initProtocolModels(sequelize, { ProtocolComposite, Amendment: amendments() });
 		initCatalogModels(sequelize, { NormTableRow, Composite });
 		initPeopleModels(sequelize);
+		initMailModels(sequelize);
 		bound = sequelize;
 	}
-	return { NormTableRow, Composite, ProtocolComposite, ...PROTOCOL_MODELS, ...catalogModels, ...peopleModels };
+	return { NormTableRow, Composite, ProtocolComposite, ...PROTOCOL_MODELS, ...catalogModels, ...peopleModels, Outbox, MailLog };
 }

@@ -27,7 +27,7 @@ import type { Kind } from '../../scoring/kinds';
 // A static import on purpose: the production bundler (Rolldown in Vite 8.3.8) dropped the `why` argument
 // of this call when it was reached through a dynamic import(), so reopen and amendment e-mails lost
 // their round and reason (tests/integration/review-evidence.test.ts, against the built app).
-import { notifyReviewStarted } from '../mail/review';
+import { notifyReviewStarted } from '../mail/reminders/scheduling';
 
 const amendSchema = z.object({
 	test: z.string().trim().min(1, 'Choose the test').max(40),

@@ -7,7 +7,7 @@ import { protocolAmendments } from './amendments';
 import { models } from '../models';
 import { reading } from '../models/protocol';
 import { usersWithRole } from '../users';
-import { listProtocolMail } from '../mail/review';
+import { listProtocolMail } from '../mail/reminders/history';
 
 export async function protocolPage(id: number, user: Actor) {
 	const view = await protocolView(id, user);

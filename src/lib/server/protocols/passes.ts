@@ -14,7 +14,7 @@ import { protocolTests, protocolComposites, normGroups, normDef, engineTest, eng
 import { reconcile, ReconcileInputError, type FieldValues, type ReconcileResult } from '../../scoring/reconcile';
 import { formatReference, type Field } from '../../scoring/scales';
 import { conflict, invalid, notFound, parseFirst, ServiceError } from '../errors';
-import { notifyReviewStarted } from '../mail/review';
+import { notifyReviewStarted } from '../mail/reminders/scheduling';
 import { recordSubmission } from '../audit-stats/record';
 import { decideAtFirstSubmit, reconcileSinglePass, afterReconcile, guardSecondPass } from '../verification';
 

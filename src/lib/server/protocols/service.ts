@@ -12,7 +12,7 @@ import { groupWords } from '../../catalog/ranges';
 import { models } from '../models';
 import { ServiceError, notFound, invalid, conflict } from '../errors';
 import { inTx, reading, saveLocked, type Protocol, type ProtocolRow, type Status } from '../models/protocol';
-import { notifyReviewerChanged } from '../mail/review';
+import { notifyReviewerChanged } from '../mail/reminders/scheduling';
 import { clinicToday } from '../clock';
 import { dateProblem } from '../../dates';
 import { cleanFilename } from '../filenames';

@@ -1,0 +1,204 @@
+/**
+ * Review notifications: the first e-mail when a protocol reaches `in_review`, a reminder every
+ * interval while discrepancies stay open, and escalation (leads copied in) after N reminders.
+ *
+ * How a chain of messages works
+ * - The reconciliation transaction calls `notifyReviewStarted`, which writes the outbox row of
+ *   message 0 (the first e-mail). The worker's dispatcher moves it into BullMQ; `deliver` sends it
+ *   at most once per idempotency key.
+ * - After a review message was sent (or possibly sent: a worker killed mid-send), `scheduleNext`
+ *   (registered by ./delivery.ts as the `afterDelivery` hook) writes the outbox row of the next
+ *   reminder with `notBefore` = now + interval; the dispatcher turns it into a delayed job. Writing
+ *   it is idempotent (unique key).
+ * - Every message re-checks the database when it is rendered (`loadState`): the protocol is still
+ *   `in_review`, in the same round, with the same reviewer, and this chain is still the current one
+ *   (./keys.ts); reminders also need at least one open discrepancy. Otherwise nothing is sent and
+ *   nothing is scheduled: the chain ends.
+ *
+ * This module does not import the renderer (.svelte): the services, seeds and scripts that write
+ * review mail run under tsx without the Svelte hook.
+ */
+import { Op } from 'sequelize';
+import { select, selectOne, type Tx } from '../../db';
+import { models } from '../../models';
+import { enqueueMail, read, write } from '../outbox';
+import type { DeliveryResult, MailJob } from '../deliver';
+import type { ProtocolRow } from '../../models/protocol';
+import type { MailDiscrepancy } from './render';
+import { reviewMailSettings } from './settings';
+import { chainOf, chainOfKey, reviewMailKey, roundPrefix, type ReviewMailPayload } from './keys';
+
+/** The chain whose first e-mail was written last for this protocol round (the current one). */
+async function currentChain(protocolId: number, round: number, t?: Tx): Promise<string | null> {
+	const find = () =>
+		models().Outbox.findOne({
+			attributes: ['idempotency_key'],
+			where: { idempotency_key: { [Op.like]: `${roundPrefix(protocolId, round)}%` }, kind: 'review_first' },
+			order: [['id', 'DESC']],
+			transaction: t ?? undefined
+		});
+	const row = await (t ? find() : read(find));
+	return row ? chainOfKey(row.idempotency_key) : null;
+}
+
+// ---------------------------------------------------------------------------------------------
+// The contract with the workflow
+
+/**
+ * Inside the reconciliation transaction, when a protocol reaches `in_review`: the outbox row of the
+ * reviewer's first e-mail. Calling it again for the same protocol, round and reviewer is a no-op.
+ */
+export async function notifyReviewStarted(protocolId: number, round: number, reviewerId: number, t: Tx, why?: ReviewMailPayload['why']): Promise<void> {
+	const chain = chainOf(protocolId, round, reviewerId);
+	const payload: ReviewMailPayload = { protocolId, round, reviewerId, chain, reminderNo: 0, ...(why ? { why } : {}) };
+	await enqueueMail('review_first', reviewMailKey(chain, 0), { ...payload }, t);
+}
+
+/**
+ * Inside the reassignment transaction: the new reviewer gets their own first e-mail (and their own
+ * reminders); the old reviewer's reminders stop (each reminder re-checks the assigned reviewer and
+ * the current chain). A no-op when the current chain already belongs to `newReviewerId`.
+ */
+export async function notifyReviewerChanged(protocolId: number, round: number, newReviewerId: number, t: Tx): Promise<void> {
+	const current = await currentChain(protocolId, round, t);
+	const mine = chainOf(protocolId, round, newReviewerId);
+	if (current && (current === mine || current.startsWith(`${mine}.`))) return;
+	const earlier = await models().Outbox.findAll({
+		attributes: ['idempotency_key'],
+		where: { idempotency_key: { [Op.like]: `${mine}%` }, kind: 'review_first' },
+		transaction: t ?? undefined
+	});
+	const generation = earlier.filter((r) => r.idempotency_key === `${mine}:0` || r.idempotency_key.startsWith(`${mine}.`)).length + 1;
+	const chain = chainOf(protocolId, round, newReviewerId, generation);
+	const payload: ReviewMailPayload = { protocolId, round, reviewerId: newReviewerId, chain, reminderNo: 0 };
+	await enqueueMail('review_first', reviewMailKey(chain, 0), { ...payload }, t);
+}
+
+// ---------------------------------------------------------------------------------------------
+// The state a message depends on
+
+/** The protocol columns a message needs (a `protocols` row with its examinee's code and battery's name). */
+export type MailProtocol = Pick<ProtocolRow, 'id' | 'status' | 'round' | 'reviewer_id' | 'status_changed_at'> & {
+	test_date: string | Date;
+	code: string;
+	battery: string | null;
+};
+
+export interface ReviewState {
+	protocol: MailProtocol;
+	open: MailDiscrepancy[];
+	reviewer: { email: string; name: string; active: number };
+}
+
+/** The state a message depends on, or null when the chain has ended. */
+export async function loadState(p: ReviewMailPayload, needOpen: boolean): Promise<ReviewState | null> {
+	// joins across four tables for one message: one statement (protocols and discrepancies have no models yet)
+	const protocol = await selectOne<MailProtocol>(
+		`SELECT p.id, p.status, p.round, p.reviewer_id, p.status_changed_at, e.code, p.test_date, b.name AS battery
+		 FROM protocols p JOIN examinees e ON e.id = p.examinee_id LEFT JOIN batteries b ON b.id = p.battery_id
+		 WHERE p.id = :id`,
+		{ id: p.protocolId }
+	);
+	if (!protocol || protocol.status !== 'in_review' || protocol.round !== p.round || protocol.reviewer_id !== p.reviewerId) return null;
+	if ((await currentChain(p.protocolId, p.round)) !== p.chain) return null;
+	const open = await select<MailDiscrepancy>(
+		`SELECT d.test_code, d.field, d.pass, d.kind, d.value, d.other, d.expected, d.out_of_range,
+		        (SELECT t.name FROM protocol_tests pt JOIN tests t ON t.id = pt.test_id
+		          WHERE pt.protocol_id = d.protocol_id AND t.code = d.test_code LIMIT 1) AS test_name
+		 FROM discrepancies d
+		 WHERE d.protocol_id = :id AND d.round = :round AND d.resolved_at IS NULL
+		 ORDER BY d.position`,
+		{ id: p.protocolId, round: p.round }
+	);
+	if (needOpen && open.length === 0) return null;
+	const reviewer = await selectOne<{ email: string; name: string; active: number }>('SELECT email, name, active FROM users WHERE id = :id', {
+		id: p.reviewerId
+	});
+	if (!reviewer || !reviewer.active) return null;
+	return { protocol, open, reviewer };
+}
+
+// ---------------------------------------------------------------------------------------------
+// The next reminder
+
+/** After a review message went out (or may have: a worker killed mid-send), schedule the next reminder. */
+export async function scheduleNext(job: MailJob, result: DeliveryResult, now = Date.now()): Promise<void> {
+	if (result === 'skipped') return;
+	const p = job.payload as unknown as ReviewMailPayload;
+	if (!(await loadState(p, true))) return; // resolved, reassigned, signed off: the chain ends
+	const settings = await reviewMailSettings();
+	const next: ReviewMailPayload = {
+		protocolId: p.protocolId,
+		round: p.round,
+		reviewerId: p.reviewerId,
+		chain: p.chain,
+		reminderNo: p.reminderNo + 1,
+		notBefore: now + Math.round(settings.reminderIntervalMinutes * 60_000)
+	};
+	await enqueueMail('review_reminder', reviewMailKey(p.chain, next.reminderNo), { ...next });
+}
+
+/** The next reminder scheduled for a protocol's current chain, if any (for "next reminder at …"). */
+export async function nextReviewReminder(protocolId: number): Promise<{ reminderNo: number; due: Date; reviewerId: number } | null> {
+	const p = await selectOne<Pick<ProtocolRow, 'round' | 'status'>>('SELECT round, status FROM protocols WHERE id = :id', { id: protocolId });
+	if (!p || p.status !== 'in_review') return null;
+	const chain = await currentChain(protocolId, p.round);
+	if (!chain) return null;
+	const { Outbox, MailLog } = models();
+	// not yet logged: the outbox row without a mail_log row (LEFT JOIN … IS NULL through the association)
+	const row = await read(() =>
+		Outbox.findOne({
+			attributes: ['idempotency_key', 'payload'],
+			where: { idempotency_key: { [Op.like]: `${chain}:%` }, kind: 'review_reminder', '$log.id$': null },
+			include: [{ model: MailLog, as: 'log', attributes: [], required: false }],
+			order: [['id', 'DESC']],
+			subQuery: false
+		})
+	);
+	if (!row) return null;
+	const payload = row.payload as unknown as ReviewMailPayload;
+	if (payload.chain !== chain) return null;
+	if (!(await loadState(payload, true))) return null; // resolved or reassigned: it will send nothing
+	return { reminderNo: payload.reminderNo, due: new Date(payload.notBefore ?? Date.now()), reviewerId: payload.reviewerId };
+}
+
+// ---------------------------------------------------------------------------------------------
+// Recovery: Redis here keeps no data across a restart, so a delayed reminder job can be lost.
+
+/**
+ * Re-dispatch review outbox rows that were handed to the queue but never delivered and are well
+ * past due (their job was lost with a Redis restart). Re-adding a job that still exists is a no-op
+ * in BullMQ (job id = idempotency key) and mail_log keeps any message to one send, so this is
+ * safe to run from any number of workers. Returns the number of rows handed back.
+ */
+export async function recoverLostReviewMail(graceMs = 60_000, now = Date.now()): Promise<number> {
+	const { Outbox, MailLog } = models();
+	const rows = await read(() =>
+		Outbox.findAll({
+			attributes: ['id', 'payload'],
+			where: {
+				kind: ['review_first', 'review_reminder'],
+				dispatched_at: { [Op.ne]: null, [Op.lt]: new Date(now - graceMs) },
+				attempts: { [Op.lt]: 6 },
+				'$log.id$': null
+			},
+			include: [{ model: MailLog, as: 'log', attributes: [], required: false }],
+			order: [['id', 'ASC']],
+			limit: 500,
+			subQuery: false
+		})
+	);
+	const due = rows.filter((r) => {
+		const nb = (r.payload as { notBefore?: number }).notBefore;
+		return typeof nb !== 'number' || nb < now - graceMs;
+	});
+	if (due.length === 0) return 0;
+	// Rows whose chain has ended would only be skipped again: leave them.
+	const live: number[] = [];
+	for (const r of due) {
+		const p = r.payload as unknown as ReviewMailPayload;
+		if (await loadState(p, p.reminderNo > 0)) live.push(r.id);
+	}
+	if (live.length) await write(() => Outbox.update({ dispatched_at: null }, { where: { id: live } }));
+	return live.length;
+}
