@@ -78,6 +78,8 @@ export async function deliver(job: MailJob): Promise<DeliveryResult> {
 	return result;
 }
 
+// Raw SQL on purpose (../models/mail.ts has the models): this is every e-mail's hot path, and each step is
+// one conditional statement whose affected-row count is the claim (INSERT IGNORE, UPDATE … WHERE status).
 async function deliverOnce(job: MailJob): Promise<DeliveryResult> {
 	const existing = await selectOne<{ status: string; stale: number }>(
 		`SELECT status, created_at < :before AS stale FROM mail_log WHERE idempotency_key = :key`,

@@ -13,7 +13,9 @@
  * Re-adding a job is idempotent (the job id is the idempotency key) and mail_log keeps every
  * message to one send.
  */
-import { exec, select } from '../db';
+import { Op, fn } from 'sequelize';
+import { models } from '../models';
+import { read, write } from './outbox';
 import { mailQueue } from './queue';
 import { claimLeaseMs } from './deliver';
 import { recoverLostReviewMail } from './reminders/scheduling';
@@ -31,32 +33,33 @@ export interface SweepResult {
 export async function sweepMail(graceMs = Number(process.env.MAIL_SWEEP_GRACE_MS ?? 60_000)): Promise<SweepResult> {
 	const before = new Date(Date.now() - claimLeaseMs());
 	const r: SweepResult = { claimsTakenBack: 0, markedUncertain: 0, redispatched: 0, failed: 0 };
+	const { Outbox, MailLog } = models();
 
 	// 1. abandoned claims: give the rows back to the dispatcher
-	const claims = await select<{ idempotency_key: string }>(`SELECT idempotency_key FROM mail_log WHERE status = 'claimed' AND created_at < :before`, {
-		before
-	});
+	const stale = { status: 'claimed' as const, created_at: { [Op.lt]: before } };
+	const claims = await read(() => MailLog.findAll({ attributes: ['idempotency_key'], where: stale }));
 	for (const c of claims) {
-		const { affected } = await exec(`DELETE FROM mail_log WHERE idempotency_key = :key AND status = 'claimed' AND created_at < :before`, {
-			key: c.idempotency_key,
-			before
-		});
-		if (affected === 1) {
-			await exec(`UPDATE outbox SET dispatched_at = NULL WHERE idempotency_key = :key AND failed_at IS NULL`, { key: c.idempotency_key });
+		const deleted = await write(() => MailLog.destroy({ where: { idempotency_key: c.idempotency_key, ...stale } }));
+		if (deleted === 1) {
+			await write(() => Outbox.update({ dispatched_at: null }, { where: { idempotency_key: c.idempotency_key, failed_at: null } }));
 			r.claimsTakenBack++;
 		}
 	}
 
 	// 2. abandoned sends: visibly uncertain, never sent again
-	r.markedUncertain = (await exec(`UPDATE mail_log SET status = 'uncertain' WHERE status = 'sending' AND sending_at < :before`, { before })).affected;
+	[r.markedUncertain] = await write(() => MailLog.update({ status: 'uncertain' }, { where: { status: 'sending', sending_at: { [Op.lt]: before } } }));
 
-	// 3. rows whose job is gone (other kinds; review mail has its own rule for ended chains)
-	const rows = await select<{ id: number; kind: string; idempotency_key: string; payload: unknown }>(
-		`SELECT o.id, o.kind, o.idempotency_key, o.payload FROM outbox o
-		   LEFT JOIN mail_log m ON m.idempotency_key = o.idempotency_key
-		  WHERE o.dispatched_at IS NOT NULL AND o.dispatched_at < :before AND o.failed_at IS NULL AND m.id IS NULL
-		  ORDER BY o.id LIMIT 500`,
-		{ before: new Date(Date.now() - graceMs) }
+	// 3. rows whose job is gone (other kinds; review mail has its own rule for ended chains): handed to
+	// the queue, not failed, and nothing logged for them (the LEFT JOIN … IS NULL of the association)
+	const rows = await read(() =>
+		Outbox.findAll({
+			attributes: ['id', 'kind', 'idempotency_key'],
+			where: { dispatched_at: { [Op.ne]: null, [Op.lt]: new Date(Date.now() - graceMs) }, failed_at: null, '$log.id$': null },
+			include: [{ model: MailLog, as: 'log', attributes: [], required: false }],
+			order: [['id', 'ASC']],
+			limit: 500,
+			subQuery: false
+		})
 	);
 	const gone: number[] = [];
 	for (const row of rows.filter((x) => !REVIEW_KINDS.has(x.kind))) {
@@ -67,23 +70,20 @@ export async function sweepMail(graceMs = Number(process.env.MAIL_SWEEP_GRACE_MS
 		}
 		const state = await job.getState();
 		if (state === 'failed') {
-			await exec(`UPDATE outbox SET failed_at = CURRENT_TIMESTAMP(3), last_error = :e WHERE id = :id AND failed_at IS NULL`, {
-				id: row.id,
-				e: (job.failedReason ?? 'failed').slice(0, 500)
-			});
+			const lastError = (job.failedReason ?? 'failed').slice(0, 500);
+			await write(() => Outbox.update({ failed_at: fn('CURRENT_TIMESTAMP', 3), last_error: lastError }, { where: { id: row.id, failed_at: null } }));
 			r.failed++;
 		}
 		// waiting, delayed, active: BullMQ has it; completed ('skipped': nothing to send): done
 	}
-	if (gone.length) await exec(`UPDATE outbox SET dispatched_at = NULL WHERE id IN (:ids)`, { ids: gone });
+	if (gone.length) await write(() => Outbox.update({ dispatched_at: null }, { where: { id: gone } }));
 	r.redispatched = gone.length + (await recoverLostReviewMail(graceMs));
 	return r;
 }
 
 /** A job that failed for good (every retry refused): its outbox row is marked failed, with the reason. */
 export async function markMailFailed(key: string, reason: string): Promise<void> {
-	await exec(`UPDATE outbox SET failed_at = CURRENT_TIMESTAMP(3), last_error = :reason WHERE idempotency_key = :key AND failed_at IS NULL`, {
-		key,
-		reason: reason.slice(0, 500)
-	});
+	await write(() =>
+		models().Outbox.update({ failed_at: fn('CURRENT_TIMESTAMP', 3), last_error: reason.slice(0, 500) }, { where: { idempotency_key: key, failed_at: null } })
+	);
 }
