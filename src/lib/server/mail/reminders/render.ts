@@ -16,21 +16,14 @@ import { KIND_EXPLANATIONS, kindName as vocabularyKindName, type Kind } from '..
 import { FIELD_LABELS, fieldWords } from '../../../status';
 import { dateTimeIn } from '../../../dates';
 import { passValues } from '../../protocols/decisions';
+import type { DiscrepancyRow } from '../../models/protocol';
 import type { MailDetail } from './settings';
 import type { ReviewMailPayload } from './keys';
 
 /** The columns of an open discrepancy a message shows (a `discrepancies` row, plus its test's name). */
-export interface MailDiscrepancy {
-	test_code: string;
+export type MailDiscrepancy = Pick<DiscrepancyRow, 'test_code' | 'field' | 'pass' | 'kind' | 'value' | 'other' | 'expected' | 'out_of_range'> & {
 	test_name: string | null;
-	field: string;
-	pass: 'first' | 'second' | 'both';
-	kind: string;
-	value: string | null;
-	other: string | null;
-	expected: string | null;
-	out_of_range: number | boolean;
-}
+};
 
 export interface ReviewMailContent {
 	reminderNo: number;
