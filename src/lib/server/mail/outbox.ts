@@ -5,17 +5,22 @@
  * message twice (a retried request) is a no-op.
  */
 import { fn, literal } from 'sequelize';
-import type { Tx } from '../db';
+import { exec, type Tx } from '../db';
 import { withRetry } from '../tx';
 import { models } from '../models';
-import type { MailKind, Outbox } from '../models/mail';
+import { MAIL_KINDS, type MailKind, type Outbox } from '../models/mail';
 
 export type { MailKind } from '../models/mail';
 
 export async function enqueueMail(kind: MailKind, idempotencyKey: string, payload: Record<string, unknown>, t?: Tx): Promise<void> {
-	// INSERT IGNORE: the unique idempotency key makes a second write of the same message a no-op
-	const insert = () => models().Outbox.create({ kind, idempotency_key: idempotencyKey, payload }, { transaction: t ?? undefined, ignoreDuplicates: true });
-	await (t ? insert() : write(insert));
+	// INSERT IGNORE (the unique key makes a second write a no-op), raw: every business transaction that
+	// mails and every review e-mail sent writes one, and the model's build and validation cost CPU there
+	if (!MAIL_KINDS.includes(kind)) throw new Error(`unknown mail kind ${kind}`);
+	await exec(
+		`INSERT IGNORE INTO outbox (kind, idempotency_key, payload) VALUES (:kind, :key, :payload)`,
+		{ kind, key: idempotencyKey, payload: JSON.stringify(payload) },
+		t
+	);
 }
 
 /** A model read outside a transaction, retried as `select` is (../db.ts): safe to run again. */

@@ -21,6 +21,7 @@
 import { Op } from 'sequelize';
 import { select, selectOne, type Tx } from '../../db';
 import { models } from '../../models';
+import type { Outbox } from '../../models/mail';
 import { enqueueMail, read, write } from '../outbox';
 import type { DeliveryResult, MailJob } from '../deliver';
 import type { ProtocolRow } from '../../models/protocol';
@@ -30,14 +31,12 @@ import { chainOf, chainOfKey, reviewMailKey, roundPrefix, type ReviewMailPayload
 
 /** The chain whose first e-mail was written last for this protocol round (the current one). */
 async function currentChain(protocolId: number, round: number, t?: Tx): Promise<string | null> {
-	const find = () =>
-		models().Outbox.findOne({
-			attributes: ['idempotency_key'],
-			where: { idempotency_key: { [Op.like]: `${roundPrefix(protocolId, round)}%` }, kind: 'review_first' },
-			order: [['id', 'DESC']],
-			transaction: t ?? undefined
-		});
-	const row = await (t ? find() : read(find));
+	// raw: read twice for every review e-mail (render and scheduling), where the model's overhead shows
+	const row = await selectOne<Pick<Outbox, 'idempotency_key'>>(
+		`SELECT idempotency_key FROM outbox WHERE idempotency_key LIKE :prefix AND kind = 'review_first' ORDER BY id DESC LIMIT 1`,
+		{ prefix: `${roundPrefix(protocolId, round)}%` },
+		t
+	);
 	return row ? chainOfKey(row.idempotency_key) : null;
 }
 
