@@ -224,6 +224,23 @@ export async function storeDiscrepancies(p: Pick<ProtocolRow, 'id' | 'round'>, r
 	}
 }
 
+/** The reconciliation is stored: the protocol goes to review, and the trail says so with the counts. */
+async function enterReview(p: Protocol, user: Actor, summary: Record<string, unknown>, t: Transaction): Promise<void> {
+	const from = await moveProtocol(p, 'in_review', t);
+	await recordEvent(
+		{
+			actorId: user.id,
+			entity: 'protocol',
+			entityId: p.id,
+			protocolId: p.id,
+			action: 'reconcile',
+			oldValue: from,
+			newValue: { status: 'in_review', round: p.round, ...summary }
+		},
+		t
+	);
+}
+
 /**
  * Compare-and-set of the protocol's status: saved under the lock_version this transaction read (every
  * change of status or round moves it), so it moves only from the state it was read in. Returns the
@@ -299,19 +316,7 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 			const outcome = await decideAtFirstSubmit(p, scores, pass.fields_entered, user, t);
 			if (outcome === 'not_drawn') {
 				const single = await reconcileSinglePass(p, { id: pass.id, scorer_id: pass.scorer_id, fields_entered: pass.fields_entered, scores }, user, t);
-				const from = await moveProtocol(p, 'in_review', t);
-				await recordEvent(
-					{
-						actorId: user.id,
-						entity: 'protocol',
-						entityId: p.id,
-						protocolId: p.id,
-						action: 'reconcile',
-						oldValue: from,
-						newValue: { status: 'in_review', round: p.round, single_pass: true, ...single.summary }
-					},
-					t
-				);
+				await enterReview(p, user, { single_pass: true, ...single.summary }, t);
 				await notifyReviewStarted(p.id, p.round, p.reviewer_id, t);
 				return { which, status: 'in_review' as const, discrepancies: single.discrepancies.length, singlePass: true };
 			}
@@ -340,19 +345,7 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 			throw e;
 		}
 		await storeDiscrepancies(p, result, t);
-		const from = await moveProtocol(p, 'in_review', t);
-		await recordEvent(
-			{
-				actorId: user.id,
-				entity: 'protocol',
-				entityId: p.id,
-				protocolId: p.id,
-				action: 'reconcile',
-				oldValue: from,
-				newValue: { status: 'in_review', round: p.round, ...result.summary }
-			},
-			t
-		);
+		await enterReview(p, user, result.summary, t);
 		await recordSubmission(p.id, p.round, t);
 		await afterReconcile(p, t);
 		await notifyReviewStarted(p.id, p.round, p.reviewer_id, t);
