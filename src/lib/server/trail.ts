@@ -1,5 +1,8 @@
 /** The append-only trail of every change (table audit_events; the app's database user may only SELECT and INSERT there). */
-import { exec, type Tx } from './db';
+import type { Transaction } from 'sequelize';
+import { type Tx } from './db';
+import { withRetry } from './tx';
+import { trailRows } from './models/trail';
 
 export interface TrailEvent {
 	actorId: number | null;
@@ -12,20 +15,31 @@ export interface TrailEvent {
 	reason?: string | null;
 }
 
+/** Add an event to the trail, in the caller's transaction (a change and its event commit together). */
 export async function recordEvent(e: TrailEvent, t?: Tx): Promise<void> {
-	await exec(
-		`INSERT INTO audit_events (actor_id, entity, entity_id, action, protocol_id, old_value, new_value, reason)
-		 VALUES (:actor, :entity, :entityId, :action, :protocolId, :oldValue, :newValue, :reason)`,
-		{
-			actor: e.actorId,
-			entity: e.entity,
-			entityId: String(e.entityId),
-			action: e.action,
-			protocolId: e.protocolId ?? null,
-			oldValue: e.oldValue === undefined ? null : JSON.stringify(e.oldValue),
-			newValue: e.newValue === undefined ? null : JSON.stringify(e.newValue),
-			reason: e.reason ?? null
-		},
-		t
-	);
+	const row = {
+		actor_id: e.actorId,
+		entity: e.entity,
+		entity_id: String(e.entityId),
+		action: e.action,
+		protocol_id: e.protocolId ?? null,
+		old_value: e.oldValue === undefined ? null : JSON.stringify(e.oldValue),
+		new_value: e.newValue === undefined ? null : JSON.stringify(e.newValue),
+		reason: e.reason ?? null
+	};
+	const create = (transaction?: Transaction) => trailRows().create(row, { transaction });
+	if (t) {
+		await create(t);
+		return;
+	}
+	// on its own it commits as it runs: a deadlock or certification conflict (1213) means it was not applied
+	await withRetry((_n, committing) => {
+		committing();
+		return create();
+	});
+}
+
+/** How many events the trail holds for one entity (e.g. the standing changes of a scorer on a battery). */
+export async function countEvents(entity: string, entityId: string, t?: Tx): Promise<number> {
+	return trailRows().count({ where: { entity, entity_id: entityId }, transaction: t ?? undefined });
 }

@@ -14,7 +14,7 @@ import { randomInt } from 'node:crypto';
 import { z } from 'zod';
 import type { Transaction } from 'sequelize';
 import { select, selectOne, exec, transaction, type Tx } from '../db';
-import { recordEvent } from '../trail';
+import { countEvents, recordEvent } from '../trail';
 import { verificationModels, type DrawOutcome } from '../models/verification';
 import { models } from '../models';
 import {
@@ -203,13 +203,9 @@ async function setStanding(scorerId: number, batteryId: number, mode: 'full' | '
 /** Put a scorer back on full double entry at once and e-mail the leads (through the outbox). */
 async function backToFull(scorerId: number, batteryId: number, reason: string, t: Transaction) {
 	await setStanding(scorerId, batteryId, 'full', reason, true, t);
-	// how many times the standing moved (an aggregate over the trail): makes the e-mail's key unique
-	const n = await selectOne<{ n: number }>(
-		"SELECT COUNT(*) AS n FROM audit_events WHERE entity = 'verification_scorer' AND entity_id = :e",
-		{ e: `${scorerId}:${batteryId}` },
-		t
-	);
-	await enqueueMail('verification_full', `verification-full:${scorerId}:${batteryId}:${n?.n ?? 0}`, { scorerId, batteryId, reason }, t);
+	// how many times the standing moved (counted on the trail): makes the e-mail's key unique
+	const n = await countEvents('verification_scorer', `${scorerId}:${batteryId}`, t);
+	await enqueueMail('verification_full', `verification-full:${scorerId}:${batteryId}:${n}`, { scorerId, batteryId, reason }, t);
 }
 
 /**
