@@ -18,21 +18,7 @@ import {
 	type Sequelize
 } from 'sequelize';
 import type { NormTableRow, Composite } from './index';
-
-/** A LONGTEXT column with MariaDB's JSON_VALID check: parsed on read, written as JSON text. */
-export function jsonColumn(name: string, allowNull = false): ModelAttributeColumnOptions {
-	return {
-		type: DataTypes.TEXT('long'),
-		allowNull,
-		get(this: Model) {
-			const v = this.getDataValue(name as never) as unknown;
-			return typeof v === 'string' ? JSON.parse(v) : (v ?? null);
-		},
-		set(this: Model, v: unknown) {
-			this.setDataValue(name as never, (v === null || v === undefined ? null : JSON.stringify(v)) as never);
-		}
-	};
-}
+import { jsonColumn } from './columns';
 
 /** A DECIMAL column read as a JS number (null stays null). */
 export function decimalColumn(name: string, precision: number, scale: number, allowNull = false): ModelAttributeColumnOptions {

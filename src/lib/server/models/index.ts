@@ -5,6 +5,7 @@
  */
 import { DataTypes, Model, type CreationOptional, type InferAttributes, type InferCreationAttributes } from 'sequelize';
 import { db } from '../db';
+import { jsonColumn } from './columns';
 import { initAuditStatsModels } from './audit-stats';
 import { amendments } from './amendment';
 import { initProtocolModels, PROTOCOL_MODELS } from './protocol';
@@ -56,18 +57,6 @@ export class ProtocolComposite extends Model<InferAttributes<ProtocolComposite>,
 	declare definition: FrozenComposite;
 	declare norm_group_id: number | null;
 }
-
-const jsonColumn = (name: string, allowNull = false) => ({
-	type: DataTypes.TEXT('long'),
-	allowNull,
-	get(this: Model) {
-		const v = this.getDataValue(name as never) as unknown;
-		return typeof v === 'string' ? JSON.parse(v) : v;
-	},
-	set(this: Model, v: unknown) {
-		this.setDataValue(name as never, (v === null || v === undefined ? v : JSON.stringify(v)) as never);
-	}
-});
 
 /** The connection the models were last initialised on (closeDb() makes a new one). */
 let bound: ReturnType<typeof db> | null = null;

@@ -5,7 +5,7 @@
  * Bound by `models()` in ./index.ts.
  */
 import { DataTypes, Model, type CreationOptional, type InferAttributes, type InferCreationAttributes, type NonAttribute, type Sequelize } from 'sequelize';
-import { jsonColumn } from './catalog';
+import { jsonColumn } from './columns';
 
 export class User extends Model<InferAttributes<User>, InferCreationAttributes<User>> {
 	declare id: CreationOptional<number>;

@@ -23,6 +23,7 @@ import {
 import { withRetry } from '../tx';
 import type { Field } from '../../scoring/scales';
 import { KINDS, type Kind } from '../../scoring/kinds';
+import { jsonColumn } from './columns';
 
 export type Status = 'draft' | 'awaiting_second' | 'in_review' | 'verified';
 export type Which = 'first' | 'second';
@@ -31,18 +32,6 @@ export type SettledBy = 'raw_decision' | 'amendment';
 
 const FIELDS = ['raw', 'z', 'standard', 'scaled', 't', 'percentile', 'sum'] as const;
 
-/** A LONGTEXT column holding JSON (CHECK JSON_VALID in the table): parsed on read, written as text. */
-const jsonText = (name: string, allowNull: boolean) => ({
-	type: DataTypes.TEXT('long'),
-	allowNull,
-	get(this: Model) {
-		const v = this.getDataValue(name as never) as unknown;
-		return typeof v === 'string' ? JSON.parse(v) : v;
-	},
-	set(this: Model, v: unknown) {
-		this.setDataValue(name as never, (v === null || v === undefined ? v : JSON.stringify(v)) as never);
-	}
-});
 // factories, not shared objects: Model.init writes into each attribute's definition (its `field`)
 const id = () => ({ type: DataTypes.INTEGER.UNSIGNED, autoIncrement: true, primaryKey: true });
 const ref = (allowNull = false) => ({ type: DataTypes.INTEGER.UNSIGNED, allowNull });
@@ -179,7 +168,7 @@ export function initProtocolModels(sequelize: Sequelize, others: { ProtocolCompo
 			test_date: { type: DataTypes.DATEONLY, allowNull: false },
 			age_text: text(20, false),
 			age_months: { type: DataTypes.INTEGER.UNSIGNED, allowNull: false },
-			covariates: jsonText('covariates', true),
+			covariates: jsonColumn('covariates', true),
 			status: { type: DataTypes.ENUM('draft', 'awaiting_second', 'in_review', 'verified'), allowNull: false, defaultValue: 'draft' },
 			round: { type: DataTypes.INTEGER.UNSIGNED, allowNull: false, defaultValue: 1 },
 			first_scorer_id: ref(),
@@ -225,7 +214,7 @@ export function initProtocolModels(sequelize: Sequelize, others: { ProtocolCompo
 			which: { type: DataTypes.ENUM('first', 'second'), allowNull: false },
 			scorer_id: ref(),
 			status: { type: DataTypes.ENUM('draft', 'submitted'), allowNull: false, defaultValue: 'draft' },
-			scores: jsonText('scores', false),
+			scores: jsonColumn('scores', false),
 			fields_entered: { type: DataTypes.INTEGER.UNSIGNED, allowNull: false, defaultValue: 0 },
 			draft_version: { type: DataTypes.INTEGER.UNSIGNED, allowNull: false, defaultValue: 0 },
 			submitted_at: { type: DataTypes.DATE(3), allowNull: true },
