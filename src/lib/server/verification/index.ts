@@ -12,10 +12,11 @@
  */
 import { randomInt } from 'node:crypto';
 import { z } from 'zod';
-import type { Transaction } from 'sequelize';
+import { Op, type Transaction } from 'sequelize';
 import { select, selectOne, exec, transaction, type Tx } from '../db';
 import { countEvents, recordEvent } from '../trail';
 import { verificationModels, type DrawOutcome } from '../models/verification';
+import { dbNow, saveLocked } from '../models/protocol';
 import { models } from '../models';
 import {
 	DEFAULT_POLICY,
@@ -397,8 +398,7 @@ export async function afterReconcile(p: ProtocolRow, t: Transaction) {
 		const n = Number(row.raw_fields ?? 0);
 		const s = await standing(p.first_scorer_id, p.battery_id, t);
 		if (s.mode === 'sampled' && protocolAboveThreshold(x, n, Number(row.policy?.thresholdPer100 ?? policy.thresholdPer100))) {
-			// examinees, discrepancies and protocols are the protocol side's tables (models of their own, with the protocol models)
-			const code = await selectOne<{ code: string }>('SELECT e.code FROM examinees e WHERE e.id = :id', { id: p.examinee_id }, t);
+			const code = await models().Examinee.findByPk(p.examinee_id, { attributes: ['code'], transaction: t });
 			await backToFull(
 				p.first_scorer_id,
 				p.battery_id,
@@ -415,14 +415,10 @@ export async function afterReconcile(p: ProtocolRow, t: Transaction) {
 
 /** A raw-score discrepancy was resolved: the scorers' rolling records changed. */
 export async function afterResolution(discrepancyId: number, t: Transaction) {
-	// the protocol side's tables (see afterReconcile)
-	const d = await selectOne<{ field: string; protocol_id: number }>('SELECT field, protocol_id FROM discrepancies WHERE id = :id', { id: discrepancyId }, t);
+	const { Discrepancy, Protocol } = models();
+	const d = await Discrepancy.findByPk(discrepancyId, { attributes: ['field', 'protocol_id'], transaction: t });
 	if (!d || d.field !== 'raw') return;
-	const p = await selectOne<{ battery_id: number; first_scorer_id: number; second_scorer_id: number }>(
-		'SELECT battery_id, first_scorer_id, second_scorer_id FROM protocols WHERE id = :id',
-		{ id: d.protocol_id },
-		t
-	);
+	const p = await Protocol.findByPk(d.protocol_id, { attributes: ['battery_id', 'first_scorer_id', 'second_scorer_id'], transaction: t });
 	if (!p) return;
 	const policy = await getPolicy(p.battery_id, t);
 	if (policy.mode !== 'sampled') return;
@@ -502,23 +498,17 @@ export async function requireSecondPass(protocolId: number, actor: Actor, reason
 		}
 		if (row?.outcome !== 'not_drawn' || p.status !== 'in_review')
 			throw conflict('This protocol already gets a second pass (or is signed off: reopen it first).');
-		// the protocol side's tables: a COUNT, then the round's findings and summaries go (bulk deletes) and the status moves under its lock
-		const resolved = await selectOne<{ n: number }>(
-			'SELECT COUNT(*) AS n FROM discrepancies WHERE protocol_id = :p AND round = :r AND resolved_at IS NOT NULL',
-			{ p: p.id, r: p.round },
-			t
-		);
-		if (Number(resolved?.n) > 0)
-			throw conflict('The reviewer has already resolved findings of this single pass; a second pass can be required only before any decision.');
-		await exec('DELETE FROM discrepancies WHERE protocol_id = :p AND round = :r', { p: p.id, r: p.round }, t);
+		const { Discrepancy } = models();
+		const round = { protocol_id: p.id, round: p.round };
+		const resolved = await Discrepancy.count({ where: { ...round, resolved_at: { [Op.ne]: null } }, transaction: t });
+		if (resolved > 0) throw conflict('The reviewer has already resolved findings of this single pass; a second pass can be required only before any decision.');
+		await Discrepancy.destroy({ where: round, transaction: t });
 		await applyToDaily({ protocolId: p.id, round: p.round }, -1, t);
+		// the audit's row-level table, bulk delete of the round
 		await exec('DELETE FROM audit_fields WHERE protocol_id = :p AND round = :r', { p: p.id, r: p.round }, t);
-		const moved = await exec(
-			`UPDATE protocols SET status = 'awaiting_second', status_changed_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1 WHERE id = :id AND status = 'in_review' AND lock_version = :lock`,
-			{ id: p.id, lock: p.lock_version },
-			t
-		);
-		if (moved.affected !== 1) throw conflict('This protocol changed at the same moment elsewhere. Reload to see its state.');
+		// compare-and-set under the lock_version read with the row lock (the model's version)
+		p.set({ status: 'awaiting_second', status_changed_at: dbNow() });
+		await saveLocked(p, t, () => conflict('This protocol changed at the same moment elsewhere. Reload to see its state.'));
 		await VerificationProtocol.update(
 			{ outcome: 'required', required_by: actor.id, required_at: new Date(), required_reason: reason },
 			{ where: { protocol_id: p.id }, transaction: t }
