@@ -62,9 +62,17 @@ describe('Audit filters in the address', () => {
 		await page.goto(`${BASE_URL}/audit?from=2023-02-30`);
 		await expect(page.locator('#e-from').textContent()).resolves.toContain('2023-02-30 does not exist');
 		await expect(page.getByTestId('filter-errors').textContent()).resolves.toContain('From');
-		await page.goto(`${BASE_URL}/audit`);
+		await page.goto(`${BASE_URL}/audit`, { waitUntil: 'networkidle' });
 		await expect(page.getByTestId('table-scorers').isVisible()).resolves.toBe(true);
-		expect(await page.evaluate(() => document.documentElement.scrollWidth <= innerWidth)).toBe(true);
+		// the charts measure their box and redraw at its width after the first paint (as widths.test.ts
+		// settles before it judges): wait up to 15 s for the page to stop scrolling sideways
+		const fits = await page
+			.waitForFunction(() => document.documentElement.scrollWidth <= innerWidth, undefined, { timeout: 15_000 })
+			.then(
+				() => true,
+				() => false
+			);
+		expect(fits, `the page is ${await page.evaluate(() => document.documentElement.scrollWidth)} px wide at 390 px`).toBe(true);
 		await page.screenshot({ path: `${SCREENS}/audit-390.png`, fullPage: true });
 		await page.context().close();
 	}, 120_000);
