@@ -6,7 +6,9 @@
  * with 1213 (so the first test's success is the retry's doing, not luck of timing).
  */
 import { afterAll, describe, expect, it } from 'vitest';
-import { select, transaction, closeDb, exec } from '../../src/lib/server/db';
+import { literal } from 'sequelize';
+import { autocommit, db, select, transaction, closeDb, exec } from '../../src/lib/server/db';
+import { models } from '../../src/lib/server/models';
 import { txRetryStats, withRetry, isRetryableConflict } from '../../src/lib/server/tx';
 
 afterAll(async () => {
@@ -120,6 +122,57 @@ describe('transaction retry on a real deadlock (1213)', () => {
 			)
 		).rejects.toBe(lost);
 		expect(calls).toBe(1);
+	});
+});
+
+describe('one model write outside a transaction (db.ts autocommit)', () => {
+	// A single UPDATE of two rows locks them in key order (low id, then high id). Transaction T holds
+	// the high row and asks for the low one while the UPDATE waits for the high one: a real deadlock.
+	// InnoDB rolls back the lighter side — the UPDATE, which has changed nothing, against T's 40
+	// inserted rows — and answers it 1213. T is always rolled back, so nothing of it stays.
+	async function crossingUpdate(update: () => Promise<unknown>): Promise<unknown> {
+		const [lo, hi] = await twoUsers();
+		const t = await db().transaction();
+		try {
+			await exec(`INSERT INTO commit_markers (id) VALUES ${Array.from({ length: 40 }, (_, i) => `('tx-test-${Date.now()}-${i}')`).join(',')}`, {}, t);
+			await exec('UPDATE users SET session_version = session_version + 0 WHERE id = :id', { id: hi }, t);
+			const waiting = update().then(
+				(v) => ({ ok: v }),
+				(e: unknown) => ({ error: e })
+			);
+			await new Promise((r) => setTimeout(r, 400)); // the UPDATE now holds `lo` and waits for `hi`
+			await select('SELECT id FROM users WHERE id = :id FOR UPDATE', { id: lo }, t);
+			await t.rollback();
+			return await waiting;
+		} catch (e) {
+			await t.rollback().catch(() => {});
+			throw e;
+		}
+	}
+	const touchBoth = async () => {
+		const [lo, hi] = await twoUsers();
+		return models().User.update({ session_version: literal('session_version + 0') }, { where: { id: [lo, hi] } });
+	};
+
+	it('without the helper the crossing UPDATE is the deadlock victim (MariaDB error 1213)', async () => {
+		const out = (await crossingUpdate(touchBoth)) as { error?: { original?: { errno?: number } } };
+		expect(out.error?.original?.errno).toBe(1213);
+	});
+
+	it('through autocommit() the same UPDATE is run again after the deadlock and succeeds; one 1213 retry is counted', async () => {
+		const before = txRetryStats.byCode['1213'] ?? 0;
+		let calls = 0;
+		const out = (await crossingUpdate(() =>
+			autocommit(() => {
+				calls++;
+				return touchBoth();
+			})
+		)) as { ok?: unknown; error?: unknown };
+		expect(out.error).toBeUndefined();
+		// two rows matched (Sequelize answers [affected rows]; a no-op change still matches both)
+		expect(Array.isArray(out.ok)).toBe(true);
+		expect(calls).toBe(2);
+		expect((txRetryStats.byCode['1213'] ?? 0) - before).toBe(1);
 	});
 });
 

@@ -52,6 +52,24 @@ export async function selectOne<T = Record<string, unknown>>(sql: string, replac
 	return rows[0] ?? null;
 }
 
+/**
+ * A read through the models outside a transaction, retried as `select` is (a read is safe to run
+ * again). Inside a transaction pass the transaction to the model call instead: its retry decides.
+ */
+export const readRetried = <T>(run: () => Promise<T>): Promise<T> => withRetry(() => run());
+
+/**
+ * ONE model write outside a transaction (it commits as it runs), retried as `exec` is: on a deadlock
+ * or Galera certification conflict (1213), a lock wait timeout (1205) or a joining node, never after a
+ * lost connection (its outcome is unknown). Two or more writes that belong together go in
+ * `transaction()` instead, never in two of these.
+ */
+export const autocommit = <T>(run: () => Promise<T>): Promise<T> =>
+	withRetry((_n, committing) => {
+		committing();
+		return run();
+	});
+
 /** INSERT/UPDATE/DELETE: returns the insert id and the number of affected rows. */
 export async function exec(sql: string, replacements: Params = {}, transaction?: Tx): Promise<{ insertId: number; affected: number }> {
 	const run = () => db().query(sql, { replacements, transaction: transaction ?? undefined, raw: true }) as Promise<unknown[]>;

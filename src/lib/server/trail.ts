@@ -1,7 +1,6 @@
 /** The append-only trail of every change (table audit_events; the app's database user may only SELECT and INSERT there). */
 import type { Transaction } from 'sequelize';
-import { type Tx } from './db';
-import { withRetry } from './tx';
+import { autocommit, type Tx } from './db';
 import { trailRows } from './models/trail';
 
 export interface TrailEvent {
@@ -32,11 +31,8 @@ export async function recordEvent(e: TrailEvent, t?: Tx): Promise<void> {
 		await create(t);
 		return;
 	}
-	// on its own it commits as it runs: a deadlock or certification conflict (1213) means it was not applied
-	await withRetry((_n, committing) => {
-		committing();
-		return create();
-	});
+	// on its own it commits as it runs (../db.ts autocommit: retried on a conflict, which means it was not applied)
+	await autocommit(() => create());
 }
 
 /** How many events the trail holds for one entity (e.g. the standing changes of a scorer on a battery). */

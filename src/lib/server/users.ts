@@ -1,9 +1,8 @@
 /** Accounts: look-up, credentials, roles, invitations and password resets. */
 import bcrypt from 'bcryptjs';
 import { createHash, randomBytes } from 'node:crypto';
-import { literal, Op } from 'sequelize';
-import { transaction, type Tx } from './db';
-import { withRetry } from './tx';
+import { literal, Op, type Transaction } from 'sequelize';
+import { autocommit, transaction, type Tx } from './db';
 import { models } from './models';
 import type { User as UserModel } from './models/people';
 import { config } from './config';
@@ -49,11 +48,7 @@ export async function verifyCredentials(email: string, password: string): Promis
 	const row = await models().User.findOne({ where: { email: email.toLowerCase() } });
 	const ok = await bcrypt.compare(password, row?.password_hash ?? (await dummy()));
 	if (!row || !row.password_hash || !ok || !row.active) return null;
-	// a statement on its own: retried on a deadlock or write conflict, as db.ts exec() does
-	await withRetry((_n, committing) => {
-		committing();
-		return row.update({ last_sign_in_at: new Date() });
-	});
+	await autocommit(() => row.update({ last_sign_in_at: new Date() }));
 	return toUser(row);
 }
 
@@ -92,17 +87,21 @@ export function hashPassword(password: string): Promise<string> {
 	return bcrypt.hash(password, Math.max(12, config.bcryptCost));
 }
 
+/** The account and its trail event together: in the caller's transaction, or in one of its own. */
 export async function createUser(input: { email: string; name: string; roles: Role[]; password?: string }, actorId: number | null, t?: Tx): Promise<number> {
 	const hash = input.password ? await hashPassword(input.password) : null;
-	const { id: insertId } = await models().User.create(
-		{ email: input.email.toLowerCase(), name: input.name, roles: input.roles.join(','), password_hash: hash },
-		{ transaction: tx_(t) }
-	);
-	await recordEvent(
-		{ actorId, entity: 'user', entityId: insertId, action: 'create', newValue: { email: input.email, name: input.name, roles: input.roles } },
-		t
-	);
-	return insertId;
+	const run = async (tr: Transaction) => {
+		const { id: insertId } = await models().User.create(
+			{ email: input.email.toLowerCase(), name: input.name, roles: input.roles.join(','), password_hash: hash },
+			{ transaction: tr }
+		);
+		await recordEvent(
+			{ actorId, entity: 'user', entityId: insertId, action: 'create', newValue: { email: input.email, name: input.name, roles: input.roles } },
+			tr
+		);
+		return insertId;
+	};
+	return t ? run(t) : transaction(run);
 }
 
 // Every change to an account that the session check reads (roles, active, session version) calls
@@ -131,10 +130,7 @@ export async function setActive(id: number, active: boolean, actorId: number): P
 
 /** End every session of this account at its next request (sign-out when Redis cannot be reached). */
 export async function endAllSessions(id: number): Promise<void> {
-	await withRetry((_n, committing) => {
-		committing();
-		return models().User.increment('session_version', { where: { id } });
-	});
+	await autocommit(() => models().User.increment('session_version', { where: { id } }));
 	// called when Redis is not reachable: the cached state expires within STATE_TTL, and until
 	// Redis answers again every request of this account is refused (503) anyway
 	await invalidateUserAfterCommit(id);
@@ -147,11 +143,15 @@ export async function issueToken(userId: number, purpose: 'invite' | 'reset', ho
 	const token = randomBytes(32).toString('base64url');
 	const { UserToken } = models();
 	const now = new Date();
-	await UserToken.update({ used_at: now }, { where: { user_id: userId, purpose, used_at: null }, transaction: tx_(t) });
-	await UserToken.create(
-		{ user_id: userId, purpose, token_hash: sha256(token), expires_at: new Date(now.getTime() + hours * 3_600_000) },
-		{ transaction: tx_(t) }
-	);
+	// the older tokens are spent and the new one stored together (a new link voids the old ones)
+	const run = async (tr: Transaction) => {
+		await UserToken.update({ used_at: now }, { where: { user_id: userId, purpose, used_at: null }, transaction: tr });
+		await UserToken.create(
+			{ user_id: userId, purpose, token_hash: sha256(token), expires_at: new Date(now.getTime() + hours * 3_600_000) },
+			{ transaction: tr }
+		);
+	};
+	await (t ? run(t) : transaction(run));
 	return token;
 }
 

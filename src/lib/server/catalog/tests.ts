@@ -4,7 +4,7 @@
  * in place. Name, unit, domain and notes never make a version.
  */
 import { Op } from 'sequelize';
-import { select, transaction, type Tx } from '../db';
+import { isUniqueViolation, select, transaction, type Tx } from '../db';
 import { recordEvent } from '../trail';
 import { canonicalReported, testInputSchema, type Bounds, type Derived, type TestInput } from '../../catalog/schema';
 import { models } from '../models';
@@ -188,12 +188,17 @@ export async function listDomains(tx?: Tx): Promise<DomainRecord[]> {
 }
 
 export async function createDomain(input: { code: string; name: string }, actorId: number | null): Promise<void> {
-	if (await domainExists(input.code))
-		throw new ServiceError(409, 'That domain already exists.', { code: `The domain ${input.code} already exists` }, 'conflict');
-	const { Domain } = models();
-	const last = Number((await Domain.max('position')) ?? 0);
-	await Domain.create({ code: input.code, name: input.name, position: last + 10 });
-	await recordEvent({ actorId, entity: 'domain', entityId: input.code, action: 'create', newValue: input });
+	const exists = () => new ServiceError(409, 'That domain already exists.', { code: `The domain ${input.code} already exists` }, 'conflict');
+	// the row and its trail event together; the unique key settles two creations at once
+	await transaction(async (t) => {
+		if (await domainExists(input.code, t)) throw exists();
+		const { Domain } = models();
+		const last = Number((await Domain.max('position', { transaction: t })) ?? 0);
+		await Domain.create({ code: input.code, name: input.name, position: last + 10 }, { transaction: t });
+		await recordEvent({ actorId, entity: 'domain', entityId: input.code, action: 'create', newValue: input }, t);
+	}).catch((e) => {
+		throw isUniqueViolation(e) ? exists() : e;
+	});
 }
 
 function boundsKey(b: Bounds | null | undefined): string {

@@ -5,8 +5,7 @@
  * message twice (a retried request) is a no-op.
  */
 import { fn, literal } from 'sequelize';
-import { exec, type Tx } from '../db';
-import { withRetry } from '../tx';
+import { autocommit as write, exec, readRetried as read, type Tx } from '../db';
 import { models } from '../models';
 import { MAIL_KINDS, type MailKind, type Outbox } from '../models/mail';
 
@@ -22,15 +21,6 @@ export async function enqueueMail(kind: MailKind, idempotencyKey: string, payloa
 		t
 	);
 }
-
-/** A model read outside a transaction, retried as `select` is (../db.ts): safe to run again. */
-export const read = <T>(run: () => Promise<T>): Promise<T> => withRetry(() => run());
-/** A single model write outside a transaction, retried as `exec` is: on 1213 only, never after a lost connection. */
-export const write = <T>(run: () => Promise<T>): Promise<T> =>
-	withRetry((_n, committing) => {
-		committing();
-		return run();
-	});
 
 /** Rows the dispatcher has not handed to the queue yet, oldest first. */
 export async function pendingOutbox(limit = 200): Promise<Pick<Outbox, 'id' | 'kind' | 'idempotency_key' | 'payload' | 'created_at'>[]> {

@@ -15,7 +15,7 @@
  */
 import { Op, fn } from 'sequelize';
 import { models } from '../models';
-import { read, write } from './outbox';
+import { autocommit as write, readRetried as read } from '../db';
 import { mailQueue } from './queue';
 import { claimLeaseMs } from './deliver';
 import { recoverLostReviewMail } from './reminders/scheduling';

@@ -4,7 +4,7 @@
  */
 import { DataTypes, Model, Op, type CreationOptional, type InferAttributes, type InferCreationAttributes } from 'sequelize';
 import type { Transaction } from 'sequelize';
-import { db } from '../db';
+import { autocommit, db } from '../db';
 
 export class CommitMarker extends Model<InferAttributes<CommitMarker>, InferCreationAttributes<CommitMarker>> {
 	declare id: string;
@@ -38,5 +38,5 @@ export async function markerCommitted(id: string): Promise<boolean> {
 
 /** Markers older than an hour are only history: the worker deletes them in batches. */
 export async function sweepMarkers(olderThanMs = 3_600_000): Promise<number> {
-	return model().destroy({ where: { created_at: { [Op.lt]: new Date(Date.now() - olderThanMs) } }, limit: 5000 });
+	return autocommit(() => model().destroy({ where: { created_at: { [Op.lt]: new Date(Date.now() - olderThanMs) } }, limit: 5000 }));
 }

@@ -20,7 +20,7 @@ import {
 	type Sequelize,
 	type Transaction
 } from 'sequelize';
-import { withRetry } from '../tx';
+import { readRetried } from '../db';
 import type { Field } from '../../scoring/scales';
 import { KINDS, type Kind } from '../../scoring/kinds';
 import { jsonColumn } from './columns';
@@ -300,7 +300,7 @@ export const dbNow = () => fn('CURRENT_TIMESTAMP', 3) as unknown as Date;
 export const inTx = (t: Transaction | null | undefined, forUpdate = false) => (t ? { transaction: t, ...(forUpdate ? { lock: t.LOCK.UPDATE } : {}) } : {});
 
 /** A read outside a transaction is safe to run again on a deadlock or a joining node (as `select` in ../db does). */
-export const reading = <T>(t: Transaction | null | undefined, run: () => Promise<T>): Promise<T> => (t ? run() : withRetry(() => run()));
+export const reading = <T>(t: Transaction | null | undefined, run: () => Promise<T>): Promise<T> => (t ? run() : readRetried(run));
 
 /** Save an instance under its optimistic lock; a version moved meanwhile answers `onStale()` (a 409), never a 500. */
 export async function saveLocked<M extends Model>(m: M, t: Transaction, onStale: () => Error | Promise<Error>): Promise<M> {

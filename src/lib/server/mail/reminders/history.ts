@@ -1,6 +1,6 @@
 /** The messages sent for a protocol, for the protocol page (from mail_log). */
 import { models } from '../../models';
-import { read } from '../outbox';
+import { readRetried as read } from '../../db';
 import { parseReviewKey } from './keys';
 
 export interface ProtocolMailEntry {
