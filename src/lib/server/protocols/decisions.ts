@@ -3,7 +3,7 @@
  * resolutions under the discrepancy's optimistic lock, sign-off (verified, locked), reopening by a
  * lead (a new round; history kept), and the verified values that follow from the decisions.
  */
-import { Op, type Transaction } from 'sequelize';
+import { Op, literal, type Transaction } from 'sequelize';
 import { z } from 'zod';
 import { select, selectOne, exec, transaction, jsonValue } from '../db';
 import { models } from '../models';
@@ -217,23 +217,32 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 	const { choice, note } = input;
 	return transaction(async (t) => {
 		const { Discrepancy, Protocol } = models();
-		const found = await Discrepancy.findByPk(discrepancyId, { attributes: ['protocol_id'], transaction: t });
-		if (!found) throw notFound('This discrepancy');
-		// Serialize with sign-off and reopen on the protocol row (both lock it too): the status is read
-		// under the lock, so a resolution can never land on a protocol signed off a moment earlier.
-		const { p, duties } = await protocolFor(found.protocol_id, user, t, true);
+		// Lock order, the same in every decision: discrepancy rows first, the protocol row last (see
+		// DEVELOPERS.md, "Transactions"). The decided row, locked with its lock_version: two decisions
+		// of one discrepancy serialize here; decisions of different discrepancies do not.
 		const d = await Discrepancy.findByPk(discrepancyId, inTx(t, true));
 		if (!d) throw notFound('This discrepancy');
+		const raw = d.field === 'raw';
+		// A raw decision judges its test's derived rows again and may add rows (new positions), so it takes
+		// those rows and then the protocol row at once, as before. Any other decision reads the protocol
+		// unlocked here and takes its row only at the very end, for the compare-and-set of lock_version.
+		if (raw)
+			await Discrepancy.findAll({
+				attributes: ['id'],
+				where: { protocol_id: d.protocol_id, round: d.round, test_code: d.test_code, field: { [Op.ne]: 'raw' } },
+				...inTx(t, true)
+			});
+		const { p, duties } = await protocolFor(d.protocol_id, user, t, raw);
 		requireReviewer(duties);
 		if (p.status !== 'in_review' || d.round !== p.round) throw conflict('This protocol is not open for review (signed off, or a newer round exists).');
 		if (input.lockVersion !== d.lock_version) throw await staleResolution(d.id, t);
-		if (d.field !== 'raw') {
-			const raw = await Discrepancy.findOne({
+		if (!raw) {
+			const openRaw = await Discrepancy.findOne({
 				attributes: ['id'],
 				where: { protocol_id: p.id, round: p.round, test_code: d.test_code, field: 'raw', resolved_at: null },
 				transaction: t
 			});
-			if (raw)
+			if (openRaw)
 				throw new ServiceError(
 					409,
 					'Settle this test’s raw score first: its derived scores are judged again against the raw score you keep.',
@@ -293,13 +302,6 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 		// saved under the row's lock_version (the version the reviewer's view showed, checked above)
 		d.set({ resolution: choice, resolved_value: kept, note: note || null, resolved_by: user.id, resolved_at: dbNow() });
 		await saveLocked(d, t, () => staleResolution(d.id, t));
-		// A sign-off made on a view older than this decision is refused as stale (it did not see it).
-		// Compare-and-set, as the sign-off does: the protocol must still be in review as read above.
-		const [moved] = await Protocol.update(
-			{ lock_version: p.lock_version + 1 },
-			{ where: { id: p.id, status: 'in_review', round: p.round, lock_version: p.lock_version }, transaction: t }
-		);
-		if (moved !== 1) throw conflict('This protocol was signed off or changed at the same moment; your choice was not saved. Reload to see its state.');
 		await recordEvent(
 			{
 				actorId: user.id,
@@ -316,10 +318,21 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 			t
 		);
 		await recordResolution(d.id, t);
-		await afterResolution(d.id, t);
+		if (raw) await afterResolution(d.id, t); // the scorers' standing follows raw decisions only
 		// The raw score is settled: the test's derived discrepancies are judged again, in this transaction.
-		const rejudged = d.field === 'raw' ? await rejudgeDerived(p, d.test_code, kept, { by: 'raw_decision', id: d.id, actorId: user.id }, t) : null;
+		const rejudged = raw ? await rejudgeDerived(p, d.test_code, kept, { by: 'raw_decision', id: d.id, actorId: user.id }, t) : null;
+		// as committed now: a decision of this protocol still in flight counts as open
 		const open = await Discrepancy.count({ where: { protocol_id: p.id, round: p.round, resolved_at: null }, transaction: t });
+		// Last: the protocol's lock_version moves, so a sign-off sent from a view older than this decision
+		// is refused as stale. Compare-and-set under the protocol row's lock, which is held from here to
+		// the commit only (a raw decision holds it from the start): the protocol must still be in review,
+		// in this round, with this reviewer. A sign-off, reopen or reassignment that committed first wins
+		// and this decision is refused; one that comes later waits for the commit and sees the new version.
+		const [moved] = await Protocol.update(
+			{ lock_version: literal('lock_version + 1') as unknown as number },
+			{ where: { id: p.id, status: 'in_review', round: p.round, reviewer_id: user.id }, transaction: t }
+		);
+		if (moved !== 1) throw conflict('This protocol was signed off or changed at the same moment; your choice was not saved. Reload to see its state.');
 		return { id: d.id, resolution: choice, resolvedValue: kept, note: note || null, lockVersion: before.lock_version + 1, open, rejudged };
 	});
 }
