@@ -1,6 +1,7 @@
 /**
  * The signed-in user of a request. Every request checks, without a database read (issue 18):
- *   - the Auth.js session cookie (an encrypted JWT), decoded here with Auth.js's own `decode`;
+ *   - the Auth.js session cookie (an encrypted JWT), decoded here with Auth.js's own `decode`, once per
+ *     cookie value (`decodeCached`: the same value comes back unchanged until its re-issue);
  *   - in one Redis round trip: the session epoch and the sign-out deny-list (revocation.ts) and the
  *     account's cached state (user-cache.ts: active, session version, roles), so deactivation,
  *     "end all sessions", a new password, a role change and sign-out take effect at the next request.
@@ -70,6 +71,34 @@ export async function sessionUser(session: Session | null, fresh = false): Promi
 	return toLocals(await accountState(uid, undefined, fresh), session.user.sv);
 }
 
+/**
+ * Tokens already decoded, by cookie name and value. Decoding (HKDF of the secret, the key's thumbprint,
+ * AES + HMAC, several of them through the crypto thread pool) cost about 1 ms of CPU and 2–4 ms of wall
+ * time per request on the bench machine, as much as the rest of a signed-in `/health`; the same cookie
+ * is sent unchanged until its re-issue, so each value is decoded once. An entry is only a decoded copy
+ * of what the cookie holds: the checks after it (refresh point, deny-list, account state) run on every
+ * request as before, and an entry is dropped once its token is due for re-issue or expired. Only
+ * tokens that decoded (made with AUTH_SECRET) are kept, at most DECODED_MAX (oldest dropped first).
+ */
+const decoded = new Map<string, Record<string, unknown>>();
+const DECODED_MAX = 5000;
+
+async function decodeCached(name: string, raw: string): Promise<Record<string, unknown> | null> {
+	const key = `${name}=${raw}`;
+	const now = Date.now();
+	const current = (x: Record<string, unknown>) =>
+		typeof x.seen === 'number' && now - x.seen <= refreshAfterMs() && typeof x.exp === 'number' && x.exp * 1000 > now;
+	const hit = decoded.get(key);
+	if (hit && current(hit)) return hit;
+	if (hit) decoded.delete(key); // due for re-issue or expired: decoded again, and Auth.js decides
+	const token = await decode({ token: raw, secret: process.env.AUTH_SECRET ?? '', salt: name });
+	if (token && current(token)) {
+		if (decoded.size >= DECODED_MAX) decoded.delete(decoded.keys().next().value!);
+		decoded.set(key, token);
+	}
+	return token;
+}
+
 export type QuickSession = { kind: 'none' } | { kind: 'full' } | { kind: 'user'; user: LocalsUser };
 
 /**
@@ -83,7 +112,7 @@ export async function quickSession(cookies: Cookies, secure: boolean, fresh = fa
 	if (!raw) return cookies.getAll().some((c) => c.name.startsWith(name)) ? { kind: 'full' } : { kind: 'none' };
 	let token: Record<string, unknown> | null;
 	try {
-		token = await decode({ token: raw, secret: process.env.AUTH_SECRET ?? '', salt: name });
+		token = await decodeCached(name, raw);
 	} catch {
 		return { kind: 'full' }; // Auth.js removes a cookie it cannot read
 	}
