@@ -51,21 +51,48 @@ interface Figures {
 	bytes_per_response: number;
 }
 
-async function signedIn(email: string) {
+/**
+ * One account's cookies, kept as a browser keeps them: a session cookie the server re-issues (at its
+ * refresh point, every minute at most; src/lib/server/session.ts) replaces the old one for the next
+ * requests. Without this, every request after the first minute would send a token due for re-issue
+ * and take Auth.js's full path (decode, re-encode, Set-Cookie), which no browser does.
+ */
+interface Jar {
+	cookies: Map<string, string>;
+	header: string;
+}
+const jarOf = (cookies: Map<string, string>): Jar => ({ cookies, header: [...cookies].map(([k, v]) => `${k}=${v}`).join('; ') });
+function keepCookies(jar: Jar, headers: Record<string, string | string[]>) {
+	const set = Object.entries(headers).find(([k]) => k.toLowerCase() === 'set-cookie')?.[1];
+	if (!set) return;
+	for (const line of Array.isArray(set) ? set : [set]) {
+		const [pair, ...attrs] = line.split(';');
+		const eq = pair.indexOf('=');
+		const name = pair.slice(0, eq).trim();
+		const value = pair.slice(eq + 1).trim();
+		if (!value || attrs.some((a) => /^\s*max-age=0\s*$/i.test(a))) jar.cookies.delete(name);
+		else jar.cookies.set(name, value);
+	}
+	jar.header = [...jar.cookies].map(([k, v]) => `${k}=${v}`).join('; ');
+}
+const anonymousJar = (): Jar => jarOf(new Map());
+
+async function signedIn(email: string): Promise<Jar> {
 	const c = new Client(BASE);
 	if (!(await c.signIn(email, F.PASSWORD))) throw new Error(`could not sign in as ${email} at ${BASE}`);
-	return [...c.cookies].map(([k, v]) => `${k}=${v}`).join('; ');
+	return jarOf(new Map(c.cookies));
 }
 
 function cannon(
 	route: string,
-	opts: { path: string; cookie: string; method?: string; bodies?: Array<{ path: string; body: string }>; amount?: number; duration?: number }
+	opts: { path: string; jar: Jar; method?: string; bodies?: Array<{ path: string; body: string }>; amount?: number; duration?: number }
 ): Promise<Figures> {
 	return new Promise((resolve, reject) => {
 		const times: number[] = [];
 		let next = 0;
 		let bytes = 0;
-		const headers = { cookie: opts.cookie, origin: new URL(BASE).origin, 'content-type': 'application/json', 'accept-encoding': 'gzip' };
+		const jar = opts.jar;
+		const headers = { origin: new URL(BASE).origin, 'content-type': 'application/json', 'accept-encoding': 'gzip' };
 		const t0 = performance.now();
 		const inst = autocannon(
 			{
@@ -77,11 +104,14 @@ function cannon(
 				requests: [
 					{
 						method: (opts.method ?? 'GET') as 'GET',
+						// the jar's cookies as they are now (every request, anonymous ones too, so all runs build requests alike)
 						setupRequest: (req: Record<string, unknown>) => {
-							if (!opts.bodies) return req;
+							const h = { ...(req.headers as Record<string, string>), ...(jar.header ? { cookie: jar.header } : {}) };
+							if (!opts.bodies) return { ...req, headers: h };
 							const b = opts.bodies[next++ % opts.bodies.length];
-							return { ...req, path: b.path, body: b.body };
-						}
+							return { ...req, headers: h, path: b.path, body: b.body };
+						},
+						onResponse: (_status: number, _body: string, _context: unknown, h: Record<string, string | string[]>) => keepCookies(jar, h)
 					}
 				]
 			},
@@ -126,15 +156,15 @@ async function main() {
 	const reviewer = await signedIn(F.EMAILS.reviewer);
 
 	// warm-up: JIT, connection pool, caches
-	await cannon('warm-up', { path: '/health', cookie: scorer, duration: 2 });
-	await cannon('warm-up', { path: '/api/v1/worklist', cookie: scorer, duration: 2 });
+	await cannon('warm-up', { path: '/health', jar: scorer, duration: 2 });
+	await cannon('warm-up', { path: '/api/v1/worklist', jar: scorer, duration: 2 });
 
 	// and a few writes, so that the measured runs do not include loading the route modules
 	const W = 20;
 	const patchBodies = open.map((d) => ({ path: `/api/v1/discrepancies/${d.id}`, body: JSON.stringify(d.body) }));
 	const submitBodies = ready.map((p) => ({ path: `/api/v1/protocols/${p.id}/pass`, body: JSON.stringify({ draftVersion: p.secondDraftVersion }) }));
-	await cannon('warm-up', { path: '/api/v1/discrepancies/0', cookie: reviewer, method: 'PATCH', amount: W, bodies: patchBodies.slice(0, W) });
-	await cannon('warm-up', { path: '/api/v1/protocols/0/pass', cookie: scorer, method: 'POST', amount: W, bodies: submitBodies.slice(0, W) });
+	await cannon('warm-up', { path: '/api/v1/discrepancies/0', jar: reviewer, method: 'PATCH', amount: W, bodies: patchBodies.slice(0, W) });
+	await cannon('warm-up', { path: '/api/v1/protocols/0/pass', jar: scorer, method: 'POST', amount: W, bodies: submitBodies.slice(0, W) });
 
 	const results: Figures[] = [];
 	const run = async (f: Promise<Figures>) => {
@@ -147,12 +177,12 @@ async function main() {
 	};
 	// The machine is shared: each route is measured right after its own floor run (same cookie,
 	// same connections), and its ratio is taken against that adjacent floor.
-	const floorRun = (label: string) => run(cannon(`GET /health (floor ${label})`, { path: '/health', cookie: scorer, duration: Math.max(3, DURATION / 2) }));
+	const floorRun = (label: string) => run(cannon(`GET /health (floor ${label})`, { path: '/health', jar: scorer, duration: Math.max(3, DURATION / 2) }));
 	const goals: Array<{ route: string; p95: number; floor_p95: number; goal: number; ratio: number; met: boolean; floor?: string }> = [];
 	// The session check: the same trivial route, anonymous and then with the scorer's cookie (the
 	// cookie costs the JWT decode, the session-version check and, near its refresh point, a re-issue).
-	const anonymous = await run(cannon('GET /health (anonymous)', { path: '/health', cookie: '' }));
-	const signedInHealth = await run(cannon('GET /health signed in', { path: '/health', cookie: scorer }));
+	const anonymous = await run(cannon('GET /health (anonymous)', { path: '/health', jar: anonymousJar() }));
+	const signedInHealth = await run(cannon('GET /health signed in', { path: '/health', jar: scorer }));
 	goals.push({
 		route: signedInHealth.route,
 		p95: signedInHealth.p95,
@@ -167,12 +197,12 @@ async function main() {
 		const r = await run(f());
 		goals.push({ route: r.route, p95: r.p95, floor_p95: floor.p95, goal, ratio: r2(r.p95 / floor.p95), met: r.p95 / floor.p95 <= goal });
 	};
-	await measured(3, 'w1', () => cannon('GET /api/v1/worklist scorer', { path: '/api/v1/worklist', cookie: scorer }));
-	await measured(3, 'w2', () => cannon('GET /api/v1/worklist reviewer', { path: '/api/v1/worklist', cookie: reviewer }));
+	await measured(3, 'w1', () => cannon('GET /api/v1/worklist scorer', { path: '/api/v1/worklist', jar: scorer }));
+	await measured(3, 'w2', () => cannon('GET /api/v1/worklist reviewer', { path: '/api/v1/worklist', jar: reviewer }));
 	await measured(2, 'r', () =>
 		cannon('PATCH discrepancy', {
 			path: '/api/v1/discrepancies/0',
-			cookie: reviewer,
+			jar: reviewer,
 			method: 'PATCH',
 			amount: patchBodies.length - W,
 			bodies: patchBodies.slice(W)
@@ -181,7 +211,7 @@ async function main() {
 	await measured(4, 's', () =>
 		cannon('POST second submit', {
 			path: '/api/v1/protocols/0/pass',
-			cookie: scorer,
+			jar: scorer,
 			method: 'POST',
 			amount: submitBodies.length - W,
 			bodies: submitBodies.slice(W)
