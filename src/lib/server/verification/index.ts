@@ -16,7 +16,7 @@ import { Op, type Transaction } from 'sequelize';
 import { select, selectOne, exec, transaction, type Tx } from '../db';
 import { countEvents, recordEvent } from '../trail';
 import { verificationModels, type DrawOutcome } from '../models/verification';
-import { dbNow, saveLocked } from '../models/protocol';
+import { dbNow, inTx, saveLocked } from '../models/protocol';
 import { models } from '../models';
 import {
 	DEFAULT_POLICY,
@@ -485,6 +485,12 @@ export async function requireSecondPass(protocolId: number, actor: Actor, reason
 	if (reason.length < 5) throw invalid('Give a reason for requiring a second pass (at least a few words).', 'reason');
 	if (reason.length > 500) throw invalid('The reason is too long (at most 500 characters).', 'reason');
 	return transaction(async (t) => {
+		// The protocol side's lock order (DEVELOPERS.md, "Transactions"): the round's discrepancy rows,
+		// deleted below, before the protocol row, as a decision takes them; never the other way round.
+		const seen = await protocolFor(protocolId, actor, t);
+		if (!seen.duties.includes('lead')) throw notFound();
+		if (seen.p.status === 'in_review')
+			await models().Discrepancy.findAll({ attributes: ['id'], where: { protocol_id: seen.p.id, round: seen.p.round }, ...inTx(t, true) });
 		const { p, duties } = await protocolFor(protocolId, actor, t, true);
 		if (!duties.includes('lead')) throw notFound();
 		const { VerificationProtocol } = verificationModels();
