@@ -41,7 +41,9 @@ interface Caught {
 
 let refuseNext = 0;
 
-const byTime = (a: Caught, b: Caught) => a.receivedAt.localeCompare(b.receivedAt) || a.id.localeCompare(b.id);
+// ISO times and ids compare as plain strings (no locale rules: this runs for every message caught)
+const cmp = (x: string, y: string) => (x < y ? -1 : x > y ? 1 : 0);
+const byTime = (a: Caught, b: Caught) => cmp(a.receivedAt, b.receivedAt) || cmp(a.id, b.id);
 /** Every caught message, oldest first. */
 let caught: Caught[] = readdirSync(dir)
 	.filter((f) => f.endsWith('.json'))
@@ -75,7 +77,9 @@ const smtp = new SMTPServer({
 			}
 			try {
 				const raw = Buffer.concat(chunks);
-				const parsed = await simpleParser(raw);
+				// the catch keeps text and html as sent: no text-to-HTML with linkified links (its textAsHtml), which
+				// cost most of the fake's time per message, and no image links rewritten
+				const parsed = await simpleParser(raw, { skipTextToHtml: true, skipTextLinks: true, skipImageLinks: true });
 				const headers: Record<string, string> = {};
 				for (const [k, v] of parsed.headers) headers[k] = typeof v === 'string' ? v : JSON.stringify(v);
 				const msg: Caught = {
@@ -95,8 +99,18 @@ const smtp = new SMTPServer({
 					html: typeof parsed.html === 'string' ? parsed.html : null
 				};
 				writeFileSync(join(dir, `${msg.id}.json`), JSON.stringify(msg), { mode: 0o600 });
-				caught.push(msg);
-				if (caught.length > 1 && byTime(caught[caught.length - 2], msg) > 0) caught.sort(byTime);
+				// into its place (messages caught in the same millisecond arrive in any order): a binary search from
+				// the end, not a sort of the whole catch per message
+				let at = caught.length;
+				if (at > 0 && byTime(caught[at - 1], msg) > 0) {
+					let lo = 0;
+					while (lo < at) {
+						const mid = (lo + at) >> 1;
+						if (byTime(caught[mid], msg) > 0) at = mid;
+						else lo = mid + 1;
+					}
+				}
+				caught.splice(at, 0, msg);
 				callback();
 			} catch (e) {
 				callback(e as Error);

@@ -37,7 +37,7 @@ const worker = new Worker<MailJob>(
 	},
 	{
 		connection: bullConnection(),
-		concurrency: Number(process.env.WORKER_CONCURRENCY ?? 8),
+		concurrency: Number(process.env.WORKER_CONCURRENCY ?? 32),
 		stalledInterval: stalledMs,
 		lockDuration: Math.max(stalledMs, 5_000),
 		maxStalledCount: 2

@@ -17,6 +17,7 @@ import { Op, fn } from 'sequelize';
 import { models } from '../models';
 import { autocommit as write, readRetried as read } from '../db';
 import { mailQueue } from './queue';
+import { redis } from '../redis';
 import { claimLeaseMs } from './deliver';
 import { recoverLostReviewMail } from './reminders/scheduling';
 
@@ -77,8 +78,18 @@ export async function sweepMail(graceMs = Number(process.env.MAIL_SWEEP_GRACE_MS
 		// waiting, delayed, active: BullMQ has it; completed ('skipped': nothing to send): done
 	}
 	if (gone.length) await write(() => Outbox.update({ dispatched_at: null }, { where: { id: gone } }));
-	r.redispatched = gone.length + (await recoverLostReviewMail(graceMs));
+	r.redispatched = gone.length + (await recoverLostReviewMail(graceMs, Date.now(), queuedJobs));
 	return r;
+}
+
+/** The keys among `keys` whose BullMQ job still exists, in any state (one pipelined EXISTS per key). */
+async function queuedJobs(keys: string[]): Promise<Set<string>> {
+	if (keys.length === 0) return new Set();
+	const q = mailQueue();
+	const pipe = redis().pipeline();
+	for (const k of keys) pipe.exists(q.toKey(jobIdOf(k))); // the job's hash: bull:<queue>:<job id>
+	const answers = (await pipe.exec()) ?? [];
+	return new Set(keys.filter((_k, i) => answers[i]?.[1] === 1));
 }
 
 /** A job that failed for good (every retry refused): its outbox row is marked failed, with the reason. */

@@ -1,5 +1,7 @@
 /** The SMTP transport (nodemailer). Production: SMTP_URL. Demo and test: the local mail fake. */
 import nodemailer, { type Transporter } from 'nodemailer';
+import { parseConnectionUrl } from 'nodemailer/lib/shared';
+import type SMTPPool from 'nodemailer/lib/smtp-pool';
 import { config } from '../config';
 
 let transporter: Transporter | null = null;
@@ -7,15 +9,28 @@ let transporter: Transporter | null = null;
 export function mailTransport(): Transporter {
 	if (!transporter) {
 		const local = config.smtpUrl.includes('127.0.0.1') || config.smtpUrl.includes('localhost');
-		transporter = nodemailer.createTransport(config.smtpUrl, {
+		// The connection options go with the URL's (one object): a second argument to createTransport would be
+		// the messages' defaults, where pool and the timeouts have no effect (they had none until issue 18).
+		// maxRequeues is read by the pool (nodemailer/lib/smtp-pool) but missing from its type
+		const options: SMTPPool.Options & { maxRequeues: number } = {
+			...parseConnectionUrl(config.smtpUrl),
 			// The local fake speaks plain SMTP on loopback; real servers negotiate TLS.
 			...(local ? { ignoreTLS: true, secure: false } : {}),
-			// Pooled SMTP connections (issue 18) were tried and taken out again: under the shared
-			// machine's load they could not be shown to help, and a mail test timed out with them.
+			// Pooled SMTP connections (issue 18): an SMTP session carries up to SMTP_POOL_MESSAGES (100)
+			// messages instead of a connect + greeting + EHLO + QUIT per message; up to SMTP_POOL (8) at
+			// once for the worker's concurrent jobs (more jobs wait for a free connection).
+			pool: true,
+			maxConnections: Number(process.env.SMTP_POOL ?? 8),
+			maxMessages: Number(process.env.SMTP_POOL_MESSAGES ?? 100),
+			// A connection that closes mid-send fails that send (../deliver.ts decides about a retry), as a
+			// single connection does; the pool's default would hand the message to another connection
+			// unseen, a second copy if the server had accepted it already.
+			maxRequeues: 0,
 			connectionTimeout: 5_000,
 			greetingTimeout: 5_000,
 			socketTimeout: 10_000
-		});
+		};
+		transporter = nodemailer.createTransport(options);
 	}
 	return transporter;
 }

@@ -8,7 +8,7 @@ import { config } from '../../config';
 import { usersWithRole } from '../../users';
 import { afterDelivery, renderers, type RenderedMail } from '../deliver';
 import { reviewMailSettings } from './settings';
-import { loadState, scheduleNext } from './scheduling';
+import { loadState, scheduleNext, type RenderedReviewState } from './scheduling';
 import { reviewMailBody } from './render';
 import type { ReviewMailPayload } from './keys';
 
@@ -40,10 +40,11 @@ export async function renderReview(raw: Record<string, unknown>, now = new Date(
 		},
 		now
 	);
-	return { to: [state.reviewer.email], cc, ...body, protocolId: p.protocolId, reminderNo: p.reminderNo };
+	const context: RenderedReviewState = { state, settings };
+	return { to: [state.reviewer.email], cc, ...body, protocolId: p.protocolId, reminderNo: p.reminderNo, context };
 }
 
 renderers.review_first = (p) => renderReview(p);
 renderers.review_reminder = (p) => renderReview(p);
-afterDelivery.review_first = (job, result) => scheduleNext(job, result);
-afterDelivery.review_reminder = (job, result) => scheduleNext(job, result);
+afterDelivery.review_first = (job, result, context) => scheduleNext(job, result, Date.now(), context as RenderedReviewState | undefined);
+afterDelivery.review_reminder = (job, result, context) => scheduleNext(job, result, Date.now(), context as RenderedReviewState | undefined);

@@ -27,7 +27,7 @@ import { autocommit as write, readRetried as read } from '../../db';
 import type { DeliveryResult, MailJob } from '../deliver';
 import type { ProtocolRow } from '../../models/protocol';
 import type { MailDiscrepancy } from './render';
-import { reviewMailSettings } from './settings';
+import { reviewMailSettings, type ReviewMailSettings } from './settings';
 import { chainOf, chainOfKey, reviewMailKey, roundPrefix, type ReviewMailPayload } from './keys';
 
 /** The chain whose first e-mail was written last for this protocol round (the current one). */
@@ -92,15 +92,20 @@ export interface ReviewState {
 
 /** The state a message depends on, or null when the chain has ended. */
 export async function loadState(p: ReviewMailPayload, needOpen: boolean): Promise<ReviewState | null> {
-	// joins across four tables for one message: one statement (protocols and discrepancies have no models yet)
-	const protocol = await selectOne<MailProtocol>(
-		`SELECT p.id, p.status, p.round, p.reviewer_id, p.status_changed_at, e.code, p.test_date, b.name AS battery
+	// one statement for the protocol, its examinee's code, battery, assigned reviewer and current chain (every
+	// review e-mail reads it: round trips are its cost); protocols and discrepancies have no models yet
+	const row = await selectOne<MailProtocol & { chain_key: string | null; reviewer_email: string | null; reviewer_name: string; reviewer_active: number }>(
+		`SELECT p.id, p.status, p.round, p.reviewer_id, p.status_changed_at, e.code, p.test_date, b.name AS battery,
+		        u.email AS reviewer_email, u.name AS reviewer_name, u.active AS reviewer_active,
+		        (SELECT o.idempotency_key FROM outbox o WHERE o.idempotency_key LIKE :prefix AND o.kind = 'review_first' ORDER BY o.id DESC LIMIT 1) AS chain_key
 		 FROM protocols p JOIN examinees e ON e.id = p.examinee_id LEFT JOIN batteries b ON b.id = p.battery_id
+		      LEFT JOIN users u ON u.id = :reviewerId
 		 WHERE p.id = :id`,
-		{ id: p.protocolId }
+		{ id: p.protocolId, reviewerId: p.reviewerId, prefix: `${roundPrefix(p.protocolId, p.round)}%` }
 	);
-	if (!protocol || protocol.status !== 'in_review' || protocol.round !== p.round || protocol.reviewer_id !== p.reviewerId) return null;
-	if ((await currentChain(p.protocolId, p.round)) !== p.chain) return null;
+	if (!row || row.status !== 'in_review' || row.round !== p.round || row.reviewer_id !== p.reviewerId) return null;
+	if ((row.chain_key ? chainOfKey(row.chain_key) : null) !== p.chain) return null;
+	const { chain_key: _chain, reviewer_email, reviewer_name, reviewer_active, ...protocol } = row;
 	const open = await select<MailDiscrepancy>(
 		`SELECT d.test_code, d.field, d.pass, d.kind, d.value, d.other, d.expected, d.out_of_range,
 		        (SELECT t.name FROM protocol_tests pt JOIN tests t ON t.id = pt.test_id
@@ -111,22 +116,29 @@ export async function loadState(p: ReviewMailPayload, needOpen: boolean): Promis
 		{ id: p.protocolId, round: p.round }
 	);
 	if (needOpen && open.length === 0) return null;
-	const reviewer = await selectOne<{ email: string; name: string; active: number }>('SELECT email, name, active FROM users WHERE id = :id', {
-		id: p.reviewerId
-	});
-	if (!reviewer || !reviewer.active) return null;
-	return { protocol, open, reviewer };
+	if (reviewer_email === null || !reviewer_active) return null;
+	return { protocol, open, reviewer: { email: reviewer_email, name: reviewer_name, active: reviewer_active } };
 }
 
 // ---------------------------------------------------------------------------------------------
 // The next reminder
 
+/**
+ * What the renderer read for a message it rendered (./delivery.ts): scheduling right after that send uses it
+ * instead of reading it again. A discrepancy resolved in between at worst schedules a reminder that then
+ * finds nothing open when it is due, renders nothing and ends the chain (every reminder re-checks).
+ */
+export interface RenderedReviewState {
+	state: ReviewState;
+	settings: ReviewMailSettings;
+}
+
 /** After a review message went out (or may have: a worker killed mid-send), schedule the next reminder. */
-export async function scheduleNext(job: MailJob, result: DeliveryResult, now = Date.now()): Promise<void> {
+export async function scheduleNext(job: MailJob, result: DeliveryResult, now = Date.now(), rendered?: RenderedReviewState): Promise<void> {
 	if (result === 'skipped') return;
 	const p = job.payload as unknown as ReviewMailPayload;
-	if (!(await loadState(p, true))) return; // resolved, reassigned, signed off: the chain ends
-	const settings = await reviewMailSettings();
+	if (rendered ? rendered.state.open.length === 0 : !(await loadState(p, true))) return; // resolved, reassigned, signed off: the chain ends
+	const settings = rendered?.settings ?? (await reviewMailSettings());
 	const next: ReviewMailPayload = {
 		protocolId: p.protocolId,
 		round: p.round,
@@ -169,13 +181,18 @@ export async function nextReviewReminder(protocolId: number): Promise<{ reminder
  * Re-dispatch review outbox rows that were handed to the queue but never delivered and are well
  * past due (their job was lost with a Redis restart). Re-adding a job that still exists is a no-op
  * in BullMQ (job id = idempotency key) and mail_log keeps any message to one send, so this is
- * safe to run from any number of workers. Returns the number of rows handed back.
+ * safe to run from any number of workers. `queued` names the keys whose job the queue still holds
+ * (../recover.ts asks Redis); those are left alone. Returns the number of rows handed back.
  */
-export async function recoverLostReviewMail(graceMs = 60_000, now = Date.now()): Promise<number> {
+export async function recoverLostReviewMail(
+	graceMs = 60_000,
+	now = Date.now(),
+	queued: (keys: string[]) => Promise<Set<string>> = async () => new Set()
+): Promise<number> {
 	const { Outbox, MailLog } = models();
 	const rows = await read(() =>
 		Outbox.findAll({
-			attributes: ['id', 'payload'],
+			attributes: ['id', 'idempotency_key', 'payload'],
 			where: {
 				kind: ['review_first', 'review_reminder'],
 				dispatched_at: { [Op.ne]: null, [Op.lt]: new Date(now - graceMs) },
@@ -188,9 +205,12 @@ export async function recoverLostReviewMail(graceMs = 60_000, now = Date.now()):
 			subQuery: false
 		})
 	);
+	// a row whose job is still in the queue (waiting behind a backlog, or failed for good) is BullMQ's: adding
+	// it again would be a no-op, and reading its state first would cost the backlog its time
+	const inQueue = await queued(rows.map((r) => r.idempotency_key));
 	const due = rows.filter((r) => {
 		const nb = (r.payload as { notBefore?: number }).notBefore;
-		return typeof nb !== 'number' || nb < now - graceMs;
+		return !inQueue.has(r.idempotency_key) && (typeof nb !== 'number' || nb < now - graceMs);
 	});
 	if (due.length === 0) return 0;
 	// Rows whose chain has ended would only be skipped again: leave them.
