@@ -13,7 +13,15 @@ import { db, select, selectOne } from '../../src/lib/server/db';
 import { reconcile, type NormDef, type TestDef, type PassInput } from '../../src/lib/scoring';
 import { formatReference, referenceScore, roundTo, zFromRaw, DERIVED_FIELDS, FIELDS, type DerivedField, type Field } from '../../src/lib/scoring/scales';
 import { DEMO_BANDS, DEMO_TESTS } from '../../db/seeds/catalog';
-import { attributedPasses, bandOf, numeric, rebuildDailySums, AUDIT_FIELDS_COLUMNS, AGREEMENT_PAIRS_COLUMNS } from '../../src/lib/server/audit-stats/record';
+import {
+	attributedPasses,
+	bandOf,
+	numeric,
+	rebuildDailySums,
+	sameValue,
+	AUDIT_FIELDS_COLUMNS,
+	AGREEMENT_PAIRS_COLUMNS
+} from '../../src/lib/server/audit-stats/record';
 import { rng } from './prng';
 
 interface Profile {
@@ -213,7 +221,14 @@ export interface SeedSummary {
 	errorEvents: number;
 	agreementPairs: number;
 	seconds: number;
+	/** Of `seconds`: generating and inserting the rows (of which inserting), and rebuilding the daily sums. */
+	generateAndInsertSeconds: number;
+	insertSeconds: number;
+	rebuildSeconds: number;
 }
+
+/** Protocols generated between two writes: keeps the buffers small at 5M fields. */
+const FLUSH_EVERY = 5000;
 
 /** Seed `protocols` invented protocols ending today and spread over `weeks` weeks. Needs the catalog. */
 export async function seedAuditData(opts: { protocols: number; weeks?: number; seed?: number; prefix?: string; openShare?: number }): Promise<SeedSummary> {
@@ -260,6 +275,71 @@ export async function seedAuditData(opts: { protocols: number; weeks?: number; s
 	const fields: unknown[][] = [];
 	const pairs: unknown[][] = [];
 	let fieldsEntered = 0;
+	let discCount = 0;
+	let passCount = 0;
+	let eventCount = 0;
+	let pairCount = 0;
+	let insertMs = 0;
+
+	/** Write what the loop has built so far and empty the buffers (bounded memory at 5M fields). */
+	const flush = async () => {
+		const t0 = Date.now();
+		passCount += passes.length;
+		eventCount += events.length;
+		pairCount += pairs.length;
+		await bulk('examinees', ['id', 'code', 'birth_date'], examinees);
+		await bulk(
+			'protocols',
+			[
+				'id',
+				'examinee_id',
+				'battery_id',
+				'norm_set_id',
+				'test_date',
+				'age_text',
+				'age_months',
+				'status',
+				'first_scorer_id',
+				'second_scorer_id',
+				'reviewer_id',
+				'status_changed_at'
+			],
+			protocols
+		);
+		await bulk('protocol_tests', ['protocol_id', 'position', 'test_id'], ptests);
+		await bulk('passes', ['id', 'protocol_id', 'round', 'which', 'scorer_id', 'status', 'scores', 'fields_entered', 'submitted_at'], passes, 1000);
+		await bulk(
+			'discrepancies',
+			[
+				'id',
+				'protocol_id',
+				'round',
+				'position',
+				'test_code',
+				'field',
+				'pass',
+				'kind',
+				'value',
+				'other',
+				'expected',
+				'out_of_range',
+				'resolution',
+				'resolved_value',
+				'resolved_by',
+				'resolved_at'
+			],
+			discs
+		);
+		await bulk(
+			'error_events',
+			['discrepancy_id', 'protocol_id', 'scorer_id', 'battery_id', 'test_code', 'domain', 'field', 'kind', 'entered_at', 'judgement'],
+			events
+		);
+		await bulk('audit_fields', AUDIT_FIELDS_COLUMNS, fields);
+		await bulk('agreement_pairs', AGREEMENT_PAIRS_COLUMNS, pairs);
+		for (const rows of [examinees, protocols, ptests, passes, discs, events, fields, pairs]) rows.length = 0;
+		insertMs += Date.now() - t0;
+	};
 
 	for (let i = 0; i < opts.protocols; i++) {
 		const pid = base + i + 1;
@@ -391,7 +471,7 @@ export async function seedAuditData(opts: { protocols: number; weeks?: number; s
 			passes: entries.map((s, k) => ({ scorer: String(k), scores: s })) as PassInput[]
 		});
 		result.discrepancies.forEach((d, pos) => {
-			const did = baseDisc + discs.length + 1;
+			const did = baseDisc + ++discCount;
 			const correct = truth[d.test][d.field];
 			const value = d.value === null ? null : String(d.value);
 			const other = d.other === null ? null : String(d.other);
@@ -421,61 +501,21 @@ export async function seedAuditData(opts: { protocols: number; weeks?: number; s
 			if (!resolved) return;
 			for (const which of attributedPasses({ pass: d.pass, value, other, resolution, resolved_value: correct, field: d.field })) {
 				const k = which === 'first' ? 0 : 1;
-				events.push([did, pid, scorerIds[[a, b][k]], battery.id, d.test, DOMAIN.get(d.test), d.field, d.kind, ats[k]]);
+				// as recordResolution: the kept value contradicts the recomputation → the reviewer's judgement
+				const judgement = d.expected !== null && !sameValue(correct, String(d.expected), d.field) ? 1 : 0;
+				events.push([did, pid, scorerIds[[a, b][k]], battery.id, d.test, DOMAIN.get(d.test), d.field, d.kind, ats[k], judgement]);
 			}
 		});
+		if ((i + 1) % FLUSH_EVERY === 0) await flush();
 	}
+	await flush();
+	const generated = (Date.now() - started) / 1000;
 
-	{
-		await bulk('examinees', ['id', 'code', 'birth_date'], examinees);
-		await bulk(
-			'protocols',
-			[
-				'id',
-				'examinee_id',
-				'battery_id',
-				'norm_set_id',
-				'test_date',
-				'age_text',
-				'age_months',
-				'status',
-				'first_scorer_id',
-				'second_scorer_id',
-				'reviewer_id',
-				'status_changed_at'
-			],
-			protocols
-		);
-		await bulk('protocol_tests', ['protocol_id', 'position', 'test_id'], ptests);
-		await bulk('passes', ['id', 'protocol_id', 'round', 'which', 'scorer_id', 'status', 'scores', 'fields_entered', 'submitted_at'], passes, 1000);
-		await bulk(
-			'discrepancies',
-			[
-				'id',
-				'protocol_id',
-				'round',
-				'position',
-				'test_code',
-				'field',
-				'pass',
-				'kind',
-				'value',
-				'other',
-				'expected',
-				'out_of_range',
-				'resolution',
-				'resolved_value',
-				'resolved_by',
-				'resolved_at'
-			],
-			discs
-		);
-		await bulk('error_events', ['discrepancy_id', 'protocol_id', 'scorer_id', 'battery_id', 'test_code', 'domain', 'field', 'kind', 'entered_at'], events);
-		await bulk('audit_fields', AUDIT_FIELDS_COLUMNS, fields);
-		await bulk('agreement_pairs', AGREEMENT_PAIRS_COLUMNS, pairs);
-	}
-	// the daily sums, from the row-level tables, as recordSubmission would have added them up
+	// the daily sums, from the row-level tables, the way the product keeps them: appended to the
+	// `_delta` tables and folded into the summaries (record.ts, rebuildDailySums → foldDeltas)
+	const rebuildStarted = Date.now();
 	await rebuildDailySums();
+	const rebuildSeconds = (Date.now() - rebuildStarted) / 1000;
 	for (const t of [
 		'protocols',
 		'passes',
@@ -491,11 +531,14 @@ export async function seedAuditData(opts: { protocols: number; weeks?: number; s
 		await db().query(`ANALYZE TABLE ${t}`, { type: QueryTypes.SELECT });
 	return {
 		protocols: opts.protocols,
-		passes: passes.length,
+		passes: passCount,
 		fieldsEntered,
-		discrepancies: discs.length,
-		errorEvents: events.length,
-		agreementPairs: pairs.length,
-		seconds: (Date.now() - started) / 1000
+		discrepancies: discCount,
+		errorEvents: eventCount,
+		agreementPairs: pairCount,
+		seconds: (Date.now() - started) / 1000,
+		generateAndInsertSeconds: generated,
+		insertSeconds: insertMs / 1000,
+		rebuildSeconds
 	};
 }

@@ -1,7 +1,7 @@
 /**
  * `npm run bench:audit` — the Audit reports at clinic scale.
  *
- * Seeds about 1,000,000 entered fields (17,000 protocols of the demo catalog, two passes each,
+ * Seeds about 5,000,000 entered fields (85,000 protocols of the demo catalog, two passes each,
  * six scorers over 26 weeks; scripts/bench/audit-seed.ts) unless the database already holds them,
  * then times every audit report in process (the service functions the API route calls), unfiltered
  * and with typical filters, median of --runs runs after one warm-up. With --url (an app running on
@@ -16,7 +16,7 @@
  *   npm run bench:audit                      # seeds accounts + catalog + protocols when missing
  *   npm run bench:audit -- --url http://localhost:3052   # also over HTTP (app started on that DB)
  *
- * Options: --protocols N (default 17000), --runs N (default 7), --out PATH, --reseed, --url URL.
+ * Options: --protocols N (default 85000, about 60 fields each), --runs N (default 7), --out PATH, --reseed, --url URL.
  */
 import { mkdirSync, writeFileSync } from 'node:fs';
 import { dirname } from 'node:path';
@@ -25,12 +25,13 @@ import { QueryTypes } from 'sequelize';
 import { closeDb, db, selectOne } from '../../src/lib/server/db';
 import { NO_FILTERS, REPORT_NAMES, runReport, type AuditFilters } from '../../src/lib/server/audit-stats';
 import { seedAuditData } from './audit-seed';
+import { describeError } from './lib';
 
 function arg(name: string, fallback: string): string {
 	const i = process.argv.indexOf(`--${name}`);
 	return i >= 0 && process.argv[i + 1] ? process.argv[i + 1] : fallback;
 }
-const PROTOCOLS = Number(arg('protocols', '17000'));
+const PROTOCOLS = Number(arg('protocols', '85000'));
 const RUNS = Number(arg('runs', '7'));
 const OUT = arg('out', '.bench/audit.json');
 const URL_BASE = arg('url', '');
@@ -51,7 +52,7 @@ async function ensureData() {
 		await seedCatalog();
 	}
 	const have = await selectOne<{ n: number; f: number }>(`SELECT COUNT(*) AS n, COALESCE(SUM(fields_entered), 0) AS f FROM passes WHERE status = 'submitted'`);
-	if (have && have.f >= 900_000 && !process.argv.includes('--reseed')) {
+	if (have && have.f >= PROTOCOLS * 55 && !process.argv.includes('--reseed')) {
 		console.error(`[bench:audit] using existing data: ${have.n} passes, ${have.f} fields entered`);
 		return null;
 	}
@@ -187,7 +188,7 @@ async function main() {
 
 main()
 	.catch((e) => {
-		console.error(`[bench:audit] ${e instanceof Error ? e.stack : e}`);
+		console.error(`[bench:audit] ${describeError(e)}`);
 		process.exitCode = 1;
 	})
 	.finally(() => closeDb());

@@ -1,4 +1,4 @@
-/** Small helpers shared by bench:http, bench:pages and bench:db (not by the older benchmarks). */
+/** Small helpers shared by the benchmarks. */
 import { existsSync, mkdirSync, writeFileSync } from 'node:fs';
 import { dirname, join, resolve } from 'node:path';
 import os from 'node:os';
@@ -54,3 +54,12 @@ export const pct = (xs: number[], p: number) => {
 };
 export const r1 = (x: number) => Math.round(x * 10) / 10;
 export const r2 = (x: number) => Math.round(x * 100) / 100;
+
+/** A failure as text, with the database's own error (errno, SQL state, message) when there is one. */
+export function describeError(e: unknown): string {
+	if (!(e instanceof Error)) return String(e);
+	const o = (e as { original?: Record<string, unknown>; parent?: Record<string, unknown> }).original ?? (e as { parent?: Record<string, unknown> }).parent;
+	const db = o ? ` [MariaDB errno ${o.errno ?? '?'} ${o.sqlState ?? o.code ?? ''}: ${o.sqlMessage ?? o.text ?? o.message ?? '?'}]` : '';
+	const sql = (e as { sql?: string }).sql;
+	return `${e.name}: ${e.message}${db}${sql ? `\n  in: ${sql.replace(/\s+/g, ' ').slice(0, 300)}` : ''}\n${e.stack ?? ''}`;
+}

@@ -3,11 +3,22 @@
  * 00014-norm-forms.ts, 00023-review-evidence.ts): what each submitted round and each resolution
  * contributed, written and replaced by src/lib/server/audit-stats/record.ts.
  *
- * The daily summaries (audit_daily, agreement_daily, agreement_weekly, agreement_pair_daily and their
- * `_delta` tables, 00026) have no model: they are only ever written and read by aggregate SQL
- * (INSERT … SELECT … GROUP BY, SUM over ranges), which is where raw SQL earns its place.
+ * And of the daily summaries (00006: audit_daily, agreement_daily, agreement_weekly,
+ * agreement_pair_daily) and their append-only `_delta` tables (00026), kept by record.ts. Those are
+ * added to and read by aggregate SQL (INSERT … SELECT … GROUP BY, SUM over ranges: raw SQL where it
+ * earns its place); the models serve the row-by-row work (the fold's locking read and delete by id,
+ * tests) and give the columns one typed definition.
  */
-import { DataTypes, Model, type CreationOptional, type InferAttributes, type InferCreationAttributes, type Sequelize } from 'sequelize';
+import {
+	DataTypes,
+	Model,
+	type CreationOptional,
+	type InferAttributes,
+	type InferCreationAttributes,
+	type ModelAttributes,
+	type ModelStatic,
+	type Sequelize
+} from 'sequelize';
 import { FIELDS, type Field } from '../../scoring/scales';
 
 /** The field column's values: the score fields and a composite's `sum` (00014). */
@@ -69,12 +80,224 @@ export class ErrorEvent extends Model<InferAttributes<ErrorEvent>, InferCreation
 	declare judgement: CreationOptional<0 | 1>;
 }
 
+/** Fields entered per day × scorer × battery × test ('' = the whole pass, 00006). */
+export class AuditDaily extends Model<InferAttributes<AuditDaily>, InferCreationAttributes<AuditDaily>> {
+	/** The day the pass was submitted (YYYY-MM-DD). */
+	declare day: string;
+	declare scorer_id: number;
+	declare battery_id: number;
+	declare test_code: string;
+	declare domain: string;
+	declare passes: CreationOptional<number>;
+	declare fields_entered: CreationOptional<number>;
+	declare raw_fields: CreationOptional<number>;
+	declare derived_fields: CreationOptional<number>;
+}
+/** Not yet folded into audit_daily: one round's sums (negated when it was recorded again; 00026). */
+export class AuditDailyDelta extends Model<InferAttributes<AuditDailyDelta>, InferCreationAttributes<AuditDailyDelta>> {
+	declare id: CreationOptional<number>;
+	declare day: string;
+	declare scorer_id: number;
+	declare battery_id: number;
+	declare test_code: string;
+	declare domain: string;
+	declare passes: CreationOptional<number>;
+	declare fields_entered: CreationOptional<number>;
+	declare raw_fields: CreationOptional<number>;
+	declare derived_fields: CreationOptional<number>;
+}
+
+/** The sums kept per agreement cell: pair counts and the moments of the two values. */
+interface AgreementMeasures {
+	pairs: CreationOptional<number>;
+	one_sided: CreationOptional<number>;
+	exact: CreationOptional<number>;
+	sx: CreationOptional<number>;
+	sy: CreationOptional<number>;
+	sxx: CreationOptional<number>;
+	syy: CreationOptional<number>;
+	sxy: CreationOptional<number>;
+	sd: CreationOptional<number>;
+	sdd: CreationOptional<number>;
+}
+
+/** Agreement per scorer (0 = every pair once) × day × battery × test × field × band pair. */
+export class AgreementDaily extends Model<InferAttributes<AgreementDaily>, InferCreationAttributes<AgreementDaily>> implements AgreementMeasures {
+	declare scorer_id: number;
+	declare day: string;
+	declare battery_id: number;
+	declare test_code: string;
+	declare field: Field;
+	/** AACN band ids ('' = no band: raw scores, or not a number). */
+	declare first_label: string;
+	declare second_label: string;
+	declare pairs: CreationOptional<number>;
+	declare one_sided: CreationOptional<number>;
+	declare exact: CreationOptional<number>;
+	declare sx: CreationOptional<number>;
+	declare sy: CreationOptional<number>;
+	declare sxx: CreationOptional<number>;
+	declare syy: CreationOptional<number>;
+	declare sxy: CreationOptional<number>;
+	declare sd: CreationOptional<number>;
+	declare sdd: CreationOptional<number>;
+}
+export class AgreementDailyDelta
+	extends Model<InferAttributes<AgreementDailyDelta>, InferCreationAttributes<AgreementDailyDelta>>
+	implements AgreementMeasures
+{
+	declare id: CreationOptional<number>;
+	declare scorer_id: number;
+	declare day: string;
+	declare battery_id: number;
+	declare test_code: string;
+	declare field: Field;
+	declare first_label: string;
+	declare second_label: string;
+	declare pairs: CreationOptional<number>;
+	declare one_sided: CreationOptional<number>;
+	declare exact: CreationOptional<number>;
+	declare sx: CreationOptional<number>;
+	declare sy: CreationOptional<number>;
+	declare sxx: CreationOptional<number>;
+	declare syy: CreationOptional<number>;
+	declare sxy: CreationOptional<number>;
+	declare sd: CreationOptional<number>;
+	declare sdd: CreationOptional<number>;
+}
+/** agreement_daily by ISO week (`week` is its Monday). */
+export class AgreementWeekly extends Model<InferAttributes<AgreementWeekly>, InferCreationAttributes<AgreementWeekly>> implements AgreementMeasures {
+	declare scorer_id: number;
+	declare week: string;
+	declare battery_id: number;
+	declare test_code: string;
+	declare field: Field;
+	declare first_label: string;
+	declare second_label: string;
+	declare pairs: CreationOptional<number>;
+	declare one_sided: CreationOptional<number>;
+	declare exact: CreationOptional<number>;
+	declare sx: CreationOptional<number>;
+	declare sy: CreationOptional<number>;
+	declare sxx: CreationOptional<number>;
+	declare syy: CreationOptional<number>;
+	declare sxy: CreationOptional<number>;
+	declare sd: CreationOptional<number>;
+	declare sdd: CreationOptional<number>;
+}
+export class AgreementWeeklyDelta
+	extends Model<InferAttributes<AgreementWeeklyDelta>, InferCreationAttributes<AgreementWeeklyDelta>>
+	implements AgreementMeasures
+{
+	declare id: CreationOptional<number>;
+	declare scorer_id: number;
+	declare week: string;
+	declare battery_id: number;
+	declare test_code: string;
+	declare field: Field;
+	declare first_label: string;
+	declare second_label: string;
+	declare pairs: CreationOptional<number>;
+	declare one_sided: CreationOptional<number>;
+	declare exact: CreationOptional<number>;
+	declare sx: CreationOptional<number>;
+	declare sy: CreationOptional<number>;
+	declare sxx: CreationOptional<number>;
+	declare syy: CreationOptional<number>;
+	declare sxy: CreationOptional<number>;
+	declare sd: CreationOptional<number>;
+	declare sdd: CreationOptional<number>;
+}
+/** Agreement per (first scorer, second scorer) pair × day, for the scorer-pair table. */
+export class AgreementPairDaily extends Model<InferAttributes<AgreementPairDaily>, InferCreationAttributes<AgreementPairDaily>> implements AgreementMeasures {
+	declare field: Field;
+	declare day: string;
+	declare first_scorer_id: number;
+	declare second_scorer_id: number;
+	declare battery_id: number;
+	declare test_code: string;
+	declare first_label: string;
+	declare second_label: string;
+	declare pairs: CreationOptional<number>;
+	declare one_sided: CreationOptional<number>;
+	declare exact: CreationOptional<number>;
+	declare sx: CreationOptional<number>;
+	declare sy: CreationOptional<number>;
+	declare sxx: CreationOptional<number>;
+	declare syy: CreationOptional<number>;
+	declare sxy: CreationOptional<number>;
+	declare sd: CreationOptional<number>;
+	declare sdd: CreationOptional<number>;
+}
+export class AgreementPairDailyDelta
+	extends Model<InferAttributes<AgreementPairDailyDelta>, InferCreationAttributes<AgreementPairDailyDelta>>
+	implements AgreementMeasures
+{
+	declare id: CreationOptional<number>;
+	declare field: Field;
+	declare day: string;
+	declare first_scorer_id: number;
+	declare second_scorer_id: number;
+	declare battery_id: number;
+	declare test_code: string;
+	declare first_label: string;
+	declare second_label: string;
+	declare pairs: CreationOptional<number>;
+	declare one_sided: CreationOptional<number>;
+	declare exact: CreationOptional<number>;
+	declare sx: CreationOptional<number>;
+	declare sy: CreationOptional<number>;
+	declare sxx: CreationOptional<number>;
+	declare syy: CreationOptional<number>;
+	declare sxy: CreationOptional<number>;
+	declare sd: CreationOptional<number>;
+	declare sdd: CreationOptional<number>;
+}
+
+/** Each summary's model and its delta table's model, by summary table name (sql.ts, SUMMARIES). */
+export const SUMMARY_MODELS: Record<
+	'audit_daily' | 'agreement_daily' | 'agreement_weekly' | 'agreement_pair_daily',
+	{ summary: ModelStatic<Model>; delta: ModelStatic<Model> }
+> = {
+	audit_daily: { summary: AuditDaily, delta: AuditDailyDelta },
+	agreement_daily: { summary: AgreementDaily, delta: AgreementDailyDelta },
+	agreement_weekly: { summary: AgreementWeekly, delta: AgreementWeeklyDelta },
+	agreement_pair_daily: { summary: AgreementPairDaily, delta: AgreementPairDailyDelta }
+};
+
 const uint = (extra: object = {}) => ({ type: DataTypes.INTEGER.UNSIGNED, allowNull: false, ...extra });
 const code = (max = 40) => ({ type: DataTypes.STRING(max), allowNull: false, validate: { len: [0, max] as [number, number] } });
 // functions, not shared objects: Sequelize writes each attribute's own name into its definition
 const fieldEnum = () => ({ type: DataTypes.ENUM(...STAT_FIELDS), allowNull: false, validate: { isIn: [[...STAT_FIELDS] as string[]] } });
 const double = () => ({ type: DataTypes.DOUBLE, allowNull: true });
 const label = () => ({ type: DataTypes.STRING(30), allowNull: true });
+
+// the summaries' columns (00006, 00026): measure columns are NOT NULL DEFAULT 0
+const int = () => ({ type: DataTypes.INTEGER, allowNull: false, defaultValue: 0, validate: { isInt: true } });
+const sum = () => ({ type: DataTypes.DOUBLE, allowNull: false, defaultValue: 0 });
+const day = (primaryKey = false) => ({ type: DataTypes.DATEONLY, allowNull: false, primaryKey, validate: { isDate: true } });
+const key = <T extends object>(a: T) => ({ ...a, primaryKey: true });
+const agreementMeasures = () => ({
+	pairs: int(),
+	one_sided: int(),
+	exact: int(),
+	sx: sum(),
+	sy: sum(),
+	sxx: sum(),
+	syy: sum(),
+	sxy: sum(),
+	sd: sum(),
+	sdd: sum()
+});
+// the six score fields (no composite `sum` in the agreement tables, 00006)
+const scoreField = () => ({ type: DataTypes.ENUM(...FIELDS), allowNull: false, validate: { isIn: [[...FIELDS] as string[]] } });
+const deltaId = () => ({ type: DataTypes.BIGINT.UNSIGNED, autoIncrement: true, primaryKey: true });
+/** A summary's columns with its key as the primary key, or its delta table's (own id as the only key). */
+function summaryColumns(columns: Record<string, object>, keys: readonly string[], delta: boolean): ModelAttributes {
+	const out: Record<string, object> = delta ? { id: deltaId() } : {};
+	for (const [name, def] of Object.entries(columns)) out[name] = !delta && keys.includes(name) ? key(def) : def;
+	return out as ModelAttributes;
+}
 
 /** Bind the models to a connection (called from models() in ./index.ts). */
 export function initAuditStatsModels(sequelize: Sequelize): void {
@@ -130,4 +353,59 @@ export function initAuditStatsModels(sequelize: Sequelize): void {
 		},
 		{ sequelize, tableName: 'error_events', timestamps: false }
 	);
+	const auditDaily = {
+		day: day(),
+		scorer_id: uint(),
+		battery_id: uint(),
+		test_code: code(),
+		domain: code(),
+		passes: int(),
+		fields_entered: int(),
+		raw_fields: int(),
+		derived_fields: int()
+	};
+	const agreement = (bucket: 'day' | 'week') => ({
+		scorer_id: uint(),
+		[bucket]: day(),
+		battery_id: uint(),
+		test_code: code(),
+		field: scoreField(),
+		first_label: code(30),
+		second_label: code(30),
+		...agreementMeasures()
+	});
+	const pairDaily = {
+		field: scoreField(),
+		day: day(),
+		first_scorer_id: uint(),
+		second_scorer_id: uint(),
+		battery_id: uint(),
+		test_code: code(),
+		first_label: code(30),
+		second_label: code(30),
+		...agreementMeasures()
+	};
+	const tables: Array<[ModelStatic<Model>, string, Record<string, object>, readonly string[]]> = [
+		[AuditDaily, 'audit_daily', auditDaily, ['day', 'scorer_id', 'battery_id', 'test_code']],
+		[AgreementDaily, 'agreement_daily', agreement('day'), ['scorer_id', 'day', 'battery_id', 'test_code', 'field', 'first_label', 'second_label']],
+		[AgreementWeekly, 'agreement_weekly', agreement('week'), ['scorer_id', 'week', 'battery_id', 'test_code', 'field', 'first_label', 'second_label']],
+		[
+			AgreementPairDaily,
+			'agreement_pair_daily',
+			pairDaily,
+			['field', 'day', 'first_scorer_id', 'second_scorer_id', 'battery_id', 'test_code', 'first_label', 'second_label']
+		]
+	];
+	const deltas: Record<string, ModelStatic<Model>> = {
+		audit_daily: AuditDailyDelta,
+		agreement_daily: AgreementDailyDelta,
+		agreement_weekly: AgreementWeeklyDelta,
+		agreement_pair_daily: AgreementPairDailyDelta
+	};
+	for (const [model, tableName, columns, keys] of tables) {
+		// fresh column definitions per model: Sequelize writes each attribute's name into its own
+		const copy = () => Object.fromEntries(Object.entries(columns).map(([n, d]) => [n, { ...d }]));
+		model.init(summaryColumns(copy(), keys, false), { sequelize, tableName, timestamps: false });
+		deltas[tableName].init(summaryColumns(copy(), keys, true), { sequelize, tableName: `${tableName}_delta`, timestamps: false });
+	}
 }

@@ -1,0 +1,138 @@
+/**
+ * rebuildDailySums (audit-stats/record.ts) at a size where the old one-statement rebuild failed:
+ * INSERT … SELECT … GROUP BY … ON DUPLICATE KEY UPDATE over every row stopped on MariaDB 10.11 with
+ * "Error on delete of '…#sql-temptable….MAI'" (errno 6) once its grouping outgrew the in-memory
+ * temporary table (16 MB by default, about 45,000 groups of agreement_weekly; the bench's seed of
+ * about 1M fields, issue 18). The rebuild now appends slices of protocols to the delta tables and
+ * folds them, as the worker does.
+ *
+ * The rows here are invented straight into the row-level tables (no protocols behind them), dated
+ * in 1999 with scorer ids no account has, and taken out again at the end (the summaries rebuilt
+ * without them). The expected sums are added up in this file from the rows it wrote.
+ */
+import { describe, it, expect, afterAll } from 'vitest';
+import { closeDb, exec, selectOne } from '../../src/lib/server/db';
+import { rebuildDailySums } from '../../src/lib/server/audit-stats/record';
+
+const FIELDS = ['raw', 'z', 'standard', 'scaled', 't', 'percentile'] as const;
+const BASE = 1_900_000_000; // fake protocol ids (no protocol row), far above the real ones
+const FIRST = 990_001;
+const SECOND = 990_002;
+/** 20,000 pairs, each in a cell of its own: 60,000 groups of agreement_daily / _weekly (3 per pair). */
+const N = 20_000;
+const YEAR = "BETWEEN '1999-01-01' AND '1999-12-31'";
+
+interface Pair {
+	protocol: number;
+	test: string;
+	field: string;
+	day: string;
+	x: number;
+	y: number | null;
+	label: string;
+}
+
+function pairs(): Pair[] {
+	const out: Pair[] = [];
+	for (let i = 0; i < N; i++) {
+		// (protocol, test, field) is unique: 400 tests × 6 fields per protocol
+		const protocol = BASE + Math.floor(i / 2400);
+		const day = `1999-03-${String(1 + (i % 28)).padStart(2, '0')}`;
+		out.push({
+			protocol,
+			test: `rb-${i % 400}`,
+			field: FIELDS[Math.floor(i / 400) % 6],
+			day,
+			x: i % 7,
+			y: i % 10 === 0 ? null : i % 5,
+			label: `b${i}` // a band id of its own: no two pairs share a summary cell
+		});
+	}
+	return out;
+}
+
+async function insertPairs(rows: Pair[]) {
+	for (let i = 0; i < rows.length; i += 2000) {
+		const values = rows
+			.slice(i, i + 2000)
+			.map(
+				(p) =>
+					`(${p.protocol}, 1, 1, '${p.test}', 'rb', '${p.field}', ${FIRST}, ${SECOND}, ${p.x}, ${p.y ?? 'NULL'}, '${p.label}', '${p.label}', '${p.day} 12:00:00')`
+			)
+			.join(',');
+		await exec(
+			`INSERT INTO agreement_pairs (protocol_id, round, battery_id, test_code, domain, field, first_scorer_id, second_scorer_id,
+			                              first_value, second_value, first_label, second_label, entered_at) VALUES ${values}`
+		);
+	}
+}
+
+async function cleanUp() {
+	await exec(`DELETE FROM agreement_pairs WHERE protocol_id >= ${BASE}`);
+	await exec(`DELETE FROM audit_fields WHERE protocol_id >= ${BASE}`);
+}
+
+afterAll(async () => {
+	await cleanUp();
+	await rebuildDailySums(); // the summaries as they were, without the rows of this file
+	await closeDb();
+}, 120_000);
+
+describe('rebuildDailySums at scale', () => {
+	it('rebuilds 60,000 agreement cells per table from the row-level tables, folded, with the sums of the rows (issue 18)', async () => {
+		await cleanUp();
+		const rows = pairs();
+		await insertPairs(rows);
+		// two passes of each fake protocol, as recordSubmission writes them ('' = the whole pass)
+		const protocols = [...new Set(rows.map((p) => p.protocol))];
+		const fields = protocols.flatMap((p, k) => [
+			`(${3_000_000_000 + 2 * k}, '', ${p}, 1, 'first', ${FIRST}, 1, '', ${30 + k}, 0, 0, '1999-03-01 10:00:00')`,
+			`(${3_000_000_001 + 2 * k}, '', ${p}, 1, 'second', ${SECOND}, 1, '', ${31 + k}, 0, 0, '1999-03-02 10:00:00')`
+		]);
+		await exec(
+			`INSERT INTO audit_fields (pass_id, test_code, protocol_id, round, which, scorer_id, battery_id, domain, fields_entered, raw_fields, derived_fields, entered_at)
+			 VALUES ${fields.join(',')}`
+		);
+
+		await rebuildDailySums();
+
+		for (const table of ['audit_daily', 'agreement_daily', 'agreement_weekly', 'agreement_pair_daily'])
+			expect(Number((await selectOne<{ n: number }>(`SELECT COUNT(*) AS n FROM ${table}_delta`))!.n), `${table}_delta folded`).toBe(0);
+
+		// by hand from the rows written above
+		const both = rows.filter((p) => p.y !== null);
+		const want = {
+			cells: N,
+			pairs: both.length,
+			one_sided: N - both.length,
+			exact: both.filter((p) => p.x === p.y).length,
+			sx: both.reduce((s, p) => s + p.x, 0),
+			sxy: both.reduce((s, p) => s + p.x * p.y!, 0)
+		};
+		for (const [table, col] of [
+			['agreement_daily', 'day'],
+			['agreement_weekly', 'week']
+		]) {
+			for (const scorer of [0, FIRST, SECOND]) {
+				const got = await selectOne<Record<string, number>>(
+					`SELECT COUNT(*) AS cells, SUM(pairs) AS pairs, SUM(one_sided) AS one_sided, SUM(exact) AS exact, SUM(sx) AS sx, SUM(sxy) AS sxy
+					   FROM ${table} WHERE scorer_id = :scorer AND ${col} ${YEAR}`,
+					{ scorer }
+				);
+				expect(Object.fromEntries(Object.entries(got!).map(([k, v]) => [k, Number(v)])), `${table} scorer ${scorer}`).toEqual(want);
+			}
+		}
+		const pairDaily = await selectOne<Record<string, number>>(
+			`SELECT COUNT(*) AS cells, SUM(pairs) AS pairs, SUM(one_sided) AS one_sided, SUM(exact) AS exact, SUM(sx) AS sx, SUM(sxy) AS sxy
+			   FROM agreement_pair_daily WHERE first_scorer_id = ${FIRST} AND second_scorer_id = ${SECOND} AND day ${YEAR}`
+		);
+		expect(Object.fromEntries(Object.entries(pairDaily!).map(([k, v]) => [k, Number(v)]))).toEqual(want);
+
+		const passes = await selectOne<{ passes: number; fields: number }>(
+			`SELECT SUM(passes) AS passes, SUM(fields_entered) AS fields FROM audit_daily WHERE day ${YEAR} AND scorer_id IN (${FIRST}, ${SECOND})`
+		);
+		// 9 fake protocols (20,000 / 2,400, rounded up), two passes each: Σ(30 + k) + Σ(31 + k), k = 0..8
+		expect(protocols).toHaveLength(9);
+		expect({ passes: Number(passes!.passes), fields: Number(passes!.fields) }).toEqual({ passes: 18, fields: 9 * 30 + 36 + 9 * 31 + 36 });
+	}, 180_000);
+});
