@@ -11,6 +11,7 @@ import * as m00022 from './00022-mail-claims';
 import * as m00023 from './00023-review-evidence';
 import * as m00024 from './00024-discrepancy-checks';
 import * as m00026 from './00026-audit-deltas';
+import * as m00030 from './00030-judgement-index';
 
 export const migrations = [
 	{ name: '00001-initial', ...m00001 },
@@ -24,7 +25,8 @@ export const migrations = [
 	{ name: '00022-mail-claims', ...m00022 },
 	{ name: '00023-review-evidence', ...m00023 },
 	{ name: '00024-discrepancy-checks', ...m00024 },
-	{ name: '00026-audit-deltas', ...m00026 }
+	{ name: '00026-audit-deltas', ...m00026 },
+	{ name: '00030-judgement-index', ...m00030 }
 ];
 
 /** Tables the app may read and add to but never change: the audit trail. */
