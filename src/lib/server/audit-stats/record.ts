@@ -271,10 +271,12 @@ export async function applyToDaily(
  * Rebuild the daily sums from the row-level tables (after a bulk load, or to repair): empty them,
  * append every protocol's sums to the delta tables `slice` protocol ids at a time, and fold them in
  * as the worker does. Not one INSERT … SELECT … GROUP BY … ON DUPLICATE KEY UPDATE over everything:
- * on MariaDB 10.11 that statement fails ("Error on delete of '…#sql-temptable….MAI'", errno 6) once
- * its grouping outgrows the in-memory temporary table (tmp_memory_table_size; about 1M entered fields
- * with the default 16 MB), and it held one transaction for minutes; each slice and each fold batch
- * groups a bounded number of rows. Run it while no submit is recorded (a bulk load, a repair).
+ * on MariaDB 10.11 that statement failed ("Error on delete of '…#sql-temptable….MAI'", errno 6) on the
+ * bench's seed of about 1M entered fields, whose grouping outgrew the 16 MB in-memory temporary table
+ * (by hand: 45,640 groups of agreement_weekly failed, 33,976 passed, and a 1 GB temporary table or no
+ * upsert made it pass; not every data shape triggers it), and it held one transaction for minutes.
+ * Each slice (a plain INSERT) and each fold batch groups a bounded number of rows. Run it while no
+ * submit is recorded (a bulk load, a repair).
  */
 export async function rebuildDailySums(opts: { slice?: number; foldBatch?: number } = {}): Promise<void> {
 	const slice = opts.slice ?? 2000;
