@@ -24,7 +24,14 @@ export function db(): Sequelize {
 			...(sqlProfileEnabled() ? { benchmark: true, logging: (sql: string, ms?: number) => recordStatement(sql, ms) } : { logging: false }),
 			timezone: '+00:00',
 			pool: { max: config.db.pool, min: 0, idle: 10_000, acquire: 5_000 },
-			dialectOptions: { connectTimeout: Number(process.env.DB_CONNECT_TIMEOUT_MS ?? 3_000), decimalAsNumber: true, bigIntAsNumber: true, dateStrings: ['DATE'] }
+			dialectOptions: {
+				connectTimeout: Number(process.env.DB_CONNECT_TIMEOUT_MS ?? 3_000),
+				decimalAsNumber: true,
+				bigIntAsNumber: true,
+				dateStrings: ['DATE'],
+				// every transaction() is READ COMMITTED: set once per connection, not by a statement per transaction
+				initSql: 'SET SESSION TRANSACTION ISOLATION LEVEL READ COMMITTED'
+			}
 		});
 	}
 	return instance;
@@ -105,7 +112,8 @@ export function transaction<T>(fn: (t: Transaction) => Promise<T>, retry?: Retry
 		let out: T | undefined;
 		let bodyDone = false;
 		try {
-			return await db().transaction({ isolationLevel: Transaction.ISOLATION_LEVELS.READ_COMMITTED }, async (t) => {
+			// READ COMMITTED: the session's level, set when the connection is made (initSql in db())
+			return await db().transaction(async (t) => {
 				out = await fn(t);
 				await writeMarker(marker, t);
 				bodyDone = true;

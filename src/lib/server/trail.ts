@@ -14,18 +14,20 @@ export interface TrailEvent {
 	reason?: string | null;
 }
 
+const rowOf = (e: TrailEvent) => ({
+	actor_id: e.actorId,
+	entity: e.entity,
+	entity_id: String(e.entityId),
+	action: e.action,
+	protocol_id: e.protocolId ?? null,
+	old_value: e.oldValue === undefined ? null : JSON.stringify(e.oldValue),
+	new_value: e.newValue === undefined ? null : JSON.stringify(e.newValue),
+	reason: e.reason ?? null
+});
+
 /** Add an event to the trail, in the caller's transaction (a change and its event commit together). */
 export async function recordEvent(e: TrailEvent, t?: Tx): Promise<void> {
-	const row = {
-		actor_id: e.actorId,
-		entity: e.entity,
-		entity_id: String(e.entityId),
-		action: e.action,
-		protocol_id: e.protocolId ?? null,
-		old_value: e.oldValue === undefined ? null : JSON.stringify(e.oldValue),
-		new_value: e.newValue === undefined ? null : JSON.stringify(e.newValue),
-		reason: e.reason ?? null
-	};
+	const row = rowOf(e);
 	const create = (transaction?: Transaction) => trailRows().create(row, { transaction });
 	if (t) {
 		await create(t);
@@ -33,6 +35,11 @@ export async function recordEvent(e: TrailEvent, t?: Tx): Promise<void> {
 	}
 	// on its own it commits as it runs (../db.ts autocommit: retried on a conflict, which means it was not applied)
 	await autocommit(() => create());
+}
+
+/** Add several events of one transaction in one multi-row INSERT, in the order given (ids ascend with it). */
+export async function recordEvents(events: TrailEvent[], t: Transaction): Promise<void> {
+	if (events.length) await trailRows().bulkCreate(events.map(rowOf), { transaction: t, validate: true });
 }
 
 /** How many events the trail holds for one entity (e.g. the standing changes of a scorer on a battery). */

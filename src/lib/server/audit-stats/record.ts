@@ -75,42 +75,74 @@ async function domainsFor(codes: string[], t: Transaction): Promise<Map<string, 
 	return out;
 }
 
-/**
- * Both passes of a round are submitted: write one audit_fields row per pass × test (fields that
- * scorer entered) and one agreement_pairs row per test × field that either pass entered.
- */
-export async function recordSubmission(protocolId: number, round: number, t: Transaction): Promise<void> {
-	models();
-	const passes = await select<PassRead & { battery_id: number }>(
-		`SELECT s.id, s.which, s.scorer_id, s.status, s.scores, s.fields_entered, s.submitted_at, p.battery_id
-		   FROM passes s JOIN protocols p ON p.id = s.protocol_id
-		  WHERE s.protocol_id = :protocolId AND s.round = :round`,
-		{ protocolId, round },
-		t
-	);
-	const first = passes.find((p) => p.which === 'first');
-	const second = passes.find((p) => p.which === 'second');
-	if (!first || !second || first.status !== 'submitted' || second.status !== 'submitted') {
-		throw new Error(`recordSubmission: protocol ${protocolId} round ${round} does not have two submitted passes`);
-	}
-	const batteryId = Number(first.battery_id);
-	const s1 = jsonValue<PassScores>(first.scores) ?? {};
-	const s2 = jsonValue<PassScores>(second.scores) ?? {};
-	const codes = [...new Set([...Object.keys(s1), ...Object.keys(s2)])];
-	const domains = await domainsFor(codes, t);
-	const enteredAt = (p: PassRead) => (p.submitted_at ? new Date(p.submitted_at) : new Date());
-	const roundAt = new Date(Math.max(enteredAt(first).getTime(), enteredAt(second).getTime()));
-
-	const round_ = { protocol_id: protocolId, round };
-	// A round recorded before (recorded again): take its rows out of the sums first. The usual case,
-	// a round's first recording, has none. Raw SQL: one look-up answers for both tables.
+/** Whether a round was recorded before (rows in audit_fields or agreement_pairs). Raw SQL: one look-up answers for both tables. */
+export async function roundRecorded(protocolId: number, round: number, t: Transaction): Promise<boolean> {
 	const earlier = await selectOne<{ n: number }>(
 		`SELECT EXISTS (SELECT 1 FROM audit_fields WHERE protocol_id = :protocolId AND round = :round)
 		      + EXISTS (SELECT 1 FROM agreement_pairs WHERE protocol_id = :protocolId AND round = :round) AS n`,
 		{ protocolId, round },
 		t
 	);
-	if (Number(earlier?.n ?? 1) > 0) {
+	return Number(earlier?.n ?? 1) > 0;
+}
+
+/** What the second submit has already read, under the protocol's lock, in the same transaction (each read here when absent). */
+export interface SubmissionReads {
+	/** Both passes of the round, as stored now (after the submit's own update). */
+	passes: PassRead[];
+	batteryId: number;
+	/** `roundRecorded()` */
+	earlier: boolean;
+	/** `testDomains()` of the protocol */
+	domains: Map<string, string>;
+}
+
+/** `domainsFor` the codes of a protocol's tests, without reading them first (a subquery names them). */
+export async function testDomains(protocolId: number, t: Transaction): Promise<Map<string, string>> {
+	const rows = await select<{ code: string; domain: string }>(
+		`SELECT code, domain FROM tests
+		  WHERE code IN (SELECT t.code FROM protocol_tests pt JOIN tests t ON t.id = pt.test_id WHERE pt.protocol_id = :protocolId)
+		  ORDER BY is_current ASC, version ASC`,
+		{ protocolId },
+		t
+	);
+	const out = new Map<string, string>();
+	for (const r of rows) out.set(r.code, r.domain); // current (or latest) version wins, as in domainsFor
+	return out;
+}
+
+/**
+ * Both passes of a round are submitted: write one audit_fields row per pass × test (fields that
+ * scorer entered) and one agreement_pairs row per test × field that either pass entered.
+ */
+export async function recordSubmission(protocolId: number, round: number, t: Transaction, known?: SubmissionReads): Promise<void> {
+	models();
+	const passes =
+		known?.passes ??
+		(await select<PassRead & { battery_id: number }>(
+			`SELECT s.id, s.which, s.scorer_id, s.status, s.scores, s.fields_entered, s.submitted_at, p.battery_id
+			   FROM passes s JOIN protocols p ON p.id = s.protocol_id
+			  WHERE s.protocol_id = :protocolId AND s.round = :round`,
+			{ protocolId, round },
+			t
+		));
+	const first = passes.find((p) => p.which === 'first');
+	const second = passes.find((p) => p.which === 'second');
+	if (!first || !second || first.status !== 'submitted' || second.status !== 'submitted') {
+		throw new Error(`recordSubmission: protocol ${protocolId} round ${round} does not have two submitted passes`);
+	}
+	const batteryId = known ? known.batteryId : Number((first as PassRead & { battery_id: number }).battery_id);
+	const s1 = jsonValue<PassScores>(first.scores) ?? {};
+	const s2 = jsonValue<PassScores>(second.scores) ?? {};
+	const codes = [...new Set([...Object.keys(s1), ...Object.keys(s2)])];
+	const domains = known?.domains ?? (await domainsFor(codes, t));
+	const enteredAt = (p: PassRead) => (p.submitted_at ? new Date(p.submitted_at) : new Date());
+	const roundAt = new Date(Math.max(enteredAt(first).getTime(), enteredAt(second).getTime()));
+
+	const round_ = { protocol_id: protocolId, round };
+	// A round recorded before (recorded again): take its rows out of the sums first. The usual case,
+	// a round's first recording, has none.
+	if (known ? known.earlier : await roundRecorded(protocolId, round, t)) {
 		await applyToDaily({ protocolId, round }, -1, t);
 		await AuditField.destroy({ where: round_, transaction: t });
 		await AgreementPair.destroy({ where: round_, transaction: t });

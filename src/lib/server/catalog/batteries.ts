@@ -82,12 +82,15 @@ export interface CatalogComposite extends FrozenComposite {
 
 /** The composites a protocol froze at creation, in report order, with their norm group. */
 export async function protocolComposites(protocolId: number, tx?: Tx): Promise<CatalogComposite[]> {
-	const { ProtocolComposite, NormGroup } = models();
-	const rows = await ProtocolComposite.findAll({ where: { protocol_id: protocolId }, order: [['position', 'ASC']], transaction: tx_(tx) });
-	const ids = rows.map((r) => r.norm_group_id).filter((x): x is number => x !== null);
-	const groups = new Map((ids.length ? await NormGroup.findAll({ where: { id: { [Op.in]: ids } }, transaction: tx_(tx) }) : []).map((g) => [g.id, g]));
+	// one statement: the frozen composites and their norm groups
+	const rows = await models().ProtocolComposite.findAll({
+		where: { protocol_id: protocolId },
+		include: [{ association: 'normGroup', required: false }],
+		order: [['position', 'ASC']],
+		transaction: tx_(tx)
+	});
 	return rows.map((r) => {
-		const g = r.norm_group_id ? groups.get(r.norm_group_id) : undefined;
+		const g = r.normGroup ?? undefined;
 		return {
 			...r.definition,
 			position: r.position,

@@ -4,7 +4,7 @@
  * the rows named. Groups a protocol was scored with cannot be changed or removed: make a new
  * version of the norm set instead.
  */
-import { Op, fn, col } from 'sequelize';
+import { Op, fn, col, literal, type WhereOptions } from 'sequelize';
 import { db, select, transaction, type Tx } from '../db';
 import { recordEvent } from '../trail';
 import { ageRuleOf, normGroupSchema, normSetSchema, type NormGroupInput, type NormSetInput } from '../../catalog/schema';
@@ -216,18 +216,44 @@ export async function listNormGroups(normSetId: number, opts: { test?: string } 
 	return withRows(groups, tx);
 }
 
-/** The groups of these tests (or composites) in a norm set, with their form and table rows (the workflow's read). */
-export async function normGroups(normSetId: number, testCodes: string[], tx?: Tx): Promise<NormGroupRecord[]> {
-	if (testCodes.length === 0) return [];
-	const groups = await models().NormGroup.findAll({
-		where: { norm_set_id: normSetId, test_code: { [Op.in]: testCodes } },
+/** Groups with their table rows, read in one statement (norm group → table rows), in test and age order. */
+async function groupsWithRows(where: WhereOptions<NormGroup>, tx?: Tx): Promise<NormGroupRecord[]> {
+	const { NormGroup, NormTableRow } = models();
+	const groups = await NormGroup.findAll({
+		where,
+		include: [{ association: 'tableRows', required: false }],
 		order: [
 			['test_code', 'ASC'],
-			['age_min_months', 'ASC']
+			['age_min_months', 'ASC'],
+			['id', 'ASC'],
+			[{ model: NormTableRow, as: 'tableRows' }, 'position', 'ASC']
 		],
 		transaction: tx_(tx)
 	});
-	return withRows(groups, tx);
+	return groups.map((g) =>
+		toGroup(g, g.form === 'table' ? (g.tableRows ?? []).map((r) => ({ lo: Number(r.lo), hi: Number(r.hi), score: r.score, percentile: r.percentile })) : null)
+	);
+}
+
+/** The groups of these tests (or composites) in a norm set, with their form and table rows (the workflow's read). */
+export async function normGroups(normSetId: number, testCodes: string[], tx?: Tx): Promise<NormGroupRecord[]> {
+	if (testCodes.length === 0) return [];
+	return groupsWithRows({ norm_set_id: normSetId, test_code: { [Op.in]: testCodes } }, tx);
+}
+
+/**
+ * Every group of a protocol's tests and composites in its norm set (what `normGroups` gives for the
+ * codes of `protocolTests` and `protocolComposites`), without reading those first: the codes come from
+ * a subquery, so the second submit reads this beside the protocol's plan in one round trip.
+ */
+export async function protocolNormGroups(protocolId: number, normSetId: number, tx?: Tx): Promise<NormGroupRecord[]> {
+	const id = Number(protocolId);
+	if (!Number.isSafeInteger(id)) throw new Error(`protocolNormGroups: bad protocol id ${protocolId}`);
+	// raw subquery: the protocol's frozen test versions' codes and its composites' codes (a UNION no association gives)
+	const codes = literal(
+		`(SELECT t.code FROM protocol_tests pt JOIN tests t ON t.id = pt.test_id WHERE pt.protocol_id = ${id} UNION SELECT pc.code FROM protocol_composites pc WHERE pc.protocol_id = ${id})`
+	);
+	return groupsWithRows({ norm_set_id: normSetId, test_code: { [Op.in]: codes } }, tx);
 }
 
 /** A group as the age rules take it (what it covers). */

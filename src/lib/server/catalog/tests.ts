@@ -3,7 +3,6 @@
  * scored with makes a new version (the old one stays, no longer current); any other change is made
  * in place. Name, unit, domain and notes never make a version.
  */
-import { Op } from 'sequelize';
 import { isUniqueViolation, select, transaction, type Tx } from '../db';
 import { recordEvent } from '../trail';
 import { canonicalReported, testInputSchema, type Bounds, type Derived, type TestInput } from '../../catalog/schema';
@@ -115,39 +114,30 @@ export interface ProtocolTest extends CatalogTest {
 	normScale: string | null;
 }
 
-/** The tests a protocol was created with (frozen versions), in order, with the norm group chosen. */
+/** The tests a protocol was created with (frozen versions), in order, with the norm group chosen: one statement
+ * (protocol_tests → test version → its domain, and → norm group). */
 export async function protocolTests(protocolId: number, tx?: Tx): Promise<ProtocolTest[]> {
-	// protocol_tests is the protocol side's table (its model comes with the protocol models)
-	const frozen = await select<{ test_id: number; position: number; norm_group_id: number | null; override_reason: string | null }>(
-		'SELECT test_id, position, norm_group_id, override_reason FROM protocol_tests WHERE protocol_id = :protocolId ORDER BY position',
-		{ protocolId },
-		tx
-	);
-	if (!frozen.length) return [];
-	const { Test, NormGroup } = models();
-	const groupIds = frozen.map((f) => f.norm_group_id).filter((x): x is number => x !== null);
-	const [tests, groups] = await Promise.all([
-		Test.findAll({ where: { id: { [Op.in]: frozen.map((f) => f.test_id) } }, include: [withDomain()], transaction: tx_(tx) }),
-		groupIds.length ? NormGroup.findAll({ where: { id: { [Op.in]: groupIds } }, transaction: tx_(tx) }) : Promise.resolve([])
-	]);
-	const testById = new Map(tests.map((t) => [t.id, t]));
-	const groupById = new Map(groups.map((g) => [g.id, g]));
-	return frozen.flatMap((f) => {
-		const t = testById.get(f.test_id);
-		if (!t) return [];
-		const g = f.norm_group_id === null ? undefined : groupById.get(f.norm_group_id);
-		return [
-			{
-				...toCatalogTest(t),
-				position: f.position,
-				groupId: f.norm_group_id,
-				groupCode: g?.group_code ?? null,
-				groupText: g ? groupCoverage(groupDef(g)) : '—',
-				overrideReason: f.override_reason,
-				normForm: g?.form ?? 'mean_sd',
-				normScale: g?.scale ?? null
-			}
-		];
+	const rows = await models().ProtocolTest.findAll({
+		where: { protocol_id: protocolId },
+		include: [
+			{ association: 'test', required: true, include: [withDomain()] },
+			{ association: 'normGroup', required: false }
+		],
+		order: [['position', 'ASC']],
+		transaction: tx_(tx)
+	});
+	return rows.map((f) => {
+		const g = f.normGroup ?? undefined;
+		return {
+			...toCatalogTest(f.test!),
+			position: f.position,
+			groupId: f.norm_group_id,
+			groupCode: g?.group_code ?? null,
+			groupText: g ? groupCoverage(groupDef(g)) : '—',
+			overrideReason: f.override_reason,
+			normForm: g?.form ?? 'mean_sd',
+			normScale: g?.scale ?? null
+		};
 	});
 }
 

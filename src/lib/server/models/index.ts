@@ -3,13 +3,13 @@
  * composites); the catalog's (./catalog.ts) and the accounts' and settings' (./people.ts) are bound
  * here too. `models()` initialises them once against the shared connection (lazy, so importing is free).
  */
-import { DataTypes, Model, type CreationOptional, type InferAttributes, type InferCreationAttributes } from 'sequelize';
+import { DataTypes, Model, type CreationOptional, type InferAttributes, type InferCreationAttributes, type NonAttribute } from 'sequelize';
 import { db } from '../db';
 import { jsonColumn } from './columns';
 import { initAuditStatsModels } from './audit-stats';
 import { amendments } from './amendment';
 import { initProtocolModels, PROTOCOL_MODELS } from './protocol';
-import { catalogModels, initCatalogModels } from './catalog';
+import { catalogModels, initCatalogModels, type NormGroup } from './catalog';
 import { peopleModels, initPeopleModels } from './people';
 import { initMailModels, Outbox, MailLog } from './mail';
 
@@ -56,6 +56,7 @@ export class ProtocolComposite extends Model<InferAttributes<ProtocolComposite>,
 	declare code: string;
 	declare definition: FrozenComposite;
 	declare norm_group_id: number | null;
+	declare normGroup?: NonAttribute<NormGroup | null>;
 }
 
 /** The connection the models were last initialised on (closeDb() makes a new one). */
@@ -118,6 +119,11 @@ export function models() {
 		initAuditStatsModels(sequelize);
 		initProtocolModels(sequelize, { ProtocolComposite, Amendment: amendments() });
 		initCatalogModels(sequelize, { NormTableRow, Composite });
+		// a protocol's frozen plan → the catalog rows it names (test version, norm group), read in one statement
+		const { ProtocolTest } = PROTOCOL_MODELS;
+		ProtocolTest.belongsTo(catalogModels.Test, { foreignKey: 'test_id', as: 'test', constraints: false });
+		ProtocolTest.belongsTo(catalogModels.NormGroup, { foreignKey: 'norm_group_id', as: 'normGroup', constraints: false });
+		ProtocolComposite.belongsTo(catalogModels.NormGroup, { foreignKey: 'norm_group_id', as: 'normGroup', constraints: false });
 		initPeopleModels(sequelize);
 		initMailModels(sequelize);
 		bound = sequelize;

@@ -17,6 +17,7 @@ import {
 	type InferAttributes,
 	type InferCreationAttributes,
 	type ModelStatic,
+	type NonAttribute,
 	type Sequelize,
 	type Transaction
 } from 'sequelize';
@@ -24,6 +25,7 @@ import { readRetried } from '../db';
 import type { Field } from '../../scoring/scales';
 import { KINDS, type Kind } from '../../scoring/kinds';
 import { jsonColumn } from './columns';
+import type { NormGroup, Test } from './catalog';
 
 export type Status = 'draft' | 'awaiting_second' | 'in_review' | 'verified';
 export type Which = 'first' | 'second';
@@ -81,6 +83,9 @@ export class ProtocolTest extends Model<InferAttributes<ProtocolTest>, InferCrea
 	declare test_id: number;
 	declare norm_group_id: number | null;
 	declare override_reason: string | null;
+	/** The frozen test version and the chosen norm group (associations bound in models/index.ts). */
+	declare test?: NonAttribute<Test>;
+	declare normGroup?: NonAttribute<NormGroup | null>;
 }
 
 export class Pass extends Model<InferAttributes<Pass>, InferCreationAttributes<Pass>> {

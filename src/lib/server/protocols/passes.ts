@@ -6,17 +6,28 @@
 import type { Transaction } from 'sequelize';
 import { z } from 'zod';
 import { exec, selectOne, transaction, jsonValue, type Tx } from '../db';
-import { recordEvent } from '../trail';
+import { recordEvent, recordEvents, type TrailEvent } from '../trail';
 import { models } from '../models';
 import { dbNow, inTx, reading, saveLocked, type Pass, type Protocol, type ProtocolRow, type Which } from '../models/protocol';
 import { protocolFor, type Actor } from './service';
-import { protocolTests, protocolComposites, normGroups, normDef, engineTest, engineComposite, type CatalogTest, type CatalogComposite } from '../catalog';
+import {
+	protocolTests,
+	protocolComposites,
+	protocolNormGroups,
+	normDef,
+	engineTest,
+	engineComposite,
+	type CatalogTest,
+	type CatalogComposite,
+	type NormGroupRecord,
+	type ProtocolTest
+} from '../catalog';
 import { reconcile, ReconcileInputError, type FieldValues, type ReconcileResult } from '../../scoring/reconcile';
 import { formatReference, type Field } from '../../scoring/scales';
 import { conflict, invalid, notFound, parseFirst, ServiceError } from '../errors';
 import { notifyReviewStarted } from '../mail/reminders/scheduling';
-import { recordSubmission } from '../audit-stats/record';
-import { decideAtFirstSubmit, reconcileSinglePass, afterReconcile, guardSecondPass } from '../verification';
+import { recordSubmission, roundRecorded, testDomains } from '../audit-stats/record';
+import { decideAtFirstSubmit, reconcileSinglePass, afterReconcile, guardSecondPass, secondSubmitVerification } from '../verification';
 
 export type { Which };
 export type Scores = Record<string, Partial<Record<Field, string | null>>>;
@@ -151,12 +162,28 @@ export async function saveDraft(protocolId: number, user: Actor, body: unknown) 
 	});
 }
 
-/** Build the engine's input from the stored protocol and passes. */
-export async function engineInput(p: Pick<ProtocolRow, 'id' | 'norm_set_id' | 'covariates'>, passes: { first: Scores; second: Scores }, t?: Tx) {
-	const tests = await protocolTests(p.id, t);
-	const composites = await protocolComposites(p.id, t);
+/** What the engine needs of the catalog for one protocol: its frozen tests and composites and every group of them in its norm set. */
+export interface ProtocolPlan {
+	tests: ProtocolTest[];
+	composites: CatalogComposite[];
+	groups: NormGroupRecord[];
+}
+
+/** The protocol's plan, read at once (three reads, no one waiting on another). */
+export async function protocolPlan(p: Pick<ProtocolRow, 'id' | 'norm_set_id'>, t?: Tx): Promise<ProtocolPlan> {
+	const [tests, composites, groups] = await Promise.all([protocolTests(p.id, t), protocolComposites(p.id, t), protocolNormGroups(p.id, p.norm_set_id, t)]);
+	return { tests, composites, groups };
+}
+
+/** Build the engine's input from the stored protocol and passes (`plan`: the protocol's plan, when already read). */
+export async function engineInput(
+	p: Pick<ProtocolRow, 'id' | 'norm_set_id' | 'covariates'>,
+	passes: { first: Scores; second: Scores },
+	t?: Tx,
+	plan?: ProtocolPlan
+) {
 	// every group of each test and composite, so a value from another band is named wrong_norm_group
-	const groups = await normGroups(p.norm_set_id, [...tests.map((x) => x.code), ...composites.map((c) => c.code)], t);
+	const { tests, composites, groups } = plan ?? (await protocolPlan(p, t));
 	const protocolGroups: Record<string, string> = {};
 	for (const x of [...tests, ...composites]) if (x.groupCode) protocolGroups[x.code] = x.groupCode;
 	const toEngine = (s: Scores) => {
@@ -224,19 +251,22 @@ export async function storeDiscrepancies(p: Pick<ProtocolRow, 'id' | 'round'>, r
 	}
 }
 
-/** The reconciliation is stored: the protocol goes to review, and the trail says so with the counts. */
-async function enterReview(p: Protocol, user: Actor, summary: Record<string, unknown>, t: Transaction): Promise<void> {
+/** The reconciliation is stored: the protocol goes to review, and the trail says so with the counts (after `before`, in one INSERT). */
+async function enterReview(p: Protocol, user: Actor, summary: Record<string, unknown>, t: Transaction, before: TrailEvent[] = []): Promise<void> {
 	const from = await moveProtocol(p, 'in_review', t);
-	await recordEvent(
-		{
-			actorId: user.id,
-			entity: 'protocol',
-			entityId: p.id,
-			protocolId: p.id,
-			action: 'reconcile',
-			oldValue: from,
-			newValue: { status: 'in_review', round: p.round, ...summary }
-		},
+	await recordEvents(
+		[
+			...before,
+			{
+				actorId: user.id,
+				entity: 'protocol',
+				entityId: p.id,
+				protocolId: p.id,
+				action: 'reconcile',
+				oldValue: from,
+				newValue: { status: 'in_review', round: p.round, ...summary }
+			}
+		],
 		t
 	);
 }
@@ -272,22 +302,11 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 		// Locking the protocol row serializes submissions of both passes (two tabs, a retry, both scorers at once).
 		const { p, duties } = await protocolFor(protocolId, user, t, true);
 		const which = myDuty(duties);
+		if (which === 'second') return submitSecond(p, user, version.data.draftVersion, t);
 		const pass = await passRow(p, which, t, true);
 		if (pass.scorer_id !== user.id) throw notFound('This pass');
-		if (pass.status === 'submitted')
-			throw new ServiceError(409, 'This pass was already submitted (from another tab or an earlier try). Nothing was changed.', undefined, 'already_submitted');
-		if (pass.draft_version !== version.data.draftVersion) {
-			throw new ServiceError(
-				409,
-				'This pass changed in another tab since you opened it. Reload, check the values and submit again.',
-				'draftVersion',
-				'stale_draft'
-			);
-		}
-		if (which === 'second') await guardSecondPass(p, t);
-		if (which === 'second' && p.status === 'draft') {
-			throw conflict('The first pass has not been submitted yet. Your draft is saved; submit once the first scorer has submitted.');
-		}
+		if (pass.status === 'submitted') throw alreadySubmitted();
+		if (pass.draft_version !== version.data.draftVersion) throw staleDraft();
 		// Once only, checked again at the write: on a Galera cluster the FOR UPDATE above locks only on
 		// this node, so a submission of the same pass through another node is stopped here (the row is
 		// no longer a draft of this version) or by the certification conflict at commit (1213, retried
@@ -296,59 +315,97 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 			{ status: 'submitted', submitted_at: dbNow() },
 			{ where: { id: pass.id, status: 'draft', draft_version: pass.draft_version }, transaction: t }
 		);
-		if (marked !== 1)
-			throw new ServiceError(409, 'This pass was already submitted (from another tab or an earlier try). Nothing was changed.', undefined, 'already_submitted');
+		if (marked !== 1) throw alreadySubmitted();
+		await recordEvent(submitEvent(p, pass, user, which), t);
+
+		// Risk-based verification: the draw is made here, at the submission, never before.
+		const scores = jsonValue<Scores>(pass.scores) ?? {};
+		const outcome = await decideAtFirstSubmit(p, scores, pass.fields_entered, user, t);
+		if (outcome === 'not_drawn') {
+			const single = await reconcileSinglePass(p, { id: pass.id, scorer_id: pass.scorer_id, fields_entered: pass.fields_entered, scores }, user, t);
+			await enterReview(p, user, { single_pass: true, ...single.summary }, t);
+			await notifyReviewStarted(p.id, p.round, p.reviewer_id, t);
+			return { which, status: 'in_review' as const, discrepancies: single.discrepancies.length, singlePass: true };
+		}
+		const from = await moveProtocol(p, 'awaiting_second', t);
 		await recordEvent(
-			{
-				actorId: user.id,
-				entity: 'pass',
-				entityId: pass.id,
-				protocolId: p.id,
-				action: `submit_${which}`,
-				newValue: { round: p.round, fields: pass.fields_entered, scores: jsonValue(pass.scores) }
-			},
+			{ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'status', oldValue: from, newValue: 'awaiting_second' },
 			t
 		);
-
-		if (which === 'first') {
-			// Risk-based verification: the draw is made here, at the submission, never before.
-			const scores = jsonValue<Scores>(pass.scores) ?? {};
-			const outcome = await decideAtFirstSubmit(p, scores, pass.fields_entered, user, t);
-			if (outcome === 'not_drawn') {
-				const single = await reconcileSinglePass(p, { id: pass.id, scorer_id: pass.scorer_id, fields_entered: pass.fields_entered, scores }, user, t);
-				await enterReview(p, user, { single_pass: true, ...single.summary }, t);
-				await notifyReviewStarted(p.id, p.round, p.reviewer_id, t);
-				return { which, status: 'in_review' as const, discrepancies: single.discrepancies.length, singlePass: true };
-			}
-			const from = await moveProtocol(p, 'awaiting_second', t);
-			await recordEvent(
-				{ actorId: user.id, entity: 'protocol', entityId: p.id, protocolId: p.id, action: 'status', oldValue: from, newValue: 'awaiting_second' },
-				t
-			);
-			return { which, status: 'awaiting_second' as const, discrepancies: null };
-		}
-
-		const first = await passRow(p, 'first', t, true);
-		if (first.status !== 'submitted') throw conflict('The first pass has not been submitted yet.');
-		const { input } = await engineInput(p, { first: jsonValue<Scores>(first.scores) ?? {}, second: jsonValue<Scores>(pass.scores) ?? {} }, t);
-		let result: ReconcileResult;
-		try {
-			result = reconcile(input);
-		} catch (e) {
-			if (e instanceof ReconcileInputError)
-				throw new ServiceError(
-					422,
-					`The protocol cannot be reconciled: ${e.message}. Nothing was changed; ask a lead to check the catalog.`,
-					undefined,
-					'catalog'
-				);
-			throw e;
-		}
-		await storeDiscrepancies(p, result, t);
-		await enterReview(p, user, result.summary, t);
-		await recordSubmission(p.id, p.round, t);
-		await afterReconcile(p, t);
-		await notifyReviewStarted(p.id, p.round, p.reviewer_id, t);
-		return { which, status: 'in_review' as const, discrepancies: result.discrepancies.length };
+		return { which, status: 'awaiting_second' as const, discrepancies: null };
 	});
+}
+
+const alreadySubmitted = () =>
+	new ServiceError(409, 'This pass was already submitted (from another tab or an earlier try). Nothing was changed.', undefined, 'already_submitted');
+const staleDraft = () =>
+	new ServiceError(409, 'This pass changed in another tab since you opened it. Reload, check the values and submit again.', 'draftVersion', 'stale_draft');
+
+const submitEvent = (p: Protocol, pass: Pass, user: Actor, which: Which): TrailEvent => ({
+	actorId: user.id,
+	entity: 'pass',
+	entityId: pass.id,
+	protocolId: p.id,
+	action: `submit_${which}`,
+	newValue: { round: p.round, fields: pass.fields_entered, scores: jsonValue(pass.scores) }
+});
+
+/**
+ * The second submission, in the transaction that locked the protocol row: the reconciliation. Its
+ * statements are few on purpose (issue 18: the time is the round trips): the pass is marked by one
+ * UPDATE that is also the once-only check, everything else it reads is read at once under the
+ * protocol's lock, and the trail's two events go in one INSERT. Any refusal throws, so the mark
+ * rolls back with the rest.
+ */
+async function submitSecond(p: Protocol, user: Actor, draftVersion: number, t: Transaction): Promise<SubmitResult> {
+	const { Pass } = models();
+	// Once only: only the caller's own draft of the version they saw moves (on a Galera cluster a
+	// submission of the same pass through another node is stopped here, or by the certification
+	// conflict at commit — 1213, retried by transaction(): the rerun finds it submitted and answers 409).
+	// Awaited before the reads: Sequelize sends a model's query after its hooks have run, so two
+	// queries started together may reach the server in either order, and the reads must see the mark
+	// (submitted_at, the database's clock, is what the audit counts).
+	const [marked] = await Pass.update(
+		{ status: 'submitted', submitted_at: dbNow() },
+		{ where: { protocol_id: p.id, round: p.round, which: 'second', scorer_id: user.id, status: 'draft', draft_version: draftVersion }, transaction: t }
+	);
+	// the pure reads, sent together (one round trip): no write is in flight while they run, so were
+	// one to fail, nothing could run outside the transaction after a rollback
+	const [passes, verification, earlier, plan, domains] = await Promise.all([
+		Pass.findAll({ where: { protocol_id: p.id, round: p.round }, ...inTx(t, true) }),
+		secondSubmitVerification(p, t),
+		roundRecorded(p.id, p.round, t),
+		protocolPlan(p, t),
+		testDomains(p.id, t)
+	]);
+	const pass = passes.find((x) => x.which === 'second');
+	if (!pass || pass.scorer_id !== user.id) throw notFound('This pass');
+	if (marked !== 1) throw pass.status === 'draft' && pass.draft_version !== draftVersion ? staleDraft() : alreadySubmitted();
+	await guardSecondPass(p, t, verification);
+	if (p.status === 'draft') {
+		throw conflict('The first pass has not been submitted yet. Your draft is saved; submit once the first scorer has submitted.');
+	}
+	const first = passes.find((x) => x.which === 'first');
+	if (!first) throw notFound('This pass');
+	if (first.status !== 'submitted') throw conflict('The first pass has not been submitted yet.');
+	const { input } = await engineInput(p, { first: jsonValue<Scores>(first.scores) ?? {}, second: jsonValue<Scores>(pass.scores) ?? {} }, t, plan);
+	let result: ReconcileResult;
+	try {
+		result = reconcile(input);
+	} catch (e) {
+		if (e instanceof ReconcileInputError)
+			throw new ServiceError(
+				422,
+				`The protocol cannot be reconciled: ${e.message}. Nothing was changed; ask a lead to check the catalog.`,
+				undefined,
+				'catalog'
+			);
+		throw e;
+	}
+	await storeDiscrepancies(p, result, t);
+	await enterReview(p, user, result.summary, t, [submitEvent(p, pass, user, 'second')]);
+	await recordSubmission(p.id, p.round, t, { passes: [first, pass], batteryId: p.battery_id, earlier, domains });
+	await afterReconcile(p, t, verification);
+	await notifyReviewStarted(p.id, p.round, p.reviewer_id, t);
+	return { which: 'second', status: 'in_review' as const, discrepancies: result.discrepancies.length };
 }

@@ -382,12 +382,22 @@ export async function reconcileSinglePass(
  * error rate above T puts them back on full double entry at once; then both scorers' rolling record is
  * re-read.
  */
-export async function afterReconcile(p: ProtocolRow, t: Transaction) {
+/**
+ * What the second submit needs of verification, read once under the protocol's lock (so it cannot
+ * change before the commit): the protocol's draw row and its battery's policy, both reads at once.
+ */
+export async function secondSubmitVerification(p: Pick<ProtocolRow, 'id' | 'battery_id'>, t: Transaction) {
 	const { VerificationProtocol } = verificationModels();
-	const row = await VerificationProtocol.findByPk(p.id, { transaction: t });
-	const policy = await getPolicy(p.battery_id, t);
+	const [row, policy] = await Promise.all([VerificationProtocol.findByPk(p.id, { transaction: t }), getPolicy(p.battery_id, t)]);
+	return { row, policy };
+}
+export type SecondSubmitVerification = Awaited<ReturnType<typeof secondSubmitVerification>>;
+
+/** `read`: what `secondSubmitVerification` read in this transaction (else it is read here). */
+export async function afterReconcile(p: ProtocolRow, t: Transaction, read?: SecondSubmitVerification) {
+	const { row, policy } = read ?? (await secondSubmitVerification(p, t));
 	if (row?.outcome === 'drawn') {
-		await VerificationProtocol.update({ checked_at: new Date() }, { where: { protocol_id: p.id }, transaction: t });
+		await verificationModels().VerificationProtocol.update({ checked_at: new Date() }, { where: { protocol_id: p.id }, transaction: t });
 		// COUNT over the protocol side's discrepancies
 		const errors = await selectOne<{ n: number }>(
 			`SELECT COUNT(*) AS n FROM discrepancies WHERE protocol_id = :p AND round = :r AND field = 'raw' AND pass IN ('first', 'both')`,
@@ -445,8 +455,8 @@ export async function singlePassIds(ids: number[], t?: Tx): Promise<Set<number>>
 }
 
 /** The second pass of a single-pass protocol is closed. */
-export async function guardSecondPass(p: ProtocolRow, t?: Tx) {
-	if (await isSinglePass(p.id, t))
+export async function guardSecondPass(p: ProtocolRow, t?: Tx, read?: SecondSubmitVerification) {
+	if (read ? read.row?.outcome === 'not_drawn' : await isSinglePass(p.id, t))
 		throw conflict(
 			'This protocol was not drawn for a second pass: it goes to review as a single pass, and your second pass is no longer needed. Nothing was saved.'
 		);
