@@ -9,7 +9,7 @@
  *
  * E-mails name protocols by the examinee's pseudonymous code only: never a name or birth date.
  */
-import { render } from 'svelte/server';
+import { mailDocument } from '../document';
 import ReviewMail from './ReviewMail.svelte';
 import { charDiff, type DiffSegment } from '../../../scoring/diff';
 import { KIND_EXPLANATIONS, kindName as vocabularyKindName, type Kind } from '../../../scoring/kinds';
@@ -225,13 +225,9 @@ export function reviewMailText(v: ReviewMailView, reminderNo: number): string {
 		.trim();
 }
 
-/** Svelte's server output carries hydration markers (`<!--[-->`, `<!--[-1-->`, `<!--]-->`…); an e-mail is never hydrated. */
-const HYDRATION_MARKERS = /<!--[[\]!\d-]*-->/g;
-
 /** The HTML part: ./ReviewMail.svelte rendered on the server. */
 export function reviewMailHtml(v: ReviewMailView): string {
-	const { body } = render(ReviewMail, { props: { view: v } });
-	return `<!doctype html><html><body style="margin:0;background:#f7f4ee;font-family:'IBM Plex Sans',Arial,sans-serif;color:#1d2733">${body.replace(HYDRATION_MARKERS, '')}</body></html>`;
+	return mailDocument(ReviewMail, { view: v });
 }
 
 /** Subject, plain text and HTML of a review message at `now`. */
