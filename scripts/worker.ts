@@ -7,19 +7,22 @@
 import { Worker } from 'bullmq';
 import { bullConnection } from '../src/lib/server/redis';
 import { MAIL_QUEUE, dispatchOutbox, closeMailQueue } from '../src/lib/server/mail/queue';
-import { deliver, type MailJob } from '../src/lib/server/mail/deliver';
+import type { MailJob } from '../src/lib/server/mail/deliver';
 import { closeDb } from '../src/lib/server/db';
 import { closeMailTransport } from '../src/lib/server/mail/transport';
-import '../src/lib/server/mail/verification'; // registers the back-to-full-double-entry e-mail
 import { sweepMail, markMailFailed } from '../src/lib/server/mail/recover';
 import { sweepMarkers } from '../src/lib/server/models/commit-marker';
 import { foldDeltas } from '../src/lib/server/audit-stats/record';
 import { registerSvelteHooks } from './lib/svelte-register';
 
-// The review e-mail bodies are Svelte components, which tsx cannot import: compile .svelte with
-// svelte/compiler from here on (scripts/lib/svelte-hooks.js), then load the review renderers. A
-// dynamic import on purpose: static imports are all loaded before the hook could be registered.
+// Every e-mail body is a Svelte component, which tsx cannot import: compile .svelte with
+// svelte/compiler from here on (scripts/lib/svelte-hooks.js), then load the renderers. Dynamic
+// imports on purpose: static imports are all loaded before the hook could be registered, so no
+// static import above may lead to a .svelte file (the delivery and every renderer come here).
 registerSvelteHooks();
+const { deliver } = await import('../src/lib/server/mail/deliver');
+await import('../src/lib/server/mail/account'); // registers the invitation and reset e-mails
+await import('../src/lib/server/mail/verification'); // registers the back-to-full-double-entry e-mail
 await import('../src/lib/server/mail/reminders/delivery'); // registers the review renderers and reminders
 
 const interval = Number(process.env.DISPATCH_INTERVAL_MS ?? 500);

@@ -2,7 +2,8 @@
 import bcrypt from 'bcryptjs';
 import { createHash, randomBytes } from 'node:crypto';
 import { literal, Op, type Transaction } from 'sequelize';
-import { autocommit, transaction, type Tx } from './db';
+import { autocommit, readRetried, transaction, type Tx } from './db';
+import { dbNow, reading } from './models/protocol';
 import { models } from './models';
 import type { User as UserModel } from './models/people';
 import { config } from './config';
@@ -45,41 +46,45 @@ const dummy = () => (dummyHash ??= hashPassword(randomBytes(18).toString('base64
 const tx_ = (t?: Tx) => t ?? undefined;
 
 export async function verifyCredentials(email: string, password: string): Promise<User | null> {
-	const row = await models().User.findOne({ where: { email: email.toLowerCase() } });
+	const row = await readRetried(() => models().User.findOne({ where: { email: email.toLowerCase() } }));
 	const ok = await bcrypt.compare(password, row?.password_hash ?? (await dummy()));
 	if (!row || !row.password_hash || !ok || !row.active) return null;
-	await autocommit(() => row.update({ last_sign_in_at: new Date() }));
+	await autocommit(() => row.update({ last_sign_in_at: dbNow() }));
 	return toUser(row);
 }
 
 export async function getUser(id: number, t?: Tx): Promise<User | null> {
-	const row = await models().User.findByPk(id, { transaction: tx_(t) });
+	const row = await reading(t, () => models().User.findByPk(id, { transaction: tx_(t) }));
 	return row ? toUser(row) : null;
 }
 
 export async function getUserByEmail(email: string): Promise<User | null> {
-	const row = await models().User.findOne({ where: { email: email.toLowerCase() } });
+	const row = await readRetried(() => models().User.findOne({ where: { email: email.toLowerCase() } }));
 	return row ? toUser(row) : null;
 }
 
 export async function listUsers(): Promise<User[]> {
-	const rows = await models().User.findAll({
-		order: [
-			['active', 'DESC'],
-			['name', 'ASC']
-		]
-	});
+	const rows = await readRetried(() =>
+		models().User.findAll({
+			order: [
+				['active', 'DESC'],
+				['name', 'ASC']
+			]
+		})
+	);
 	return rows.map(toUser);
 }
 
 /** Active users holding a role (for assignment pickers and lead escalation). */
 export async function usersWithRole(role: Role, t?: Tx): Promise<User[]> {
-	const rows = await models().User.findAll({
-		// roles is a comma-separated list: FIND_IN_SET matches one role exactly
-		where: { active: true, [Op.and]: [literal(`FIND_IN_SET(${models().User.sequelize!.escape(role)}, roles) > 0`)] },
-		order: [['name', 'ASC']],
-		transaction: tx_(t)
-	});
+	const rows = await reading(t, () =>
+		models().User.findAll({
+			// roles is a comma-separated list: FIND_IN_SET matches one role exactly
+			where: { active: true, [Op.and]: [literal(`FIND_IN_SET(${models().User.sequelize!.escape(role)}, roles) > 0`)] },
+			order: [['name', 'ASC']],
+			transaction: tx_(t)
+		})
+	);
 	return rows.map(toUser);
 }
 
@@ -142,12 +147,17 @@ const sha256 = (s: string) => createHash('sha256').update(s).digest('hex');
 export async function issueToken(userId: number, purpose: 'invite' | 'reset', hours: number, t?: Tx): Promise<string> {
 	const token = randomBytes(32).toString('base64url');
 	const { UserToken } = models();
-	const now = new Date();
-	// the older tokens are spent and the new one stored together (a new link voids the old ones)
+	// the older tokens are spent and the new one stored together (a new link voids the old ones); times
+	// are the database's clock, so every app server agrees on when a link expires
 	const run = async (tr: Transaction) => {
-		await UserToken.update({ used_at: now }, { where: { user_id: userId, purpose, used_at: null }, transaction: tr });
+		await UserToken.update({ used_at: dbNow() }, { where: { user_id: userId, purpose, used_at: null }, transaction: tr });
 		await UserToken.create(
-			{ user_id: userId, purpose, token_hash: sha256(token), expires_at: new Date(now.getTime() + hours * 3_600_000) },
+			{
+				user_id: userId,
+				purpose,
+				token_hash: sha256(token),
+				expires_at: literal(`CURRENT_TIMESTAMP(3) + INTERVAL ${Math.round(hours * 60)} MINUTE`) as unknown as Date
+			},
 			{ transaction: tr }
 		);
 	};
@@ -158,14 +168,18 @@ export async function issueToken(userId: number, purpose: 'invite' | 'reset', ho
 export type TokenCheck = { ok: true; userId: number; purpose: 'invite' | 'reset'; email: string } | { ok: false; reason: string };
 
 export async function checkToken(token: string, t?: Tx): Promise<TokenCheck> {
-	const row = await models().UserToken.findOne({
-		where: { token_hash: sha256(token) },
-		include: [{ association: 'user', attributes: ['email', 'active'], required: true }],
-		transaction: tx_(t)
-	});
+	const read = () =>
+		models().UserToken.findOne({
+			where: { token_hash: sha256(token) },
+			// expired by the database's clock (the one that stamped expires_at), not this server's
+			attributes: { include: [[literal('expires_at < CURRENT_TIMESTAMP(3)'), 'expired']] },
+			include: [{ association: 'user', attributes: ['email', 'active'], required: true }],
+			transaction: tx_(t)
+		});
+	const row = await reading(t, read);
 	if (!row) return { ok: false, reason: 'This link is not valid. Ask an administrator for a new one.' };
 	if (row.used_at) return { ok: false, reason: 'This link has already been used.' };
-	if (row.expires_at.getTime() < Date.now()) return { ok: false, reason: 'This link has expired. Ask for a new one.' };
+	if (Number(row.get('expired' as never))) return { ok: false, reason: 'This link has expired. Ask for a new one.' };
 	if (!row.user!.active) return { ok: false, reason: 'This account is deactivated.' };
 	return { ok: true, userId: row.user_id, purpose: row.purpose, email: row.user!.email };
 }
@@ -191,7 +205,7 @@ function setPasswordWithToken(token: string, hash: string): Promise<TokenCheck> 
 		if (!check.ok) return check;
 		const { User, UserToken } = models();
 		// the token is used once: only the request whose update finds it unused goes on
-		const [affected] = await UserToken.update({ used_at: new Date() }, { where: { token_hash: sha256(token), used_at: null }, transaction: t });
+		const [affected] = await UserToken.update({ used_at: dbNow() }, { where: { token_hash: sha256(token), used_at: null }, transaction: t });
 		if (affected !== 1) return { ok: false, reason: 'This link has already been used.' };
 		await User.update({ password_hash: hash, session_version: literal('session_version + 1') }, { where: { id: check.userId }, transaction: t });
 		await recordEvent(

@@ -13,11 +13,8 @@
  * - 'sent': accepted by the server.
  */
 import { exec, selectOne } from '../db';
-import { config } from '../config';
 import { sendMail, type OutgoingMail } from './transport';
 import type { MailKind } from './outbox';
-import { invitationMail, resetMail } from './templates';
-import { getUser, issueToken } from '../users';
 
 export interface MailJob {
 	kind: MailKind;
@@ -34,29 +31,12 @@ export interface RenderedMail extends OutgoingMail {
 
 export type Renderer = (payload: Record<string, unknown>) => Promise<RenderedMail | null>;
 
-const TOKEN_HOURS = { invite: 72, reset: 2 };
-
-/** Renderers by kind; review mail registers its own in ./reminders/delivery.ts (the worker imports it). */
-export const renderers: Partial<Record<MailKind, Renderer>> = {
-	async invite(p) {
-		const user = await getUser(Number(p.userId));
-		if (!user || !user.active) return null;
-		const token = await issueToken(user.id, 'invite', TOKEN_HOURS.invite);
-		return invitationMail({
-			email: user.email,
-			name: user.name,
-			link: `${config.origin}/set-password/${token}`,
-			hours: TOKEN_HOURS.invite,
-			invitedBy: String(p.invitedBy ?? 'An administrator')
-		});
-	},
-	async reset(p) {
-		const user = await getUser(Number(p.userId));
-		if (!user || !user.active) return null;
-		const token = await issueToken(user.id, 'reset', TOKEN_HOURS.reset);
-		return resetMail({ email: user.email, name: user.name, link: `${config.origin}/set-password/${token}`, hours: TOKEN_HOURS.reset });
-	}
-};
+/**
+ * Renderers by kind. Each kind registers its own from a module the worker imports after it can
+ * compile Svelte (every HTML part is a component): ./account.ts (invitation, reset),
+ * ./verification.ts, ./reminders/delivery.ts (review mail).
+ */
+export const renderers: Partial<Record<MailKind, Renderer>> = {};
 
 export type DeliveryResult = 'sent' | 'already-sent' | 'uncertain' | 'skipped';
 

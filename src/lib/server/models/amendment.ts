@@ -6,6 +6,7 @@
 import { DataTypes, Model, type CreationOptional, type InferAttributes, type InferCreationAttributes } from 'sequelize';
 import { db } from '../db';
 import type { Field } from '../../scoring/scales';
+import { stampedAt } from './columns';
 
 export type AmendmentStatus = 'requested' | 'applied' | 'refused';
 
@@ -49,7 +50,7 @@ export function amendments(): typeof Amendment {
 				reason: { type: DataTypes.TEXT, allowNull: false },
 				status: { type: DataTypes.ENUM('requested', 'applied', 'refused'), allowNull: false },
 				requested_by: { type: DataTypes.INTEGER.UNSIGNED, allowNull: false },
-				requested_at: { type: DataTypes.DATE(3), allowNull: false, defaultValue: DataTypes.NOW },
+				requested_at: stampedAt(),
 				decided_by: { type: DataTypes.INTEGER.UNSIGNED, allowNull: true },
 				decided_at: { type: DataTypes.DATE(3), allowNull: true },
 				decision_note: { type: DataTypes.TEXT, allowNull: true }

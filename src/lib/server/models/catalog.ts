@@ -18,7 +18,7 @@ import {
 	type Sequelize
 } from 'sequelize';
 import type { NormTableRow, Composite } from './index';
-import { jsonColumn } from './columns';
+import { jsonColumn, stampedAt } from './columns';
 
 /** A DECIMAL column read as a JS number (null stays null). */
 export function decimalColumn(name: string, precision: number, scale: number, allowNull = false): ModelAttributeColumnOptions {
@@ -146,7 +146,7 @@ export function initCatalogModels(sequelize: Sequelize, other: { NormTableRow: t
 			bounds: jsonColumn('bounds', true),
 			reliability: decimalColumn('reliability', 5, 4, true),
 			notes: { type: DataTypes.TEXT, allowNull: true },
-			created_at: { type: DataTypes.DATE(3), allowNull: false, defaultValue: DataTypes.NOW }
+			created_at: stampedAt()
 		},
 		{ sequelize, tableName: 'tests', timestamps: false }
 	);
@@ -159,7 +159,7 @@ export function initCatalogModels(sequelize: Sequelize, other: { NormTableRow: t
 			version: { type: DataTypes.STRING(40), allowNull: false, defaultValue: '1', unique: 'norm_sets_code_version', validate: { len: [1, 40] } },
 			age_rule: jsonColumn('age_rule'),
 			covariate_age: { type: DataTypes.ENUM('whole_years', 'decimal_years'), allowNull: false, defaultValue: 'whole_years' },
-			created_at: { type: DataTypes.DATE(3), allowNull: false, defaultValue: DataTypes.NOW }
+			created_at: stampedAt()
 		},
 		{ sequelize, tableName: 'norm_sets', timestamps: false }
 	);
@@ -192,7 +192,7 @@ export function initCatalogModels(sequelize: Sequelize, other: { NormTableRow: t
 			name: { type: DataTypes.STRING(160), allowNull: false, validate: { len: [1, 160] } },
 			description: { type: DataTypes.TEXT, allowNull: true },
 			norm_set_id: unsigned(true),
-			created_at: { type: DataTypes.DATE(3), allowNull: false, defaultValue: DataTypes.NOW }
+			created_at: stampedAt()
 		},
 		{ sequelize, tableName: 'batteries', timestamps: false }
 	);

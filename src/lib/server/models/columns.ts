@@ -1,5 +1,5 @@
 /** Column definitions shared by the models (built fresh per call: Model.init writes into each definition). */
-import { DataTypes, type Model, type ModelAttributeColumnOptions } from 'sequelize';
+import { DataTypes, literal, type Model, type ModelAttributeColumnOptions } from 'sequelize';
 
 /** A LONGTEXT column with MariaDB's JSON_VALID check: parsed on read, written as JSON text. */
 export function jsonColumn(name: string, allowNull = false): ModelAttributeColumnOptions {
@@ -14,4 +14,14 @@ export function jsonColumn(name: string, allowNull = false): ModelAttributeColum
 			this.setDataValue(name as never, (v === null || v === undefined ? null : JSON.stringify(v)) as never);
 		}
 	};
+}
+
+/**
+ * A DATETIME(3) column the database stamps when a row is created (the migrations' CURRENT_TIMESTAMP(3)):
+ * the INSERT sends the database's clock, never the app server's, so two app servers with skewed clocks
+ * still write times in one order. After `create` the instance holds the literal, not a Date: reload the
+ * row if the value is needed (no service does).
+ */
+export function stampedAt(): ModelAttributeColumnOptions {
+	return { type: DataTypes.DATE(3), allowNull: false, defaultValue: literal('CURRENT_TIMESTAMP(3)') };
 }

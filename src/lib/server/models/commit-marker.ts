@@ -5,6 +5,7 @@
 import { DataTypes, Model, Op, type CreationOptional, type InferAttributes, type InferCreationAttributes } from 'sequelize';
 import type { Transaction } from 'sequelize';
 import { autocommit, db } from '../db';
+import { stampedAt } from './columns';
 
 export class CommitMarker extends Model<InferAttributes<CommitMarker>, InferCreationAttributes<CommitMarker>> {
 	declare id: string;
@@ -18,7 +19,7 @@ function model() {
 		CommitMarker.init(
 			{
 				id: { type: DataTypes.CHAR(36), primaryKey: true },
-				created_at: { type: DataTypes.DATE(3), allowNull: false, defaultValue: DataTypes.NOW }
+				created_at: stampedAt()
 			},
 			{ sequelize, tableName: 'commit_markers', timestamps: false }
 		);

@@ -5,7 +5,7 @@
  */
 import { DataTypes, Model, type CreationOptional, type InferAttributes, type InferCreationAttributes, type NonAttribute } from 'sequelize';
 import { db } from '../db';
-import { jsonColumn } from './columns';
+import { jsonColumn, stampedAt } from './columns';
 import { initAuditStatsModels } from './audit-stats';
 import { amendments } from './amendment';
 import { initProtocolModels, PROTOCOL_MODELS } from './protocol';
@@ -102,7 +102,7 @@ export function models() {
 						return v === null || v === undefined ? null : Number(v);
 					}
 				},
-				created_at: { type: DataTypes.DATE(3), allowNull: false, defaultValue: DataTypes.NOW }
+				created_at: stampedAt()
 			},
 			{ sequelize, tableName: 'composites', timestamps: false }
 		);

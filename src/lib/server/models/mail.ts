@@ -4,6 +4,7 @@
  * its send (see ../mail/deliver.ts). Registered by `models()` in ./index.ts.
  */
 import { DataTypes, Model, type CreationOptional, type InferAttributes, type InferCreationAttributes, type Sequelize } from 'sequelize';
+import { stampedAt } from './columns';
 
 export type MailKind = 'invite' | 'reset' | 'review_first' | 'review_reminder' | 'verification_full';
 export const MAIL_KINDS: readonly MailKind[] = ['invite', 'reset', 'review_first', 'review_reminder', 'verification_full'];
@@ -61,7 +62,7 @@ export function initMailModels(sequelize: Sequelize): void {
 			kind: { type: DataTypes.STRING(40), allowNull: false, validate: { isIn: [MAIL_KINDS as MailKind[]] } },
 			idempotency_key: { type: DataTypes.STRING(120), allowNull: false, unique: 'outbox_key' },
 			payload: jsonPayload,
-			created_at: { type: DataTypes.DATE(3), allowNull: false, defaultValue: DataTypes.NOW },
+			created_at: stampedAt(),
 			dispatched_at: { type: DataTypes.DATE(3), allowNull: true },
 			failed_at: { type: DataTypes.DATE(3), allowNull: true },
 			attempts: { type: DataTypes.INTEGER.UNSIGNED, allowNull: false, defaultValue: 0 },
@@ -80,7 +81,7 @@ export function initMailModels(sequelize: Sequelize): void {
 			subject: { type: DataTypes.STRING(300), allowNull: false, validate: { len: [0, 300] } },
 			message_id: { type: DataTypes.STRING(200), allowNull: true },
 			status: { type: DataTypes.ENUM('claimed', 'sending', 'sent', 'uncertain'), allowNull: false, defaultValue: 'claimed' },
-			created_at: { type: DataTypes.DATE(3), allowNull: false, defaultValue: DataTypes.NOW },
+			created_at: stampedAt(),
 			sending_at: { type: DataTypes.DATE(3), allowNull: true },
 			sent_at: { type: DataTypes.DATE(3), allowNull: true }
 		},

@@ -5,7 +5,7 @@
  * Bound by `models()` in ./index.ts.
  */
 import { DataTypes, Model, type CreationOptional, type InferAttributes, type InferCreationAttributes, type NonAttribute, type Sequelize } from 'sequelize';
-import { jsonColumn } from './columns';
+import { jsonColumn, stampedAt } from './columns';
 
 export class User extends Model<InferAttributes<User>, InferCreationAttributes<User>> {
 	declare id: CreationOptional<number>;
@@ -53,9 +53,9 @@ export function initPeopleModels(sequelize: Sequelize): void {
 			active: { type: DataTypes.BOOLEAN, allowNull: false, defaultValue: true },
 			session_version: { type: DataTypes.INTEGER.UNSIGNED, allowNull: false, defaultValue: 1, validate: { min: 0 } },
 			last_sign_in_at: { type: DataTypes.DATE(3), allowNull: true },
-			created_at: { type: DataTypes.DATE(3), allowNull: false, defaultValue: DataTypes.NOW },
+			created_at: stampedAt(),
 			// ON UPDATE CURRENT_TIMESTAMP(3) in the schema: the database keeps it
-			updated_at: { type: DataTypes.DATE(3), allowNull: false, defaultValue: DataTypes.NOW }
+			updated_at: stampedAt()
 		},
 		{ sequelize, tableName: 'users', timestamps: false }
 	);
@@ -67,7 +67,7 @@ export function initPeopleModels(sequelize: Sequelize): void {
 			token_hash: { type: DataTypes.CHAR(64), allowNull: false, unique: 'user_tokens_hash', validate: { len: [64, 64] } },
 			expires_at: { type: DataTypes.DATE(3), allowNull: false },
 			used_at: { type: DataTypes.DATE(3), allowNull: true },
-			created_at: { type: DataTypes.DATE(3), allowNull: false, defaultValue: DataTypes.NOW }
+			created_at: stampedAt()
 		},
 		{ sequelize, tableName: 'user_tokens', timestamps: false }
 	);
@@ -75,7 +75,7 @@ export function initPeopleModels(sequelize: Sequelize): void {
 		{
 			name: { type: DataTypes.STRING(64), primaryKey: true, validate: { len: [1, 64] } },
 			value: jsonColumn('value'),
-			updated_at: { type: DataTypes.DATE(3), allowNull: false, defaultValue: DataTypes.NOW }
+			updated_at: stampedAt()
 		},
 		{ sequelize, tableName: 'settings', timestamps: false }
 	);

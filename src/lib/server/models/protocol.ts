@@ -24,7 +24,7 @@ import {
 import { readRetried } from '../db';
 import type { Field } from '../../scoring/scales';
 import { KINDS, type Kind } from '../../scoring/kinds';
-import { jsonColumn } from './columns';
+import { jsonColumn, stampedAt } from './columns';
 import type { NormGroup, Test } from './catalog';
 
 export type Status = 'draft' | 'awaiting_second' | 'in_review' | 'verified';
@@ -38,7 +38,6 @@ const FIELDS = ['raw', 'z', 'standard', 'scaled', 't', 'percentile', 'sum'] as c
 const id = () => ({ type: DataTypes.INTEGER.UNSIGNED, autoIncrement: true, primaryKey: true });
 const ref = (allowNull = false) => ({ type: DataTypes.INTEGER.UNSIGNED, allowNull });
 const text = (length: number, allowNull: boolean) => ({ type: DataTypes.STRING(length), allowNull, validate: { len: [0, length] as [number, number] } });
-const createdAt = () => ({ type: DataTypes.DATE(3), allowNull: false, defaultValue: DataTypes.NOW });
 
 export class Examinee extends Model<InferAttributes<Examinee>, InferCreationAttributes<Examinee>> {
 	declare id: CreationOptional<number>;
@@ -160,7 +159,7 @@ export function initProtocolModels(sequelize: Sequelize, others: { ProtocolCompo
 			sex: { type: DataTypes.ENUM('F', 'M', 'X'), allowNull: true },
 			education_years: { type: DataTypes.TINYINT.UNSIGNED, allowNull: true, validate: { min: 0, max: 255 } },
 			created_by: ref(true),
-			created_at: createdAt()
+			created_at: stampedAt()
 		},
 		{ sequelize, tableName: 'examinees', timestamps: false }
 	);
@@ -180,11 +179,11 @@ export function initProtocolModels(sequelize: Sequelize, others: { ProtocolCompo
 			second_scorer_id: ref(),
 			reviewer_id: ref(),
 			lock_version: { type: DataTypes.INTEGER.UNSIGNED, allowNull: false, defaultValue: 1 },
-			status_changed_at: createdAt(),
+			status_changed_at: stampedAt(),
 			verified_at: { type: DataTypes.DATE(3), allowNull: true },
 			verified_by: ref(true),
 			created_by: ref(true),
-			created_at: createdAt()
+			created_at: stampedAt()
 		},
 		{
 			sequelize,
@@ -224,7 +223,7 @@ export function initProtocolModels(sequelize: Sequelize, others: { ProtocolCompo
 			draft_version: { type: DataTypes.INTEGER.UNSIGNED, allowNull: false, defaultValue: 0 },
 			submitted_at: { type: DataTypes.DATE(3), allowNull: true },
 			// ON UPDATE CURRENT_TIMESTAMP(3): the database keeps it
-			updated_at: createdAt()
+			updated_at: stampedAt()
 		},
 		{ sequelize, tableName: 'passes', timestamps: false }
 	);
@@ -279,7 +278,7 @@ export function initProtocolModels(sequelize: Sequelize, others: { ProtocolCompo
 			sha256: { type: DataTypes.CHAR(64), allowNull: false, validate: { is: /^[0-9a-f]{64}$/ } },
 			storage_name: text(100, false),
 			uploaded_by: ref(),
-			created_at: createdAt()
+			created_at: stampedAt()
 		},
 		{ sequelize, tableName: 'attachments', timestamps: false }
 	);

@@ -5,6 +5,7 @@
  */
 import { DataTypes, Model, type CreationOptional, type InferAttributes, type InferCreationAttributes } from 'sequelize';
 import { db } from '../db';
+import { stampedAt } from './columns';
 
 export class VerificationPolicy extends Model<InferAttributes<VerificationPolicy>, InferCreationAttributes<VerificationPolicy>> {
 	declare battery_id: number;
@@ -80,7 +81,7 @@ export function verificationModels() {
 					}
 				},
 				updated_by: { type: DataTypes.INTEGER.UNSIGNED, allowNull: true },
-				updated_at: { type: DataTypes.DATE(3), allowNull: false, defaultValue: DataTypes.NOW }
+				updated_at: stampedAt()
 			},
 			{ sequelize, tableName: 'verification_policies', timestamps: false }
 		);

@@ -16,7 +16,7 @@ import { Op, type Transaction } from 'sequelize';
 import { select, selectOne, exec, transaction, type Tx } from '../db';
 import { countEvents, recordEvent } from '../trail';
 import { verificationModels, type DrawOutcome } from '../models/verification';
-import { dbNow, inTx, saveLocked } from '../models/protocol';
+import { dbNow, inTx, reading, saveLocked } from '../models/protocol';
 import { models } from '../models';
 import {
 	DEFAULT_POLICY,
@@ -440,17 +440,15 @@ export async function afterResolution(discrepancyId: number, t: Transaction) {
 
 export async function isSinglePass(protocolId: number, t?: Tx): Promise<boolean> {
 	const { VerificationProtocol } = verificationModels();
-	return (await VerificationProtocol.count({ where: { protocol_id: protocolId, outcome: 'not_drawn' }, transaction: t ?? undefined })) > 0;
+	return (await reading(t, () => VerificationProtocol.count({ where: { protocol_id: protocolId, outcome: 'not_drawn' }, transaction: t ?? undefined }))) > 0;
 }
 
 export async function singlePassIds(ids: number[], t?: Tx): Promise<Set<number>> {
 	if (ids.length === 0) return new Set();
 	const { VerificationProtocol } = verificationModels();
-	const rows = await VerificationProtocol.findAll({
-		attributes: ['protocol_id'],
-		where: { protocol_id: ids, outcome: 'not_drawn' },
-		transaction: t ?? undefined
-	});
+	const rows = await reading(t, () =>
+		VerificationProtocol.findAll({ attributes: ['protocol_id'], where: { protocol_id: ids, outcome: 'not_drawn' }, transaction: t ?? undefined })
+	);
 	return new Set(rows.map((r) => Number(r.protocol_id)));
 }
 

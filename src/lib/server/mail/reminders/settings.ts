@@ -2,6 +2,7 @@
 import { jsonValue, type Tx } from '../../db';
 import { config } from '../../config';
 import { models } from '../../models';
+import { reading } from '../../models/protocol';
 
 export interface ReviewMailSettings {
 	/** Minutes between reminders (default 1440 = 24 h; demo and tests use minutes or seconds). */
@@ -27,7 +28,7 @@ export async function reviewMailSettings(t?: Tx): Promise<ReviewMailSettings> {
 		escalateAfterReminders: config.escalateAfterReminders,
 		detail: validDetail(config.mailDetail) ? config.mailDetail : 'full'
 	};
-	const row = await models().Setting.findByPk(REVIEW_MAIL_SETTING, { transaction: t ?? undefined });
+	const row = await reading(t, () => models().Setting.findByPk(REVIEW_MAIL_SETTING, { transaction: t ?? undefined }));
 	if (!row) return defaults;
 	try {
 		const v = jsonValue<Partial<ReviewMailSettings>>(row.value);
