@@ -10,6 +10,7 @@ cd "$ROOT_DIR" || exit 1
 ensure_packages
 ensure_node_modules
 mkdir -p "$RUN_DIR"
+echo $$ >"$RUN_DIR/start.pid" # `npm stop` (scripts/services.sh down) asks this script to stop
 write_env_file
 load_env_file
 
@@ -17,6 +18,7 @@ cleanup() {
 	trap - INT TERM EXIT
 	log "stopping"
 	stop_all
+	rm -f "$RUN_DIR/start.pid"
 	log "stopped"
 	exit 0
 }
@@ -44,7 +46,7 @@ cat <<MSG
     admin     ada.admin@demo.crosstally.test
 
   Mail is caught by the local fake: sign in as admin and open Mailbox.
-  Logs: $RUN_DIR/*.log    Press Ctrl-C to stop.
+  Logs: $RUN_DIR/*.log    Press Ctrl-C (or run npm stop elsewhere) to stop.
 
 MSG
 

@@ -7,11 +7,23 @@ import { isDbUnavailable, closeDb } from '$lib/server/db';
 import { closeRedis } from '$lib/server/redis';
 import { compress } from '$lib/server/compress';
 import errorTemplate from './error.html?raw';
+import { createHash } from 'node:crypto';
 
 const escapeHtml = (t: string) => t.replace(/[&<>"']/g, (c) => ({ '&': '&amp;', '<': '&lt;', '>': '&gt;', '"': '&quot;', "'": '&#39;' })[c]!);
 /** The same page SvelteKit shows for errors outside the layout (src/error.html). */
 const errorPage = (status: number, message: string) =>
 	errorTemplate.replaceAll('%sveltekit.status%', String(status)).replaceAll('%sveltekit.error.message%', escapeHtml(message));
+/**
+ * The policy of that page: nothing but its own inline <style>, allowed by its hash (without it the
+ * allow-nothing policy of endpoints below applied and the page showed unstyled).
+ */
+const ERROR_PAGE_CSP = (() => {
+	const style = /<style>([\s\S]*?)<\/style>/.exec(errorTemplate)?.[1] ?? '';
+	const hash = createHash('sha256').update(style, 'utf8').digest('base64');
+	return `default-src 'none'; style-src 'sha256-${hash}'; frame-ancestors 'none'; base-uri 'none'; form-action 'none'`;
+})();
+const errorResponse = (status: number, message: string) =>
+	new Response(errorPage(status, message), { status, headers: { 'content-type': 'text/html; charset=utf-8', 'Content-Security-Policy': ERROR_PAGE_CSP } });
 
 const isApi = (e: RequestEvent) => e.url.pathname.startsWith('/api/');
 /** Route ids of the +server endpoints (found at build time; the modules are not loaded here). */
@@ -45,7 +57,11 @@ function guardFormData(request: Request): Request {
 const authorize: Handle = async ({ event, resolve }) => {
 	event.locals.user = null;
 	const routeId = event.route.id;
-	if (routeId === null) return resolve(event); // no such route: SvelteKit answers 404
+	if (routeId === null) {
+		// no such route: a client of the API gets JSON, as from every other API answer; a page, SvelteKit's 404
+		if (isApi(event)) return json({ message: 'There is nothing at this address of the API.', code: 'not_found' }, { status: 404 });
+		return resolve(event);
+	}
 
 	let unchecked = false;
 	try {
@@ -76,7 +92,7 @@ const authorize: Handle = async ({ event, resolve }) => {
 	if (decision === 'anonymous' && unchecked) {
 		// Signed in, but whether the session was ended cannot be checked: refuse, keep the session.
 		if (isApi(event) || event.request.method !== 'GET') return json({ message: SESSIONS_UNAVAILABLE, code: 'unavailable' }, { status: 503 });
-		return new Response(errorPage(503, SESSIONS_UNAVAILABLE), { status: 503, headers: { 'content-type': 'text/html; charset=utf-8' } });
+		return errorResponse(503, SESSIONS_UNAVAILABLE);
 	}
 	if (decision === 'anonymous') {
 		if (isApi(event)) return json({ message: 'Sign in first.', code: 'unauthenticated' }, { status: 401 });
@@ -87,7 +103,7 @@ const authorize: Handle = async ({ event, resolve }) => {
 	// Endpoints (CSV downloads, scans), API routes and actions: a JSON refusal.
 	if (isApi(event) || event.request.method !== 'GET' || ENDPOINTS.has(routeId)) return json({ message, code: 'forbidden' }, { status: 403 });
 	// A page: the app's error page, answered here, so no load function or layout of it ever runs.
-	return new Response(errorPage(403, message), { status: 403, headers: { 'content-type': 'text/html; charset=utf-8' } });
+	return errorResponse(403, message);
 };
 
 /** Headers every response carries. The Content-Security-Policy comes from svelte.config.js. */

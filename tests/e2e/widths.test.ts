@@ -55,6 +55,11 @@ beforeAll(async () => {
 		return m.length ? m : null;
 	}, 30_000);
 	ids.mail = mail.id;
+	// the protocol in review lists its review e-mail under "Messages sent" (long addresses must wrap)
+	await waitFor(async () => {
+		const r = await selectOne<{ n: number }>("SELECT COUNT(*) AS n FROM mail_log WHERE protocol_id = :id AND status = 'sent'", { id: ids.review });
+		return Number(r?.n) > 0 ? true : null;
+	}, 30_000);
 }, 240_000);
 
 afterAll(async () => {
@@ -77,6 +82,7 @@ const SCREENS: { role: Role; name: string; path: () => string }[] = [
 	{ role: 'reviewer', name: 'review (composites)', path: () => `/protocols/${ids.twReview}/review` },
 	{ role: 'reviewer', name: 'summary (composites)', path: () => `/protocols/${ids.twVerified}/summary` },
 	{ role: 'lead', name: 'new protocol', path: () => '/protocols/new' },
+	{ role: 'lead', name: 'protocol with messages sent', path: () => `/protocols/${ids.review}` },
 	{ role: 'lead', name: 'audit', path: () => '/audit' },
 	{ role: 'lead', name: 'catalog', path: () => '/catalog' },
 	{ role: 'lead', name: 'tests', path: () => '/catalog/tests' },

@@ -376,3 +376,25 @@ describe('item 9: an administrator cannot deactivate their own account', () => {
 		expect((await admin.get('/api/v1/me')).status).toBe(200);
 	});
 });
+
+// ------------------------------------------------------------------------------------------------
+describe('an empty education field is not 0 years (walk-through finding)', () => {
+	it('the New protocol form with the field empty stores education as not recorded (NULL); "0" stores 0', async () => {
+		const stored: Record<string, number | null> = {};
+		for (const [label, value] of [
+			['empty', ''],
+			['blank', '  '],
+			['zero', '0']
+		] as const) {
+			const r = await lead.action('/protocols/new', await formFields({ educationYears: value }));
+			expect(r.body.type, JSON.stringify(r.body)).toBe('redirect');
+			const id = Number(r.body.location!.match(/\/protocols\/(\d+)/)![1]);
+			const row = await selectOne<{ education_years: number | null }>(
+				'SELECT e.education_years FROM protocols p JOIN examinees e ON e.id = p.examinee_id WHERE p.id = :id',
+				{ id }
+			);
+			stored[label] = row!.education_years;
+		}
+		expect(stored).toEqual({ empty: null, blank: null, zero: 0 });
+	});
+});

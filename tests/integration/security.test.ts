@@ -8,6 +8,7 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { readdirSync, readFileSync } from 'node:fs';
 import { join } from 'node:path';
+import { createHash } from 'node:crypto';
 import * as mariadb from 'mariadb';
 import { Client, signedIn, ACCOUNTS, DEMO_PASSWORD, caughtMail, waitFor } from '../helpers/http';
 import { createViaForm, correctScores, saveAndSubmit } from '../helpers/workflow';
@@ -185,6 +186,29 @@ describe('response headers', () => {
 			const nonce = /'nonce-([\w+/=]+)'/.exec(csp)?.[1];
 			if (nonce) expect(await r.text(), path).toContain(`nonce="${nonce}"`);
 		}
+	});
+
+	it('an address the API does not have answers 404 in JSON (not the HTML error page), signed in or not', async () => {
+		for (const c of [new Client(), lead]) {
+			const r = await c.get('/api/v1/protocols/22/no-such-thing');
+			expect(r.status).toBe(404);
+			expect(r.headers.get('content-type')).toContain('application/json');
+			expect(await r.json()).toEqual({ message: 'There is nothing at this address of the API.', code: 'not_found' });
+		}
+	});
+
+	it('the refusal page of a screen a role may not open (403) may use its own inline style, and nothing else', async () => {
+		// the page is answered by the access check itself (src/error.html); its <style> is allowed by
+		// its SHA-256 (CSP Level 3, "hash-source": base64 of the digest of the element's text)
+		const r = await sam.request('/audit', { headers: { accept: 'text/html' } });
+		expect(r.status).toBe(403);
+		const body = await r.text();
+		const style = /<style>([\s\S]*?)<\/style>/.exec(body)?.[1];
+		expect(style, 'the page has its inline style').toBeTruthy();
+		const csp = pageHeaders(r.headers, '/audit (403)');
+		expect(csp).toContain(`style-src 'sha256-${createHash('sha256').update(style!, 'utf8').digest('base64')}'`);
+		expect(csp).toContain("default-src 'none'");
+		expect(csp).not.toMatch(/script-src|unsafe-inline/);
 	});
 
 	it('API answers and downloads carry a CSP that allows nothing, and the same headers', async () => {

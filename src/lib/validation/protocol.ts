@@ -16,7 +16,27 @@ export const newProtocolSchema = z.object({
 		.regex(/^[A-Za-z0-9][A-Za-z0-9._-]*$/, 'Letters, digits, dot, dash and underscore only — no names'),
 	birthDate: optionalIsoDateField.optional(),
 	sex: z.enum(['F', 'M', 'X', '']).optional(),
-	educationYears: z.union([z.coerce.number().int().min(0, 'At least 0').max(30, 'At most 30'), z.literal('')]).optional(),
+	// empty means "not recorded" and must stay so: z.coerce.number() would turn '' (and '  ') into 0,
+	// which picks the norms of an examinee with no schooling
+	educationYears: z
+		.union([z.string(), z.number()])
+		.optional()
+		.transform((v, ctx): number | '' => {
+			const s = String(v ?? '').trim();
+			if (s === '') return '';
+			const problem = !/^-?\d+$/.test(s)
+				? 'Enter the years of education as a whole number'
+				: Number(s) < 0
+					? 'Years of education: at least 0'
+					: Number(s) > 30
+						? 'Years of education: at most 30'
+						: null;
+			if (problem) {
+				ctx.addIssue({ code: 'custom', message: problem });
+				return z.NEVER;
+			}
+			return Number(s);
+		}),
 	name: z.string().trim().max(160).optional(),
 	batteryId: id('a battery'),
 	normSetId: z.union([z.coerce.number().int().positive(), z.literal('')]).optional(),
