@@ -23,7 +23,10 @@ const ISO_DAY = 'yyyy-MM-dd';
 function calendarDay(s: string): Date | null {
 	try {
 		const d = parseIsoDate(s);
-		return new Date(d.year, d.month - 1, d.day);
+		// setFullYear, not new Date(y, m, d): the constructor reads years 0-99 as 1900-1999
+		const out = new Date(2000, 0, 1);
+		out.setFullYear(d.year, d.month - 1, d.day);
+		return out;
 	} catch {
 		return null;
 	}

@@ -28,6 +28,14 @@ describe('day arithmetic (whatever the machine zone)', () => {
 		expect(() => addDays('2023-02-30', 1)).toThrow(RangeError);
 	});
 
+	it('keeps years 0000-0099 as written (a Date built from parts would read them as 1900-1999)', () => {
+		// 50 is not a leap year (not divisible by 4); 48 is
+		expect(addDays('0050-01-01', 1)).toBe('0050-01-02');
+		expect(addDays('0050-02-28', 1)).toBe('0050-03-01');
+		expect(addDays('0048-02-28', 1)).toBe('0048-02-29');
+		expect(addDays('0099-12-31', 1)).toBe('0100-01-01');
+	});
+
 	it('finds the Monday and the ISO week of a date', () => {
 		// 2021-01-03 is a Sunday; 2020-12-31 was a Thursday, so that week is week 53 of 2020
 		expect(mondayOf('2021-01-03')).toBe('2020-12-28');
