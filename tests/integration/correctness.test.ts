@@ -211,6 +211,39 @@ describe('item 4: the norm-set PUT is one transaction', () => {
 	});
 });
 
+describe('the norm-set GET reads one snapshot', () => {
+	it('while PUTs replace the groups (2 ↔ 3), every GET’s group count agrees with the groups it lists', async () => {
+		const r = await post(lead, '/api/v1/norm-sets', { code: `snap-${uniq()}`, name: 'Snapshot', source: 'Invented for a test', version: '1' });
+		const set = (await r.json()).normSet.id as number;
+		const g = (code: string, min: number, max: number) => ({
+			test_code: 'word-recall',
+			group_code: code,
+			age_min_months: min,
+			age_max_months: max,
+			mean: 20,
+			sd: 4
+		});
+		const two = [g('a18', 216, 359), g('a30', 360, 479)];
+		const three = [g('a18', 216, 299), g('a25', 300, 359), g('a30', 360, 479)];
+		const seen: { count: number; listed: number }[] = [];
+		for (let round = 0; round < 12; round++) {
+			const [w] = await Promise.all([
+				put(lead, `/api/v1/norm-sets/${set}`, { groups: round % 2 ? two : three }),
+				...Array.from({ length: 4 }, async () => {
+					const got = await (await lead.get(`/api/v1/norm-sets/${set}`)).json();
+					seen.push({ count: got.normSet.groups, listed: got.groups.length });
+				})
+			]);
+			expect(w.status).toBe(200);
+		}
+		expect(seen).toHaveLength(48);
+		for (const x of seen) {
+			expect([0, 2, 3]).toContain(x.listed);
+			expect(x.count).toBe(x.listed);
+		}
+	});
+});
+
 // ------------------------------------------------------------------------------------------------
 describe('item 5: impossible input answers 4xx naming what is wrong', () => {
 	it('2023-02-30 as a birth date, a test date, and an audit filter', async () => {
@@ -379,22 +412,26 @@ describe('item 9: an administrator cannot deactivate their own account', () => {
 
 // ------------------------------------------------------------------------------------------------
 describe('an empty education field is not 0 years (walk-through finding)', () => {
-	it('the New protocol form with the field empty stores education as not recorded (NULL); "0" stores 0', async () => {
-		const stored: Record<string, number | null> = {};
-		for (const [label, value] of [
-			['empty', ''],
-			['blank', '  '],
-			['zero', '0']
-		] as const) {
-			const r = await lead.action('/protocols/new', await formFields({ educationYears: value }));
-			expect(r.body.type, JSON.stringify(r.body)).toBe('redirect');
-			const id = Number(r.body.location!.match(/\/protocols\/(\d+)/)![1]);
-			const row = await selectOne<{ education_years: number | null }>(
-				'SELECT e.education_years FROM protocols p JOIN examinees e ON e.id = p.examinee_id WHERE p.id = :id',
-				{ id }
-			);
-			stored[label] = row!.education_years;
+	it('empty or blank: Word Harvest (normed by education) gets no group and the protocol is not created; "0" is taken as 0 years', async () => {
+		// Before the fix an empty field was read as 0 years and the protocol was created with the
+		// "up to 12 years of education" group; now the examinee's education is unknown, so no group fits
+		for (const value of ['', '  ']) {
+			const fields = await formFields({ educationYears: value });
+			const r = await lead.action('/protocols/new', fields);
+			expect(r.body.status, JSON.stringify(r.body)).toBe(422);
+			expect(r.body.data).toContain('for Word Harvest; choose one with a reason.');
+			expect((await selectOne<{ n: number }>('SELECT COUNT(*) AS n FROM examinees WHERE code = :code', { code: fields.code }))!.n).toBe(0);
 		}
-		expect(stored).toEqual({ empty: null, blank: null, zero: 0 });
+		const r = await lead.action('/protocols/new', await formFields({ educationYears: '0' }));
+		expect(r.body.type, JSON.stringify(r.body)).toBe('redirect');
+		const id = Number(r.body.location!.match(/\/protocols\/(\d+)/)![1]);
+		const row = await selectOne<{ education_years: number | null; group_code: string }>(
+			`SELECT e.education_years, ng.group_code FROM protocols p JOIN examinees e ON e.id = p.examinee_id
+			 JOIN protocol_tests pt ON pt.protocol_id = p.id JOIN norm_groups ng ON ng.id = pt.norm_group_id
+			 WHERE p.id = :id AND pt.test_code = 'word-harvest'`,
+			{ id }
+		);
+		// born 1988-05-17, tested 2026-11-20: 38 years, so the 30;0–39;11 band with up to 12 years
+		expect(row).toEqual({ education_years: 0, group_code: 'a30-e0' });
 	});
 });

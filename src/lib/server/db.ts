@@ -135,6 +135,16 @@ export function transaction<T>(fn: (t: Transaction) => Promise<T>, retry?: Retry
 	}, retry);
 }
 
+/**
+ * Several reads that must agree with each other (a screen or an API answer built from more than one
+ * query): one REPEATABLE READ transaction, so every read sees the same committed state even when a
+ * change commits between them. Reads only (no commit marker); rerun whole on a conflict or a lost
+ * connection, as `select` is.
+ */
+export function snapshot<T>(fn: (t: Transaction) => Promise<T>): Promise<T> {
+	return withRetry(() => db().transaction({ isolationLevel: Transaction.ISOLATION_LEVELS.REPEATABLE_READ }, fn));
+}
+
 /** True when an error means the database cannot be reached (answered with 503, never a 500). */
 export function isDbUnavailable(e: unknown): boolean {
 	const name = (e as { name?: string })?.name ?? '';

@@ -4,3 +4,4 @@ export * from './tests';
 export * from './batteries';
 export * from './norms';
 export * from './io';
+export * from './views';

@@ -3,7 +3,7 @@
  * confirm (the browser's preview is a convenience, never trusted); then every row goes in one
  * transaction, or none does.
  */
-import { transaction } from '../db';
+import { transaction, type Tx } from '../db';
 import { recordEvent } from '../trail';
 import {
 	normEquationsToCsv,
@@ -22,14 +22,15 @@ import { createTest, listTests, updateTest } from './tests';
 import { createNormSet, getNormSet, listNormGroups, replaceNormGroups, subjectsOf } from './norms';
 import { models } from '../models';
 
-export async function validationContext(): Promise<ValidationContext> {
+export async function validationContext(tx?: Tx): Promise<ValidationContext> {
 	const { Composite, Test, Domain } = models();
+	const transaction = tx ?? undefined;
 	const [tests, domains, composites] = await Promise.all([
-		Test.findAll({ attributes: ['code'], where: { is_current: true } }),
-		Domain.findAll({ attributes: ['code'], order: [['position', 'ASC']] }),
-		Composite.findAll({ attributes: ['code'] })
+		Test.findAll({ attributes: ['code'], where: { is_current: true }, transaction }),
+		Domain.findAll({ attributes: ['code'], order: [['position', 'ASC']], transaction }),
+		Composite.findAll({ attributes: ['code'], transaction })
 	]);
-	const subjects = await subjectsOf([...tests.map((t) => t.code), ...composites.map((c) => c.code)], null);
+	const subjects = await subjectsOf([...tests.map((t) => t.code), ...composites.map((c) => c.code)], tx ?? null);
 	const spans: Record<string, SubjectSpan> = Object.fromEntries(subjects);
 	return { testCodes: new Set(tests.map((t) => t.code)), domains: new Set(domains.map((d) => d.code)), spans };
 }

@@ -4,15 +4,13 @@ import { formError } from '$lib/server/http';
 import { superValidate, message, setError } from 'sveltekit-superforms';
 import { zod4 } from 'sveltekit-superforms/adapters';
 import { requireRole } from '$lib/server/guard';
-import { listTests, listDomains, createTest, createDomain, ServiceError } from '$lib/server/catalog';
+import { testsScreen, createTest, createDomain, ServiceError } from '$lib/server/catalog';
 import { testFormSchema, formToTestInput, domainSchema } from '$lib/catalog/schema';
 
 export const load: PageServerLoad = async (event) => {
 	requireRole(event, 'lead', 'admin');
-	const [tests, domains] = await Promise.all([listTests(), listDomains()]);
 	return {
-		tests,
-		domains,
+		...(await testsScreen()),
 		form: await superValidate(zod4(testFormSchema)),
 		domainForm: await superValidate(zod4(domainSchema)),
 		canEdit: event.locals.user!.roles.includes('lead')

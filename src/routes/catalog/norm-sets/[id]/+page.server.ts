@@ -1,31 +1,25 @@
 import type { Actions, PageServerLoad } from './$types';
 import { fail } from '@sveltejs/kit';
-import { formError } from '$lib/server/http';
+import { formError, pageError } from '$lib/server/http';
 import { superValidate, message } from 'sveltekit-superforms';
 import { zod4 } from 'sveltekit-superforms/adapters';
-import { requireRole, idParam, notFound } from '$lib/server/guard';
-import { getNormSet, listNormGroups, listTests, updateNormSet, addNormGroup, deleteNormGroup, listAllComposites, ServiceError } from '$lib/server/catalog';
-import { validationContext } from '$lib/server/catalog/io';
+import { requireRole, idParam } from '$lib/server/guard';
+import { normSetScreen, updateNormSet, addNormGroup, deleteNormGroup, ServiceError } from '$lib/server/catalog';
 import { normGroupSchema, normSetSchema } from '$lib/catalog/schema';
 import { groupWords } from '$lib/catalog/ranges';
 
 export const load: PageServerLoad = async (event) => {
 	requireRole(event, 'lead', 'admin');
 	const id = idParam(event.params.id, 'This norm set');
-	const set = await getNormSet(id);
-	if (!set) notFound('This norm set');
-	const [groups, tests, ctx] = await Promise.all([listNormGroups(id), listTests(), validationContext()]);
-	const spans = ctx.spans ?? {};
-	const composites = await listAllComposites();
+	let screen: Awaited<ReturnType<typeof normSetScreen>>;
+	try {
+		screen = await normSetScreen(id);
+	} catch (e) {
+		pageError(e);
+	}
+	const { set } = screen;
 	return {
-		set,
-		groups,
-		tests: tests.map((t) => ({ code: t.code, name: t.name })),
-		subjects: [
-			...tests.map((t) => ({ code: t.code, name: t.name, composite: false })),
-			...composites.map((c) => ({ code: c.code, name: c.name, composite: true }))
-		],
-		spans,
+		...screen,
 		test: event.url.searchParams.get('test') ?? '',
 		metaForm: await superValidate(
 			{

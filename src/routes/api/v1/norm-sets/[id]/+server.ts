@@ -2,7 +2,7 @@ import type { RequestHandler } from './$types';
 import { json } from '@sveltejs/kit';
 import { z } from 'zod';
 import { requireRole, requireUser, idParam } from '$lib/server/guard';
-import { getNormSet, listNormGroups, updateNormSetWithGroups, notFoundError } from '$lib/server/catalog';
+import { normSetWithGroups, updateNormSetWithGroups } from '$lib/server/catalog';
 import { api, parseWith, readJson } from '$lib/server/http';
 import { normGroupSchema, normSetPatchSchema } from '$lib/catalog/schema';
 
@@ -11,9 +11,7 @@ export const GET: RequestHandler = (event) =>
 	api(async () => {
 		requireUser(event);
 		const id = idParam(event.params.id);
-		const normSet = await getNormSet(id);
-		if (!normSet) throw notFoundError('This norm set');
-		return json({ normSet, groups: await listNormGroups(id, { test: event.url.searchParams.get('test') ?? undefined }) });
+		return json(await normSetWithGroups(id, { test: event.url.searchParams.get('test') ?? undefined }));
 	});
 
 const putSchema = normSetPatchSchema.extend({ groups: z.array(normGroupSchema).max(200_000).optional() });
