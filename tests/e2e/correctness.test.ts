@@ -105,6 +105,31 @@ describe('item 8: keyboard on Review and Entry', () => {
 		await page.context().close();
 	}, 90_000);
 
+	it('"Other value" that is not a number, with no note: the message names the value, not the missing note (walk-through finding)', async () => {
+		const id = await createViaForm(lead, duties);
+		const first = await correctScores(id, { 'speeded-match': 36, 'word-recall': 29, 'word-recall-delayed': 9, 'word-harvest': 21, 'switch-rule': 12 });
+		const second: Scores = JSON.parse(JSON.stringify(first));
+		second['word-recall'].standard = first['word-recall'].standard!.replace(/^(\d)(\d)(\d)$/, '$1$3$2');
+		expect((await saveAndSubmit(await signedIn('scorer'), id, first)).status).toBe(200);
+		expect((await saveAndSubmit(await signedIn('scorer2'), id, second)).status).toBe(200);
+		const page = await person(ACCOUNTS.reviewer);
+		await page.goto(`${BASE_URL}/protocols/${id}/review`);
+		const card = page.getByTestId('discrepancy').first();
+		await card.locator('input[aria-label="Other value"]').fill('abc');
+		await card.getByTestId('resolve').click();
+		const alert = card.getByRole('alert');
+		await alert.waitFor({ timeout: 15_000 });
+		expect(await alert.textContent()).toContain('The value to keep is not valid');
+		// an empty "Other value" is named before anything else
+		await card.locator('input[aria-label="Other value"]').fill('');
+		await card.locator('input[type=radio][value=other]').check();
+		await card.getByTestId('resolve').click();
+		await expect.poll(() => alert.textContent()).toContain('Enter the value to keep.');
+		const [row] = await select<{ resolution: string | null }>('SELECT resolution FROM discrepancies WHERE protocol_id = :id', { id });
+		expect(row.resolution).toBeNull();
+		await page.context().close();
+	}, 90_000);
+
 	it('after a draft reload the cursor is in the first empty field, not the first field', async () => {
 		const id = await createViaForm(lead, duties);
 		const s1 = await signedIn('scorer');
