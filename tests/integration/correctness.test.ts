@@ -428,7 +428,7 @@ describe('an empty education field is not 0 years (walk-through finding)', () =>
 		const row = await selectOne<{ education_years: number | null; group_code: string }>(
 			`SELECT e.education_years, ng.group_code FROM protocols p JOIN examinees e ON e.id = p.examinee_id
 			 JOIN protocol_tests pt ON pt.protocol_id = p.id JOIN norm_groups ng ON ng.id = pt.norm_group_id
-			 WHERE p.id = :id AND pt.test_code = 'word-harvest'`,
+			 WHERE p.id = :id AND ng.test_code = 'word-harvest'`,
 			{ id }
 		);
 		// born 1988-05-17, tested 2026-11-20: 38 years, so the 30;0–39;11 band with up to 12 years
