@@ -130,6 +130,9 @@ describe('review e-mail: the first message', () => {
 	it('a reopened round names the round and the reason; an amendment names the field', () => {
 		const reopened = reviewMailBody({ ...base, round: 3, why: { action: 'reopen', reason: 'Wrong norms' } }, NOW);
 		expect(reopened.text).toContain('It was reopened for review round 3. Reason: Wrong norms');
+		// the subject tells the inbox it is not the first round's message again
+		expect(reopened.subject).toBe('Review needed again (round 3): protocol K-0042 (2 discrepancies)');
+		expect(reviewMailBody({ ...base, round: 3, reminderNo: 2 }, NOW).subject).toBe('Reminder 2 (round 3): protocol K-0042 has 2 open discrepancies');
 		const amended = reviewMailBody({ ...base, round: 2, why: { action: 'amendment', reason: 'Typo', field: 'wr standard score' } }, NOW);
 		expect(amended.text).toContain('It was amended (wr standard score) and needs review round 2. Reason: Typo');
 	});

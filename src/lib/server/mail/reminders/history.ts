@@ -40,7 +40,13 @@ export async function listProtocolMail(protocolId: number, now = Date.now()): Pr
 		const to = parts.filter((s) => !s.startsWith('cc:'));
 		const k = parseReviewKey(r.idempotency_key);
 		const n = r.reminder_no ?? k?.reminderNo ?? null;
-		const label = r.kind === 'review_first' ? 'First e-mail' : r.kind === 'review_reminder' ? `Reminder ${n}${cc.length ? ' (leads copied in)' : ''}` : r.kind;
+		const ofRound = (k?.round ?? 1) > 1 ? `, round ${k!.round}` : '';
+		const label =
+			r.kind === 'review_first'
+				? `First e-mail${ofRound}`
+				: r.kind === 'review_reminder'
+					? `Reminder ${n}${ofRound}${cc.length ? ' (leads copied in)' : ''}`
+					: r.kind;
 		const stale = r.status === 'sending' && now - new Date(r.created_at).getTime() > 60_000;
 		return {
 			id: r.id,

@@ -102,13 +102,16 @@ export function waitedWords(ms: number): string {
 	return plural(Math.floor(hours / 24), 'day');
 }
 
-export function subjectOf(c: Pick<ReviewMailContent, 'reminderNo' | 'code' | 'discrepancies' | 'escalated'>): string {
+export function subjectOf(c: Pick<ReviewMailContent, 'reminderNo' | 'code' | 'discrepancies' | 'escalated' | 'round'>): string {
 	const n = c.discrepancies.length;
+	// a later round (reopened or amended) says so in the subject: the inbox otherwise shows it as a copy of the first
+	const again = (c.round ?? 1) > 1 ? ` again (round ${c.round})` : '';
 	if (c.reminderNo === 0)
 		return n === 0
-			? `Sign-off needed: protocol ${c.code} (no discrepancies)`
-			: `Review needed: protocol ${c.code} (${plural(n, 'discrepancy', 'discrepancies')})`;
-	return `${c.escalated ? 'Escalated reminder' : 'Reminder'} ${c.reminderNo}: protocol ${c.code} has ${plural(n, 'open discrepancy', 'open discrepancies')}`;
+			? `Sign-off needed${again}: protocol ${c.code} (no discrepancies)`
+			: `Review needed${again}: protocol ${c.code} (${plural(n, 'discrepancy', 'discrepancies')})`;
+	const round = (c.round ?? 1) > 1 ? ` (round ${c.round})` : '';
+	return `${c.escalated ? 'Escalated reminder' : 'Reminder'} ${c.reminderNo}${round}: protocol ${c.code} has ${plural(n, 'open discrepancy', 'open discrepancies')}`;
 }
 
 export interface MailRow {
