@@ -17,6 +17,7 @@ import {
 	type InferCreationAttributes,
 	type ModelAttributes,
 	type ModelStatic,
+	type Optional,
 	type Sequelize
 } from 'sequelize';
 import { FIELDS, type Field } from '../../scoring/scales';
@@ -80,179 +81,53 @@ export class ErrorEvent extends Model<InferAttributes<ErrorEvent>, InferCreation
 	declare judgement: CreationOptional<0 | 1>;
 }
 
-/** Fields entered per day × scorer × battery × test ('' = the whole pass, 00006). */
-export class AuditDaily extends Model<InferAttributes<AuditDaily>, InferCreationAttributes<AuditDaily>> {
-	/** The day the pass was submitted (YYYY-MM-DD). */
-	declare day: string;
-	declare scorer_id: number;
-	declare battery_id: number;
-	declare test_code: string;
-	declare domain: string;
-	declare passes: CreationOptional<number>;
-	declare fields_entered: CreationOptional<number>;
-	declare raw_fields: CreationOptional<number>;
-	declare derived_fields: CreationOptional<number>;
-}
-/** Not yet folded into audit_daily: one round's sums (negated when it was recorded again; 00026). */
-export class AuditDailyDelta extends Model<InferAttributes<AuditDailyDelta>, InferCreationAttributes<AuditDailyDelta>> {
-	declare id: CreationOptional<number>;
-	declare day: string;
-	declare scorer_id: number;
-	declare battery_id: number;
-	declare test_code: string;
-	declare domain: string;
-	declare passes: CreationOptional<number>;
-	declare fields_entered: CreationOptional<number>;
-	declare raw_fields: CreationOptional<number>;
-	declare derived_fields: CreationOptional<number>;
-}
-
+/*
+ * The daily summaries and their delta twins share their columns (a delta row has its own id and no
+ * key of its own): the attributes are written once as types, and each class only names them. No
+ * service reads these rows' attributes one by one (the aggregates are SQL), so the classes declare
+ * no instance fields.
+ */
+/** Fields entered per day × scorer × battery × test ('' = the whole pass, 00006). `day`: YYYY-MM-DD. */
+type AuditDailyRow = { day: string; scorer_id: number; battery_id: number; test_code: string; domain: string } & Counts<
+	'passes' | 'fields_entered' | 'raw_fields' | 'derived_fields'
+>;
 /** The sums kept per agreement cell: pair counts and the moments of the two values. */
-interface AgreementMeasures {
-	pairs: CreationOptional<number>;
-	one_sided: CreationOptional<number>;
-	exact: CreationOptional<number>;
-	sx: CreationOptional<number>;
-	sy: CreationOptional<number>;
-	sxx: CreationOptional<number>;
-	syy: CreationOptional<number>;
-	sxy: CreationOptional<number>;
-	sd: CreationOptional<number>;
-	sdd: CreationOptional<number>;
-}
-
+type AgreementMeasures = Counts<'pairs' | 'one_sided' | 'exact' | 'sx' | 'sy' | 'sxx' | 'syy' | 'sxy' | 'sd' | 'sdd'>;
+/** AACN band ids ('' = no band: raw scores, or not a number). */
+type BandPair = { first_label: string; second_label: string };
 /** Agreement per scorer (0 = every pair once) × day × battery × test × field × band pair. */
-export class AgreementDaily extends Model<InferAttributes<AgreementDaily>, InferCreationAttributes<AgreementDaily>> implements AgreementMeasures {
-	declare scorer_id: number;
-	declare day: string;
-	declare battery_id: number;
-	declare test_code: string;
-	declare field: Field;
-	/** AACN band ids ('' = no band: raw scores, or not a number). */
-	declare first_label: string;
-	declare second_label: string;
-	declare pairs: CreationOptional<number>;
-	declare one_sided: CreationOptional<number>;
-	declare exact: CreationOptional<number>;
-	declare sx: CreationOptional<number>;
-	declare sy: CreationOptional<number>;
-	declare sxx: CreationOptional<number>;
-	declare syy: CreationOptional<number>;
-	declare sxy: CreationOptional<number>;
-	declare sd: CreationOptional<number>;
-	declare sdd: CreationOptional<number>;
-}
-export class AgreementDailyDelta
-	extends Model<InferAttributes<AgreementDailyDelta>, InferCreationAttributes<AgreementDailyDelta>>
-	implements AgreementMeasures
-{
-	declare id: CreationOptional<number>;
-	declare scorer_id: number;
-	declare day: string;
-	declare battery_id: number;
-	declare test_code: string;
-	declare field: Field;
-	declare first_label: string;
-	declare second_label: string;
-	declare pairs: CreationOptional<number>;
-	declare one_sided: CreationOptional<number>;
-	declare exact: CreationOptional<number>;
-	declare sx: CreationOptional<number>;
-	declare sy: CreationOptional<number>;
-	declare sxx: CreationOptional<number>;
-	declare syy: CreationOptional<number>;
-	declare sxy: CreationOptional<number>;
-	declare sd: CreationOptional<number>;
-	declare sdd: CreationOptional<number>;
-}
+type AgreementDailyRow = { scorer_id: number; day: string; battery_id: number; test_code: string; field: Field } & BandPair & AgreementMeasures;
 /** agreement_daily by ISO week (`week` is its Monday). */
-export class AgreementWeekly extends Model<InferAttributes<AgreementWeekly>, InferCreationAttributes<AgreementWeekly>> implements AgreementMeasures {
-	declare scorer_id: number;
-	declare week: string;
-	declare battery_id: number;
-	declare test_code: string;
-	declare field: Field;
-	declare first_label: string;
-	declare second_label: string;
-	declare pairs: CreationOptional<number>;
-	declare one_sided: CreationOptional<number>;
-	declare exact: CreationOptional<number>;
-	declare sx: CreationOptional<number>;
-	declare sy: CreationOptional<number>;
-	declare sxx: CreationOptional<number>;
-	declare syy: CreationOptional<number>;
-	declare sxy: CreationOptional<number>;
-	declare sd: CreationOptional<number>;
-	declare sdd: CreationOptional<number>;
-}
-export class AgreementWeeklyDelta
-	extends Model<InferAttributes<AgreementWeeklyDelta>, InferCreationAttributes<AgreementWeeklyDelta>>
-	implements AgreementMeasures
-{
-	declare id: CreationOptional<number>;
-	declare scorer_id: number;
-	declare week: string;
-	declare battery_id: number;
-	declare test_code: string;
-	declare field: Field;
-	declare first_label: string;
-	declare second_label: string;
-	declare pairs: CreationOptional<number>;
-	declare one_sided: CreationOptional<number>;
-	declare exact: CreationOptional<number>;
-	declare sx: CreationOptional<number>;
-	declare sy: CreationOptional<number>;
-	declare sxx: CreationOptional<number>;
-	declare syy: CreationOptional<number>;
-	declare sxy: CreationOptional<number>;
-	declare sd: CreationOptional<number>;
-	declare sdd: CreationOptional<number>;
-}
+type AgreementWeeklyRow = Omit<AgreementDailyRow, 'day'> & { week: string };
 /** Agreement per (first scorer, second scorer) pair × day, for the scorer-pair table. */
-export class AgreementPairDaily extends Model<InferAttributes<AgreementPairDaily>, InferCreationAttributes<AgreementPairDaily>> implements AgreementMeasures {
-	declare field: Field;
-	declare day: string;
-	declare first_scorer_id: number;
-	declare second_scorer_id: number;
-	declare battery_id: number;
-	declare test_code: string;
-	declare first_label: string;
-	declare second_label: string;
-	declare pairs: CreationOptional<number>;
-	declare one_sided: CreationOptional<number>;
-	declare exact: CreationOptional<number>;
-	declare sx: CreationOptional<number>;
-	declare sy: CreationOptional<number>;
-	declare sxx: CreationOptional<number>;
-	declare syy: CreationOptional<number>;
-	declare sxy: CreationOptional<number>;
-	declare sd: CreationOptional<number>;
-	declare sdd: CreationOptional<number>;
-}
-export class AgreementPairDailyDelta
-	extends Model<InferAttributes<AgreementPairDailyDelta>, InferCreationAttributes<AgreementPairDailyDelta>>
-	implements AgreementMeasures
-{
-	declare id: CreationOptional<number>;
-	declare field: Field;
-	declare day: string;
-	declare first_scorer_id: number;
-	declare second_scorer_id: number;
-	declare battery_id: number;
-	declare test_code: string;
-	declare first_label: string;
-	declare second_label: string;
-	declare pairs: CreationOptional<number>;
-	declare one_sided: CreationOptional<number>;
-	declare exact: CreationOptional<number>;
-	declare sx: CreationOptional<number>;
-	declare sy: CreationOptional<number>;
-	declare sxx: CreationOptional<number>;
-	declare syy: CreationOptional<number>;
-	declare sxy: CreationOptional<number>;
-	declare sd: CreationOptional<number>;
-	declare sdd: CreationOptional<number>;
-}
+type AgreementPairDailyRow = {
+	field: Field;
+	day: string;
+	first_scorer_id: number;
+	second_scorer_id: number;
+	battery_id: number;
+	test_code: string;
+} & BandPair &
+	AgreementMeasures;
+/** Measure columns: NOT NULL DEFAULT 0, so optional when a row is created. */
+type Counts<K extends string> = { [k in K]: number };
+type Measures<R> = Extract<keyof R, keyof AgreementMeasures | 'passes' | 'fields_entered' | 'raw_fields' | 'derived_fields'>;
+/** A summary row as created (the measures default to 0), and its delta twin (own id, from the sequence). */
+type Created<R> = Optional<R, Measures<R>>;
+type Delta<R> = R & { id: number };
+
+export class AuditDaily extends Model<AuditDailyRow, Created<AuditDailyRow>> {}
+/** Not yet folded into audit_daily: one round's sums (negated when it was recorded again; 00026). */
+export class AuditDailyDelta extends Model<Delta<AuditDailyRow>, Optional<Delta<AuditDailyRow>, 'id' | Measures<AuditDailyRow>>> {}
+export class AgreementDaily extends Model<AgreementDailyRow, Created<AgreementDailyRow>> {}
+export class AgreementDailyDelta extends Model<Delta<AgreementDailyRow>, Optional<Delta<AgreementDailyRow>, 'id' | Measures<AgreementDailyRow>>> {}
+export class AgreementWeekly extends Model<AgreementWeeklyRow, Created<AgreementWeeklyRow>> {}
+export class AgreementWeeklyDelta extends Model<Delta<AgreementWeeklyRow>, Optional<Delta<AgreementWeeklyRow>, 'id' | Measures<AgreementWeeklyRow>>> {}
+export class AgreementPairDaily extends Model<AgreementPairDailyRow, Created<AgreementPairDailyRow>> {}
+export class AgreementPairDailyDelta extends Model<
+	Delta<AgreementPairDailyRow>,
+	Optional<Delta<AgreementPairDailyRow>, 'id' | Measures<AgreementPairDailyRow>>
+> {}
 
 /** Each summary's model and its delta table's model, by summary table name (sql.ts, SUMMARIES). */
 export const SUMMARY_MODELS: Record<
