@@ -229,8 +229,8 @@ function table(): Row[] {
 
 const HISTORY = join(ROOT, '.bench/history.jsonl');
 type HistoryRun = { date: string; quick: boolean; rows: { key: string; ratio: string; metric?: number; value: string }[] };
-/** The latest earlier run of the same size (full or --quick) from .bench/history.jsonl. */
-function lastRun(quick: boolean): HistoryRun | undefined {
+/** The earlier runs of the same size (full or --quick) from .bench/history.jsonl, newest first. */
+function earlierRuns(quick: boolean): HistoryRun[] {
 	if (!existsSync(HISTORY)) return undefined;
 	const runs = readFileSync(HISTORY, 'utf8')
 		.split('\n')
@@ -242,21 +242,26 @@ function lastRun(quick: boolean): HistoryRun | undefined {
 				return [];
 			}
 		});
-	return runs.reverse().find((x) => x.quick === quick);
+	return runs.reverse().filter((x) => x.quick === quick);
 }
-/** "+0.31 (was 2.40)" against the previous run's ratio (or headline figure where there is no ratio). */
-function change(r: Row, prev: HistoryRun | undefined): string {
-	const p = prev?.rows.find((x) => x.key === r.key);
-	if (!p) return prev ? 'new' : '';
+/**
+ * "+0.31 (was 2.40, 13:58)" against the latest earlier run that measured this figure (a run with
+ * --only measures some), by its ratio, or its headline figure where there is no ratio.
+ */
+function change(r: Row, earlier: HistoryRun[]): string {
+	const run = earlier.find((x) => x.rows.some((y) => y.key === r.key));
+	const p = run?.rows.find((x) => x.key === r.key);
+	if (!run || !p) return earlier.length ? 'new' : '';
+	const when = run.date.slice(11, 16);
 	const now = Number(r.ratio),
 		before = Number(p.ratio);
 	if (r.ratio !== '' && !Number.isNaN(now) && !Number.isNaN(before)) {
 		const d = now - before;
-		return `${d >= 0 ? '+' : ''}${d.toFixed(2)} (was ${before.toFixed(2)}, ${before ? (d >= 0 ? '+' : '') + Math.round((100 * d) / before) : '?'} %)`;
+		return `${d >= 0 ? '+' : ''}${d.toFixed(2)} (was ${before.toFixed(2)} at ${when}, ${before ? (d >= 0 ? '+' : '') + Math.round((100 * d) / before) : '?'} %)`;
 	}
 	if (r.metric !== undefined && p.metric !== undefined && p.metric !== null) {
 		const d = r.metric - p.metric;
-		return `${d >= 0 ? '+' : ''}${Math.round(d * 10) / 10}${r.unit ?? ''} (was ${p.metric}${r.unit ?? ''})`;
+		return `${d >= 0 ? '+' : ''}${Math.round(d * 10) / 10}${r.unit ?? ''} (was ${p.metric}${r.unit ?? ''} at ${when})`;
 	}
 	return '';
 }
@@ -289,8 +294,9 @@ async function main() {
 	}
 
 	const rows = table();
-	const previous = lastRun(QUICK);
-	for (const r of rows) r.change = change(r, previous);
+	const earlier = earlierRuns(QUICK);
+	const previous = earlier[0];
+	for (const r of rows) r.change = change(r, earlier);
 	const widths = (['area', 'figure', 'value', 'floor', 'ratio', 'change', 'goal', 'met'] as const).map((k) =>
 		Math.max(k.length, ...rows.map((r) => r[k].length))
 	);
@@ -306,7 +312,7 @@ async function main() {
 			value: 'value',
 			floor: 'floor (same run)',
 			ratio: 'ratio',
-			change: previous ? `vs ${previous.date.slice(0, 16).replace('T', ' ')}` : 'change',
+			change: previous ? 'vs the last run that measured it' : 'change',
 			goal: 'goal',
 			met: 'met'
 		})
@@ -339,7 +345,7 @@ async function main() {
 		}) + '\n'
 	);
 	console.log(
-		`\nwritten to .bench/all.json; figures appended to .bench/history.jsonl${previous ? ` (change against the run of ${previous.date})` : ' (no earlier run to compare with)'}`
+		`\nwritten to .bench/all.json; figures appended to .bench/history.jsonl${previous ? ' (each change against the latest earlier run that measured that figure)' : ' (no earlier run to compare with)'}`
 	);
 	process.exitCode = failures.length ? 1 : 0;
 }
