@@ -173,6 +173,16 @@ describe('item 3: an empty raw score is not a raw score of 0', () => {
 	});
 });
 
+/** A Word Recall norm group of ages min–max months (mean 20, SD 4: invented for these tests). */
+const g = (code: string, min: number, max: number) => ({
+	test_code: 'word-recall',
+	group_code: code,
+	age_min_months: min,
+	age_max_months: max,
+	mean: 20,
+	sd: 4
+});
+
 // ------------------------------------------------------------------------------------------------
 describe('item 4: the norm-set PUT is one transaction', () => {
 	it('a refused group change leaves the name and the age rule as they were', async () => {
@@ -185,14 +195,6 @@ describe('item 4: the norm-set PUT is one transaction', () => {
 			rounding: 'round_days'
 		});
 		const set = (await r.json()).normSet.id as number;
-		const g = (code: string, min: number, max: number) => ({
-			test_code: 'word-recall',
-			group_code: code,
-			age_min_months: min,
-			age_max_months: max,
-			mean: 20,
-			sd: 4
-		});
 		// 216–359 and 350–479 overlap by 350–359: refused (422)
 		const bad = await put(lead, `/api/v1/norm-sets/${set}`, {
 			name: 'After the change',
@@ -215,14 +217,6 @@ describe('the norm-set GET reads one snapshot', () => {
 	it('while PUTs replace the groups (2 ↔ 3), every GET’s group count agrees with the groups it lists', async () => {
 		const r = await post(lead, '/api/v1/norm-sets', { code: `snap-${uniq()}`, name: 'Snapshot', source: 'Invented for a test', version: '1' });
 		const set = (await r.json()).normSet.id as number;
-		const g = (code: string, min: number, max: number) => ({
-			test_code: 'word-recall',
-			group_code: code,
-			age_min_months: min,
-			age_max_months: max,
-			mean: 20,
-			sd: 4
-		});
 		const two = [g('a18', 216, 359), g('a30', 360, 479)];
 		const three = [g('a18', 216, 299), g('a25', 300, 359), g('a30', 360, 479)];
 		const seen: { count: number; listed: number }[] = [];
