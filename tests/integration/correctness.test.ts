@@ -413,7 +413,9 @@ describe('an empty education field is not 0 years (walk-through finding)', () =>
 			const fields = await formFields({ educationYears: value });
 			const r = await lead.action('/protocols/new', fields);
 			expect(r.body.status, JSON.stringify(r.body)).toBe(422);
-			expect(r.body.data).toContain('for Word Harvest; choose one with a reason.');
+			expect(r.body.data).toContain(
+				'The norm groups of Word Harvest are split by years of education, which is not recorded for this examinee: enter it, or choose a group with a reason.'
+			);
 			expect((await selectOne<{ n: number }>('SELECT COUNT(*) AS n FROM examinees WHERE code = :code', { code: fields.code }))!.n).toBe(0);
 		}
 		const r = await lead.action('/protocols/new', await formFields({ educationYears: '0' }));

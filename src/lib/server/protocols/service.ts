@@ -282,7 +282,12 @@ async function insertProtocol(input: NewProtocol, actor: Actor): Promise<number>
 			const o = input.overrides?.[test.code];
 			const mine = groups.filter((g) => g.test_code === test.code);
 			let message: string | null = null;
-			if (!o?.groupCode) message = `No norm group of this norm set covers age ${age.text} for ${test.name}; choose one with a reason.`;
+			// groups split by education cannot fit an examinee whose education is not recorded: say that, not the age
+			const byEducation = (ex.education_years === null || ex.education_years === undefined) && mine.some((g) => g.edu_min !== null || g.edu_max !== null);
+			if (!o?.groupCode)
+				message = byEducation
+					? `The norm groups of ${test.name} are split by years of education, which is not recorded for this examinee: enter it, or choose a group with a reason.`
+					: `No norm group of this norm set covers age ${age.text} for ${test.name}; choose one with a reason.`;
 			else if (!mine.some((g) => g.group_code === o.groupCode)) message = `Norm group ${o.groupCode} does not exist for ${test.name}.`;
 			else if (!o.reason || o.reason.trim().length < 5)
 				message = `Give a reason for using the norm group for ${groupWords(mine.find((g) => g.group_code === o.groupCode)!)} for ${test.name} (at least a few words).`;
