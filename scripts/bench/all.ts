@@ -224,6 +224,19 @@ function table(): Row[] {
 			goal: '0 full scans',
 			met: yes(r.db.ok)
 		});
+	const rt = r.db?.round_trip;
+	if (rt?.socket_ms)
+		rows.push({
+			key: 'db.round_trip',
+			area: 'db',
+			figure: 'one round trip to MariaDB (primary-key SELECT): Unix socket, as the app connects, vs loopback TCP',
+			value: `${f(rt.socket_ms, 3)} ms (client CPU ${f(rt.socket_cpu_ms, 3)} ms)`,
+			floor: `TCP ${f(rt.tcp_ms, 3)} ms (${f(rt.tcp_cpu_ms, 3)} ms)`,
+			ratio: f(rt.socket_ms / rt.tcp_ms, 2),
+			metric: rt.socket_ms / rt.tcp_ms,
+			goal: '< 1 (informational)',
+			met: yes(rt.socket_ms < rt.tcp_ms)
+		});
 	return rows;
 }
 
@@ -231,7 +244,7 @@ const HISTORY = join(ROOT, '.bench/history.jsonl');
 type HistoryRun = { date: string; quick: boolean; rows: { key: string; ratio: string; metric?: number; value: string }[] };
 /** The earlier runs of the same size (full or --quick) from .bench/history.jsonl, newest first. */
 function earlierRuns(quick: boolean): HistoryRun[] {
-	if (!existsSync(HISTORY)) return undefined;
+	if (!existsSync(HISTORY)) return [];
 	const runs = readFileSync(HISTORY, 'utf8')
 		.split('\n')
 		.filter(Boolean)

@@ -7,7 +7,8 @@
  * --small rows (default 1000) is flagged; scans of small look-up tables are listed as such.
  * Run after bench:http / bench:audit have filled the database (npm run bench does). Options: --out.
  */
-import { arg, emit, loadBenchEnv, machine } from './lib';
+import { performance } from 'node:perf_hooks';
+import { arg, emit, loadBenchEnv, machine, median } from './lib';
 
 loadBenchEnv('db');
 const { db, select, selectOne, closeDb } = await import('../../src/lib/server/db');
@@ -147,8 +148,13 @@ async function main() {
 			: `\nEvery one of ${queries.length} queries reads large tables through an index.`
 	);
 	for (const q of bad) console.log(`  ${q.label}: ${q.full_scans.join('; ')}${q.chosen_scans.length ? ` — candidates: ${q.chosen_scans.join('; ')}` : ''}`);
+	const roundTrip = await roundTrips();
+	console.error(
+		`[bench:db] one primary-key SELECT, ${roundTrip.queries} × 3 rounds each: loopback TCP ${roundTrip.tcp_ms} ms (client CPU ${roundTrip.tcp_cpu_ms} ms), Unix socket ${roundTrip.socket_ms ?? '—'} ms (${roundTrip.socket_cpu_ms ?? '—'} ms)`
+	);
 	emit('db', {
 		...machine(),
+		round_trip: roundTrip,
 		data: counts,
 		small_table_rows: SMALL,
 		queries: queries.length,
@@ -158,6 +164,46 @@ async function main() {
 		flagged: bad.map((q) => ({ label: q.label, sql: q.sql, scans: q.full_scans, optimizer_chosen: q.chosen_scans })),
 		plans: queries
 	});
+}
+
+/**
+ * What a round trip to MariaDB costs the app over loopback TCP and over the server's Unix socket (the
+ * scripts' stack uses the socket: config.db.socket). The same primary-key SELECT on two plain
+ * connections, rounds interleaved; median per query of the three rounds, wall time and client CPU.
+ */
+async function roundTrips() {
+	const mariadb = await import('mariadb');
+	const { config } = await import('../../src/lib/server/config');
+	const base = { user: config.db.user, password: config.db.password, database: config.db.name };
+	const N = 2000;
+	const time = async (c: import('mariadb').Connection) => {
+		const t0 = performance.now();
+		const cpu0 = process.cpuUsage();
+		for (let i = 0; i < N; i++) await c.query('SELECT id, email FROM users WHERE id = ?', [1 + (i % 5)]);
+		const cpu = process.cpuUsage(cpu0);
+		return { ms: (performance.now() - t0) / N, cpu: (cpu.user + cpu.system) / 1000 / N };
+	};
+	const tcp = await mariadb.createConnection({ ...base, host: config.db.host, port: config.db.port });
+	const sock = config.db.socket ? await mariadb.createConnection({ ...base, socketPath: config.db.socket }) : null;
+	const t: { ms: number; cpu: number }[] = [];
+	const u: { ms: number; cpu: number }[] = [];
+	try {
+		for (let r = 0; r < 3; r++) {
+			t.push(await time(tcp));
+			if (sock) u.push(await time(sock));
+		}
+	} finally {
+		await tcp.end();
+		await sock?.end();
+	}
+	const med = (xs: number[]) => (xs.length ? Math.round(median(xs) * 1000) / 1000 : null);
+	return {
+		queries: N,
+		tcp_ms: med(t.map((x) => x.ms)),
+		tcp_cpu_ms: med(t.map((x) => x.cpu)),
+		socket_ms: med(u.map((x) => x.ms)),
+		socket_cpu_ms: med(u.map((x) => x.cpu))
+	};
 }
 
 main()

@@ -24,6 +24,8 @@ export CROSSTALLY_MODE=test
 B=$CLUSTER_BASE
 export CROSSTALLY_DATA_DIR="${CLUSTER_DATA_DIR:-$(cd "$(dirname "$0")/../.." && pwd)/.data/cluster}"
 export DB_PORT=$((B + 43)) REDIS_PORT=$((B + 90)) SMTP_PORT=$((B + 91)) MAILFAKE_PORT=$((B + 92)) PORT=$((B + 80))
+# apps and workers reach their Galera node by TCP (DB_PORT per process), never one node's socket
+export DB_SOCKET=""
 export DB_NAME=crosstally_cluster ORIGIN="http://127.0.0.1:$((B + 80))"
 # reminders far apart: the run checks one delivery per outbox row, not the reminder schedule
 export REMINDER_INTERVAL_MINUTES="${REMINDER_INTERVAL_MINUTES:-1440}" SIGNIN_MAX_PER_ADDRESS="${SIGNIN_MAX_PER_ADDRESS:-100000}"

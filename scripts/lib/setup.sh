@@ -215,6 +215,14 @@ stop_all() {
 }
 
 # Write the env file the app, worker and scripts read (generated secrets kept across runs).
+# The app and the worker reach the scripts' own MariaDB by its Unix socket (cheaper than loopback
+# TCP). Empty, so TCP, when DB_SOCKET is exported empty (the cluster: apps go to different nodes) or the
+# path is too long for a socket address (108 bytes on Linux).
+db_socket_for_env() {
+	local sock="${DB_SOCKET-$RUN_DIR/mariadb.sock}"
+	[ "${#sock}" -le 100 ] && printf '%s' "$sock"
+}
+
 write_env_file() {
 	mkdir -p "$CROSSTALLY_DATA_DIR"
 	if [ -f "$ENV_FILE" ]; then
@@ -235,6 +243,7 @@ CROSSTALLY_MODE=$CROSSTALLY_MODE
 CROSSTALLY_DATA_DIR=$CROSSTALLY_DATA_DIR
 DB_HOST=127.0.0.1
 DB_PORT=$DB_PORT
+DB_SOCKET=$(db_socket_for_env)
 DB_NAME=$DB_NAME
 DB_USER=$DB_USER
 DB_PASSWORD=$DB_PASSWORD

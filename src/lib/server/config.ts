@@ -34,6 +34,13 @@ export const config = {
 	db: {
 		host: env.DB_HOST ?? '127.0.0.1',
 		port: num('DB_PORT', 3307),
+		/**
+		 * A Unix socket of a MariaDB on the same machine (the scripts' own server writes it into the env
+		 * file). When set it is used instead of host and port: a round trip over the socket costs about a
+		 * third less time and client CPU than loopback TCP (measured with the mariadb connector, README
+		 * "Performance"). Empty or unset: TCP (a server elsewhere, or a cluster behind a load balancer).
+		 */
+		socket: env.DB_SOCKET || null,
 		name: env.DB_NAME ?? 'crosstally',
 		user: env.DB_USER ?? 'crosstally',
 		password: env.DB_PASSWORD ?? '',

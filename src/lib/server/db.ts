@@ -29,6 +29,7 @@ export function db(): Sequelize {
 				decimalAsNumber: true,
 				bigIntAsNumber: true,
 				dateStrings: ['DATE'],
+				...(config.db.socket ? { socketPath: config.db.socket } : {}),
 				// every transaction() is READ COMMITTED: set once per connection, not by a statement per transaction
 				initSql: 'SET SESSION TRANSACTION ISOLATION LEVEL READ COMMITTED'
 			}
