@@ -3,7 +3,8 @@ import { json, redirect, error, type Handle, type HandleServerError, type Reques
 import { handle as authHandle } from './auth';
 import { decide } from '$lib/server/access';
 import { quickSession, sessionUser, SessionUnchecked } from '$lib/server/session';
-import { isDbUnavailable, closeDb } from '$lib/server/db';
+import { dbRefusal, isDbUnavailable, closeDb } from '$lib/server/db';
+import { unavailableJson } from '$lib/server/http';
 import { closeRedis } from '$lib/server/redis';
 import { compress } from '$lib/server/compress';
 import errorTemplate from './error.html?raw';
@@ -28,7 +29,6 @@ const errorResponse = (status: number, message: string) =>
 const isApi = (e: RequestEvent) => e.url.pathname.startsWith('/api/');
 /** Route ids of the +server endpoints (found at build time; the modules are not loaded here). */
 const ENDPOINTS = new Set(Object.keys(import.meta.glob('./routes/**/+server.ts')).map((k) => k.slice('./routes'.length, -'/+server.ts'.length) || '/'));
-const UNAVAILABLE = 'The database cannot be reached right now. Nothing was saved; try again in a minute.';
 const SESSIONS_UNAVAILABLE = 'Your session cannot be checked right now (a service is not reachable). Nothing was saved; try again in a minute.';
 
 /**
@@ -76,8 +76,9 @@ const authorize: Handle = async ({ event, resolve }) => {
 		else {
 			if (isDbUnavailable(e)) {
 				event.locals.unavailable = true;
-				if (isApi(event)) return json({ message: UNAVAILABLE, code: 'unavailable' }, { status: 503 });
-				error(503, { message: UNAVAILABLE, code: 'unavailable' });
+				if (isApi(event)) return unavailableJson(e);
+				const r = dbRefusal(e);
+				error(503, { message: r.message, code: r.code });
 			}
 			throw e;
 		}
@@ -132,7 +133,8 @@ export const handle = sequence(compress, headers, authHandle, authorize);
 export const handleError: HandleServerError = ({ error: e, event, status }) => {
 	if (isDbUnavailable(e)) {
 		event.locals.unavailable = true;
-		return { message: UNAVAILABLE, code: 'unavailable' };
+		const r = dbRefusal(e);
+		return { message: r.message, code: r.code };
 	}
 	if (status !== 404) console.error(`[error] ${event.request.method} ${event.url.pathname}:`, e instanceof Error ? e.stack : e);
 	return { message: status === 404 ? 'There is nothing at this address.' : 'Something went wrong on our side. It has been logged.', code: 'internal' };

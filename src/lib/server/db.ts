@@ -147,6 +147,21 @@ export function snapshot<T>(fn: (t: Transaction) => Promise<T>): Promise<T> {
 }
 
 /** True when an error means the database cannot be reached (answered with 503, never a 500). */
+/**
+ * Every pooled connection stayed busy for the pool's whole acquire timeout: the server is reachable
+ * but this app is overloaded. A subset of isDbUnavailable, answered with its own message (dbRefusal).
+ */
+export function isDbBusy(e: unknown): boolean {
+	return (e as { name?: string })?.name === 'SequelizeConnectionAcquireTimeoutError';
+}
+
+/** What to tell a user whose request failed on isDbUnavailable, and when to try again (seconds). */
+export function dbRefusal(e: unknown): { message: string; code: 'unavailable' | 'busy'; retryAfter: number } {
+	return isDbBusy(e)
+		? { message: 'Crosstally is too busy to take this request right now. Nothing was saved; try again in a few seconds.', code: 'busy', retryAfter: 5 }
+		: { message: 'The database cannot be reached right now. Nothing was saved; try again in a minute.', code: 'unavailable', retryAfter: 60 };
+}
+
 export function isDbUnavailable(e: unknown): boolean {
 	const name = (e as { name?: string })?.name ?? '';
 	const code = e as { original?: { code?: string }; parent?: { code?: string }; code?: string };

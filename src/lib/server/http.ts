@@ -8,14 +8,18 @@ import { error, fail, json } from '@sveltejs/kit';
 import { message, setError, type SuperValidated } from 'sveltekit-superforms';
 import { ServiceError } from './errors';
 export { parseWith } from './errors';
-import { isDbUnavailable } from './db';
+import { dbRefusal, isDbUnavailable } from './db';
 
-const UNAVAILABLE = 'The database cannot be reached right now. Nothing was saved; try again in a minute.';
+/** 503 for an outage or an overload (dbRefusal says which), with Retry-After. */
+export function unavailableJson(e: unknown): Response {
+	const r = dbRefusal(e);
+	return json({ message: r.message, code: r.code }, { status: 503, headers: { 'Retry-After': String(r.retryAfter) } });
+}
 
 export function apiError(e: unknown): Response {
 	if (e instanceof ServiceError)
 		return json({ message: e.message, code: e.code, field: e.field ?? null, fields: e.fields, ...(e.detail ?? {}) }, { status: e.status });
-	if (isDbUnavailable(e)) return json({ message: UNAVAILABLE, code: 'unavailable' }, { status: 503 });
+	if (isDbUnavailable(e)) return unavailableJson(e);
 	throw e;
 }
 
