@@ -182,7 +182,8 @@ start_mailfake() {
 
 start_app() {
 	pid_alive "$RUN_DIR/app.pid" || ensure_port_free "$PORT" "the app" PORT
-	start_node_process app node --env-file="$ENV_FILE" "$CROSSTALLY_BUILD_DIR/index.js"
+	# scripts/serve.js: one copy of the server per core (APP_PROCESSES), sharing the port
+	start_node_process app node --env-file="$ENV_FILE" scripts/serve.js "$CROSSTALLY_BUILD_DIR"
 	wait_http "http://127.0.0.1:$PORT/health" || { tail -30 "$RUN_DIR/app.log" >&2; die "app did not start"; }
 }
 
