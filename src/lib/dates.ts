@@ -89,17 +89,29 @@ export function isTimeZone(timeZone: string): boolean {
 	}
 }
 
+// One formatter per zone: building an Intl.DateTimeFormat costs far more than formatting with it, and
+// "today in the clinic's zone" is asked on most requests (it showed in the app's CPU profile under load).
+const formatters = new Map<string, Intl.DateTimeFormat>();
+function formatter(timeZone: string): Intl.DateTimeFormat {
+	let f = formatters.get(timeZone);
+	if (!f) {
+		f = new Intl.DateTimeFormat('en-US', {
+			timeZone,
+			year: 'numeric',
+			month: '2-digit',
+			day: '2-digit',
+			hour: '2-digit',
+			minute: '2-digit',
+			hourCycle: 'h23',
+			timeZoneName: 'shortOffset'
+		});
+		formatters.set(timeZone, f);
+	}
+	return f;
+}
+
 function parts(d: Date, timeZone: string) {
-	const f = new Intl.DateTimeFormat('en-US', {
-		timeZone,
-		year: 'numeric',
-		month: '2-digit',
-		day: '2-digit',
-		hour: '2-digit',
-		minute: '2-digit',
-		hourCycle: 'h23',
-		timeZoneName: 'shortOffset'
-	});
+	const f = formatter(timeZone);
 	const out: Record<string, string> = {};
 	for (const p of f.formatToParts(d)) out[p.type] = p.value;
 	return out;
