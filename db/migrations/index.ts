@@ -12,6 +12,7 @@ import * as m00023 from './00023-review-evidence';
 import * as m00024 from './00024-discrepancy-checks';
 import * as m00026 from './00026-audit-deltas';
 import * as m00030 from './00030-judgement-index';
+import * as m00031 from './00031-audit-totals';
 
 export const migrations = [
 	{ name: '00001-initial', ...m00001 },
@@ -26,7 +27,8 @@ export const migrations = [
 	{ name: '00023-review-evidence', ...m00023 },
 	{ name: '00024-discrepancy-checks', ...m00024 },
 	{ name: '00026-audit-deltas', ...m00026 },
-	{ name: '00030-judgement-index', ...m00030 }
+	{ name: '00030-judgement-index', ...m00030 },
+	{ name: '00031-audit-totals', ...m00031 }
 ];
 
 /** Tables the app may read and add to but never change: the audit trail. */

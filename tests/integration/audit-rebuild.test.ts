@@ -12,8 +12,8 @@
  * without them). The expected sums are added up in this file from the rows it wrote.
  */
 import { describe, it, expect, afterAll } from 'vitest';
-import { closeDb, exec, selectOne } from '../../src/lib/server/db';
-import { rebuildDailySums } from '../../src/lib/server/audit-stats/record';
+import { closeDb, exec, select, selectOne } from '../../src/lib/server/db';
+import { applyToDaily, foldDeltas, rebuildDailySums } from '../../src/lib/server/audit-stats/record';
 
 const FIELDS = ['raw', 'z', 'standard', 'scaled', 't', 'percentile'] as const;
 const BASE = 1_900_000_000; // fake protocol ids (no protocol row), far above the real ones
@@ -137,4 +137,65 @@ describe('rebuildDailySums at scale', () => {
 		expect(protocols).toHaveLength(45);
 		expect({ passes: Number(passes!.passes), fields: Number(passes!.fields) }).toEqual({ passes: 90, fields: 45 * 30 + 990 + 45 * 31 + 990 });
 	}, 180_000);
+
+	/** Every summary row of this file's pairs (test codes rb-…, scorers FIRST / SECOND), ordered, as strings. */
+	async function snapshot(): Promise<Record<string, string[]>> {
+		const tables: Array<[string, string]> = [
+			['agreement_daily', `test_code LIKE 'rb-%'`],
+			['agreement_weekly', `test_code LIKE 'rb-%'`],
+			['agreement_pair_daily', `test_code LIKE 'rb-%'`],
+			['agreement_total', `test_code LIKE 'rb-%'`],
+			['agreement_pair_total', `test_code LIKE 'rb-%'`],
+			['agreement_values', `test_code LIKE 'rb-%'`],
+			['audit_daily', `scorer_id IN (${FIRST}, ${SECOND})`]
+		];
+		const out: Record<string, string[]> = {};
+		for (const [table, where] of tables) {
+			const rows = await select<Record<string, unknown>>(`SELECT * FROM ${table} WHERE ${where}`);
+			out[table] = rows.map((r) => JSON.stringify(Object.entries(r).map(([k, v]) => [k, String(v)]))).sort();
+		}
+		return out;
+	}
+
+	it('the whole-range totals and the pre-binned values: rebuilt equals recorded protocol by protocol and folded in batches (issue 18)', async () => {
+		// the rows of the first test are still there (cleaned up after all); the summaries hold them, rebuilt
+		const rows = pairs();
+		const both = rows.filter((p) => p.y !== null);
+		// by hand from the rows: agreement_total has one cell per cell of the fixture (its band ids are
+		// unique), for each of scorer 0, FIRST and SECOND; agreement_values one row per distinct
+		// (field, test, x, y) of the pairs both passes entered, for each of the three
+		const distinct = new Set(both.map((p) => `${p.field}|${p.test}|${p.x}|${p.y}`)).size;
+		const totals = await selectOne<Record<string, number>>(
+			`SELECT (SELECT COUNT(*) FROM agreement_total WHERE test_code LIKE 'rb-%') AS cells,
+			        (SELECT SUM(pairs) FROM agreement_total WHERE test_code LIKE 'rb-%' AND scorer_id = 0) AS pairs,
+			        (SELECT SUM(one_sided) FROM agreement_total WHERE test_code LIKE 'rb-%' AND scorer_id = ${FIRST}) AS one_sided,
+			        (SELECT SUM(sxy) FROM agreement_pair_total WHERE test_code LIKE 'rb-%') AS sxy,
+			        (SELECT COUNT(*) FROM agreement_values WHERE test_code LIKE 'rb-%') AS value_rows,
+			        (SELECT SUM(pairs) FROM agreement_values WHERE test_code LIKE 'rb-%' AND scorer_id = ${SECOND}) AS value_pairs`
+		);
+		expect(Object.fromEntries(Object.entries(totals!).map(([k, v]) => [k, Number(v)]))).toEqual({
+			cells: 3 * (N / PER_CELL),
+			pairs: both.length,
+			one_sided: N - both.length,
+			sxy: both.reduce((s, p) => s + p.x * p.y!, 0),
+			value_rows: 3 * distinct,
+			value_pairs: both.length
+		});
+		const rebuilt = await snapshot();
+
+		// the same rows recorded the way submits record them: one protocol at a time into the delta
+		// tables, then folded by the worker's fold in small batches (several per table)
+		// (delta rows other files left are folded first, into rows this test does not read)
+		await foldDeltas();
+		await exec(`DELETE FROM agreement_daily WHERE test_code LIKE 'rb-%'`);
+		await exec(`DELETE FROM agreement_weekly WHERE test_code LIKE 'rb-%'`);
+		await exec(`DELETE FROM agreement_pair_daily WHERE test_code LIKE 'rb-%'`);
+		await exec(`DELETE FROM agreement_total WHERE test_code LIKE 'rb-%'`);
+		await exec(`DELETE FROM agreement_pair_total WHERE test_code LIKE 'rb-%'`);
+		await exec(`DELETE FROM agreement_values WHERE test_code LIKE 'rb-%'`);
+		await exec(`DELETE FROM audit_daily WHERE scorer_id IN (${FIRST}, ${SECOND})`);
+		for (const protocol of [...new Set(rows.map((p) => p.protocol))]) await applyToDaily({ fromProtocol: protocol, toProtocol: protocol }, 1);
+		await foldDeltas(7_000);
+		expect(await snapshot()).toEqual(rebuilt);
+	}, 300_000);
 });

@@ -575,3 +575,108 @@ describe('GET /api/v1/audit/[report]', () => {
 		}
 	});
 });
+
+describe('whole-range summaries: reports with no date filter (agreement_total, agreement_pair_total, agreement_values; issue 18)', () => {
+	// a scorer of this block only: the scorer filter isolates its pairs from every other file's rows
+	let solo = 0;
+	const ALL: AuditFilters = { ...NO_FILTERS };
+	beforeAll(async () => {
+		solo = (await exec(`INSERT INTO users (email, name, roles) VALUES (:email, 'Solo Whole-Range', 'scorer')`, { email: `solo.${Date.now()}@audit.test` }))
+			.insertId;
+		const sm = (raw: string | null, standard: string) => ({ 'speeded-match': { raw, standard } });
+		for (const [x, y, day] of [
+			[sm('30', '100'), sm('30', '100'), '2001-05-07'],
+			[sm('32', '110'), sm('30', '100'), '2001-06-11'],
+			[sm('25', '85'), sm(null, '90'), '2001-07-16']
+		] as const)
+			await protocol({ first: solo, second: ids.sam, day1: day, day2: day, s1: x as Scores, s2: y as Scores });
+	});
+	const soloOnly = (): AuditFilters => ({ ...ALL, scorer: solo });
+
+	it('the totals and the pre-binned values hold the fixture’s pairs (by hand)', async () => {
+		const values = await select<{ scorer_id: number; x: number; y: number; n: number }>(
+			`SELECT scorer_id, first_value AS x, second_value AS y, SUM(pairs) AS n FROM (
+			   SELECT scorer_id, first_value, second_value, pairs FROM agreement_values WHERE scorer_id = :solo AND field = 'standard'
+			   UNION ALL SELECT scorer_id, first_value, second_value, pairs FROM agreement_values_delta WHERE scorer_id = :solo AND field = 'standard') u
+			  GROUP BY scorer_id, x, y HAVING n <> 0 ORDER BY x, y`,
+			{ solo }
+		);
+		expect(values.map((v) => [Number(v.x), Number(v.y), Number(v.n)])).toEqual([
+			[85, 90, 1],
+			[100, 100, 1],
+			[110, 100, 1]
+		]);
+		await foldDeltas();
+		const total = await select<{ field: string; lx: string; ly: string; pairs: number; one_sided: number; exact: number; sd: number }>(
+			`SELECT field, first_label AS lx, second_label AS ly, pairs, one_sided, exact, sd FROM agreement_total
+			  WHERE scorer_id = :solo AND (pairs <> 0 OR one_sided <> 0) ORDER BY field, lx, ly`,
+			{ solo }
+		);
+		expect(total.map((r) => [r.field, r.lx, r.ly, Number(r.pairs), Number(r.one_sided), Number(r.exact), Number(r.sd)])).toEqual([
+			// raw: (30, 30), (32, 30) and 25 entered by the first pass only; no labels on raw scores
+			['raw', '', '', 2, 1, 1, 2],
+			['standard', 'average', 'average', 1, 0, 1, 0],
+			['standard', 'high_average', 'average', 1, 0, 0, 10],
+			['standard', 'low_average', 'average', 1, 0, 0, -5]
+		]);
+		const pairTotal = await selectOne<{ pairs: number; sd: number }>(
+			`SELECT SUM(pairs) AS pairs, SUM(sd) AS sd FROM agreement_pair_total WHERE field = 'standard' AND first_scorer_id = :solo AND second_scorer_id = :sam`,
+			{ solo, sam: ids.sam }
+		);
+		expect([Number(pairTotal!.pairs), Number(pairTotal!.sd)]).toEqual([3, 5]);
+	});
+
+	it('agreement, scorer pairs and Bland–Altman for the whole range: figures worked by hand', async () => {
+		const agreement = await runReport('agreement', soloOnly());
+		const standard = agreement.rows.find((r) => r.field === 'standard')!;
+		const raw = agreement.rows.find((r) => r.field === 'raw')!;
+		// standard: (100, 100), (110, 100), (85, 90): d = 0, 10, −5; bias 5/3; sd = √((25 + 625 + 400)/9 / 2) = √(1050/18)
+		expect(standard).toMatchObject({ n: 3, one_sided: 0, exact_agreements: 1 });
+		expect(standard.exact_percent as number).toBeCloseTo(100 / 3, 10);
+		// labels: (average, average), (high average, average), (low average, average): pₒ = 1/3, pₑ = (1·3)/9 = 1/3, κ = 0
+		expect(standard.label_agreement_percent as number).toBeCloseTo(100 / 3, 10);
+		expect(standard.kappa as number).toBeCloseTo(0, 12);
+		expect(standard.bias as number).toBeCloseTo(5 / 3, 12);
+		expect(standard.loa_upper as number).toBeCloseTo(5 / 3 + 1.96 * Math.sqrt(1050 / 18), 10);
+		// raw: (30, 30), (32, 30): n 2, one entered by the first pass only, one exact; bias 1
+		expect(raw).toMatchObject({ n: 2, one_sided: 1, exact_agreements: 1, exact_percent: 50, bias: 1 });
+
+		const pairs = await runReport('agreement-scorers', soloOnly());
+		expect(pairs.rows).toHaveLength(1);
+		expect(pairs.rows[0]).toMatchObject({ first_scorer_id: solo, second_scorer_id: ids.sam, n: 3, exact_agreements: 1 });
+		expect(pairs.rows[0].bias as number).toBeCloseTo(5 / 3, 12);
+
+		const ba = await runReport('bland-altman', soloOnly());
+		expect(ba.meta).toMatchObject({ n: 3 });
+		expect(ba.meta!.bias as number).toBeCloseTo(5 / 3, 12);
+		expect(ba.meta!.sd as number).toBeCloseTo(Math.sqrt(1050 / 18), 12);
+		expect(ba.rows).toEqual([
+			{ mean: 87.5, difference: -5, count: 1 },
+			{ mean: 100, difference: 0, count: 1 },
+			{ mean: 105, difference: 10, count: 1 }
+		]);
+	});
+
+	it('the whole-range reports equal the dated ones over a range holding every pair, before and after a fold and a second recording', async () => {
+		const dated: AuditFilters = { ...soloOnly(), from: '2001-05-01', to: '2001-07-31' };
+		const reports = ['agreement', 'agreement-scorers', 'bland-altman'] as const;
+		const want = await Promise.all(reports.map((r) => runReport(r, dated)));
+		const check = async () => {
+			const got = await Promise.all(reports.map((r) => runReport(r, soloOnly())));
+			expectClose(
+				got.map((r) => [r.rows, r.meta]),
+				want.map((r) => [r.rows, r.meta])
+			);
+		};
+		await check();
+		// recorded again: the old sums negated and the new ones appended to the delta tables, not yet folded
+		const last = mine[mine.length - 1];
+		await transaction((t) => recordSubmission(last, 1, t));
+		const unfolded = await selectOne<{ n: number }>('SELECT COUNT(*) AS n FROM agreement_values_delta WHERE scorer_id = :solo', { solo });
+		expect(Number(unfolded!.n)).toBeGreaterThan(0);
+		await check();
+		await foldDeltas();
+		expect(Number((await selectOne<{ n: number }>('SELECT COUNT(*) AS n FROM agreement_values_delta WHERE scorer_id = :solo', { solo }))!.n)).toBe(0);
+		await check();
+	});
+});

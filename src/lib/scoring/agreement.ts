@@ -114,22 +114,54 @@ const KAPPA_UNDEFINED = 'chance agreement is 1: both raters gave every pair one 
  * Unweighted kappa is the special case wᵢⱼ = [i = j].
  */
 export function cohenKappa(pairs: ReadonlyArray<readonly [string, string]>, options: KappaOptions = {}): KappaResult {
-	const weights = options.weights ?? 'none';
-	if (!KAPPA_WEIGHTS.includes(weights)) {
-		throw new AgreementInputError('weights', 'expected "none", "linear" or "quadratic"');
-	}
 	if (!Array.isArray(pairs)) throw new AgreementInputError('pairs', 'expected an array');
-	if (pairs.length === 0) throw new AgreementInputError('pairs', 'expected at least 1 pair');
 	pairs.forEach((pair, i) => {
 		if (!Array.isArray(pair) || pair.length !== 2) {
 			throw new AgreementInputError(`pairs[${i}]`, 'expected a pair of two labels');
 		}
+	});
+	return kappaOfCells(pairs, (pair) => [pair[0], pair[1], 1], 'pairs', options);
+}
+
+/**
+ * {@link cohenKappa} from a contingency table instead of a list of pairs: each cell is
+ * [first label, second label, number of pairs] (a label pair may appear in several cells; cells of
+ * 0 pairs are skipped). The same result, to the last bit, as `cohenKappa` on the list that repeats
+ * each cell's pair `count` times in cell order: the counts are whole numbers, so every sum is the
+ * same. For the Audit's agreement reports, whose summaries hold counts per label pair.
+ */
+export function cohenKappaFromCounts(cells: ReadonlyArray<readonly [string, string, number]>, options: KappaOptions = {}): KappaResult {
+	if (!Array.isArray(cells)) throw new AgreementInputError('cells', 'expected an array');
+	cells.forEach((cell, i) => {
+		if (!Array.isArray(cell) || cell.length !== 3) {
+			throw new AgreementInputError(`cells[${i}]`, 'expected [first label, second label, count]');
+		}
+		if (!Number.isSafeInteger(cell[2]) || cell[2] < 0) throw new AgreementInputError(`cells[${i}][2]`, 'expected a whole number of pairs, 0 or more');
+	});
+	return kappaOfCells(
+		cells.filter((c) => c[2] > 0),
+		(cell) => [cell[0], cell[1], cell[2]],
+		'cells',
+		options
+	);
+}
+
+/** The arithmetic of cohenKappa over weighted cells (a pair is a cell of count 1); `what` names the argument in errors. */
+function kappaOfCells<T>(items: ReadonlyArray<T>, cell: (item: T) => [unknown, unknown, number], what: string, options: KappaOptions): KappaResult {
+	const weights = options.weights ?? 'none';
+	if (!KAPPA_WEIGHTS.includes(weights)) {
+		throw new AgreementInputError('weights', 'expected "none", "linear" or "quadratic"');
+	}
+	if (items.length === 0) throw new AgreementInputError(what, `expected at least 1 ${what === 'pairs' ? 'pair' : 'pair in the cells'}`);
+	const cells = items.map(cell);
+	cells.forEach((c, i) => {
 		for (const j of [0, 1] as const) {
-			if (typeof pair[j] !== 'string') {
-				throw new AgreementInputError(`pairs[${i}][${j}]`, 'expected a string');
+			if (typeof c[j] !== 'string') {
+				throw new AgreementInputError(`${what}[${i}][${j}]`, 'expected a string');
 			}
 		}
 	});
+	const labelled = cells as Array<[string, string, number]>;
 
 	// The category list and each label's position in it.
 	const index = new Map<string, number>();
@@ -147,10 +179,10 @@ export function cohenKappa(pairs: ReadonlyArray<readonly [string, string]>, opti
 		if (weights !== 'none' && categories.length < 2) {
 			throw new AgreementInputError('categories', 'weighted kappa needs at least 2 categories');
 		}
-		pairs.forEach((pair, i) => {
+		labelled.forEach((c, i) => {
 			for (const j of [0, 1] as const) {
-				if (!index.has(pair[j])) {
-					throw new AgreementInputError(`pairs[${i}][${j}]`, `label "${pair[j]}" is not in categories`);
+				if (!index.has(c[j])) {
+					throw new AgreementInputError(`${what}[${i}][${j}]`, `label "${c[j]}" is not in categories`);
 				}
 			}
 		});
@@ -159,8 +191,8 @@ export function cohenKappa(pairs: ReadonlyArray<readonly [string, string]>, opti
 			throw new AgreementInputError('categories', `required with ${weights} weights (they need the order)`);
 		}
 		categories = [];
-		for (const pair of pairs) {
-			for (const label of pair) {
+		for (const c of labelled) {
+			for (const label of [c[0], c[1]]) {
 				if (!index.has(label)) {
 					index.set(label, categories.length);
 					categories.push(label);
@@ -170,16 +202,17 @@ export function cohenKappa(pairs: ReadonlyArray<readonly [string, string]>, opti
 	}
 
 	const q = categories.length;
-	const n = pairs.length;
+	let n = 0;
 	const counts = Array.from({ length: q }, () => new Array<number>(q).fill(0));
 	const rows = new Array<number>(q).fill(0);
 	const cols = new Array<number>(q).fill(0);
-	for (const [a, b] of pairs) {
+	for (const [a, b, c] of labelled) {
 		const i = index.get(a)!;
 		const j = index.get(b)!;
-		counts[i][j]++;
-		rows[i]++;
-		cols[j]++;
+		counts[i][j] += c;
+		rows[i] += c;
+		cols[j] += c;
+		n += c;
 	}
 
 	// Sum integer-weighted counts first and divide once, so that perfect agreement gives
@@ -411,6 +444,34 @@ export function blandAltman(pairs: ReadonlyArray<readonly [number, number]>): Bl
 	const bias = sum / n;
 	let ss = 0;
 	for (const [x, y] of pairs) ss += (x - y - bias) ** 2;
+	const sd = Math.sqrt(ss / (n - 1));
+	return { bias, sd, lower: bias - LIMITS_Z * sd, upper: bias + LIMITS_Z * sd, n };
+}
+
+/**
+ * {@link blandAltman} from grouped pairs: each cell is [x, y, number of pairs with those two
+ * values]. Each pair is still added one at a time, in cell order, so the result is the same to the
+ * last bit as `blandAltman` on the list that repeats each cell's pair `count` times — without
+ * building that list (the Audit's plot groups identical pairs in SQL: a few thousand cells for
+ * hundreds of thousands of pairs).
+ */
+export function blandAltmanFromCounts(cells: ReadonlyArray<readonly [number, number, number]>): BlandAltmanResult {
+	if (!Array.isArray(cells)) throw new AgreementInputError('cells', 'expected an array');
+	let n = 0;
+	cells.forEach((cell, i) => {
+		if (!Array.isArray(cell) || cell.length !== 3) throw new AgreementInputError(`cells[${i}]`, 'expected [x, y, count]');
+		for (const j of [0, 1] as const) {
+			if (typeof cell[j] !== 'number' || !Number.isFinite(cell[j])) throw new AgreementInputError(`cells[${i}][${j}]`, 'expected a finite number');
+		}
+		if (!Number.isSafeInteger(cell[2]) || cell[2] < 0) throw new AgreementInputError(`cells[${i}][2]`, 'expected a whole number of pairs, 0 or more');
+		n += cell[2];
+	});
+	if (n < 2) throw new AgreementInputError('cells', `expected at least 2 pairs, got ${n}`);
+	let sum = 0;
+	for (const [x, y, c] of cells) for (let i = 0; i < c; i++) sum += x - y;
+	const bias = sum / n;
+	let ss = 0;
+	for (const [x, y, c] of cells) for (let i = 0; i < c; i++) ss += (x - y - bias) ** 2;
 	const sd = Math.sqrt(ss / (n - 1));
 	return { bias, sd, lower: bias - LIMITS_Z * sd, upper: bias + LIMITS_Z * sd, n };
 }

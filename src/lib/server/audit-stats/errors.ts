@@ -150,33 +150,49 @@ export async function kindRates(f: AuditFilters, names: Names): Promise<KindRow[
 export async function groupRates(f: AuditFilters, names: Names, by: 'test' | 'domain' | 'class'): Promise<GroupRow[]> {
 	const we = errorWhere(f);
 	const wf = dailyWhere(f, 'tests');
-	const errExpr = by === 'test' ? 'e.test_code' : by === 'domain' ? 'e.domain' : `IF(e.field = 'raw', 'raw', 'derived')`;
-	const errs = await select<{ scorer_id: number; g: string; errors: number }>(
-		`SELECT e.scorer_id, ${errExpr} AS g, COUNT(*) AS errors FROM error_events e ${we.sql} GROUP BY e.scorer_id, g`,
-		we.params
-	);
-	let denoms: Array<{ scorer_id: number; g: string; fields: number }>;
-	if (by === 'class') {
-		const rows = await select<{ scorer_id: number; raw: number; derived: number }>(
-			sumWithDeltas(
-				'audit_daily',
-				wf,
-				'd',
-				[['scorer_id', 'd.scorer_id']],
-				[
-					['raw', 'SUM(d.raw_fields)'],
-					['derived', 'SUM(d.derived_fields)']
-				]
-			),
-			wf.params
-		);
-		denoms = rows.flatMap((r) => [
-			{ scorer_id: r.scorer_id, g: 'raw', fields: num(r.raw) },
-			{ scorer_id: r.scorer_id, g: 'derived', fields: num(r.derived) }
-		]);
-	} else {
+	// the errors and the denominators are read at once; each errors query groups in the order of an
+	// index (error_events_test starts test_code, scorer_id; the raw/derived split is two sums per
+	// scorer), so MariaDB reads the index in order instead of sorting every event through a
+	// temporary table (2-3 times faster at 89,000 events; issue 18)
+	const errsQuery =
+		by === 'test'
+			? select<{ scorer_id: number; g: string; errors: number }>(
+					`SELECT e.test_code AS g, e.scorer_id, COUNT(*) AS errors FROM error_events e ${we.sql} GROUP BY e.test_code, e.scorer_id`,
+					we.params
+				)
+			: by === 'domain'
+				? select<{ scorer_id: number; g: string; errors: number }>(
+						`SELECT e.scorer_id, e.domain AS g, COUNT(*) AS errors FROM error_events e ${we.sql} GROUP BY e.scorer_id, g`,
+						we.params
+					)
+				: select<{ scorer_id: number; raw: number; derived: number }>(
+						`SELECT e.scorer_id, SUM(e.field = 'raw') AS raw, SUM(e.field <> 'raw') AS derived FROM error_events e ${we.sql} GROUP BY e.scorer_id`,
+						we.params
+					).then((rows) =>
+						rows.flatMap((r) => (['derived', 'raw'] as const).filter((g) => num(r[g]) > 0).map((g) => ({ scorer_id: r.scorer_id, g, errors: num(r[g]) })))
+					);
+	const denomsQuery = async (): Promise<Array<{ scorer_id: number; g: string; fields: number }>> => {
+		if (by === 'class') {
+			const rows = await select<{ scorer_id: number; raw: number; derived: number }>(
+				sumWithDeltas(
+					'audit_daily',
+					wf,
+					'd',
+					[['scorer_id', 'd.scorer_id']],
+					[
+						['raw', 'SUM(d.raw_fields)'],
+						['derived', 'SUM(d.derived_fields)']
+					]
+				),
+				wf.params
+			);
+			return rows.flatMap((r) => [
+				{ scorer_id: r.scorer_id, g: 'raw', fields: num(r.raw) },
+				{ scorer_id: r.scorer_id, g: 'derived', fields: num(r.derived) }
+			]);
+		}
 		const col = by === 'test' ? 'd.test_code' : 'd.domain';
-		denoms = await select(
+		return select(
 			sumWithDeltas(
 				'audit_daily',
 				wf,
@@ -189,7 +205,8 @@ export async function groupRates(f: AuditFilters, names: Names, by: 'test' | 'do
 			),
 			wf.params
 		);
-	}
+	};
+	const [errs, denoms] = await Promise.all([errsQuery, denomsQuery()]);
 	const fields = new Map(denoms.map((r) => [`${r.scorer_id}|${r.g}`, num(r.fields)]));
 	const count = new Map(errs.map((r) => [`${r.scorer_id}|${r.g}`, num(r.errors)]));
 	const scorerIds = [...new Set([...denoms.map((r) => Number(r.scorer_id)), ...errs.map((r) => Number(r.scorer_id))])];

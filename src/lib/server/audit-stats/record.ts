@@ -5,7 +5,8 @@
  *   recordSubmission(protocolId, round, t)  once both passes of the round are submitted
  *                                           → audit_fields, agreement_pairs (row level) and the
  *                                             daily sums audit_daily, agreement_daily,
- *                                             agreement_weekly, agreement_pair_daily
+ *                                             agreement_weekly, agreement_pair_daily and the
+ *                                             pre-binned agreement_values (00031)
  *   recordResolution(discrepancyId, t)      after a discrepancy row was resolved (or re-resolved)
  *                                           → error_events
  *
@@ -16,7 +17,8 @@
  * old sums negated) are appended to the `_delta` table beside each summary, never added to the
  * summary row in place, so concurrent submits of one day do not wait on one hot row until the
  * other commits. The reports add summary and delta rows (sql.ts, `sumWithDeltas`); `foldDeltas()`,
- * run by the worker, moves delta rows into the summaries without changing any sum.
+ * run by the worker, moves delta rows into the summaries without changing any sum, and adds the
+ * weekly and pair-daily ones to the whole-range totals too (sql.ts, TOTALS; 00031).
  */
 import type { InferCreationAttributes, Transaction } from 'sequelize';
 import { exec, select, selectOne, jsonValue, transaction } from '../db';
@@ -25,7 +27,7 @@ import { parseEntered, FIELDS, type Field, type DerivedField } from '../../scori
 import { models } from '../models';
 import { AgreementPair, AuditField, ErrorEvent, SUMMARY_MODELS } from '../models/audit-stats';
 import type { StatField } from '../models/audit-stats';
-import { SUMMARIES, SUMMARY_TABLES, type SummaryTable } from './sql';
+import { SUMMARIES, SUMMARY_TABLES, TOTALS, TOTAL_TABLES, type SummaryTable } from './sql';
 
 type PassScores = Record<string, Partial<Record<Field, string | number | null>>>;
 
@@ -256,10 +258,15 @@ export async function applyToDaily(
 	t?: Transaction | null
 ): Promise<void> {
 	const p = { ...scope, sign };
+	// A rebuild's slice groups up to a few hundred thousand rows per statement: let that grouping stay
+	// in memory (up to 256 MB for this statement only). Grouped in an on-disk temporary table, it failed
+	// on this MariaDB 10.11 ("Error on delete of '/tmp/#sql-temptable….MAI'", errno 6) on the bench's
+	// data and on audit-rebuild.test.ts's 100,000 pairs in 45 protocols (agreement_values, 226,800 groups).
+	const inMemory = 'fromProtocol' in scope ? 'SET STATEMENT tmp_table_size = 268435456, max_heap_table_size = 268435456 FOR ' : '';
 	const whereOf = (alias: string) =>
 		'fromProtocol' in scope ? `${alias}.protocol_id BETWEEN :fromProtocol AND :toProtocol` : `${alias}.protocol_id = :protocolId AND ${alias}.round = :round`;
 	await exec(
-		`INSERT INTO audit_daily_delta (day, scorer_id, battery_id, test_code, domain, passes, fields_entered, raw_fields, derived_fields)
+		`${inMemory}INSERT INTO audit_daily_delta (day, scorer_id, battery_id, test_code, domain, passes, fields_entered, raw_fields, derived_fields)
 		 SELECT DATE(a.entered_at), a.scorer_id, a.battery_id, a.test_code, MAX(a.domain), :sign * COUNT(*), :sign * SUM(a.fields_entered),
 		        :sign * SUM(a.raw_fields), :sign * SUM(a.derived_fields)
 		   FROM audit_fields a WHERE ${whereOf('a')}
@@ -281,7 +288,7 @@ export async function applyToDaily(
 	const threeTimes = `agreement_pairs g JOIN (SELECT 0 AS k UNION ALL SELECT 1 UNION ALL SELECT 2) r`;
 	for (const [table, col, bucket] of buckets) {
 		await exec(
-			`INSERT INTO ${table}_delta (scorer_id, ${col}, battery_id, test_code, field, first_label, second_label, ${cols})
+			`${inMemory}INSERT INTO ${table}_delta (scorer_id, ${col}, battery_id, test_code, field, first_label, second_label, ${cols})
 			 SELECT ${asScorer}, ${bucket}, g.battery_id, g.test_code, g.field, COALESCE(g.first_label, ''), COALESCE(g.second_label, ''), ${sums}
 			   FROM ${threeTimes} WHERE ${gWhere}
 			  GROUP BY 1, 2, 3, 4, 5, 6, 7`,
@@ -290,10 +297,21 @@ export async function applyToDaily(
 		);
 	}
 	await exec(
-		`INSERT INTO agreement_pair_daily_delta (field, day, first_scorer_id, second_scorer_id, battery_id, test_code, first_label, second_label, ${cols})
+		`${inMemory}INSERT INTO agreement_pair_daily_delta (field, day, first_scorer_id, second_scorer_id, battery_id, test_code, first_label, second_label, ${cols})
 		 SELECT g.field, DATE(g.entered_at), g.first_scorer_id, g.second_scorer_id, g.battery_id, g.test_code, COALESCE(g.first_label, ''), COALESCE(g.second_label, ''), ${sums}
 		   FROM agreement_pairs g WHERE ${gWhere}
 		  GROUP BY 1, 2, 3, 4, 5, 6, 7, 8`,
+		p,
+		t
+	);
+	// the Bland–Altman points pre-binned (00031): pairs both passes entered, for everyone (0) and for
+	// each scorer once (the report's scorer filter matches either pass)
+	await exec(
+		`${inMemory}INSERT INTO agreement_values_delta (scorer_id, field, battery_id, test_code, first_value, second_value, pairs)
+		 SELECT ${asScorer}, g.field, g.battery_id, g.test_code, g.first_value, g.second_value, :sign * COUNT(*)
+		   FROM ${threeTimes} ON r.k < 2 OR g.second_scorer_id <> g.first_scorer_id
+		  WHERE ${gWhere} AND g.first_value IS NOT NULL AND g.second_value IS NOT NULL
+		  GROUP BY 1, 2, 3, 4, 5, 6`,
 		p,
 		t
 	);
@@ -316,6 +334,7 @@ export async function rebuildDailySums(opts: { slice?: number; foldBatch?: numbe
 		await exec(`DELETE FROM ${table}`);
 		await exec(`DELETE FROM ${table}_delta`);
 	}
+	for (const table of TOTAL_TABLES) await exec(`DELETE FROM ${table}`);
 	// slices of `slice` protocol ids from the next id present (ids can be sparse)
 	for (let after = -1; ;) {
 		const next = await selectOne<{ id: number | null }>(
@@ -361,6 +380,19 @@ export async function foldDeltas(limit = 5000): Promise<number> {
 					{ ids },
 					t
 				);
+				// the whole-range totals folded from this summary (sql.ts, TOTALS): the same rows without their date
+				for (const total of TOTAL_TABLES.filter((x) => TOTALS[x].from === table)) {
+					const totalKeys = TOTALS[total].keys;
+					await exec(
+						`INSERT INTO ${total} (${[...totalKeys, ...measures].join(', ')})
+						 SELECT ${[...totalKeys, ...measures.map((c) => `SUM(${c})`)].join(', ')}
+						   FROM ${table}_delta WHERE id IN (:ids)
+						  GROUP BY ${totalKeys.join(', ')}
+						 ON DUPLICATE KEY UPDATE ${measures.map((c) => `${c} = ${c} + VALUES(${c})`).join(', ')}`,
+						{ ids },
+						t
+					);
+				}
 				await delta.destroy({ where: { id: ids }, transaction: t });
 				return ids.length;
 			});

@@ -21,10 +21,29 @@ export const SUMMARIES = {
 		keys: ['field', 'day', 'first_scorer_id', 'second_scorer_id', 'battery_id', 'test_code', 'first_label', 'second_label'],
 		extra: [],
 		measures: AGREEMENT_MEASURES
-	}
+	},
+	/** The Bland–Altman plot pre-binned, whole range (00031): pairs both passes entered, per scorer (0 = all; s = either pass, once). */
+	agreement_values: { keys: ['scorer_id', 'field', 'battery_id', 'test_code', 'first_value', 'second_value'], extra: [], measures: ['pairs'] }
 } as const satisfies Record<string, { keys: readonly string[]; extra: readonly string[]; measures: readonly string[] }>;
 export type SummaryTable = keyof typeof SUMMARIES;
 export const SUMMARY_TABLES = Object.keys(SUMMARIES) as SummaryTable[];
+
+/**
+ * Whole-range totals (00031) kept by the fold with no delta table of their own: when `foldDeltas`
+ * moves delta rows of `from` into it, it adds the same rows, grouped on `keys` (the summary's key
+ * without its date), to the total in the same transaction. So at every moment a total plus the
+ * delta rows of `from` not yet folded are the sums of every row, as `from` plus its delta rows are;
+ * the reports read them that way when no date filter applies (`sumTotalWithDeltas`).
+ */
+export const TOTALS = {
+	agreement_total: { from: 'agreement_weekly', keys: ['scorer_id', 'battery_id', 'test_code', 'field', 'first_label', 'second_label'] },
+	agreement_pair_total: {
+		from: 'agreement_pair_daily',
+		keys: ['field', 'first_scorer_id', 'second_scorer_id', 'battery_id', 'test_code', 'first_label', 'second_label']
+	}
+} as const satisfies Record<string, { from: SummaryTable; keys: readonly string[] }>;
+export type TotalTable = keyof typeof TOTALS;
+export const TOTAL_TABLES = Object.keys(TOTALS) as TotalTable[];
 
 /**
  * Sums over a summary and its delta rows not yet folded, filtered alike: each table is grouped on
@@ -33,10 +52,19 @@ export const SUMMARY_TABLES = Object.keys(SUMMARIES) as SummaryTable[];
  * one statement sees either side of it. `groups` and `sums` are [name, expression on `alias`].
  */
 export function sumWithDeltas(table: SummaryTable, where: Where, alias: string, groups: Array<[string, string]>, sums: Array<[string, string]>): string {
+	return sumOfBoth(table, `${table}_delta`, where, alias, groups, sums);
+}
+
+/** `sumWithDeltas` over a whole-range total (TOTALS) and the delta rows of the summary it is folded from. */
+export function sumTotalWithDeltas(table: TotalTable, where: Where, alias: string, groups: Array<[string, string]>, sums: Array<[string, string]>): string {
+	return sumOfBoth(table, `${TOTALS[table].from}_delta`, where, alias, groups, sums);
+}
+
+function sumOfBoth(table: string, delta: string, where: Where, alias: string, groups: Array<[string, string]>, sums: Array<[string, string]>): string {
 	const names = groups.map(([n]) => n).join(', ');
 	const branch = (t: string) => `SELECT ${[...groups, ...sums].map(([n, e]) => `${e} AS ${n}`).join(', ')} FROM ${t} ${alias} ${where.sql} GROUP BY ${names}`;
 	return `SELECT ${[...groups.map(([n]) => n), ...sums.map(([n]) => `SUM(${n}) AS ${n}`)].join(', ')}
-	  FROM (${branch(table)} UNION ALL ${branch(`${table}_delta`)}) u GROUP BY ${names}`;
+	  FROM (${branch(table)} UNION ALL ${branch(delta)}) u GROUP BY ${names}`;
 }
 
 export interface Where {
@@ -155,5 +183,19 @@ export function pairsWhere(f: AuditFilters, field: string, alias = 'g'): Where {
 			[f.scorer !== null, `(${a}.first_scorer_id = :scorer OR ${a}.second_scorer_id = :scorer)`]
 		],
 		{ ...common(f), field }
+	);
+}
+
+/** agreement_values v (the pre-binned Bland–Altman points, whole range) for one field: scorer_id 0 = every pair, s = pairs s entered either pass of. */
+export function valuesWhere(f: AuditFilters, field: string, alias = 'v'): Where {
+	const a = alias;
+	return build(
+		[
+			[true, `${a}.scorer_id = :scorerKey`],
+			[true, `${a}.field = :field`],
+			[f.battery !== null, `${a}.battery_id = :battery`],
+			[f.test !== null, `${a}.test_code = :test`]
+		],
+		{ ...common(f), field, scorerKey: f.scorer ?? 0 }
 	);
 }

@@ -4,7 +4,9 @@
  * contributed, written and replaced by src/lib/server/audit-stats/record.ts.
  *
  * And of the daily summaries (00006: audit_daily, agreement_daily, agreement_weekly,
- * agreement_pair_daily) and their append-only `_delta` tables (00026), kept by record.ts. Those are
+ * agreement_pair_daily) and their append-only `_delta` tables (00026), kept by record.ts; and of
+ * the whole-range summaries (00031: agreement_total, agreement_pair_total, agreement_values and
+ * agreement_values_delta). Those are
  * added to and read by aggregate SQL (INSERT … SELECT … GROUP BY, SUM over ranges: raw SQL where it
  * earns its place); the models serve the row-by-row work (the fold's locking read and delete by id,
  * tests) and give the columns one typed definition.
@@ -129,15 +131,33 @@ export class AgreementPairDailyDelta extends Model<
 	Optional<Delta<AgreementPairDailyRow>, 'id' | Measures<AgreementPairDailyRow>>
 > {}
 
+/** The Bland–Altman points pre-binned over the whole range (00031): scorer (0 = all) × field × battery × test × both values → pairs. */
+type AgreementValuesRow = {
+	scorer_id: number;
+	field: Field;
+	battery_id: number;
+	test_code: string;
+	first_value: number;
+	second_value: number;
+	pairs: number;
+};
+export class AgreementValues extends Model<AgreementValuesRow, Optional<AgreementValuesRow, 'pairs'>> {}
+export class AgreementValuesDelta extends Model<Delta<AgreementValuesRow>, Optional<Delta<AgreementValuesRow>, 'id' | 'pairs'>> {}
+/** agreement_weekly without the week (00031), added to by the fold of agreement_weekly_delta (sql.ts, TOTALS). */
+export class AgreementTotal extends Model<Omit<AgreementWeeklyRow, 'week'>, Created<Omit<AgreementWeeklyRow, 'week'>>> {}
+/** agreement_pair_daily without the day (00031), added to by the fold of agreement_pair_daily_delta. */
+export class AgreementPairTotal extends Model<Omit<AgreementPairDailyRow, 'day'>, Created<Omit<AgreementPairDailyRow, 'day'>>> {}
+
 /** Each summary's model and its delta table's model, by summary table name (sql.ts, SUMMARIES). */
 export const SUMMARY_MODELS: Record<
-	'audit_daily' | 'agreement_daily' | 'agreement_weekly' | 'agreement_pair_daily',
+	'audit_daily' | 'agreement_daily' | 'agreement_weekly' | 'agreement_pair_daily' | 'agreement_values',
 	{ summary: ModelStatic<Model>; delta: ModelStatic<Model> }
 > = {
 	audit_daily: { summary: AuditDaily, delta: AuditDailyDelta },
 	agreement_daily: { summary: AgreementDaily, delta: AgreementDailyDelta },
 	agreement_weekly: { summary: AgreementWeekly, delta: AgreementWeeklyDelta },
-	agreement_pair_daily: { summary: AgreementPairDaily, delta: AgreementPairDailyDelta }
+	agreement_pair_daily: { summary: AgreementPairDaily, delta: AgreementPairDailyDelta },
+	agreement_values: { summary: AgreementValues, delta: AgreementValuesDelta }
 };
 
 const uint = (extra: object = {}) => ({ type: DataTypes.INTEGER.UNSIGNED, allowNull: false, ...extra });
@@ -271,11 +291,22 @@ export function initAuditStatsModels(sequelize: Sequelize): void {
 			['field', 'day', 'first_scorer_id', 'second_scorer_id', 'battery_id', 'test_code', 'first_label', 'second_label']
 		]
 	];
+	const values = {
+		scorer_id: uint(),
+		field: scoreField(),
+		battery_id: uint(),
+		test_code: code(),
+		first_value: { type: DataTypes.DOUBLE, allowNull: false },
+		second_value: { type: DataTypes.DOUBLE, allowNull: false },
+		pairs: int()
+	};
+	tables.push([AgreementValues, 'agreement_values', values, ['scorer_id', 'field', 'battery_id', 'test_code', 'first_value', 'second_value']]);
 	const deltas: Record<string, ModelStatic<Model>> = {
 		audit_daily: AuditDailyDelta,
 		agreement_daily: AgreementDailyDelta,
 		agreement_weekly: AgreementWeeklyDelta,
-		agreement_pair_daily: AgreementPairDailyDelta
+		agreement_pair_daily: AgreementPairDailyDelta,
+		agreement_values: AgreementValuesDelta
 	};
 	for (const [model, tableName, columns, keys] of tables) {
 		// fresh column definitions per model: Sequelize writes each attribute's name into its own
@@ -283,4 +314,27 @@ export function initAuditStatsModels(sequelize: Sequelize): void {
 		model.init(summaryColumns(copy(), keys, false), { sequelize, tableName, timestamps: false });
 		deltas[tableName].init(summaryColumns(copy(), keys, true), { sequelize, tableName: `${tableName}_delta`, timestamps: false });
 	}
+	// the whole-range totals (00031): the weekly / daily columns without the date, no delta twin
+	const withoutDate = (columns: Record<string, object>, date: string) =>
+		Object.fromEntries(
+			Object.entries(columns)
+				.filter(([n]) => n !== date)
+				.map(([n, d]) => [n, { ...d }])
+		);
+	AgreementTotal.init(
+		summaryColumns(withoutDate(agreement('week'), 'week'), ['scorer_id', 'battery_id', 'test_code', 'field', 'first_label', 'second_label'], false),
+		{
+			sequelize,
+			tableName: 'agreement_total',
+			timestamps: false
+		}
+	);
+	AgreementPairTotal.init(
+		summaryColumns(
+			withoutDate(pairDaily, 'day'),
+			['field', 'first_scorer_id', 'second_scorer_id', 'battery_id', 'test_code', 'first_label', 'second_label'],
+			false
+		),
+		{ sequelize, tableName: 'agreement_pair_total', timestamps: false }
+	);
 }
