@@ -471,6 +471,9 @@ export async function seedAuditData(opts: { protocols: number; weeks?: number; s
 			passes: entries.map((s, k) => ({ scorer: String(k), scores: s })) as PassInput[]
 		});
 		result.discrepancies.forEach((d, pos) => {
+			// a composite's discrepancy has no test of its own and no true value here (the seed's batteries
+			// produce none; before this guard one would have failed on truth[undefined])
+			if (d.test === undefined) return;
 			const did = baseDisc + ++discCount;
 			const correct = truth[d.test][d.field];
 			const value = d.value === null ? null : String(d.value);
@@ -503,7 +506,7 @@ export async function seedAuditData(opts: { protocols: number; weeks?: number; s
 				const k = which === 'first' ? 0 : 1;
 				// as recordResolution: the kept value contradicts the recomputation → the reviewer's judgement
 				const judgement = d.expected !== null && !sameValue(correct, String(d.expected), d.field) ? 1 : 0;
-				events.push([did, pid, scorerIds[[a, b][k]], battery.id, d.test, DOMAIN.get(d.test), d.field, d.kind, ats[k], judgement]);
+				events.push([did, pid, scorerIds[[a, b][k]], battery.id, d.test, DOMAIN.get(d.test) ?? 'unknown', d.field, d.kind, ats[k], judgement]);
 			}
 		});
 		if ((i + 1) % FLUSH_EVERY === 0) await flush();
