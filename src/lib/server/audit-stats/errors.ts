@@ -16,6 +16,7 @@ import type { AuditFilters } from './filters';
 import { dailyWhere, errorWhere, sumWithDeltas } from './sql';
 import type { RateCells, ScorerRow, KindRow, GroupRow, WeekRow } from '../../audit/types';
 import { isoWeek, utcDay } from '../../dates';
+import { COMPOSITE_DOMAIN, COMPOSITE_DOMAIN_NAME } from './record';
 
 export type { RateCells, ScorerRow, KindRow, GroupRow, WeekRow };
 
@@ -34,15 +35,19 @@ export interface Names {
 }
 
 export async function loadNames(): Promise<Names> {
-	const [users, tests, domains] = await Promise.all([
+	const [users, tests, composites, domains] = await Promise.all([
 		select<{ id: number; name: string }>('SELECT id, name FROM users'),
 		select<{ code: string; name: string }>('SELECT code, name FROM tests ORDER BY is_current ASC, version ASC'),
+		// a composite's fields are recorded under its code, as a test's (the newest battery's name wins)
+		select<{ code: string; name: string }>('SELECT code, name FROM composites ORDER BY id ASC'),
 		select<{ code: string; name: string }>('SELECT code, name FROM domains')
 	]);
+	const testNames = new Map(composites.map((c) => [c.code, c.name]));
+	for (const t of tests) testNames.set(t.code, t.name); // a test's name wins over a composite's of the same code
 	return {
 		scorers: new Map(users.map((u) => [Number(u.id), u.name])),
-		tests: new Map(tests.map((t) => [t.code, t.name])),
-		domains: new Map(domains.map((d) => [d.code, d.name]))
+		tests: testNames,
+		domains: new Map([[COMPOSITE_DOMAIN, COMPOSITE_DOMAIN_NAME], ...domains.map((d): [string, string] => [d.code, d.name])])
 	};
 }
 

@@ -29,7 +29,7 @@ import { AgreementPair, AuditField, ErrorEvent, SUMMARY_MODELS } from '../models
 import type { StatField } from '../models/audit-stats';
 import { SUMMARIES, SUMMARY_TABLES, TOTALS, TOTAL_TABLES, type SummaryTable } from './sql';
 
-type PassScores = Record<string, Partial<Record<Field, string | number | null>>>;
+type PassScores = Record<string, Partial<Record<Field | 'sum', string | number | null>>>;
 
 /** What recordSubmission reads of a pass (columns of `passes`). */
 type PassRead = {
@@ -63,6 +63,39 @@ function isEntered(v: unknown): boolean {
 	if (v === null || v === undefined) return false;
 	if (typeof v === 'string') return v.trim() !== '';
 	return true;
+}
+
+/**
+ * The audit's domain of a composite's fields. A composite is a field group of its own on the Audit
+ * screen ("Composites"), not filed under one of its parts' domains: its parts often come from
+ * several domains, picking one would be arbitrary, and filing it under each would count its fields
+ * (and errors) more than once, so the domain table would no longer add up to the overall figures.
+ * The leading underscore keeps it apart from every catalog domain code (`CODE_RE` starts with a
+ * letter or digit).
+ */
+export const COMPOSITE_DOMAIN = '_composites';
+export const COMPOSITE_DOMAIN_NAME = 'Composites';
+
+/**
+ * The audit's domain of a scored code. Every code in a pass's scores is one of the protocol's tests
+ * or composites (`cleanScores` refuses any other), so a code that is not a test is a composite.
+ */
+export function domainOf(domains: Map<string, string>, code: string): string {
+	return domains.get(code) ?? COMPOSITE_DOMAIN;
+}
+
+/**
+ * The fields one test or composite of a pass counts in the audit: its raw score, and as derived its
+ * derived scores plus — for a composite — the sum of its parts (the scorer's own arithmetic, which
+ * the review checks and charges like a derived score). So the per-test rows add up to the pass's own
+ * `fields_entered` (which counts the sums too) and the "Raw and derived scores" table counts what its
+ * errors count (errors.ts classes every field but `raw` as derived).
+ */
+export function fieldCounts(values: Partial<Record<Field | 'sum', unknown>> | undefined): { raw: number; derived: number } {
+	const v = values ?? {};
+	const raw = isEntered(v.raw) ? 1 : 0;
+	const derived = FIELDS.filter((f) => f !== 'raw' && isEntered(v[f])).length + (isEntered(v.sum) ? 1 : 0);
+	return { raw, derived };
 }
 
 async function domainsFor(codes: string[], t: Transaction): Promise<Map<string, string>> {
@@ -157,14 +190,12 @@ export async function recordSubmission(protocolId: number, round: number, t: Tra
 		// the whole pass: the workflow's own count is the denominator of the overall rates
 		fieldRows.push({ ...common, test_code: '', domain: '', fields_entered: Number(pass.fields_entered) || 0, raw_fields: 0, derived_fields: 0 });
 		for (const code of Object.keys(scores)) {
-			const values = scores[code] ?? {};
-			const raw = isEntered(values.raw) ? 1 : 0;
-			const derived = FIELDS.filter((f) => f !== 'raw' && isEntered(values[f])).length;
+			const { raw, derived } = fieldCounts(scores[code]);
 			if (raw + derived === 0) continue;
 			fieldRows.push({
 				...common,
 				test_code: code,
-				domain: domains.get(code) ?? 'unknown',
+				domain: domainOf(domains, code),
 				fields_entered: raw + derived,
 				raw_fields: raw,
 				derived_fields: derived
@@ -183,7 +214,7 @@ export async function recordSubmission(protocolId: number, round: number, t: Tra
 				...round_,
 				battery_id: batteryId,
 				test_code: code,
-				domain: domains.get(code) ?? 'unknown',
+				domain: domainOf(domains, code),
 				field,
 				first_scorer_id: first.scorer_id,
 				second_scorer_id: second.scorer_id,
@@ -497,7 +528,7 @@ export async function recordResolution(discrepancyId: number, t: Transaction): P
 		{ protocolId: d.protocol_id, round: d.round },
 		t
 	);
-	const domain = (await domainsFor([d.test_code], t)).get(d.test_code) ?? 'unknown';
+	const domain = domainOf(await domainsFor([d.test_code], t), d.test_code);
 	const events = against.flatMap((which) => {
 		const pass = passes.find((p) => p.which === which);
 		if (!pass) return [];

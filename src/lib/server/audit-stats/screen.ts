@@ -41,7 +41,7 @@ export async function openCount(f: AuditFilters): Promise<number> {
 export async function judgementRows(f: AuditFilters): Promise<JudgementRow[]> {
 	const w = errorWhere(f, 'e');
 	const rows = await select<Omit<JudgementRow, 'field_name' | 'kind_name'>>(
-		`SELECT e.id, e.entered_at, x.code AS protocol, e.protocol_id, e.test_code, COALESCE(t.name, e.test_code) AS test, e.field, e.kind,
+		`SELECT e.id, e.entered_at, x.code AS protocol, e.protocol_id, e.test_code, COALESCE(t.name, c.name, e.test_code) AS test, e.field, e.kind,
 		        u.name AS scorer, d.resolved_value AS kept, d.expected AS recomputed, d.note, r.name AS reviewer, d.resolved_at
 		   FROM error_events e
 		   JOIN discrepancies d ON d.id = e.discrepancy_id
@@ -50,6 +50,7 @@ export async function judgementRows(f: AuditFilters): Promise<JudgementRow[]> {
 		   LEFT JOIN users u ON u.id = e.scorer_id
 		   LEFT JOIN users r ON r.id = d.resolved_by
 		   LEFT JOIN (SELECT code, MAX(name) AS name FROM tests GROUP BY code) t ON t.code = e.test_code
+		   LEFT JOIN (SELECT code, MAX(name) AS name FROM composites GROUP BY code) c ON c.code = e.test_code
 		   ${w.sql ? `${w.sql} AND e.judgement = 1` : 'WHERE e.judgement = 1'}
 		  ORDER BY e.entered_at DESC, e.id DESC LIMIT 500`,
 		w.params

@@ -38,7 +38,7 @@ export class AuditField extends Model<InferAttributes<AuditField>, InferCreation
 	declare which: 'first' | 'second';
 	declare scorer_id: number;
 	declare battery_id: number;
-	/** The test's domain code ('' on the whole-pass row, 'unknown' when the test has none). */
+	/** The test's domain code ('' on the whole-pass row, `COMPOSITE_DOMAIN` of record.ts for a composite). */
 	declare domain: string;
 	declare fields_entered: number;
 	declare raw_fields: number;

@@ -33,8 +33,7 @@ import { protocolFor, type Actor, type ProtocolRow, type Duty } from '../protoco
 import { engineInput, storeDiscrepancies, type Scores } from '../protocols/passes';
 import { conflict, invalid, notFound, ServiceError } from '../errors';
 import { enqueueMail } from '../mail/outbox';
-import { insertMany, applyToDaily, AUDIT_FIELDS_COLUMNS } from '../audit-stats/record';
-import { FIELDS } from '../../scoring/scales';
+import { insertMany, applyToDaily, AUDIT_FIELDS_COLUMNS, domainOf, fieldCounts } from '../audit-stats/record';
 
 const DRAW_SCALE = 1_000_000;
 
@@ -341,8 +340,9 @@ async function recordSinglePass(p: ProtocolRow, pass: { id: number; scorer_id: n
 		[pass.id, '', p.id, p.round, 'first', pass.scorer_id, p.battery_id, '', Math.max(0, Number(pass.fields_entered) - rawCount), 0, 0, at]
 	];
 	for (const code of codes) {
-		const derived = FIELDS.filter((f) => f !== 'raw' && entered(pass.scores[code]?.[f])).length;
-		if (derived) rows.push([pass.id, code, p.id, p.round, 'first', pass.scorer_id, p.battery_id, domains.get(code) ?? 'unknown', derived, 0, derived, at]);
+		// a composite's sum counts as derived here too (fieldCounts), as in the whole-pass row above
+		const { derived } = fieldCounts(pass.scores[code]);
+		if (derived) rows.push([pass.id, code, p.id, p.round, 'first', pass.scorer_id, p.battery_id, domainOf(domains, code), derived, 0, derived, at]);
 	}
 	await applyToDaily({ protocolId: p.id, round: p.round }, -1, t);
 	// the audit's summary rows of the round are replaced in bulk
