@@ -5,6 +5,7 @@
  * fixed list of covariates. Pure: the table grid runs these checks as you type, the server runs
  * them again before writing.
  */
+import { hasDecimalComma, notANumberMessage } from '../scoring/scales';
 
 export const NORM_FORMS = ['mean_sd', 'table', 'regression'] as const;
 export type NormForm = (typeof NORM_FORMS)[number];
@@ -99,6 +100,7 @@ export function parsePercentile(s: string, allowBands: boolean): PercentileCell 
 		if (n < 1 || n > 99) return `percentile band "${s}": the bound must lie within 1–99`;
 		return m[1] === '<=' ? { kind: 'band', lo: null, hi: n, text: `<=${n}` } : { kind: 'band', lo: n, hi: null, text: `>=${n}` };
 	}
+	if (hasDecimalComma(t)) return `"${s}" has a decimal comma: a percentile is a whole number 1–99`;
 	return `"${s}" is not a percentile (a whole number 1–99, "<1", ">99"${allowBands ? ', or a band such as "5-9", "<=2", ">=75"' : ''})`;
 }
 
@@ -312,7 +314,7 @@ export function ageCovariate(rule: CovariateAge, whole: { years: number }, daysS
 export function compositeSumProblems(sum: string | null | undefined, parts: readonly (string | null | undefined)[], span: RawSpan): string[] {
 	if (sum === null || sum === undefined || sum.trim() === '') return [];
 	const t = sum.trim();
-	if (!/^[+-]?\d+(\.\d+)?$/.test(t)) return ['Enter a number written in digits.'];
+	if (!/^[+-]?\d+(\.\d+)?$/.test(t)) return [notANumberMessage(t)];
 	const v = Number(t);
 	const out: string[] = [];
 	if (!Number.isInteger(v)) out.push('A sum of scores is a whole number.');

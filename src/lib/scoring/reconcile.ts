@@ -10,6 +10,8 @@ import {
 	floorTo,
 	formatReference,
 	inBounds,
+	hasDecimalComma,
+	notANumberMessage,
 	parseEntered,
 	rawInRange,
 	roundTo,
@@ -781,8 +783,8 @@ export function checkField(test: Pick<TestDef, 'raw' | 'bounds'>, field: Field, 
 			{
 				code: 'not_a_number',
 				message:
-					field !== 'percentile'
-						? 'Enter a number written in digits.'
+					field !== 'percentile' || hasDecimalComma(value)
+						? notANumberMessage(value)
 						: opts.percentileBands
 							? 'Enter a percentile (or <1, >99) or a band as the table writes it (25-49, <=5, >=75).'
 							: 'Enter a number (or <1, >99).'
@@ -833,7 +835,7 @@ export function checkField(test: Pick<TestDef, 'raw' | 'bounds'>, field: Field, 
 export function checkCompositeSum(span: readonly [number, number], parts: readonly Entered[], sum: Entered): FieldProblem[] {
 	const p = parseEntered(sum, 'raw');
 	if (p === null) return [];
-	if (Number.isNaN(p)) return [{ code: 'not_a_number', message: 'Enter a number written in digits.' }];
+	if (Number.isNaN(p)) return [{ code: 'not_a_number', message: notANumberMessage(sum) }];
 	const problems: FieldProblem[] = [];
 	if (!Number.isInteger(p)) problems.push({ code: 'too_many_decimals', message: 'A sum of scores is a whole number.' });
 	if (p < span[0] || p > span[1]) problems.push({ code: 'out_of_range', message: `The sum of these parts lies between ${span[0]} and ${span[1]}.` });

@@ -178,6 +178,25 @@ export function parseEntered(v: Entered, field?: Field): number | null {
 }
 
 /**
+ * A number typed with a decimal comma ("12,5", "−0,8"). It is not accepted as a number: a comma is a
+ * decimal mark in some places and a thousands separator in others ("1,250" ms could be 1.25 or
+ * 1250), the digit kinds compare values as written, and a score must never be silently misread. So
+ * such a value stays "not a number" (a discrepancy if submitted), and the message says what to type.
+ */
+export function hasDecimalComma(v: Entered): boolean {
+	if (typeof v !== 'string') return false;
+	return /^[+\-\u2212]?\d*,\d+$/.test(v.trim());
+}
+
+/** The message for a decimal comma (see hasDecimalComma). */
+export const DECIMAL_COMMA_MESSAGE = 'Use a decimal point, not a comma (12.5, not 12,5).';
+
+/** The message for a value that is not a number written in digits (the decimal comma named). */
+export function notANumberMessage(v: Entered): string {
+	return hasDecimalComma(v) ? DECIMAL_COMMA_MESSAGE : 'Enter a number written in digits.';
+}
+
+/**
  * The value as written, for the digit kinds: a string keeps its digits (trimmed, Unicode minus as `-`,
  * `<1`/`>99` as `1`/`99`), a number as JavaScript prints it.
  */

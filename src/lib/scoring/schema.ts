@@ -4,7 +4,7 @@
  */
 import { z } from 'zod';
 import type { ReconcileInput } from './reconcile';
-import { boundsFor, type BoundsOverride, type DerivedField } from './scales';
+import { boundsFor, hasDecimalComma, type BoundsOverride, type DerivedField } from './scales';
 import { canonicalBand } from './forms';
 import { checkTableRows } from './tables';
 
@@ -340,7 +340,7 @@ function crossCheck(doc: Doc, ctx: { addIssue: (i: { code: 'custom'; path: (stri
 				if (!NUMERAL.test(v)) {
 					add({
 						path: ['passes', pi, 'scores', id, f],
-						message: `expected a number written in digits${f === 'percentile' ? (bands ? ' (or "<1", ">99", a band such as "10-25", "<=5", ">=75")' : ' (or "<1", ">99")') : ''}, got ${JSON.stringify(v)}`
+						message: `expected a number written in digits${hasDecimalComma(v) ? ' with a decimal point, not a comma' : ''}${f === 'percentile' ? (bands ? ' (or "<1", ">99", a band such as "10-25", "<=5", ">=75")' : ' (or "<1", ">99")') : ''}, got ${JSON.stringify(v)}`
 					});
 				}
 			}
