@@ -64,6 +64,9 @@ describe('a raw decision settles its derived scores (raw 42 for 24)', () => {
 		const raw = page.locator('[data-testid="discrepancy"][data-field="raw"]');
 		expect(await raw.count()).toBe(1);
 		expect(await raw.innerText()).toContain('Digits swapped');
+		// raw 24 against raw 42: the card says the passes disagree, not that both scorers erred
+		expect(await raw.getByTestId('pass-words').innerText()).toBe('the passes disagree: one or both may be wrong');
+		expect(await raw.innerText()).not.toContain('both passes');
 		expect(await raw.getByTestId('slip').innerText()).toContain('fit the first pass’s raw score 24 — the raw 42 is likely a typing slip');
 		const waiting = page.locator('[data-testid="discrepancy"][data-waiting="true"]');
 		expect(await waiting.count()).toBe(3);

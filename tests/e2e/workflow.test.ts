@@ -81,6 +81,11 @@ describe('double entry, end to end', () => {
 		await page.getByRole('dialog').waitFor();
 		await page.keyboard.press('Enter'); // focus starts on "Submit and lock"
 		await page.waitForURL(new RegExp(`/protocols/${id}\\?submitted=first`));
+		// a confirmation says what was submitted and what comes next (every field was typed: order.length)
+		const banner = page.getByTestId('submitted-banner');
+		await banner.waitFor();
+		expect(await banner.innerText()).toContain(`First pass submitted and locked (${order.length} fields entered).`);
+		expect(await banner.innerText()).toContain('enters the second pass blind, without seeing yours');
 		const p = await selectOne<{ status: string }>('SELECT status FROM protocols WHERE id = :id', { id });
 		expect(p!.status).toBe('awaiting_second');
 		await page.context().close();
@@ -105,6 +110,11 @@ describe('double entry, end to end', () => {
 		await page.click('#submit-pass');
 		await page.getByTestId('confirm-submit').click();
 		await page.waitForURL(new RegExp(`/protocols/${id}\\?submitted=second`));
+		// two discrepancies: the transposition and the sign (resolved below)
+		const banner = page.getByTestId('submitted-banner');
+		await banner.waitFor();
+		expect(await banner.innerText()).toContain(`Second pass submitted and locked (${order.length} fields entered).`);
+		expect(await banner.innerText()).toContain('Both passes are in and were compared: 2 discrepancies were found.');
 		await page.context().close();
 	}, 120_000);
 

@@ -13,7 +13,9 @@ export const load: PageServerLoad = async (event) => {
 	const user = requireUser(event);
 	const id = idParam(event.params.id, 'This protocol');
 	try {
-		return { ...(await protocolPage(id, user)), created: event.url.searchParams.has('created'), me: user.id };
+		// Entry sends the scorer here after a submit (`?submitted=first|second`): the page confirms it
+		const submitted = (['first', 'second'] as const).find((w) => w === event.url.searchParams.get('submitted')) ?? null;
+		return { ...(await protocolPage(id, user)), created: event.url.searchParams.has('created'), submitted, me: user.id };
 	} catch (e) {
 		pageError(e);
 	}
