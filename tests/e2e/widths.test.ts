@@ -237,10 +237,62 @@ describe('the layout at each width', () => {
 		await page.context().close();
 	}, 120_000);
 
-	it('Worklist and People stack their rows on a phone and are tables from 768 px', async () => {
+	it('Entry on a phone: a field that takes focus scrolls clear of the sticky Submit bar', async () => {
+		const page = await as('scorer');
+		for (const [w, h] of [
+			[390, 700],
+			[768, 600]
+		]) {
+			await page.setViewportSize({ width: w, height: h });
+			await page.goto(`${BASE_URL}/protocols/${ids.draft}/entry`);
+			await page.waitForFunction(() => document.activeElement?.id?.startsWith('f-'));
+			const count = await page.locator('form input[id^="f-"]').count();
+			const covered: string[] = [];
+			// Tab through every field (focus only, nothing typed): each must end above the bar
+			for (let i = 0; i < count; i++) {
+				const r = await page.evaluate(() => {
+					const a = document.activeElement!.getBoundingClientRect();
+					const bar = document.querySelector('[data-testid="submit-bar"]')!.getBoundingClientRect();
+					return { id: document.activeElement!.id, bottom: a.bottom, top: a.top, barTop: bar.top };
+				});
+				if (r.bottom > r.barTop || r.top < 0) covered.push(`${r.id} at ${w}: ${Math.round(r.top)}–${Math.round(r.bottom)}, bar from ${Math.round(r.barTop)}`);
+				await page.keyboard.press('Tab');
+			}
+			expect(covered, covered.join('\n')).toEqual([]);
+			// a warning that appears under a field low on the screen is scrolled above the bar as well
+			// (and a decimal comma is named as such); the field is emptied again afterwards
+			const low = await page.evaluate(() => {
+				const bar = document.querySelector('[data-testid="submit-bar"]')!.getBoundingClientRect().top;
+				return [...document.querySelectorAll<HTMLInputElement>('form input[id$="-raw"]')].find((e) => e.getBoundingClientRect().bottom > bar - 60)?.id ?? null;
+			});
+			if (low) {
+				await page.focus(`#${low}`);
+				await page.keyboard.type('12,5');
+				const warning = page.locator(`#${low}-msg`);
+				await expect.poll(() => warning.innerText()).toBe('Use a decimal point, not a comma (12.5, not 12,5).');
+				await page.waitForTimeout(100);
+				const r = await page.evaluate((id) => {
+					const m = document.getElementById(`${id}-msg`)!.getBoundingClientRect();
+					return { bottom: m.bottom, barTop: document.querySelector('[data-testid="submit-bar"]')!.getBoundingClientRect().top };
+				}, low);
+				expect(r.bottom, `${low}'s warning at ${w}`).toBeLessThanOrEqual(r.barTop);
+				await page.keyboard.press('Control+A');
+				await page.keyboard.press('Backspace');
+				await expect.poll(() => page.getByTestId('save-state').innerText(), { timeout: 10_000 }).toContain('Draft saved');
+			}
+		}
+		await page.context().close();
+	}, 120_000);
+
+	it('Worklist, Protocols, People and the catalog lists stack their rows on a phone (nothing scrolls sideways, not even inside the list) and are tables from 768 px', async () => {
 		for (const [role, path, testid] of [
 			['scorer', '/', 'worklist'],
-			['admin', '/people', 'people-table']
+			['lead', '/protocols', 'protocol-list'],
+			['scorer', '/protocols', 'protocol-list'],
+			['admin', '/people', 'people-table'],
+			// the catalog's lists: on a phone no column is cut off at the edge of a sideways-scrolling box
+			['lead', '/catalog/tests', 'tests-table'],
+			['lead', `/catalog/batteries/${ids.battery}`, 'battery-order']
 		] as const) {
 			const page = await as(role);
 			for (const w of WIDTHS) {
@@ -253,6 +305,20 @@ describe('the layout at each width', () => {
 				const head = await table.locator('thead').boundingBox();
 				if (w < 768) expect(head!.height).toBeLessThanOrEqual(1);
 				else expect(head!.height).toBeGreaterThan(20);
+				// on a phone the list fits its box: no sideways scroll inside it either
+				if (w < 768) {
+					const fit = await table.evaluate((t) => {
+						const box = t.parentElement!;
+						const edge = box.getBoundingClientRect().left + box.clientWidth;
+						// for the message: the cells that stick out of the box
+						const wide = [...t.querySelectorAll('td, th')]
+							.filter((c) => c.getBoundingClientRect().right > edge + 0.5)
+							.slice(0, 3)
+							.map((c) => `${c.getAttribute('data-label') ?? c.tagName}: ${c.textContent?.trim().slice(0, 40)}`);
+						return { box: box.clientWidth, scroll: box.scrollWidth, wide };
+					});
+					expect(fit.scroll, `${path} as ${role} at ${w}: the list's box scrolls sideways (${fit.wide.join(' | ')})`).toBeLessThanOrEqual(fit.box);
+				}
 			}
 			await page.context().close();
 		}
