@@ -329,7 +329,7 @@ describe('the layout at each width', () => {
 				const fit = await table.evaluate((t) => ({ box: t.parentElement!.clientWidth, scroll: t.parentElement!.scrollWidth }));
 				expect(fit.scroll, 'People at 1280 px scrolls sideways inside its box').toBeLessThanOrEqual(fit.box);
 				const mail = await table.locator('td[data-label="E-mail"]').first().innerHTML();
-				expect(mail).toMatch(/@<wbr>/);
+				expect(mail.replace(/<!--[^]*?-->/g, '')).toMatch(/@<wbr>/); // hydration markers aside
 			}
 			await page.context().close();
 		}
