@@ -7,6 +7,7 @@ import { Sequelize, QueryTypes, Transaction } from 'sequelize';
 import * as mariadb from 'mariadb';
 import { config } from './config';
 import { randomUUID } from 'node:crypto';
+import { performance } from 'node:perf_hooks';
 import { withRetry, isRetryableConflict, type RetryOptions } from './tx';
 import { writeMarker, markerCommitted } from './models/commit-marker';
 import { sqlProfileEnabled, recordStatement } from './sql-profile';
@@ -93,6 +94,47 @@ export async function exec(sql: string, replacements: Params = {}, transaction?:
 	if (typeof out[0] === 'number') return { insertId: Number(out[0]), affected: Number(out[1] ?? 0) };
 	const packet = out[0] as { insertId?: number | bigint; affectedRows?: number } | undefined;
 	return { insertId: Number(packet?.insertId ?? 0), affected: Number(packet?.affectedRows ?? 0) };
+}
+
+/** One statement of a `pipeline`: SQL with `?` placeholders and their values, in order. */
+export interface Piped {
+	sql: string;
+	values?: unknown[];
+}
+
+/**
+ * Guard for a write sent in a `pipeline` behind another statement: `… WHERE … AND ${IN_TX}` (an
+ * INSERT takes it as `INSERT … SELECT … FROM DUAL WHERE ${IN_TX}`). A statement that fails with a
+ * deadlock or a Galera abort (1213) has rolled the whole transaction back, and the server still runs
+ * what was sent behind it, each statement then on its own, committed as it runs; this condition makes
+ * such a write do nothing (checked by hand on MariaDB 10.11: after the 1213, `@@in_transaction` is 0
+ * and a guarded INSERT inserts no row, an unguarded one commits).
+ */
+export const IN_TX = '@@in_transaction = 1';
+
+/**
+ * Several statements sent at once on the transaction's connection, in the order given (the mariadb
+ * driver pipelines them: one round trip for all), answered in that order: rows for a SELECT, the OK
+ * packet (`affectedRows`, `insertId`) for a write. Raw SQL on the measured hot paths only (the
+ * resolution and the second submit, issue 18): Sequelize sends a query only after its own awaits and
+ * hooks, so statements started together through it may reach the server in any order, and a read
+ * that must follow a lock (or a write) would not be sure to; here the driver is called directly, in
+ * order, in one tick. Every statement runs even when one before it fails (the server does not skip
+ * them), so: reads may follow anything; a write that follows another statement carries `IN_TX`. The
+ * first error is thrown once all have answered (the transaction then rolls back).
+ */
+export async function pipeline(t: Transaction, statements: Piped[]): Promise<unknown[]> {
+	const conn = (t as unknown as { connection: { query: (sql: string, values?: unknown[]) => Promise<unknown> } }).connection;
+	const profiled = sqlProfileEnabled();
+	const sent = statements.map((s) => {
+		const t0 = profiled ? performance.now() : 0;
+		const p = conn.query(s.sql, s.values ?? []);
+		return profiled ? p.finally(() => recordStatement(s.sql, performance.now() - t0)) : p;
+	});
+	const out = await Promise.allSettled(sent);
+	const failed = out.find((r): r is PromiseRejectedResult => r.status === 'rejected');
+	if (failed) throw failed.reason;
+	return out.map((r) => (r as PromiseFulfilledResult<unknown>).value);
 }
 
 /**

@@ -14,7 +14,8 @@ export interface TrailEvent {
 	reason?: string | null;
 }
 
-const rowOf = (e: TrailEvent) => ({
+/** An event as its audit_events row (the columns of TRAIL_COLUMNS; `at` is the database's clock). */
+export const trailRow = (e: TrailEvent) => ({
 	actor_id: e.actorId,
 	entity: e.entity,
 	entity_id: String(e.entityId),
@@ -25,9 +26,12 @@ const rowOf = (e: TrailEvent) => ({
 	reason: e.reason ?? null
 });
 
+/** The columns `trailRow` fills, for a hot path that writes the row with raw SQL (protocols/decisions.ts). */
+export const TRAIL_COLUMNS = ['actor_id', 'entity', 'entity_id', 'action', 'protocol_id', 'old_value', 'new_value', 'reason'] as const;
+
 /** Add an event to the trail, in the caller's transaction (a change and its event commit together). */
 export async function recordEvent(e: TrailEvent, t?: Tx): Promise<void> {
-	const row = rowOf(e);
+	const row = trailRow(e);
 	const create = (transaction?: Transaction) => trailRows().create(row, { transaction });
 	if (t) {
 		await create(t);
@@ -39,7 +43,7 @@ export async function recordEvent(e: TrailEvent, t?: Tx): Promise<void> {
 
 /** Add several events of one transaction in one multi-row INSERT, in the order given (ids ascend with it). */
 export async function recordEvents(events: TrailEvent[], t: Transaction): Promise<void> {
-	if (events.length) await trailRows().bulkCreate(events.map(rowOf), { transaction: t, validate: true });
+	if (events.length) await trailRows().bulkCreate(events.map(trailRow), { transaction: t, validate: true });
 }
 
 /** How many events the trail holds for one entity (e.g. the standing changes of a scorer on a battery). */

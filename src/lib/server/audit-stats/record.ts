@@ -452,7 +452,7 @@ export async function insertMany(table: string, columns: string[], rows: unknown
 }
 
 /** What recordResolution reads of a discrepancy (columns of `discrepancies`, and its protocol's battery). */
-type DiscrepancyRead = {
+export type DiscrepancyRead = {
 	id: number;
 	protocol_id: number;
 	round: number;
@@ -516,25 +516,41 @@ export async function recordResolution(discrepancyId: number, t: Transaction): P
 	models();
 	// A later round decided this field again (reopen, amendment): its decision replaces the earlier
 	// round's, so the earlier round's charges for it go (an error is counted once).
-	const replaced = d.carried_from !== null && d.resolution !== null ? [discrepancyId, d.carried_from] : [discrepancyId];
-	await ErrorEvent.destroy({ where: { discrepancy_id: replaced }, transaction: t });
-	const against = attributedPasses(d);
-	if (against.length === 0) return;
-	// The kept value contradicts the recomputation: the charge rests on the reviewer's judgement.
-	const judgement = d.expected !== null && !sameValue(d.resolved_value, d.expected, d.field) ? 1 : 0;
-
-	const passes = await select<{ which: 'first' | 'second'; scorer_id: number; submitted_at: Date | string | null }>(
+	await ErrorEvent.destroy({ where: { discrepancy_id: replacedCharges(d) }, transaction: t });
+	if (attributedPasses(d).length === 0) return;
+	const passes = await select<ResolutionPass>(
 		'SELECT which, scorer_id, submitted_at FROM passes WHERE protocol_id = :protocolId AND round = :round',
 		{ protocolId: d.protocol_id, round: d.round },
 		t
 	);
 	const domain = domainOf(await domainsFor([d.test_code], t), d.test_code);
-	const events = against.flatMap((which) => {
+	const events = errorEventRows(d, passes, domain);
+	// the same scorer on both passes would be one row (UNIQUE discrepancy_id, scorer_id): the later one wins
+	if (events.length) await ErrorEvent.bulkCreate(events, { transaction: t, updateOnDuplicate: ['kind', 'field', 'entered_at', 'judgement'] });
+}
+
+/** What the error events of a decision need of its round's passes. */
+export type ResolutionPass = { which: 'first' | 'second'; scorer_id: number; submitted_at: Date | string | null };
+
+/** The discrepancies whose error_events a decision of `d` replaces: its own, and the earlier round's it was carried from. */
+export const replacedCharges = (d: Pick<DiscrepancyRead, 'id' | 'carried_from' | 'resolution'>): number[] =>
+	d.carried_from !== null && d.resolution !== null ? [d.id, d.carried_from] : [d.id];
+
+/**
+ * The error_events rows of a resolved discrepancy (`recordResolution` writes them; the resolution's
+ * hot path, `resolveDiscrepancy`, sends the same rows with its other writes): one per pass whose value
+ * was not kept.
+ */
+export function errorEventRows(d: DiscrepancyRead, passes: ResolutionPass[], domain: string): Array<Omit<InferCreationAttributes<ErrorEvent>, 'id'>> {
+	const against = attributedPasses(d);
+	// The kept value contradicts the recomputation: the charge rests on the reviewer's judgement.
+	const judgement = d.expected !== null && !sameValue(d.resolved_value, d.expected, d.field) ? 1 : 0;
+	return against.flatMap((which) => {
 		const pass = passes.find((p) => p.which === which);
 		if (!pass) return [];
 		return [
 			{
-				discrepancy_id: discrepancyId,
+				discrepancy_id: d.id,
 				protocol_id: d.protocol_id,
 				scorer_id: pass.scorer_id,
 				battery_id: d.battery_id,
@@ -547,6 +563,4 @@ export async function recordResolution(discrepancyId: number, t: Transaction): P
 			}
 		];
 	});
-	// the same scorer on both passes would be one row (UNIQUE discrepancy_id, scorer_id): the later one wins
-	if (events.length) await ErrorEvent.bulkCreate(events, { transaction: t, updateOnDuplicate: ['kind', 'field', 'entered_at', 'judgement'] });
 }

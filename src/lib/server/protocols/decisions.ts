@@ -5,11 +5,11 @@
  */
 import { Op, literal, type Transaction } from 'sequelize';
 import { z } from 'zod';
-import { select, selectOne, exec, transaction, jsonValue } from '../db';
+import { select, selectOne, exec, transaction, jsonValue, pipeline, IN_TX, type Piped } from '../db';
 import { models } from '../models';
-import { dbNow, inTx, reading, saveLocked, type DiscrepancyRow } from '../models/protocol';
-import { recordEvent } from '../trail';
-import { protocolFor, type Actor } from './service';
+import { dbNow, inTx, reading, saveLocked, type DiscrepancyRow, type ProtocolRow } from '../models/protocol';
+import { recordEvent, trailRow, TRAIL_COLUMNS } from '../trail';
+import { protocolFor, dutiesOf, type Actor } from './service';
 import { protocolTests, protocolComposites, normGroups } from '../catalog';
 import type { TableRowInput } from '../catalog/norms';
 import { isBand, normalizePercentile, parsePercentile } from '../../catalog/norm-forms';
@@ -18,7 +18,7 @@ import { charDiff } from '../../scoring/diff';
 import { explainKind } from '../../scoring/kinds';
 import { checkField } from '../../scoring/reconcile';
 import type { Field } from '../../scoring/scales';
-import { recordResolution } from '../audit-stats/record';
+import { errorEventRows, replacedCharges, COMPOSITE_DOMAIN, type ResolutionPass, type DiscrepancyRead } from '../audit-stats/record';
 import { afterResolution, isSinglePass } from '../verification';
 import type { Scores } from './passes';
 import { rejudgeDerived } from './evidence';
@@ -212,36 +212,89 @@ export const resolutionSchema = z.object({
 	lockVersion: z.number().int().min(1)
 });
 
+/** The decided row as the resolution reads it (locked), with its protocol's battery. */
+type DecidedRow = Omit<DiscrepancyRead, 'battery_id'> & { resolved_at: Date | null; lock_version: number };
+/** What a decision reads of its protocol (unlocked, but for a raw decision), with the decided test's domain. */
+type DecisionProtocol = Pick<ProtocolRow, 'id' | 'status' | 'round' | 'norm_set_id' | 'battery_id' | 'first_scorer_id' | 'second_scorer_id' | 'reviewer_id'> & {
+	domain: string | null;
+};
+const PROTOCOL_COLUMNS = 'p.id, p.status, p.round, p.norm_set_id, p.battery_id, p.first_scorer_id, p.second_scorer_id, p.reviewer_id';
+
+/**
+ * Resolution, the measured hot path of issue 18 (bench:http, its per-statement profile): raw SQL on
+ * the transaction's connection (`pipeline` in ../db), because under load the time is the round trips
+ * and the JS per statement. A decision of a derived score is five round trips: START; the decided row
+ * locked FOR UPDATE with everything the decision reads (its protocol and the test's domain, the
+ * round's rows, the composite it belongs to, the round's passes), one pipeline; the writes (the row
+ * under its lock_version, the trail event, the error events, the protocol's compare-and-set), one
+ * pipeline, each write after the first guarded by `IN_TX`; the commit marker; COMMIT.
+ */
 export async function resolveDiscrepancy(discrepancyId: number, user: Actor, body: unknown) {
 	const input = parseFirst(resolutionSchema, body);
 	const { choice, note } = input;
 	return transaction(async (t) => {
-		const { Discrepancy, Protocol } = models();
+		const { Discrepancy } = models();
 		// Lock order, the same in every decision: discrepancy rows first, the protocol row last (see
 		// DEVELOPERS.md, "Transactions"). The decided row, locked with its lock_version: two decisions
-		// of one discrepancy serialize here; decisions of different discrepancies do not.
-		const d = await Discrepancy.findByPk(discrepancyId, inTx(t, true));
+		// of one discrepancy serialize here; decisions of different discrepancies do not. The reads sent
+		// behind it run once the lock is held (in order, on this connection) and lock nothing: the
+		// protocol is checked again by the compare-and-set at the end.
+		const [locked, protocols, roundRows, composites, passes] = (await pipeline(t, [
+			{
+				sql: `SELECT d.id, d.protocol_id, d.round, d.test_code, d.field, d.pass, d.kind, d.value, d.other, d.resolution, d.resolved_value,
+				             d.expected, d.carried_from, d.resolved_at, d.lock_version
+				        FROM discrepancies d WHERE d.id = ? FOR UPDATE`,
+				values: [discrepancyId]
+			},
+			{
+				// the current (or latest) version's domain wins, as in audit-stats domainsFor; none: a composite (domainOf)
+				sql: `SELECT ${PROTOCOL_COLUMNS},
+				             (SELECT t.domain FROM tests t WHERE t.code = d.test_code ORDER BY t.is_current DESC, t.version DESC LIMIT 1) AS domain
+				        FROM discrepancies d JOIN protocols p ON p.id = d.protocol_id WHERE d.id = ?`,
+				values: [discrepancyId]
+			},
+			{
+				sql: `SELECT x.id, x.test_code, x.field, x.resolved_at IS NULL AS open
+				        FROM discrepancies d JOIN discrepancies x ON x.protocol_id = d.protocol_id AND x.round = d.round WHERE d.id = ?`,
+				values: [discrepancyId]
+			},
+			{
+				sql: `SELECT c.definition FROM discrepancies d JOIN protocol_composites c ON c.protocol_id = d.protocol_id AND c.code = d.test_code WHERE d.id = ?`,
+				values: [discrepancyId]
+			},
+			{
+				sql: `SELECT s.which, s.scorer_id, s.submitted_at FROM discrepancies d JOIN passes s ON s.protocol_id = d.protocol_id AND s.round = d.round WHERE d.id = ?`,
+				values: [discrepancyId]
+			}
+		])) as [
+			DecidedRow[],
+			DecisionProtocol[],
+			Array<{ id: number; test_code: string; field: string; open: number }>,
+			Array<{ definition: unknown }>,
+			ResolutionPass[]
+		];
+		const d = locked[0];
 		if (!d) throw notFound('This discrepancy');
 		const raw = d.field === 'raw';
+		let p = protocols[0];
 		// A raw decision judges its test's derived rows again and may add rows (new positions), so it takes
-		// those rows and then the protocol row at once, as before. Any other decision reads the protocol
-		// unlocked here and takes its row only at the very end, for the compare-and-set of lock_version.
-		if (raw)
+		// those rows and then the protocol row, as before. Any other decision has read the protocol
+		// unlocked and takes its row only at the very end, for the compare-and-set of lock_version.
+		if (raw && p) {
 			await Discrepancy.findAll({
 				attributes: ['id'],
 				where: { protocol_id: d.protocol_id, round: d.round, test_code: d.test_code, field: { [Op.ne]: 'raw' } },
 				...inTx(t, true)
 			});
-		const { p, duties } = await protocolFor(d.protocol_id, user, t, raw);
-		requireReviewer(duties);
+			const { domain } = p;
+			const [row] = await select<DecisionProtocol>(`SELECT ${PROTOCOL_COLUMNS} FROM protocols p WHERE p.id = :id FOR UPDATE`, { id: d.protocol_id }, t);
+			p = row ? { ...row, domain } : row;
+		}
+		if (!p || !dutiesOf(p, user).includes('reviewer')) throw notFound();
 		if (p.status !== 'in_review' || d.round !== p.round) throw conflict('This protocol is not open for review (signed off, or a newer round exists).');
 		if (input.lockVersion !== d.lock_version) throw await staleResolution(d.id, t);
 		if (!raw) {
-			const openRaw = await Discrepancy.findOne({
-				attributes: ['id'],
-				where: { protocol_id: p.id, round: p.round, test_code: d.test_code, field: 'raw', resolved_at: null },
-				transaction: t
-			});
+			const openRaw = roundRows.some((x) => x.open && x.test_code === d.test_code && x.field === 'raw');
 			if (openRaw)
 				throw new ServiceError(
 					409,
@@ -250,14 +303,8 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 					'waits_on_raw'
 				);
 			// a composite's value waits on its parts, as a derived score waits on its raw score
-			const composite = (await protocolComposites(p.id, t)).find((c) => c.code === d.test_code);
-			const part = composite
-				? await Discrepancy.findOne({
-						attributes: ['test_code'],
-						where: { protocol_id: p.id, round: p.round, test_code: composite.parts, resolved_at: null },
-						transaction: t
-					})
-				: null;
+			const composite = composites[0] ? jsonValue<{ name: string; parts: string[] }>(composites[0].definition) : null;
+			const part = composite ? roundRows.find((x) => x.open && composite.parts.includes(x.test_code)) : undefined;
 			if (composite && part)
 				throw new ServiceError(
 					409,
@@ -278,15 +325,14 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 				choice === 'other' ? 'Enter the value to keep.' : 'That pass left this field empty; choose another value or enter one.',
 				choice === 'other' ? 'value' : 'choice'
 			);
-		const tests = await protocolTests(p.id, t);
-		const test = tests.find((x) => x.code === d.test_code);
 		// The recomputed value is the engine's own (z is never clamped); anything a person chose is checked.
-		if (test && choice !== 'recomputed') {
-			if (test.normScale === 'percentile' && d.field === 'percentile') {
+		if (choice !== 'recomputed') {
+			const test = (await protocolTests(p.id, t)).find((x) => x.code === d.test_code);
+			if (test && test.normScale === 'percentile' && d.field === 'percentile') {
 				// a percentile-only norm: the value kept may be a band as the manual prints it
 				const band = parsePercentile(kept, true);
 				if (typeof band === 'string') throw invalid(`The value to keep is not valid: ${band}.`, 'value');
-			} else {
+			} else if (test) {
 				const problems = checkField(test, d.field, kept);
 				if (problems.length) throw invalid(`The value to keep is not valid: ${problems[0].message}`, 'value');
 			}
@@ -294,48 +340,100 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 		const needsNote = choice === 'other' || (d.expected !== null && !same(kept, d.expected));
 		if (needsNote && (!note || note.length < 3)) {
 			throw invalid(
-				choice === 'other' ? 'Say why you keep another value (a short note).' : 'The kept value differs from the recomputed value: add a note saying why.',
+				choice === 'other' ? 'Say why you keep another value (a short note).' : 'The kept value differs from the recomputation: add a note saying why.',
 				'note'
 			);
 		}
 		const before = { resolution: d.resolution, resolved_value: d.resolved_value, resolved_at: d.resolved_at, lock_version: d.lock_version };
-		// saved under the row's lock_version (the version the reviewer's view showed, checked above)
-		d.set({ resolution: choice, resolved_value: kept, note: note || null, resolved_by: user.id, resolved_at: dbNow() });
-		await saveLocked(d, t, () => staleResolution(d.id, t));
-		await recordEvent(
+		const event = trailRow({
+			actorId: user.id,
+			entity: 'discrepancy',
+			entityId: d.id,
+			protocolId: p.id,
+			action: before.resolved_at ? 'change_resolution' : 'resolve',
+			oldValue: before.resolved_at
+				? { choice: before.resolution, value: before.resolved_value }
+				: { test: d.test_code, field: d.field, first: v.first, second: v.second, expected: d.expected, kind: d.kind },
+			newValue: { choice, value: kept },
+			reason: note || null
+		});
+		// the error events (audit-stats recordResolution's rows), from the row as it is after this decision
+		const decided = { ...d, battery_id: p.battery_id, resolution: choice, resolved_value: kept };
+		const charges = errorEventRows(decided, passes, p.domain ?? COMPOSITE_DOMAIN);
+		// A row never decided before has no charges to take back (they are written only for a decided
+		// row, and taken back when a decision is undone), so the DELETE is sent only when there can be some.
+		const replaced = before.resolved_at !== null || d.carried_from !== null ? replacedCharges(decided) : [];
+		const cols = ERROR_EVENT_COLUMNS;
+		const writes = await pipeline(t, [
 			{
-				actorId: user.id,
-				entity: 'discrepancy',
-				entityId: d.id,
-				protocolId: p.id,
-				action: before.resolved_at ? 'change_resolution' : 'resolve',
-				oldValue: before.resolved_at
-					? { choice: before.resolution, value: before.resolved_value }
-					: { test: d.test_code, field: d.field, first: v.first, second: v.second, expected: d.expected, kind: d.kind },
-				newValue: { choice, value: kept },
-				reason: note || null
+				// under the row's lock_version (the version the reviewer's view showed, checked above)
+				sql: `UPDATE discrepancies SET resolution = ?, resolved_value = ?, note = ?, resolved_by = ?, resolved_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1
+				       WHERE id = ? AND lock_version = ?`,
+				values: [choice, kept, note || null, user.id, d.id, d.lock_version]
 			},
-			t
-		);
-		await recordResolution(d.id, t);
-		if (raw) await afterResolution(d.id, t); // the scorers' standing follows raw decisions only
-		// The raw score is settled: the test's derived discrepancies are judged again, in this transaction.
-		const rejudged = raw ? await rejudgeDerived(p, d.test_code, kept, { by: 'raw_decision', id: d.id, actorId: user.id }, t) : null;
-		// as committed now: a decision of this protocol still in flight counts as open
-		const open = await Discrepancy.count({ where: { protocol_id: p.id, round: p.round, resolved_at: null }, transaction: t });
-		// Last: the protocol's lock_version moves, so a sign-off sent from a view older than this decision
-		// is refused as stale. Compare-and-set under the protocol row's lock, which is held from here to
-		// the commit only (a raw decision holds it from the start): the protocol must still be in review,
-		// in this round, with this reviewer. A sign-off, reopen or reassignment that committed first wins
-		// and this decision is refused; one that comes later waits for the commit and sees the new version.
-		const [moved] = await Protocol.update(
-			{ lock_version: literal('lock_version + 1') as unknown as number },
-			{ where: { id: p.id, status: 'in_review', round: p.round, reviewer_id: user.id }, transaction: t }
-		);
+			{
+				sql: `INSERT INTO audit_events (${TRAIL_COLUMNS.join(', ')}) SELECT ${TRAIL_COLUMNS.map(() => '?').join(', ')} FROM DUAL WHERE ${IN_TX}`,
+				values: TRAIL_COLUMNS.map((c) => event[c])
+			},
+			...(replaced.length ? [{ sql: `DELETE FROM error_events WHERE discrepancy_id IN (?) AND ${IN_TX}`, values: [replaced] }] : []),
+			...(charges.length
+				? [
+						{
+							// the same scorer on both passes would be one row (UNIQUE discrepancy_id, scorer_id): the later one wins
+							sql: `INSERT INTO error_events (${cols.join(', ')})
+							      SELECT * FROM (${charges.map(() => `SELECT ${cols.map((c) => `? AS ${c}`).join(', ')}`).join(' UNION ALL ')}) AS e WHERE ${IN_TX}
+							      ON DUPLICATE KEY UPDATE kind = VALUES(kind), field = VALUES(field), entered_at = VALUES(entered_at), judgement = VALUES(judgement)`,
+							values: charges.flatMap((e) => cols.map((c) => (c === 'entered_at' ? sqlTime(e.entered_at) : e[c])))
+						}
+					]
+				: []),
+			// Last (but for a raw decision, below): the protocol's lock_version moves, so a sign-off sent from
+			// a view older than this decision is refused as stale. Compare-and-set under the protocol row's
+			// lock, held from here to the commit only: the protocol must still be in review, in this round,
+			// with this reviewer. A sign-off, reopen or reassignment that committed first wins and this
+			// decision is refused; one that comes later waits for the commit and sees the new version.
+			...(raw ? [] : [protocolCas(p, user)])
+		]);
+		if ((writes[0] as OkPacket).affectedRows !== 1) throw await staleResolution(d.id, t);
+		let moved = raw ? 0 : (writes[writes.length - 1] as OkPacket).affectedRows;
+		let rejudged = null;
+		let open: number;
+		if (raw) {
+			await afterResolution(d.id, t); // the scorers' standing follows raw decisions only
+			// The raw score is settled: the test's derived discrepancies are judged again, in this transaction.
+			rejudged = await rejudgeDerived(p, d.test_code, kept, { by: 'raw_decision', id: d.id, actorId: user.id }, t);
+			open = await Discrepancy.count({ where: { protocol_id: p.id, round: p.round, resolved_at: null }, transaction: t });
+			const [cas] = (await pipeline(t, [protocolCas(p, user)])) as OkPacket[];
+			moved = cas.affectedRows;
+		} else {
+			// as read under this row's lock: the round's other open rows (a decision still in flight counts as open)
+			open = roundRows.filter((x) => x.open && x.id !== d.id).length;
+		}
 		if (moved !== 1) throw conflict('This protocol was signed off or changed at the same moment; your choice was not saved. Reload to see its state.');
 		return { id: d.id, resolution: choice, resolvedValue: kept, note: note || null, lockVersion: before.lock_version + 1, open, rejudged };
 	});
 }
+
+type OkPacket = { affectedRows: number; insertId: number };
+const ERROR_EVENT_COLUMNS = [
+	'discrepancy_id',
+	'protocol_id',
+	'scorer_id',
+	'battery_id',
+	'test_code',
+	'domain',
+	'field',
+	'kind',
+	'entered_at',
+	'judgement'
+] as const;
+/** A time for a DATETIME(3) column (the session's time zone is UTC: db.ts). */
+const sqlTime = (d: Date) => d.toISOString().slice(0, 23).replace('T', ' ');
+/** The protocol's compare-and-set at the end of a decision (see resolveDiscrepancy). */
+const protocolCas = (p: Pick<ProtocolRow, 'id' | 'round'>, user: Actor): Piped => ({
+	sql: `UPDATE protocols SET lock_version = lock_version + 1 WHERE id = ? AND status = 'in_review' AND round = ? AND reviewer_id = ? AND ${IN_TX}`,
+	values: [p.id, p.round, user.id]
+});
 
 /** The conflict answer for a resolution made on a stale view: who changed it, and to what. */
 async function staleResolution(id: number, t: Transaction): Promise<ServiceError> {
