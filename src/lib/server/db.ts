@@ -103,14 +103,22 @@ export interface Piped {
 }
 
 /**
- * Guard for a write sent in a `pipeline` behind another statement: `… WHERE … AND ${IN_TX}` (an
- * INSERT takes it as `INSERT … SELECT … FROM DUAL WHERE ${IN_TX}`). A statement that fails with a
+ * Guards for a write sent in a `pipeline` behind another statement. A statement that fails with a
  * deadlock or a Galera abort (1213) has rolled the whole transaction back, and the server still runs
- * what was sent behind it, each statement then on its own, committed as it runs; this condition makes
- * such a write do nothing (checked by hand on MariaDB 10.11: after the 1213, `@@in_transaction` is 0
- * and a guarded INSERT inserts no row, an unguarded one commits).
+ * what was sent behind it, each statement then on its own, committed as it runs; a guarded write does
+ * nothing outside the transaction. UPDATE and DELETE: `… WHERE … AND ${IN_TX}` (no row matches). INSERT:
+ * `VALUES (${GUARDED}, ?, …)` with the guard on a NOT NULL column — outside the transaction the value is
+ * NULL and the statement fails (strict mode, MariaDB's default) without a row; not `INSERT … SELECT …
+ * WHERE`, which on an AUTO_INCREMENT table takes the table's AUTO-INC lock for the whole statement
+ * (innodb_autoinc_lock_mode 1) and, caught in a deadlock, answers 1467 instead of a retryable 1213.
+ * Checked by hand on MariaDB 10.11: after a 1213, `@@in_transaction` is 0, a guarded write changes
+ * nothing, an unguarded one commits.
  */
 export const IN_TX = '@@in_transaction = 1';
+/** The placeholder of a NOT NULL column in a guarded INSERT … VALUES (see IN_TX). */
+export const GUARDED = `IF(${IN_TX}, ?, NULL)`;
+/** `(?, IF(…, ?, NULL), ?)`: one row of a guarded INSERT … VALUES, the guard on `guard` (a NOT NULL column). */
+export const guardedRow = (columns: readonly string[], guard: string) => `(${columns.map((c) => (c === guard ? GUARDED : '?')).join(', ')})`;
 
 /**
  * Several statements sent at once on the transaction's connection, in the order given (the mariadb
@@ -120,7 +128,7 @@ export const IN_TX = '@@in_transaction = 1';
  * hooks, so statements started together through it may reach the server in any order, and a read
  * that must follow a lock (or a write) would not be sure to; here the driver is called directly, in
  * order, in one tick. Every statement runs even when one before it fails (the server does not skip
- * them), so: reads may follow anything; a write that follows another statement carries `IN_TX`. The
+ * them), so: reads may follow anything; a write that follows another statement is guarded (`IN_TX`). The
  * first error is thrown once all have answered (the transaction then rolls back).
  */
 export async function pipeline(t: Transaction, statements: Piped[]): Promise<unknown[]> {

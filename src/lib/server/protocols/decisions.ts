@@ -3,9 +3,9 @@
  * resolutions under the discrepancy's optimistic lock, sign-off (verified, locked), reopening by a
  * lead (a new round; history kept), and the verified values that follow from the decisions.
  */
-import { Op, literal, type Transaction } from 'sequelize';
+import { Op, type Transaction } from 'sequelize';
 import { z } from 'zod';
-import { select, selectOne, exec, transaction, jsonValue, pipeline, IN_TX, type Piped } from '../db';
+import { select, selectOne, exec, transaction, jsonValue, pipeline, guardedRow, IN_TX, type Piped } from '../db';
 import { models } from '../models';
 import { dbNow, inTx, reading, saveLocked, type DiscrepancyRow, type ProtocolRow } from '../models/protocol';
 import { recordEvent, trailRow, TRAIL_COLUMNS } from '../trail';
@@ -340,7 +340,7 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 		const needsNote = choice === 'other' || (d.expected !== null && !same(kept, d.expected));
 		if (needsNote && (!note || note.length < 3)) {
 			throw invalid(
-				choice === 'other' ? 'Say why you keep another value (a short note).' : 'The kept value differs from the recomputation: add a note saying why.',
+				choice === 'other' ? 'Say why you keep another value (a short note).' : 'The kept value differs from the recomputed value: add a note saying why.',
 				'note'
 			);
 		}
@@ -372,7 +372,7 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 				values: [choice, kept, note || null, user.id, d.id, d.lock_version]
 			},
 			{
-				sql: `INSERT INTO audit_events (${TRAIL_COLUMNS.join(', ')}) SELECT ${TRAIL_COLUMNS.map(() => '?').join(', ')} FROM DUAL WHERE ${IN_TX}`,
+				sql: `INSERT INTO audit_events (${TRAIL_COLUMNS.join(', ')}) VALUES ${guardedRow(TRAIL_COLUMNS, 'entity')}`,
 				values: TRAIL_COLUMNS.map((c) => event[c])
 			},
 			...(replaced.length ? [{ sql: `DELETE FROM error_events WHERE discrepancy_id IN (?) AND ${IN_TX}`, values: [replaced] }] : []),
@@ -380,8 +380,7 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 				? [
 						{
 							// the same scorer on both passes would be one row (UNIQUE discrepancy_id, scorer_id): the later one wins
-							sql: `INSERT INTO error_events (${cols.join(', ')})
-							      SELECT * FROM (${charges.map(() => `SELECT ${cols.map((c) => `? AS ${c}`).join(', ')}`).join(' UNION ALL ')}) AS e WHERE ${IN_TX}
+							sql: `INSERT INTO error_events (${cols.join(', ')}) VALUES ${charges.map(() => guardedRow(cols, 'discrepancy_id')).join(', ')}
 							      ON DUPLICATE KEY UPDATE kind = VALUES(kind), field = VALUES(field), entered_at = VALUES(entered_at), judgement = VALUES(judgement)`,
 							values: charges.flatMap((e) => cols.map((c) => (c === 'entered_at' ? sqlTime(e.entered_at) : e[c])))
 						}

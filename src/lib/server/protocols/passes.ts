@@ -5,11 +5,11 @@
  */
 import type { Transaction } from 'sequelize';
 import { z } from 'zod';
-import { exec, selectOne, transaction, jsonValue, type Tx } from '../db';
-import { recordEvent, recordEvents, type TrailEvent } from '../trail';
+import { selectOne, transaction, jsonValue, pipeline, guardedRow, IN_TX, type Piped, type Tx } from '../db';
+import { recordEvent, recordEvents, trailRow, TRAIL_COLUMNS, type TrailEvent } from '../trail';
 import { models } from '../models';
 import { dbNow, inTx, reading, saveLocked, type Pass, type Protocol, type ProtocolRow, type Which } from '../models/protocol';
-import { protocolFor, type Actor } from './service';
+import { protocolFor, dutiesOf, type Actor } from './service';
 import {
 	protocolTests,
 	protocolComposites,
@@ -215,40 +215,64 @@ function altOf(d: ReconcileResult['discrepancies'][number]): string | null {
 	return formatReference(d.field, a);
 }
 
+const DISCREPANCY_COLUMNS = [
+	'protocol_id',
+	'round',
+	'position',
+	'test_code',
+	'field',
+	'pass',
+	'kind',
+	'value',
+	'other',
+	'expected',
+	'alternative',
+	'out_of_range'
+];
+
 /**
- * Store a reconciliation result as the round's discrepancy list: one multi-row INSERT (not one per row)
- * through the SQL helper — the hot path of the second submit, where bulkCreate's per-row instances and
- * validation cost more than the statement (the kind list and the empty decision are CHECKed by the table).
+ * A reconciliation result as the round's discrepancy list: multi-row INSERTs of up to 500 rows (not one
+ * per row) in raw SQL — the hot path of the second submit, where bulkCreate's per-row instances and
+ * validation cost more than the statement (the kind list and the empty decision are CHECKed by the
+ * table). Guarded (`IN_TX` in ../db), so the statements may follow another in a `pipeline`.
  */
-export async function storeDiscrepancies(p: Pick<ProtocolRow, 'id' | 'round'>, result: ReconcileResult, t: Tx) {
+function discrepancyInserts(p: Pick<ProtocolRow, 'id' | 'round'>, result: ReconcileResult): Piped[] {
 	const CHUNK = 500;
+	const out: Piped[] = [];
 	for (let from = 0; from < result.discrepancies.length; from += CHUNK) {
-		const params: Record<string, unknown> = { p: p.id, round: p.round };
+		const values: unknown[] = [];
 		const rows = result.discrepancies.slice(from, from + CHUNK).map((d, j) => {
-			const i = from + j;
-			Object.assign(params, {
-				[`pos${i}`]: i + 1,
+			values.push(
+				p.id,
+				p.round,
+				from + j + 1,
 				// a composite's discrepancy carries `composite` instead of `test`; codes are unique across both
-				[`test${i}`]: (d as { test?: string; composite?: string }).test ?? (d as { composite?: string }).composite,
-				[`field${i}`]: d.field,
-				[`pass${i}`]: d.pass,
-				[`kind${i}`]: d.kind,
-				[`value${i}`]: d.value === null ? null : String(d.value),
-				[`other${i}`]: d.other === null ? null : String(d.other),
+				(d as { test?: string; composite?: string }).test ?? (d as { composite?: string }).composite,
+				d.field,
+				d.pass,
+				d.kind,
+				d.value === null ? null : String(d.value),
+				d.other === null ? null : String(d.other),
 				// written at the field's precision (z as 1.00), as a reviewer keeps it
-				[`expected${i}`]: d.expected === null ? null : d.field === 'raw' ? String(d.expected) : formatReference(d.field, d.expected),
+				d.expected === null ? null : d.field === 'raw' ? String(d.expected) : formatReference(d.field, d.expected),
 				// rule 5: the reference from the other pass's raw score (null where the rule gives none)
-				[`alt${i}`]: altOf(d),
-				[`oor${i}`]: d.out_of_range ? 1 : 0
-			});
-			return `(:p, :round, :pos${i}, :test${i}, :field${i}, :pass${i}, :kind${i}, :value${i}, :other${i}, :expected${i}, :alt${i}, :oor${i})`;
+				altOf(d),
+				d.out_of_range ? 1 : 0
+			);
+			return guardedRow(DISCREPANCY_COLUMNS, 'protocol_id');
 		});
-		await exec(
-			`INSERT INTO discrepancies (protocol_id, round, position, test_code, field, pass, kind, value, other, expected, alternative, out_of_range) VALUES ${rows.join(', ')}`,
-			params,
-			t
-		);
+		out.push({
+			sql: `INSERT INTO discrepancies (${DISCREPANCY_COLUMNS.join(', ')}) VALUES ${rows.join(', ')}`,
+			values
+		});
 	}
+	return out;
+}
+
+/** Store a reconciliation result as the round's discrepancy list (`discrepancyInserts`, in one round trip). */
+export async function storeDiscrepancies(p: Pick<ProtocolRow, 'id' | 'round'>, result: ReconcileResult, t: Transaction) {
+	const statements = discrepancyInserts(p, result);
+	if (statements.length) await pipeline(t, statements);
 }
 
 /** The reconciliation is stored: the protocol goes to review, and the trail says so with the counts (after `before`, in one INSERT). */
@@ -279,19 +303,17 @@ async function enterReview(p: Protocol, user: Actor, summary: Record<string, unk
 async function moveProtocol(p: Protocol, to: ProtocolRow['status'], t: Transaction): Promise<ProtocolRow['status']> {
 	const from = p.status;
 	p.set({ status: to, status_changed_at: dbNow() });
-	await saveLocked(
-		p,
-		t,
-		() =>
-			new ServiceError(
-				409,
-				'This protocol changed while the pass was being submitted (another submission got there first). Nothing was changed; reload to see its state.',
-				undefined,
-				'already_submitted'
-			)
-	);
+	await saveLocked(p, t, protocolMoved);
 	return from;
 }
+
+const protocolMoved = () =>
+	new ServiceError(
+		409,
+		'This protocol changed while the pass was being submitted (another submission got there first). Nothing was changed; reload to see its state.',
+		undefined,
+		'already_submitted'
+	);
 
 export type SubmitResult = { which: Which; status: ProtocolRow['status']; discrepancies: number | null; singlePass?: boolean };
 
@@ -299,10 +321,28 @@ export async function submitPass(protocolId: number, user: Actor, body: unknown)
 	const version = z.object({ draftVersion: z.number().int().min(0) }).safeParse(body);
 	if (!version.success) throw invalid('draftVersion: expected the draft version you are submitting', 'draftVersion');
 	return transaction(async (t) => {
-		// Locking the protocol row serializes submissions of both passes (two tabs, a retry, both scorers at once).
-		const { p, duties } = await protocolFor(protocolId, user, t, true);
+		// Locking the protocol row serializes submissions of both passes (two tabs, a retry, both scorers
+		// at once). Sent with it, run once the lock is held (one round trip, issue 18): the mark of a
+		// second submit, the once-only check — only the caller's own second pass, a draft of the version
+		// they saw, moves (on a Galera cluster a submission of the same pass through another node is stopped
+		// here, or by the certification conflict at commit — 1213, retried by transaction(): the rerun finds
+		// it submitted and answers 409). For anyone else it matches no row; any refusal below throws, so
+		// the mark rolls back with the rest.
+		const [rows, mark] = (await pipeline(t, [
+			{ sql: 'SELECT * FROM protocols WHERE id = ? FOR UPDATE', values: [protocolId] },
+			{
+				sql: `UPDATE passes SET status = 'submitted', submitted_at = CURRENT_TIMESTAMP(3)
+				       WHERE protocol_id = ? AND round = (SELECT round FROM protocols WHERE id = ?) AND which = 'second' AND scorer_id = ?
+				         AND status = 'draft' AND draft_version = ? AND ${IN_TX}`,
+				values: [protocolId, protocolId, user.id, version.data.draftVersion]
+			}
+		])) as [ProtocolRow[], { affectedRows: number }];
+		// the model instance, as findByPk builds it, so the first submit can save it under its lock_version
+		const p = rows[0] ? models().Protocol.build(rows[0], { raw: true, isNewRecord: false }) : null;
+		const duties = p ? dutiesOf(p, user) : [];
+		if (!p || duties.length === 0) throw notFound();
 		const which = myDuty(duties);
-		if (which === 'second') return submitSecond(p, user, version.data.draftVersion, t);
+		if (which === 'second') return submitSecond(p, user, version.data.draftVersion, mark.affectedRows, t);
 		const pass = await passRow(p, which, t, true);
 		if (pass.scorer_id !== user.id) throw notFound('This pass');
 		if (pass.status === 'submitted') throw alreadySubmitted();
@@ -357,18 +397,8 @@ const submitEvent = (p: Protocol, pass: Pass, user: Actor, which: Which): TrailE
  * protocol's lock, and the trail's two events go in one INSERT. Any refusal throws, so the mark
  * rolls back with the rest.
  */
-async function submitSecond(p: Protocol, user: Actor, draftVersion: number, t: Transaction): Promise<SubmitResult> {
+async function submitSecond(p: Protocol, user: Actor, draftVersion: number, marked: number, t: Transaction): Promise<SubmitResult> {
 	const { Pass } = models();
-	// Once only: only the caller's own draft of the version they saw moves (on a Galera cluster a
-	// submission of the same pass through another node is stopped here, or by the certification
-	// conflict at commit — 1213, retried by transaction(): the rerun finds it submitted and answers 409).
-	// Awaited before the reads: Sequelize sends a model's query after its hooks have run, so two
-	// queries started together may reach the server in either order, and the reads must see the mark
-	// (submitted_at, the database's clock, is what the audit counts).
-	const [marked] = await Pass.update(
-		{ status: 'submitted', submitted_at: dbNow() },
-		{ where: { protocol_id: p.id, round: p.round, which: 'second', scorer_id: user.id, status: 'draft', draft_version: draftVersion }, transaction: t }
-	);
 	// the pure reads, sent together (one round trip): no write is in flight while they run, so were
 	// one to fail, nothing could run outside the transaction after a rollback
 	const [passes, verification, earlier, plan, domains] = await Promise.all([
@@ -402,8 +432,33 @@ async function submitSecond(p: Protocol, user: Actor, draftVersion: number, t: T
 			);
 		throw e;
 	}
-	await storeDiscrepancies(p, result, t);
-	await enterReview(p, user, result.summary, t, [submitEvent(p, pass, user, 'second')]);
+	// The reconciliation's own writes, sent at once (one round trip): the protocol's compare-and-set to
+	// review (under the lock_version this transaction read; every change of status or round moves it),
+	// the discrepancies, the trail's two events. Each after the first is guarded by IN_TX (db.ts).
+	const events = [
+		submitEvent(p, pass, user, 'second'),
+		{
+			actorId: user.id,
+			entity: 'protocol',
+			entityId: p.id,
+			protocolId: p.id,
+			action: 'reconcile',
+			oldValue: p.status,
+			newValue: { status: 'in_review', round: p.round, ...result.summary }
+		}
+	].map(trailRow);
+	const [moved] = (await pipeline(t, [
+		{
+			sql: `UPDATE protocols SET status = 'in_review', status_changed_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1 WHERE id = ? AND lock_version = ?`,
+			values: [p.id, p.lock_version]
+		},
+		...discrepancyInserts(p, result),
+		{
+			sql: `INSERT INTO audit_events (${TRAIL_COLUMNS.join(', ')}) VALUES ${events.map(() => guardedRow(TRAIL_COLUMNS, 'entity')).join(', ')}`,
+			values: events.flatMap((e) => TRAIL_COLUMNS.map((c) => e[c]))
+		}
+	])) as Array<{ affectedRows: number }>;
+	if (moved.affectedRows !== 1) throw protocolMoved();
 	await recordSubmission(p.id, p.round, t, { passes: [first, pass], batteryId: p.battery_id, earlier, domains });
 	await afterReconcile(p, t, verification);
 	await notifyReviewStarted(p.id, p.round, p.reviewer_id, t);
