@@ -5,7 +5,7 @@
  */
 import { Op, type Transaction } from 'sequelize';
 import { z } from 'zod';
-import { select, selectOne, exec, transaction, jsonValue, pipeline, guardedRow, IN_TX, type Piped } from '../db';
+import { select, selectOne, exec, transaction, jsonValue, pipeline, guardedRow, markerStatement, IN_TX, type Piped } from '../db';
 import { models } from '../models';
 import { dbNow, inTx, reading, saveLocked, type DiscrepancyRow, type ProtocolRow } from '../models/protocol';
 import { recordEvent, trailRow, TRAIL_COLUMNS } from '../trail';
@@ -391,10 +391,10 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 			// lock, held from here to the commit only: the protocol must still be in review, in this round,
 			// with this reviewer. A sign-off, reopen or reassignment that committed first wins and this
 			// decision is refused; one that comes later waits for the commit and sees the new version.
-			...(raw ? [] : [protocolCas(p, user)])
+			...(raw ? [] : [protocolCas(p, user), markerStatement(t)])
 		]);
 		if ((writes[0] as OkPacket).affectedRows !== 1) throw await staleResolution(d.id, t);
-		let moved = raw ? 0 : (writes[writes.length - 1] as OkPacket).affectedRows;
+		let moved = raw ? 0 : (writes[writes.length - 2] as OkPacket).affectedRows;
 		let rejudged = null;
 		let open: number;
 		if (raw) {

@@ -392,10 +392,11 @@ const submitEvent = (p: Protocol, pass: Pass, user: Actor, which: Which): TrailE
 
 /**
  * The second submission, in the transaction that locked the protocol row: the reconciliation. Its
- * statements are few on purpose (issue 18: the time is the round trips): the pass is marked by one
- * UPDATE that is also the once-only check, everything else it reads is read at once under the
- * protocol's lock, and the trail's two events go in one INSERT. Any refusal throws, so the mark
- * rolls back with the rest.
+ * statements are few on purpose (issue 18: the time is the round trips): the pass was marked by one
+ * UPDATE that is also the once-only check (`marked`: the rows it moved; sent by submitPass with the
+ * protocol's lock), everything else it reads is read at once under the protocol's lock, and its own
+ * writes (protocol, discrepancies, the trail's two events) go in one `pipeline`. Any refusal throws,
+ * so the mark rolls back with the rest.
  */
 async function submitSecond(p: Protocol, user: Actor, draftVersion: number, marked: number, t: Transaction): Promise<SubmitResult> {
 	const { Pass } = models();
