@@ -39,18 +39,61 @@ interface Caught {
 	html: string | null;
 }
 
+/**
+ * A message as kept at receipt: the envelope and the raw bytes (as a latin1 string, so JSON keeps every
+ * byte), parsed with mailparser only when something reads it (issue 18: parsing at receipt was most of
+ * the fake's CPU per message, on the machine the worker shares; most caught mail is never read). A file
+ * written by an earlier fake holds the parsed form and is read as it is.
+ */
+type Kept = Pick<Caught, 'id' | 'receivedAt' | 'envelope'> & { raw?: string; parsed?: Caught; parsing?: Promise<Caught> };
+
+async function parsedOf(m: Kept): Promise<Caught> {
+	if (m.parsed) return m.parsed;
+	m.parsing ??= (async () => {
+		// the catch keeps text and html as sent: no text-to-HTML with linkified links (its textAsHtml), and no
+		// image links rewritten
+		const parsed = await simpleParser(Buffer.from(m.raw ?? '', 'latin1'), { skipTextToHtml: true, skipTextLinks: true, skipImageLinks: true });
+		const headers: Record<string, string> = {};
+		for (const [k, v] of parsed.headers) headers[k] = typeof v === 'string' ? v : JSON.stringify(v);
+		const out: Caught = {
+			id: m.id,
+			receivedAt: m.receivedAt,
+			envelope: m.envelope,
+			from: addr(parsed.from),
+			to: addr(parsed.to),
+			cc: addr(parsed.cc),
+			subject: parsed.subject ?? '',
+			messageId: parsed.messageId ?? null,
+			headers,
+			text: parsed.text ?? '',
+			html: typeof parsed.html === 'string' ? parsed.html : null
+		};
+		m.parsed = out;
+		delete m.raw;
+		return out;
+	})();
+	return m.parsing;
+}
+
+/** A kept message from its file: the raw form (this fake) or the parsed one (an earlier fake). */
+function keptOf(json: string): Kept {
+	const x = JSON.parse(json) as Kept & Partial<Caught>;
+	if (typeof x.raw === 'string') return { id: x.id, receivedAt: x.receivedAt, envelope: x.envelope, raw: x.raw };
+	return { id: x.id, receivedAt: x.receivedAt, envelope: x.envelope, parsed: x as Caught };
+}
+
 let refuseNext = 0;
 
 // ISO times and ids compare as plain strings (no locale rules: this runs for every message caught)
 const cmp = (x: string, y: string) => (x < y ? -1 : x > y ? 1 : 0);
-const byTime = (a: Caught, b: Caught) => cmp(a.receivedAt, b.receivedAt) || cmp(a.id, b.id);
+const byTime = (a: Kept, b: Kept) => cmp(a.receivedAt, b.receivedAt) || cmp(a.id, b.id);
 /** Every caught message, oldest first. */
-let caught: Caught[] = readdirSync(dir)
+let caught: Kept[] = readdirSync(dir)
 	.filter((f) => f.endsWith('.json'))
-	.map((f) => JSON.parse(readFileSync(join(dir, f), 'utf8')) as Caught)
+	.map((f) => keptOf(readFileSync(join(dir, f), 'utf8')))
 	.sort(byTime);
 
-function list(): Caught[] {
+function list(): Kept[] {
 	return caught;
 }
 
@@ -76,29 +119,18 @@ const smtp = new SMTPServer({
 				return callback(err);
 			}
 			try {
-				const raw = Buffer.concat(chunks);
-				// the catch keeps text and html as sent: no text-to-HTML with linkified links (its textAsHtml), which
-				// cost most of the fake's time per message, and no image links rewritten
-				const parsed = await simpleParser(raw, { skipTextToHtml: true, skipTextLinks: true, skipImageLinks: true });
-				const headers: Record<string, string> = {};
-				for (const [k, v] of parsed.headers) headers[k] = typeof v === 'string' ? v : JSON.stringify(v);
-				const msg: Caught = {
+				const msg: Kept = {
 					id: `${Date.now().toString(36)}-${randomUUID().slice(0, 8)}`,
 					receivedAt: new Date().toISOString(),
 					envelope: {
 						from: session.envelope.mailFrom ? session.envelope.mailFrom.address : null,
 						to: session.envelope.rcptTo.map((r) => r.address)
 					},
-					from: addr(parsed.from),
-					to: addr(parsed.to),
-					cc: addr(parsed.cc),
-					subject: parsed.subject ?? '',
-					messageId: parsed.messageId ?? null,
-					headers,
-					text: parsed.text ?? '',
-					html: typeof parsed.html === 'string' ? parsed.html : null
+					raw: Buffer.concat(chunks).toString('latin1')
 				};
-				writeFileSync(join(dir, `${msg.id}.json`), JSON.stringify(msg), { mode: 0o600 });
+				writeFileSync(join(dir, `${msg.id}.json`), JSON.stringify({ id: msg.id, receivedAt: msg.receivedAt, envelope: msg.envelope, raw: msg.raw }), {
+					mode: 0o600
+				});
 				// into its place (messages caught in the same millisecond arrive in any order): a binary search from
 				// the end, not a sort of the whole catch per message
 				let at = caught.length;
@@ -121,7 +153,7 @@ const smtp = new SMTPServer({
 smtp.on('error', (e) => console.error('smtp error', e.message));
 smtp.listen(smtpPort, '127.0.0.1');
 
-const http = createServer((req, res) => {
+const http = createServer(async (req, res) => {
 	const url = new URL(req.url ?? '/', 'http://x');
 	const send = (status: number, body: unknown, headers: Record<string, string> = {}) => {
 		res.writeHead(status, { 'content-type': 'application/json', ...headers });
@@ -137,10 +169,16 @@ const http = createServer((req, res) => {
 		const offset = Math.max(0, Number(url.searchParams.get('offset') ?? 0) || 0);
 		const limit = url.searchParams.has('limit') ? Math.max(0, Number(url.searchParams.get('limit')) || 0) : all.length;
 		all = all.slice(offset, offset + limit);
+		let page: Caught[];
+		try {
+			page = await Promise.all(all.map(parsedOf)); // only the page asked for is parsed (once)
+		} catch (e) {
+			return send(500, { error: `could not parse a caught message: ${e instanceof Error ? e.message : e}` });
+		}
 		const body =
 			url.searchParams.get('summary') === '1'
-				? all.map(({ id, receivedAt, envelope, from, to, cc, subject }) => ({ id, receivedAt, envelope, from, to, cc, subject }))
-				: all;
+				? page.map(({ id, receivedAt, envelope, from, to, cc, subject }) => ({ id, receivedAt, envelope, from, to, cc, subject }))
+				: page;
 		return send(200, body, { 'x-total-count': String(total) });
 	}
 	if (url.pathname === '/messages' && req.method === 'DELETE') {
@@ -151,8 +189,10 @@ const http = createServer((req, res) => {
 	}
 	const m = url.pathname.match(/^\/messages\/([\w-]+)$/);
 	if (m) {
+		const kept = caught.find((x) => x.id === m[1]);
+		if (kept) return send(200, await parsedOf(kept));
 		try {
-			return send(200, JSON.parse(readFileSync(join(dir, `${m[1]}.json`), 'utf8')));
+			return send(200, await parsedOf(keptOf(readFileSync(join(dir, `${m[1]}.json`), 'utf8'))));
 		} catch {
 			return send(404, { error: 'no such message' });
 		}

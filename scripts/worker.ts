@@ -6,21 +6,21 @@
  */
 import { Worker } from 'bullmq';
 import { bullConnection } from '../src/lib/server/redis';
-import { MAIL_QUEUE, dispatchOutbox, closeMailQueue } from '../src/lib/server/mail/queue';
-import type { MailJob } from '../src/lib/server/mail/deliver';
+import { MAIL_QUEUE, dispatchOutbox, closeMailQueue, isBatch, requeueSingle, type QueuedMail } from '../src/lib/server/mail/queue';
 import { closeDb } from '../src/lib/server/db';
 import { closeMailTransport } from '../src/lib/server/mail/transport';
 import { sweepMail, markMailFailed } from '../src/lib/server/mail/recover';
 import { sweepMarkers } from '../src/lib/server/models/commit-marker';
 import { foldDeltas } from '../src/lib/server/audit-stats/record';
 import { registerSvelteHooks } from './lib/svelte-register';
+import type { MailJob } from '../src/lib/server/mail/deliver';
 
 // Every e-mail body is a Svelte component, which tsx cannot import: compile .svelte with
 // svelte/compiler from here on (scripts/lib/svelte-hooks.js), then load the renderers. Dynamic
 // imports on purpose: static imports are all loaded before the hook could be registered, so no
 // static import above may lead to a .svelte file (the delivery and every renderer come here).
 registerSvelteHooks();
-const { deliver } = await import('../src/lib/server/mail/deliver');
+const { deliver, deliverBatch } = await import('../src/lib/server/mail/deliver');
 await import('../src/lib/server/mail/account'); // registers the invitation and reset e-mails
 await import('../src/lib/server/mail/verification'); // registers the back-to-full-double-entry e-mail
 await import('../src/lib/server/mail/reminders/delivery'); // registers the review renderers and reminders
@@ -29,9 +29,19 @@ const interval = Number(process.env.DISPATCH_INTERVAL_MS ?? 500);
 const sweepMs = Number(process.env.MAIL_SWEEP_MS ?? 30_000);
 const stalledMs = Number(process.env.WORKER_STALLED_MS ?? (process.env.CROSSTALLY_MODE === 'production' ? 30_000 : 3_000));
 
-const worker = new Worker<MailJob>(
+const worker = new Worker<QueuedMail>(
 	MAIL_QUEUE,
 	async (job) => {
+		if (isBatch(job.data)) {
+			// many messages due now (mail/deliver.ts deliverBatch); those that leave the batch get jobs of their own
+			const results = await deliverBatch(job.data.batch, requeueSingle);
+			for (const m of job.data.batch)
+				if (results.get(m.key) === 'skipped' && !m.kind.startsWith('review_'))
+					await markMailFailed(m.key, 'not sent: nothing to send (the account is inactive or gone)');
+			const count: Record<string, number> = {};
+			for (const r of results.values()) count[r] = (count[r] ?? 0) + 1;
+			return count;
+		}
 		const result = await deliver(job.data);
 		// nothing to send (an invitation to an account deactivated since): the row ends, visibly
 		if (result === 'skipped' && !job.data.kind.startsWith('review_'))
@@ -47,12 +57,16 @@ const worker = new Worker<MailJob>(
 	}
 );
 worker.on('failed', (job, err) => {
-	console.error(`[worker] ${job?.data.key} attempt ${job?.attemptsMade}: ${err.message}`);
+	if (job && isBatch(job.data)) {
+		// retried as a whole; out of retries, its rows are handed back by the sweep (no job holds them)
+		console.error(`[worker] batch of ${job.data.batch.length} attempt ${job.attemptsMade}: ${err.message}`);
+		return;
+	}
+	const data = job?.data as MailJob | undefined;
+	console.error(`[worker] ${data?.key} attempt ${job?.attemptsMade}: ${err.message}`);
 	// out of retries: the outbox row is marked failed (visible), never left waiting
-	if (job && job.attemptsMade >= (job.opts.attempts ?? 1)) {
-		markMailFailed(job.data.key, err.message).catch((e) =>
-			console.error(`[worker] could not mark ${job.data.key} failed: ${e instanceof Error ? e.message : e}`)
-		);
+	if (job && data && job.attemptsMade >= (job.opts.attempts ?? 1)) {
+		markMailFailed(data.key, err.message).catch((e) => console.error(`[worker] could not mark ${data.key} failed: ${e instanceof Error ? e.message : e}`));
 	}
 });
 worker.on('error', (err) => console.error(`[worker] ${err.message}`));

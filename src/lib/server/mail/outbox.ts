@@ -22,6 +22,15 @@ export async function enqueueMail(kind: MailKind, idempotencyKey: string, payloa
 	);
 }
 
+/** Many outbox rows in one INSERT IGNORE (a batch's next reminders; outside any transaction). */
+export async function enqueueMails(rows: { kind: MailKind; key: string; payload: Record<string, unknown> }[]): Promise<void> {
+	if (rows.length === 0) return;
+	for (const r of rows) if (!MAIL_KINDS.includes(r.kind)) throw new Error(`unknown mail kind ${r.kind}`);
+	await exec(`INSERT IGNORE INTO outbox (kind, idempotency_key, payload) VALUES :rows`, {
+		rows: rows.map((r) => [r.kind, r.key, JSON.stringify(r.payload)])
+	});
+}
+
 /** Rows the dispatcher has not handed to the queue yet, oldest first. */
 export async function pendingOutbox(limit = 200): Promise<Pick<Outbox, 'id' | 'kind' | 'idempotency_key' | 'payload' | 'created_at'>[]> {
 	return read(() =>

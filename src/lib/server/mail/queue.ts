@@ -3,7 +3,7 @@ import { Queue } from 'bullmq';
 import { bullConnection } from '../redis';
 import { jsonValue } from '../db';
 import { pendingOutbox, markDispatched, markDispatchFailed } from './outbox';
-import type { MailJob } from './deliver';
+import type { MailJob, Requeued } from './deliver';
 
 export const MAIL_QUEUE = 'crosstally-mail';
 
@@ -14,10 +14,23 @@ export const jobOptions = {
 	removeOnFail: { count: 5_000 }
 };
 
-let queue: Queue<MailJob> | null = null;
+/** The name of a job that carries many messages (`deliverBatch`); every other job carries one (`deliver`). */
+export const BATCH_JOB = 'batch';
+export interface MailBatchJob {
+	batch: MailJob[];
+}
+export type QueuedMail = MailJob | MailBatchJob;
+export const isBatch = (data: QueuedMail): data is MailBatchJob => Array.isArray((data as MailBatchJob).batch);
 
-export function mailQueue(): Queue<MailJob> {
-	if (!queue) queue = new Queue<MailJob>(MAIL_QUEUE, { connection: bullConnection({ enableOfflineQueue: false }) });
+/** Messages due now per queue job (issue 18): the queue's and the database's cost is per batch, not per message. */
+export const mailBatchSize = () => Math.max(1, Number(process.env.MAIL_BATCH ?? 25));
+
+export const jobIdOf = (key: string) => key.replace(/:/g, '_');
+
+let queue: Queue<QueuedMail> | null = null;
+
+export function mailQueue(): Queue<QueuedMail> {
+	if (!queue) queue = new Queue<QueuedMail>(MAIL_QUEUE, { connection: bullConnection({ enableOfflineQueue: false }) });
 	return queue;
 }
 
@@ -30,20 +43,27 @@ export async function closeMailQueue(): Promise<void> {
 }
 
 /**
- * Move pending outbox rows into the queue. The BullMQ job id is the idempotency key, so a row
- * dispatched twice (a crash between add and mark) is still one job. Returns the number moved.
+ * Move pending outbox rows into the queue. A message with a delay (a reminder not due yet) is a job of
+ * its own whose id is the idempotency key, so a row dispatched twice (a crash between add and mark) is
+ * still one job. Messages due now go in batches of `mailBatchSize()` per job (BullMQ's own ids): a batch
+ * dispatched twice is two jobs, and mail_log keeps each message to one send. Returns the number moved.
  */
 export async function dispatchOutbox(limit = 200): Promise<number> {
 	const rows = await pendingOutbox(limit);
 	if (rows.length === 0) return 0;
+	const size = mailBatchSize();
+	const due: MailJob[] = [];
+	const jobs: { name: string; data: QueuedMail; opts: Record<string, unknown> }[] = [];
+	for (const r of rows) {
+		const payload = jsonValue<Record<string, unknown>>(r.payload);
+		const data: MailJob = { kind: r.kind, key: r.idempotency_key, payload };
+		const delay = delayOf(payload);
+		if (size > 1 && !delay.delay) due.push(data);
+		else jobs.push({ name: r.kind, data, opts: { ...jobOptions, jobId: jobIdOf(r.idempotency_key), ...delay } });
+	}
+	for (let i = 0; i < due.length; i += size) jobs.push({ name: BATCH_JOB, data: { batch: due.slice(i, i + size) }, opts: { ...jobOptions } });
 	try {
-		await mailQueue().addBulk(
-			rows.map((r) => ({
-				name: r.kind,
-				data: { kind: r.kind, key: r.idempotency_key, payload: jsonValue<Record<string, unknown>>(r.payload) },
-				opts: { ...jobOptions, jobId: r.idempotency_key.replace(/:/g, '_'), ...delayOf(r.payload) }
-			}))
-		);
+		await mailQueue().addBulk(jobs);
 	} catch (e) {
 		await markDispatchFailed(
 			rows.map((r) => r.id),
@@ -60,4 +80,25 @@ function delayOf(payload: unknown): { delay?: number } {
 	const nb = jsonValue<{ notBefore?: number }>(payload).notBefore;
 	if (typeof nb !== 'number') return {};
 	return { delay: Math.max(0, nb - Date.now()) };
+}
+
+/**
+ * Messages a batch handed back (../mail/deliver.ts `deliverBatch`): each a job of its own, id = the key,
+ * as a message dispatched alone. After an SMTP failure it waits the backoff and has the attempts left,
+ * the batch having been the first: the same delays and number of attempts as a message sent alone.
+ */
+export async function requeueSingle(list: Requeued[]): Promise<void> {
+	if (list.length === 0) return;
+	const { delay } = jobOptions.backoff;
+	await mailQueue().addBulk(
+		list.map(({ job, afterSendFailure }) => ({
+			name: job.kind,
+			data: job,
+			opts: {
+				...jobOptions,
+				jobId: jobIdOf(job.key),
+				...(afterSendFailure ? { delay, attempts: jobOptions.attempts - 1, backoff: { type: 'exponential' as const, delay: 2 * delay } } : {})
+			}
+		}))
+	);
 }

@@ -16,13 +16,12 @@
 import { Op, fn } from 'sequelize';
 import { models } from '../models';
 import { autocommit as write, readRetried as read } from '../db';
-import { mailQueue } from './queue';
+import { jobIdOf, mailQueue } from './queue';
 import { redis } from '../redis';
 import { claimLeaseMs } from './deliver';
 import { recoverLostReviewMail } from './reminders/scheduling';
 
 const REVIEW_KINDS = new Set(['review_first', 'review_reminder']);
-const jobIdOf = (key: string) => key.replace(/:/g, '_');
 
 export interface SweepResult {
 	claimsTakenBack: number;

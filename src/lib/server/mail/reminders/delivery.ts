@@ -6,9 +6,9 @@
  */
 import { config } from '../../config';
 import { usersWithRole } from '../../users';
-import { afterDelivery, renderers, type RenderedMail } from '../deliver';
-import { reviewMailSettings } from './settings';
-import { loadState, scheduleNext, type RenderedReviewState } from './scheduling';
+import { afterDelivery, afterDeliveryMany, batchRenderers, renderers, type RenderedMail } from '../deliver';
+import { reviewMailSettings, type ReviewMailSettings } from './settings';
+import { loadState, loadStates, scheduleNext, scheduleNextMany, type RenderedReviewState, type ReviewState } from './scheduling';
 import { reviewMailBody } from './render';
 import type { ReviewMailPayload } from './keys';
 
@@ -18,8 +18,33 @@ export async function renderReview(raw: Record<string, unknown>, now = new Date(
 	if (!state) return null;
 	const settings = await reviewMailSettings();
 	const escalated = p.reminderNo > settings.escalateAfterReminders;
+	return reviewMail(p, state, settings, escalated ? await leadEmails() : [], now);
+}
+
+/** The messages of a batch: what they need read once for all (../deliver.ts deliverBatch). */
+export async function renderReviews(raw: Record<string, unknown>[], now = new Date()): Promise<(RenderedMail | null | Error)[]> {
+	const ps = raw as unknown as ReviewMailPayload[];
+	const states = await loadStates(ps);
+	if (states.every((s) => !s)) return states.map(() => null);
+	const settings = await reviewMailSettings();
+	const leads = ps.some((p, i) => states[i] && p.reminderNo > settings.escalateAfterReminders) ? await leadEmails() : [];
+	return ps.map((p, i) => {
+		const state = states[i];
+		if (!state) return null;
+		try {
+			return reviewMail(p, state, settings, p.reminderNo > settings.escalateAfterReminders ? leads : [], now);
+		} catch (e) {
+			return e instanceof Error ? e : new Error(String(e));
+		}
+	});
+}
+
+const leadEmails = async () => [...new Set((await usersWithRole('lead')).map((u) => u.email.toLowerCase()))];
+
+function reviewMail(p: ReviewMailPayload, state: ReviewState, settings: ReviewMailSettings, leads: string[], now: Date): RenderedMail {
+	const escalated = p.reminderNo > settings.escalateAfterReminders;
 	const reviewerEmail = state.reviewer.email.toLowerCase();
-	const cc = escalated ? [...new Set((await usersWithRole('lead')).map((u) => u.email.toLowerCase()))].filter((e) => e !== reviewerEmail) : [];
+	const cc = leads.filter((e) => e !== reviewerEmail);
 	const testDate = state.protocol.test_date instanceof Date ? state.protocol.test_date.toISOString().slice(0, 10) : String(state.protocol.test_date);
 	const body = reviewMailBody(
 		{
@@ -48,3 +73,7 @@ renderers.review_first = (p) => renderReview(p);
 renderers.review_reminder = (p) => renderReview(p);
 afterDelivery.review_first = (job, result, context) => scheduleNext(job, result, Date.now(), context as RenderedReviewState | undefined);
 afterDelivery.review_reminder = (job, result, context) => scheduleNext(job, result, Date.now(), context as RenderedReviewState | undefined);
+batchRenderers.review_first = (ps) => renderReviews(ps);
+batchRenderers.review_reminder = (ps) => renderReviews(ps);
+afterDeliveryMany.review_first = (sent) => scheduleNextMany(sent);
+afterDeliveryMany.review_reminder = (sent) => scheduleNextMany(sent);

@@ -22,7 +22,7 @@ import { Op } from 'sequelize';
 import { select, selectOne, type Tx } from '../../db';
 import { models } from '../../models';
 import type { Outbox } from '../../models/mail';
-import { enqueueMail } from '../outbox';
+import { enqueueMail, enqueueMails } from '../outbox';
 import { autocommit as write, readRetried as read } from '../../db';
 import type { DeliveryResult, MailJob } from '../deliver';
 import type { ProtocolRow } from '../../models/protocol';
@@ -120,6 +120,68 @@ export async function loadState(p: ReviewMailPayload, needOpen: boolean): Promis
 	return { protocol, open, reviewer: { email: reviewer_email, name: reviewer_name, active: reviewer_active } };
 }
 
+/**
+ * `loadState` for the messages of a batch (../deliver.ts deliverBatch), in three statements whatever their
+ * number: the protocols with their examinee's code, battery and assigned reviewer; the current chain of
+ * each protocol round (the last first e-mail written for it); the open discrepancies. The same checks as
+ * `loadState`, message by message; null where the chain has ended.
+ */
+export async function loadStates(ps: ReviewMailPayload[]): Promise<(ReviewState | null)[]> {
+	if (ps.length === 0) return [];
+	const ids = [...new Set(ps.map((p) => p.protocolId))];
+	type Row = MailProtocol & { reviewer_email: string | null; reviewer_name: string; reviewer_active: number };
+	const rows = await select<Row>(
+		`SELECT p.id, p.status, p.round, p.reviewer_id, p.status_changed_at, e.code, p.test_date, b.name AS battery,
+		        u.email AS reviewer_email, u.name AS reviewer_name, u.active AS reviewer_active
+		 FROM protocols p JOIN examinees e ON e.id = p.examinee_id LEFT JOIN batteries b ON b.id = p.battery_id
+		      LEFT JOIN users u ON u.id = p.reviewer_id
+		 WHERE p.id IN (:ids)`,
+		{ ids }
+	);
+	const byId = new Map(rows.map((r) => [r.id, r]));
+	// the checks that need no more reading first: only the messages still alive are read further
+	const live = ps.filter((p) => {
+		const r = byId.get(p.protocolId);
+		return r && r.status === 'in_review' && r.round === p.round && r.reviewer_id === p.reviewerId && r.reviewer_email !== null && r.reviewer_active;
+	});
+	if (live.length === 0) return ps.map(() => null);
+	// the current chain per protocol round: one LIKE per prefix (each an index range on the unique key)
+	const prefixes = [...new Set(live.map((p) => roundPrefix(p.protocolId, p.round)))];
+	const firsts = await select<{ idempotency_key: string }>(
+		`SELECT idempotency_key FROM outbox WHERE kind = 'review_first' AND (${prefixes.map((_, i) => `idempotency_key LIKE :x${i}`).join(' OR ')}) ORDER BY id`,
+		Object.fromEntries(prefixes.map((x, i) => [`x${i}`, `${x}%`]))
+	);
+	const chainOfRound = new Map<string, string>();
+	for (const f of firsts) {
+		const prefix = prefixes.find((x) => f.idempotency_key.startsWith(x));
+		if (prefix) chainOfRound.set(prefix, chainOfKey(f.idempotency_key)); // ordered by id: the last one wins
+	}
+	const open = await select<MailDiscrepancy & { protocol_id: number; round: number }>(
+		`SELECT d.protocol_id, d.round, d.test_code, d.field, d.pass, d.kind, d.value, d.other, d.expected, d.out_of_range,
+		        (SELECT t.name FROM protocol_tests pt JOIN tests t ON t.id = pt.test_id
+		          WHERE pt.protocol_id = d.protocol_id AND t.code = d.test_code LIMIT 1) AS test_name
+		 FROM discrepancies d
+		 WHERE d.protocol_id IN (:ids) AND d.resolved_at IS NULL
+		 ORDER BY d.protocol_id, d.position`,
+		{ ids: [...new Set(live.map((p) => p.protocolId))] }
+	);
+	const openOf = new Map<string, MailDiscrepancy[]>();
+	for (const { protocol_id, round, ...d } of open) {
+		const k = `${protocol_id}:${round}`;
+		if (!openOf.has(k)) openOf.set(k, []);
+		openOf.get(k)!.push(d);
+	}
+	const alive = new Set(live);
+	return ps.map((p) => {
+		if (!alive.has(p) || chainOfRound.get(roundPrefix(p.protocolId, p.round)) !== p.chain) return null;
+		const list = openOf.get(`${p.protocolId}:${p.round}`) ?? [];
+		if (p.reminderNo > 0 && list.length === 0) return null;
+		const { reviewer_email, reviewer_name, reviewer_active, ...protocol } = byId.get(p.protocolId)!;
+		// each message its own copies: a renderer or hook may not see another message's list
+		return { protocol: { ...protocol }, open: list.map((d) => ({ ...d })), reviewer: { email: reviewer_email!, name: reviewer_name, active: reviewer_active } };
+	});
+}
+
 // ---------------------------------------------------------------------------------------------
 // The next reminder
 
@@ -148,6 +210,30 @@ export async function scheduleNext(job: MailJob, result: DeliveryResult, now = D
 		notBefore: now + Math.round(settings.reminderIntervalMinutes * 60_000)
 	};
 	await enqueueMail('review_reminder', reviewMailKey(p.chain, next.reminderNo), { ...next });
+}
+
+/** `scheduleNext` for the review messages a batch sent, with what their renders read: one INSERT for all. */
+export async function scheduleNextMany(sent: { job: MailJob; context?: unknown }[], now = Date.now()): Promise<void> {
+	const rows: { kind: 'review_reminder'; key: string; payload: Record<string, unknown> }[] = [];
+	for (const { job, context } of sent) {
+		const rendered = context as RenderedReviewState | undefined;
+		if (!rendered) {
+			await scheduleNext(job, 'sent', now); // not rendered here (never in a batch): read again
+			continue;
+		}
+		if (rendered.state.open.length === 0) continue; // nothing open: the chain ends
+		const p = job.payload as unknown as ReviewMailPayload;
+		const next: ReviewMailPayload = {
+			protocolId: p.protocolId,
+			round: p.round,
+			reviewerId: p.reviewerId,
+			chain: p.chain,
+			reminderNo: p.reminderNo + 1,
+			notBefore: now + Math.round(rendered.settings.reminderIntervalMinutes * 60_000)
+		};
+		rows.push({ kind: 'review_reminder', key: reviewMailKey(p.chain, next.reminderNo), payload: { ...next } });
+	}
+	await enqueueMails(rows);
 }
 
 /** The next reminder scheduled for a protocol's current chain, if any (for "next reminder at …"). */
