@@ -30,24 +30,29 @@ afterAll(async () => {
 	await closeDb();
 });
 
-/** Five invitations written while no worker runs: the worker's first dispatch puts them in one batch. */
-async function fiveInvitations(tag: string): Promise<{ email: string; key: string }[]> {
-	// the worker npm test started hands out what is waiting first, so only these five wait when it stops
+async function invite(tag: string): Promise<{ email: string; key: string }> {
+	const email = `${tag}-${Date.now()}@clinic.test`;
+	const admin = await signedIn('admin');
+	const r = await admin.action('/people?/invite', { name: `Batch ${tag}`, email, roles: ['scorer'] });
+	expect(r.body.type).toBe('success');
+	const row = await selectOne<{ idempotency_key: string }>(
+		`SELECT o.idempotency_key FROM outbox o JOIN users u ON u.id = JSON_VALUE(o.payload, '$.userId') WHERE u.email = :email`,
+		{ email }
+	);
+	return { email, key: row!.idempotency_key };
+}
+
+/** Stop the worker once nothing waits in the outbox: what is written next waits for the next worker alone. */
+async function drainedAndStopped() {
 	await waitFor(async () => (await selectOne<{ n: number }>('SELECT COUNT(*) AS n FROM outbox WHERE dispatched_at IS NULL'))?.n === 0, 30_000);
 	await stopWorker();
-	const admin = await signedIn('admin');
+}
+
+/** Five invitations written while no worker runs: the worker's first dispatch puts them in one batch. */
+async function fiveInvitations(tag: string): Promise<{ email: string; key: string }[]> {
+	await drainedAndStopped();
 	const out: { email: string; key: string }[] = [];
-	const stamp = Date.now();
-	for (const i of FIVE) {
-		const email = `${tag}-${i}-${stamp}@clinic.test`;
-		const r = await admin.action('/people?/invite', { name: `Batch ${tag} ${i}`, email, roles: ['scorer'] });
-		expect(r.body.type).toBe('success');
-		const row = await selectOne<{ idempotency_key: string }>(
-			`SELECT o.idempotency_key FROM outbox o JOIN users u ON u.id = JSON_VALUE(o.payload, '$.userId') WHERE u.email = :email`,
-			{ email }
-		);
-		out.push({ email, key: row!.idempotency_key });
-	}
+	for (const i of FIVE) out.push(await invite(`${tag}-${i}`));
 	return out;
 }
 
@@ -112,5 +117,20 @@ describe('mail in batches (issue 18)', () => {
 		await sleep(4_000);
 		for (const m of msgs) expect(await caughtMail(m.email), m.email).toHaveLength(1);
 		expect(await statuses(keys)).toEqual(['uncertain', 'uncertain', 'uncertain', 'uncertain', 'uncertain']);
+	}, 120_000);
+
+	it('a batch waiting behind a busy worker is not handed to the queue again by the sweep', async () => {
+		await drainedAndStopped();
+		const a = await invite('batch-busy-a');
+		// one job at a time, each pausing 8 s before the hand-over; a sweep every second with a 2 s grace
+		await startWorker({ WORKER_CONCURRENCY: '1', MAIL_TEST_PAUSE_BEFORE_SEND_MS: '8000', MAIL_SWEEP_MS: '1000', MAIL_SWEEP_GRACE_MS: '2000' });
+		await waitFor(async () => (await statuses([a.key]))[0] === 'claimed', 20_000, 50);
+		const b = await invite('batch-busy-b'); // dispatched in a batch of its own, which waits behind a's
+		await waitFor(() => allCaught([a, b]), 60_000, 250);
+		await sleep(2_000);
+		expect(await caughtMail(b.email)).toHaveLength(1);
+		// dispatched once: it waited in its batch job for several sweeps (its row had no job under its key)
+		const row = await selectOne<{ attempts: number }>('SELECT attempts FROM outbox WHERE idempotency_key = :key', { key: b.key });
+		expect(row?.attempts).toBe(1);
 	}, 120_000);
 });

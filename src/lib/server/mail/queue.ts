@@ -1,6 +1,6 @@
 /** The BullMQ mail queue and the outbox dispatcher that feeds it. */
 import { Queue } from 'bullmq';
-import { bullConnection } from '../redis';
+import { bullConnection, redis } from '../redis';
 import { jsonValue } from '../db';
 import { pendingOutbox, markDispatched, markDispatchFailed } from './outbox';
 import type { MailJob, Requeued } from './deliver';
@@ -26,6 +26,14 @@ export const isBatch = (data: QueuedMail): data is MailBatchJob => Array.isArray
 export const mailBatchSize = () => Math.max(1, Number(process.env.MAIL_BATCH ?? 25));
 
 export const jobIdOf = (key: string) => key.replace(/:/g, '_');
+
+/**
+ * A message dispatched in a batch has no job under its key: this Redis key says "the queue has it" to the
+ * sweep (../mail/recover.ts), which otherwise would hand a batch still waiting behind a backlog to the
+ * queue again. It lives MAIL_BATCH_MARK_MS (an hour) and goes with Redis, as the jobs do.
+ */
+export const batchedMarker = (key: string) => `crosstally:mail:batched:${jobIdOf(key)}`;
+const batchedMarkMs = () => Number(process.env.MAIL_BATCH_MARK_MS ?? 3_600_000);
 
 let queue: Queue<QueuedMail> | null = null;
 
@@ -63,6 +71,13 @@ export async function dispatchOutbox(limit = 200): Promise<number> {
 	}
 	for (let i = 0; i < due.length; i += size) jobs.push({ name: BATCH_JOB, data: { batch: due.slice(i, i + size) }, opts: { ...jobOptions } });
 	try {
+		if (due.length) {
+			// the markers first: a marker without its job (addBulk failed) only covers a row left pending
+			const pipe = redis().pipeline();
+			for (const m of due) pipe.set(batchedMarker(m.key), '1', 'PX', batchedMarkMs());
+			const failed = ((await pipe.exec()) ?? []).find(([e]) => e)?.[0];
+			if (failed) throw failed;
+		}
 		await mailQueue().addBulk(jobs);
 	} catch (e) {
 		await markDispatchFailed(

@@ -16,7 +16,7 @@
 import { Op, fn } from 'sequelize';
 import { models } from '../models';
 import { autocommit as write, readRetried as read } from '../db';
-import { jobIdOf, mailQueue } from './queue';
+import { batchedMarker, jobIdOf, mailQueue } from './queue';
 import { redis } from '../redis';
 import { claimLeaseMs } from './deliver';
 import { recoverLostReviewMail } from './reminders/scheduling';
@@ -62,7 +62,10 @@ export async function sweepMail(graceMs = Number(process.env.MAIL_SWEEP_GRACE_MS
 		})
 	);
 	const gone: number[] = [];
-	for (const row of rows.filter((x) => !REVIEW_KINDS.has(x.kind))) {
+	const others = rows.filter((x) => !REVIEW_KINDS.has(x.kind));
+	const batched = await inBatches(others.map((x) => x.idempotency_key));
+	for (const row of others) {
+		if (batched.has(row.idempotency_key)) continue; // in a batch job: BullMQ has it
 		const job = await mailQueue().getJob(jobIdOf(row.idempotency_key));
 		if (!job) {
 			gone.push(row.id);
@@ -81,18 +84,35 @@ export async function sweepMail(graceMs = Number(process.env.MAIL_SWEEP_GRACE_MS
 	return r;
 }
 
-/** The keys among `keys` whose BullMQ job still exists, in any state (one pipelined EXISTS per key). */
+/**
+ * The keys among `keys` whose BullMQ job still exists, in any state, or that went to the queue in a batch
+ * (./queue.ts batchedMarker): two pipelined EXISTS per key, one round trip.
+ */
 async function queuedJobs(keys: string[]): Promise<Set<string>> {
 	if (keys.length === 0) return new Set();
 	const q = mailQueue();
 	const pipe = redis().pipeline();
-	for (const k of keys) pipe.exists(q.toKey(jobIdOf(k))); // the job's hash: bull:<queue>:<job id>
+	for (const k of keys) pipe.exists(q.toKey(jobIdOf(k)), batchedMarker(k)); // the job's hash (bull:<queue>:<job id>), the marker
+	const answers = (await pipe.exec()) ?? [];
+	return new Set(keys.filter((_k, i) => Number(answers[i]?.[1] ?? 0) > 0));
+}
+
+/** The keys among `keys` that went to the queue in a batch (one pipelined EXISTS per key). */
+async function inBatches(keys: string[]): Promise<Set<string>> {
+	if (keys.length === 0) return new Set();
+	const pipe = redis().pipeline();
+	for (const k of keys) pipe.exists(batchedMarker(k));
 	const answers = (await pipe.exec()) ?? [];
 	return new Set(keys.filter((_k, i) => answers[i]?.[1] === 1));
 }
 
 /** A job that failed for good (every retry refused): its outbox row is marked failed, with the reason. */
 export async function markMailFailed(key: string, reason: string): Promise<void> {
+	// not while mail_log holds the key: a batch and a job of its own can both hold a key (a batch dispatched
+	// twice), and the one that lost the claim gives up in the end while the other sent it (or may have: sending,
+	// uncertain) or is sending it (claimed: sent, or taken back by the sweep after the lease and sent then)
+	const logged = await read(() => models().MailLog.findOne({ attributes: ['status'], where: { idempotency_key: key } }));
+	if (logged) return;
 	await write(() =>
 		models().Outbox.update({ failed_at: fn('CURRENT_TIMESTAMP', 3), last_error: reason.slice(0, 500) }, { where: { idempotency_key: key, failed_at: null } })
 	);
