@@ -72,19 +72,22 @@ secure_dirs() {
 }
 
 start_mariadb() {
-	local dir="$CROSSTALLY_DATA_DIR/mariadb" sock="$RUN_DIR/mariadb.sock" pidf="$RUN_DIR/mariadb.pid"
+	local dir="$CROSSTALLY_DATA_DIR/mariadb" sock="$RUN_DIR/mariadb.sock" pidf="$RUN_DIR/mariadb.pid" tmp="$RUN_DIR/mariadb-tmp"
 	secure_dirs
+	# its own directory for temporary tables and files: servers sharing /tmp on one machine deleted or
+	# refused each other's ("Error on delete of '/tmp/#sql-temptable-…'"), failing a rebuild or an install
+	mkdir -p "$tmp"
 	if pid_alive "$pidf"; then log "MariaDB already running (pid $(cat "$pidf"))"; secure_mariadb_root; return 0; fi
 	ensure_port_free "$DB_PORT" MariaDB DB_PORT
 	if [ ! -d "$dir/mysql" ]; then
 		log "initialising MariaDB data directory $dir"
 		mkdir -p "$dir"
 		# root@localhost by unix_socket only: the OS user root, over the socket (no password, no TCP)
-		"$(mariadb_bin mariadb-install-db)" --no-defaults --datadir="$dir" --user=root \
+		TMPDIR="$tmp" "$(mariadb_bin mariadb-install-db)" --no-defaults --datadir="$dir" --user=root \
 			--auth-root-authentication-method=socket --skip-test-db --skip-name-resolve >"$RUN_DIR/mariadb-install.log" 2>&1 \
 			|| { cat "$RUN_DIR/mariadb-install.log" >&2; die "mariadb-install-db failed"; }
 	fi
-	"$(mariadb_bin mariadbd)" --no-defaults --datadir="$dir" --socket="$sock" --pid-file="$pidf" \
+	"$(mariadb_bin mariadbd)" --no-defaults --datadir="$dir" --socket="$sock" --pid-file="$pidf" --tmpdir="$tmp" \
 		--log-error="$RUN_DIR/mariadb.err" --port="$DB_PORT" --bind-address=127.0.0.1 --skip-name-resolve \
 		--user=root --character-set-server=utf8mb4 --collation-server=utf8mb4_unicode_ci \
 		--innodb-buffer-pool-size=256M --max-connections=300 >/dev/null 2>&1 &
@@ -204,10 +207,13 @@ stop_pidfile() {
 }
 
 stop_all() {
+	# the Redis password (and the ports) come from the env file; without it the shutdown below stopped
+	# the script (set -u) and left Redis and MariaDB running
+	[ -z "${REDIS_PASSWORD:-}" ] && [ -f "$ENV_FILE" ] && load_env_file
 	stop_pidfile "$RUN_DIR/app.pid"
 	stop_pidfile "$RUN_DIR/worker.pid"
 	stop_pidfile "$RUN_DIR/mailfake.pid"
-	if pid_alive "$RUN_DIR/redis.pid"; then redis_cli shutdown nosave >/dev/null 2>&1 || true; fi
+	if pid_alive "$RUN_DIR/redis.pid" && [ -n "${REDIS_PASSWORD:-}" ]; then redis_cli shutdown nosave >/dev/null 2>&1 || true; fi
 	stop_pidfile "$RUN_DIR/redis.pid"
 	if pid_alive "$RUN_DIR/mariadb.pid"; then
 		mariadb-admin --no-defaults --protocol=socket --socket="$RUN_DIR/mariadb.sock" -uroot shutdown >/dev/null 2>&1 || true

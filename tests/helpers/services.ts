@@ -262,6 +262,8 @@ export async function startMariadb(): Promise<number> {
 	const existing = mariadbPid();
 	if (existing) return existing;
 	const bin = existsSync('/usr/sbin/mariadbd') ? '/usr/sbin/mariadbd' : 'mariadbd';
+	const tmp = join(runDir(), 'mariadb-tmp');
+	mkdirSync(tmp, { recursive: true });
 	const child = spawn(
 		bin,
 		[
@@ -269,6 +271,7 @@ export async function startMariadb(): Promise<number> {
 			`--datadir=${join(env('CROSSTALLY_DATA_DIR'), 'mariadb')}`,
 			`--socket=${mariadbSocket()}`,
 			`--pid-file=${mariadbPidFile()}`,
+			`--tmpdir=${tmp}`,
 			`--log-error=${join(runDir(), 'mariadb.err')}`,
 			`--port=${dbPort()}`,
 			'--bind-address=127.0.0.1',
