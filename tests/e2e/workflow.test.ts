@@ -124,6 +124,8 @@ describe('double entry, end to end', () => {
 		const items = page.getByTestId('discrepancy');
 		await expect.poll(() => items.count()).toBe(2);
 		expect(await page.getByTestId('scan').getAttribute('src')).toMatch(new RegExp(`/protocols/${id}/attachments/\\d+`));
+		// the header names who entered each pass (the demo accounts of db/seeds/accounts.ts)
+		expect(await page.getByText('first pass Sam Okafor, second pass Rae Lindqvist').count()).toBe(1);
 		const flip = page.locator('[data-testid="discrepancy"][data-kind="sign_flip"]');
 		const swap = page.locator('[data-testid="discrepancy"][data-kind="transposition"]');
 		expect(await flip.innerText()).toContain('Direction wrong way round');

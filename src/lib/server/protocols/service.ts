@@ -562,10 +562,48 @@ export async function worklist(user: Actor, limit = WORKLIST_LIMIT): Promise<Wor
 
 // ---------------------------------------------------------------- view
 
+/** The protocol's record forms this user may see (while blind, not the other scorer's uploads). */
+async function visibleAttachments(p: Protocol, user: Actor) {
+	const rows = await reading(null, () =>
+		models().Attachment.findAll({
+			attributes: ['id', 'filename', 'mime', 'size', 'sha256', 'created_at', 'uploaded_by'],
+			where: { protocol_id: p.id },
+			order: [['id', 'ASC']],
+			raw: true
+		})
+	);
+	return rows
+		.filter((a) => !attachmentHidden(p, user, a.uploaded_by))
+		.map((a) => ({ id: a.id, filename: cleanFilename(a.filename, 'record-form'), mime: a.mime, size: a.size, sha256: a.sha256, created_at: a.created_at }));
+}
+
+/**
+ * What the Review screen shows of the protocol besides its discrepancies: the examinee's code, the
+ * battery, who is assigned and the record forms. Two statements after the access check, where
+ * protocolView (the protocol page: tests, groups, passes, verification …) runs about a dozen; the
+ * Review page is the most requested page under load (test:load).
+ */
+export async function protocolHeader(id: number, user: Actor) {
+	const { p } = await protocolFor(id, user);
+	const head = await selectOne<{ code: string; battery: string; first: string | null; second: string | null; reviewer: string | null }>(
+		`SELECT e.code, b.name AS battery, f.name AS first, s.name AS second, r.name AS reviewer
+		   FROM examinees e JOIN batteries b ON b.id = :battery
+		   LEFT JOIN users f ON f.id = :first LEFT JOIN users s ON s.id = :second LEFT JOIN users r ON r.id = :reviewer
+		  WHERE e.id = :examinee`,
+		{ examinee: p.examinee_id, battery: p.battery_id, first: p.first_scorer_id, second: p.second_scorer_id, reviewer: p.reviewer_id }
+	);
+	return {
+		examinee: { code: head!.code },
+		battery: { name: head!.battery },
+		assignments: { first: head!.first ?? '—', second: head!.second ?? '—', reviewer: head!.reviewer ?? '—' },
+		attachments: await visibleAttachments(p, user)
+	};
+}
+
 export async function protocolView(id: number, user: Actor) {
 	const { p, duties } = await protocolFor(id, user);
 	const staffView = duties.includes('lead') || duties.includes('reviewer');
-	const { Examinee, Pass, Attachment } = models();
+	const { Examinee, Pass } = models();
 	const ex = await reading(null, () => Examinee.findByPk(p.examinee_id));
 	// batteries and users are catalog tables (their models belong to the catalog services)
 	const battery = await selectOne<{ code: string; name: string }>('SELECT code, name FROM batteries WHERE id = :id', { id: p.battery_id });
@@ -594,17 +632,7 @@ export async function protocolView(id: number, user: Actor) {
 		'SELECT SUM(resolved_at IS NULL) AS open, COUNT(*) AS total FROM discrepancies WHERE protocol_id = :p AND round = :r',
 		{ p: p.id, r: p.round }
 	);
-	const attachments = (
-		await reading(null, () =>
-			Attachment.findAll({
-				attributes: ['id', 'filename', 'mime', 'size', 'sha256', 'created_at', 'uploaded_by'],
-				where: { protocol_id: p.id },
-				order: [['id', 'ASC']]
-			})
-		)
-	)
-		.filter((a) => !attachmentHidden(p, user, a.uploaded_by))
-		.map((a) => ({ id: a.id, filename: cleanFilename(a.filename, 'record-form'), mime: a.mime, size: a.size, sha256: a.sha256, created_at: a.created_at }));
+	const attachments = await visibleAttachments(p, user);
 	return {
 		protocol: p.get({ plain: true }) as ProtocolRow,
 		duties,

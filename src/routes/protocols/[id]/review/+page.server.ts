@@ -1,7 +1,7 @@
 import type { PageServerLoad } from './$types';
 import { requireUser, idParam } from '$lib/server/guard';
 import { reviewView, previousDecisions } from '$lib/server/protocols/decisions';
-import { protocolView } from '$lib/server/protocols/service';
+import { protocolHeader } from '$lib/server/protocols/service';
 import { pageError } from '$lib/server/http';
 
 export const load: PageServerLoad = async (event) => {
@@ -9,7 +9,7 @@ export const load: PageServerLoad = async (event) => {
 	const id = idParam(event.params.id, 'This protocol');
 	try {
 		const review = await reviewView(id, user);
-		const view = await protocolView(id, user);
+		const view = await protocolHeader(id, user);
 		const previous = await previousDecisions(id, review.protocol.round);
 		return {
 			protocol: {
