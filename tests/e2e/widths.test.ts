@@ -319,7 +319,8 @@ describe('the layout at each width', () => {
 						const box = t.parentElement!;
 						const edge = box.getBoundingClientRect().left + box.clientWidth;
 						// for the message: the cells that stick out of the box
-						const wide = [...t.querySelectorAll('td, th')]
+						// body cells first: the header cells (kept for screen readers, clipped) are listed last
+						const wide = [...t.querySelectorAll('td'), ...t.querySelectorAll('th')]
 							.filter((c) => c.getBoundingClientRect().right > edge + 0.5)
 							.slice(0, 3)
 							.map((c) => `${c.getAttribute('data-label') ?? c.tagName}: ${c.textContent?.trim().slice(0, 40)}`);
