@@ -3,7 +3,7 @@
  *
  * Node runs JavaScript on one thread, so one app process can use one core however many the machine
  * has; under load (`npm run test:load`) it was the bottleneck while the other core was partly idle.
- * With APP_PROCESSES=N (default: the cores, at most 4) this primary forks N copies of the server; they
+ * With APP_PROCESSES=N (default 1; the bench uses 2) this primary forks N copies of the server; they
  * share the port (node:cluster hands each new connection to the next copy). Nothing is shared in
  * memory between requests: sessions are signed cookies, account state and sign-outs live in Redis
  * and everything else in MariaDB, the same reason several app servers can run behind a load balancer
@@ -17,12 +17,13 @@
  * Usage: node --env-file=<env> scripts/serve.js [build dir]   (default $CROSSTALLY_BUILD_DIR or build)
  */
 import cluster from 'node:cluster';
-import os from 'node:os';
 import { resolve } from 'node:path';
 import { pathToFileURL } from 'node:url';
 
 const buildDir = resolve(process.argv[2] ?? process.env.CROSSTALLY_BUILD_DIR ?? 'build');
-const requested = Number(process.env.APP_PROCESSES || Math.min(4, os.availableParallelism()));
+// One copy unless asked: with two copies a browser sign-in twice waited 45 s with neither a navigation
+// nor an error (e2e, not yet explained), so more than one stays opt-in until that is understood.
+const requested = Number(process.env.APP_PROCESSES || 1);
 const copies = Number.isInteger(requested) && requested > 0 ? requested : 1;
 
 if (copies === 1 || !cluster.isPrimary) {

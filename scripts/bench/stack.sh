@@ -7,6 +7,8 @@
 # all.ts sets its own data dir and ports (.data/bench, 3371/6471/2671/2672/3071) unless overridden.
 set -uo pipefail
 export CROSSTALLY_MODE="${CROSSTALLY_MODE:-test}"
+# the figures in README were measured with two app processes (scripts/serve.js); opt-in elsewhere
+export APP_PROCESSES="${APP_PROCESSES:-2}"
 . "$(dirname "$0")/../lib/env.sh"
 . "$(dirname "$0")/../lib/setup.sh"
 cd "$ROOT_DIR" || exit 1
