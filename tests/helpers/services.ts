@@ -17,7 +17,7 @@ function env(name: string): string {
 }
 
 export const runDir = () => env('RUN_DIR');
-const envFile = () => process.env.ENV_FILE ?? join(env('CROSSTALLY_DATA_DIR'), 'crosstally.env');
+export const envFile = () => process.env.ENV_FILE ?? join(env('CROSSTALLY_DATA_DIR'), 'crosstally.env');
 const redisPort = () => env('REDIS_PORT');
 
 const sleep = (ms: number) => new Promise((r) => setTimeout(r, ms));
@@ -41,8 +41,18 @@ export function alive(pid: number | null): boolean {
 	}
 }
 
-/** Child processes of a PID (tsx runs the script in a child node process). */
-function childrenOf(pid: number): number[] {
+/** Running: in /proc and not a zombie (an orphan's zombie waits for init to reap it, which may take a while). */
+export function running(pid: number): boolean {
+	try {
+		const stat = readFileSync(`/proc/${pid}/stat`, 'utf8');
+		return stat.charAt(stat.lastIndexOf(')') + 2) !== 'Z';
+	} catch {
+		return false;
+	}
+}
+
+/** Child processes of a PID (the tsx command runs a script in a child node process; serve.js forks copies). */
+export function childrenOf(pid: number): number[] {
 	const out: number[] = [];
 	try {
 		for (const tid of spawnSync('ls', [`/proc/${pid}/task`])
@@ -184,7 +194,7 @@ export async function killWorker(): Promise<void> {
 }
 
 /** The test process's environment without what vitest adds. */
-function workerEnv(): NodeJS.ProcessEnv {
+export function workerEnv(): NodeJS.ProcessEnv {
 	const e: NodeJS.ProcessEnv = {};
 	for (const [k, v] of Object.entries(process.env)) if (!/^(VITEST|NODE_ENV$|TEST$)/.test(k)) e[k] = v;
 	return e;
