@@ -29,33 +29,45 @@ const interval = Number(process.env.DISPATCH_INTERVAL_MS ?? 500);
 const sweepMs = Number(process.env.MAIL_SWEEP_MS ?? 30_000);
 const stalledMs = Number(process.env.WORKER_STALLED_MS ?? (process.env.CROSSTALLY_MODE === 'production' ? 30_000 : 3_000));
 
+let inFlight = 0; // jobs whose delivery is running (see stop below)
+const connection = bullConnection();
 const worker = new Worker<QueuedMail>(
 	MAIL_QUEUE,
 	async (job) => {
-		if (isBatch(job.data)) {
-			// many messages due now (mail/deliver.ts deliverBatch); those that leave the batch get jobs of their own
-			const results = await deliverBatch(job.data.batch, requeueSingle);
-			for (const m of job.data.batch)
-				if (results.get(m.key) === 'skipped' && !m.kind.startsWith('review_'))
-					await markMailFailed(m.key, 'not sent: nothing to send (the account is inactive or gone)');
-			const count: Record<string, number> = {};
-			for (const r of results.values()) count[r] = (count[r] ?? 0) + 1;
-			return count;
+		inFlight++;
+		try {
+			return await deliverJob(job.data);
+		} finally {
+			inFlight--;
 		}
-		const result = await deliver(job.data);
-		// nothing to send (an invitation to an account deactivated since): the row ends, visibly
-		if (result === 'skipped' && !job.data.kind.startsWith('review_'))
-			await markMailFailed(job.data.key, 'not sent: nothing to send (the account is inactive or gone)');
-		return result;
 	},
 	{
-		connection: bullConnection(),
+		connection,
 		concurrency: Number(process.env.WORKER_CONCURRENCY ?? 32),
 		stalledInterval: stalledMs,
 		lockDuration: Math.max(stalledMs, 5_000),
 		maxStalledCount: 2
 	}
 );
+
+/** One job: a message, or a batch of messages due now. */
+async function deliverJob(data: QueuedMail) {
+	if (isBatch(data)) {
+		// many messages due now (mail/deliver.ts deliverBatch); those that leave the batch get jobs of their own
+		const results = await deliverBatch(data.batch, requeueSingle);
+		for (const m of data.batch)
+			if (results.get(m.key) === 'skipped' && !m.kind.startsWith('review_'))
+				await markMailFailed(m.key, 'not sent: nothing to send (the account is inactive or gone)');
+		const count: Record<string, number> = {};
+		for (const r of results.values()) count[r] = (count[r] ?? 0) + 1;
+		return count;
+	}
+	const result = await deliver(data);
+	// nothing to send (an invitation to an account deactivated since): the row ends, visibly
+	if (result === 'skipped' && !data.kind.startsWith('review_')) await markMailFailed(data.key, 'not sent: nothing to send (the account is inactive or gone)');
+	return result;
+}
+
 worker.on('failed', (job, err) => {
 	if (job && isBatch(job.data)) {
 		// retried as a whole; out of retries, its rows are handed back by the sweep (no job holds them)
@@ -74,6 +86,8 @@ worker.on('error', (err) => console.error(`[worker] ${err.message}`));
 let stopping = false;
 let lastError = '';
 let lastSweep = 0; // on start, then every MAIL_SWEEP_MS
+let wake: (() => void) | null = null; // ends the loop's pause at once when stopping
+let looping = true; // until loop() has returned (stop waits for its round in progress)
 async function loop() {
 	while (!stopping) {
 		try {
@@ -98,20 +112,58 @@ async function loop() {
 			if (msg !== lastError) console.error(`[worker] dispatch waiting: ${msg}`);
 			lastError = msg;
 		}
-		await new Promise((r) => setTimeout(r, interval));
+		await new Promise<void>((r) => {
+			wake = r;
+			setTimeout(r, interval);
+		});
 	}
 }
 
-async function stop() {
+/**
+ * SIGTERM/SIGINT: stop within STOP_GRACE_MS + 1 s, before the scripts' KILL (scripts/lib/setup.sh
+ * stop_pidfile, 5 s). BullMQ's close takes no new jobs and waits for those in flight (and records them
+ * done in Redis); with Redis unreachable it never resolves (it waits for the connection), which kept the
+ * worker alive until the KILL, so it is waited for only while a delivery of ours is still running or
+ * Redis is there to close against. A delivery still running after the grace is abandoned as a crash
+ * would: the stalled-job check retries the job and the mail sweep settles its rows (mail/recover.ts).
+ */
+const STOP_GRACE_MS = Number(process.env.WORKER_STOP_GRACE_MS ?? 3_000);
+const sleep = (ms: number) => new Promise((r) => setTimeout(r, ms));
+async function until(ms: number, cond: () => boolean): Promise<boolean> {
+	const end = Date.now() + ms;
+	while (!cond()) {
+		if (Date.now() > end) return false;
+		await sleep(25);
+	}
+	return true;
+}
+
+async function stop(signal: NodeJS.Signals) {
 	if (stopping) return;
 	stopping = true;
-	await worker.close().catch(() => undefined);
-	await closeMailQueue();
+	wake?.();
+	const t0 = Date.now();
+	// the last resort: whatever still hangs (a close that never answers), end before the scripts' KILL
+	setTimeout(() => {
+		console.error(`[worker] not stopped ${Date.now() - t0} ms after ${signal}; exiting`);
+		process.exit(1);
+	}, STOP_GRACE_MS + 1_000).unref();
+	let closed = false;
+	worker.close().then(
+		() => (closed = true),
+		() => (closed = true)
+	);
+	const done = await until(STOP_GRACE_MS, () => closed || (inFlight === 0 && connection.status !== 'ready'));
+	if (!done) console.error(`[worker] ${inFlight} job(s) still running ${STOP_GRACE_MS} ms after ${signal}: left to the stalled-job check and the mail sweep`);
+	// the dispatcher's round in progress (it may be in a transaction) before its database goes
+	await until(300, () => !looping);
+	await Promise.race([Promise.allSettled([closeMailQueue(), closeDb()]), sleep(500)]);
 	closeMailTransport();
-	await closeDb().catch(() => undefined);
-	process.exit(0);
+	connection.disconnect();
+	console.error(`[worker] stopped (${signal}) in ${Date.now() - t0} ms`);
+	process.exit(done ? 0 : 1);
 }
 process.on('SIGTERM', stop);
 process.on('SIGINT', stop);
 console.log(`[worker] started (pid ${process.pid})`);
-loop();
+loop().finally(() => (looping = false));

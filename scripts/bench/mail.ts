@@ -162,7 +162,8 @@ function startWorkers(): Promise<ChildProcess[]> {
 	const ready: Promise<void>[] = [];
 	for (let i = 0; i < WORKERS; i++) {
 		// --profile DIR: the worker writes a V8 CPU profile there when it stops (open it in Chrome's DevTools)
-		const node = PROFILE ? ['--cpu-prof', `--cpu-prof-dir=${resolve(PROFILE)}`, '--import', 'tsx'] : ['node_modules/.bin/tsx'];
+		// one process with tsx's loader, as scripts/lib/setup.sh start_worker (the tsx command's wrapper may KILL it on TERM)
+		const node = [...(PROFILE ? ['--cpu-prof', `--cpu-prof-dir=${resolve(PROFILE)}`] : []), '--import', 'tsx'];
 		const p = spawn(process.execPath, [`--env-file=${ENV_FILE}`, ...node, 'scripts/worker.ts'], {
 			cwd: ROOT,
 			env: { ...process.env, WORKER_CONCURRENCY: String(CONCURRENCY), DISPATCH_INTERVAL_MS: '100' },

@@ -190,8 +190,12 @@ start_app() {
 	wait_http "http://127.0.0.1:$PORT/health" || { tail -30 "$RUN_DIR/app.log" >&2; die "app did not start"; }
 }
 
+# The worker runs in one node process with tsx's loader (--import tsx), not under the tsx command: that
+# wrapper relays a TERM to the node process it starts and KILLs it when the process does not confirm
+# within 30 ms (a worker busy rendering mail), so a stop could cut sends in flight; the PID file now
+# holds the worker itself, and its own SIGTERM handler stops it (scripts/worker.ts).
 start_worker() {
-	start_node_process worker node --env-file="$ENV_FILE" node_modules/.bin/tsx scripts/worker.ts
+	start_node_process worker node --env-file="$ENV_FILE" --import tsx scripts/worker.ts
 }
 
 stop_pidfile() {

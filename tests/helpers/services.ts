@@ -163,7 +163,7 @@ export function workerRunning(): boolean {
 	return workerPid() !== null;
 }
 
-/** Stop the worker gracefully (SIGTERM to the PID in worker.pid; tsx relays it to the script). */
+/** Stop the worker gracefully (SIGTERM to the PID in worker.pid, the worker itself since it runs with --import tsx). */
 export async function stopWorker(): Promise<void> {
 	const pid = workerPid();
 	if (!pid) return;
@@ -175,8 +175,8 @@ export async function stopWorker(): Promise<void> {
 }
 
 /**
- * Kill the worker the hard way: SIGKILL to the process in worker.pid and to the node process tsx
- * started for the script (killing only the tsx wrapper would leave the script running).
+ * Kill the worker the hard way: SIGKILL to the process in worker.pid and to any child of it (a worker
+ * started under the tsx command before it ran with --import tsx had its script in a child process).
  */
 export async function killWorker(): Promise<void> {
 	const pid = workerPid();
@@ -201,7 +201,7 @@ export function workerEnv(): NodeJS.ProcessEnv {
 }
 
 /**
- * Start a worker as scripts/lib/setup.sh does (`node --env-file=$ENV_FILE node_modules/.bin/tsx
+ * Start a worker as scripts/lib/setup.sh does (`node --env-file=$ENV_FILE --import tsx
  * scripts/worker.ts`, output appended to $RUN_DIR/worker.log), with extra environment variables
  * (e.g. MAIL_TEST_PAUSE_AFTER_SEND_MS). Resolves once the worker logged that it started.
  */
@@ -212,7 +212,7 @@ export async function startWorker(extraEnv: Record<string, string> = {}): Promis
 	const marker = `--- worker started by tests at ${new Date().toISOString()} ---\n`;
 	writeFileSync(log, marker, { flag: 'a' });
 	const fd = openSync(log, 'a');
-	const child = spawn(process.execPath, [`--env-file=${envFile()}`, 'node_modules/.bin/tsx', 'scripts/worker.ts'], {
+	const child = spawn(process.execPath, [`--env-file=${envFile()}`, '--import', 'tsx', 'scripts/worker.ts'], {
 		cwd: ROOT,
 		env: { ...workerEnv(), ...extraEnv },
 		stdio: ['ignore', fd, fd],
