@@ -64,11 +64,16 @@ db_state() { db_root "$1" -Nse "SHOW STATUS LIKE 'wsrep_local_state_comment'" 2>
 start_db() {
 	local n=$1 mode=${2:-join} dir="$CL/db$1" pidf="$RUN_DIR/db$1.pid"
 	local port=$((B + n)) g=$((B + 10 + n)) ist=$((B + 20 + n)) sst=$((B + 30 + n))
-	mkdir -p "$RUN_DIR"
+	# each node's own directory for temporary tables and files, as the single server's run/mariadb-tmp
+	# (scripts/lib/setup.sh): servers sharing /tmp deleted or refused each other's #sql files. Beside the
+	# data directory, not in it: a mariabackup state transfer empties the joiner's data directory (while
+	# the server runs) and the donor copies every folder in it as a database.
+	local tmp="$RUN_DIR/db$1-tmp"
+	mkdir -p "$RUN_DIR" "$tmp"
 	if pid_alive "$pidf"; then log "db$n already running (pid $(cat "$pidf"))"; return 0; fi
 	if [ ! -d "$dir/mysql" ]; then
 		mkdir -p "$dir"
-		"$(mariadb_bin mariadb-install-db)" --no-defaults --datadir="$dir" --user=root \
+		TMPDIR="$tmp" "$(mariadb_bin mariadb-install-db)" --no-defaults --datadir="$dir" --user=root \
 			--auth-root-authentication-method=normal --skip-test-db --skip-name-resolve >"$RUN_DIR/db$n-install.log" 2>&1 \
 			|| { cat "$RUN_DIR/db$n-install.log" >&2; die "mariadb-install-db failed for db$n"; }
 	fi
@@ -79,6 +84,7 @@ start_db() {
 	cat >"$RUN_DIR/db$n.cnf" <<CNF
 [mysqld]
 datadir=$dir
+tmpdir=$tmp
 socket=$(db_sock "$n")
 pid-file=$pidf
 log-error=$RUN_DIR/db$n.err
@@ -232,7 +238,7 @@ start_app_n() {
 
 start_worker_n() {
 	local n=$1
-	DB_PORT=$((B + 40 + n)) start_node_process "worker$n" node --env-file="$ENV_FILE" node_modules/.bin/tsx scripts/worker.ts
+	DB_PORT=$((B + 40 + n)) start_node_process "worker$n" node --env-file="$ENV_FILE" --import tsx scripts/worker.ts
 	log "worker$n (pid $(cat "$RUN_DIR/worker$n.pid")), database via $((B + 40 + n))"
 }
 
