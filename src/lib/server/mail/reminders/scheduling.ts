@@ -195,12 +195,10 @@ export interface RenderedReviewState {
 	settings: ReviewMailSettings;
 }
 
-/** After a review message went out (or may have: a worker killed mid-send), schedule the next reminder. */
-export async function scheduleNext(job: MailJob, result: DeliveryResult, now = Date.now(), rendered?: RenderedReviewState): Promise<void> {
-	if (result === 'skipped') return;
-	const p = job.payload as unknown as ReviewMailPayload;
-	if (rendered ? rendered.state.open.length === 0 : !(await loadState(p, true))) return; // resolved, reassigned, signed off: the chain ends
-	const settings = rendered?.settings ?? (await reviewMailSettings());
+type ReminderRow = { kind: 'review_reminder'; key: string; payload: Record<string, unknown> };
+
+/** The outbox row of the reminder after message `p` of its chain, due one reminder interval after `now`. */
+function nextReminder(p: ReviewMailPayload, settings: ReviewMailSettings, now: number): ReminderRow {
 	const next: ReviewMailPayload = {
 		protocolId: p.protocolId,
 		round: p.round,
@@ -209,12 +207,21 @@ export async function scheduleNext(job: MailJob, result: DeliveryResult, now = D
 		reminderNo: p.reminderNo + 1,
 		notBefore: now + Math.round(settings.reminderIntervalMinutes * 60_000)
 	};
-	await enqueueMail('review_reminder', reviewMailKey(p.chain, next.reminderNo), { ...next });
+	return { kind: 'review_reminder', key: reviewMailKey(p.chain, next.reminderNo), payload: { ...next } };
+}
+
+/** After a review message went out (or may have: a worker killed mid-send), schedule the next reminder. */
+export async function scheduleNext(job: MailJob, result: DeliveryResult, now = Date.now(), rendered?: RenderedReviewState): Promise<void> {
+	if (result === 'skipped') return;
+	const p = job.payload as unknown as ReviewMailPayload;
+	if (rendered ? rendered.state.open.length === 0 : !(await loadState(p, true))) return; // resolved, reassigned, signed off: the chain ends
+	const next = nextReminder(p, rendered?.settings ?? (await reviewMailSettings()), now);
+	await enqueueMail(next.kind, next.key, next.payload);
 }
 
 /** `scheduleNext` for the review messages a batch sent, with what their renders read: one INSERT for all. */
 export async function scheduleNextMany(sent: { job: MailJob; context?: unknown }[], now = Date.now()): Promise<void> {
-	const rows: { kind: 'review_reminder'; key: string; payload: Record<string, unknown> }[] = [];
+	const rows: ReminderRow[] = [];
 	for (const { job, context } of sent) {
 		const rendered = context as RenderedReviewState | undefined;
 		if (!rendered) {
@@ -222,16 +229,7 @@ export async function scheduleNextMany(sent: { job: MailJob; context?: unknown }
 			continue;
 		}
 		if (rendered.state.open.length === 0) continue; // nothing open: the chain ends
-		const p = job.payload as unknown as ReviewMailPayload;
-		const next: ReviewMailPayload = {
-			protocolId: p.protocolId,
-			round: p.round,
-			reviewerId: p.reviewerId,
-			chain: p.chain,
-			reminderNo: p.reminderNo + 1,
-			notBefore: now + Math.round(rendered.settings.reminderIntervalMinutes * 60_000)
-		};
-		rows.push({ kind: 'review_reminder', key: reviewMailKey(p.chain, next.reminderNo), payload: { ...next } });
+		rows.push(nextReminder(job.payload as unknown as ReviewMailPayload, rendered.settings, now));
 	}
 	await enqueueMails(rows);
 }
