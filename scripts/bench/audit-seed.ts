@@ -11,17 +11,20 @@
 import { QueryTypes } from 'sequelize';
 import { db, select, selectOne } from '../../src/lib/server/db';
 import { reconcile, type NormDef, type TestDef, type PassInput } from '../../src/lib/scoring';
-import { formatReference, referenceScore, roundTo, zFromRaw, DERIVED_FIELDS, FIELDS, type DerivedField, type Field } from '../../src/lib/scoring/scales';
+import { formatReference, referenceScore, roundTo, zFromRaw, DERIVED_FIELDS, type DerivedField, type Field } from '../../src/lib/scoring/scales';
 import { DEMO_BANDS, DEMO_TESTS } from '../../db/seeds/catalog';
 import {
-	attributedPasses,
-	bandOf,
-	numeric,
+	agreementPairRows,
+	auditFieldRows,
+	domainOf,
+	errorEventRows,
 	rebuildDailySums,
-	sameValue,
+	rowValues,
 	AUDIT_FIELDS_COLUMNS,
-	AGREEMENT_PAIRS_COLUMNS
+	AGREEMENT_PAIRS_COLUMNS,
+	ERROR_EVENTS_COLUMNS
 } from '../../src/lib/server/audit-stats/record';
+import { discrepancyValues, DISCREPANCY_COLUMNS } from '../../src/lib/server/protocols/passes';
 import { rng } from './prng';
 
 interface Profile {
@@ -202,7 +205,7 @@ function gauss(r: () => number): number {
 
 const sqlDate = (d: Date) => d.toISOString().replace('T', ' ').replace('Z', '');
 
-async function bulk(table: string, columns: string[], rows: unknown[][], chunk = 2000): Promise<void> {
+async function bulk(table: string, columns: readonly string[], rows: unknown[][], chunk = 2000): Promise<void> {
 	const seq = db();
 	for (let i = 0; i < rows.length; i += chunk) {
 		const values = rows
@@ -308,33 +311,8 @@ export async function seedAuditData(opts: { protocols: number; weeks?: number; s
 		);
 		await bulk('protocol_tests', ['protocol_id', 'position', 'test_id'], ptests);
 		await bulk('passes', ['id', 'protocol_id', 'round', 'which', 'scorer_id', 'status', 'scores', 'fields_entered', 'submitted_at'], passes, 1000);
-		await bulk(
-			'discrepancies',
-			[
-				'id',
-				'protocol_id',
-				'round',
-				'position',
-				'test_code',
-				'field',
-				'pass',
-				'kind',
-				'value',
-				'other',
-				'expected',
-				'out_of_range',
-				'resolution',
-				'resolved_value',
-				'resolved_by',
-				'resolved_at'
-			],
-			discs
-		);
-		await bulk(
-			'error_events',
-			['discrepancy_id', 'protocol_id', 'scorer_id', 'battery_id', 'test_code', 'domain', 'field', 'kind', 'entered_at', 'judgement'],
-			events
-		);
+		await bulk('discrepancies', ['id', ...DISCREPANCY_COLUMNS, 'resolution', 'resolved_value', 'resolved_by', 'resolved_at'], discs);
+		await bulk('error_events', ERROR_EVENTS_COLUMNS, events);
 		await bulk('audit_fields', AUDIT_FIELDS_COLUMNS, fields);
 		await bulk('agreement_pairs', AGREEMENT_PAIRS_COLUMNS, pairs);
 		for (const rows of [examinees, protocols, ptests, passes, discs, events, fields, pairs]) rows.length = 0;
@@ -429,41 +407,21 @@ export async function seedAuditData(opts: { protocols: number; weeks?: number; s
 		}
 		const passIds = [basePass + 2 * i + 1, basePass + 2 * i + 2];
 		const ats = [at1, at2];
+		const round = { protocol_id: pid, round: 1, battery_id: battery.id };
+		const passesOfRound = [0, 1].map((k) => ({
+			which: k === 0 ? ('first' as const) : ('second' as const),
+			scorer_id: scorerIds[[a, b][k]],
+			submitted_at: ats[k]
+		}));
 		const counts = entries.map((s) => Object.values(s).reduce((n, vals) => n + Object.values(vals).filter((v) => v !== '').length, 0));
 		fieldsEntered += counts[0] + counts[1];
 		entries.forEach((s, k) => {
 			passes.push([passIds[k], pid, 1, k === 0 ? 'first' : 'second', scorerIds[[a, b][k]], 'submitted', JSON.stringify(s), counts[k], ats[k]]);
-			fields.push([passIds[k], '', pid, 1, k === 0 ? 'first' : 'second', scorerIds[[a, b][k]], battery.id, '', counts[k], 0, 0, ats[k]]);
-			for (const code of codes) {
-				const raw = s[code].raw !== '' ? 1 : 0;
-				const derived = Object.entries(s[code]).filter(([f, v]) => f !== 'raw' && v !== '').length;
-				if (raw + derived)
-					fields.push([
-						passIds[k],
-						code,
-						pid,
-						1,
-						k === 0 ? 'first' : 'second',
-						scorerIds[[a, b][k]],
-						battery.id,
-						DOMAIN.get(code),
-						raw + derived,
-						raw,
-						derived,
-						ats[k]
-					]);
-			}
+			const pass = { ...passesOfRound[k], id: passIds[k], fields_entered: counts[k], entered_at: ats[k] };
+			for (const row of auditFieldRows(round, pass, s, DOMAIN)) fields.push(rowValues(row, AUDIT_FIELDS_COLUMNS));
 		});
-		for (const code of codes) {
-			for (const field of FIELDS) {
-				const x = entries[0][code][field];
-				const y = entries[1][code][field];
-				if ((x ?? '') === '' && (y ?? '') === '') continue;
-				const nx = numeric(x, field);
-				const ny = numeric(y, field);
-				pairs.push([pid, 1, battery.id, code, DOMAIN.get(code), field, scorerIds[a], scorerIds[b], nx, ny, bandOf(field, nx), bandOf(field, ny), at2]);
-			}
-		}
+		const [first, second] = entries.map((scores, k) => ({ scorer_id: passesOfRound[k].scorer_id, scores }));
+		for (const row of agreementPairRows(round, first, second, DOMAIN, at2)) pairs.push(rowValues(row, AGREEMENT_PAIRS_COLUMNS));
 		const result = reconcile({
 			tests: codes.map((c) => TEST_BY_CODE.get(c)!),
 			norms: ALL_NORMS,
@@ -483,31 +441,26 @@ export async function seedAuditData(opts: { protocols: number; weeks?: number; s
 			const resolution = firstV === correct ? 'first' : secondV === correct ? 'second' : d.expected !== null && d.field !== 'raw' ? 'recomputed' : 'other';
 			const resolved = !isOpen || r() < 0.3;
 			const at = new Date(at2.getTime() + (0.2 + r() * 2) * 86_400_000);
-			discs.push([
-				did,
-				pid,
-				1,
-				pos + 1,
-				d.test,
-				d.field,
-				d.pass,
-				d.kind,
+			const row = discrepancyValues({ id: pid, round: 1 }, pos + 1, d);
+			discs.push([did, ...row, resolved ? resolution : null, resolved ? correct : null, resolved ? reviewer : null, resolved ? at : null]);
+			if (!resolved) return;
+			// the error events as recordResolution writes them, from the row as stored (`expected` at its field's precision)
+			const expected = row[DISCREPANCY_COLUMNS.indexOf('expected')] as string | null;
+			const read = {
+				...d,
+				id: did,
+				protocol_id: pid,
+				round: 1,
+				test_code: d.test,
 				value,
 				other,
-				d.expected === null ? null : String(d.expected),
-				d.out_of_range ? 1 : 0,
-				resolved ? resolution : null,
-				resolved ? correct : null,
-				resolved ? reviewer : null,
-				resolved ? at : null
-			]);
-			if (!resolved) return;
-			for (const which of attributedPasses({ pass: d.pass, value, other, resolution, resolved_value: correct, field: d.field })) {
-				const k = which === 'first' ? 0 : 1;
-				// as recordResolution: the kept value contradicts the recomputation → the reviewer's judgement
-				const judgement = d.expected !== null && !sameValue(correct, String(d.expected), d.field) ? 1 : 0;
-				events.push([did, pid, scorerIds[[a, b][k]], battery.id, d.test, DOMAIN.get(d.test) ?? 'unknown', d.field, d.kind, ats[k], judgement]);
-			}
+				expected,
+				resolution,
+				resolved_value: correct,
+				carried_from: null,
+				battery_id: battery.id
+			};
+			for (const e of errorEventRows(read, passesOfRound, domainOf(DOMAIN, d.test))) events.push(rowValues(e, ERROR_EVENTS_COLUMNS));
 		});
 		if ((i + 1) % FLUSH_EVERY === 0) await flush();
 	}

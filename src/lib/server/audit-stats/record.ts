@@ -29,7 +29,8 @@ import { AgreementPair, AuditField, ErrorEvent, SUMMARY_MODELS } from '../models
 import type { StatField } from '../models/audit-stats';
 import { SUMMARIES, SUMMARY_TABLES, TOTALS, TOTAL_TABLES, type SummaryTable } from './sql';
 
-type PassScores = Record<string, Partial<Record<Field | 'sum', string | number | null>>>;
+/** A pass's scores as stored (`passes.scores`): code → field → value. */
+export type PassScores = Record<string, Partial<Record<Field | 'sum', string | number | null>>>;
 
 /** What recordSubmission reads of a pass (columns of `passes`). */
 type PassRead = {
@@ -183,36 +184,72 @@ export async function recordSubmission(protocolId: number, round: number, t: Tra
 		await AgreementPair.destroy({ where: round_, transaction: t });
 	}
 
-	const fieldRows: Array<InferCreationAttributes<AuditField>> = [];
-	for (const pass of [first, second]) {
-		const scores = pass === first ? s1 : s2;
-		const common = { pass_id: pass.id, ...round_, which: pass.which, scorer_id: pass.scorer_id, battery_id: batteryId, entered_at: enteredAt(pass) };
-		// the whole pass: the workflow's own count is the denominator of the overall rates
-		fieldRows.push({ ...common, test_code: '', domain: '', fields_entered: Number(pass.fields_entered) || 0, raw_fields: 0, derived_fields: 0 });
-		for (const code of Object.keys(scores)) {
-			const { raw, derived } = fieldCounts(scores[code]);
-			if (raw + derived === 0) continue;
-			fieldRows.push({
-				...common,
-				test_code: code,
-				domain: domainOf(domains, code),
-				fields_entered: raw + derived,
-				raw_fields: raw,
-				derived_fields: derived
-			});
-		}
+	const where = { ...round_, battery_id: batteryId };
+	const fieldRows = [first, second].flatMap((pass) =>
+		auditFieldRows(
+			where,
+			// named one by one: a pass may be a model instance (the second submit's reads), whose attributes a spread does not copy
+			{ id: pass.id, which: pass.which, scorer_id: pass.scorer_id, fields_entered: Number(pass.fields_entered) || 0, entered_at: enteredAt(pass) },
+			pass === first ? s1 : s2,
+			domains
+		)
+	);
+	const pairRows = agreementPairRows(where, { scorer_id: first.scorer_id, scores: s1 }, { scorer_id: second.scorer_id, scores: s2 }, domains, roundAt);
+	// one multi-row INSERT per table
+	await AuditField.bulkCreate(fieldRows, { transaction: t });
+	if (pairRows.length) await AgreementPair.bulkCreate(pairRows, { transaction: t });
+	await applyToDaily({ protocolId, round }, 1, t);
+}
+
+/** An audit_fields row, as `recordSubmission` writes it (and the bench's seed, scripts/bench/audit-seed.ts). */
+export type AuditFieldRow = InferCreationAttributes<AuditField>;
+/** An agreement_pairs row without its id. */
+export type AgreementPairRow = Omit<InferCreationAttributes<AgreementPair>, 'id'>;
+/** An error_events row without its id. */
+export type ErrorEventRow = Omit<InferCreationAttributes<ErrorEvent>, 'id'>;
+
+/** The protocol round the row-level rows belong to. */
+type RoundRows = { protocol_id: number; round: number; battery_id: number };
+
+/**
+ * The audit_fields rows of one submitted pass: the whole pass (test_code '', its `fields_entered`: the
+ * workflow's own count, the denominator of the overall rates), then one per test or composite with a
+ * field entered (`fieldCounts`), in its audit domain (`domainOf`).
+ */
+export function auditFieldRows(
+	r: RoundRows,
+	pass: { id: number; which: 'first' | 'second'; scorer_id: number; fields_entered: number; entered_at: Date },
+	scores: PassScores,
+	domains: Map<string, string>
+): AuditFieldRow[] {
+	const common = { pass_id: pass.id, ...r, which: pass.which, scorer_id: pass.scorer_id, entered_at: pass.entered_at };
+	const rows: AuditFieldRow[] = [{ ...common, test_code: '', domain: '', fields_entered: pass.fields_entered, raw_fields: 0, derived_fields: 0 }];
+	for (const code of Object.keys(scores)) {
+		const { raw, derived } = fieldCounts(scores[code]);
+		if (raw + derived === 0) continue;
+		rows.push({ ...common, test_code: code, domain: domainOf(domains, code), fields_entered: raw + derived, raw_fields: raw, derived_fields: derived });
 	}
-	const pairRows: Array<Omit<InferCreationAttributes<AgreementPair>, 'id'>> = [];
-	for (const code of codes) {
+	return rows;
+}
+
+/** The agreement_pairs rows of a round: one per test or composite × field that either pass entered, dated `at` (the later submit). */
+export function agreementPairRows(
+	r: RoundRows,
+	first: { scorer_id: number; scores: PassScores },
+	second: { scorer_id: number; scores: PassScores },
+	domains: Map<string, string>,
+	at: Date
+): AgreementPairRow[] {
+	const rows: AgreementPairRow[] = [];
+	for (const code of new Set([...Object.keys(first.scores), ...Object.keys(second.scores)])) {
 		for (const field of FIELDS) {
-			const a = s1[code]?.[field];
-			const b = s2[code]?.[field];
+			const a = first.scores[code]?.[field];
+			const b = second.scores[code]?.[field];
 			if (!isEntered(a) && !isEntered(b)) continue;
 			const x = numeric(a, field);
 			const y = numeric(b, field);
-			pairRows.push({
-				...round_,
-				battery_id: batteryId,
+			rows.push({
+				...r,
 				test_code: code,
 				domain: domainOf(domains, code),
 				field,
@@ -222,17 +259,15 @@ export async function recordSubmission(protocolId: number, round: number, t: Tra
 				second_value: y,
 				first_label: bandOf(field, x),
 				second_label: bandOf(field, y),
-				entered_at: roundAt
+				entered_at: at
 			});
 		}
 	}
-	// one multi-row INSERT per table
-	await AuditField.bulkCreate(fieldRows, { transaction: t });
-	if (pairRows.length) await AgreementPair.bulkCreate(pairRows, { transaction: t });
-	await applyToDaily({ protocolId, round }, 1, t);
+	return rows;
 }
 
-export const AUDIT_FIELDS_COLUMNS = [
+/** The columns of the rows above, in one order, for a multi-row INSERT of value lists (the bench's seed). */
+export const AUDIT_FIELDS_COLUMNS: readonly (keyof AuditFieldRow)[] = [
 	'pass_id',
 	'test_code',
 	'protocol_id',
@@ -246,7 +281,7 @@ export const AUDIT_FIELDS_COLUMNS = [
 	'derived_fields',
 	'entered_at'
 ];
-export const AGREEMENT_PAIRS_COLUMNS = [
+export const AGREEMENT_PAIRS_COLUMNS: readonly (keyof AgreementPairRow)[] = [
 	'protocol_id',
 	'round',
 	'battery_id',
@@ -261,6 +296,21 @@ export const AGREEMENT_PAIRS_COLUMNS = [
 	'second_label',
 	'entered_at'
 ];
+export const ERROR_EVENTS_COLUMNS: readonly (keyof ErrorEventRow)[] = [
+	'discrepancy_id',
+	'protocol_id',
+	'scorer_id',
+	'battery_id',
+	'test_code',
+	'domain',
+	'field',
+	'kind',
+	'entered_at',
+	'judgement'
+];
+
+/** A row of the types above as the value list of `columns`. */
+export const rowValues = <R>(row: R, columns: readonly (keyof R)[]): unknown[] => columns.map((c) => row[c]);
 
 const BOTH = '(g.first_value IS NOT NULL AND g.second_value IS NOT NULL)';
 const MEASURES: Array<[string, string]> = [
@@ -435,7 +485,7 @@ export async function foldDeltas(limit = 5000): Promise<number> {
 }
 
 /** Multi-row INSERT with positional replacements, in chunks. */
-export async function insertMany(table: string, columns: string[], rows: unknown[][], t?: Transaction | null, chunk = 500): Promise<void> {
+export async function insertMany(table: string, columns: readonly string[], rows: unknown[][], t?: Transaction | null, chunk = 500): Promise<void> {
 	for (let i = 0; i < rows.length; i += chunk) {
 		const part = rows.slice(i, i + chunk);
 		const params: Record<string, unknown> = {};
@@ -541,7 +591,7 @@ export const replacedCharges = (d: Pick<DiscrepancyRead, 'id' | 'carried_from' |
  * hot path, `resolveDiscrepancy`, sends the same rows with its other writes): one per pass whose value
  * was not kept.
  */
-export function errorEventRows(d: DiscrepancyRead, passes: ResolutionPass[], domain: string): Array<Omit<InferCreationAttributes<ErrorEvent>, 'id'>> {
+export function errorEventRows(d: DiscrepancyRead, passes: ResolutionPass[], domain: string): ErrorEventRow[] {
 	const against = attributedPasses(d);
 	// The kept value contradicts the recomputation: the charge rests on the reviewer's judgement.
 	const judgement = d.expected !== null && !sameValue(d.resolved_value, d.expected, d.field) ? 1 : 0;

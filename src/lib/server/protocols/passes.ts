@@ -215,7 +215,8 @@ function altOf(d: ReconcileResult['discrepancies'][number]): string | null {
 	return formatReference(d.field, a);
 }
 
-const DISCREPANCY_COLUMNS = [
+/** The columns a reconciliation writes of a discrepancy, in the order of `discrepancyValues`. */
+export const DISCREPANCY_COLUMNS = [
 	'protocol_id',
 	'round',
 	'position',
@@ -228,7 +229,31 @@ const DISCREPANCY_COLUMNS = [
 	'expected',
 	'alternative',
 	'out_of_range'
-];
+] as const;
+
+/**
+ * A reconciler's discrepancy as the values of `DISCREPANCY_COLUMNS`, at `position` (from 1) in its round's
+ * list. The second submit writes them; so does the bench's seed (scripts/bench/audit-seed.ts).
+ */
+export function discrepancyValues(p: Pick<ProtocolRow, 'id' | 'round'>, position: number, d: ReconcileResult['discrepancies'][number]): unknown[] {
+	return [
+		p.id,
+		p.round,
+		position,
+		// a composite's discrepancy carries `composite` instead of `test`; codes are unique across both
+		(d as { test?: string; composite?: string }).test ?? (d as { composite?: string }).composite,
+		d.field,
+		d.pass,
+		d.kind,
+		d.value === null ? null : String(d.value),
+		d.other === null ? null : String(d.other),
+		// written at the field's precision (z as 1.00), as a reviewer keeps it
+		d.expected === null ? null : d.field === 'raw' ? String(d.expected) : formatReference(d.field, d.expected),
+		// rule 5: the reference from the other pass's raw score (null where the rule gives none)
+		altOf(d),
+		d.out_of_range ? 1 : 0
+	];
+}
 
 /**
  * A reconciliation result as the round's discrepancy list: multi-row INSERTs of up to 500 rows (not one
@@ -242,23 +267,7 @@ function discrepancyInserts(p: Pick<ProtocolRow, 'id' | 'round'>, result: Reconc
 	for (let from = 0; from < result.discrepancies.length; from += CHUNK) {
 		const values: unknown[] = [];
 		const rows = result.discrepancies.slice(from, from + CHUNK).map((d, j) => {
-			values.push(
-				p.id,
-				p.round,
-				from + j + 1,
-				// a composite's discrepancy carries `composite` instead of `test`; codes are unique across both
-				(d as { test?: string; composite?: string }).test ?? (d as { composite?: string }).composite,
-				d.field,
-				d.pass,
-				d.kind,
-				d.value === null ? null : String(d.value),
-				d.other === null ? null : String(d.other),
-				// written at the field's precision (z as 1.00), as a reviewer keeps it
-				d.expected === null ? null : d.field === 'raw' ? String(d.expected) : formatReference(d.field, d.expected),
-				// rule 5: the reference from the other pass's raw score (null where the rule gives none)
-				altOf(d),
-				d.out_of_range ? 1 : 0
-			);
+			values.push(...discrepancyValues(p, from + j + 1, d));
 			return guardedRow(DISCREPANCY_COLUMNS, 'protocol_id');
 		});
 		out.push({
