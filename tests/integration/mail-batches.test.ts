@@ -6,41 +6,19 @@
  * sent once; a worker killed mid-batch (by PID) before the hand-over leaves the five claimed by the
  * batch and they are sent once each after the lease; killed after the SMTP accept, none is sent again.
  */
-import { afterAll, afterEach, describe, expect, it } from 'vitest';
+import { describe, expect, it } from 'vitest';
 import { Queue } from 'bullmq';
-import { signedIn, caughtMail, waitFor } from '../helpers/http';
+import { caughtMail, waitFor } from '../helpers/http';
+import { FAST_SWEEP, invite, restoreMailServicesAfterEach, sleep } from '../helpers/mail-crashes';
 import { refuseNext } from '../helpers/review-fixtures';
-import { killWorker, restoreServices, startWorker, stopWorker, workerPid } from '../helpers/services';
-import { select, selectOne, closeDb } from '../../src/lib/server/db';
-import { bullConnection, closeRedis } from '../../src/lib/server/redis';
+import { killWorker, startWorker, stopWorker, workerPid } from '../helpers/services';
+import { select, selectOne } from '../../src/lib/server/db';
+import { bullConnection } from '../../src/lib/server/redis';
 import { MAIL_QUEUE } from '../../src/lib/server/mail/queue';
 
-const sleep = (ms: number) => new Promise((r) => setTimeout(r, ms));
-// as mail-recovery.test.ts: a sweep every second, a 2 s grace and a 3 s lease
-const FAST_SWEEP = { MAIL_SWEEP_MS: '1000', MAIL_SWEEP_GRACE_MS: '2000', MAIL_CLAIM_LEASE_MS: '3000' };
 const FIVE = [1, 2, 3, 4, 5];
 
-afterEach(async () => {
-	await refuseNext(0);
-	await stopWorker();
-	await restoreServices();
-}, 150_000);
-afterAll(async () => {
-	await closeRedis();
-	await closeDb();
-});
-
-async function invite(tag: string): Promise<{ email: string; key: string }> {
-	const email = `${tag}-${Date.now()}@clinic.test`;
-	const admin = await signedIn('admin');
-	const r = await admin.action('/people?/invite', { name: `Batch ${tag}`, email, roles: ['scorer'] });
-	expect(r.body.type).toBe('success');
-	const row = await selectOne<{ idempotency_key: string }>(
-		`SELECT o.idempotency_key FROM outbox o JOIN users u ON u.id = JSON_VALUE(o.payload, '$.userId') WHERE u.email = :email`,
-		{ email }
-	);
-	return { email, key: row!.idempotency_key };
-}
+restoreMailServicesAfterEach();
 
 /** Stop the worker once nothing waits in the outbox: what is written next waits for the next worker alone. */
 async function drainedAndStopped() {

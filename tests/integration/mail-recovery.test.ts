@@ -5,42 +5,18 @@
  * PID) is sent once after all; one handed to SMTP when the worker is killed is never sent twice
  * and does not stay "sending": it is marked uncertain. Every test puts a plain worker back.
  */
-import { afterAll, afterEach, describe, expect, it } from 'vitest';
+import { describe, expect, it } from 'vitest';
 import { Queue } from 'bullmq';
-import { signedIn, caughtMail, waitFor } from '../helpers/http';
+import { caughtMail, waitFor } from '../helpers/http';
+import { FAST_SWEEP, invite, restoreMailServicesAfterEach, sleep } from '../helpers/mail-crashes';
 import { refuseNext } from '../helpers/review-fixtures';
-import { killWorker, restoreServices, startRedis, startWorker, stopRedis, stopWorker, workerPid } from '../helpers/services';
-import { selectOne, closeDb } from '../../src/lib/server/db';
-import { bullConnection, closeRedis } from '../../src/lib/server/redis';
+import { killWorker, startRedis, startWorker, stopRedis, stopWorker, workerPid } from '../helpers/services';
+import { selectOne } from '../../src/lib/server/db';
+import { bullConnection } from '../../src/lib/server/redis';
 import { MAIL_QUEUE } from '../../src/lib/server/mail/queue';
 
-const sleep = (ms: number) => new Promise((r) => setTimeout(r, ms));
-// a worker that sweeps every second, with a 2 s grace and a 3 s lease (production: 30 s, 60 s, 10 min)
-const FAST_SWEEP = { MAIL_SWEEP_MS: '1000', MAIL_SWEEP_GRACE_MS: '2000', MAIL_CLAIM_LEASE_MS: '3000' };
+restoreMailServicesAfterEach();
 
-afterEach(async () => {
-	await refuseNext(0);
-	await stopWorker();
-	await restoreServices();
-}, 150_000);
-afterAll(async () => {
-	await closeRedis();
-	await closeDb();
-});
-
-async function invite(tag: string) {
-	const email = `${tag}-${Date.now()}@clinic.test`;
-	const admin = await signedIn('admin');
-	const r = await admin.action('/people?/invite', { name: `Mail ${tag}`, email, roles: ['scorer'] });
-	expect(r.body.type).toBe('success');
-	const row = await waitFor(() =>
-		selectOne<{ idempotency_key: string }>(
-			`SELECT o.idempotency_key FROM outbox o JOIN users u ON u.id = JSON_VALUE(o.payload, '$.userId') WHERE u.email = :email`,
-			{ email }
-		)
-	);
-	return { email, key: row.idempotency_key, jobId: row.idempotency_key.replace(/:/g, '_') };
-}
 const logStatus = async (key: string) =>
 	(await selectOne<{ status: string }>('SELECT status FROM mail_log WHERE idempotency_key = :key', { key }))?.status ?? null;
 
