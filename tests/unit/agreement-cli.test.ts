@@ -4,35 +4,18 @@
  */
 import { describe, expect, it } from 'vitest';
 import { runCommand } from '../helpers/cli';
+import { GWET_ABSTRACTORS, PEFR_MINI, PEFR_WRIGHT, SHROUT_FLEISS, pairsFromTable } from './agreement-fixtures';
 
 const runAgreement = (stdin: string) => runCommand('agreement', stdin);
 
 const json = (value: unknown) => JSON.stringify(value);
 
-// Shrout & Fleiss (1979), Table 2.
-const SF = [
-	[9, 2, 5, 8],
-	[6, 1, 3, 2],
-	[8, 4, 6, 8],
-	[7, 1, 2, 6],
-	[10, 5, 6, 9],
-	[6, 2, 4, 7]
-];
-// Bland & Altman (1986): first Wright and first mini Wright PEFR readings.
-const WRIGHT = [494, 395, 516, 434, 476, 557, 413, 442, 650, 433, 417, 656, 267, 478, 178, 423, 427];
-const MINI = [512, 430, 520, 428, 500, 600, 364, 380, 658, 445, 432, 626, 260, 477, 259, 350, 451];
+// Shrout & Fleiss (1979), Table 2; Bland & Altman (1986): first Wright and first mini Wright PEFR readings.
+const SF = SHROUT_FLEISS;
+const WRIGHT = PEFR_WRIGHT;
+const MINI = PEFR_MINI;
 // Gwet (2014) cont3x3abstractors as label pairs (rows: abstractor 1).
-function gwetPairs(): [string, string][] {
-	const table = [
-		[13, 0, 0],
-		[0, 20, 7],
-		[0, 4, 56]
-	];
-	const cats = ['Ectopic', 'AIU', 'NIU'];
-	const pairs: [string, string][] = [];
-	table.forEach((row, i) => row.forEach((c, j) => pairs.push(...Array.from({ length: c }, () => [cats[i], cats[j]] as [string, string]))));
-	return pairs;
-}
+const gwetPairs = () => pairsFromTable(GWET_ABSTRACTORS.table, GWET_ABSTRACTORS.categories);
 
 describe('crosstally agreement (child process)', () => {
 	it('answers all three keys for a good input, and only those keys', async () => {

@@ -6,17 +6,8 @@
  */
 import { describe, expect, it } from 'vitest';
 import fc from 'fast-check';
-import { AgreementInputError, blandAltman, blandAltmanFromCounts, cohenKappa, cohenKappaFromCounts, type KappaWeights } from '../../src/lib/scoring/agreement';
-
-function thrown(fn: () => unknown): AgreementInputError {
-	try {
-		fn();
-	} catch (err) {
-		if (err instanceof AgreementInputError) return err;
-		throw err;
-	}
-	throw new Error('expected an AgreementInputError');
-}
+import { blandAltman, blandAltmanFromCounts, cohenKappa, cohenKappaFromCounts, type KappaWeights } from '../../src/lib/scoring/agreement';
+import { thrown } from './agreement-fixtures';
 
 const expand = <T>(cells: ReadonlyArray<readonly [T, T, number]>): Array<[T, T]> =>
 	cells.flatMap(([a, b, c]) => Array.from({ length: c }, () => [a, b] as [T, T]));

@@ -6,7 +6,6 @@
 import { describe, expect, it } from 'vitest';
 import fc from 'fast-check';
 import {
-	AgreementInputError,
 	ICC_FORMS,
 	KOO_LI_2016,
 	LANDIS_KOCH_1977,
@@ -22,27 +21,7 @@ import {
 	type KappaWeights
 } from '../../src/lib/scoring/agreement';
 import { errorRatePer100, wilsonInterval, Z_95 } from '../../src/lib/scoring/rates';
-
-/** Expand a contingency table (rows: rater 1, columns: rater 2) into label pairs. */
-function pairsFromTable(table: number[][], categories: string[]): [string, string][] {
-	const pairs: [string, string][] = [];
-	table.forEach((row, i) =>
-		row.forEach((count, j) => {
-			for (let c = 0; c < count; c++) pairs.push([categories[i], categories[j]]);
-		})
-	);
-	return pairs;
-}
-
-function thrown(fn: () => unknown): AgreementInputError {
-	try {
-		fn();
-	} catch (err) {
-		if (err instanceof AgreementInputError) return err;
-		throw err;
-	}
-	throw new Error('expected an AgreementInputError');
-}
+import { GWET_ABSTRACTORS, PEFR_MINI, PEFR_WRIGHT, SHROUT_FLEISS, pairsFromTable, thrown } from './agreement-fixtures';
 
 const ALL_WEIGHTS: KappaWeights[] = ['none', 'linear', 'quadratic'];
 
@@ -94,12 +73,7 @@ describe("Cohen's kappa: published examples", () => {
 		// 0.8921569 are the printed example output of irrCAC::kappa2.table on rdrr.io; the
 		// linear 0.843 is asserted by the Python port's tests (afergadis/irrCAC,
 		// test/unit/irrCAC/table/test_cohen.py). Confirmed via search, not against the book.
-		const table = [
-			[13, 0, 0],
-			[0, 20, 7],
-			[0, 4, 56]
-		];
-		const categories = ['Ectopic', 'AIU', 'NIU'];
+		const { table, categories } = GWET_ABSTRACTORS;
 		const pairs = pairsFromTable(table, categories);
 		const none = cohenKappa(pairs, { categories });
 		expect(none.kappa).toBeCloseTo(0.7964094, 7);
@@ -269,14 +243,7 @@ describe("Cohen's kappa: formulas and choices", () => {
 describe('Intraclass correlation: Shrout & Fleiss (1979)', () => {
 	// Shrout PE, Fleiss JL. Intraclass correlations: uses in assessing rater reliability.
 	// Psychological Bulletin 1979;86(2):420–428, Table 2: 6 targets rated by 4 judges.
-	const SF = [
-		[9, 2, 5, 8],
-		[6, 1, 3, 2],
-		[8, 4, 6, 8],
-		[7, 1, 2, 6],
-		[10, 5, 6, 9],
-		[6, 2, 4, 7]
-	];
+	const SF = SHROUT_FLEISS;
 
 	it('reproduces the mean squares of the 6 × 4 table (computed by hand)', () => {
 		// Grand mean 127/24 = 5.2917. Target means 6, 3, 6.5, 4, 7.5, 4.75; judge means
@@ -394,8 +361,8 @@ describe('Bland–Altman (1986)', () => {
 	// reading with the large Wright meter and with the mini Wright meter. The data as shipped
 	// in the R package BlandAltmanLeh (bland.altman.PEFR, columns bigger.first and
 	// smaller.first), confirmed via search.
-	const wright = [494, 395, 516, 434, 476, 557, 413, 442, 650, 433, 417, 656, 267, 478, 178, 423, 427];
-	const mini = [512, 430, 520, 428, 500, 600, 364, 380, 658, 445, 432, 626, 260, 477, 259, 350, 451];
+	const wright = PEFR_WRIGHT;
+	const mini = PEFR_MINI;
 	const pairs = wright.map((w, i) => [w, mini[i]] as [number, number]);
 
 	it('PEFR data: bias −2.1 l/min, SD 38.8, limits bias ± 1.96·SD', () => {

@@ -14,6 +14,7 @@ import { run as agreementRun } from '../../scripts/cli/agreement';
 import { validateCsvText } from '../../src/lib/catalog/parse';
 import { COLUMNS } from '../../src/lib/catalog/csv';
 import { CATEGORY_NAMING, CATEGORY_NAMING_NORM, memoryIndex, specExample, tileBuild, wordRecall } from './scoring-fixtures';
+import { SHROUT_FLEISS } from './agreement-fixtures';
 
 /** Documents with the other norm forms (issue 14): a table, a composite, a regression norm, a percentile-only table with bands. */
 function formsBases(): unknown[] {
@@ -253,16 +254,7 @@ describe('agreement batch command: malformed input never crashes it', () => {
 			weights: 'quadratic',
 			categories: ['a', 'b']
 		},
-		icc: {
-			ratings: [
-				[9, 2, 5, 8],
-				[6, 1, 3, 2],
-				[8, 4, 6, 8],
-				[7, 1, 2, 6],
-				[10, 5, 6, 9],
-				[6, 2, 4, 7]
-			]
-		},
+		icc: { ratings: SHROUT_FLEISS },
 		bland_altman: {
 			pairs: [
 				[100, 102],
