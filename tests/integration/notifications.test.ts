@@ -127,6 +127,9 @@ describe('review notifications', () => {
 	it('sends a reminder after the interval, listing only what is still open', async () => {
 		const f = await protocolReachesReview();
 		const first = await waitForKey(f, keyFor(f.protocolId, f.reviewerId, 0));
+		// the raw score the passes wrote differently (29, 92): the Review screen's words, never "both passes" wrong
+		expect(first.text).toContain('raw score (the passes disagree: one or both may be wrong)');
+		expect(first.text).not.toContain('(both passes)');
 		// one discrepancy resolved before the reminder goes out
 		await exec(
 			`UPDATE discrepancies SET resolution = 'other', resolved_value = '1', resolved_by = :by, resolved_at = CURRENT_TIMESTAMP(3) WHERE protocol_id = :id AND position = 0`,
@@ -142,7 +145,7 @@ describe('review notifications', () => {
 		expect(r1.text).toContain('Still open');
 		// how long it has waited, from the protocol's status_changed_at (the wording: tests/unit/review-mail.test.ts)
 		expect(r1.text).toMatch(/Waiting for review since \d{4}-\d{2}-\d{2} \d{2}:\d{2} \S+ \(less than a minute\)\./);
-		expect(r1.text).not.toContain('raw score (both passes)');
+		expect(r1.text).not.toContain('raw score (the passes disagree');
 		expect(r1.text).not.toContain(EXAMINEE_NAME);
 		const r2 = await waitForKey(f, keyFor(f.protocolId, f.reviewerId, 2), INTERVAL_MS + 15_000);
 		expect(Date.parse(r2.receivedAt) - Date.parse(r1.receivedAt)).toBeGreaterThanOrEqual(INTERVAL_MS * 0.9);

@@ -121,10 +121,23 @@ describe('review e-mail: the first message', () => {
 
 	it('a test without a name shows its code; a raw score without a recomputation says so; empty values say (empty)', () => {
 		const m = reviewMailBody({ ...base, discrepancies: [rawBoth, { ...transposition, value: null }] }, NOW);
-		expect(m.text).toContain('1. ds, raw score (both passes)\n   First pass:  [3]4\n   Second pass: [7]4\n   Recomputed:  none for raw scores');
+		expect(m.text).toContain(
+			'1. ds, raw score (the passes disagree: one or both may be wrong)\n   First pass:  [3]4\n   Second pass: [7]4\n   Recomputed:  none for raw scores'
+		);
 		// value null on the second pass's row: the second pass entered nothing, so all of the first pass's value is marked
 		expect(m.text).toContain('   First pass:  [116]\n   Second pass: (empty)');
 		expect(m.html).toContain('<em style="color:#4a5563">empty</em>');
+	});
+
+	it('whom a row is about, in the Review screen’s words: never that both passes are wrong when they differ', () => {
+		// both passes wrote 112 and the recomputation gives 121: a shared error, the one case that names both passes
+		const shared: MailDiscrepancy = { ...rawBoth, field: 'standard', kind: 'wrong_scale', value: '112', other: '112', expected: '121' };
+		const m = reviewMailBody({ ...base, discrepancies: [rawBoth, shared, signFlip] }, NOW);
+		expect(m.text).toContain('1. ds, raw score (the passes disagree: one or both may be wrong)');
+		expect(m.text).toContain('2. ds, standard score (same value in both passes)');
+		expect(m.text).toContain('3. Word Recall (wr), z-score (first pass)');
+		expect(m.html).toContain('raw score · the passes disagree: one or both may be wrong');
+		expect(m.text).not.toContain('(both passes)');
 	});
 
 	it('a reopened round names the round and the reason; an amendment names the field', () => {

@@ -13,7 +13,7 @@ import { mailDocument } from '../document';
 import ReviewMail from './ReviewMail.svelte';
 import { charDiff, type DiffSegment } from '../../../scoring/diff';
 import { KIND_EXPLANATIONS, kindName as vocabularyKindName, type Kind } from '../../../scoring/kinds';
-import { FIELD_LABELS, fieldWords } from '../../../status';
+import { FIELD_LABELS, fieldWords, passWords } from '../../../status';
 import { dateTimeIn } from '../../../dates';
 import { passValues } from '../../protocols/decisions';
 import type { DiscrepancyRow } from '../../models/protocol';
@@ -48,8 +48,6 @@ export interface ReviewMailContent {
 
 /** Field names in a sentence: the same words as the screens (src/lib/status.ts). */
 export const FIELD_WORDS: Record<string, string> = Object.fromEntries(Object.keys(FIELD_LABELS).map((f) => [f, fieldWords(f)]));
-
-const PASS_WORDS = { first: 'first pass', second: 'second pass', both: 'both passes' } as const;
 
 /** The kind's name as the Review chip shows it ("Digits swapped"): one list, src/lib/scoring/kinds.ts. */
 export function kindName(kind: string): string {
@@ -181,7 +179,9 @@ export function reviewMailView(c: ReviewMailContent, now: Date): ReviewMailView 
 			no: i + 1,
 			test: d.test_name ? `${d.test_name} (${d.test_code})` : d.test_code,
 			field: FIELD_WORDS[d.field] ?? d.field,
-			pass: PASS_WORDS[d.pass],
+			// whom the row is about in the Review screen's words (passWords): two different values say "one or both may be
+			// wrong", never that both passes are; "both passes" only where both wrote the same value (or nothing)
+			pass: passWords({ pass: d.pass, first, second }).label,
 			first: m1,
 			second: m2,
 			expected: d.expected ?? (d.field === 'raw' ? 'none for raw scores' : 'none (raw score missing or out of range)'),
