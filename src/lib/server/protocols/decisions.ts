@@ -18,7 +18,7 @@ import { charDiff } from '../../scoring/diff';
 import { explainKind } from '../../scoring/kinds';
 import { checkField } from '../../scoring/reconcile';
 import type { Field } from '../../scoring/scales';
-import { errorEventRows, replacedCharges, COMPOSITE_DOMAIN, type ResolutionPass, type DiscrepancyRead } from '../audit-stats/record';
+import { errorEventRows, replacedCharges, COMPOSITE_DOMAIN, ERROR_EVENTS_COLUMNS, type ResolutionPass, type DiscrepancyRead } from '../audit-stats/record';
 import { afterResolution, isSinglePass } from '../verification';
 import type { Scores } from './passes';
 import { rejudgeDerived } from './evidence';
@@ -363,7 +363,7 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 		// A row never decided before has no charges to take back (they are written only for a decided
 		// row, and taken back when a decision is undone), so the DELETE is sent only when there can be some.
 		const replaced = before.resolved_at !== null || d.carried_from !== null ? replacedCharges(decided) : [];
-		const cols = ERROR_EVENT_COLUMNS;
+		const cols = ERROR_EVENTS_COLUMNS;
 		const writes = await pipeline(t, [
 			{
 				// under the row's lock_version (the version the reviewer's view showed, checked above)
@@ -414,18 +414,6 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 }
 
 type OkPacket = { affectedRows: number; insertId: number };
-const ERROR_EVENT_COLUMNS = [
-	'discrepancy_id',
-	'protocol_id',
-	'scorer_id',
-	'battery_id',
-	'test_code',
-	'domain',
-	'field',
-	'kind',
-	'entered_at',
-	'judgement'
-] as const;
 /** A time for a DATETIME(3) column (the session's time zone is UTC: db.ts). */
 const sqlTime = (d: Date) => d.toISOString().slice(0, 23).replace('T', ' ');
 /** The protocol's compare-and-set at the end of a decision (see resolveDiscrepancy). */
