@@ -7,7 +7,7 @@ import { describe, it, expect, beforeAll, afterAll } from 'vitest';
 import { Sequelize } from 'sequelize';
 import * as mariadb from 'mariadb';
 import { Client, signedIn, ACCOUNTS } from '../helpers/http';
-import { createViaForm, correctScores, saveAndSubmit, getPass, type Scores } from '../helpers/workflow';
+import { createViaForm, correctScores, saveAndSubmit, getPass, userId, type Scores } from '../helpers/workflow';
 import { select, selectOne, exec, closeDb } from '../../src/lib/server/db';
 import { closeRedis } from '../../src/lib/server/redis';
 import { config } from '../../src/lib/server/config';
@@ -348,4 +348,173 @@ describe('attachments', () => {
 		expect(new Uint8Array(await got.arrayBuffer())).toEqual(png);
 		expect((await s3.get(`/protocols/${id}/attachments/${a!.id}`)).status).toBe(404);
 	});
+});
+
+describe('what each worklist and protocol list shows (issue 18: the same answers whatever the query plan)', () => {
+	// Three fresh accounts (each scorer and reviewer), seven protocols in every state, and the times
+	// the lists sort by written by hand, so every answer below is known in full, in order.
+	it('the worklist of each role and the protocol list of each role, item by item', async () => {
+		const { worklist, listProtocols } = await import('../../src/lib/server/protocols/service');
+		const tag = Date.now().toString(36).toUpperCase();
+		const person = async (label: string) => {
+			const email = `${label.toLowerCase()}.${tag.toLowerCase()}@demo.crosstally.test`;
+			const name = `${label} ${tag}`;
+			const { insertId } = await exec(
+				`INSERT INTO users (email, name, password_hash, roles) SELECT :email, :name, password_hash, 'scorer,reviewer' FROM users WHERE email = :sam`,
+				{ email, name, sam: ACCOUNTS.scorer }
+			);
+			return { id: insertId, email, name, client: await signedIn(email) };
+		};
+		const A = await person('Wanda');
+		const B = await person('Xavi');
+		const R = await person('Yusra');
+		const abr = { first: A.email, second: B.email, reviewer: R.email };
+		const code = (n: number) => `WL-${tag}-${n}`;
+
+		const p1 = await createViaForm(lead, { ...abr, code: code(1) }); // nothing entered
+		const p2 = await createViaForm(lead, { ...abr, code: code(2) }); // the first scorer has saved a draft
+		const draft = await getPass(A.client, p2);
+		const entry = await correctScores(p2, RAWS);
+		expect(
+			(await A.client.request(`/api/v1/protocols/${p2}/pass`, { method: 'PUT', json: { scores: entry, draftVersion: draft.body.draftVersion } })).status
+		).toBe(200);
+		const p3 = await createViaForm(lead, { ...abr, code: code(3) }); // awaiting the second pass
+		expect((await saveAndSubmit(A.client, p3, await correctScores(p3, RAWS))).status).toBe(200);
+		const p4 = await createViaForm(lead, { ...abr, code: code(4) }); // in review, two discrepancies (twoEntries)
+		const two = await twoEntries(p4);
+		expect((await saveAndSubmit(A.client, p4, two.first)).status).toBe(200);
+		expect((await saveAndSubmit(B.client, p4, two.second)).status).toBe(200);
+		const p5 = await createViaForm(lead, { ...abr, code: code(5) }); // in review, the passes agree: sign-off
+		const same = await correctScores(p5, RAWS);
+		expect((await saveAndSubmit(A.client, p5, same)).status).toBe(200);
+		expect((await saveAndSubmit(B.client, p5, same)).status).toBe(200);
+		const p6 = await createViaForm(lead, { ...abr, code: code(6) }); // verified: nobody's work
+		const six = await correctScores(p6, RAWS);
+		expect((await saveAndSubmit(A.client, p6, six)).status).toBe(200);
+		expect((await saveAndSubmit(B.client, p6, six)).status).toBe(200);
+		const lv = (await selectOne<{ lock_version: number }>('SELECT lock_version FROM protocols WHERE id = :id', { id: p6 }))!.lock_version;
+		expect((await R.client.request(`/api/v1/protocols/${p6}/signoff`, { method: 'POST', json: { lockVersion: lv } })).status).toBe(200);
+		// duties the other way round: B first, R second, A reviews
+		const p7 = await createViaForm(lead, { first: B.email, second: R.email, reviewer: A.email, code: code(7) });
+
+		// the times the worklists sort by: scorers' items by creation, reviews by the move to review
+		const at = (day: number, hour = 10) => new Date(Date.UTC(2026, 0, day, hour));
+		const times: Array<[number, Date, Date]> = [
+			[p1, at(4), at(4)],
+			[p2, at(3), at(3)],
+			[p3, at(1), at(2, 9)],
+			[p4, at(1), at(5)],
+			[p5, at(1), at(2)],
+			[p6, at(1), at(6)],
+			[p7, at(3, 12), at(3, 12)]
+		];
+		for (const [id, created, changed] of times)
+			await exec('UPDATE protocols SET created_at = :created, status_changed_at = :changed WHERE id = :id', { id, created, changed });
+
+		const battery = 'Harbourview Brief Screen';
+		const item = (kind: string, protocolId: number, n: number, since: Date, status: string, open: number, draftStarted: boolean) => ({
+			kind,
+			protocolId,
+			code: code(n),
+			battery,
+			since: since.toISOString(),
+			status,
+			open,
+			draftStarted
+		});
+		const api = async (c: Client) => {
+			const r = await c.get('/api/v1/worklist');
+			expect(r.status).toBe(200);
+			return (await r.json()).items;
+		};
+		// A: two first passes to enter (the saved draft is older); reviews: none (p7 is still in entry)
+		expect(await api(A.client)).toEqual([item('enter_first', p2, 2, at(3), 'draft', 0, true), item('enter_first', p1, 1, at(4), 'draft', 0, false)]);
+		// B: the second passes of p3, p2, p1 and the first pass of p7, oldest first
+		expect(await api(B.client)).toEqual([
+			item('enter_second', p3, 3, at(1), 'awaiting_second', 0, false),
+			item('enter_second', p2, 2, at(3), 'draft', 0, false),
+			item('enter_first', p7, 7, at(3, 12), 'draft', 0, false),
+			item('enter_second', p1, 1, at(4), 'draft', 0, false)
+		]);
+		// R: a sign-off (no discrepancy), the second pass of p7, a review with two open discrepancies
+		expect(await api(R.client)).toEqual([
+			item('sign_off', p5, 5, at(2), 'in_review', 0, false),
+			item('enter_second', p7, 7, at(3, 12), 'draft', 0, false),
+			item('review', p4, 4, at(5), 'in_review', 2, false)
+		]);
+		// at most `limit` of each kind of work, the oldest
+		const actor = (u: typeof A) => ({ id: u.id, name: u.name, roles: ['scorer', 'reviewer'] as ('scorer' | 'reviewer')[] });
+		expect((await worklist(actor(B), 2)).map((i) => [i.kind, i.protocolId])).toEqual([
+			['enter_second', p3],
+			['enter_second', p2]
+		]);
+		expect((await worklist(actor(R), 1)).map((i) => [i.kind, i.protocolId])).toEqual([
+			['sign_off', p5],
+			['enter_second', p7]
+		]);
+
+		// the protocol list: newest first, names, the open count (the current round's), single pass
+		const row = (id: number, n: number, status: string, who: { name: string }[], open: number, changed: Date) => ({
+			id,
+			code: code(n),
+			battery,
+			test_date: '2026-11-20',
+			status,
+			round: 1,
+			first_name: who[0].name,
+			second_name: who[1].name,
+			reviewer_name: who[2].name,
+			status_changed_at: changed,
+			open_discrepancies: open,
+			single_pass: false
+		});
+		const all = [
+			row(p7, 7, 'draft', [B, R, A], 0, at(3, 12)),
+			row(p6, 6, 'verified', [A, B, R], 0, at(6)),
+			row(p5, 5, 'in_review', [A, B, R], 0, at(2)),
+			row(p4, 4, 'in_review', [A, B, R], 2, at(5)),
+			row(p3, 3, 'awaiting_second', [A, B, R], 0, at(2, 9)),
+			row(p2, 2, 'draft', [A, B, R], 0, at(3)),
+			row(p1, 1, 'draft', [A, B, R], 0, at(4))
+		];
+		const plain = (x: { rows: unknown[]; total: number }) => ({
+			total: x.total,
+			rows: x.rows.map((r) => ({
+				...(r as object),
+				test_date: String((r as { test_date: unknown }).test_date).slice(0, 10),
+				open_discrepancies: Number((r as { open_discrepancies: unknown }).open_discrepancies)
+			}))
+		});
+		// every account here holds a duty on all seven (scorer of some, reviewer of others)
+		for (const u of [A, B, R]) expect(plain(await listProtocols(actor(u), {})), u.name).toEqual({ total: 7, rows: all });
+		// as a scorer only: the protocols where they enter a pass
+		expect(plain(await listProtocols({ ...actor(A), roles: ['scorer'] }, {}))).toEqual({ total: 6, rows: all.slice(1) });
+		expect(plain(await listProtocols({ ...actor(R), roles: ['scorer'] }, {}))).toEqual({ total: 1, rows: all.slice(0, 1) });
+		// as a reviewer only, and filtered by status
+		expect(plain(await listProtocols({ ...actor(A), roles: ['reviewer'] }, {}))).toEqual({ total: 1, rows: all.slice(0, 1) });
+		expect(plain(await listProtocols({ ...actor(R), roles: ['reviewer'] }, { status: 'in_review' }))).toEqual({ total: 2, rows: all.slice(2, 4) });
+		// a lead sees every protocol; the code search finds these seven, a page of 10 holds them all
+		const leadActor = { id: await userId(ACCOUNTS.lead), name: 'lead', roles: ['lead'] as 'lead'[] };
+		expect(plain(await listProtocols(leadActor, { q: `WL-${tag}-` }))).toEqual({ total: 7, rows: all });
+		expect(plain(await listProtocols(leadActor, { q: `WL-${tag}-`, status: 'draft', perPage: 10, page: 1 }))).toEqual({
+			total: 3,
+			rows: [all[0], all[5], all[6]]
+		});
+
+		// pages of 10 (the smallest): five more protocols of A's with the demo accounts, so A as a
+		// scorer holds 11; the newest 10 on page 1, the oldest on page 2
+		const demo = await select<{ email: string; name: string }>('SELECT email, name FROM users WHERE email IN (:e)', {
+			e: [ACCOUNTS.scorer2, ACCOUNTS.reviewer]
+		});
+		const nameOf = (email: string) => ({ name: demo.find((d) => d.email === email)!.name });
+		const more: number[] = [];
+		for (let n = 8; n <= 12; n++)
+			more.push(await createViaForm(lead, { first: A.email, second: ACCOUNTS.scorer2, reviewer: ACCOUNTS.reviewer, code: code(n) }));
+		for (const id of more) await exec('UPDATE protocols SET status_changed_at = :at WHERE id = :id', { id, at: at(7) });
+		const extra = more.map((id, i) => row(id, 8 + i, 'draft', [A, nameOf(ACCOUNTS.scorer2), nameOf(ACCOUNTS.reviewer)], 0, at(7))).reverse();
+		const asScorer = { ...actor(A), roles: ['scorer'] as 'scorer'[] };
+		expect(plain(await listProtocols(asScorer, { perPage: 10, page: 1 }))).toEqual({ total: 11, rows: [...extra, ...all.slice(1, 6)] });
+		expect(plain(await listProtocols(asScorer, { perPage: 10, page: 2 }))).toEqual({ total: 11, rows: [all[6]] });
+		expect(plain(await listProtocols(asScorer, { perPage: 10, page: 2, status: 'draft' }))).toEqual({ total: 7, rows: [] });
+	}, 120_000);
 });

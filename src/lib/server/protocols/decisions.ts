@@ -81,11 +81,12 @@ export async function reviewView(protocolId: number, user: Actor) {
 	// Both passes' raw scores: after the second submit they are no longer blind, and a reviewer
 	// needs them to see what each recomputed value was computed from.
 	const { Pass, Discrepancy } = models();
-	const passRows = await reading(null, () => Pass.findAll({ attributes: ['which', 'scores'], where: { protocol_id: p.id, round: p.round } }));
+	// plain rows (raw: true), not model instances: the Review page is the most requested page under load
+	const passRows = await reading(null, () => Pass.findAll({ attributes: ['which', 'scores'], where: { protocol_id: p.id, round: p.round }, raw: true }));
 	const rawOf = (which: 'first' | 'second', code: string) => (jsonValue<Scores>(passRows.find((x) => x.which === which)?.scores) ?? {})[code]?.raw ?? null;
-	const rows = (await reading(null, () => Discrepancy.findAll({ where: { protocol_id: p.id, round: p.round }, order: [['position', 'ASC']] }))).map(
-		(d) => d.get({ plain: true }) as DiscrepancyRow
-	);
+	const rows = (await reading(null, () =>
+		Discrepancy.findAll({ where: { protocol_id: p.id, round: p.round }, order: [['position', 'ASC']], raw: true })
+	)) as unknown as DiscrepancyRow[];
 	// users is a catalog table (no model on this side): the resolvers' names in one read
 	const resolverIds = [...new Set(rows.map((d) => d.resolved_by).filter((x): x is number => x !== null))];
 	const resolvers = resolverIds.length ? await select<{ id: number; name: string }>('SELECT id, name FROM users WHERE id IN (:ids)', { ids: resolverIds }) : [];
@@ -562,7 +563,8 @@ export async function previousDecisions(protocolId: number, round: number) {
 	const rows = await reading(null, () =>
 		models().Discrepancy.findAll({
 			attributes: ['test_code', 'field', 'resolution', 'resolved_value', 'note', 'round'],
-			where: { protocol_id: protocolId, round: round - 1, resolved_at: { [Op.ne]: null } }
+			where: { protocol_id: protocolId, round: round - 1, resolved_at: { [Op.ne]: null } },
+			raw: true
 		})
 	);
 	return rows.map((d) => ({

@@ -17,7 +17,7 @@ export async function protocolPage(id: number, user: Actor) {
 	const mail = view.protocol.status === 'in_review' || view.protocol.status === 'verified' ? await listProtocolMail(id) : [];
 	let warnings: string[] = [];
 	if (staff) {
-		const ex = await reading(null, () => models().Examinee.findByPk(view.protocol.examinee_id));
+		const ex = await reading(null, () => models().Examinee.findByPk(view.protocol.examinee_id, { raw: true }));
 		const plan = await planGroups(
 			view.protocol.battery_id,
 			view.protocol.norm_set_id,

@@ -447,7 +447,8 @@ export async function singlePassIds(ids: number[], t?: Tx): Promise<Set<number>>
 	if (ids.length === 0) return new Set();
 	const { VerificationProtocol } = verificationModels();
 	const rows = await reading(t, () =>
-		VerificationProtocol.findAll({ attributes: ['protocol_id'], where: { protocol_id: ids, outcome: 'not_drawn' }, transaction: t ?? undefined })
+		// plain rows: read on every worklist and protocol list
+		VerificationProtocol.findAll({ attributes: ['protocol_id'], where: { protocol_id: ids, outcome: 'not_drawn' }, transaction: t ?? undefined, raw: true })
 	);
 	return new Set(rows.map((r) => Number(r.protocol_id)));
 }
