@@ -4,6 +4,7 @@
  * All names, tests and norms here are invented for the demo.
  */
 import { closeDb, selectOne } from '../../src/lib/server/db';
+import { closeRedis } from '../../src/lib/server/redis';
 import { seedAccounts } from './accounts';
 
 async function main() {
@@ -25,4 +26,9 @@ main()
 		console.error('[crosstally] the database is partly seeded: stop, delete the data folder ($CROSSTALLY_DATA_DIR) and start again');
 		process.exitCode = 1;
 	})
-	.finally(() => closeDb());
+	// the demo's protocols in review and invitations wake the dispatcher (src/lib/server/mail/wake.ts): the
+	// Redis connection that opened would keep the process alive
+	.finally(async () => {
+		await closeDb();
+		await closeRedis();
+	});

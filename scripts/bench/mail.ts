@@ -166,7 +166,7 @@ function startWorkers(): Promise<ChildProcess[]> {
 		const node = [...(PROFILE ? ['--cpu-prof', `--cpu-prof-dir=${resolve(PROFILE)}`] : []), '--import', 'tsx'];
 		const p = spawn(process.execPath, [`--env-file=${ENV_FILE}`, ...node, 'scripts/worker.ts'], {
 			cwd: ROOT,
-			env: { ...process.env, WORKER_CONCURRENCY: String(CONCURRENCY), DISPATCH_INTERVAL_MS: '100' },
+			env: { ...process.env, WORKER_CONCURRENCY: String(CONCURRENCY) },
 			stdio: ['ignore', 'pipe', openSync(logFile, 'a')]
 		});
 		procs.push(p);

@@ -148,6 +148,34 @@ export async function pipeline(t: Transaction, statements: Piped[]): Promise<unk
 /** The commit marker of each running `transaction()` (see there), and whether the body has sent it. */
 const markers = new WeakMap<Transaction, { id: string; sent: boolean }>();
 
+/** What each running `transaction()` runs once its COMMIT has succeeded (`afterCommit`). */
+const committedHooks = new WeakMap<Transaction, (() => void)[]>();
+
+/**
+ * Run `fn` once the change `t` belongs to has committed: never for an attempt that rolled back (a
+ * conflict reruns the body on a new transaction, which registers its own), never inside the
+ * transaction. Sequelize's own `t.afterCommit` is not used for `transaction()`: it runs its hooks in a
+ * `finally`, after a failed COMMIT too. Without `t` (a statement that committed as it ran) `fn` runs now;
+ * with a transaction not opened by `transaction()`, Sequelize's hook. `fn` must not throw or wait: a
+ * side effect outside the database that may be lost (the mail wake-up, ./mail/wake.ts).
+ */
+export function afterCommit(t: Tx, fn: () => void): void {
+	if (!t) return fn();
+	const hooks = committedHooks.get(t);
+	if (hooks) hooks.push(fn);
+	else t.afterCommit(() => fn());
+}
+
+function runCommitted(hooks: (() => void)[]): void {
+	for (const fn of hooks) {
+		try {
+			fn();
+		} catch (e) {
+			console.error(`[tx] an after-commit hook failed: ${e instanceof Error ? e.message : e}`);
+		}
+	}
+}
+
 /**
  * The transaction's commit marker as a guarded INSERT, for a hot path to send in its last `pipeline`
  * (one round trip less; the resolution): `transaction()` then does not write it again. The marker only
@@ -178,11 +206,13 @@ export function transaction<T>(fn: (t: Transaction) => Promise<T>, retry?: Retry
 		const marker = randomUUID();
 		let out: T | undefined;
 		let bodyDone = false;
+		const hooks: (() => void)[] = [];
 		try {
 			// READ COMMITTED: the session's level, set when the connection is made (initSql in db())
-			return await db().transaction(async (t) => {
+			const result = await db().transaction(async (t) => {
 				const m = { id: marker, sent: false };
 				markers.set(t, m);
+				committedHooks.set(t, hooks);
 				out = await fn(t);
 				// unless the body sent it with its own last writes (markerStatement)
 				if (!m.sent) await writeMarker(marker, t);
@@ -190,6 +220,8 @@ export function transaction<T>(fn: (t: Transaction) => Promise<T>, retry?: Retry
 				committing();
 				return out;
 			});
+			runCommitted(hooks); // COMMIT answered OK
+			return result;
 		} catch (e) {
 			if (!bodyDone || isRetryableConflict(e)) throw e; // rolled back for certain
 			// the outcome of COMMIT is unknown: ask the cluster (causal read, after a moment to settle)
@@ -197,6 +229,7 @@ export function transaction<T>(fn: (t: Transaction) => Promise<T>, retry?: Retry
 			const applied = await withRetry(() => markerCommitted(marker), { maxAttempts: 4 }).catch(() => null);
 			if (applied === true) {
 				console.error('[tx] commit answer lost, the change was applied (commit marker found)');
+				runCommitted(hooks);
 				return out as T;
 			}
 			if (applied === false) throw Object.assign(e as object, { notApplied: true });

@@ -2,12 +2,14 @@
  * The transactional outbox. A business transaction (reconciliation, invitation) writes a row here in
  * the same database transaction; the worker's dispatcher moves rows into the BullMQ queue. If Redis
  * is down, rows wait here and nothing is lost. The idempotency key is unique: writing the same
- * message twice (a retried request) is a no-op.
+ * message twice (a retried request) is a no-op. A write that added a row wakes the dispatcher once it
+ * has committed (./wake.ts).
  */
 import { fn, literal } from 'sequelize';
-import { autocommit as write, exec, readRetried as read, type Tx } from '../db';
+import { afterCommit, autocommit as write, exec, readRetried as read, type Tx } from '../db';
 import { models } from '../models';
 import { MAIL_KINDS, type MailKind, type Outbox } from '../models/mail';
+import { wakeDispatcher } from './wake';
 
 export type { MailKind } from '../models/mail';
 
@@ -15,20 +17,23 @@ export async function enqueueMail(kind: MailKind, idempotencyKey: string, payloa
 	// INSERT IGNORE (the unique key makes a second write a no-op), raw: every business transaction that
 	// mails and every review e-mail sent writes one, and the model's build and validation cost CPU there
 	if (!MAIL_KINDS.includes(kind)) throw new Error(`unknown mail kind ${kind}`);
-	await exec(
+	const { affected } = await exec(
 		`INSERT IGNORE INTO outbox (kind, idempotency_key, payload) VALUES (:kind, :key, :payload)`,
 		{ kind, key: idempotencyKey, payload: JSON.stringify(payload) },
 		t
 	);
+	// the dispatcher goes at once rather than at its next poll (./wake.ts) — after COMMIT, never inside
+	if (affected > 0) afterCommit(t, wakeDispatcher);
 }
 
 /** Many outbox rows in one INSERT IGNORE (a batch's next reminders; outside any transaction). */
 export async function enqueueMails(rows: { kind: MailKind; key: string; payload: Record<string, unknown> }[]): Promise<void> {
 	if (rows.length === 0) return;
 	for (const r of rows) if (!MAIL_KINDS.includes(r.kind)) throw new Error(`unknown mail kind ${r.kind}`);
-	await exec(`INSERT IGNORE INTO outbox (kind, idempotency_key, payload) VALUES :rows`, {
+	const { affected } = await exec(`INSERT IGNORE INTO outbox (kind, idempotency_key, payload) VALUES :rows`, {
 		rows: rows.map((r) => [r.kind, r.key, JSON.stringify(r.payload)])
 	});
+	if (affected > 0) wakeDispatcher();
 }
 
 /** Rows the dispatcher has not handed to the queue yet, oldest first. */
