@@ -1,9 +1,8 @@
 /**
  * The background worker (a separate process; npm start runs one). It dispatches the outbox into
  * the BullMQ queue as soon as a commit wakes it (src/lib/server/mail/wake.ts), and at the latest every
- * DISPATCH_INTERVAL_MS, and sends queued mail with nodemailer. Run more of
- * them against the same Redis and database to scale out: job ids and mail_log keys keep every
- * message to at most one send.
+ * DISPATCH_INTERVAL_MS, and sends queued mail with nodemailer. Run more of them against the same Redis
+ * and database to scale out: job ids and mail_log keys keep every message to at most one send.
  */
 import { Worker } from 'bullmq';
 import { bullConnection } from '../src/lib/server/redis';
