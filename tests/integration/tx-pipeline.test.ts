@@ -8,7 +8,8 @@
  */
 import { afterAll, describe, expect, it } from 'vitest';
 import { randomUUID } from 'node:crypto';
-import { closeDb, db, exec, guardedRow, pipeline, select } from '../../src/lib/server/db';
+import { closeDb, db, exec, GUARDED, guardedRow, pipeline, select } from '../../src/lib/server/db';
+import { outboxInsert } from '../../src/lib/server/mail/outbox';
 import { isRetryableConflict } from '../../src/lib/server/tx';
 
 afterAll(async () => {
@@ -64,6 +65,24 @@ describe('pipeline: writes sent behind a deadlock victim', () => {
 			expect(found).toContain(unguarded);
 		} finally {
 			await exec('DELETE FROM commit_markers WHERE id IN (:ids)', { ids: [guarded, unguarded, ...heavy] });
+		}
+	});
+
+	it('outside a transaction the guarded outbox upsert fails without a row; a guarded INSERT IGNORE would store the NULL as an empty string', async () => {
+		// on its own (autocommit) @@in_transaction is 0: what a statement sent behind a deadlock victim sees
+		const key = `tx-pipeline:${randomUUID()}`;
+		const s = outboxInsert('invite', key, {});
+		await expect(exec(s.sql, s.values)).rejects.toMatchObject({ original: { errno: 1048 } }); // ER_BAD_NULL_ERROR
+		expect(await select('SELECT id FROM outbox WHERE idempotency_key = :key', { key })).toEqual([]);
+		// why the outbox row is not INSERT IGNORE (shown on commit_markers, whose id is NOT NULL): IGNORE
+		// turns the guard's NULL into the column's implicit default and inserts the row
+		await exec(`DELETE FROM commit_markers WHERE id = ''`);
+		try {
+			const ignored = await exec(`INSERT IGNORE INTO commit_markers (id) VALUES (${GUARDED})`, [randomUUID()]);
+			expect(ignored.affected).toBe(1);
+			expect(await markers([''])).toEqual([{ id: '' }]);
+		} finally {
+			await exec(`DELETE FROM commit_markers WHERE id = ''`);
 		}
 	});
 

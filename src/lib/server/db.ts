@@ -79,8 +79,11 @@ export const autocommit = <T>(run: () => Promise<T>): Promise<T> =>
 		return run();
 	});
 
-/** INSERT/UPDATE/DELETE: returns the insert id and the number of affected rows. */
-export async function exec(sql: string, replacements: Params = {}, transaction?: Tx): Promise<{ insertId: number; affected: number }> {
+/**
+ * INSERT/UPDATE/DELETE: returns the insert id and the number of affected rows. `replacements`: named
+ * (`:name`) or, for a `Piped` statement run on its own, its `?` values in order.
+ */
+export async function exec(sql: string, replacements: Params | unknown[] = {}, transaction?: Tx): Promise<{ insertId: number; affected: number }> {
 	const run = () => db().query(sql, { replacements, transaction: transaction ?? undefined, raw: true }) as Promise<unknown[]>;
 	// A statement on its own commits as it runs: a deadlock or certification conflict (1213) means it
 	// was not applied and is retried; a lost connection may have applied it and is not (committing()).
@@ -119,6 +122,31 @@ export const IN_TX = '@@in_transaction = 1';
 export const GUARDED = `IF(${IN_TX}, ?, NULL)`;
 /** `(?, IF(…, ?, NULL), ?)`: one row of a guarded INSERT … VALUES, the guard on `guard` (a NOT NULL column). */
 export const guardedRow = (columns: readonly string[], guard: string) => `(${columns.map((c) => (c === guard ? GUARDED : '?')).join(', ')})`;
+
+/**
+ * Rows as guarded multi-row `INSERT INTO table (columns) VALUES …` statements of up to `chunk` rows
+ * (`guardedRow`, the guard on `guard`); each row's values in the order of `columns`. `suffix`: e.g.
+ * `ON DUPLICATE KEY UPDATE …` — an upsert keeps the guard (the NULL fails the statement before any key
+ * is compared); never `INSERT IGNORE`, which turns the NULL into the column's implicit default ('' or
+ * 0) and inserts the row.
+ */
+export function guardedInserts(table: string, columns: readonly string[], guard: string, rows: unknown[][], chunk = 500, suffix = ''): Piped[] {
+	const out: Piped[] = [];
+	for (let from = 0; from < rows.length; from += chunk) {
+		const part = rows.slice(from, from + chunk);
+		out.push({
+			sql: `INSERT INTO ${table} (${columns.join(', ')}) VALUES ${part.map(() => guardedRow(columns, guard)).join(', ')}${suffix ? ` ${suffix}` : ''}`,
+			values: part.flat()
+		});
+	}
+	return out;
+}
+
+/**
+ * A DATETIME(3) value as UTC text, for a `pipeline` statement: the driver called directly writes a
+ * Date in the process's local time zone (Sequelize's replacements write it in the connection's +00:00).
+ */
+export const sqlTime = (d: Date) => d.toISOString().slice(0, 23).replace('T', ' ');
 
 /**
  * Several statements sent at once on the transaction's connection, in the order given (the mariadb

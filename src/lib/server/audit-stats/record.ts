@@ -21,7 +21,7 @@
  * weekly and pair-daily ones to the whole-range totals too (sql.ts, TOTALS; 00031).
  */
 import type { InferCreationAttributes, Transaction } from 'sequelize';
-import { exec, select, selectOne, jsonValue, transaction } from '../db';
+import { exec, select, selectOne, jsonValue, transaction, pipeline, guardedInserts, sqlTime, IN_TX, type Piped } from '../db';
 import { labelFor } from '../../scoring/labels';
 import { parseEntered, FIELDS, type Field, type DerivedField } from '../../scoring/scales';
 import { models } from '../models';
@@ -149,56 +149,86 @@ export async function testDomains(protocolId: number, t: Transaction): Promise<M
 
 /**
  * Both passes of a round are submitted: write one audit_fields row per pass × test (fields that
- * scorer entered) and one agreement_pairs row per test × field that either pass entered.
+ * scorer entered) and one agreement_pairs row per test × field that either pass entered, and append
+ * their sums to the daily `_delta` tables — `submissionWrites`, in one `pipeline` (one round trip).
+ * The second submit sends the same statements in its own last batch (it has read what is read here).
  */
 export async function recordSubmission(protocolId: number, round: number, t: Transaction, known?: SubmissionReads): Promise<void> {
-	models();
-	const passes =
-		known?.passes ??
-		(await select<PassRead & { battery_id: number }>(
-			`SELECT s.id, s.which, s.scorer_id, s.status, s.scores, s.fields_entered, s.submitted_at, p.battery_id
-			   FROM passes s JOIN protocols p ON p.id = s.protocol_id
-			  WHERE s.protocol_id = :protocolId AND s.round = :round`,
-			{ protocolId, round },
-			t
-		));
-	const first = passes.find((p) => p.which === 'first');
-	const second = passes.find((p) => p.which === 'second');
+	await pipeline(t, submissionWrites(protocolId, round, known ?? (await submissionReads(protocolId, round, t))));
+}
+
+/** What recordSubmission needs of the database when the caller has not read it. */
+async function submissionReads(protocolId: number, round: number, t: Transaction): Promise<SubmissionReads> {
+	const passes = await select<PassRead & { battery_id: number }>(
+		`SELECT s.id, s.which, s.scorer_id, s.status, s.scores, s.fields_entered, s.submitted_at, p.battery_id
+		   FROM passes s JOIN protocols p ON p.id = s.protocol_id
+		  WHERE s.protocol_id = :protocolId AND s.round = :round`,
+		{ protocolId, round },
+		t
+	);
+	const codes = new Set(passes.flatMap((p) => Object.keys(jsonValue<PassScores>(p.scores) ?? {})));
+	return {
+		passes,
+		batteryId: Number(passes[0]?.battery_id ?? 0),
+		earlier: await roundRecorded(protocolId, round, t),
+		domains: await domainsFor([...codes], t)
+	};
+}
+
+/**
+ * recordSubmission's writes as statements for a `pipeline`, every one guarded (`IN_TX`, ../db), so
+ * they may follow other statements of the batch: a round recorded before (`earlier`) first takes its
+ * old rows out of the sums (negated appends, then the DELETEs); then the audit_fields rows, the
+ * agreement_pairs rows and the round's sums appended to the `_delta` tables (`dailyDeltas`, which read
+ * the rows just inserted: the server runs a batch in order). Throws unless both passes are submitted.
+ */
+export function submissionWrites(protocolId: number, round: number, r: SubmissionReads): Piped[] {
+	const first = r.passes.find((p) => p.which === 'first');
+	const second = r.passes.find((p) => p.which === 'second');
 	if (!first || !second || first.status !== 'submitted' || second.status !== 'submitted') {
 		throw new Error(`recordSubmission: protocol ${protocolId} round ${round} does not have two submitted passes`);
 	}
-	const batteryId = known ? known.batteryId : Number((first as PassRead & { battery_id: number }).battery_id);
 	const s1 = jsonValue<PassScores>(first.scores) ?? {};
 	const s2 = jsonValue<PassScores>(second.scores) ?? {};
-	const codes = [...new Set([...Object.keys(s1), ...Object.keys(s2)])];
-	const domains = known?.domains ?? (await domainsFor(codes, t));
 	const enteredAt = (p: PassRead) => (p.submitted_at ? new Date(p.submitted_at) : new Date());
 	const roundAt = new Date(Math.max(enteredAt(first).getTime(), enteredAt(second).getTime()));
-
-	const round_ = { protocol_id: protocolId, round };
-	// A round recorded before (recorded again): take its rows out of the sums first. The usual case,
-	// a round's first recording, has none.
-	if (known ? known.earlier : await roundRecorded(protocolId, round, t)) {
-		await applyToDaily({ protocolId, round }, -1, t);
-		await AuditField.destroy({ where: round_, transaction: t });
-		await AgreementPair.destroy({ where: round_, transaction: t });
-	}
-
-	const where = { ...round_, battery_id: batteryId };
+	const where = { protocol_id: protocolId, round, battery_id: r.batteryId };
 	const fieldRows = [first, second].flatMap((pass) =>
 		auditFieldRows(
 			where,
 			// named one by one: a pass may be a model instance (the second submit's reads), whose attributes a spread does not copy
 			{ id: pass.id, which: pass.which, scorer_id: pass.scorer_id, fields_entered: Number(pass.fields_entered) || 0, entered_at: enteredAt(pass) },
 			pass === first ? s1 : s2,
-			domains
+			r.domains
 		)
 	);
-	const pairRows = agreementPairRows(where, { scorer_id: first.scorer_id, scores: s1 }, { scorer_id: second.scorer_id, scores: s2 }, domains, roundAt);
-	// one multi-row INSERT per table
-	await AuditField.bulkCreate(fieldRows, { transaction: t });
-	if (pairRows.length) await AgreementPair.bulkCreate(pairRows, { transaction: t });
-	await applyToDaily({ protocolId, round }, 1, t);
+	const pairRows = agreementPairRows(where, { scorer_id: first.scorer_id, scores: s1 }, { scorer_id: second.scorer_id, scores: s2 }, r.domains, roundAt);
+	// entered_at as UTC text (sqlTime): the driver, called directly, would write a Date in the process's zone
+	const values = <R extends { entered_at: Date }>(row: R, columns: readonly (keyof R)[]) =>
+		columns.map((c) => (c === 'entered_at' ? sqlTime(row.entered_at) : row[c]));
+	const scope = { protocolId, round };
+	return [
+		...(r.earlier
+			? [
+					...dailyDeltas(scope, -1),
+					{ sql: `DELETE FROM audit_fields WHERE protocol_id = ? AND round = ? AND ${IN_TX}`, values: [protocolId, round] },
+					{ sql: `DELETE FROM agreement_pairs WHERE protocol_id = ? AND round = ? AND ${IN_TX}`, values: [protocolId, round] }
+				]
+			: []),
+		...guardedInserts(
+			'audit_fields',
+			AUDIT_FIELDS_COLUMNS,
+			'pass_id',
+			fieldRows.map((row) => values(row, AUDIT_FIELDS_COLUMNS))
+		),
+		...guardedInserts(
+			'agreement_pairs',
+			AGREEMENT_PAIRS_COLUMNS,
+			'protocol_id',
+			pairRows.map((row) => values(row, AGREEMENT_PAIRS_COLUMNS))
+		),
+		...dailyDeltas(scope, 1)
+	];
 }
 
 /** An audit_fields row, as `recordSubmission` writes it (and the bench's seed, scripts/bench/audit-seed.ts). */
@@ -329,35 +359,49 @@ const MEASURES: Array<[string, string]> = [
 /**
  * Add (sign 1) or subtract (sign −1) the row-level rows of one protocol round (or of a range of
  * protocol ids, for a rebuild) in audit_fields / agreement_pairs to the daily sums, appended to the
- * `_delta` tables: plain INSERTs, no hot row; the worker's fold (`foldDeltas`) moves them into the
- * summaries. Raw SQL: INSERT … SELECT … GROUP BY adds up a round in the database in one statement
- * per table.
+ * `_delta` tables (`dailyDeltas`) in one `pipeline`; without a transaction, in one of its own (the five
+ * appends belong together).
  */
 export async function applyToDaily(
 	scope: { protocolId: number; round: number } | { fromProtocol: number; toProtocol: number },
 	sign: 1 | -1,
 	t?: Transaction | null
 ): Promise<void> {
-	const p = { ...scope, sign };
+	if (!t) return transaction((tx) => applyToDaily(scope, sign, tx));
+	await pipeline(t, dailyDeltas(scope, sign));
+}
+
+/**
+ * The appends of `applyToDaily`, one statement per `_delta` table: plain INSERTs, no hot row; the
+ * worker's fold (`foldDeltas`) moves them into the summaries. Raw SQL: INSERT … SELECT … GROUP BY adds
+ * up a round in the database in one statement per table. Guarded for a `pipeline` (`… WHERE … AND
+ * ${IN_TX}`): outside the transaction the SELECT finds no row and nothing is appended. These tables
+ * have an AUTO_INCREMENT id, so each statement takes the table's AUTO-INC lock while it runs (an
+ * INSERT … SELECT always did; db.ts, GUARDED).
+ */
+export function dailyDeltas(scope: { protocolId: number; round: number } | { fromProtocol: number; toProtocol: number }, sign: 1 | -1): Piped[] {
+	if (sign !== 1 && sign !== -1) throw new Error('dailyDeltas: sign is 1 or -1'); // written into the SQL as a number
 	// A rebuild's slice groups up to a few hundred thousand rows per statement: let that grouping stay
 	// in memory (up to 256 MB for this statement only). Grouped in an on-disk temporary table, it failed
 	// on this MariaDB 10.11 ("Error on delete of '/tmp/#sql-temptable….MAI'", errno 6) on the bench's
 	// data and on audit-rebuild.test.ts's 100,000 pairs in 45 protocols (agreement_values, 226,800 groups).
 	const inMemory = 'fromProtocol' in scope ? 'SET STATEMENT tmp_table_size = 268435456, max_heap_table_size = 268435456 FOR ' : '';
+	const values = 'fromProtocol' in scope ? [scope.fromProtocol, scope.toProtocol] : [scope.protocolId, scope.round];
 	const whereOf = (alias: string) =>
-		'fromProtocol' in scope ? `${alias}.protocol_id BETWEEN :fromProtocol AND :toProtocol` : `${alias}.protocol_id = :protocolId AND ${alias}.round = :round`;
-	await exec(
-		`${inMemory}INSERT INTO audit_daily_delta (day, scorer_id, battery_id, test_code, domain, passes, fields_entered, raw_fields, derived_fields)
-		 SELECT DATE(a.entered_at), a.scorer_id, a.battery_id, a.test_code, MAX(a.domain), :sign * COUNT(*), :sign * SUM(a.fields_entered),
-		        :sign * SUM(a.raw_fields), :sign * SUM(a.derived_fields)
-		   FROM audit_fields a WHERE ${whereOf('a')}
-		  GROUP BY DATE(a.entered_at), a.scorer_id, a.battery_id, a.test_code`,
-		p,
-		t
-	);
+		('fromProtocol' in scope ? `${alias}.protocol_id BETWEEN ? AND ?` : `${alias}.protocol_id = ? AND ${alias}.round = ?`) + ` AND ${IN_TX}`;
+	const out: Piped[] = [
+		{
+			sql: `${inMemory}INSERT INTO audit_daily_delta (day, scorer_id, battery_id, test_code, domain, passes, fields_entered, raw_fields, derived_fields)
+			 SELECT DATE(a.entered_at), a.scorer_id, a.battery_id, a.test_code, MAX(a.domain), ${sign} * COUNT(*), ${sign} * SUM(a.fields_entered),
+			        ${sign} * SUM(a.raw_fields), ${sign} * SUM(a.derived_fields)
+			   FROM audit_fields a WHERE ${whereOf('a')}
+			  GROUP BY DATE(a.entered_at), a.scorer_id, a.battery_id, a.test_code`,
+			values
+		}
+	];
 	const gWhere = whereOf('g');
 	const cols = MEASURES.map(([c]) => c).join(', ');
-	const sums = MEASURES.map(([, e]) => `:sign * ${e}`).join(', ');
+	const sums = MEASURES.map(([, e]) => `${sign} * ${e}`).join(', ');
 	const buckets: Array<[SummaryTable, string, string]> = [
 		['agreement_daily', 'day', 'DATE(g.entered_at)'],
 		['agreement_weekly', 'week', 'DATE_SUB(DATE(g.entered_at), INTERVAL WEEKDAY(g.entered_at) DAY)']
@@ -368,34 +412,32 @@ export async function applyToDaily(
 	const asScorer = 'CASE r.k WHEN 0 THEN 0 WHEN 1 THEN g.first_scorer_id ELSE g.second_scorer_id END';
 	const threeTimes = `agreement_pairs g JOIN (SELECT 0 AS k UNION ALL SELECT 1 UNION ALL SELECT 2) r`;
 	for (const [table, col, bucket] of buckets) {
-		await exec(
-			`${inMemory}INSERT INTO ${table}_delta (scorer_id, ${col}, battery_id, test_code, field, first_label, second_label, ${cols})
+		out.push({
+			sql: `${inMemory}INSERT INTO ${table}_delta (scorer_id, ${col}, battery_id, test_code, field, first_label, second_label, ${cols})
 			 SELECT ${asScorer}, ${bucket}, g.battery_id, g.test_code, g.field, COALESCE(g.first_label, ''), COALESCE(g.second_label, ''), ${sums}
 			   FROM ${threeTimes} WHERE ${gWhere}
 			  GROUP BY 1, 2, 3, 4, 5, 6, 7`,
-			p,
-			t
-		);
+			values
+		});
 	}
-	await exec(
-		`${inMemory}INSERT INTO agreement_pair_daily_delta (field, day, first_scorer_id, second_scorer_id, battery_id, test_code, first_label, second_label, ${cols})
+	out.push({
+		sql: `${inMemory}INSERT INTO agreement_pair_daily_delta (field, day, first_scorer_id, second_scorer_id, battery_id, test_code, first_label, second_label, ${cols})
 		 SELECT g.field, DATE(g.entered_at), g.first_scorer_id, g.second_scorer_id, g.battery_id, g.test_code, COALESCE(g.first_label, ''), COALESCE(g.second_label, ''), ${sums}
 		   FROM agreement_pairs g WHERE ${gWhere}
 		  GROUP BY 1, 2, 3, 4, 5, 6, 7, 8`,
-		p,
-		t
-	);
+		values
+	});
 	// the Bland–Altman points pre-binned (00031): pairs both passes entered, for everyone (0) and for
 	// each scorer once (the report's scorer filter matches either pass)
-	await exec(
-		`${inMemory}INSERT INTO agreement_values_delta (scorer_id, field, battery_id, test_code, first_value, second_value, pairs)
-		 SELECT ${asScorer}, g.field, g.battery_id, g.test_code, g.first_value, g.second_value, :sign * COUNT(*)
+	out.push({
+		sql: `${inMemory}INSERT INTO agreement_values_delta (scorer_id, field, battery_id, test_code, first_value, second_value, pairs)
+		 SELECT ${asScorer}, g.field, g.battery_id, g.test_code, g.first_value, g.second_value, ${sign} * COUNT(*)
 		   FROM ${threeTimes} ON r.k < 2 OR g.second_scorer_id <> g.first_scorer_id
 		  WHERE ${gWhere} AND g.first_value IS NOT NULL AND g.second_value IS NOT NULL
 		  GROUP BY 1, 2, 3, 4, 5, 6`,
-		p,
-		t
-	);
+		values
+	});
+	return out;
 }
 
 /**

@@ -6,7 +6,7 @@
  * has committed (./wake.ts).
  */
 import { fn, literal } from 'sequelize';
-import { afterCommit, autocommit as write, exec, readRetried as read, type Tx } from '../db';
+import { afterCommit, autocommit as write, exec, readRetried as read, GUARDED, type Piped, type Tx } from '../db';
 import { models } from '../models';
 import { MAIL_KINDS, type MailKind, type Outbox } from '../models/mail';
 import { wakeDispatcher } from './wake';
@@ -14,16 +14,34 @@ import { wakeDispatcher } from './wake';
 export type { MailKind } from '../models/mail';
 
 export async function enqueueMail(kind: MailKind, idempotencyKey: string, payload: Record<string, unknown>, t?: Tx): Promise<void> {
-	// INSERT IGNORE (the unique key makes a second write a no-op), raw: every business transaction that
-	// mails and every review e-mail sent writes one, and the model's build and validation cost CPU there
-	if (!MAIL_KINDS.includes(kind)) throw new Error(`unknown mail kind ${kind}`);
-	const { affected } = await exec(
-		`INSERT IGNORE INTO outbox (kind, idempotency_key, payload) VALUES (:kind, :key, :payload)`,
-		{ kind, key: idempotencyKey, payload: JSON.stringify(payload) },
-		t
-	);
-	// the dispatcher goes at once rather than at its next poll (./wake.ts) — after COMMIT, never inside
+	const s = outboxInsert(kind, idempotencyKey, payload, Boolean(t));
+	const { affected } = await exec(s.sql, s.values, t);
+	outboxWritten(t, affected);
+}
+
+/**
+ * An `outboxInsert` has answered with `affected` rows (0: the key was there already): when it added
+ * the row, the dispatcher goes at once rather than at its next poll (./wake.ts) — after COMMIT, never
+ * inside. The second submit calls it with its pipeline's answer.
+ */
+export function outboxWritten(t: Tx, affected: number): void {
 	if (affected > 0) afterCommit(t, wakeDispatcher);
+}
+
+/**
+ * The outbox row as one statement (`enqueueMail` runs it; the second submit sends it in its last
+ * `pipeline`). Raw: every business transaction that mails and every review e-mail sent writes one,
+ * and the model's build and validation cost CPU there. The unique key makes a second write a no-op
+ * (`ON DUPLICATE KEY UPDATE id = id`). `guarded` (inside a transaction; ../db, IN_TX): `kind` is
+ * NULL outside it and the statement fails without a row. Not `INSERT IGNORE`: IGNORE would turn that
+ * NULL into '' and insert the row anyway.
+ */
+export function outboxInsert(kind: MailKind, idempotencyKey: string, payload: Record<string, unknown>, guarded = true): Piped {
+	if (!MAIL_KINDS.includes(kind)) throw new Error(`unknown mail kind ${kind}`);
+	return {
+		sql: `INSERT INTO outbox (kind, idempotency_key, payload) VALUES (${guarded ? GUARDED : '?'}, ?, ?) ON DUPLICATE KEY UPDATE id = id`,
+		values: [kind, idempotencyKey, JSON.stringify(payload)]
+	};
 }
 
 /** Many outbox rows in one INSERT IGNORE (a batch's next reminders; outside any transaction). */

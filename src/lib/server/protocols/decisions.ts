@@ -5,7 +5,7 @@
  */
 import { Op, type Transaction } from 'sequelize';
 import { z } from 'zod';
-import { select, selectOne, exec, transaction, jsonValue, pipeline, guardedRow, markerStatement, IN_TX, type Piped } from '../db';
+import { select, selectOne, exec, transaction, jsonValue, pipeline, guardedRow, markerStatement, sqlTime, IN_TX, type Piped } from '../db';
 import { models } from '../models';
 import { dbNow, inTx, reading, saveLocked, type DiscrepancyRow, type ProtocolRow } from '../models/protocol';
 import { recordEvent, trailRow, TRAIL_COLUMNS } from '../trail';
@@ -415,8 +415,6 @@ export async function resolveDiscrepancy(discrepancyId: number, user: Actor, bod
 }
 
 type OkPacket = { affectedRows: number; insertId: number };
-/** A time for a DATETIME(3) column (the session's time zone is UTC: db.ts). */
-const sqlTime = (d: Date) => d.toISOString().slice(0, 23).replace('T', ' ');
 /** The protocol's compare-and-set at the end of a decision (see resolveDiscrepancy). */
 const protocolCas = (p: Pick<ProtocolRow, 'id' | 'round'>, user: Actor): Piped => ({
 	sql: `UPDATE protocols SET lock_version = lock_version + 1 WHERE id = ? AND status = 'in_review' AND round = ? AND reviewer_id = ? AND ${IN_TX}`,

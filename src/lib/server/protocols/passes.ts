@@ -5,7 +5,7 @@
  */
 import type { Transaction } from 'sequelize';
 import { z } from 'zod';
-import { selectOne, transaction, jsonValue, pipeline, guardedRow, IN_TX, type Piped, type Tx } from '../db';
+import { selectOne, transaction, jsonValue, pipeline, guardedInserts, markerStatement, IN_TX, type Piped, type Tx } from '../db';
 import { recordEvent, recordEvents, trailRow, TRAIL_COLUMNS, type TrailEvent } from '../trail';
 import { models } from '../models';
 import { dbNow, inTx, reading, saveLocked, type Pass, type Protocol, type ProtocolRow, type Which } from '../models/protocol';
@@ -25,8 +25,9 @@ import {
 import { reconcile, ReconcileInputError, type FieldValues, type ReconcileResult } from '../../scoring/reconcile';
 import { formatReference, type Field } from '../../scoring/scales';
 import { conflict, invalid, notFound, parseFirst, ServiceError } from '../errors';
-import { notifyReviewStarted } from '../mail/reminders/scheduling';
-import { recordSubmission, roundRecorded, testDomains } from '../audit-stats/record';
+import { notifyReviewStarted, reviewStartedMail } from '../mail/reminders/scheduling';
+import { outboxInsert, outboxWritten } from '../mail/outbox';
+import { submissionWrites, roundRecorded, testDomains } from '../audit-stats/record';
 import { decideAtFirstSubmit, reconcileSinglePass, afterReconcile, guardSecondPass, secondSubmitVerification } from '../verification';
 
 export type { Which };
@@ -262,20 +263,12 @@ export function discrepancyValues(p: Pick<ProtocolRow, 'id' | 'round'>, position
  * table). Guarded (`IN_TX` in ../db), so the statements may follow another in a `pipeline`.
  */
 function discrepancyInserts(p: Pick<ProtocolRow, 'id' | 'round'>, result: ReconcileResult): Piped[] {
-	const CHUNK = 500;
-	const out: Piped[] = [];
-	for (let from = 0; from < result.discrepancies.length; from += CHUNK) {
-		const values: unknown[] = [];
-		const rows = result.discrepancies.slice(from, from + CHUNK).map((d, j) => {
-			values.push(...discrepancyValues(p, from + j + 1, d));
-			return guardedRow(DISCREPANCY_COLUMNS, 'protocol_id');
-		});
-		out.push({
-			sql: `INSERT INTO discrepancies (${DISCREPANCY_COLUMNS.join(', ')}) VALUES ${rows.join(', ')}`,
-			values
-		});
-	}
-	return out;
+	return guardedInserts(
+		'discrepancies',
+		DISCREPANCY_COLUMNS,
+		'protocol_id',
+		result.discrepancies.map((d, i) => discrepancyValues(p, i + 1, d))
+	);
 }
 
 /** Store a reconciliation result as the round's discrepancy list (`discrepancyInserts`, in one round trip). */
@@ -403,9 +396,9 @@ const submitEvent = (p: Protocol, pass: Pass, user: Actor, which: Which): TrailE
  * The second submission, in the transaction that locked the protocol row: the reconciliation. Its
  * statements are few on purpose (issue 18: the time is the round trips): the pass was marked by one
  * UPDATE that is also the once-only check (`marked`: the rows it moved; sent by submitPass with the
- * protocol's lock), everything else it reads is read at once under the protocol's lock, and its own
- * writes (protocol, discrepancies, the trail's two events) go in one `pipeline`. Any refusal throws,
- * so the mark rolls back with the rest.
+ * protocol's lock), everything else it reads is read at once under the protocol's lock, and all its
+ * writes (protocol, discrepancies, the trail's two events, the audit's rows and sums, the outbox row,
+ * the commit marker) go in one `pipeline`. Any refusal throws, so the mark rolls back with the rest.
  */
 async function submitSecond(p: Protocol, user: Actor, draftVersion: number, marked: number, t: Transaction): Promise<SubmitResult> {
 	const { Pass } = models();
@@ -442,9 +435,11 @@ async function submitSecond(p: Protocol, user: Actor, draftVersion: number, mark
 			);
 		throw e;
 	}
-	// The reconciliation's own writes, sent at once (one round trip): the protocol's compare-and-set to
-	// review (under the lock_version this transaction read; every change of status or round moves it),
-	// the discrepancies, the trail's two events. Each after the first is guarded by IN_TX (db.ts).
+	// Every write of the reconciliation, sent at once (one round trip): the protocol's compare-and-set
+	// to review (under the lock_version this transaction read; every change of status or round moves
+	// it), the discrepancies, the trail's two events, the audit's rows and `_delta` appends
+	// (`submissionWrites`, from the reads above), the reviewer's outbox row and the commit marker.
+	// Each after the first is guarded by IN_TX (db.ts); a refusal decided from the answers throws.
 	const events = [
 		submitEvent(p, pass, user, 'second'),
 		{
@@ -457,20 +452,27 @@ async function submitSecond(p: Protocol, user: Actor, draftVersion: number, mark
 			newValue: { status: 'in_review', round: p.round, ...result.summary }
 		}
 	].map(trailRow);
-	const [moved] = (await pipeline(t, [
+	const mail = reviewStartedMail(p.id, p.round, p.reviewer_id);
+	const answers = (await pipeline(t, [
 		{
 			sql: `UPDATE protocols SET status = 'in_review', status_changed_at = CURRENT_TIMESTAMP(3), lock_version = lock_version + 1 WHERE id = ? AND lock_version = ?`,
 			values: [p.id, p.lock_version]
 		},
 		...discrepancyInserts(p, result),
-		{
-			sql: `INSERT INTO audit_events (${TRAIL_COLUMNS.join(', ')}) VALUES ${events.map(() => guardedRow(TRAIL_COLUMNS, 'entity')).join(', ')}`,
-			values: events.flatMap((e) => TRAIL_COLUMNS.map((c) => e[c]))
-		}
+		...guardedInserts(
+			'audit_events',
+			TRAIL_COLUMNS,
+			'entity',
+			events.map((e) => TRAIL_COLUMNS.map((c) => e[c]))
+		),
+		...submissionWrites(p.id, p.round, { passes: [first, pass], batteryId: p.battery_id, earlier, domains }),
+		outboxInsert(mail.kind, mail.key, mail.payload),
+		markerStatement(t)
 	])) as Array<{ affectedRows: number }>;
-	if (moved.affectedRows !== 1) throw protocolMoved();
-	await recordSubmission(p.id, p.round, t, { passes: [first, pass], batteryId: p.battery_id, earlier, domains });
+	if (answers[0].affectedRows !== 1) throw protocolMoved();
+	// the outbox row's answer is the one before the marker's
+	outboxWritten(t, answers[answers.length - 2].affectedRows);
+	// reads and writes only when the protocol was drawn or the policy samples (verification/)
 	await afterReconcile(p, t, verification);
-	await notifyReviewStarted(p.id, p.round, p.reviewer_id, t);
 	return { which: 'second', status: 'in_review' as const, discrepancies: result.discrepancies.length };
 }

@@ -49,9 +49,15 @@ async function currentChain(protocolId: number, round: number, t?: Tx): Promise<
  * reviewer's first e-mail. Calling it again for the same protocol, round and reviewer is a no-op.
  */
 export async function notifyReviewStarted(protocolId: number, round: number, reviewerId: number, t: Tx, why?: ReviewMailPayload['why']): Promise<void> {
+	const m = reviewStartedMail(protocolId, round, reviewerId, why);
+	await enqueueMail(m.kind, m.key, m.payload, t);
+}
+
+/** The outbox row `notifyReviewStarted` writes (the second submit sends it with `outboxInsert` in its last batch). */
+export function reviewStartedMail(protocolId: number, round: number, reviewerId: number, why?: ReviewMailPayload['why']) {
 	const chain = chainOf(protocolId, round, reviewerId);
 	const payload: ReviewMailPayload = { protocolId, round, reviewerId, chain, reminderNo: 0, ...(why ? { why } : {}) };
-	await enqueueMail('review_first', reviewMailKey(chain, 0), { ...payload }, t);
+	return { kind: 'review_first' as const, key: reviewMailKey(chain, 0), payload: { ...payload } };
 }
 
 /**
