@@ -23,6 +23,7 @@ import { dirname } from 'node:path';
 import { performance } from 'node:perf_hooks';
 import { QueryTypes } from 'sequelize';
 import { closeDb, db, selectOne } from '../../src/lib/server/db';
+import { closeRedis } from '../../src/lib/server/redis'; // a seed's writes may wake the mail dispatcher (mail/wake.ts)
 import { NO_FILTERS, REPORT_NAMES, runReport, type AuditFilters } from '../../src/lib/server/audit-stats';
 import { seedAuditData } from './audit-seed';
 import { describeError } from './lib';
@@ -191,4 +192,4 @@ main()
 		console.error(`[bench:audit] ${describeError(e)}`);
 		process.exitCode = 1;
 	})
-	.finally(() => closeDb());
+	.finally(() => Promise.all([closeDb(), closeRedis()]));

@@ -18,6 +18,7 @@ import { arg, emit, loadBenchEnv, machine, median } from './lib';
 
 loadBenchEnv('db');
 const { db, select, selectOne, closeDb } = await import('../../src/lib/server/db');
+const { closeRedis } = await import('../../src/lib/server/redis'); // fixtures' writes wake the mail dispatcher (mail/wake.ts)
 const S = await import('../../src/lib/server/protocols/service');
 const R = await import('../../src/lib/server/protocols/decisions');
 const { listUsers } = await import('../../src/lib/server/users');
@@ -219,4 +220,4 @@ main()
 		console.error(`[bench:db] ${e instanceof Error ? e.stack : e}`);
 		process.exitCode = 1;
 	})
-	.finally(() => closeDb());
+	.finally(() => Promise.all([closeDb(), closeRedis()]));

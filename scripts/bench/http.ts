@@ -25,6 +25,9 @@ loadBenchEnv('http');
 const { default: autocannon } = await import('autocannon');
 const { Client } = await import('../../tests/helpers/http');
 const { closeDb } = await import('../../src/lib/server/db');
+// the in-process profile's submits wake the mail dispatcher through Redis (mail/wake.ts): that
+// connection would keep this process alive after its figures, and the whole bench waiting on it
+const { closeRedis } = await import('../../src/lib/server/redis');
 const F = await import('./fixtures');
 const { submitPass } = await import('../../src/lib/server/protocols/passes');
 const { resolveDiscrepancy } = await import('../../src/lib/server/protocols/decisions');
@@ -294,4 +297,4 @@ main()
 		console.error(`[bench:http] ${e instanceof Error ? e.stack : e}`);
 		process.exitCode = 1;
 	})
-	.finally(() => closeDb());
+	.finally(() => Promise.all([closeDb(), closeRedis()]));

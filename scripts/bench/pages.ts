@@ -17,6 +17,7 @@ import { arg, baseUrl, emit, loadBenchEnv, machine, median, pct, r1, r2 } from '
 loadBenchEnv('pages');
 const { chromium } = await import('playwright-core');
 const { closeDb } = await import('../../src/lib/server/db');
+const { closeRedis } = await import('../../src/lib/server/redis'); // fixtures' writes wake the mail dispatcher (mail/wake.ts)
 const F = await import('./fixtures');
 
 const BASE = baseUrl();
@@ -223,4 +224,4 @@ main()
 		console.error(`[bench:pages] ${e instanceof Error ? e.stack : e}`);
 		process.exitCode = 1;
 	})
-	.finally(() => closeDb());
+	.finally(() => Promise.all([closeDb(), closeRedis()]));
