@@ -14,6 +14,7 @@ import * as m00026 from './00026-audit-deltas';
 import * as m00030 from './00030-judgement-index';
 import * as m00031 from './00031-audit-totals';
 import * as m00032 from './00032-audit-composite-domain';
+import * as m00033 from './00033-outbox-skipped';
 
 export const migrations = [
 	{ name: '00001-initial', ...m00001 },
@@ -30,7 +31,8 @@ export const migrations = [
 	{ name: '00026-audit-deltas', ...m00026 },
 	{ name: '00030-judgement-index', ...m00030 },
 	{ name: '00031-audit-totals', ...m00031 },
-	{ name: '00032-audit-composite-domain', ...m00032 }
+	{ name: '00032-audit-composite-domain', ...m00032 },
+	{ name: '00033-outbox-skipped', ...m00033 }
 ];
 
 /** Tables the app may read and add to but never change: the audit trail. */

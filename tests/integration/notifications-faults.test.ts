@@ -136,4 +136,57 @@ describe('review notifications under faults', () => {
 		await sleep(1_500);
 		expect(byKey(await caughtFor(f), k1)).toHaveLength(1);
 	}, 60_000);
+
+	it('review mail given up as nothing to send is marked so; 520 such rows older than a lost reminder no longer hide it from the sweep', async () => {
+		// 520 reminders of a review that has ended, older than the live one below: protocol 0 never exists
+		// (ids start at 1), so every check finds the review ended. The sweep reads 500 rows a round, oldest first.
+		const DEAD = 520;
+		await exec(`DELETE FROM outbox WHERE idempotency_key LIKE 'review:0:%'`);
+		await exec(`INSERT INTO outbox (kind, idempotency_key, payload, dispatched_at, attempts) VALUES :rows`, {
+			rows: Array.from({ length: DEAD }, (_, i) => {
+				const chain = `review:0:r1:u0.${i + 2}`;
+				return [
+					'review_reminder',
+					`${chain}:1`,
+					JSON.stringify({ protocolId: 0, round: 1, reviewerId: 0, chain, reminderNo: 1 }),
+					new Date(Date.now() - 3_600_000),
+					1
+				];
+			})
+		});
+		const queue = new Queue(MAIL_QUEUE, { connection: bullConnection() });
+		try {
+			const f = await protocolReachesReview();
+			const key = firstKey(f.protocolId, f.reviewerId);
+			const k1 = key.replace(/:0$/, ':1');
+			const k2 = key.replace(/:0$/, ':2');
+			await waitFor(async () => byKey(await caughtFor(f), key)[0], 20_000);
+			await waitFor(async () => (await outboxRows(f.protocolId)).find((r) => r.idempotency_key === k1 && r.dispatched_at !== null), 10_000, 100);
+			// reminder 1's delayed job is lost (as with a Redis restart, see above), and its time passes
+			expect(await queue.remove(k1.replace(/:/g, '_'))).toBe(1);
+			await sleep(INTERVAL_MS + 1_000);
+			expect(byKey(await caughtFor(f), k1), 'lost').toEqual([]);
+			// before: each round read the same 500 ended rows and handed back none, for ever. Now the first round
+			// marks those it reads as ended, and the second reaches the lost reminder.
+			let handedBack = 0;
+			for (let round = 0; round < 3 && handedBack === 0; round++) handedBack += await recoverLostReviewMail(0);
+			expect(handedBack).toBeGreaterThanOrEqual(1);
+			await waitFor(async () => byKey(await caughtFor(f), k1)[0], 20_000);
+			const ended = await selectOne<{ n: number }>(`SELECT COUNT(*) AS n FROM outbox WHERE idempotency_key LIKE 'review:0:%' AND skipped_at IS NULL`);
+			expect(Number(ended?.n)).toBe(0);
+
+			// the review ends; reminder 2 finds nothing to send when it is due: the delivery marks its row
+			await endAllChains();
+			await waitFor(
+				async () => (await selectOne<{ skipped_at: Date | null }>(`SELECT skipped_at FROM outbox WHERE idempotency_key = :k`, { k: k2 }))?.skipped_at ?? null,
+				20_000,
+				200
+			);
+			expect(byKey(await caughtFor(f), k2)).toEqual([]);
+			expect(byKey(await caughtFor(f), k1)).toHaveLength(1);
+		} finally {
+			await queue.close();
+			await exec(`DELETE FROM outbox WHERE idempotency_key LIKE 'review:0:%'`);
+		}
+	}, 90_000);
 });

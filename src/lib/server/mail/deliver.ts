@@ -15,7 +15,7 @@
 import { randomUUID } from 'node:crypto';
 import { exec, select, selectOne } from '../db';
 import { sendMail, type OutgoingMail } from './transport';
-import type { MailKind } from './outbox';
+import { markSkipped, type MailKind } from './outbox';
 
 export interface MailJob {
 	kind: MailKind;
@@ -109,6 +109,7 @@ async function deliverOnce(job: MailJob): Promise<{ result: DeliveryResult; cont
 	}
 	if (!mail) {
 		await unclaim();
+		await markSkipped([job.key]);
 		return { result: 'skipped' };
 	}
 	if (pauseBeforeSend > 0) await new Promise((r) => setTimeout(r, pauseBeforeSend));
@@ -228,6 +229,7 @@ export async function deliverBatch(jobs: MailJob[], requeue: (jobs: Requeued[]) 
 			});
 		}
 		if (unsent.length + failedRender.length) await unclaim([...unsent, ...failedRender]);
+		await markSkipped(keysOf(unsent));
 		for (const j of unsent) results.set(j.key, 'skipped');
 		toSingle(failedRender); // rendered again there, and failed there with the renderer's own error
 

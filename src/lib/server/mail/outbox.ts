@@ -71,6 +71,15 @@ export async function markDispatched(ids: number[]): Promise<void> {
 	await write(() => models().Outbox.update({ dispatched_at: fn('CURRENT_TIMESTAMP', 3), attempts: literal('attempts + 1') }, { where: { id: ids } }));
 }
 
+/**
+ * Rows whose delivery found nothing to send and gave up for good (a review e-mail whose review had ended):
+ * marked so the mail sweep (./recover.ts) no longer takes them for lost messages.
+ */
+export async function markSkipped(keys: string[]): Promise<void> {
+	if (keys.length === 0) return;
+	await write(() => models().Outbox.update({ skipped_at: fn('CURRENT_TIMESTAMP', 3) }, { where: { idempotency_key: keys, skipped_at: null } }));
+}
+
 export async function markDispatchFailed(ids: number[], message: string): Promise<void> {
 	if (ids.length === 0) return;
 	await write(() => models().Outbox.update({ attempts: literal('attempts + 1'), last_error: message.slice(0, 500) }, { where: { id: ids } }));

@@ -50,11 +50,12 @@ export async function sweepMail(graceMs = Number(process.env.MAIL_SWEEP_GRACE_MS
 	[r.markedUncertain] = await write(() => MailLog.update({ status: 'uncertain' }, { where: { status: 'sending', sending_at: { [Op.lt]: before } } }));
 
 	// 3. rows whose job is gone (other kinds; review mail has its own rule for ended chains): handed to
-	// the queue, not failed, and nothing logged for them (the LEFT JOIN … IS NULL of the association)
+	// the queue, not failed, not given up as nothing to send (skipped_at), and nothing logged for them
+	// (the LEFT JOIN … IS NULL of the association)
 	const rows = await read(() =>
 		Outbox.findAll({
 			attributes: ['id', 'kind', 'idempotency_key'],
-			where: { dispatched_at: { [Op.ne]: null, [Op.lt]: new Date(Date.now() - graceMs) }, failed_at: null, '$log.id$': null },
+			where: { dispatched_at: { [Op.ne]: null, [Op.lt]: new Date(Date.now() - graceMs) }, failed_at: null, skipped_at: null, '$log.id$': null },
 			include: [{ model: MailLog, as: 'log', attributes: [], required: false }],
 			order: [['id', 'ASC']],
 			limit: 500,

@@ -22,6 +22,8 @@ export class Outbox extends Model<InferAttributes<Outbox>, InferCreationAttribut
 	declare dispatched_at: CreationOptional<Date | null>;
 	/** Failed for good: every retry refused, or nothing to send. */
 	declare failed_at: CreationOptional<Date | null>;
+	/** The delivery found nothing to send (the review had ended) and gave up for good: the sweep leaves it. */
+	declare skipped_at: CreationOptional<Date | null>;
 	declare attempts: CreationOptional<number>;
 	declare last_error: CreationOptional<string | null>;
 }
@@ -65,6 +67,7 @@ export function initMailModels(sequelize: Sequelize): void {
 			created_at: stampedAt(),
 			dispatched_at: { type: DataTypes.DATE(3), allowNull: true },
 			failed_at: { type: DataTypes.DATE(3), allowNull: true },
+			skipped_at: { type: DataTypes.DATE(3), allowNull: true },
 			attempts: { type: DataTypes.INTEGER.UNSIGNED, allowNull: false, defaultValue: 0 },
 			last_error: { type: DataTypes.TEXT, allowNull: true }
 		},

@@ -18,7 +18,7 @@
  * This module does not import the renderer (.svelte): the services, seeds and scripts that write
  * review mail run under tsx without the Svelte hook.
  */
-import { Op } from 'sequelize';
+import { Op, fn } from 'sequelize';
 import { select, selectOne, type Tx } from '../../db';
 import { models } from '../../models';
 import type { Outbox } from '../../models/mail';
@@ -287,6 +287,7 @@ export async function recoverLostReviewMail(
 				kind: ['review_first', 'review_reminder'],
 				dispatched_at: { [Op.ne]: null, [Op.lt]: new Date(now - graceMs) },
 				attempts: { [Op.lt]: 6 },
+				skipped_at: null,
 				'$log.id$': null
 			},
 			include: [{ model: MailLog, as: 'log', attributes: [], required: false }],
@@ -303,12 +304,18 @@ export async function recoverLostReviewMail(
 		return !inQueue.has(r.idempotency_key) && (typeof nb !== 'number' || nb < now - graceMs);
 	});
 	if (due.length === 0) return 0;
-	// Rows whose chain has ended would only be skipped again: leave them.
+	// Rows whose chain has ended would only be skipped again: marked so, as a delivery marks those it
+	// skips (../outbox.ts markSkipped), so that no later sweep reads them again. Left unmarked they filled
+	// the 500 rows read each round for good (a reminder skipped after a resolution is common), and a
+	// message really lost behind them was never handed back.
 	const live: number[] = [];
+	const ended: number[] = [];
 	for (const r of due) {
 		const p = r.payload as unknown as ReviewMailPayload;
 		if (await loadState(p, p.reminderNo > 0)) live.push(r.id);
+		else ended.push(r.id);
 	}
 	if (live.length) await write(() => Outbox.update({ dispatched_at: null }, { where: { id: live } }));
+	if (ended.length) await write(() => Outbox.update({ skipped_at: fn('CURRENT_TIMESTAMP', 3) }, { where: { id: ended, skipped_at: null } }));
 	return live.length;
 }
