@@ -82,11 +82,16 @@ async function deliverOnce(job: MailJob): Promise<{ result: DeliveryResult; cont
 			kind: job.kind
 		});
 	if ((await claim()).affected !== 1) {
+		// stale: the lease is over since the claim ('claimed') or since the hand-over to SMTP ('sending')
 		const existing = await selectOne<{ status: string; stale: number }>(
-			`SELECT status, created_at < :before AS stale FROM mail_log WHERE idempotency_key = :key`,
+			`SELECT status, COALESCE(sending_at, created_at) < :before AS stale FROM mail_log WHERE idempotency_key = :key`,
 			{ key: job.key, before: new Date(Date.now() - claimLeaseMs()) }
 		);
 		if (existing?.status === 'sent') return { result: 'already-sent' };
+		// Another delivery of the same key is at its SMTP send right now (two dispatchers handed the same row
+		// to the queue: several workers, as in the cluster): not a send that stopped. Marking it uncertain
+		// here logged "stopped mid-send" for mail that was being sent; this job looks again later and finds it sent.
+		if (existing?.status === 'sending' && !Number(existing.stale)) throw new Error(`${job.key} is being sent by another worker; retrying later`);
 		if (existing?.status === 'sending' || existing?.status === 'uncertain') {
 			await exec(`UPDATE mail_log SET status = 'uncertain' WHERE idempotency_key = :key AND status = 'sending'`, { key: job.key });
 			console.error(`[mail] ${job.key}: an earlier attempt stopped mid-send; not sending again (check the mail server's log)`);
