@@ -1,7 +1,8 @@
 /**
  * Shared setup of the tests that stop, kill and restart the mail worker and Redis by PID
- * (mail-recovery.test.ts, mail-batches.test.ts): a worker that sweeps fast, the hooks that put a plain
- * worker and the services back after every test, and an invitation whose outbox row a test follows.
+ * (mail-recovery.test.ts, mail-batches.test.ts; mail-wake.test.ts takes the hooks and sleep): a worker
+ * that sweeps fast, the hooks that put a plain worker and the services back after every test, and an
+ * invitation whose outbox row a test follows.
  */
 import { afterAll, afterEach, expect } from 'vitest';
 import { signedIn, waitFor } from './http';

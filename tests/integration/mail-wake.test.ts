@@ -5,28 +5,20 @@
  * dispatched on the wake-up, not found by the poll. The wake-up is published after COMMIT, never
  * inside the transaction: a transaction that rolls back publishes nothing and sends nothing.
  */
-import { afterAll, afterEach, describe, expect, it } from 'vitest';
+import { describe, expect, it } from 'vitest';
 import { randomUUID } from 'node:crypto';
 import { Redis } from 'ioredis';
 import { signedIn, caughtMail, waitFor } from '../helpers/http';
-import { restoreServices, startWorker, stopWorker } from '../helpers/services';
-import { selectOne, transaction, closeDb } from '../../src/lib/server/db';
-import { closeRedis } from '../../src/lib/server/redis';
+import { restoreMailServicesAfterEach, sleep } from '../helpers/mail-crashes';
+import { startWorker, stopWorker } from '../helpers/services';
+import { selectOne, transaction } from '../../src/lib/server/db';
 import { config } from '../../src/lib/server/config';
 import { enqueueMail } from '../../src/lib/server/mail/outbox';
 import { MAIL_WAKE_CHANNEL } from '../../src/lib/server/mail/wake';
 
-const sleep = (ms: number) => new Promise((r) => setTimeout(r, ms));
 const LONG_POLL = { DISPATCH_INTERVAL_MS: '60000' };
 
-afterEach(async () => {
-	await stopWorker();
-	await restoreServices();
-}, 150_000);
-afterAll(async () => {
-	await closeRedis();
-	await closeDb();
-});
+restoreMailServicesAfterEach();
 
 type Caught = Awaited<ReturnType<typeof caughtMail>>[number] & { receivedAt: string };
 const caught = async (email: string) => (await caughtMail(email)) as Caught[];
