@@ -4,8 +4,9 @@
  * once; when the script then hydrates the page, a field written `value={…}` was set back to its
  * server-rendered value (empty), so the e-mail on the sign-in page vanished and the browser's
  * "required" check silently stopped the submit: no request, no message (the sign-in "stall" the
- * end-to-end runs met now and then). Here the page's scripts are held back until the fields are
- * filled, then let through, and every filled value must still be there.
+ * end-to-end runs met now and then). A <select> bound to a defined value is likewise set back when it
+ * mounts (the catalog's filters and sort). Here the page's scripts are held back until the fields are
+ * filled, then let through, and every filled value must still be there (and, on the catalog list, applied).
  */
 import { describe, it, expect, beforeAll, afterAll } from 'vitest';
 import type { Browser, Page, Route } from 'playwright-core';
@@ -64,10 +65,14 @@ describe('fields filled before the page is hydrated keep their values', () => {
 		await page.fill('#code', 'EARLY-0001');
 		await page.fill('#birthDate', '1980-04-02');
 		await page.selectOption('#sex', 'F');
+		await page.fill('#educationYears', '13');
+		await page.fill('#testDate', '2024-11-05');
 		await release();
 		expect(await page.inputValue('#code')).toBe('EARLY-0001');
 		expect(await page.inputValue('#birthDate')).toBe('1980-04-02');
 		expect(await page.inputValue('#sex')).toBe('F');
+		expect(await page.inputValue('#educationYears')).toBe('13');
+		expect(await page.inputValue('#testDate')).toBe('2024-11-05');
 		await ctx.close();
 	});
 
@@ -113,9 +118,52 @@ describe('fields filled before the page is hydrated keep their values', () => {
 		const kind = await page.locator('#f-kind option').nth(1).getAttribute('value');
 		expect(kind, 'the kind filter offers at least one kind').toBeTruthy();
 		await page.selectOption('#f-kind', kind!);
+		await page.selectOption('#f-field', 'raw');
 		await release();
 		expect(await page.inputValue('#f-from')).toBe('2025-01-01');
 		expect(await page.inputValue('#f-kind')).toBe(kind);
+		expect(await page.inputValue('#f-field')).toBe('raw');
+		await ctx.close();
+	});
+
+	it('catalog tests (lead, phone width): a domain, a direction and a sort chosen early are kept and applied', async () => {
+		const ctx = await browser.newContext({ viewport: { width: 390, height: 844 } }); // the sort select shows below 768 px
+		const page = await ctx.newPage();
+		await signIn(page, ACCOUNTS.lead, DEMO_PASSWORD);
+		const release = await openUnhydrated(page, '/catalog/tests');
+		// the demo catalog's processing-speed tests where lower is better: Speeded Figure Match (speeded-match),
+		// then Dot Chase (dot-chase) in catalog order; by code, dot-chase comes first
+		await page.selectOption('#f-domain', 'processing-speed');
+		await page.selectOption('#f-dir', 'lower_better');
+		await page.selectOption('#f-sort', 'code');
+		await release();
+		expect(await page.inputValue('#f-domain')).toBe('processing-speed');
+		expect(await page.inputValue('#f-dir')).toBe('lower_better');
+		expect(await page.inputValue('#f-sort')).toBe('code');
+		const table = page.getByTestId('tests-table');
+		// the list redraws once hydration has taken the choices up: wait (5 s at most) for the direction filter to show
+		await page
+			.waitForFunction(
+				() =>
+					Array.from(document.querySelectorAll('[data-testid="tests-table"] td[data-label="Direction"]')).every((td) =>
+						/lower better/.test(td.textContent ?? '')
+					),
+				undefined,
+				{ timeout: 5_000 }
+			)
+			.catch(() => undefined); // the assertions below say what is wrong
+		const codes = (await table.locator('tbody tr td:first-child').allTextContents()).map((c) => c.trim());
+		expect(codes).toContain('dot-chase');
+		expect(codes).toContain('speeded-match');
+		expect(codes.indexOf('dot-chase')).toBeLessThan(codes.indexOf('speeded-match'));
+		for (let i = 1; i < codes.length; i++)
+			expect(codes[i - 1].localeCompare(codes[i], 'en', { numeric: true }), `${codes[i - 1]} before ${codes[i]}`).toBeLessThanOrEqual(0);
+		// only the chosen domain and direction are listed (the filters applied, not only shown)
+		const domains = await table.locator('tbody tr td[data-label="Domain"]').allTextContents();
+		const directions = await table.locator('tbody tr td[data-label="Direction"]').allTextContents();
+		expect(domains.map((d) => d.trim())).toEqual(codes.map(() => 'Processing speed'));
+		expect(directions.length).toBe(codes.length);
+		for (const d of directions) expect(d).toContain('lower better');
 		await ctx.close();
 	});
 });
