@@ -214,9 +214,14 @@ const http = createServer(async (req, res) => {
 });
 http.listen(httpPort, '127.0.0.1');
 
-const stop = () => {
+// Every accepted message is on disk before its 250 (writeFileSync above), so a stop need not wait for the
+// SMTP connections the worker's pool keeps open (smtp-server's close would wait for them up to 30 s).
+// Started as `node --import tsx scripts/mailfake.ts` (scripts/lib/setup.sh), this process is the one in
+// mailfake.pid and gets the TERM itself; the line below says it ended by this handler, not by a KILL.
+const stop = (signal: NodeJS.Signals) => {
 	smtp.close(() => undefined);
 	http.close();
+	console.log(`mail fake stopped (${signal})`);
 	process.exit(0);
 };
 process.on('SIGTERM', stop);

@@ -178,7 +178,9 @@ start_mailfake() {
 		ensure_port_free "$SMTP_PORT" "the mail fake's SMTP" SMTP_PORT
 		ensure_port_free "$MAILFAKE_PORT" "the mail fake's HTTP" MAILFAKE_PORT
 	fi
-	start_node_process mailfake node_modules/.bin/tsx scripts/mailfake.ts
+	# one node process with tsx's loader, not the tsx command (see start_worker): mailfake.pid holds the
+	# fake itself, so a stop's TERM reaches its own handler instead of the wrapper's relay and 30 ms KILL
+	start_node_process mailfake node --import tsx scripts/mailfake.ts
 	wait_http "http://127.0.0.1:$MAILFAKE_PORT/health" || { tail -20 "$RUN_DIR/mailfake.log" >&2; die "mail fake did not start"; }
 	log "mail fake: SMTP 127.0.0.1:$SMTP_PORT, messages at http://127.0.0.1:$MAILFAKE_PORT/messages"
 }

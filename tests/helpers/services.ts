@@ -6,6 +6,7 @@
  */
 import { spawn, spawnSync } from 'node:child_process';
 import { existsSync, mkdirSync, openSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
+import net from 'node:net';
 import { join, resolve } from 'node:path';
 
 const ROOT = resolve(import.meta.dirname, '../..');
@@ -80,6 +81,30 @@ async function waitGone(pids: number[], timeoutMs: number): Promise<boolean> {
 		await sleep(50);
 	}
 	return true;
+}
+
+/** A loopback port nothing listens on now (the OS's choice), for a process a test starts on its own ports. */
+export function freePort(): Promise<number> {
+	return new Promise((res, rej) => {
+		const s = net.createServer();
+		s.once('error', rej);
+		s.listen(0, '127.0.0.1', () => {
+			const { port } = s.address() as net.AddressInfo;
+			s.close(() => res(port));
+		});
+	});
+}
+
+/** Nothing listens on the port any more (a connection is refused). */
+export function portClosed(port: number): Promise<boolean> {
+	return new Promise((res) => {
+		const c = net.connect(port, '127.0.0.1');
+		c.once('connect', () => {
+			c.destroy();
+			res(false);
+		});
+		c.once('error', () => res(true));
+	});
 }
 
 // ---------------------------------------------------------------------------------------------

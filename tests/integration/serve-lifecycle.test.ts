@@ -13,7 +13,7 @@ import { spawn, type ChildProcess } from 'node:child_process';
 import { existsSync, openSync, readFileSync } from 'node:fs';
 import net from 'node:net';
 import { join, resolve } from 'node:path';
-import { childrenOf, envFile, runDir, running, workerEnv } from '../helpers/services';
+import { childrenOf, envFile, freePort, portClosed, runDir, running, workerEnv } from '../helpers/services';
 
 const ROOT = resolve(import.meta.dirname, '../..');
 const BOUND_MS = 15_000; // SHUTDOWN_TIMEOUT is 10 s, but with nothing in flight the stop should take well under a second
@@ -27,29 +27,6 @@ async function within(ms: number, cond: () => boolean | Promise<boolean>): Promi
 		if (Date.now() - t0 > ms) return null;
 		await sleep(50);
 	}
-}
-
-function freePort(): Promise<number> {
-	return new Promise((res, rej) => {
-		const s = net.createServer();
-		s.once('error', rej);
-		s.listen(0, '127.0.0.1', () => {
-			const { port } = s.address() as net.AddressInfo;
-			s.close(() => res(port));
-		});
-	});
-}
-
-/** Nothing listens on the port any more (a connection is refused). */
-function portClosed(port: number): Promise<boolean> {
-	return new Promise((res) => {
-		const c = net.connect(port, '127.0.0.1');
-		c.once('connect', () => {
-			c.destroy();
-			res(false);
-		});
-		c.once('error', () => res(true));
-	});
 }
 
 /** A connection that made one request and then stays open and idle (HTTP/1.1 keep-alive). */
