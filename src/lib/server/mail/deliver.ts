@@ -82,19 +82,18 @@ async function deliverOnce(job: MailJob): Promise<{ result: DeliveryResult; cont
 			kind: job.kind
 		});
 	if ((await claim()).affected !== 1) {
-		// stale: the lease is over since the claim ('claimed') or since the hand-over to SMTP ('sending')
 		const existing = await selectOne<{ status: string; stale: number }>(
-			`SELECT status, COALESCE(sending_at, created_at) < :before AS stale FROM mail_log WHERE idempotency_key = :key`,
+			`SELECT status, created_at < :before AS stale FROM mail_log WHERE idempotency_key = :key`,
 			{ key: job.key, before: new Date(Date.now() - claimLeaseMs()) }
 		);
 		if (existing?.status === 'sent') return { result: 'already-sent' };
-		// Another delivery of the same key is at its SMTP send right now (two dispatchers handed the same row
-		// to the queue: several workers, as in the cluster): not a send that stopped. Marking it uncertain
-		// here logged "stopped mid-send" for mail that was being sent; this job looks again later and finds it sent.
-		if (existing?.status === 'sending' && !Number(existing.stale)) throw new Error(`${job.key} is being sent by another worker; retrying later`);
+		// Handed to SMTP by another attempt: one that stopped mid-send (a worker killed), or, rarely, one still
+		// at its send (a key in a batch and in a job of its own). Never sent again; 'uncertain' until that send,
+		// if it is one, ends and marks it sent (its last update takes 'uncertain' too). Waiting to tell the two
+		// apart would hold a crashed send's retry for the whole claim lease.
 		if (existing?.status === 'sending' || existing?.status === 'uncertain') {
 			await exec(`UPDATE mail_log SET status = 'uncertain' WHERE idempotency_key = :key AND status = 'sending'`, { key: job.key });
-			console.error(`[mail] ${job.key}: an earlier attempt stopped mid-send; not sending again (check the mail server's log)`);
+			console.error(`[mail] ${job.key}: another attempt was handed to SMTP (stopped mid-send, or still sending); not sending again`);
 			return { result: 'uncertain' };
 		}
 		// another worker is about to send it; or one died before sending (lease over): take over

@@ -1,4 +1,5 @@
 /** The BullMQ mail queue and the outbox dispatcher that feeds it. */
+import { randomUUID } from 'node:crypto';
 import { Queue } from 'bullmq';
 import { bullConnection, redis } from '../redis';
 import { jsonValue } from '../db';
@@ -57,6 +58,28 @@ export async function closeMailQueue(): Promise<void> {
  * dispatched twice is two jobs, and mail_log keeps each message to one send. Returns the number moved.
  */
 export async function dispatchOutbox(limit = 200): Promise<number> {
+	// One dispatcher at a time across every worker: each reads the rows not yet marked, so two at once
+	// (the cluster's two workers, woken by the same commit) handed most rows to the queue twice — mail_log
+	// kept each to one send, but the second delivery of each waited and retried (the cluster run: 586
+	// such retries for 731 messages). A worker that finds the lock taken returns 0 and waits for its next
+	// wake-up or poll; the holder scans again for the wake-ups it got meanwhile. The lock expires by itself
+	// (DISPATCH_LOCK_MS) if its holder dies.
+	const token = `${process.pid}:${randomUUID()}`;
+	const r = redis();
+	if ((await r.set(DISPATCH_LOCK, token, 'PX', dispatchLockMs(), 'NX')) !== 'OK') return 0;
+	try {
+		return await dispatchLocked(limit);
+	} finally {
+		await r.eval(RELEASE_IF_MINE, 1, DISPATCH_LOCK, token).catch(() => undefined);
+	}
+}
+
+const DISPATCH_LOCK = 'crosstally:mail:dispatching';
+const dispatchLockMs = () => Number(process.env.DISPATCH_LOCK_MS ?? 30_000);
+/** Delete the lock only if it still holds this dispatcher's token (it may have expired and been taken since). */
+const RELEASE_IF_MINE = `if redis.call('get', KEYS[1]) == ARGV[1] then return redis.call('del', KEYS[1]) else return 0 end`;
+
+async function dispatchLocked(limit: number): Promise<number> {
 	const rows = await pendingOutbox(limit);
 	if (rows.length === 0) return 0;
 	const size = mailBatchSize();
