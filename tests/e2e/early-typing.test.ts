@@ -126,6 +126,31 @@ describe('fields filled before the page is hydrated keep their values', () => {
 		await ctx.close();
 	});
 
+	it('norm set (lead): a test picked early in the group filter is kept and applied', async () => {
+		// a norm set with groups of at least two tests, one of them, and how many groups it has there
+		const set = await selectOne<{ id: number; code: string }>(
+			`SELECT norm_set_id AS id, MIN(test_code) AS code FROM norm_groups WHERE subject = 'test'
+			 GROUP BY norm_set_id HAVING COUNT(DISTINCT test_code) >= 2 ORDER BY norm_set_id LIMIT 1`
+		);
+		expect(set, 'a norm set with groups of two tests').toBeTruthy();
+		const { n } = (await selectOne<{ n: number }>('SELECT COUNT(*) AS n FROM norm_groups WHERE norm_set_id = :id AND test_code = :code', set!))!;
+		const { total } = (await selectOne<{ total: number }>('SELECT COUNT(*) AS total FROM norm_groups WHERE norm_set_id = :id', set!))!;
+		expect(Number(n)).toBeLessThan(Number(total)); // so the filter visibly applies
+		const ctx = await browser.newContext();
+		const page = await ctx.newPage();
+		await signIn(page, ACCOUNTS.lead, DEMO_PASSWORD);
+		const release = await openUnhydrated(page, `/catalog/norm-sets/${set!.id}`);
+		await page.selectOption('#f-test', set!.code);
+		await release();
+		expect(await page.inputValue('#f-test')).toBe(set!.code);
+		const groups = page.getByTestId('groups-table').getByTestId('group-words');
+		await page
+			.waitForFunction((want) => document.querySelectorAll('[data-testid="group-words"]').length === want, Number(n), { timeout: 5_000 })
+			.catch(() => undefined);
+		expect(await groups.count()).toBe(Number(n));
+		await ctx.close();
+	});
+
 	it('catalog tests (lead, phone width): a domain, a direction and a sort chosen early are kept and applied', async () => {
 		const ctx = await browser.newContext({ viewport: { width: 390, height: 844 } }); // the sort select shows below 768 px
 		const page = await ctx.newPage();
