@@ -14,6 +14,7 @@ import { throughWorkflow, createViaForm, uniqueCode } from '../helpers/workflow'
 import { tidewaterProtocol, tidewaterCarriedSlip } from '../helpers/tidewater';
 import { seriousViolations, describeViolations } from '../helpers/axe';
 import { closeDb, selectOne } from '../../src/lib/server/db';
+import { ACCOUNTS as SEEDED } from '../../db/seeds/accounts';
 
 const WIDTHS = [390, 768, 1024, 1440];
 let browser: Browser;
@@ -50,14 +51,39 @@ beforeAll(async () => {
 	const email = `width-${Date.now()}@clinic.test`;
 	const inv = await admin.action('/people?/invite', { name: 'Wren Okoye', email, roles: ['scorer'] });
 	expect(inv.status).toBe(200);
-	// the longest address the full suite leaves in People (other tests invite such accounts): no part of
-	// it may widen the page or the list's box, at any width
+	// People as the full suite leaves it, so that this file alone shows what a full run shows: a whole
+	// run shares one database, and other files leave their accounts in it. In a table what widens a
+	// column is a value's longest run the browser may not break (a space, a hyphen before a letter and
+	// EmailAddress's <wbr> after the "@" and before a dot break a run; a dot alone does not), so the
+	// accounts below copy the worst the suite writes (every name and address created in tests/, through
+	// People, createUser or INSERT INTO users, by grep, session 8):
+	// - the longest name without a break: audit.test.ts's '=HYPERLINK("http://x.test","Odd")' (33 characters);
+	// - the longest address and the longest run in one: security.test.ts's
+	//   `log.probe.${Date.now()}@demo.crosstally.test` (44 characters, "log.probe.<13 digits>@" 24 without a
+	//   hyphen; next sign-in-security's `colleague-${Date.now()}-xxxx@clinic.test`, 40, and
+	//   mail-batches' `batch-refusal-1-${Date.now()}@clinic.test`, 41, broken by their hyphens);
+	// - this file's own long name and address: the longest in characters (66 and 98), but their hyphens
+	//   break them into short runs;
+	// - a deactivated account: "Deactivated" is the widest status (auth and session tests leave some),
+	//   beside the invited one's two buttons, "Resend invitation" and "Deactivate".
+	// None of them may widen the page or the list's box at any width, and the demo accounts' ordinary
+	// names beside them must keep their words whole (the People test below).
+	const longEmail = `width-check-a-rather-long-local-part-${Date.now()}@a-clinic-with-a-long-domain-name.example.test`;
 	const long = await admin.action('/people?/invite', {
 		name: 'Width-Check-With-A-Rather-Long-Display-Name-Written-Without-Spaces',
-		email: `width-check-a-rather-long-local-part-${Date.now()}@a-clinic-with-a-long-domain-name.example.test`,
+		email: longEmail,
 		roles: ['scorer']
 	});
-	expect(long.status).toBe(200);
+	expect(long.body.type).toBe('success');
+	const worst = await admin.action('/people?/invite', {
+		name: '=HYPERLINK("http://x.test","Odd")',
+		email: `log.probe.${Date.now()}@demo.crosstally.test`,
+		// scorer only: an active lead would be copied in on the escalated reminders notifications.test.ts checks
+		roles: ['scorer']
+	});
+	expect(worst.body.type).toBe('success');
+	const leaver = await selectOne<{ id: number }>('SELECT id FROM users WHERE email = :email', { email: longEmail });
+	expect((await admin.action('/people?/active', { id: String(leaver!.id), active: '0' })).body.type).toBe('success');
 	const [mail] = await waitFor(async () => {
 		const m = await caughtMail(email);
 		return m.length ? m : null;
@@ -127,6 +153,64 @@ async function overflowReport(page: Page): Promise<{ scrollWidth: number; innerW
 			.map((e) => e.tagName.toLowerCase() + '.' + String(e.className).slice(0, 60) + ' right=' + Math.round(e.getBoundingClientRect().right));
 		return { scrollWidth: document.documentElement.scrollWidth, innerWidth: iw, culprits };
 	})()`);
+}
+
+type PeopleWord = { word: string; email: string; lines: number; width: number; room: number };
+
+/**
+ * People's names and addresses, word by word, as drawn. A word is a run the page should break only
+ * as a last resort: in a name, a run without a space, ending after a hyphen (a line may end there);
+ * in an address, a run between the "@" (it ends one), the dots (each starts one), hyphens and commas
+ * (EmailAddress offers a break after the "@" and before each dot). Its line boxes are the distinct
+ * tops of Range.getClientRects() over it; its width unbroken the sum of their widths; `room` its
+ * cell's content box, the widest line it can have.
+ */
+async function peopleWords(page: Page): Promise<PeopleWord[]> {
+	return page.getByTestId('people-table').evaluate((t) => {
+		const out: PeopleWord[] = [];
+		for (const tr of t.querySelectorAll('tbody tr')) {
+			const mailCell = tr.querySelector<HTMLElement>('td[data-label="E-mail"]')!;
+			const email = mailCell.textContent!.trim();
+			for (const [cell, re] of [
+				[tr.querySelector<HTMLElement>('td')!, /[^\s-]+-?/g],
+				[mailCell, /\.?[^\s.@,-]+[@,-]?/g]
+			] as const) {
+				const cs = getComputedStyle(cell);
+				const room = cell.clientWidth - parseFloat(cs.paddingLeft) - parseFloat(cs.paddingRight);
+				const walker = document.createTreeWalker(cell, NodeFilter.SHOW_TEXT);
+				for (let n = walker.nextNode() as Text | null; n; n = walker.nextNode() as Text | null) {
+					for (const m of n.data.matchAll(re)) {
+						const r = document.createRange();
+						r.setStart(n, m.index);
+						r.setEnd(n, m.index + m[0].length);
+						const rects = [...r.getClientRects()].filter((x) => x.width > 0);
+						if (!rects.length) continue;
+						const lines = new Set(rects.map((x) => Math.round(x.top))).size;
+						out.push({ word: m[0], email, lines, width: rects.reduce((sum, x) => sum + x.width, 0), room });
+					}
+				}
+			}
+		}
+		return out;
+	});
+}
+
+/** What sticks out of its cell in People's table: every text fragment and element box (a Range over the cell's contents) must lie inside the cell. */
+async function peopleOutsideCells(page: Page): Promise<string[]> {
+	return page.getByTestId('people-table').evaluate((t) =>
+		[...t.querySelectorAll<HTMLElement>('tbody td')].flatMap((td) => {
+			const box = td.getBoundingClientRect();
+			const r = document.createRange();
+			r.selectNodeContents(td);
+			return [...r.getClientRects()]
+				.filter((x) => x.width > 0 && (x.left < box.left - 0.5 || x.right > box.right + 0.5))
+				.slice(0, 1)
+				.map(
+					(x) =>
+						`${td.getAttribute('data-label') ?? 'cell'} ${Math.round(x.left)}–${Math.round(x.right)} outside ${Math.round(box.left)}–${Math.round(box.right)}: ${td.textContent?.trim().slice(0, 50)}`
+				);
+		})
+	);
 }
 
 describe('every screen at every width: no sideways page scroll, axe clean', () => {
@@ -338,10 +422,50 @@ describe('the layout at each width', () => {
 				const fit = await table.evaluate((t) => ({ box: t.parentElement!.clientWidth, scroll: t.parentElement!.scrollWidth }));
 				expect(fit.scroll, 'People at 1280 px scrolls sideways inside its box').toBeLessThanOrEqual(fit.box);
 				const mail = await table.locator('td[data-label="E-mail"]').first().innerHTML();
-				expect(mail.replace(/<!--[^]*?-->/g, '')).toMatch(/@<wbr>/); // hydration markers aside
+				expect(mail.replace(/<!--[^]*?-->/g, '')).toMatch(/@(<\/span>)?<wbr>/); // hydration markers aside
 			}
 			await page.context().close();
 		}
+	}, 120_000);
+
+	it('People from 768 px: nothing scrolls sideways or sticks out of its cell, with the longest values the suite leaves; an ordinary word is never split, a longer run only where it is longer than its column', async () => {
+		const page = await as('admin');
+		await page.goto(`${BASE_URL}/people`, { waitUntil: 'networkidle' });
+		const seeded = new Set(SEEDED.map((a) => a.email));
+		for (const w of [768, 1024, 1280, 1536]) {
+			await page.setViewportSize({ width: w, height: 900 });
+			await settle(page);
+			// the page, the list's box and each cell hold their content
+			const o = await overflowReport(page);
+			expect(o.scrollWidth, `People at ${w} px scrolls the page sideways: ${o.culprits.join(' | ')}`).toBeLessThanOrEqual(o.innerWidth);
+			const box = await page.getByTestId('people-table').evaluate((t) => ({ client: t.parentElement!.clientWidth, scroll: t.parentElement!.scrollWidth }));
+			expect(box.scroll, `People at ${w} px scrolls sideways inside its box`).toBeLessThanOrEqual(box.client);
+			const outside = await peopleOutsideCells(page);
+			expect(outside, `at ${w} px:\n${outside.join('\n')}`).toEqual([]);
+
+			const words = await peopleWords(page);
+			const show = (x: PeopleWord) => `"${x.word}" on ${x.lines} lines (${Math.round(x.width)} px wide, its column ${Math.round(x.room)} px) in ${x.email}`;
+			// the demo accounts' names and addresses are ordinary words ("Rita Castellanos",
+			// "rita.reviewer@demo.crosstally.test"): none is drawn on two lines
+			const ordinary = words.filter((x) => seeded.has(x.email));
+			expect(
+				ordinary.map((x) => x.word),
+				`at ${w}`
+			).toEqual(expect.arrayContaining(['Castellanos', '.reviewer@', '.crosstally']));
+			const splitOrdinary = ordinary.filter((x) => x.lines > 1);
+			expect(splitOrdinary.map(show), `People at ${w} px splits ordinary words`).toEqual([]);
+			// any word, the suite's long ones included, is broken only when it is wider than its column
+			// (the last resort: '=HYPERLINK("http://x.test","Odd")' at 768 px)
+			const splitThatFit = words.filter((x) => x.lines > 1 && x.width <= x.room + 0.5);
+			expect(splitThatFit.map(show), `People at ${w} px splits words that fit their column`).toEqual([]);
+		}
+		// the roles form (a checkbox per role, Save, Cancel) fits the Roles column at its narrowest
+		await page.setViewportSize({ width: 768, height: 900 });
+		await page.getByRole('button', { name: 'Change roles of Rita Castellanos' }).click();
+		await expect.poll(() => page.getByTestId('people-table').locator('form[action="?/roles"]').count()).toBe(1);
+		const editing = await peopleOutsideCells(page);
+		expect(editing, `the roles form at 768 px:\n${editing.join('\n')}`).toEqual([]);
+		await page.context().close();
 	}, 120_000);
 
 	it('Review puts the record form under the discrepancy cards below 1280 px, beside them from 1280 px', async () => {
